@@ -1,0 +1,241 @@
+//! The one function that chains the pipeline: decode → track → segment → mechanics.
+//! Decoding runs on its own thread and hands frames to the tracker through a short queue of
+//! recycled buffers, so the two stages overlap and no frame buffer is allocated per frame.
+
+use std::path::Path;
+use std::sync::mpsc;
+
+use crate::decode::{self, ClipInfo, Frame, FrameSource};
+use crate::error::{Error, Result};
+use crate::mechanics::{self, BlowMetrics, Summary};
+use crate::rig::Rig;
+use crate::segment::{self, Segmentation};
+use crate::track::{Trace, Tracker};
+use crate::units::TimeBase;
+use crate::warning::Warning;
+
+/// Frames in flight between the decoder and the tracker.
+const QUEUE_DEPTH: usize = 4;
+
+/// What the user asked for, beyond the clip and the rig.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct AnalyzeOptions {
+    /// Capture rate from the command line; overrides the rig's `capture_fps_hz`.
+    pub fps_hz: Option<f64>,
+    /// Start of the analysed window, s (capture time).
+    pub start_s: Option<f64>,
+    /// End of the analysed window, s (capture time).
+    pub end_s: Option<f64>,
+}
+
+/// Where the capture rate came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FpsSource {
+    /// `--fps`.
+    Option,
+    /// The rig's `capture_fps_hz`.
+    Rig,
+    /// The container (probably the playback rate).
+    Container,
+}
+
+/// Everything one analysis found.
+#[derive(Debug, Clone)]
+pub struct Analysis {
+    /// The clip.
+    pub clip: ClipInfo,
+    /// The rig used.
+    pub rig: Rig,
+    /// The capture rate used for all timing.
+    pub time_base: TimeBase,
+    /// Where the capture rate came from.
+    pub fps_source: FpsSource,
+    /// Per-frame angles.
+    pub trace: Trace,
+    /// Blows and blow rate.
+    pub segmentation: Segmentation,
+    /// Per-blow metrics.
+    pub blows: Vec<BlowMetrics>,
+    /// Clip-level results.
+    pub summary: Summary,
+    /// Every warning from every stage, in pipeline order.
+    pub warnings: Vec<Warning>,
+}
+
+/// Chooses the capture rate: `--fps`, then the rig, then the container with a warning.
+///
+/// # Errors
+/// [`Error::Option`] when no rate is known or the chosen one is not positive.
+pub fn capture_rate(
+    opts: &AnalyzeOptions,
+    rig: &Rig,
+    clip: &ClipInfo,
+) -> Result<(TimeBase, FpsSource, Option<Warning>)> {
+    if let Some(fps) = opts.fps_hz {
+        return Ok((TimeBase::from_fps(fps, "--fps")?, FpsSource::Option, None));
+    }
+    if let Some(fps) = rig.capture_fps_hz {
+        return Ok((
+            TimeBase::from_fps(fps, "capture_fps_hz")?,
+            FpsSource::Rig,
+            None,
+        ));
+    }
+    match clip.container_fps_hz {
+        Some(fps) if fps.is_finite() && fps > 0.0 => Ok((
+            TimeBase::from_fps(fps, "container frame rate")?,
+            FpsSource::Container,
+            Some(Warning::ContainerFps {
+                container_fps_hz: fps,
+            }),
+        )),
+        _ => Err(Error::Option {
+            flag: "--fps".into(),
+            reason: format!(
+                "{} has no frame rate of its own: give the camera's capture rate with --fps or capture_fps_hz in the rig",
+                clip.path.display()
+            ),
+        }),
+    }
+}
+
+/// Analyses a clip (video file or stills folder) with a rig.
+///
+/// # Errors
+/// Any [`Error`] from opening, decoding, the rig's fit to the frame, or a mark with no paint.
+pub fn analyze(clip: &Path, rig: &Rig, rig_path: &Path, opts: &AnalyzeOptions) -> Result<Analysis> {
+    analyze_source(decode::open(clip)?, rig, rig_path, opts, &|_, _| {})
+}
+
+/// Analyses frames from any source; `progress(done, total)` is called as frames are tracked.
+///
+/// # Errors
+/// As [`analyze`].
+pub fn analyze_source(
+    mut source: Box<dyn FrameSource>,
+    rig: &Rig,
+    rig_path: &Path,
+    opts: &AnalyzeOptions,
+    progress: &(dyn Fn(u64, u64) + Sync),
+) -> Result<Analysis> {
+    let clip = source.info().clone();
+    let mut warnings = clip.warnings.clone();
+    let (time_base, fps_source, fps_warning) = capture_rate(opts, rig, &clip)?;
+    warnings.extend(fps_warning);
+    let (first, last) = window(opts, time_base, clip.frames, &mut warnings)?;
+    let mut tracker = Tracker::new(rig, rig_path, clip.width, clip.height)?;
+
+    let total = last.min(clip.frames).saturating_sub(first);
+    std::thread::scope(|scope| -> Result<()> {
+        let (full_tx, full_rx) = mpsc::sync_channel::<Frame>(QUEUE_DEPTH);
+        let (empty_tx, empty_rx) = mpsc::sync_channel::<Frame>(QUEUE_DEPTH + 1);
+        for _ in 0..QUEUE_DEPTH + 1 {
+            let _ = empty_tx.send(Frame::empty());
+        }
+        let decoder = scope.spawn(move || -> Result<()> {
+            let mut spare: Option<Frame> = None;
+            loop {
+                let mut frame = match spare.take() {
+                    Some(f) => f,
+                    None => match empty_rx.recv() {
+                        Ok(f) => f,
+                        Err(_) => return Ok(()),
+                    },
+                };
+                if !source.read_into(&mut frame)? || frame.index >= last {
+                    return Ok(());
+                }
+                if frame.index < first {
+                    spare = Some(frame);
+                } else if full_tx.send(frame).is_err() {
+                    return Ok(());
+                }
+            }
+        });
+        let mut done = 0u64;
+        let mut tracked: Result<()> = Ok(());
+        for frame in full_rx.iter() {
+            if tracked.is_ok() {
+                tracked = tracker.push(&frame);
+                done += 1;
+                progress(done, total);
+            }
+            if empty_tx.send(frame).is_err() || tracked.is_err() {
+                break;
+            }
+        }
+        drop(full_rx);
+        drop(empty_tx);
+        let decoded = decoder.join().unwrap_or_else(|_| {
+            Err(Error::Input {
+                path: clip.path.clone(),
+                reason: "the decoder thread stopped unexpectedly".into(),
+            })
+        });
+        tracked?;
+        decoded
+    })?;
+
+    let (trace, track_warnings) = tracker.finish(time_base);
+    warnings.extend(track_warnings);
+    let segmentation = segment::find_blows(&trace);
+    warnings.extend(segmentation.warnings.iter().cloned());
+    let (blows, summary, mech_warnings) =
+        mechanics::blow_metrics(&trace, &segmentation, rig.bar.as_ref());
+    warnings.extend(mech_warnings);
+    Ok(Analysis {
+        clip,
+        rig: rig.clone(),
+        time_base,
+        fps_source,
+        trace,
+        segmentation,
+        blows,
+        summary,
+        warnings,
+    })
+}
+
+/// The analysed frame range `[first, last)` from the time window.
+fn window(
+    opts: &AnalyzeOptions,
+    tb: TimeBase,
+    frames: u64,
+    warnings: &mut Vec<Warning>,
+) -> Result<(u64, u64)> {
+    let check = |v: Option<f64>, flag: &str| -> Result<()> {
+        match v {
+            Some(t) if !(t.is_finite() && t >= 0.0) => Err(Error::Option {
+                flag: flag.into(),
+                reason: format!("must be a time in seconds at or after 0, got {t}"),
+            }),
+            _ => Ok(()),
+        }
+    };
+    check(opts.start_s, "--start-s")?;
+    check(opts.end_s, "--end-s")?;
+    let first = opts.start_s.map_or(0, |t| tb.frame_at(t).ceil() as u64);
+    // Without --end-s, read to the end of the stream whatever the container claims.
+    let mut last = opts
+        .end_s
+        .map_or(u64::MAX, |t| tb.frame_at(t).floor() as u64 + 1);
+    if opts.end_s.is_some() && last > frames {
+        warnings.push(Warning::WindowClipped {
+            detail: format!(
+                "--end-s is past the clip's last frame ({frames} frames); analysing to the end"
+            ),
+        });
+        last = u64::MAX;
+    }
+    if first >= last.min(frames) {
+        return Err(Error::Option {
+            flag: "--start-s".into(),
+            reason: format!(
+                "the window holds no frames (clip has {frames} frames, {:.4} s at {} fps); move --start-s earlier or --end-s later",
+                tb.seconds(frames as f64),
+                tb.fps_hz()
+            ),
+        });
+    }
+    Ok((first, last))
+}

@@ -1,0 +1,232 @@
+//! Stage 1, decode: turns a clip (a video file or a folder of numbered stills) into a stream of
+//! luma frames, one at a time, so memory does not grow with clip length.
+//!
+//! Frame indices count from 0 at the clip's first frame. Time is never taken from container
+//! timestamps: it is frame index / capture rate (see [`crate::TimeBase`]).
+
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
+use crate::warning::Warning;
+
+mod stills;
+#[cfg(feature = "ffmpeg")]
+mod video;
+
+/// Luma samples of one frame, row-major, `width * height` values with no row padding.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Luma {
+    /// 8-bit samples, 0..=255.
+    U8(Vec<u8>),
+    /// Deeper samples (10, 12 or 16 bit), 0..=max where max = 2^bit_depth − 1.
+    U16(Vec<u16>),
+}
+
+/// One decoded frame: its index in the clip and its luma plane.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Frame {
+    /// Zero-based index of the frame in the clip.
+    pub index: u64,
+    /// Width in pixels.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+    /// Bits per luma sample (8 for `Luma::U8`).
+    pub bit_depth: u8,
+    /// The samples.
+    pub luma: Luma,
+}
+
+impl Frame {
+    /// An empty 8-bit frame, to be filled by [`FrameSource::read_into`].
+    pub fn empty() -> Self {
+        Frame {
+            index: 0,
+            width: 0,
+            height: 0,
+            bit_depth: 8,
+            luma: Luma::U8(Vec::new()),
+        }
+    }
+
+    /// An 8-bit frame from a row-major buffer of `width * height` samples.
+    ///
+    /// # Panics
+    /// When the buffer length is not `width * height`.
+    pub fn from_u8(index: u64, width: u32, height: u32, data: Vec<u8>) -> Self {
+        assert_eq!(
+            data.len(),
+            width as usize * height as usize,
+            "frame buffer size"
+        );
+        Frame {
+            index,
+            width,
+            height,
+            bit_depth: 8,
+            luma: Luma::U8(data),
+        }
+    }
+
+    /// The largest possible sample value (255 for 8 bit).
+    pub fn max_value(&self) -> f32 {
+        ((1u32 << self.bit_depth) - 1) as f32
+    }
+
+    /// The sample at integer pixel (x, y), scaled to 0..=1.
+    ///
+    /// # Panics
+    /// When (x, y) is outside the frame.
+    pub fn value(&self, x: u32, y: u32) -> f32 {
+        let i = y as usize * self.width as usize + x as usize;
+        match &self.luma {
+            Luma::U8(d) => d[i] as f32 / 255.0,
+            Luma::U16(d) => d[i] as f32 / self.max_value(),
+        }
+    }
+
+    /// A simple checksum of the luma samples (FNV-1a over the sample values as little-endian
+    /// bytes), used to check that decoders reproduce what the renderer wrote.
+    pub fn checksum(&self) -> u64 {
+        let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+        let mut eat = |b: u8| {
+            h ^= u64::from(b);
+            h = h.wrapping_mul(0x0000_0100_0000_01b3);
+        };
+        match &self.luma {
+            Luma::U8(d) => d.iter().for_each(|&b| eat(b)),
+            Luma::U16(d) => d
+                .iter()
+                .for_each(|&v| v.to_le_bytes().into_iter().for_each(&mut eat)),
+        }
+        h
+    }
+}
+
+/// What kind of clip a source reads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ClipKind {
+    /// A video file decoded with FFmpeg.
+    Video,
+    /// A folder of numbered still images.
+    Stills,
+    /// Frames held in memory (tests, synthetic scenes).
+    Memory,
+}
+
+/// Facts about a clip known before (or, for the frame count, by) reading it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ClipInfo {
+    /// The clip's path.
+    pub path: PathBuf,
+    /// Video file or stills folder.
+    pub kind: ClipKind,
+    /// Exact number of frames.
+    pub frames: u64,
+    /// Frame width in pixels.
+    pub width: u32,
+    /// Frame height in pixels.
+    pub height: u32,
+    /// Bits per luma sample.
+    pub bit_depth: u8,
+    /// The container's frame rate, usually the playback rate (None for stills).
+    pub container_fps_hz: Option<f64>,
+    /// Codec name (`h264`, `ffv1`, ...) or image format for stills (`png`, ...).
+    pub codec: String,
+    /// Duration at the container rate in seconds, when known.
+    pub duration_s: Option<f64>,
+    /// Problems noticed while opening (gaps in numbering, ...).
+    pub warnings: Vec<Warning>,
+}
+
+/// A stream of frames from one clip.
+pub trait FrameSource: Send {
+    /// Facts about the clip.
+    fn info(&self) -> &ClipInfo;
+
+    /// Reads the next frame into `frame`, reusing its buffer. Returns `Ok(false)` at the end.
+    ///
+    /// # Errors
+    /// [`Error::Decode`] with the frame index when a frame cannot be decoded, or
+    /// [`Error::Input`] naming the file for a bad still.
+    fn read_into(&mut self, frame: &mut Frame) -> Result<bool>;
+}
+
+/// Opens a clip: a folder is read as numbered stills, anything else as a video file.
+///
+/// # Errors
+/// [`Error::Input`] naming the path when it does not exist, is empty, or is not a clip.
+pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
+    if path.is_dir() {
+        return Ok(Box::new(stills::StillsSource::open(path)?));
+    }
+    if !path.exists() {
+        return Err(Error::input(path, "no such file or folder; check the path"));
+    }
+    open_video(path)
+}
+
+#[cfg(feature = "ffmpeg")]
+fn open_video(path: &Path) -> Result<Box<dyn FrameSource>> {
+    Ok(Box::new(video::VideoSource::open(path)?))
+}
+
+#[cfg(not(feature = "ffmpeg"))]
+fn open_video(path: &Path) -> Result<Box<dyn FrameSource>> {
+    Err(Error::input(
+        path,
+        "this build reads only folders of stills; rebuild with the default \"ffmpeg\" feature to read video files",
+    ))
+}
+
+/// Frames held in memory, for tests and synthetic scenes.
+pub struct MemorySource {
+    info: ClipInfo,
+    frames: std::vec::IntoIter<Frame>,
+}
+
+impl MemorySource {
+    /// A source over `frames`, which must all have the same size.
+    ///
+    /// # Panics
+    /// When `frames` is empty or the sizes differ.
+    pub fn new(frames: Vec<Frame>, container_fps_hz: Option<f64>) -> Self {
+        let first = frames.first().expect("at least one frame");
+        assert!(
+            frames
+                .iter()
+                .all(|f| f.width == first.width && f.height == first.height)
+        );
+        let info = ClipInfo {
+            path: PathBuf::from("(memory)"),
+            kind: ClipKind::Memory,
+            frames: frames.len() as u64,
+            width: first.width,
+            height: first.height,
+            bit_depth: first.bit_depth,
+            container_fps_hz,
+            codec: "raw".into(),
+            duration_s: None,
+            warnings: Vec::new(),
+        };
+        MemorySource {
+            info,
+            frames: frames.into_iter(),
+        }
+    }
+}
+
+impl FrameSource for MemorySource {
+    fn info(&self) -> &ClipInfo {
+        &self.info
+    }
+    fn read_into(&mut self, frame: &mut Frame) -> Result<bool> {
+        match self.frames.next() {
+            Some(f) => {
+                *frame = f;
+                Ok(true)
+            }
+            None => Ok(false),
+        }
+    }
+}

@@ -1,0 +1,106 @@
+//! Typed warnings: data-quality problems that leave a usable result. They are returned
+//! inside results; the library never prints them. Each `Display` says what happened and
+//! what to do about it.
+
+use std::fmt;
+
+/// A problem that did not stop the analysis but that the user should know about.
+#[derive(Debug, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum Warning {
+    /// No capture rate was given, so the container's rate was used for timing.
+    ContainerFps {
+        /// The container's frame rate.
+        container_fps_hz: f64,
+    },
+    /// Numbered stills skip some numbers.
+    FrameGap {
+        /// The last number before the gap.
+        after: u64,
+        /// The first number after the gap.
+        next: u64,
+    },
+    /// A mark could not be found in a run of frames; those frames are null in the trace.
+    MarkLost {
+        /// The mark's role.
+        mark: String,
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+    },
+    /// The rig has no bar, so torque fields are null.
+    NoBar,
+    /// Fewer blows than needed for a blow rate were found.
+    FewBlows {
+        /// How many blows were found.
+        count: usize,
+    },
+    /// The requested time window was clipped to the clip's length.
+    WindowClipped {
+        /// What was clipped.
+        detail: String,
+    },
+    /// A section's shear stress passes the warning fraction of shear yield.
+    StressHigh {
+        /// The section, e.g. `bar.sections[1] (round)`.
+        section: String,
+        /// Maximum shear stress in MPa.
+        stress_mpa: f64,
+        /// Shear yield used, in MPa.
+        shear_yield_mpa: f64,
+        /// What torque the stress is for (`rating`, `measured peak`).
+        at: String,
+    },
+    /// Any other data-quality note with its own explanation.
+    Note(String),
+}
+
+impl fmt::Display for Warning {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Warning::ContainerFps { container_fps_hz } => write!(
+                f,
+                "no capture rate given; using the container's {container_fps_hz} fps, which is \
+                 probably the playback rate: pass --fps or set capture_fps_hz in the rig"
+            ),
+            Warning::FrameGap { after, next } => write!(
+                f,
+                "stills numbering jumps from {after} to {next}: {} frame(s) missing, so times after \
+                 the gap assume no frame was lost",
+                next.saturating_sub(*after).saturating_sub(1)
+            ),
+            Warning::MarkLost {
+                mark,
+                first_frame,
+                last_frame,
+            } => write!(
+                f,
+                "mark '{mark}' lost in frames {first_frame}..={last_frame}; those angles are null \
+                 (check lighting, focus and that the paint stays inside the annulus)"
+            ),
+            Warning::NoBar => write!(
+                f,
+                "the rig has no bar, so torque is not computed: add a \"bar\" with its sections"
+            ),
+            Warning::FewBlows { count } => write!(
+                f,
+                "only {count} blow(s) found; a blow rate needs at least two (use a longer clip or \
+                 check the drive mark)"
+            ),
+            Warning::WindowClipped { detail } => write!(f, "time window clipped: {detail}"),
+            Warning::StressHigh {
+                section,
+                stress_mpa,
+                shear_yield_mpa,
+                at,
+            } => write!(
+                f,
+                "{section}: maximum shear stress {stress_mpa:.0} MPa at the {at} is {:.0} % of the \
+                 shear yield {shear_yield_mpa:.0} MPa; the bar may take a permanent set",
+                100.0 * stress_mpa / shear_yield_mpa
+            ),
+            Warning::Note(s) => f.write_str(s),
+        }
+    }
+}
