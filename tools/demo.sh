@@ -1,0 +1,13 @@
+#!/usr/bin/env bash
+# Installs what is missing, builds twistmark, and analyses the bundled demo clip
+# (a scene from the project's own invented test bench, rendered with known truth).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+./tools/setup.sh
+cargo build --release --locked
+demo=fixtures/demo
+./target/release/twistmark info "$demo/clip.mkv"
+./target/release/twistmark analyze "$demo/clip.mkv" --rig "$demo/rig.json" --out demo-out "$@"
+echo
+echo "Results are in demo-out/ (report.json, blows.csv, trace.csv and plots)."
+echo "The demo's true values are in $demo/truth.json, for comparison."
