@@ -22,7 +22,11 @@ pub struct CalibrateArgs {
     rig: PathBuf,
     /// One check: applied torque in N·m and measured twist in degrees, e.g. 100:2.32. Repeat
     /// for each check.
-    #[arg(long = "pair", value_name = "TORQUE_NM:TWIST_DEG")]
+    #[arg(
+        long = "pair",
+        value_name = "TORQUE_NM:TWIST_DEG",
+        allow_hyphen_values = true
+    )]
     pairs: Vec<String>,
     /// A CSV file of checks with a header row: torque_nm (or torque_lbf_ft) and twist_deg
     /// (or twist_rad).
