@@ -120,7 +120,7 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         fit.rms_residual.deg(),
         computed.nm_per_deg()
     );
-    if vs_pct < -25.0 || vs_pct > 10.0 {
+    if !(-25.0..=10.0).contains(&vs_pct) {
         eprintln!(
             "warning: the calibrated stiffness is {vs_pct:+.0} % from the computed one; check the sections, \
              the steel, and that each pair is (torque in N·m, twist in degrees). Play in the drive square usually \

@@ -927,12 +927,24 @@ mod tests {
             t_nm in 1.0..2000.0f64,
             scale in 0.01..100.0f64,
         ) {
-            let k = BarSpec::new(secs).stiffness();
+            let bar = BarSpec::new(secs);
+            let k = bar.stiffness();
+            // The bar's twist is the sum of each section's twist T·Lᵢ/(GᵢJᵢ) ...
+            let by_sections = |t: f64| -> f64 {
+                bar.section_compliances().iter().map(|c| t * c).sum()
+            };
             let a: Angle = Torque::from_nm(t_nm) / k;
+            prop_assert!((a.rad() - by_sections(t_nm)).abs() <= 1e-12 * a.rad());
+            // ... and scales with the torque, as does the largest shear stress.
             let b: Angle = Torque::from_nm(t_nm * scale) / k;
             prop_assert!((b.rad() - scale * a.rad()).abs() <= 1e-12 * b.rad().abs());
-            let sum: Angle = Torque::from_nm(t_nm + t_nm * scale) / k;
-            prop_assert!((sum.rad() - (a + b).rad()).abs() <= 1e-12 * sum.rad().abs());
+            prop_assert!((by_sections(t_nm * scale) - scale * by_sections(t_nm)).abs()
+                <= 1e-12 * b.rad());
+            let report = crate::mechanics::BarReport::new(&bar).unwrap();
+            let s1 = report.max_shear_stress(Torque::from_nm(t_nm));
+            let s2 = report.max_shear_stress(Torque::from_nm(t_nm * scale));
+            prop_assert_eq!(s1.section, s2.section);
+            prop_assert!((s2.stress_pa - scale * s1.stress_pa).abs() <= 1e-9 * s2.stress_pa);
         }
 
         #[test]

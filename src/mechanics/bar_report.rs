@@ -361,6 +361,49 @@ impl BarReport {
         residual_twist: Option<Angle>,
         peak_twist: Option<Angle>,
     ) -> SpringbackVerdict {
+        let residual_fraction = match (residual_twist, peak_twist) {
+            (Some(r), Some(p)) if p.rad().abs() > 0.0 && r.rad().is_finite() => {
+                Some((r.rad() / p.rad()).max(0.0))
+            }
+            _ => None,
+        };
+        self.verdict_from_fraction(blow_interval_s, residual_fraction)
+    }
+
+    /// The spring-back verdict over a clip's blows: the median interval between consecutive
+    /// onsets, against the median of residual/peak over every blow that has a next blow
+    /// (the last blow's residual is taken at the clip's end, so it is left out). `None`
+    /// with fewer than two onsets or a non-increasing onset time.
+    ///
+    /// `onsets_s`, `residual_twist` and `peak_twist` are per blow, in blow order.
+    pub fn springback_verdict_for_blows(
+        &self,
+        onsets_s: &[f64],
+        residual_twist: &[Option<Angle>],
+        peak_twist: &[Option<Angle>],
+    ) -> Option<SpringbackVerdict> {
+        if onsets_s.len() < 2 {
+            return None;
+        }
+        let intervals: Vec<f64> = onsets_s.windows(2).map(|w| w[1] - w[0]).collect();
+        if intervals.iter().any(|d| !(d.is_finite() && *d > 0.0)) {
+            return None;
+        }
+        let fractions: Vec<f64> = (0..onsets_s.len() - 1)
+            .filter_map(|i| {
+                let r = residual_twist.get(i).copied().flatten()?;
+                let p = peak_twist.get(i).copied().flatten()?;
+                (p.rad().abs() > 0.0 && r.rad().is_finite()).then(|| (r.rad() / p.rad()).max(0.0))
+            })
+            .collect();
+        Some(self.verdict_from_fraction(median(intervals)?, median(fractions)))
+    }
+
+    fn verdict_from_fraction(
+        &self,
+        blow_interval_s: f64,
+        residual_fraction: Option<f64>,
+    ) -> SpringbackVerdict {
         let springback_s = self.springback_s();
         let model = springback_s.and_then(|t| {
             if !(blow_interval_s.is_finite() && blow_interval_s > 0.0) {
@@ -373,12 +416,6 @@ impl BarReport {
                 Some(ModelRecovery::TooSlow)
             }
         });
-        let residual_fraction = match (residual_twist, peak_twist) {
-            (Some(r), Some(p)) if p.rad().abs() > 0.0 && r.rad().is_finite() => {
-                Some((r.rad() / p.rad()).max(0.0))
-            }
-            _ => None,
-        };
         let measured = residual_fraction.map(|f| {
             if f <= SPRANG_BACK_MAX {
                 MeasuredRecovery::SprangBack
@@ -471,6 +508,21 @@ impl BarReport {
             caution: TORQUE_CAUTION,
         }
     }
+}
+
+/// Median of finite values; `None` when empty.
+fn median(mut v: Vec<f64>) -> Option<f64> {
+    v.retain(|x| x.is_finite());
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    Some(if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    })
 }
 
 fn ms(s: f64) -> String {
@@ -856,6 +908,42 @@ mod tests {
         assert!(v.sentence.contains("still wound up"), "{}", v.sentence);
         let v = r0.springback_verdict(0.020, None, None);
         assert!(v.sentence.contains("cannot be judged"), "{}", v.sentence);
+    }
+
+    #[test]
+    fn springback_over_blows_uses_medians() {
+        let bar = BarSpec {
+            drive_inertia_kg_m2: Some(1.0e-3),
+            ..c5()
+        };
+        let r = BarReport::new(&bar).unwrap();
+        let deg = |d: f64| Some(Angle::from_deg(d));
+        // Fast tool, synthetic blows 1.5 ms apart (one odd 3 ms gap), residual about 70 % of
+        // peak; the last blow's residual (0 at clip end) is ignored.
+        let onsets = [0.0, 0.0015, 0.0030, 0.0060, 0.0075];
+        let resid = [deg(2.1), deg(2.0), deg(2.2), deg(2.1), deg(0.0)];
+        let peak = [deg(3.0); 5];
+        let v = r
+            .springback_verdict_for_blows(&onsets, &resid, &peak)
+            .unwrap();
+        assert_relative_eq!(v.blow_interval_s, 0.0015, max_relative = 1e-9);
+        assert_relative_eq!(v.residual_fraction.unwrap(), 0.7, max_relative = 1e-9);
+        assert_eq!(v.model, Some(ModelRecovery::TooSlow));
+        assert_eq!(v.agrees, Some(true));
+        assert!(
+            r.springback_verdict_for_blows(&[0.0], &resid, &peak)
+                .is_none()
+        );
+        assert!(
+            r.springback_verdict_for_blows(&[0.0, 0.0], &resid, &peak)
+                .is_none()
+        );
+        // Missing measurements: the model alone.
+        let v = r
+            .springback_verdict_for_blows(&[0.0, 0.06], &[None, None], &[None, None])
+            .unwrap();
+        assert!(v.residual_fraction.is_none() && v.model.is_some());
+        assert!(v.sentence.ends_with("between blows."), "{}", v.sentence);
     }
 
     #[test]
