@@ -8,8 +8,9 @@
 //! Model: the applied torque is the reference (a calibrated wrench), the twist is the
 //! measured quantity with the noise, so the fit is twist = c·torque with c = 1/k:
 //! c = Σ Tᵢθᵢ / Σ Tᵢ², s² = Σ (θᵢ − c·Tᵢ)² / (n − 1), u(c) = s/√(Σ Tᵢ²) (least squares
-//! through the origin, e.g. Draper & Smith, *Applied Regression Analysis*, ch. 3), and
-//! u(k) = u(c)/c² to first order (GUM propagation of uncertainty).
+//! through the origin, a textbook result, e.g. Draper & Smith, *Applied Regression
+//! Analysis*, cited from memory), and u(k) = u(c)/c² to first order (JCGM 100:2008, the GUM,
+//! law of propagation of uncertainty).
 //!
 //! Twist measured by the tracker from still images of the loaded bar would enter as another
 //! source of pairs; it is not built yet.
