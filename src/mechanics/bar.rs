@@ -625,6 +625,15 @@ impl BarSpec {
         }
     }
 
+    /// Whether [`BarSpec::stiffness`] is the calibrated or the computed stiffness, for
+    /// reports (`"stiffness_source"`).
+    pub fn stiffness_source(&self) -> crate::mechanics::StiffnessSource {
+        match self.calibrated_stiffness_nm_per_deg {
+            Some(_) => crate::mechanics::StiffnessSource::Calibrated,
+            None => crate::mechanics::StiffnessSource::Computed,
+        }
+    }
+
     /// Moment of inertia of the drive end, kg·m², given directly or summed over
     /// `drive_parts`; `None` when the rig gives neither.
     pub fn drive_inertia_kg_m2(&self) -> Option<f64> {
@@ -889,6 +898,69 @@ mod tests {
         assert_eq!(field_of(&b), "bar.stress_warn_fraction");
         assert_eq!(field_of(&BarSpec::default()), "bar.sections");
         assert!(c5().validate().is_ok());
+    }
+
+    #[test]
+    fn extended_rig_round_trips_and_names_bad_fields() {
+        use crate::rig::Rig;
+        use std::path::Path;
+        let rig = r#"{
+          "rig_version": 1,
+          "marks": {
+            "drive": {"kind": "radial", "pivot": [160, 120], "radius": [30, 60], "tighten": "cw"},
+            "nut":   {"kind": "radial", "pivot": [480, 120], "radius": [30, 60], "tighten": "cw"}
+          },
+          "bar": {
+            "sections": [ {"shape": "square", "length_mm": 25, "side_mm": 12.7, "steel": "s2"},
+                          {"shape": "round", "length_mm": 150, "d_mm": 16},
+                          {"shape": "hex", "length_mm": 30, "across_flats_mm": 19, "shear_modulus_gpa": 80} ],
+            "steel": "4140-qt540",
+            "yield_strength_mpa": 800,
+            "yield_criterion": "tresca",
+            "stress_warn_fraction": 0.6,
+            "rating_nm": 136,
+            "drive_parts": [ {"part": "anvil", "mass_kg": 0.5, "outer_d_mm": 40},
+                             {"mass_kg": 0.3, "outer_d_mm": 30, "bore_mm": 20} ],
+            "calibrated_stiffness_nm_per_deg": 40.5,
+            "calibration": {"pairs": 2, "stderr_nm_per_deg": 0.2, "torque_nm": [50, 100],
+                            "twist_deg": [1.2, 2.5], "twist_source": "given"}
+          }
+        }"#;
+        let parsed = Rig::from_json_str(rig, Path::new("r.json")).unwrap();
+        let again = Rig::from_json_str(&parsed.to_json_pretty(), Path::new("r.json")).unwrap();
+        assert_eq!(parsed, again);
+        let bar = parsed.bar.unwrap();
+        assert_eq!(bar.criterion(), YieldCriterion::Tresca);
+        assert_eq!(
+            bar.stiffness_source(),
+            crate::mechanics::StiffnessSource::Calibrated
+        );
+        assert_relative_eq!(bar.drive_inertia_kg_m2().unwrap(), 1.4875e-4);
+        assert_eq!(bar.material(2).shear_modulus_pa, 80.0e9);
+        let err = |from: &str, to: &str| {
+            assert!(rig.contains(from), "{from}");
+            Rig::from_json_str(&rig.replace(from, to), Path::new("r.json"))
+                .unwrap_err()
+                .to_string()
+        };
+        let e = err("\"tresca\"", "\"rankine\"");
+        assert!(e.contains("bar.yield_criterion"), "{e}");
+        let e = err("\"pairs\": 2,", "\"pairs\": 2, \"date\": 1,");
+        assert!(e.contains("bar.calibration") && e.contains("date"), "{e}");
+        let e = err("\"twist_deg\": [1.2, 2.5]", "\"twist_deg\": [1.2]");
+        assert!(e.contains("bar.calibration.twist_deg"), "{e}");
+        let e = err("\"bore_mm\": 20}", "\"bore_mm\": 30}");
+        assert!(e.contains("bar.drive_parts[1].bore_mm"), "{e}");
+        let e = err(
+            "\"rating_nm\": 136,",
+            "\"rating_nm\": 136, \"drive_inertia_kg_m2\": 1e-4,",
+        );
+        assert!(e.contains("bar.drive_parts"), "{e}");
+        let e = err(
+            "\"yield_strength_mpa\": 800",
+            "\"yield_strength_mpa\": -800",
+        );
+        assert!(e.contains("bar.yield_strength_mpa"), "{e}");
     }
 
     fn arb_section() -> impl Strategy<Value = SectionSpec> {

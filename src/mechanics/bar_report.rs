@@ -12,6 +12,17 @@
 //! drive end forward; the twist rises to its peak in a quarter period and is back to zero
 //! after half a period. The spring-back time is that half period, π·√(I/k), counted from
 //! the blow's onset like the blow interval. It ignores damping, so it is a lower bound.
+//!
+//! # Use from an analysis report
+//!
+//! - `BarReport::new(&bar)?` once per rig (it validates the bar).
+//! - [`BarReport::torque`] for a twist, [`BarReport::stiffness_source`] for the report's
+//!   `"stiffness_source"` (also on [`BarSpec::stiffness_source`]).
+//! - [`BarReport::stress_warning`]`(peak_torque, "measured peak")` for the clip's highest
+//!   peak torque, plus [`BarReport::warnings`] for the rating.
+//! - [`BarReport::springback_verdict_for_blows`]`(&onsets_s, &residual_twist, &peak_twist)`
+//!   for the clip's verdict and its one sentence (`verdict.sentence`).
+//! - [`BarReport::to_json`] for a `"bar"` block with unit-suffixed keys.
 
 use std::f64::consts::PI;
 
