@@ -165,7 +165,10 @@ fn springback_from_drive_parts() {
     assert_relative_eq!(num(&v, "stiffness_nm_per_rad"), 2551.07, max_relative = TOL);
     assert_relative_eq!(num(&v, "drive_inertia_kg_m2"), 1.0e-4, max_relative = TOL);
     assert_relative_eq!(num(&v, "natural_frequency_hz"), 803.86, max_relative = TOL);
-    assert_relative_eq!(num(&v, "springback_ms"), 1.244 / 2.0, max_relative = TOL);
+    // Spring-back (onset to a quarter of the peak twist, undamped): (π/2 + acos ¼)/(2π·f_n).
+    let want_ms =
+        (0.5 * std::f64::consts::PI + 0.25f64.acos()) / (2.0 * std::f64::consts::PI * 803.86) * 1e3;
+    assert_relative_eq!(num(&v, "springback_ms"), want_ms, max_relative = TOL);
 }
 
 #[test]

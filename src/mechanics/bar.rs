@@ -69,6 +69,11 @@ pub struct BarSpec {
     /// Moment of inertia of everything that turns with the drive end, kg·m².
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub drive_inertia_kg_m2: Option<f64>,
+    /// Viscous resistance of the tool's mechanism to the drive end turning back while the bar
+    /// unwinds, N·m·s/rad (default 0: free unwinding). When large, the bar unwinds with a
+    /// time constant of about c/k.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub drive_back_damping_nms_per_rad: Option<f64>,
     /// Parts turning with the drive end (anvil, drive socket), as hollow cylinders; used to
     /// estimate the drive-end inertia when `drive_inertia_kg_m2` is not given.
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -518,6 +523,14 @@ impl BarSpec {
                     "give either drive_inertia_kg_m2 or drive_parts, not both".into(),
                 ));
             }
+        }
+        if let Some(c) = self.drive_back_damping_nms_per_rad
+            && !(c.is_finite() && c >= 0.0)
+        {
+            return Err(bad(
+                "bar.drive_back_damping_nms_per_rad".into(),
+                format!("must be a damping of 0 or more in N·m·s/rad, got {c}"),
+            ));
         }
         if let Some(parts) = &self.drive_parts {
             if parts.is_empty() {
