@@ -172,6 +172,37 @@ fn springback_from_drive_parts() {
 }
 
 #[test]
+fn springback_with_back_drive_damping() {
+    // The project's simulated bench (synthetic, known physics): 25 mm of 19 mm hex, 220 mm of
+    // 12 mm round, 30 mm of 19 mm hex; I = 2.0e-3 kg·m², back-drive damping 22 N·m·s/rad.
+    // k = 709.71 N·m/rad; ζ = 22/(2√(kI)) = 9.233; spring-back to a quarter of the peak
+    // 45.58 ms (rise π/2·√(I/k) plus the over-damped release, solved independently).
+    let rig = C5_RIG.replace(
+        r#""sections": [ {"shape": "square", "length_mm": 25,  "side_mm": 12.7},
+                  {"shape": "round",  "length_mm": 150, "d_mm": 16},
+                  {"shape": "hex",    "length_mm": 30,  "across_flats_mm": 19} ],"#,
+        r#""sections": [ {"shape": "hex", "length_mm": 25, "across_flats_mm": 19},
+                  {"shape": "round", "length_mm": 220, "d_mm": 12},
+                  {"shape": "hex", "length_mm": 30, "across_flats_mm": 19} ],
+    "drive_inertia_kg_m2": 2.0e-3,
+    "drive_back_damping_nms_per_rad": 22,"#,
+    );
+    let dir = tempfile::tempdir().unwrap();
+    let v = bar_json(&write(dir.path(), "rig.json", &rig));
+    assert_relative_eq!(num(&v, "stiffness_nm_per_rad"), 709.71, max_relative = TOL);
+    assert_relative_eq!(num(&v, "damping_ratio"), 9.2329, max_relative = TOL);
+    assert_relative_eq!(num(&v, "springback_ms"), 45.575, max_relative = TOL);
+    assert_eq!(v["drive_inertia_source"], "given");
+    fails_naming(
+        &rig.replace(
+            r#""drive_back_damping_nms_per_rad": 22"#,
+            r#""drive_back_damping_nms_per_rad": -1"#,
+        ),
+        "bar.drive_back_damping_nms_per_rad",
+    );
+}
+
+#[test]
 fn steel_and_stress_warning() {
     // 4140 annealed: Sy = 417 MPa (eFunda) → τy = 240.8 MPa (von Mises). At 150 N·m the
     // square carries 352 MPa: 146 % of shear yield, so a warning names the square.

@@ -124,9 +124,18 @@ pub fn run(a: BarArgs) -> Result<ExitCode> {
         json.springback_ms,
         json.drive_inertia_kg_m2,
     ) {
-        (Some(f), Some(sb), Some(i)) => println!(
-            "spring-back:    drive-end inertia {i:.3e} kg·m², natural frequency {f:.0} Hz, spring-back {sb:.2} ms (half a period, no damping)"
-        ),
+        (Some(f), Some(sb), Some(i)) => {
+            let damping = match (json.drive_back_damping_nms_per_rad, json.damping_ratio) {
+                (Some(c), Some(z)) if c > 0.0 => {
+                    format!("back-drive damping {c} N·m·s/rad, ratio {z:.2}")
+                }
+                _ => "no damping given, so a lower bound".to_string(),
+            };
+            println!(
+                "spring-back:    drive-end inertia {i:.3e} kg·m², natural frequency {f:.0} Hz; \
+                 unwinds to a quarter of its peak {sb:.2} ms after a blow ({damping})"
+            );
+        }
         _ => println!("spring-back:    unknown: set bar.drive_inertia_kg_m2 or bar.drive_parts"),
     }
     super::print_warnings(&report.warnings());
