@@ -1154,6 +1154,31 @@ mod tests {
     }
 
     #[test]
+    fn ratings_in_lbf_ft_match_nist_check_values() {
+        // facts.md §3 (a, computed from NIST SP 811's exact foot and pound-force):
+        // 100 / 80 / 450 / 475 / 500 lbf·ft = 135.5818 / 108.4654 / 610.118 / 644.014 /
+        // 677.909 N·m.
+        for (lbf_ft, nm) in [
+            (100.0, 135.5818),
+            (80.0, 108.4654),
+            (450.0, 610.118),
+            (475.0, 644.014),
+            (500.0, 677.909),
+        ] {
+            let bar = BarSpec {
+                rating_nm: Some(nm),
+                ..c5()
+            };
+            let j = BarReport::new(&bar).unwrap().to_json();
+            assert_relative_eq!(j.rating_lbf_ft.unwrap(), lbf_ft, max_relative = 1e-6);
+            assert_relative_eq!(Torque::from_lbf_ft(lbf_ft).nm(), nm, max_relative = 1e-6);
+        }
+        // Stiffness in lbf·ft/deg: C5's 43.049 N·m/deg × 0.737 562 149 = 31.751 lbf·ft/deg.
+        let j = BarReport::new(&c5()).unwrap().to_json();
+        assert_relative_eq!(j.stiffness_lbf_ft_per_deg, 31.751, max_relative = 1e-3);
+    }
+
+    #[test]
     fn json_has_interface_keys() {
         let bar = BarSpec {
             rating_nm: Some(136.0),
