@@ -561,8 +561,9 @@ impl BarSpec {
 
     /// The material of section `index`: G from the section's own `shear_modulus_gpa`, else
     /// its `steel`, else the bar's `shear_modulus_gpa`, else the bar's `steel`, else 79.3 GPa.
-    /// Yield from the section's steel, else the bar's `yield_strength_mpa`, else the bar's
-    /// steel. An unknown steel name (caught by [`BarSpec::validate`]) is ignored here.
+    /// Yield from the section's steel when it names one (unknown for `carbon`), else the
+    /// bar's `yield_strength_mpa`, else the bar's steel. An unknown steel name (caught by
+    /// [`BarSpec::validate`]) is ignored here.
     ///
     /// # Panics
     /// If `index` is not a section index.
@@ -586,14 +587,17 @@ impl BarSpec {
         };
         let steel = sec_steel.or(bar_steel);
         let (sy, sy_from) = match (sec_steel, self.yield_strength_mpa, bar_steel) {
-            (Some(s), _, _) if s.yield_strength_mpa.is_some() => {
-                (s.yield_strength_mpa, Some(format!("steel {}", s.name)))
-            }
-            (_, Some(sy), _) => (Some(sy), Some("bar.yield_strength_mpa".to_string())),
-            (_, None, Some(s)) if s.yield_strength_mpa.is_some() => {
-                (s.yield_strength_mpa, Some(format!("steel {}", s.name)))
-            }
-            _ => (None, None),
+            // A section of its own steel takes that steel's yield, known or not.
+            (Some(s), _, _) => (
+                s.yield_strength_mpa,
+                s.yield_strength_mpa.map(|_| format!("steel {}", s.name)),
+            ),
+            (None, Some(sy), _) => (Some(sy), Some("bar.yield_strength_mpa".to_string())),
+            (None, None, Some(s)) => (
+                s.yield_strength_mpa,
+                s.yield_strength_mpa.map(|_| format!("steel {}", s.name)),
+            ),
+            (None, None, None) => (None, None),
         };
         Material {
             shear_modulus_pa: g_gpa * 1e9,
@@ -852,6 +856,15 @@ mod tests {
         assert_eq!(m.shear_modulus_pa, 80.0e9);
         assert_eq!(m.yield_strength_pa, Some(2000.0e6));
         assert_eq!(m.steel.unwrap().name, "s2");
+        // A section in carbon steel does not borrow the bar's yield.
+        bar.sections[0] = SectionSpec::Square {
+            length_mm: 25.0,
+            side_mm: 12.7,
+            steel: Some("carbon".into()),
+            shear_modulus_gpa: None,
+        };
+        assert!(bar.material(0).yield_strength_pa.is_none());
+        assert_eq!(bar.material(0).shear_modulus_pa, 79.3e9);
         // Default: carbon steel, 79.3 GPa, yield unknown.
         let m = c5().material(2);
         assert_eq!(m.shear_modulus_pa, 79.3e9);
