@@ -63,6 +63,10 @@ impl StiffnessSource {
             StiffnessSource::Computed => "computed",
         }
     }
+    /// The same as [`StiffnessSource::name`], as written in reports.
+    pub fn as_str(self) -> &'static str {
+        self.name()
+    }
 }
 
 /// Where the drive-end inertia came from.
