@@ -1,10 +1,14 @@
-//! `twistmark bar --rig RIG [--json]`: the bar's stiffness, twist and stress at its rating.
+//! `twistmark bar --rig RIG [--json]`: the bar's stiffness (computed or calibrated), each
+//! section's share, twist and shear stress at the rating against shear yield, and the drive
+//! end's natural frequency and spring-back time.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 use anyhow::Result;
 use clap::Args;
+use twistmark::Rig;
+use twistmark::mechanics::{BarReport, BarSpec, StiffnessSource, TORQUE_CAUTION};
 
 /// Arguments of `bar`.
 #[derive(Debug, Args)]
@@ -17,7 +21,124 @@ pub struct BarArgs {
     json: bool,
 }
 
+/// Reads the rig and returns its bar, or a one-line error naming the rig.
+pub(crate) fn load_bar(path: &Path) -> Result<(Rig, BarSpec)> {
+    let rig = Rig::from_path(path)?;
+    let Some(bar) = rig.bar.clone() else {
+        anyhow::bail!(
+            "{}: bar: the rig has no \"bar\"; add its sections (see docs/mechanics.md)",
+            path.display()
+        );
+    };
+    Ok((rig, bar))
+}
+
 pub fn run(a: BarArgs) -> Result<ExitCode> {
-    let _ = a;
-    anyhow::bail!("bar: not built yet")
+    let (_, bar) = load_bar(&a.rig)?;
+    let report = BarReport::new(&bar)?;
+    let json = report.to_json();
+    if a.json {
+        println!("{}", serde_json::to_string_pretty(&json)?);
+        super::print_warnings(&report.warnings());
+        return Ok(ExitCode::SUCCESS);
+    }
+    println!(
+        "bar in {}: {} section(s), drive end first",
+        a.rig.display(),
+        json.sections.len()
+    );
+    println!(
+        "  {:>2}  {:<6} {:>8}  {:<15} {:>7}  {:>10}  {:>12}  {:>10}  {:>11}",
+        "#", "shape", "length", "steel", "G", "J", "k", "compliance", "tau/torque"
+    );
+    for s in &json.sections {
+        println!(
+            "  {:>2}  {:<6} {:>5.1} mm  {:<15} {:>4.1} GPa {:>7.0} mm4 {:>7.0} N·m/rad {:>9.1} %  {:>5.3} MPa/N·m",
+            s.index,
+            s.shape,
+            s.length_mm,
+            s.steel.unwrap_or("(not named)"),
+            s.shear_modulus_gpa,
+            s.torsion_constant_mm4,
+            s.stiffness_nm_per_rad,
+            100.0 * s.compliance_share,
+            s.shear_stress_per_nm_mpa,
+        );
+    }
+    let source = match json.stiffness_source {
+        StiffnessSource::Calibrated => {
+            let u = json
+                .calibration_stderr_nm_per_deg
+                .map(|u| format!(" ± {u:.2}"))
+                .unwrap_or_default();
+            format!(
+                "calibrated{u}; {:+.1} % from the {:.3} N·m/deg computed from the sections",
+                json.calibrated_vs_computed_pct.unwrap_or(0.0),
+                json.computed_stiffness_nm_per_deg
+            )
+        }
+        StiffnessSource::Computed => "computed from the sections (not calibrated)".to_string(),
+    };
+    println!(
+        "stiffness:      {:.3} N·m/deg = {:.1} N·m/rad = {:.3} lbf·ft/deg, {source}",
+        json.stiffness_nm_per_deg, json.stiffness_nm_per_rad, json.stiffness_lbf_ft_per_deg
+    );
+    match (json.rating_nm, json.rating_lbf_ft, json.twist_at_rating_deg) {
+        (Some(nm), Some(lbf), Some(tw)) => {
+            println!("rating:         {nm:.1} N·m = {lbf:.1} lbf·ft, twist {tw:.3} deg");
+            if let (Some(tau), Some(sec)) = (
+                json.shear_stress_at_rating_mpa,
+                &json.shear_stress_at_rating_section,
+            ) {
+                println!("max shear:      {tau:.0} MPa at the rating, in {sec}");
+            }
+            match (
+                json.stress_ratio_at_rating,
+                &json.stress_ratio_at_rating_section,
+            ) {
+                (Some(r), Some(sec)) => {
+                    let i = json
+                        .sections
+                        .iter()
+                        .position(|s| sec.starts_with(&format!("bar.sections[{}]", s.index)))
+                        .unwrap_or(0);
+                    let ty = json.sections[i].shear_yield_mpa.unwrap_or(f64::NAN);
+                    println!(
+                        "stress margin:  {:.0} % of shear yield ({ty:.0} MPa, {}) in {sec}; warning above {:.0} %",
+                        100.0 * r,
+                        json.yield_criterion,
+                        100.0 * json.stress_warn_fraction
+                    );
+                }
+                _ => println!(
+                    "stress margin:  unknown: no yield strength (set bar.steel or bar.yield_strength_mpa)"
+                ),
+            }
+        }
+        _ => {
+            println!("rating:         not given (set bar.rating_nm for twist and stress at rating)")
+        }
+    }
+    match (
+        json.natural_frequency_hz,
+        json.springback_ms,
+        json.drive_inertia_kg_m2,
+    ) {
+        (Some(f), Some(sb), Some(i)) => {
+            let damping = match (json.drive_back_damping_nms_per_rad, json.damping_ratio) {
+                (Some(c), Some(z)) if c > 0.0 => {
+                    format!("back-drive damping {c} N·m·s/rad, ratio {z:.2}")
+                }
+                _ => "no damping given, so a lower bound".to_string(),
+            };
+            println!(
+                "spring-back:    drive-end inertia {i:.3e} kg·m², natural frequency {f:.0} Hz; \
+                 unwinds to a quarter of its peak {sb:.2} ms after a blow ({damping})"
+            );
+        }
+        _ => println!("spring-back:    unknown: set bar.drive_inertia_kg_m2 or bar.drive_parts"),
+    }
+    super::print_warnings(&report.warnings());
+    println!("caution: {TORQUE_CAUTION}.");
+    Ok(ExitCode::SUCCESS)
 }

@@ -9,6 +9,7 @@ use clap::{Parser, Subcommand};
 mod analyze;
 mod bar;
 mod batch;
+mod calibrate;
 mod info;
 mod locate;
 
@@ -33,6 +34,8 @@ enum Command {
     Bar(bar::BarArgs),
     /// Find the marks in a clip and write a draft rig.
     Locate(locate::LocateArgs),
+    /// Fit the bar's stiffness from torque-wrench checks and write it into a rig.
+    Calibrate(calibrate::CalibrateArgs),
 }
 
 /// Parses the command line and runs the chosen command.
@@ -44,6 +47,7 @@ pub fn run() -> Result<ExitCode> {
         Command::Batch(a) => batch::run(a),
         Command::Bar(a) => bar::run(a),
         Command::Locate(a) => locate::run(a),
+        Command::Calibrate(a) => calibrate::run(a),
     }
 }
 

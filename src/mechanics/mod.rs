@@ -6,7 +6,16 @@
 //! mechanics-of-materials text, e.g. Beer & Johnston, *Mechanics of Materials*, ch. 3).
 
 mod bar;
+mod bar_report;
 mod blows;
+mod calibration;
+mod steel;
 
-pub use bar::{BarSpec, SectionSpec};
+pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
+pub use bar_report::{
+    BarJson, BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionJson,
+    SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
+};
 pub use blows::{BlowMetrics, Summary, blow_metrics};
+pub use calibration::{CalibrationFit, CalibrationPair, fit_stiffness, parse_pair, read_pairs_csv};
+pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};

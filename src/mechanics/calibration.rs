@@ -1,0 +1,336 @@
+//! Calibration of the bar's stiffness from a torque-wrench check: pairs of (known applied
+//! torque, measured twist) give k by least squares through the origin, with its standard
+//! uncertainty and the residuals.
+//!
+//! In: [`CalibrationPair`]s (typed in, or read from a CSV with unit-suffixed headers). Out: a
+//! [`CalibrationFit`] in SI, and the rig's `bar.calibration` record.
+//!
+//! Model: the applied torque is the reference (a calibrated wrench), the twist is the
+//! measured quantity with the noise, so the fit is twist = c·torque with c = 1/k:
+//! c = Σ Tᵢθᵢ / Σ Tᵢ², s² = Σ (θᵢ − c·Tᵢ)² / (n − 1), u(c) = s/√(Σ Tᵢ²) (least squares
+//! through the origin, a textbook result, e.g. Draper & Smith, *Applied Regression
+//! Analysis*, cited from memory), and u(k) = u(c)/c² to first order (JCGM 100:2008, the GUM,
+//! law of propagation of uncertainty).
+//!
+//! Twist measured by the tracker from still images of the loaded bar would enter as another
+//! source of pairs; it is not built yet.
+
+use std::path::Path;
+
+use crate::error::{Error, Result};
+use crate::mechanics::bar::CalibrationSpec;
+use crate::units::{Angle, NM_PER_LBF_FT, Stiffness, Torque};
+
+/// One check: a known applied torque and the bar's twist under it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CalibrationPair {
+    /// Applied torque (from a calibrated torque wrench or a dead weight on an arm).
+    pub torque: Torque,
+    /// Measured twist of the bar, drive end minus nut end.
+    pub twist: Angle,
+}
+
+/// The fitted stiffness and how well it fits.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CalibrationFit {
+    /// Fitted stiffness k.
+    pub stiffness: Stiffness,
+    /// Standard uncertainty of k.
+    pub stderr: Stiffness,
+    /// Per pair: measured twist minus fitted twist T/k.
+    pub residuals: Vec<Angle>,
+    /// Root-mean-square of the residuals.
+    pub rms_residual: Angle,
+    /// The pairs the fit used.
+    pub pairs: Vec<CalibrationPair>,
+}
+
+/// Fits k through the origin (see the module doc).
+///
+/// # Errors
+/// [`Error::Option`] for `--pair` when there are fewer than two pairs, a torque is not
+/// positive, a value is not finite, or the twists do not rise with torque.
+pub fn fit_stiffness(pairs: &[CalibrationPair]) -> Result<CalibrationFit> {
+    let bad = |reason: String| Error::Option {
+        flag: "--pair".into(),
+        reason,
+    };
+    if pairs.len() < 2 {
+        return Err(bad(format!(
+            "{} pair(s) given; a fit with an uncertainty needs at least 2 (better 5 or more across the working range)",
+            pairs.len()
+        )));
+    }
+    for (i, p) in pairs.iter().enumerate() {
+        let (t, th) = (p.torque.nm(), p.twist.deg());
+        if !(t.is_finite() && t > 0.0) {
+            return Err(bad(format!(
+                "pair {} has torque {t} N·m; give positive applied torques",
+                i + 1
+            )));
+        }
+        if !th.is_finite() {
+            return Err(bad(format!(
+                "pair {} has twist {th} deg; give finite twists",
+                i + 1
+            )));
+        }
+    }
+    let stt: f64 = pairs.iter().map(|p| p.torque.nm().powi(2)).sum();
+    let sty: f64 = pairs.iter().map(|p| p.torque.nm() * p.twist.rad()).sum();
+    let c = sty / stt; // rad per N·m
+    if !(c.is_finite() && c > 0.0) {
+        return Err(bad(
+            "the twists do not rise with torque; check the sign of the twists and that the pairs are (torque, twist)".into(),
+        ));
+    }
+    let residuals: Vec<Angle> = pairs
+        .iter()
+        .map(|p| Angle::from_rad(p.twist.rad() - c * p.torque.nm()))
+        .collect();
+    let ss: f64 = residuals.iter().map(|r| r.rad().powi(2)).sum();
+    let n = pairs.len() as f64;
+    let s = (ss / (n - 1.0)).sqrt();
+    let u_c = s / stt.sqrt();
+    Ok(CalibrationFit {
+        stiffness: Stiffness::from_nm_per_rad(1.0 / c),
+        stderr: Stiffness::from_nm_per_rad(u_c / (c * c)),
+        rms_residual: Angle::from_rad((ss / n).sqrt()),
+        residuals,
+        pairs: pairs.to_vec(),
+    })
+}
+
+impl CalibrationFit {
+    /// The rig's `bar.calibration` record for this fit.
+    pub fn to_spec(&self, computed: Stiffness, twist_source: &str) -> CalibrationSpec {
+        CalibrationSpec {
+            pairs: self.pairs.len(),
+            stderr_nm_per_deg: Some(self.stderr.nm_per_deg()),
+            rms_residual_deg: Some(self.rms_residual.deg()),
+            computed_stiffness_nm_per_deg: Some(computed.nm_per_deg()),
+            torque_nm: self.pairs.iter().map(|p| p.torque.nm()).collect(),
+            twist_deg: self.pairs.iter().map(|p| p.twist.deg()).collect(),
+            twist_source: Some(twist_source.to_string()),
+        }
+    }
+}
+
+/// Parses one `TORQUE_NM:TWIST_DEG` pair as typed on the command line.
+///
+/// # Errors
+/// [`Error::Option`] for `--pair` naming the text.
+pub fn parse_pair(text: &str) -> Result<CalibrationPair> {
+    let bad = |why: &str| Error::Option {
+        flag: "--pair".into(),
+        reason: format!("'{text}' {why}; write TORQUE_NM:TWIST_DEG, e.g. 100:2.32"),
+    };
+    let (t, th) = text
+        .split_once(':')
+        .ok_or_else(|| bad("has no ':' between torque and twist"))?;
+    let t: f64 = t
+        .trim()
+        .parse()
+        .map_err(|_| bad("has a torque that is not a number"))?;
+    let th: f64 = th
+        .trim()
+        .parse()
+        .map_err(|_| bad("has a twist that is not a number"))?;
+    if !(t.is_finite() && th.is_finite()) {
+        return Err(bad("has a value that is not finite"));
+    }
+    Ok(CalibrationPair {
+        torque: Torque::from_nm(t),
+        twist: Angle::from_deg(th),
+    })
+}
+
+/// Reads pairs from a CSV file with a header row. The torque column is `torque_nm` or
+/// `torque_lbf_ft`, the twist column `twist_deg` or `twist_rad`; any other column is an
+/// error, so a misspelt unit does not pass silently.
+///
+/// # Errors
+/// [`Error::Io`] when unreadable; [`Error::Input`] naming the file, line and column.
+pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let bad = |reason: String| Error::input(path, reason);
+    let mut rdr = csv::ReaderBuilder::new()
+        .trim(csv::Trim::All)
+        .comment(Some(b'#'))
+        .from_reader(text.as_bytes());
+    let headers = rdr
+        .headers()
+        .map_err(|e| bad(format!("cannot read the header row: {e}")))?
+        .clone();
+    let (mut tcol, mut thcol) = (None, None);
+    for (i, h) in headers.iter().enumerate() {
+        match h {
+            "torque_nm" => tcol = Some((i, 1.0)),
+            "torque_lbf_ft" => tcol = Some((i, NM_PER_LBF_FT)),
+            "twist_deg" => thcol = Some((i, 1f64.to_radians())),
+            "twist_rad" => thcol = Some((i, 1.0)),
+            other => {
+                return Err(bad(format!(
+                    "unknown column '{other}'; use torque_nm (or torque_lbf_ft) and twist_deg (or twist_rad)"
+                )));
+            }
+        }
+    }
+    let ((ti, tf), (hi, hf)) = match (tcol, thcol) {
+        (Some(t), Some(h)) => (t, h),
+        _ => {
+            return Err(bad(
+                "needs a header row with torque_nm (or torque_lbf_ft) and twist_deg (or twist_rad)"
+                    .into(),
+            ));
+        }
+    };
+    let mut pairs = Vec::new();
+    for rec in rdr.records() {
+        let rec = rec.map_err(|e| bad(format!("{e}")))?;
+        let line = rec.position().map_or(0, |p| p.line());
+        let num = |col: usize| -> Result<f64> {
+            let s = rec.get(col).unwrap_or("");
+            s.parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite())
+                .ok_or_else(|| {
+                    bad(format!(
+                        "line {line}, column {}: '{s}' is not a number",
+                        &headers[col]
+                    ))
+                })
+        };
+        pairs.push(CalibrationPair {
+            torque: Torque::from_nm(num(ti)? * tf),
+            twist: Angle::from_rad(num(hi)? * hf),
+        });
+    }
+    if pairs.is_empty() {
+        return Err(bad("has a header but no pairs".into()));
+    }
+    Ok(pairs)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    /// Standard normal by Box–Muller.
+    fn gauss(rng: &mut ChaCha8Rng) -> f64 {
+        let u1: f64 = 1.0 - rng.random::<f64>();
+        let u2: f64 = rng.random::<f64>();
+        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+    }
+
+    /// Synthetic check (known truth): bar C5's k = 43.049 N·m/deg (facts.md §1.3), ten
+    /// torques 15..150 N·m, twist noise σ = 0.03°.
+    fn synthetic(seed: u64) -> Vec<CalibrationPair> {
+        let k = Stiffness::from_nm_per_deg(43.049);
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        (1..=10)
+            .map(|i| {
+                let t = Torque::from_nm(15.0 * f64::from(i));
+                let th = t / k + Angle::from_deg(0.03 * gauss(&mut rng));
+                CalibrationPair {
+                    torque: t,
+                    twist: th,
+                }
+            })
+            .collect()
+    }
+
+    #[test]
+    fn exact_pairs_give_exact_k() {
+        // C1: 150 N·m ↔ 3.3689° (facts.md §1.3) and proportional pairs.
+        let k = Stiffness::from_nm_per_rad(2551.07);
+        let pairs: Vec<_> = [50.0, 100.0, 150.0]
+            .iter()
+            .map(|&t| CalibrationPair {
+                torque: Torque::from_nm(t),
+                twist: Torque::from_nm(t) / k,
+            })
+            .collect();
+        let fit = fit_stiffness(&pairs).unwrap();
+        assert_relative_eq!(fit.stiffness.nm_per_rad(), 2551.07, max_relative = 1e-12);
+        assert!(fit.stderr.nm_per_rad() < 1e-9);
+        assert!(fit.rms_residual.rad() < 1e-15);
+    }
+
+    #[test]
+    fn recovers_known_k_within_its_uncertainty() {
+        // One fixed seed: within 2 standard uncertainties.
+        let fit = fit_stiffness(&synthetic(7)).unwrap();
+        let err = (fit.stiffness.nm_per_deg() - 43.049).abs();
+        assert!(
+            err <= 2.0 * fit.stderr.nm_per_deg(),
+            "k = {} ± {}",
+            fit.stiffness.nm_per_deg(),
+            fit.stderr.nm_per_deg()
+        );
+        // The stated uncertainty is honest: over 400 fixed seeds about 66 % of fits fall
+        // within 1 u and about 92 % within 2 u (Student t with 9 degrees of freedom).
+        let (mut in1, mut in2) = (0, 0);
+        for seed in 0..400 {
+            let f = fit_stiffness(&synthetic(1000 + seed)).unwrap();
+            let e = (f.stiffness.nm_per_deg() - 43.049).abs() / f.stderr.nm_per_deg();
+            in1 += usize::from(e <= 1.0);
+            in2 += usize::from(e <= 2.0);
+        }
+        let (p1, p2) = (in1 as f64 / 400.0, in2 as f64 / 400.0);
+        assert!((0.58..=0.74).contains(&p1), "within 1 u: {p1}");
+        assert!((0.87..=0.97).contains(&p2), "within 2 u: {p2}");
+        // And the uncertainty is about what the noise implies: u(k) ≈ k²·σ/√ΣT².
+        let stt: f64 = (1..=10).map(|i| (15.0 * f64::from(i)).powi(2)).sum();
+        let expect = 43.049f64.powi(2) * 0.03 / stt.sqrt();
+        assert!((fit.stderr.nm_per_deg() / expect - 1.0).abs() < 0.5);
+    }
+
+    #[test]
+    fn bad_pairs_are_refused() {
+        assert!(fit_stiffness(&synthetic(1)[..1]).is_err());
+        let neg = [parse_pair("100:-2").unwrap(), parse_pair("150:-3").unwrap()];
+        assert!(
+            fit_stiffness(&neg)
+                .unwrap_err()
+                .to_string()
+                .contains("rise")
+        );
+        let zero = [parse_pair("0:0").unwrap(), parse_pair("150:3").unwrap()];
+        assert!(fit_stiffness(&zero).is_err());
+        for bad in ["100", "a:2", "100:b", "100:inf", ""] {
+            let e = parse_pair(bad).unwrap_err().to_string();
+            assert!(e.starts_with("--pair:"), "{e}");
+        }
+        let p = parse_pair(" 100 : 2.5 ").unwrap();
+        assert_relative_eq!(p.torque.nm(), 100.0);
+        assert_relative_eq!(p.twist.deg(), 2.5, max_relative = 1e-12);
+    }
+
+    #[test]
+    fn csv_with_unit_headers() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("pairs.csv");
+        std::fs::write(
+            &p,
+            "torque_lbf_ft, twist_rad\n# a comment\n100, 0.05\n80,0.04\n",
+        )
+        .unwrap();
+        let pairs = read_pairs_csv(&p).unwrap();
+        assert_eq!(pairs.len(), 2);
+        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, facts.md §3).
+        assert_relative_eq!(pairs[0].torque.nm(), 135.5818, max_relative = 1e-6);
+        assert_relative_eq!(pairs[1].twist.rad(), 0.04);
+        std::fs::write(&p, "torque_nm,twist_degs\n100,2\n").unwrap();
+        let e = read_pairs_csv(&p).unwrap_err().to_string();
+        assert!(e.contains("twist_degs") && e.contains("pairs.csv"), "{e}");
+        std::fs::write(&p, "torque_nm,twist_deg\n100,2\n150,x\n").unwrap();
+        let e = read_pairs_csv(&p).unwrap_err().to_string();
+        assert!(e.contains("line 3") && e.contains("twist_deg"), "{e}");
+        std::fs::write(&p, "torque_nm\n100\n").unwrap();
+        assert!(read_pairs_csv(&p).is_err());
+    }
+}
