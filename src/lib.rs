@@ -6,7 +6,7 @@
 //! decode ──Frame──▶ track ──Trace──▶ segment ──Segmentation──▶ mechanics ──BlowMetrics──▶ report
 //! ```
 //!
-//! [`analyze`] chains the stages; each stage passes plain data to the next.
+//! [`analyze()`] chains the stages; each stage passes plain data to the next.
 //!
 //! # Conventions (stated once)
 //!
