@@ -291,3 +291,74 @@ fn info_json_reports_exact_counts() {
     assert_eq!(v["width"], W);
     assert!(v["container_fps"].is_null());
 }
+
+/// Decode speed on a 640x480 H.264 clip made here, against the `ffmpeg` command line as an
+/// outside reference (if installed). A benchmark, not a timing test: it prints the numbers
+/// and checks only the frame count. Run with
+/// `cargo test --release --test decode -- --ignored --nocapture decode_speed`.
+#[test]
+#[ignore]
+fn decode_speed_report() {
+    for noise_levels in [0u32, 8] {
+        decode_speed_one(noise_levels);
+    }
+}
+
+fn decode_speed_one(noise_levels: u32) {
+    let (w, h, n) = (640u32, 480u32, 600u64);
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("speed.mp4");
+    let mut wr = ClipWriter::create(&p, Codec::H264 { crf: 18 }, w, h, 30.0).unwrap();
+    let mut seed = 0x2545_f491_u32;
+    for i in 0..n {
+        let data = (0..w * h)
+            .map(|q| {
+                let (x, y) = (q % w, q / w);
+                seed = seed.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+                // Uniform noise of `noise_levels` grey levels, fixed seed.
+                let noise = if noise_levels == 0 {
+                    0
+                } else {
+                    ((seed >> 16) % noise_levels) as i32 - (noise_levels / 2) as i32
+                };
+                let bar = x.abs_diff((i as u32 * 7) % w) < 20;
+                let base = if bar { 220 } else { 60 + (x + y) as i32 / 20 };
+                (base + noise).clamp(0, 255) as u8
+            })
+            .collect();
+        wr.write(&Frame::from_u8(i, w, h, data)).unwrap();
+    }
+    wr.finish().unwrap();
+
+    let t = std::time::Instant::now();
+    let mut src = decode::open(&p).unwrap();
+    let mut f = Frame::empty();
+    let mut count = 0u64;
+    while src.read_into(&mut f).unwrap() {
+        count += 1;
+    }
+    let ours = t.elapsed().as_secs_f64();
+    assert_eq!(count, n);
+    assert_eq!(src.info().frames, n);
+    let threads = std::thread::available_parallelism().map_or(1, |v| v.get());
+    eprintln!(
+        "noise {noise_levels} levels: twistmark reader: {n} frames 640x480 H.264 ({} kB) in {ours:.3} s = {:.0} frames/s ({threads} threads)",
+        std::fs::metadata(&p).unwrap().len() / 1000,
+        n as f64 / ours
+    );
+    let t = std::time::Instant::now();
+    let status = std::process::Command::new("ffmpeg")
+        .args(["-v", "error", "-i"])
+        .arg(&p)
+        .args(["-f", "null", "-"])
+        .status();
+    let theirs = t.elapsed().as_secs_f64();
+    match status {
+        Ok(s) if s.success() => eprintln!(
+            "ffmpeg -i clip -f null -: {theirs:.3} s = {:.0} frames/s; ratio ours/ffmpeg = {:.2}",
+            n as f64 / theirs,
+            theirs / ours
+        ),
+        _ => eprintln!("ffmpeg command line not available; no reference time"),
+    }
+}
