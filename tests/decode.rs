@@ -140,6 +140,26 @@ fn lossy_codecs_stay_close_in_every_container() {
 }
 
 #[test]
+fn lossless_h264_and_fractional_rates() {
+    // x264 at crf 0 is lossless for 8-bit input (x264's documented --qp 0 / --crf 0
+    // behaviour), so luma must come back exactly.
+    let dir = tempfile::tempdir().unwrap();
+    let input: Vec<Frame> = (0..10).map(frame8).collect();
+    let p = dir.path().join("lossless.mkv");
+    write_clip(&p, Codec::H264 { crf: 0 }, &input, 30.0);
+    check_round_trip(&p, &input, true, 0.0, "h264");
+    // An NTSC-style playback rate survives as a fraction (30000/1001 = 29.97002997...).
+    for ext in ["mov", "mp4", "avi", "mkv"] {
+        let p = dir.path().join(format!("ntsc.{ext}"));
+        write_clip(&p, Codec::Mpeg4 { quality: 4 }, &input, 30000.0 / 1001.0);
+        let (info, out) = decode_all(&p);
+        assert_eq!(out.len(), 10);
+        let fps = info.container_fps_hz.unwrap();
+        assert!((fps - 30000.0 / 1001.0).abs() < 1e-3, ".{ext}: {fps}");
+    }
+}
+
+#[test]
 fn deep_frames_keep_their_bit_depth() {
     let dir = tempfile::tempdir().unwrap();
     for depth in [10u8, 12, 16] {
