@@ -402,6 +402,13 @@ impl ClipWriter {
         Ok(self.next_pts as u64)
     }
 
+    /// Moves the next frame's timestamp (in 1/fps units), so tests can make a clip with a
+    /// variable frame rate.
+    #[cfg(test)]
+    pub(crate) fn skip_to_pts(&mut self, pts: i64) {
+        self.next_pts = pts;
+    }
+
     fn drain(&mut self) -> Result<()> {
         loop {
             match self.encoder.receive_packet(&mut self.packet) {

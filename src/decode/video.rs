@@ -224,6 +224,13 @@ impl VideoSource {
             )));
         }
         let plan = plan_for(self.picture.format());
+        if plan.bit_depth() != self.info.bit_depth {
+            return Err(self.decode_error(format!(
+                "the bit depth changed from {} to {} bits; twistmark needs one depth per clip",
+                self.info.bit_depth,
+                plan.bit_depth()
+            )));
+        }
         frame.index = self.next_index;
         frame.width = w;
         frame.height = h;
@@ -631,5 +638,34 @@ mod tests {
         w.finish().unwrap();
         let (_, frames) = decode_all(&p);
         assert_eq!(frames, input);
+    }
+
+    #[test]
+    fn variable_frame_rate_is_noted_and_frames_still_count() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        for ext in ["mkv", "mov"] {
+            let p = dir.path().join(format!("vfr.{ext}"));
+            let mut w = ClipWriter::create(&p, Codec::Ffv1, 16, 16, 30.0).unwrap();
+            for i in 0..20 {
+                if i == 10 {
+                    w.skip_to_pts(40); // a 30-frame hole in the timestamps
+                }
+                w.write(&pattern(i, 16, 16)).unwrap();
+            }
+            w.finish().unwrap();
+            let (info, frames) = decode_all(&p);
+            assert_eq!((info.frames, frames.len()), (20, 20), ".{ext}");
+            assert!(
+                info.warnings
+                    .iter()
+                    .any(|w| matches!(w, Warning::Note(s) if s.contains("variable frame rate"))),
+                ".{ext}: {:?}",
+                info.warnings
+            );
+            // Indices still count decoded frames, whatever the timestamps say.
+            assert_eq!(frames[10].index, 10);
+            assert_eq!(frames[10], pattern(10, 16, 16));
+        }
     }
 }
