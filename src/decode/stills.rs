@@ -648,4 +648,44 @@ mod tests {
             "{e}"
         );
     }
+
+    proptest::proptest! {
+        // A fixed seed, so every run checks the same cases.
+        #![proptest_config(proptest::test_runner::Config {
+            cases: 64,
+            rng_seed: proptest::test_runner::RngSeed::Fixed(0x7157_4d61_726b),
+            ..proptest::test_runner::Config::default()
+        })]
+
+        /// Whatever the prefix (digits included), zero padding and digit-free suffix, the
+        /// frame number is the value of the last digit run.
+        #[test]
+        fn frame_number_is_the_last_digit_run(
+            prefix in "[a-z0-9_-]{0,8}",
+            n in 0u64..10_000_000,
+            pad in 0usize..10,
+            suffix in "[a-z_.-]{0,6}",
+        ) {
+            let stem = format!("{prefix}_{n:0pad$}{suffix}");
+            proptest::prop_assert_eq!(frame_number(&stem), Some(n));
+        }
+
+        /// Listing a folder orders any set of distinct numbers numerically, whatever their
+        /// zero padding.
+        #[test]
+        fn listing_orders_numerically(
+            numbers in proptest::collection::btree_set(0u64..100_000, 1..12),
+            pads in proptest::collection::vec(0usize..7, 12),
+        ) {
+            let dir = tempfile::tempdir().unwrap();
+            for (i, n) in numbers.iter().enumerate() {
+                let name = format!("f_{n:0w$}.png", w = pads[i]);
+                std::fs::write(dir.path().join(name), b"").unwrap();
+            }
+            let (stills, _) = list_stills(dir.path()).unwrap();
+            let got: Vec<u64> = stills.iter().map(|s| s.number).collect();
+            let want: Vec<u64> = numbers.into_iter().collect();
+            proptest::prop_assert_eq!(got, want);
+        }
+    }
 }
