@@ -166,6 +166,20 @@ pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
     open_video(path)
 }
 
+/// Initialises the FFmpeg libraries once per process and silences their logging: even at the
+/// "error" level FFmpeg prints lines such as "moov atom not found" to stderr, and the library
+/// must never print. Every failure still reaches the caller as an [`Error`].
+#[cfg(feature = "ffmpeg")]
+pub(crate) fn ffmpeg_init() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| {
+        // `init` only registers devices and sets nothing that can fail in a way we could act on;
+        // a failure here shows up as an open error on the first file.
+        let _ = ffmpeg_next::init();
+        ffmpeg_next::util::log::set_level(ffmpeg_next::util::log::Level::Quiet);
+    });
+}
+
 #[cfg(feature = "ffmpeg")]
 fn open_video(path: &Path) -> Result<Box<dyn FrameSource>> {
     Ok(Box::new(video::VideoSource::open(path)?))
