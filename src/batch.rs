@@ -497,10 +497,13 @@ fn run_clip(
     opts: &AnalyzeOptions,
     progress: &(dyn Fn(BatchEvent<'_>) + Sync),
 ) -> ClipOutcome {
-    let mut row = failed_row(clip, batch_rig_path, String::new());
+    // The rig named in the row, even when it fails to load.
+    let rig_label = match clip.sidecars.as_slice() {
+        [one] => one.display().to_string(),
+        _ => batch_rig_path.display().to_string(),
+    };
     let work = || -> Result<ClipOutcome> {
         let (rig, rig_path) = clip_rig(clip, batch_rig, batch_rig_path)?;
-        row.rig = rig_path.display().to_string();
         let source = decode::open(&clip.path)?;
         let frames_cb = |done: u64, total: u64| {
             progress(BatchEvent::Frames {
@@ -545,7 +548,7 @@ fn run_clip(
     };
     match catch_unwind(AssertUnwindSafe(work)) {
         Ok(Ok(o)) => o,
-        Ok(Err(e)) => fail(clip, &row.rig, one_line(&e.to_string())),
+        Ok(Err(e)) => fail(clip, &rig_label, one_line(&e.to_string())),
         Err(panic) => {
             let what = panic
                 .downcast_ref::<&str>()
@@ -554,7 +557,7 @@ fn run_clip(
                 .unwrap_or_else(|| "unknown".into());
             fail(
                 clip,
-                &row.rig,
+                &rig_label,
                 format!(
                     "{}: internal error during analysis ({}); please report it",
                     clip.path.display(),
@@ -569,13 +572,13 @@ fn one_line(s: &str) -> String {
     s.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
-fn failed_row(clip: &Clip, rig: &Path, error: String) -> SummaryRow {
+fn failed_row(clip: &Clip, rig: &str, error: String) -> SummaryRow {
     SummaryRow {
         clip: clip.name.clone(),
         status: Status::Failed,
         error: Some(error),
         path: clip.path.display().to_string(),
-        rig: rig.display().to_string(),
+        rig: rig.to_string(),
         fps_hz: None,
         frames: None,
         blow_count: None,
@@ -593,8 +596,7 @@ fn failed_row(clip: &Clip, rig: &Path, error: String) -> SummaryRow {
 }
 
 fn fail(clip: &Clip, rig: &str, error: String) -> ClipOutcome {
-    let mut row = failed_row(clip, Path::new(rig), error);
-    row.rig = rig.to_string();
+    let row = failed_row(clip, rig, error);
     ClipOutcome {
         clip: clip.clone(),
         row,
