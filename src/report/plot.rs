@@ -748,6 +748,8 @@ pub(crate) mod tests {
 
     /// An invented analysis: 5 blows at 2000 fps, 100 samples apart, drive stepping 12° and
     /// the nut 9° per blow, twist springing back between blows; frames 130..=134 lose the nut.
+    // `..Default::default()` keeps this building when the stages add fields.
+    #[allow(clippy::needless_update)]
     pub(crate) fn sample_analysis(path: &Path) -> Analysis {
         let rig = crate::Rig::from_json_str(RIG_JSON, Path::new("rig.json")).unwrap();
         let tb = TimeBase::from_fps(2000.0, "test").unwrap();
@@ -803,6 +805,7 @@ pub(crate) mod tests {
                     peak_torque: Some(k * peak),
                     residual_twist: Some(Angle::from_deg(3.0)),
                     nut_lag_s: Some(0.0025),
+                    ..Default::default()
                 }
             })
             .collect();
@@ -828,6 +831,7 @@ pub(crate) mod tests {
                 rate_per_min: Some(1200.0),
                 rate_spread_per_min: Some(0.0),
                 warnings: Vec::new(),
+                ..Default::default()
             },
             blows: metrics,
             summary: Summary {
@@ -837,6 +841,7 @@ pub(crate) mod tests {
                 nut_total: Some(Angle::from_deg(45.0)),
                 stiffness: Some(k),
                 peak_torque: Some(Torque::from_nm(150.0)),
+                ..Default::default()
             },
             warnings: Vec::new(),
         }
