@@ -401,11 +401,13 @@ fn draw_overlay(frame: &Frame, a: &Analysis, m: &Moment, font: &FontRef<'_>) -> 
         || "twist -".to_string(),
         |t| format!("twist {:+.2}°", t.deg()),
     );
+    // At the bottom, where it does not hide the marks' labels.
+    let bottom = img.height() as i32 - text_px as i32 - 12;
     label(
         &mut img,
         font,
         4,
-        4,
+        bottom,
         text_px,
         &format!("{header}   {twist}"),
     );

@@ -35,6 +35,19 @@ const TWIST_COLOR: RGBColor = RGBColor(90, 60, 160);
 const RATING_COLOR: RGBColor = RGBColor(200, 30, 30);
 const ONSET_COLOR: RGBColor = RGBColor(170, 170, 170);
 const GRID_COLOR: RGBColor = RGBColor(232, 232, 232);
+/// Distinct, readable line colours for clips in the comparison plot (cycled).
+const SERIES_COLORS: [RGBColor; 10] = [
+    RGBColor(31, 119, 180),
+    RGBColor(230, 110, 0),
+    RGBColor(44, 160, 44),
+    RGBColor(214, 39, 40),
+    RGBColor(148, 103, 189),
+    RGBColor(140, 86, 75),
+    RGBColor(227, 119, 194),
+    RGBColor(100, 100, 100),
+    RGBColor(160, 160, 20),
+    RGBColor(23, 170, 190),
+];
 
 /// The caution printed on every plot that shows a torque.
 const TORQUE_NOTE: &str = "torque = bar stiffness × twist: a model, not a calibrated measurement; verify with a torque wrench";
@@ -596,38 +609,45 @@ impl Plot for ComparisonPlot<'_> {
             .draw()?;
         let peak_color = RGBColor(31, 119, 180);
         let last_color = RGBColor(120, 180, 230);
-        chart
-            .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                c.peak_torque_nm.map(|v| {
-                    let x = i as f64;
-                    Rectangle::new([(x - 0.38, 0.0), (x - 0.02, v)], peak_color.filled())
-                })
-            }))?
-            .label("peak torque")
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 7), (x + 18, y + 7)], peak_color.filled())
-            });
-        chart
-            .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                c.last_advancing_torque_nm.map(|v| {
-                    let x = i as f64;
-                    Rectangle::new([(x + 0.02, 0.0), (x + 0.38, v)], last_color.filled())
-                })
-            }))?
-            .label("torque on the last advancing blow")
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 7), (x + 18, y + 7)], last_color.filled())
-            });
+        // Each series gets a legend entry only when some clip has a value for it.
+        if clips.iter().any(|c| c.peak_torque_nm.is_some()) {
+            chart
+                .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
+                    c.peak_torque_nm.map(|v| {
+                        let x = i as f64;
+                        Rectangle::new([(x - 0.38, 0.0), (x - 0.02, v)], peak_color.filled())
+                    })
+                }))?
+                .label("peak torque")
+                .legend(move |(x, y)| {
+                    Rectangle::new([(x, y - 7), (x + 18, y + 7)], peak_color.filled())
+                });
+        }
+        if clips.iter().any(|c| c.last_advancing_torque_nm.is_some()) {
+            chart
+                .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
+                    c.last_advancing_torque_nm.map(|v| {
+                        let x = i as f64;
+                        Rectangle::new([(x + 0.02, 0.0), (x + 0.38, v)], last_color.filled())
+                    })
+                }))?
+                .label("torque on the last advancing blow")
+                .legend(move |(x, y)| {
+                    Rectangle::new([(x, y - 7), (x + 18, y + 7)], last_color.filled())
+                });
+        }
         let rs = RATING_COLOR.stroke_width(3);
-        chart
-            .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                c.rating_nm.map(|r| {
-                    let x = i as f64;
-                    PathElement::new(vec![(x - 0.45, r), (x + 0.45, r)], rs)
-                })
-            }))?
-            .label("bar rating")
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
+        if clips.iter().any(|c| c.rating_nm.is_some()) {
+            chart
+                .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
+                    c.rating_nm.map(|r| {
+                        let x = i as f64;
+                        PathElement::new(vec![(x - 0.45, r), (x + 0.45, r)], rs)
+                    })
+                }))?
+                .label("bar rating")
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
+        }
         chart
             .configure_series_labels()
             .position(SeriesLabelPosition::UpperRight)
@@ -680,7 +700,7 @@ impl Plot for ComparisonPlot<'_> {
             .bold_line_style(GRID_COLOR.mix(0.0))
             .draw()?;
         for (i, c) in clips.iter().enumerate() {
-            let color = Palette99::pick(i).to_rgba();
+            let color = SERIES_COLORS[i % SERIES_COLORS.len()];
             let style = color.stroke_width(2);
             let pts: Vec<Option<f64>> = c.nut_advance_deg.clone();
             let xs: Vec<f64> = (1..=pts.len()).map(|b| b as f64).collect();
