@@ -803,6 +803,14 @@ mod tests {
         assert!(check_output(&inp, &inp.join("../out")).is_ok());
         // A sibling whose name starts with the input's name is outside.
         assert!(check_output(&inp, &d.path().join("in2")).is_ok());
+        // Through a symbolic link to the input folder.
+        #[cfg(unix)]
+        {
+            let link = d.path().join("link");
+            std::os::unix::fs::symlink(&inp, &link).unwrap();
+            assert!(check_output(&inp, &link.join("out")).is_err());
+            assert!(check_output(&link, &inp.join("out")).is_err());
+        }
     }
 
     fn outcomes() -> Vec<ClipOutcome> {
