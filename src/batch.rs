@@ -1,4 +1,4 @@
-//! Batch: runs [`crate::analyze`] over every clip in a folder, in parallel, and collects one
+//! Batch: runs [`crate::analyze()`] over every clip in a folder, in parallel, and collects one
 //! summary row per clip.
 //!
 //! In: a folder holding video files and stills folders, a rig (overridden per clip by a
@@ -37,6 +37,14 @@ pub const STILL_EXTENSIONS: &[&str] = &["png", "tif", "tiff", "jpg", "jpeg", "bm
 
 /// The suffix of a per-clip rig file: `<clip>.rig.json` beside the clip.
 pub const SIDECAR_SUFFIX: &str = ".rig.json";
+
+/// Batch-level files in the output folder; a clip with one of these names gets `_clip` added.
+const RESERVED_NAMES: &[&str] = &[
+    "summary.csv",
+    "summary.json",
+    "comparison.svg",
+    "comparison.png",
+];
 
 /// Key and text of the caution that goes with every torque in batch outputs.
 pub const TORQUE_CAUTION: &str = "torques are a model (bar stiffness x twist), not a calibrated \
@@ -344,7 +352,11 @@ pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
         .map(|((path, form), s)| {
             let shared = stems.iter().filter(|t| *t == s).count() > 1;
             let full = file_name(path).unwrap_or_default();
-            let name = if shared { full.clone() } else { s.clone() };
+            let mut name = if shared { full.clone() } else { s.clone() };
+            // Never let a clip folder take the name of a batch-level file.
+            if RESERVED_NAMES.contains(&name.as_str()) {
+                name.push_str("_clip");
+            }
             let mut sidecars = Vec::new();
             for base in [s.as_str(), full.as_str()] {
                 let c = folder.join(format!("{base}{SIDECAR_SUFFIX}"));
@@ -778,6 +790,14 @@ mod tests {
             .map(|c| c.name)
             .collect();
         assert_eq!(names, ["a.mov", "a.mp4"]);
+    }
+
+    #[test]
+    fn clip_names_never_collide_with_batch_files() {
+        let d = tempfile::tempdir().unwrap();
+        std::fs::write(d.path().join("summary.csv.mp4"), b"x").unwrap();
+        let clips = find_clips(d.path()).unwrap();
+        assert_eq!(clips[0].name, "summary.csv_clip");
     }
 
     #[test]
