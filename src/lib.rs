@@ -23,6 +23,7 @@
 #![deny(missing_docs)]
 
 pub mod analyze;
+pub mod batch;
 pub mod decode;
 #[cfg(feature = "ffmpeg")]
 pub mod encode;

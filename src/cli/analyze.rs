@@ -26,6 +26,13 @@ pub struct AnalyzeArgs {
     /// End of the analysed window, seconds of capture time.
     #[arg(long, value_name = "T")]
     end_s: Option<String>,
+    /// Also write annotated frames (first frame, each blow's peak twist, lost marks) into
+    /// DIR/overlays/ to check the tracking by eye.
+    #[arg(long)]
+    overlay: bool,
+    /// With --overlay, draw only every Nth blow's peak-twist frame.
+    #[arg(long, value_name = "N", default_value_t = 1, requires = "overlay")]
+    overlay_every: usize,
 }
 
 pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
@@ -43,10 +50,34 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
             .transpose()?,
     };
     let rig = twistmark::Rig::from_path(&a.rig)?;
-    let analysis = twistmark::analyze(&a.clip, &rig, &a.rig, &opts)?;
+    if a.overlay_every == 0 {
+        anyhow::bail!("--overlay-every: must be at least 1 (1 draws every blow)");
+    }
+    let progress = super::progress::FrameProgress::new(&a.clip.display().to_string());
+    let analysis = twistmark::decode::open(&a.clip).and_then(|source| {
+        twistmark::analyze::analyze_source(source, &rig, &a.rig, &opts, &|done, total| {
+            progress.update(done, total)
+        })
+    });
+    progress.finish();
+    let analysis = analysis?;
     super::print_warnings(&analysis.warnings);
-    let written = twistmark::report::write_outputs(&analysis, &a.out)
+    let mut written = twistmark::report::write_outputs(&analysis, &a.out)
         .with_context(|| format!("writing results to {}", a.out.display()))?;
+    written.extend(
+        twistmark::report::write_plots(&analysis, &a.out)
+            .with_context(|| format!("writing plots to {}", a.out.display()))?,
+    );
+    if a.overlay {
+        let o = twistmark::report::overlay::OverlayOptions {
+            every_nth_blow: a.overlay_every,
+            ..Default::default()
+        };
+        written.extend(
+            twistmark::report::overlay::write_overlays(&analysis, &a.out, &o)
+                .with_context(|| format!("writing overlay frames to {}", a.out.display()))?,
+        );
+    }
     print!("{}", twistmark::report::blow_table(&analysis));
     for p in written {
         eprintln!("wrote {}", p.display());

@@ -5,6 +5,9 @@ use std::process::ExitCode;
 
 use anyhow::Result;
 use clap::Args;
+use twistmark::batch::{BatchOptions, run_batch, summary_table};
+
+use super::progress::BatchProgress;
 
 /// Arguments of `batch`.
 #[derive(Debug, Args)]
@@ -26,6 +29,32 @@ pub struct BatchArgs {
 }
 
 pub fn run(a: BatchArgs) -> Result<ExitCode> {
-    let _ = a;
-    anyhow::bail!("batch: not built yet")
+    let opts = BatchOptions {
+        analyze: twistmark::AnalyzeOptions {
+            fps_hz: super::parse_fps(a.fps.as_deref())?,
+            ..Default::default()
+        },
+        jobs: a.jobs,
+    };
+    let rig = twistmark::Rig::from_path(&a.rig)?;
+    let progress = BatchProgress::new();
+    let result = run_batch(&a.folder, &rig, &a.rig, &a.out, &opts, &|ev| {
+        progress.event(ev)
+    });
+    progress.finish();
+    let report = result?;
+    for o in &report.outcomes {
+        for w in &o.warnings {
+            eprintln!("warning: {}: {w}", o.row.clip);
+        }
+    }
+    print!("{}", summary_table(&report));
+    for p in &report.written {
+        eprintln!("wrote {}", p.display());
+    }
+    Ok(if report.failed() > 0 {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    })
 }

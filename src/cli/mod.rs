@@ -12,6 +12,7 @@ mod batch;
 mod calibrate;
 mod info;
 mod locate;
+mod progress;
 
 /// Measures impact blows on a torsion extension bar from high-speed video: per-frame angles
 /// of the drive and nut ends, each blow's advance, twist, residual wind-up and torque.

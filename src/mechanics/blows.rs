@@ -8,7 +8,7 @@ use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
 
 /// What one blow did.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct BlowMetrics {
     /// 1-based blow number.
     pub index: usize,

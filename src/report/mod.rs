@@ -6,6 +6,11 @@ use std::path::{Path, PathBuf};
 use crate::analyze::Analysis;
 use crate::error::Result;
 
+pub mod overlay;
+pub mod plot;
+
+pub use plot::{write_comparison, write_plots};
+
 /// Writes every output file for one analysis into `dir` and returns their paths.
 ///
 /// # Errors

@@ -1,0 +1,908 @@
+//! Batch: runs [`crate::analyze()`] over every clip in a folder, in parallel, and collects one
+//! summary row per clip.
+//!
+//! In: a folder holding video files and stills folders, a rig (overridden per clip by a
+//! `<clip>.rig.json` beside it), the analysis options and an output folder. Out: each clip's
+//! report in `OUT/<clip name>/`, `OUT/summary.csv`, `OUT/summary.json` and a comparison plot,
+//! plus a [`BatchReport`] with the rows in folder order. A clip that fails is recorded with its
+//! one-line reason and the others go on. The input folder is only ever read.
+//!
+//! Results do not depend on the order in which clips finish: rows, plots and files are built
+//! from the outcomes sorted as the folder is (numbers in names compared by value).
+
+use std::cmp::Ordering;
+use std::ffi::OsStr;
+use std::panic::{AssertUnwindSafe, catch_unwind};
+use std::path::{Component, Path, PathBuf};
+
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use crate::analyze::{AnalyzeOptions, analyze_source};
+use crate::decode;
+use crate::error::{Error, Result};
+use crate::mechanics::BlowMetrics;
+use crate::report;
+use crate::rig::Rig;
+use crate::warning::Warning;
+
+/// Extensions (lower case) read as video files.
+pub const VIDEO_EXTENSIONS: &[&str] = &[
+    "mp4", "m4v", "mov", "qt", "mkv", "webm", "avi", "mpg", "mpeg", "ts", "m2ts", "mxf", "wmv",
+    "flv", "3gp", "ogv", "nut", "y4m",
+];
+
+/// Extensions (lower case) of still images that make a subfolder a stills clip.
+pub const STILL_EXTENSIONS: &[&str] = &["png", "tif", "tiff", "jpg", "jpeg", "bmp"];
+
+/// The suffix of a per-clip rig file: `<clip>.rig.json` beside the clip.
+pub const SIDECAR_SUFFIX: &str = ".rig.json";
+
+/// Batch-level files in the output folder; a clip with one of these names gets `_clip` added.
+const RESERVED_NAMES: &[&str] = &[
+    "summary.csv",
+    "summary.json",
+    "comparison.svg",
+    "comparison.png",
+];
+
+/// Key and text of the caution that goes with every torque in batch outputs.
+pub const TORQUE_CAUTION: &str = "torques are a model (bar stiffness x twist), not a calibrated \
+measurement: check final torque with a calibrated torque wrench to the vehicle maker's spec";
+
+/// How a clip is stored.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum ClipForm {
+    /// A video file.
+    Video,
+    /// A folder of numbered stills.
+    Stills,
+}
+
+/// One clip found in the batch folder.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Clip {
+    /// Name used for the output folder and the summary row: the file stem (the folder name
+    /// for stills), or the full file name when two clips share a stem.
+    pub name: String,
+    /// The clip's path.
+    pub path: PathBuf,
+    /// Video file or stills folder.
+    pub form: ClipForm,
+    /// Sidecar rig files found beside the clip (`<stem>.rig.json`, `<file name>.rig.json`).
+    pub sidecars: Vec<PathBuf>,
+}
+
+/// Options for a batch run.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct BatchOptions {
+    /// Options passed to every clip's analysis.
+    pub analyze: AnalyzeOptions,
+    /// Clips analysed at once; `None` uses one per core.
+    pub jobs: Option<usize>,
+}
+
+/// What happened, for a progress display. `clip` is the index into the clip list.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum BatchEvent<'a> {
+    /// The clip list is known.
+    Found {
+        /// Number of clips.
+        clips: usize,
+    },
+    /// A clip's analysis started.
+    Started {
+        /// Index in folder order.
+        clip: usize,
+        /// Its name.
+        name: &'a str,
+    },
+    /// Frames tracked so far in a clip (`total` may be an estimate from the container).
+    Frames {
+        /// Index in folder order.
+        clip: usize,
+        /// Frames done.
+        done: u64,
+        /// Frames expected.
+        total: u64,
+    },
+    /// A clip finished.
+    Finished {
+        /// Index in folder order.
+        clip: usize,
+        /// Its name.
+        name: &'a str,
+        /// True when it was analysed and written.
+        ok: bool,
+    },
+}
+
+/// `ok` or `failed`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Status {
+    /// Analysed and written.
+    Ok,
+    /// Not analysed; see `error`.
+    Failed,
+}
+
+/// One row of `summary.csv` / `summary.json`. Every number carries its unit in its key; a
+/// value that is not known is empty in CSV and `null` in JSON.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SummaryRow {
+    /// Clip name (output sub-folder).
+    pub clip: String,
+    /// `ok` or `failed`.
+    pub status: Status,
+    /// One-line reason when failed.
+    pub error: Option<String>,
+    /// Path of the clip.
+    pub path: String,
+    /// Rig file used (the batch rig or the clip's sidecar).
+    pub rig: String,
+    /// Capture rate used for timing, Hz.
+    pub fps_hz: Option<f64>,
+    /// Frames analysed.
+    pub frames: Option<usize>,
+    /// Number of blows.
+    pub blow_count: Option<usize>,
+    /// Blow rate, blows per minute.
+    pub blow_rate_per_min: Option<f64>,
+    /// Drive end's total rotation, degrees.
+    pub drive_total_deg: Option<f64>,
+    /// Nut end's total rotation, degrees.
+    pub nut_total_deg: Option<f64>,
+    /// Stiffness used for torque, N·m/deg.
+    pub bar_stiffness_nm_per_deg: Option<f64>,
+    /// Highest peak torque over all blows, N·m.
+    pub peak_torque_nm: Option<f64>,
+    /// Peak torque on the last blow that still turned the nut, N·m (from the summary stage).
+    pub last_advancing_torque_nm: Option<f64>,
+    /// Residual twist at the end of the clip, degrees (from the summary stage).
+    pub residual_twist_deg: Option<f64>,
+    /// The bar's rated torque from the rig, N·m.
+    pub rating_nm: Option<f64>,
+    /// Shear-yield margin at the peak torque, percent (from the summary stage).
+    pub stress_margin_pct: Option<f64>,
+    /// Number of warnings (listed in the clip's report.json).
+    pub warning_count: Option<usize>,
+}
+
+/// One clip's result.
+#[derive(Debug, Clone)]
+pub struct ClipOutcome {
+    /// The clip.
+    pub clip: Clip,
+    /// Its summary row.
+    pub row: SummaryRow,
+    /// Per-blow metrics (empty when failed), for the comparison plot.
+    pub blows: Vec<BlowMetrics>,
+    /// Warnings from its analysis.
+    pub warnings: Vec<Warning>,
+    /// Files written into its output folder.
+    pub written: Vec<PathBuf>,
+}
+
+/// The whole batch.
+#[derive(Debug, Clone)]
+pub struct BatchReport {
+    /// One outcome per clip, in folder order.
+    pub outcomes: Vec<ClipOutcome>,
+    /// Batch-level files written (`summary.csv`, `summary.json`, comparison plots).
+    pub written: Vec<PathBuf>,
+}
+
+impl BatchReport {
+    /// Number of clips that failed.
+    pub fn failed(&self) -> usize {
+        self.outcomes
+            .iter()
+            .filter(|o| o.row.status == Status::Failed)
+            .count()
+    }
+
+    /// The rows in folder order.
+    pub fn rows(&self) -> Vec<&SummaryRow> {
+        self.outcomes.iter().map(|o| &o.row).collect()
+    }
+}
+
+/// The `summary.json` document.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct SummaryFile {
+    /// Format version of this file (1).
+    pub summary_version: u32,
+    /// The caution that goes with every torque.
+    pub torque_note: String,
+    /// One row per clip, in folder order.
+    pub clips: Vec<SummaryRow>,
+}
+
+/// Compares names as a file manager does: runs of digits by value, the rest as text.
+pub fn natural_cmp(a: &str, b: &str) -> Ordering {
+    let (mut x, mut y) = (a.as_bytes(), b.as_bytes());
+    while !x.is_empty() && !y.is_empty() {
+        let dx = x[0].is_ascii_digit();
+        let dy = y[0].is_ascii_digit();
+        let ord = if dx && dy {
+            let nx = x.iter().take_while(|c| c.is_ascii_digit()).count();
+            let ny = y.iter().take_while(|c| c.is_ascii_digit()).count();
+            let (sx, sy) = (trim_zeros(&x[..nx]), trim_zeros(&y[..ny]));
+            let o = sx.len().cmp(&sy.len()).then_with(|| sx.cmp(sy));
+            x = &x[nx..];
+            y = &y[ny..];
+            o
+        } else {
+            let o = x[0].to_ascii_lowercase().cmp(&y[0].to_ascii_lowercase());
+            x = &x[1..];
+            y = &y[1..];
+            o
+        };
+        if ord != Ordering::Equal {
+            return ord;
+        }
+    }
+    x.len().cmp(&y.len()).then_with(|| a.cmp(b))
+}
+
+fn trim_zeros(d: &[u8]) -> &[u8] {
+    let n = d.iter().take_while(|&&c| c == b'0').count();
+    &d[n.min(d.len().saturating_sub(1))..]
+}
+
+fn lower_ext(p: &Path) -> Option<String> {
+    p.extension()
+        .and_then(OsStr::to_str)
+        .map(str::to_ascii_lowercase)
+}
+
+fn is_hidden(p: &Path) -> bool {
+    p.file_name()
+        .and_then(OsStr::to_str)
+        .is_some_and(|n| n.starts_with('.'))
+}
+
+/// True when `dir` holds at least one still image with a number in its name.
+fn is_stills_folder(dir: &Path) -> bool {
+    let Ok(rd) = std::fs::read_dir(dir) else {
+        // Unreadable: treat as a clip so that its failure is reported with the reason.
+        return true;
+    };
+    rd.flatten().any(|e| {
+        let p = e.path();
+        p.is_file()
+            && lower_ext(&p).is_some_and(|x| STILL_EXTENSIONS.contains(&x.as_str()))
+            && p.file_stem()
+                .and_then(OsStr::to_str)
+                .is_some_and(|s| s.bytes().any(|c| c.is_ascii_digit()))
+    })
+}
+
+/// Lists the clips in `folder`: video files by extension and subfolders of numbered stills,
+/// sorted as the folder is. `skip` (the output folder, when it lies inside) is never listed.
+///
+/// # Errors
+/// [`Error::Input`] when the folder does not exist, is not a folder, cannot be read, is
+/// empty, or holds no clips.
+pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
+    if !folder.exists() {
+        return Err(Error::input(folder, "no such folder; check the path"));
+    }
+    if !folder.is_dir() {
+        return Err(Error::input(
+            folder,
+            "is a file, not a folder: `batch` takes a folder of clips (use `analyze` for one clip)",
+        ));
+    }
+    let rd = std::fs::read_dir(folder).map_err(|e| Error::io(folder, e))?;
+    let mut entries: Vec<PathBuf> = Vec::new();
+    for e in rd {
+        let e = e.map_err(|e| Error::io(folder, e))?;
+        entries.push(e.path());
+    }
+    let visible: Vec<&PathBuf> = entries.iter().filter(|p| !is_hidden(p)).collect();
+    if visible.is_empty() {
+        return Err(Error::input(
+            folder,
+            "the folder is empty: put video files or folders of numbered stills in it",
+        ));
+    }
+    let mut found: Vec<(PathBuf, ClipForm)> = Vec::new();
+    for p in visible {
+        if p.is_dir() {
+            if is_stills_folder(p) {
+                found.push((p.clone(), ClipForm::Stills));
+            }
+        } else if lower_ext(p).is_some_and(|x| VIDEO_EXTENSIONS.contains(&x.as_str())) {
+            found.push((p.clone(), ClipForm::Video));
+        }
+    }
+    if found.is_empty() {
+        return Err(Error::input(
+            folder,
+            format!(
+                "holds no clips: expected video files ({}) or subfolders of numbered stills ({})",
+                VIDEO_EXTENSIONS[..6].join(", "),
+                STILL_EXTENSIONS.join(", ")
+            ),
+        ));
+    }
+    let file_name = |p: &Path| p.file_name().map(|n| n.to_string_lossy().into_owned());
+    found.sort_by(|a, b| {
+        natural_cmp(
+            &file_name(&a.0).unwrap_or_default(),
+            &file_name(&b.0).unwrap_or_default(),
+        )
+    });
+    let stem = |p: &Path, form: ClipForm| -> String {
+        match form {
+            ClipForm::Stills => file_name(p).unwrap_or_default(),
+            ClipForm::Video => p
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_default(),
+        }
+    };
+    let stems: Vec<String> = found.iter().map(|(p, f)| stem(p, *f)).collect();
+    let clips = found
+        .iter()
+        .zip(&stems)
+        .map(|((path, form), s)| {
+            let shared = stems.iter().filter(|t| *t == s).count() > 1;
+            let full = file_name(path).unwrap_or_default();
+            let mut name = if shared { full.clone() } else { s.clone() };
+            // Never let a clip folder take the name of a batch-level file.
+            if RESERVED_NAMES.contains(&name.as_str()) {
+                name.push_str("_clip");
+            }
+            let mut sidecars = Vec::new();
+            for base in [s.as_str(), full.as_str()] {
+                let c = folder.join(format!("{base}{SIDECAR_SUFFIX}"));
+                if c.is_file() && !sidecars.contains(&c) {
+                    sidecars.push(c);
+                }
+            }
+            Clip {
+                name,
+                path: path.clone(),
+                form: *form,
+                sidecars,
+            }
+        })
+        .collect();
+    Ok(clips)
+}
+
+/// Makes a path absolute and resolves `.`/`..` and symbolic links as far as it exists.
+fn resolve(p: &Path) -> Result<PathBuf> {
+    let abs = std::path::absolute(p).map_err(|e| Error::io(p, e))?;
+    let mut existing = abs.clone();
+    let mut rest: Vec<std::ffi::OsString> = Vec::new();
+    while !existing.exists() {
+        match (existing.file_name(), existing.parent()) {
+            (Some(n), Some(parent)) => {
+                rest.push(n.to_os_string());
+                existing = parent.to_path_buf();
+            }
+            _ => break,
+        }
+    }
+    let mut out = std::fs::canonicalize(&existing).unwrap_or(existing);
+    for c in rest.iter().rev() {
+        match Path::new(c).components().next() {
+            Some(Component::ParentDir) => {
+                out.pop();
+            }
+            Some(Component::CurDir) | None => {}
+            _ => out.push(c),
+        }
+    }
+    Ok(out)
+}
+
+/// Refuses an output folder that is the input folder or lies inside it, so that the batch
+/// never writes into its input and never analyses its own output.
+///
+/// # Errors
+/// [`Error::Output`] naming both folders.
+pub fn check_output(folder: &Path, out: &Path) -> Result<()> {
+    let (f, o) = (resolve(folder)?, resolve(out)?);
+    if o.starts_with(&f) {
+        return Err(Error::Output {
+            path: out.to_path_buf(),
+            reason: format!(
+                "the output folder is inside the input folder {}; choose an --out outside it \
+                 (the input folder is never written to)",
+                folder.display()
+            ),
+        });
+    }
+    Ok(())
+}
+
+/// The rig for one clip: its sidecar when there is one, otherwise the batch rig.
+fn clip_rig(clip: &Clip, batch_rig: &Rig, batch_rig_path: &Path) -> Result<(Rig, PathBuf)> {
+    match clip.sidecars.as_slice() {
+        [] => Ok((batch_rig.clone(), batch_rig_path.to_path_buf())),
+        [one] => Ok((Rig::from_path(one)?, one.clone())),
+        [a, b, ..] => Err(Error::Input {
+            path: clip.path.clone(),
+            reason: format!(
+                "two sidecar rigs, {} and {}: keep one",
+                a.display(),
+                b.display()
+            ),
+        }),
+    }
+}
+
+/// Runs the batch: every clip of `folder` analysed with its rig, outputs in `out`.
+///
+/// `progress` receives [`BatchEvent`]s from the worker threads; it must be cheap.
+///
+/// # Errors
+/// Only for the batch as a whole: the folder or output problems of [`find_clips`] and
+/// [`check_output`], `jobs` of 0, or summary files that cannot be written. A clip that fails
+/// is a `failed` row, not an error.
+pub fn run_batch(
+    folder: &Path,
+    rig: &Rig,
+    rig_path: &Path,
+    out: &Path,
+    opts: &BatchOptions,
+    progress: &(dyn Fn(BatchEvent<'_>) + Sync),
+) -> Result<BatchReport> {
+    check_output(folder, out)?;
+    let clips = find_clips(folder)?;
+    if opts.jobs == Some(0) {
+        return Err(Error::Option {
+            flag: "--jobs".into(),
+            reason: "must be at least 1 (or leave it out to use every core)".into(),
+        });
+    }
+    std::fs::create_dir_all(out).map_err(|e| Error::io(out, e))?;
+    progress(BatchEvent::Found { clips: clips.len() });
+
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(opts.jobs.unwrap_or(0))
+        .build()
+        .map_err(|e| Error::Option {
+            flag: "--jobs".into(),
+            reason: format!(
+                "cannot start {} worker threads: {e}",
+                opts.jobs.unwrap_or(0)
+            ),
+        })?;
+    let outcomes: Vec<ClipOutcome> = pool.install(|| {
+        clips
+            .par_iter()
+            .enumerate()
+            .map(|(i, clip)| {
+                progress(BatchEvent::Started {
+                    clip: i,
+                    name: &clip.name,
+                });
+                let o = run_clip(i, clip, rig, rig_path, out, &opts.analyze, progress);
+                progress(BatchEvent::Finished {
+                    clip: i,
+                    name: &clip.name,
+                    ok: o.row.status == Status::Ok,
+                });
+                o
+            })
+            .collect()
+    });
+
+    let mut written = write_summary(&outcomes, out)?;
+    written.extend(report::plot::write_comparison(&comparison(&outcomes), out)?);
+    Ok(BatchReport { outcomes, written })
+}
+
+fn run_clip(
+    i: usize,
+    clip: &Clip,
+    batch_rig: &Rig,
+    batch_rig_path: &Path,
+    out: &Path,
+    opts: &AnalyzeOptions,
+    progress: &(dyn Fn(BatchEvent<'_>) + Sync),
+) -> ClipOutcome {
+    // The rig named in the row, even when it fails to load.
+    let rig_label = match clip.sidecars.as_slice() {
+        [one] => one.display().to_string(),
+        _ => batch_rig_path.display().to_string(),
+    };
+    let work = || -> Result<ClipOutcome> {
+        let (rig, rig_path) = clip_rig(clip, batch_rig, batch_rig_path)?;
+        let source = decode::open(&clip.path)?;
+        let frames_cb = |done: u64, total: u64| {
+            progress(BatchEvent::Frames {
+                clip: i,
+                done,
+                total,
+            })
+        };
+        let analysis = analyze_source(source, &rig, &rig_path, opts, &frames_cb)?;
+        let dir = out.join(&clip.name);
+        let mut written = report::write_outputs(&analysis, &dir)?;
+        written.extend(report::plot::write_plots(&analysis, &dir)?);
+        let row = ok_row(clip, &rig, &rig_path, &analysis);
+        Ok(ClipOutcome {
+            clip: clip.clone(),
+            row,
+            blows: analysis.blows.clone(),
+            warnings: analysis.warnings.clone(),
+            written,
+        })
+    };
+    match catch_unwind(AssertUnwindSafe(work)) {
+        Ok(Ok(o)) => o,
+        Ok(Err(e)) => fail(clip, &rig_label, one_line(&e.to_string())),
+        Err(panic) => {
+            let what = panic
+                .downcast_ref::<&str>()
+                .map(|s| s.to_string())
+                .or_else(|| panic.downcast_ref::<String>().cloned())
+                .unwrap_or_else(|| "unknown".into());
+            fail(
+                clip,
+                &rig_label,
+                format!(
+                    "{}: internal error during analysis ({}); please report it",
+                    clip.path.display(),
+                    one_line(&what)
+                ),
+            )
+        }
+    }
+}
+
+/// The summary row of an analysed clip.
+fn ok_row(clip: &Clip, rig: &Rig, rig_path: &Path, analysis: &crate::Analysis) -> SummaryRow {
+    let s = &analysis.summary;
+    SummaryRow {
+        clip: clip.name.clone(),
+        status: Status::Ok,
+        error: None,
+        path: clip.path.display().to_string(),
+        rig: rig_path.display().to_string(),
+        fps_hz: Some(analysis.time_base.fps_hz()),
+        frames: Some(analysis.trace.len()),
+        blow_count: Some(s.blow_count),
+        blow_rate_per_min: s.blow_rate_per_min,
+        drive_total_deg: s.drive_total.map(|a| a.deg()),
+        nut_total_deg: s.nut_total.map(|a| a.deg()),
+        bar_stiffness_nm_per_deg: s.stiffness.map(|k| k.nm_per_deg()),
+        peak_torque_nm: s.peak_torque.map(|t| t.nm()),
+        // These three come from the summary stage once it reports them (docs/outputs.md);
+        // until then they are null rather than guessed here.
+        last_advancing_torque_nm: None,
+        residual_twist_deg: None,
+        stress_margin_pct: None,
+        rating_nm: rig.bar.as_ref().and_then(|b| b.rating_nm),
+        warning_count: Some(analysis.warnings.len()),
+    }
+}
+
+fn one_line(s: &str) -> String {
+    s.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+fn failed_row(clip: &Clip, rig: &str, error: String) -> SummaryRow {
+    SummaryRow {
+        clip: clip.name.clone(),
+        status: Status::Failed,
+        error: Some(error),
+        path: clip.path.display().to_string(),
+        rig: rig.to_string(),
+        fps_hz: None,
+        frames: None,
+        blow_count: None,
+        blow_rate_per_min: None,
+        drive_total_deg: None,
+        nut_total_deg: None,
+        bar_stiffness_nm_per_deg: None,
+        peak_torque_nm: None,
+        last_advancing_torque_nm: None,
+        residual_twist_deg: None,
+        rating_nm: None,
+        stress_margin_pct: None,
+        warning_count: None,
+    }
+}
+
+fn fail(clip: &Clip, rig: &str, error: String) -> ClipOutcome {
+    let row = failed_row(clip, rig, error);
+    ClipOutcome {
+        clip: clip.clone(),
+        row,
+        blows: Vec::new(),
+        warnings: Vec::new(),
+        written: Vec::new(),
+    }
+}
+
+/// The per-clip data the comparison plot needs, for clips that were analysed.
+fn comparison(outcomes: &[ClipOutcome]) -> Vec<report::plot::ComparisonClip> {
+    outcomes
+        .iter()
+        .filter(|o| o.row.status == Status::Ok)
+        .map(|o| report::plot::ComparisonClip {
+            name: o.row.clip.clone(),
+            peak_torque_nm: o.row.peak_torque_nm,
+            last_advancing_torque_nm: o.row.last_advancing_torque_nm,
+            rating_nm: o.row.rating_nm,
+            nut_advance_deg: o
+                .blows
+                .iter()
+                .map(|b| b.nut_advance.map(|a| a.deg()))
+                .collect(),
+        })
+        .collect()
+}
+
+/// Writes `summary.csv` and `summary.json` into `out`.
+///
+/// # Errors
+/// [`Error::Io`] naming the file.
+pub fn write_summary(outcomes: &[ClipOutcome], out: &Path) -> Result<Vec<PathBuf>> {
+    let csv_path = out.join("summary.csv");
+    let io_err = |p: &Path, e: std::io::Error| Error::io(p, e);
+    let mut w = csv::Writer::from_path(&csv_path).map_err(|e| csv_err(&csv_path, e))?;
+    for o in outcomes {
+        w.serialize(&o.row).map_err(|e| csv_err(&csv_path, e))?;
+    }
+    w.flush().map_err(|e| io_err(&csv_path, e))?;
+
+    let json_path = out.join("summary.json");
+    let doc = SummaryFile {
+        summary_version: 1,
+        torque_note: TORQUE_CAUTION.to_string(),
+        clips: outcomes.iter().map(|o| o.row.clone()).collect(),
+    };
+    let text = serde_json::to_string_pretty(&doc).map_err(|e| Error::Output {
+        path: json_path.clone(),
+        reason: e.to_string(),
+    })?;
+    std::fs::write(&json_path, text + "\n").map_err(|e| io_err(&json_path, e))?;
+    Ok(vec![csv_path, json_path])
+}
+
+fn csv_err(path: &Path, e: csv::Error) -> Error {
+    match e.into_kind() {
+        csv::ErrorKind::Io(io) => Error::io(path, io),
+        other => Error::Output {
+            path: path.to_path_buf(),
+            reason: format!("{other:?}"),
+        },
+    }
+}
+
+fn fmt_opt(v: Option<f64>, prec: usize) -> String {
+    v.map_or_else(|| "-".to_string(), |x| format!("{x:.prec$}"))
+}
+
+/// The batch's terminal summary: one line per analysed clip in folder order, then the failed
+/// clips with their reasons, then a count and the torque caution.
+pub fn summary_table(report: &BatchReport) -> String {
+    let ok: Vec<&SummaryRow> = report
+        .outcomes
+        .iter()
+        .map(|o| &o.row)
+        .filter(|r| r.status == Status::Ok)
+        .collect();
+    let failed: Vec<&SummaryRow> = report
+        .outcomes
+        .iter()
+        .map(|o| &o.row)
+        .filter(|r| r.status == Status::Failed)
+        .collect();
+    let width = report
+        .outcomes
+        .iter()
+        .map(|o| o.row.clip.chars().count())
+        .max()
+        .unwrap_or(4)
+        .max(4);
+    let mut s = String::new();
+    if !ok.is_empty() {
+        s.push_str(&format!(
+            "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
+            "clip", "status", "blows", "rate /min", "nut total°", "peak N·m", "last N·m", "rating",
+        ));
+        for r in &ok {
+            s.push_str(&format!(
+                "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
+                r.clip,
+                "ok",
+                r.blow_count.map_or("-".into(), |n| n.to_string()),
+                fmt_opt(r.blow_rate_per_min, 0),
+                fmt_opt(r.nut_total_deg, 1),
+                fmt_opt(r.peak_torque_nm, 1),
+                fmt_opt(r.last_advancing_torque_nm, 1),
+                fmt_opt(r.rating_nm, 0),
+            ));
+        }
+    }
+    for r in &failed {
+        s.push_str(&format!(
+            "{:<width$}  failed: {}\n",
+            r.clip,
+            r.error.as_deref().unwrap_or("unknown reason")
+        ));
+    }
+    s.push_str(&format!(
+        "{} clip(s): {} ok, {} failed\n",
+        report.outcomes.len(),
+        ok.len(),
+        failed.len()
+    ));
+    if ok.iter().any(|r| r.peak_torque_nm.is_some()) {
+        s.push_str(&format!("note: {TORQUE_CAUTION}\n"));
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn natural_order_compares_numbers_by_value() {
+        let mut v = vec!["clip10", "clip2", "Clip1", "clip02b", "a", "clip2.mp4"];
+        v.sort_by(|a, b| natural_cmp(a, b));
+        assert_eq!(v, ["a", "Clip1", "clip2", "clip2.mp4", "clip02b", "clip10"]);
+        assert_eq!(natural_cmp("f_2", "f_10"), Ordering::Less);
+        assert_eq!(natural_cmp("x", "x"), Ordering::Equal);
+    }
+
+    #[test]
+    fn finds_videos_and_stills_folders_in_order() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path();
+        std::fs::write(p.join("run10.mp4"), b"x").unwrap();
+        std::fs::write(p.join("run2.MKV"), b"x").unwrap();
+        std::fs::write(p.join("notes.txt"), b"x").unwrap();
+        std::fs::write(p.join("run2.rig.json"), b"{}").unwrap();
+        std::fs::create_dir(p.join("stills3")).unwrap();
+        std::fs::write(p.join("stills3/f_1.png"), b"x").unwrap();
+        std::fs::create_dir(p.join("empty_dir")).unwrap();
+        std::fs::create_dir(p.join(".hidden")).unwrap();
+        std::fs::write(p.join(".hidden/f_1.png"), b"x").unwrap();
+        let clips = find_clips(p).unwrap();
+        let names: Vec<&str> = clips.iter().map(|c| c.name.as_str()).collect();
+        assert_eq!(names, ["run2", "run10", "stills3"]);
+        assert_eq!(clips[2].form, ClipForm::Stills);
+        assert_eq!(clips[0].sidecars, vec![p.join("run2.rig.json")]);
+        assert!(clips[1].sidecars.is_empty());
+    }
+
+    #[test]
+    fn shared_stems_keep_their_extension() {
+        let d = tempfile::tempdir().unwrap();
+        std::fs::write(d.path().join("a.mp4"), b"x").unwrap();
+        std::fs::write(d.path().join("a.mov"), b"x").unwrap();
+        let names: Vec<String> = find_clips(d.path())
+            .unwrap()
+            .into_iter()
+            .map(|c| c.name)
+            .collect();
+        assert_eq!(names, ["a.mov", "a.mp4"]);
+    }
+
+    #[test]
+    fn clip_names_never_collide_with_batch_files() {
+        let d = tempfile::tempdir().unwrap();
+        std::fs::write(d.path().join("summary.csv.mp4"), b"x").unwrap();
+        let clips = find_clips(d.path()).unwrap();
+        assert_eq!(clips[0].name, "summary.csv_clip");
+    }
+
+    #[test]
+    fn empty_and_clipless_folders_are_refused() {
+        let d = tempfile::tempdir().unwrap();
+        let e = find_clips(d.path()).unwrap_err().to_string();
+        assert!(e.contains("empty"), "{e}");
+        std::fs::write(d.path().join("readme.txt"), b"x").unwrap();
+        let e = find_clips(d.path()).unwrap_err().to_string();
+        assert!(e.contains("no clips"), "{e}");
+        assert!(!e.contains('\n'));
+    }
+
+    #[test]
+    fn output_inside_input_is_refused() {
+        let d = tempfile::tempdir().unwrap();
+        let inp = d.path().join("in");
+        std::fs::create_dir(&inp).unwrap();
+        assert!(check_output(&inp, &inp.join("out/deeper")).is_err());
+        assert!(check_output(&inp, &inp).is_err());
+        assert!(check_output(&inp, &inp.join("x/../y")).is_err());
+        assert!(check_output(&inp, &d.path().join("out")).is_ok());
+        assert!(check_output(&inp, &inp.join("../out")).is_ok());
+        // A sibling whose name starts with the input's name is outside.
+        assert!(check_output(&inp, &d.path().join("in2")).is_ok());
+        // Through a symbolic link to the input folder.
+        #[cfg(unix)]
+        {
+            let link = d.path().join("link");
+            std::os::unix::fs::symlink(&inp, &link).unwrap();
+            assert!(check_output(&inp, &link.join("out")).is_err());
+            assert!(check_output(&link, &inp.join("out")).is_err());
+        }
+    }
+
+    fn outcomes() -> Vec<ClipOutcome> {
+        let a = crate::report::plot::tests::sample_analysis(Path::new("in/air_tool.mkv"));
+        let good = Clip {
+            name: "air_tool".into(),
+            path: "in/air_tool.mkv".into(),
+            form: ClipForm::Video,
+            sidecars: Vec::new(),
+        };
+        let bad = Clip {
+            name: "broken".into(),
+            path: "in/broken.mp4".into(),
+            form: ClipForm::Video,
+            sidecars: Vec::new(),
+        };
+        vec![
+            fail(&bad, "rig.json", "in/broken.mp4: not a video".into()),
+            ClipOutcome {
+                row: ok_row(&good, &a.rig, Path::new("rig.json"), &a),
+                clip: good,
+                blows: a.blows.clone(),
+                warnings: Vec::new(),
+                written: Vec::new(),
+            },
+        ]
+    }
+
+    #[test]
+    fn ok_rows_carry_the_summary_in_report_units() {
+        let o = outcomes();
+        let r = &o[1].row;
+        assert_eq!(r.status, Status::Ok);
+        assert_eq!(r.blow_count, Some(5));
+        assert_eq!(r.blow_rate_per_min, Some(1200.0));
+        assert!((r.nut_total_deg.unwrap() - 45.0).abs() < 1e-9);
+        assert!((r.drive_total_deg.unwrap() - 60.0).abs() < 1e-9);
+        assert_eq!(r.peak_torque_nm, Some(150.0));
+        assert_eq!(r.rating_nm, Some(136.0));
+        // facts.md C1: d = 16 mm, L = 200 mm, G = 79.3 GPa gives 44.525 N·m/deg.
+        assert!((r.bar_stiffness_nm_per_deg.unwrap() - 44.525).abs() < 1e-3);
+        assert_eq!(r.fps_hz, Some(2000.0));
+        assert_eq!(r.frames, Some(520));
+    }
+
+    #[test]
+    fn summary_files_round_trip_and_table_lists_failures_last() {
+        let o = outcomes();
+        let d = tempfile::tempdir().unwrap();
+        let files = write_summary(&o, d.path()).unwrap();
+        assert_eq!(files.len(), 2);
+        let mut rdr = csv::Reader::from_path(&files[0]).unwrap();
+        let rows: Vec<SummaryRow> = rdr.deserialize().map(|r| r.unwrap()).collect();
+        assert_eq!(rows.len(), 2);
+        assert_eq!(rows[1], o[1].row);
+        assert_eq!(rows[0].status, Status::Failed);
+        assert_eq!(rows[0].peak_torque_nm, None);
+        let doc: SummaryFile =
+            serde_json::from_str(&std::fs::read_to_string(&files[1]).unwrap()).unwrap();
+        assert_eq!(doc.clips, vec![o[0].row.clone(), o[1].row.clone()]);
+
+        let report = BatchReport {
+            outcomes: o,
+            written: files,
+        };
+        assert_eq!(report.failed(), 1);
+        let t = summary_table(&report);
+        let lines: Vec<&str> = t.lines().collect();
+        assert!(lines[0].starts_with("clip"));
+        assert!(lines[1].starts_with("air_tool") && lines[1].contains("150.0"));
+        assert!(lines[2].starts_with("broken") && lines[2].contains("failed: in/broken.mp4"));
+        assert!(t.contains("2 clip(s): 1 ok, 1 failed"));
+        assert!(t.contains("not a calibrated measurement"));
+    }
+}

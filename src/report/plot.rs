@@ -1,0 +1,1007 @@
+//! Plots of one clip and of a batch, as SVG and PNG, drawn with plotters and the embedded
+//! DejaVu Sans font (no system font library is needed to build or run).
+//!
+//! Per clip: `angles` (drive and nut angle against time, blow onsets marked),
+//! `twist_torque` (twist against time with torque = stiffness × twist on the right axis and
+//! the bar's rating as a line) and `nut_advance` (nut advance per blow as bars). Per batch:
+//! `comparison` (peak torque and torque on the last advancing blow against the rating, per
+//! clip; nut advance per blow overlaid across clips). PNGs are rendered into an RGB buffer
+//! and saved with `image`, so plotters needs no image encoder of its own.
+
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::FontStyle;
+
+use crate::analyze::Analysis;
+use crate::error::{Error, Result};
+
+/// DejaVu Sans (Debian's fonts-dejavu-core; licence in `assets/DejaVuSans-LICENSE.txt`).
+pub(crate) const FONT_TTF: &[u8] = include_bytes!("../../assets/DejaVuSans.ttf");
+
+/// The family name the embedded font is registered under.
+const FONT: &str = "sans-serif";
+
+/// Size of a per-clip plot, pixels.
+const CLIP_SIZE: (u32, u32) = (1200, 650);
+/// Size of the batch comparison plot, pixels.
+const COMPARISON_SIZE: (u32, u32) = (1200, 1000);
+
+const DRIVE_COLOR: RGBColor = RGBColor(31, 119, 180);
+const NUT_COLOR: RGBColor = RGBColor(230, 110, 0);
+const TWIST_COLOR: RGBColor = RGBColor(90, 60, 160);
+const RATING_COLOR: RGBColor = RGBColor(200, 30, 30);
+const ONSET_COLOR: RGBColor = RGBColor(170, 170, 170);
+const GRID_COLOR: RGBColor = RGBColor(232, 232, 232);
+/// Distinct, readable line colours for clips in the comparison plot (cycled).
+const SERIES_COLORS: [RGBColor; 10] = [
+    RGBColor(31, 119, 180),
+    RGBColor(230, 110, 0),
+    RGBColor(44, 160, 44),
+    RGBColor(214, 39, 40),
+    RGBColor(148, 103, 189),
+    RGBColor(140, 86, 75),
+    RGBColor(227, 119, 194),
+    RGBColor(100, 100, 100),
+    RGBColor(160, 160, 20),
+    RGBColor(23, 170, 190),
+];
+
+/// The caution printed on every plot that shows a torque.
+const TORQUE_NOTE: &str = "torque = bar stiffness × twist: a model, not a calibrated measurement; verify with a torque wrench";
+
+type PlotResult = std::result::Result<(), Box<dyn std::error::Error>>;
+
+/// Registers the embedded font with plotters once per process.
+fn register_font() -> Result<()> {
+    static REGISTERED: OnceLock<bool> = OnceLock::new();
+    let ok = *REGISTERED
+        .get_or_init(|| plotters::style::register_font(FONT, FontStyle::Normal, FONT_TTF).is_ok());
+    if ok {
+        Ok(())
+    } else {
+        Err(Error::Output {
+            path: PathBuf::from("assets/DejaVuSans.ttf"),
+            reason: "the embedded plot font could not be loaded; rebuild from a clean checkout"
+                .into(),
+        })
+    }
+}
+
+/// A plot that can be drawn on any plotters backend.
+trait Plot {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> PlotResult
+    where
+        DB::ErrorType: 'static;
+}
+
+/// Renders `plot` as `dir/<stem>.svg` and `dir/<stem>.png`.
+fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<Vec<PathBuf>> {
+    register_font()?;
+    std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+    let svg_path = dir.join(format!("{stem}.svg"));
+    let png_path = dir.join(format!("{stem}.png"));
+    let failed = |path: &Path, e: Box<dyn std::error::Error>| Error::Output {
+        path: path.to_path_buf(),
+        reason: format!("could not draw the plot: {e}"),
+    };
+
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        plot.draw(&root).map_err(|e| failed(&svg_path, e))?;
+        root.present().map_err(|e| failed(&svg_path, Box::new(e)))?;
+    }
+    std::fs::write(&svg_path, svg).map_err(|e| Error::io(&svg_path, e))?;
+
+    let mut buf = vec![255u8; size.0 as usize * size.1 as usize * 3];
+    {
+        let root = BitMapBackend::with_buffer(&mut buf, size).into_drawing_area();
+        plot.draw(&root).map_err(|e| failed(&png_path, e))?;
+        root.present().map_err(|e| failed(&png_path, Box::new(e)))?;
+    }
+    let img = image::RgbImage::from_raw(size.0, size.1, buf).ok_or_else(|| Error::Output {
+        path: png_path.clone(),
+        reason: "plot buffer has the wrong size".into(),
+    })?;
+    img.save_with_format(&png_path, image::ImageFormat::Png)
+        .map_err(|e| Error::Output {
+            path: png_path.clone(),
+            reason: format!("could not write the PNG: {e}"),
+        })?;
+    Ok(vec![svg_path, png_path])
+}
+
+/// Time axis: seconds for long clips, milliseconds for short ones.
+#[derive(Debug, Clone, Copy)]
+struct TimeAxis {
+    scale: f64,
+    unit: &'static str,
+}
+
+impl TimeAxis {
+    fn for_span(span_s: f64) -> Self {
+        if span_s < 2.0 {
+            TimeAxis {
+                scale: 1e3,
+                unit: "ms",
+            }
+        } else {
+            TimeAxis {
+                scale: 1.0,
+                unit: "s",
+            }
+        }
+    }
+    fn label(self) -> String {
+        format!("time ({}, capture clock)", self.unit)
+    }
+}
+
+/// What the per-clip plots show, taken from an [`Analysis`].
+#[derive(Debug, Clone)]
+struct ClipPlotData {
+    name: String,
+    axis: TimeAxis,
+    /// Sample times on the plot's time axis.
+    t: Vec<f64>,
+    drive_deg: Vec<Option<f64>>,
+    nut_deg: Vec<Option<f64>>,
+    twist_deg: Vec<Option<f64>>,
+    /// Blow onset times on the plot's time axis.
+    onsets: Vec<f64>,
+    /// Each blow's peak twist: (time on axis, twist deg).
+    peaks: Vec<(f64, f64)>,
+    /// Nut advance per blow, deg, by blow number (1-based).
+    nut_advance_deg: Vec<(usize, Option<f64>)>,
+    stiffness_nm_per_deg: Option<f64>,
+    rating_nm: Option<f64>,
+}
+
+impl ClipPlotData {
+    fn from_analysis(a: &Analysis) -> Self {
+        let tr = &a.trace;
+        let n = tr.len();
+        let t_s: Vec<f64> = (0..n).map(|i| tr.t_s(i)).collect();
+        let span = match (t_s.first(), t_s.last()) {
+            (Some(f), Some(l)) => l - f,
+            _ => 0.0,
+        };
+        let axis = TimeAxis::for_span(span);
+        let deg = |v: &Vec<Option<crate::Angle>>| -> Vec<Option<f64>> {
+            v.iter()
+                .map(|x| x.map(|a| a.deg()).filter(|d| d.is_finite()))
+                .collect()
+        };
+        let twist_deg: Vec<Option<f64>> = (0..n)
+            .map(|i| tr.twist(i).map(|a| a.deg()).filter(|d| d.is_finite()))
+            .collect();
+        let onsets: Vec<f64> = a.blows.iter().map(|b| b.t_s * axis.scale).collect();
+        // Peak-twist moment of each blow, from the segmentation's sample ranges.
+        let peaks = a
+            .segmentation
+            .blows
+            .iter()
+            .filter_map(|b| {
+                (b.onset..b.end.min(n))
+                    .filter_map(|i| twist_deg[i].map(|tw| (i, tw)))
+                    .max_by(|x, y| x.1.total_cmp(&y.1))
+                    .map(|(i, tw)| (t_s[i] * axis.scale, tw))
+            })
+            .collect();
+        let stiffness = a
+            .summary
+            .stiffness
+            .or_else(|| a.rig.bar.as_ref().map(|b| b.stiffness()))
+            .map(|k| k.nm_per_deg())
+            .filter(|k| k.is_finite() && *k > 0.0);
+        ClipPlotData {
+            name: clip_name(a),
+            axis,
+            t: t_s.iter().map(|t| t * axis.scale).collect(),
+            drive_deg: deg(&tr.drive),
+            nut_deg: deg(&tr.nut),
+            twist_deg,
+            onsets,
+            peaks,
+            nut_advance_deg: a
+                .blows
+                .iter()
+                .map(|b| (b.index, b.nut_advance.map(|x| x.deg())))
+                .collect(),
+            stiffness_nm_per_deg: stiffness,
+            rating_nm: a.rig.bar.as_ref().and_then(|b| b.rating_nm),
+        }
+    }
+}
+
+fn clip_name(a: &Analysis) -> String {
+    let p = &a.clip.path;
+    p.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| p.display().to_string())
+}
+
+/// Splits a series with gaps (lost marks) into runs of known points.
+fn runs(t: &[f64], v: &[Option<f64>]) -> Vec<Vec<(f64, f64)>> {
+    let mut out: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut cur: Vec<(f64, f64)> = Vec::new();
+    for (x, y) in t.iter().zip(v) {
+        match y {
+            Some(y) => cur.push((*x, *y)),
+            None if !cur.is_empty() => out.push(std::mem::take(&mut cur)),
+            None => {}
+        }
+    }
+    if !cur.is_empty() {
+        out.push(cur);
+    }
+    out
+}
+
+/// A range covering `values` with 5 % headroom, never empty or inverted.
+fn span<I: IntoIterator<Item = f64>>(values: I, include_zero: bool) -> (f64, f64) {
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for v in values.into_iter().filter(|v| v.is_finite()) {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if include_zero {
+        lo = lo.min(0.0);
+        hi = hi.max(0.0);
+    }
+    if !(lo.is_finite() && hi.is_finite()) {
+        return (0.0, 1.0);
+    }
+    if hi - lo < 1e-9 {
+        let pad = if hi.abs() > 1e-9 { hi.abs() * 0.1 } else { 1.0 };
+        return (lo - pad, hi + pad);
+    }
+    let pad = 0.05 * (hi - lo);
+    (lo - pad, hi + pad)
+}
+
+fn time_range(d: &ClipPlotData) -> (f64, f64) {
+    match (d.t.first(), d.t.last()) {
+        (Some(&a), Some(&b)) if b > a => (a, b),
+        (Some(&a), _) => (a, a + 1.0),
+        _ => (0.0, 1.0),
+    }
+}
+
+/// Draws a centred note in the plotting area (for empty data).
+fn note_center<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, text: &str) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    let (w, h) = area.dim_in_pixel();
+    let style = TextStyle::from((FONT, 22).into_font())
+        .color(&RGBColor(120, 120, 120))
+        .pos(plotters::style::text_anchor::Pos::new(
+            plotters::style::text_anchor::HPos::Center,
+            plotters::style::text_anchor::VPos::Center,
+        ));
+    area.draw_text(text, &style, (w as i32 / 2, h as i32 / 2))?;
+    Ok(())
+}
+
+struct AnglesPlot<'a>(&'a ClipPlotData);
+
+impl Plot for AnglesPlot<'_> {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> PlotResult
+    where
+        DB::ErrorType: 'static,
+    {
+        let d = self.0;
+        root.fill(&WHITE)?;
+        let (x0, x1) = time_range(d);
+        let (y0, y1) = span(
+            d.drive_deg.iter().chain(&d.nut_deg).flatten().copied(),
+            true,
+        );
+        let mut chart = ChartBuilder::on(root)
+            .caption(
+                format!("{}: drive and nut angle", d.name),
+                (FONT, 28).into_font(),
+            )
+            .margin(18)
+            .x_label_area_size(60)
+            .y_label_area_size(90)
+            .build_cartesian_2d(x0..x1, y0..y1)?;
+        chart
+            .configure_mesh()
+            .x_desc(d.axis.label())
+            .y_desc("angle (°, tightening +)")
+            .label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .light_line_style(GRID_COLOR)
+            .bold_line_style(GRID_COLOR.mix(0.0))
+            .draw()?;
+        if !d.onsets.is_empty() {
+            chart
+                .draw_series(d.onsets.iter().map(|&t| {
+                    PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1))
+                }))?
+                .label("blow onset")
+                .legend(|(x, y)| {
+                    PathElement::new(vec![(x + 10, y - 8), (x + 10, y + 8)], ONSET_COLOR)
+                });
+        }
+        for (name, values, color) in [
+            ("drive end", &d.drive_deg, DRIVE_COLOR),
+            ("nut end", &d.nut_deg, NUT_COLOR),
+        ] {
+            let style = color.stroke_width(2);
+            chart
+                .draw_series(
+                    runs(&d.t, values)
+                        .into_iter()
+                        .map(move |r| PathElement::new(r, style)),
+                )?
+                .label(name)
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], style));
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperLeft)
+            .label_font((FONT, 18))
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK.mix(0.4))
+            .draw()?;
+        if d.t.is_empty() {
+            note_center(root, "no frames analysed")?;
+        } else if d.drive_deg.iter().chain(&d.nut_deg).all(Option::is_none) {
+            note_center(root, "no mark was measured in any frame")?;
+        }
+        Ok(())
+    }
+}
+
+struct TwistPlot<'a>(&'a ClipPlotData);
+
+impl Plot for TwistPlot<'_> {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> PlotResult
+    where
+        DB::ErrorType: 'static,
+    {
+        let d = self.0;
+        root.fill(&WHITE)?;
+        let (x0, x1) = time_range(d);
+        let k = d.stiffness_nm_per_deg;
+        let rating_deg = match (d.rating_nm, k) {
+            (Some(r), Some(k)) => Some(r / k),
+            _ => None,
+        };
+        let (y0, y1) = span(
+            d.twist_deg.iter().flatten().copied().chain(rating_deg),
+            true,
+        );
+        let title = match k {
+            Some(_) => format!("{}: twist and torque", d.name),
+            None => format!("{}: twist (no bar in the rig, so no torque)", d.name),
+        };
+        let (plot_area, foot) = if k.is_some() {
+            root.split_vertically(root.dim_in_pixel().1 - 30)
+        } else {
+            root.split_vertically(root.dim_in_pixel().1)
+        };
+        let mut chart = ChartBuilder::on(&plot_area)
+            .caption(title, (FONT, 28).into_font())
+            .margin(18)
+            .x_label_area_size(60)
+            .y_label_area_size(90)
+            .right_y_label_area_size(if k.is_some() { 100 } else { 0 })
+            .build_cartesian_2d(x0..x1, y0..y1)?
+            .set_secondary_coord(x0..x1, y0 * k.unwrap_or(1.0)..y1 * k.unwrap_or(1.0));
+        chart
+            .configure_mesh()
+            .x_desc(d.axis.label())
+            .y_desc("twist = drive − nut (°)")
+            .label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .light_line_style(GRID_COLOR)
+            .bold_line_style(GRID_COLOR.mix(0.0))
+            .draw()?;
+        if k.is_some() {
+            chart
+                .configure_secondary_axes()
+                .y_desc("torque (N·m, model)")
+                .label_style((FONT, 18))
+                .axis_desc_style((FONT, 22))
+                .draw()?;
+        }
+        if !d.onsets.is_empty() {
+            chart.draw_series(
+                d.onsets.iter().map(|&t| {
+                    PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1))
+                }),
+            )?;
+        }
+        let style = TWIST_COLOR.stroke_width(2);
+        chart
+            .draw_series(
+                runs(&d.t, &d.twist_deg)
+                    .into_iter()
+                    .map(move |r| PathElement::new(r, style)),
+            )?
+            .label("twist")
+            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], style));
+        if !d.peaks.is_empty() {
+            chart
+                .draw_series(
+                    d.peaks
+                        .iter()
+                        .map(|&p| Circle::new(p, 5, TWIST_COLOR.filled())),
+                )?
+                .label("peak twist of a blow")
+                .legend(|(x, y)| Circle::new((x + 11, y), 5, TWIST_COLOR.filled()));
+        }
+        if let (Some(r), Some(_)) = (d.rating_nm, k) {
+            let rs = RATING_COLOR.stroke_width(2);
+            chart
+                .draw_secondary_series(LineSeries::new(vec![(x0, r), (x1, r)], rs))?
+                .label(format!("rating {r:.0} N·m"))
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperLeft)
+            .label_font((FONT, 18))
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK.mix(0.4))
+            .draw()?;
+        if k.is_some() {
+            foot.draw_text(
+                TORQUE_NOTE,
+                &TextStyle::from((FONT, 16).into_font()).color(&RGBColor(90, 90, 90)),
+                (18, 4),
+            )?;
+        }
+        if d.twist_deg.iter().all(Option::is_none) {
+            note_center(&plot_area, "no frame with both marks measured")?;
+        }
+        Ok(())
+    }
+}
+
+struct AdvancePlot<'a>(&'a ClipPlotData);
+
+impl Plot for AdvancePlot<'_> {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> PlotResult
+    where
+        DB::ErrorType: 'static,
+    {
+        let d = self.0;
+        root.fill(&WHITE)?;
+        let n = d.nut_advance_deg.iter().map(|b| b.0).max().unwrap_or(0);
+        let (y0, y1) = span(d.nut_advance_deg.iter().filter_map(|b| b.1), true);
+        let mut chart = ChartBuilder::on(root)
+            .caption(
+                format!("{}: nut advance per blow", d.name),
+                (FONT, 28).into_font(),
+            )
+            .margin(18)
+            .x_label_area_size(60)
+            .y_label_area_size(90)
+            .build_cartesian_2d(0.5..(n.max(1) as f64 + 0.5), y0..y1)?;
+        chart
+            .configure_mesh()
+            .x_desc("blow number")
+            .y_desc("nut advance (°)")
+            .x_labels(n.clamp(1, 20) + 1)
+            .x_label_formatter(&|x| {
+                if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
+                    format!("{}", x.round() as i64)
+                } else {
+                    String::new()
+                }
+            })
+            .label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .light_line_style(GRID_COLOR)
+            .bold_line_style(GRID_COLOR.mix(0.0))
+            .draw()?;
+        chart.draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
+            v.map(|v| {
+                let x = i as f64;
+                Rectangle::new([(x - 0.35, 0.0), (x + 0.35, v)], NUT_COLOR.filled())
+            })
+        }))?;
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(0.5, 0.0), (n.max(1) as f64 + 0.5, 0.0)],
+            BLACK.stroke_width(1),
+        )))?;
+        if d.nut_advance_deg.is_empty() {
+            note_center(root, "no blows found")?;
+        }
+        Ok(())
+    }
+}
+
+/// Writes the per-clip plots (`angles`, `twist_torque`, `nut_advance`, each as SVG and PNG)
+/// into `dir` and returns their paths.
+///
+/// # Errors
+/// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
+pub fn write_plots(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
+    let d = ClipPlotData::from_analysis(analysis);
+    let mut out = render(&AnglesPlot(&d), dir, "angles", CLIP_SIZE)?;
+    out.extend(render(&TwistPlot(&d), dir, "twist_torque", CLIP_SIZE)?);
+    out.extend(render(&AdvancePlot(&d), dir, "nut_advance", CLIP_SIZE)?);
+    Ok(out)
+}
+
+/// One analysed clip as the batch comparison plot shows it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ComparisonClip {
+    /// Clip name.
+    pub name: String,
+    /// Highest peak torque, N·m.
+    pub peak_torque_nm: Option<f64>,
+    /// Peak torque on the last blow that still turned the nut, N·m.
+    pub last_advancing_torque_nm: Option<f64>,
+    /// The bar's rating, N·m.
+    pub rating_nm: Option<f64>,
+    /// Nut advance of each blow in order, degrees.
+    pub nut_advance_deg: Vec<Option<f64>>,
+}
+
+struct ComparisonPlot<'a>(&'a [ComparisonClip]);
+
+fn short(name: &str, max: usize) -> String {
+    if name.chars().count() <= max {
+        name.to_string()
+    } else {
+        let head: String = name.chars().take(max - 1).collect();
+        format!("{head}…")
+    }
+}
+
+impl Plot for ComparisonPlot<'_> {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> PlotResult
+    where
+        DB::ErrorType: 'static,
+    {
+        let clips = self.0;
+        root.fill(&WHITE)?;
+        let h = root.dim_in_pixel().1;
+        let (top, rest) = root.split_vertically(h / 2);
+        let (bottom, foot) = rest.split_vertically(rest.dim_in_pixel().1 - 30);
+        let n = clips.len();
+
+        // Top: torques against the rating, per clip.
+        let (_, t1) = span(
+            clips.iter().flat_map(|c| {
+                [c.peak_torque_nm, c.last_advancing_torque_nm, c.rating_nm]
+                    .into_iter()
+                    .flatten()
+            }),
+            true,
+        );
+        // Headroom above the tallest bar for the legend.
+        let t1 = t1 * 1.3;
+        let names: Vec<String> = clips.iter().map(|c| short(&c.name, 18)).collect();
+        let mut chart = ChartBuilder::on(&top)
+            .caption("Torque per clip against the bar's rating", (FONT, 28))
+            .margin(18)
+            .x_label_area_size(50)
+            .y_label_area_size(90)
+            .build_cartesian_2d(-0.5..(n.max(1) as f64 - 0.5), 0.0..t1)?;
+        chart
+            .configure_mesh()
+            .y_desc("torque (N·m, model)")
+            .x_labels(n.max(1) + 1)
+            .x_label_formatter(&|x| {
+                let i = x.round();
+                if (x - i).abs() < 1e-6 && i >= 0.0 {
+                    names.get(i as usize).cloned().unwrap_or_default()
+                } else {
+                    String::new()
+                }
+            })
+            .disable_x_mesh()
+            .label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .light_line_style(GRID_COLOR)
+            .bold_line_style(GRID_COLOR.mix(0.0))
+            .draw()?;
+        let peak_color = RGBColor(31, 119, 180);
+        let last_color = RGBColor(120, 180, 230);
+        // Each series gets a legend entry only when some clip has a value for it.
+        if clips.iter().any(|c| c.peak_torque_nm.is_some()) {
+            chart
+                .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
+                    c.peak_torque_nm.map(|v| {
+                        let x = i as f64;
+                        Rectangle::new([(x - 0.38, 0.0), (x - 0.02, v)], peak_color.filled())
+                    })
+                }))?
+                .label("peak torque")
+                .legend(move |(x, y)| {
+                    Rectangle::new([(x, y - 7), (x + 18, y + 7)], peak_color.filled())
+                });
+        }
+        if clips.iter().any(|c| c.last_advancing_torque_nm.is_some()) {
+            chart
+                .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
+                    c.last_advancing_torque_nm.map(|v| {
+                        let x = i as f64;
+                        Rectangle::new([(x + 0.02, 0.0), (x + 0.38, v)], last_color.filled())
+                    })
+                }))?
+                .label("torque on the last advancing blow")
+                .legend(move |(x, y)| {
+                    Rectangle::new([(x, y - 7), (x + 18, y + 7)], last_color.filled())
+                });
+        }
+        let rs = RATING_COLOR.stroke_width(3);
+        if clips.iter().any(|c| c.rating_nm.is_some()) {
+            chart
+                .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
+                    c.rating_nm.map(|r| {
+                        let x = i as f64;
+                        PathElement::new(vec![(x - 0.45, r), (x + 0.45, r)], rs)
+                    })
+                }))?
+                .label("bar rating")
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .label_font((FONT, 18))
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK.mix(0.4))
+            .draw()?;
+        if n == 0 {
+            note_center(&top, "no clip was analysed")?;
+        } else if clips.iter().all(|c| c.peak_torque_nm.is_none()) {
+            note_center(
+                &top,
+                "no torque: no clip's rig has a bar, or no blows were found",
+            )?;
+        }
+
+        // Bottom: nut advance per blow, one line per clip.
+        let nb = clips
+            .iter()
+            .map(|c| c.nut_advance_deg.len())
+            .max()
+            .unwrap_or(0);
+        let (a0, a1) = span(
+            clips
+                .iter()
+                .flat_map(|c| c.nut_advance_deg.iter().flatten().copied()),
+            true,
+        );
+        let mut chart = ChartBuilder::on(&bottom)
+            .caption("Nut advance per blow", (FONT, 28))
+            .margin(18)
+            .x_label_area_size(60)
+            .y_label_area_size(90)
+            .build_cartesian_2d(0.5..(nb.max(1) as f64 + 0.5), a0..a1)?;
+        chart
+            .configure_mesh()
+            .x_desc("blow number")
+            .y_desc("nut advance (°)")
+            .x_labels(nb.clamp(1, 20) + 1)
+            .x_label_formatter(&|x| {
+                if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
+                    format!("{}", x.round() as i64)
+                } else {
+                    String::new()
+                }
+            })
+            .label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .light_line_style(GRID_COLOR)
+            .bold_line_style(GRID_COLOR.mix(0.0))
+            .draw()?;
+        for (i, c) in clips.iter().enumerate() {
+            let color = SERIES_COLORS[i % SERIES_COLORS.len()];
+            let style = color.stroke_width(2);
+            let pts: Vec<Option<f64>> = c.nut_advance_deg.clone();
+            let xs: Vec<f64> = (1..=pts.len()).map(|b| b as f64).collect();
+            let segs = runs(&xs, &pts);
+            if segs.is_empty() {
+                continue;
+            }
+            chart
+                .draw_series(segs.iter().map(move |r| PathElement::new(r.clone(), style)))?
+                .label(short(&c.name, 24))
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], style));
+            chart.draw_series(
+                segs.iter()
+                    .flatten()
+                    .map(move |&p| Circle::new(p, 4, color.filled())),
+            )?;
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .label_font((FONT, 18))
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK.mix(0.4))
+            .draw()?;
+        if nb == 0 {
+            note_center(&bottom, "no blows found in any clip")?;
+        }
+        foot.draw_text(
+            TORQUE_NOTE,
+            &TextStyle::from((FONT, 16).into_font()).color(&RGBColor(90, 90, 90)),
+            (18, 4),
+        )?;
+        Ok(())
+    }
+}
+
+/// Writes the batch comparison plot (`comparison.svg`, `comparison.png`) into `dir`.
+///
+/// # Errors
+/// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
+pub fn write_comparison(clips: &[ComparisonClip], dir: &Path) -> Result<Vec<PathBuf>> {
+    render(&ComparisonPlot(clips), dir, "comparison", COMPARISON_SIZE)
+}
+
+#[cfg(test)]
+pub(crate) mod tests {
+    use super::*;
+    use crate::analyze::FpsSource;
+    use crate::decode::{ClipInfo, ClipKind};
+    use crate::mechanics::{BlowMetrics, Summary};
+    use crate::segment::{Blow, Segmentation};
+    use crate::track::Trace;
+    use crate::units::{Angle, TimeBase, Torque};
+
+    /// A rig with a 44.525 N·m/deg round bar (facts.md C1: d = 16 mm, L = 200 mm,
+    /// G = 79.3 GPa) rated 136 N·m.
+    pub(crate) const RIG_JSON: &str = r#"{
+      "rig_version": 1, "capture_fps_hz": 2000,
+      "marks": {
+        "drive": {"kind": "radial", "pivot": [60, 60], "radius": [15, 40], "tighten": "cw"},
+        "nut":   {"kind": "radial", "pivot": [180, 60], "radius": [15, 40], "tighten": "ccw"}
+      },
+      "bar": {"sections": [{"shape": "round", "length_mm": 200, "d_mm": 16}], "rating_nm": 136}
+    }"#;
+
+    /// An invented analysis: 5 blows at 2000 fps, 100 samples apart, drive stepping 12° and
+    /// the nut 9° per blow, twist springing back between blows; frames 130..=134 lose the nut.
+    // `..Default::default()` keeps this building when the stages add fields.
+    #[allow(clippy::needless_update)]
+    pub(crate) fn sample_analysis(path: &Path) -> Analysis {
+        let rig = crate::Rig::from_json_str(RIG_JSON, Path::new("rig.json")).unwrap();
+        let tb = TimeBase::from_fps(2000.0, "test").unwrap();
+        let n = 520usize;
+        let mut drive = Vec::with_capacity(n);
+        let mut nut = Vec::with_capacity(n);
+        for i in 0..n {
+            let blow = (i / 100) as f64;
+            let phase = (i % 100) as f64;
+            let rise = (phase / 10.0).min(1.0);
+            let d = 12.0 * (blow + rise);
+            let settle = ((phase - 5.0) / 30.0).clamp(0.0, 1.0);
+            let nt = 9.0 * (blow + settle) - 1.5 * (1.0 - settle) * rise;
+            drive.push(Some(Angle::from_deg(d)));
+            nut.push(if (130..=134).contains(&i) {
+                None
+            } else {
+                Some(Angle::from_deg(nt))
+            });
+        }
+        let trace = Trace {
+            time_base: tb,
+            frames: (0..n as u64).collect(),
+            drive,
+            nut,
+            drive_confidence: vec![1.0; n],
+            nut_confidence: vec![1.0; n],
+            drive_zero_screen: Some(Angle::from_deg(-90.0)),
+            nut_zero_screen: Some(Angle::from_deg(30.0)),
+        };
+        let blows: Vec<Blow> = (0..5)
+            .map(|b| Blow {
+                onset: b * 100,
+                end: ((b + 1) * 100).min(n),
+                nut_onset: Some(b * 100 + 5),
+            })
+            .collect();
+        let k = rig.bar.as_ref().unwrap().stiffness();
+        let metrics: Vec<BlowMetrics> = blows
+            .iter()
+            .enumerate()
+            .map(|(i, b)| {
+                let peak = (b.onset..b.end)
+                    .filter_map(|s| trace.twist(s))
+                    .fold(Angle::ZERO, |m, a| if a > m { a } else { m });
+                BlowMetrics {
+                    index: i + 1,
+                    frame: b.onset as u64,
+                    t_s: tb.seconds(b.onset as f64),
+                    drive_advance: Some(Angle::from_deg(12.0)),
+                    nut_advance: Some(Angle::from_deg(9.0 - i as f64)),
+                    peak_twist: Some(peak),
+                    peak_torque: Some(k * peak),
+                    residual_twist: Some(Angle::from_deg(3.0)),
+                    nut_lag_s: Some(0.0025),
+                    ..Default::default()
+                }
+            })
+            .collect();
+        Analysis {
+            clip: ClipInfo {
+                path: path.to_path_buf(),
+                kind: ClipKind::Memory,
+                frames: n as u64,
+                width: 240,
+                height: 120,
+                bit_depth: 8,
+                container_fps_hz: None,
+                codec: "raw".into(),
+                duration_s: None,
+                warnings: Vec::new(),
+            },
+            rig,
+            time_base: tb,
+            fps_source: FpsSource::Rig,
+            trace,
+            segmentation: Segmentation {
+                blows,
+                rate_per_min: Some(1200.0),
+                rate_spread_per_min: Some(0.0),
+                warnings: Vec::new(),
+                ..Default::default()
+            },
+            blows: metrics,
+            summary: Summary {
+                blow_count: 5,
+                blow_rate_per_min: Some(1200.0),
+                drive_total: Some(Angle::from_deg(60.0)),
+                nut_total: Some(Angle::from_deg(45.0)),
+                stiffness: Some(k),
+                peak_torque: Some(Torque::from_nm(150.0)),
+                ..Default::default()
+            },
+            warnings: Vec::new(),
+        }
+    }
+
+    fn check_png(path: &Path, size: (u32, u32)) {
+        let img = image::open(path).unwrap();
+        assert_eq!((img.width(), img.height()), size, "{}", path.display());
+        // Not a blank page: some dark pixels (text, axes) and some coloured ones (data).
+        let rgb = img.to_rgb8();
+        let dark = rgb.pixels().filter(|p| p.0.iter().all(|&c| c < 80)).count();
+        let coloured = rgb
+            .pixels()
+            .filter(|p| {
+                let (mx, mn) = (*p.0.iter().max().unwrap(), *p.0.iter().min().unwrap());
+                mx - mn > 80
+            })
+            .count();
+        assert!(dark > 500, "{}: {dark} dark pixels", path.display());
+        assert!(
+            coloured > 500,
+            "{}: {coloured} coloured pixels",
+            path.display()
+        );
+    }
+
+    #[test]
+    fn clip_plots_are_written_with_units_on_the_axes() {
+        let dir = tempfile::tempdir().unwrap();
+        let a = sample_analysis(Path::new("bench/air_tool.mkv"));
+        let files = write_plots(&a, dir.path()).unwrap();
+        let names: Vec<String> = files
+            .iter()
+            .map(|p| p.file_name().unwrap().to_string_lossy().into_owned())
+            .collect();
+        assert_eq!(
+            names,
+            [
+                "angles.svg",
+                "angles.png",
+                "twist_torque.svg",
+                "twist_torque.png",
+                "nut_advance.svg",
+                "nut_advance.png"
+            ]
+        );
+        let svg = |n: &str| std::fs::read_to_string(dir.path().join(n)).unwrap();
+        let angles = svg("angles.svg");
+        // 520 samples at 2000 fps is 0.26 s, so the time axis is in ms.
+        assert!(angles.contains("time (ms, capture clock)"), "time axis");
+        assert!(angles.contains("angle (°, tightening +)"));
+        assert!(angles.contains("air_tool.mkv"));
+        assert!(angles.contains("blow onset"));
+        let tt = svg("twist_torque.svg");
+        assert!(tt.contains("twist = drive − nut (°)"));
+        assert!(tt.contains("torque (N·m, model)"));
+        assert!(tt.contains("rating 136 N·m"));
+        assert!(tt.contains("not a calibrated measurement"));
+        let adv = svg("nut_advance.svg");
+        assert!(adv.contains("nut advance (°)") && adv.contains("blow number"));
+        // Five bars: one filled rectangle per blow in the nut colour.
+        assert_eq!(adv.matches("fill=\"#E66E00\"").count(), 5, "{adv}");
+        for n in ["angles.png", "twist_torque.png", "nut_advance.png"] {
+            check_png(&dir.path().join(n), CLIP_SIZE);
+        }
+    }
+
+    #[test]
+    fn lost_samples_break_the_line() {
+        let t = [0.0, 1.0, 2.0, 3.0, 4.0];
+        let v = [Some(1.0), None, Some(2.0), Some(3.0), None];
+        assert_eq!(
+            runs(&t, &v),
+            vec![vec![(0.0, 1.0)], vec![(2.0, 2.0), (3.0, 3.0)]]
+        );
+        assert_eq!(span([5.0, 5.0], false), (4.5, 5.5));
+        assert_eq!(span(std::iter::empty(), false), (0.0, 1.0));
+    }
+
+    #[test]
+    fn empty_analysis_still_plots() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut a = sample_analysis(Path::new("empty.mp4"));
+        a.trace.frames.clear();
+        a.trace.drive.clear();
+        a.trace.nut.clear();
+        a.blows.clear();
+        a.segmentation.blows.clear();
+        a.rig.bar = None;
+        a.summary = Summary::default();
+        let files = write_plots(&a, dir.path()).unwrap();
+        assert_eq!(files.len(), 6);
+        let tt = std::fs::read_to_string(dir.path().join("twist_torque.svg")).unwrap();
+        assert!(tt.contains("no bar in the rig"));
+        assert!(!tt.contains("N·m"));
+        let img = image::open(dir.path().join("angles.png")).unwrap();
+        assert_eq!((img.width(), img.height()), CLIP_SIZE);
+    }
+
+    #[test]
+    fn comparison_plot_shows_every_clip() {
+        let dir = tempfile::tempdir().unwrap();
+        let clips = vec![
+            ComparisonClip {
+                name: "air_tool".into(),
+                peak_torque_nm: Some(131.0),
+                last_advancing_torque_nm: Some(122.0),
+                rating_nm: Some(136.0),
+                nut_advance_deg: vec![Some(30.0), Some(12.0), Some(4.0), Some(1.0)],
+            },
+            ComparisonClip {
+                name: "fast_electric_tool".into(),
+                peak_torque_nm: Some(160.0),
+                last_advancing_torque_nm: Some(141.0),
+                rating_nm: Some(136.0),
+                nut_advance_deg: vec![Some(40.0), None, Some(8.0), Some(3.0), Some(2.0), Some(1.5)],
+            },
+        ];
+        let files = write_comparison(&clips, dir.path()).unwrap();
+        assert_eq!(files.len(), 2);
+        let svg = std::fs::read_to_string(&files[0]).unwrap();
+        for s in [
+            "torque (N·m, model)",
+            "nut advance (°)",
+            "blow number",
+            "air_tool",
+            "fast_electric_tool",
+            "bar rating",
+            "torque on the last advancing blow",
+        ] {
+            assert!(svg.contains(s), "missing {s}");
+        }
+        check_png(&files[1], COMPARISON_SIZE);
+        // No clips at all still gives a readable page.
+        let empty = tempfile::tempdir().unwrap();
+        let files = write_comparison(&[], empty.path()).unwrap();
+        assert!(
+            std::fs::read_to_string(&files[0])
+                .unwrap()
+                .contains("no clip was analysed")
+        );
+    }
+}
