@@ -9,4 +9,4 @@ mod bar;
 mod blows;
 
 pub use bar::{BarSpec, SectionSpec};
-pub use blows::{BlowMetrics, Summary, blow_metrics};
+pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, StiffnessSource, Summary, blow_metrics};
