@@ -38,7 +38,7 @@ use crate::warning::Warning;
 pub const NUT_STOP_MIN_DEG: f64 = 0.10;
 
 /// What one blow did.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct BlowMetrics {
     /// 1-based blow number.
     pub index: usize,
@@ -58,6 +58,8 @@ pub struct BlowMetrics {
     pub residual_twist: Option<Angle>,
     /// Time from the drive end's onset to the nut end's onset, s.
     pub nut_lag_s: Option<f64>,
+    /// Clip frame index of the nut end's onset (None when the nut did not move).
+    pub nut_onset_frame: Option<u64>,
     /// Twist when the nut first moved in this blow.
     pub breakaway_twist: Option<Angle>,
     /// Stiffness × breakaway twist.
@@ -118,6 +120,9 @@ pub struct Summary {
     pub nut_stopped_after_blow: Option<usize>,
     /// Highest peak torque on a blow in which the nut still advanced.
     pub peak_torque_nut_advancing: Option<Torque>,
+    /// Twist at the end of the clip (the last blow's residual twist; without blows, the
+    /// twist at the last sample).
+    pub residual_twist_end: Option<Angle>,
 }
 
 /// Computes every blow's metrics and the summary.
@@ -189,6 +194,7 @@ pub fn blow_metrics(
                 let f = trace.frames.get(i)?;
                 Some(f.saturating_sub(frame) as f64 / fps)
             }),
+            nut_onset_frame: nut_onset.and_then(|i| trace.frames.get(i).copied()),
             breakaway_twist,
             breakaway_torque: torque(breakaway_twist),
             nut_advanced: nut_advance.is_some_and(|a| a.deg() >= threshold_deg),
@@ -232,6 +238,10 @@ pub fn blow_metrics(
             .filter(|&i| i + 1 < out.len())
             .map(|i| out[i].index),
         peak_torque_nut_advancing: max_torque(&mut out.iter().filter(|b| b.nut_advanced)),
+        residual_twist_end: n
+            .checked_sub(1)
+            .and_then(|k| level(&twist, k))
+            .map(Angle::from_deg),
     };
     (out, summary, warnings)
 }
