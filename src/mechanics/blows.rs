@@ -9,12 +9,19 @@
 //!   window ending there (a tenth of the median blow length, 1 to 16 samples), so that the
 //!   angle noise of one frame does not become the advance of a blow, while a drive end still
 //!   springing back is followed rather than averaged.
-//! - Advance = level just before the next blow − level just before this one.
-//! - Peak twist = the largest twist (drive − nut) from the onset up to the next onset. When a
-//!   blow spans 80 samples or more, the twist is first smoothed with a quadratic
-//!   Savitzky–Golay filter of half-width (blow length / 40, at most 8), which keeps the height
-//!   of a peak much better than a moving average does (Savitzky & Golay, *Anal. Chem.* 36
-//!   (1964) 1627–1639), so that the peak is not the largest noise spike.
+//! - Advance = level just before the next blow − level just before this one. The nut is at
+//!   rest between blows, so its level is instead the mean of its whole quiet spell ending
+//!   there (samples that agree with their running mean within 3σ; its motion in the blow
+//!   ends the spell): with frame noise σ and a quiet spell of q frames, the advance's error
+//!   shrinks from σ·√2 to about σ·√(2/q).
+//! - Peak twist = the largest twist (drive − nut) from the onset up to the next onset. So that
+//!   the peak is not the largest noise spike, the twist is first lightly smoothed with a
+//!   quadratic Savitzky–Golay filter of half-width blow length / 40 (at most 8), which keeps
+//!   the height of a peak much better than a moving average does (Savitzky & Golay, *Anal.
+//!   Chem.* 36 (1964) 1627–1639); then the top of the peak (within 20 % of the blow's twist
+//!   range) is fitted with a least-squares parabola, kept only when it fits within the noise
+//!   (otherwise a narrower top, or the smoothed maximum, is used). A top narrower than five
+//!   samples (about 10 frames per blow) is taken as measured.
 //! - Peak torque = stiffness × peak twist, with [`BarSpec::stiffness`] (the calibrated
 //!   stiffness when the rig gives one).
 //! - Residual twist = twist just before the next blow. For the last blow, which has no next
@@ -27,7 +34,7 @@
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
 use crate::mechanics::BarSpec;
-use crate::segment::{Segmentation, degrees, level_at, rest_window};
+use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_window};
 use crate::track::Trace;
 use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
@@ -168,18 +175,31 @@ pub fn blow_metrics(
     let adv_sigma_deg = nut_sigma_deg * (2.0 * (4.0 * mf - 2.0) / (mf * (mf + 1.0))).sqrt();
     let threshold_deg = NUT_STOP_MIN_DEG.max(3.0 * adv_sigma_deg);
 
+    let drive_sigma_deg = seg.drive_noise.map_or(0.0, Angle::deg);
+    let twist_sigma_deg = drive_sigma_deg
+        .hypot(nut_sigma_deg)
+        .max(NOISE_FLOOR_DEG * 2f64.sqrt());
+    let nut_rest = |k: usize, lo: usize| {
+        rest_level(&nut, k, lo, nut_sigma_deg.max(NOISE_FLOOR_DEG)).or_else(|| level(&nut, k))
+    };
     let mut out = Vec::with_capacity(blows.len());
     for (k, b) in blows.iter().enumerate() {
         let before = b.onset.saturating_sub(1);
         let last = b.end - 1;
         let adv = |v: &[Option<f64>]| Some(level(v, last)? - level(v, before)?);
-        let peak_twist = (b.onset..b.end)
-            .filter_map(|i| twist_smooth[i])
-            .max_by(f64::total_cmp)
+        let prev_onset = k.checked_sub(1).map_or(0, |j| blows[j].onset);
+        let nut_before = if b.onset == 0 {
+            level(&nut, 0)
+        } else {
+            nut_rest(before, prev_onset)
+        };
+        let peak_twist = peak_twist_deg(&twist, &twist_smooth, b.onset, b.end, twist_sigma_deg)
             .map(Angle::from_deg);
         let nut_onset = b.nut_onset.filter(|&i| i >= b.onset && i < b.end);
         let breakaway_twist = nut_onset.and_then(|i| twist_smooth[i]).map(Angle::from_deg);
-        let nut_advance = adv(&nut).map(Angle::from_deg);
+        let nut_advance = nut_rest(last, b.onset)
+            .zip(nut_before)
+            .map(|(a, z)| Angle::from_deg(a - z));
         let frame = trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64);
         out.push(BlowMetrics {
             index: k + 1,
@@ -205,6 +225,11 @@ pub fn blow_metrics(
         let first = v.iter().flatten().next()?;
         Some(Angle::from_deg(level(v, n.checked_sub(1)?)? - first))
     };
+    let nut_total = n.checked_sub(1).and_then(|k| {
+        let first = nut.iter().flatten().next()?;
+        let lo = blows.last().map_or(0, |b| b.onset);
+        Some(Angle::from_deg(nut_rest(k, lo)? - first))
+    });
     let max_torque = |it: &mut dyn Iterator<Item = &BlowMetrics>| {
         it.filter_map(|b| b.peak_torque)
             .max_by(|a, b| a.nm().total_cmp(&b.nm()))
@@ -217,7 +242,7 @@ pub fn blow_metrics(
         blow_rate_per_min: seg.rate_per_min,
         blow_rate_spread_per_min: seg.rate_spread_per_min,
         drive_total: total(&drive),
-        nut_total: total(&nut),
+        nut_total,
         stiffness,
         stiffness_source: bar.map(|b| {
             if b.calibrated_stiffness_nm_per_deg.is_some() {
@@ -246,6 +271,31 @@ pub fn blow_metrics(
     (out, summary, warnings)
 }
 
+/// The nut's rest level at sample `k`: the mean of the longest run of measured samples
+/// ending at `k` (and not before `lo`) that all agree with their running mean within
+/// 3σ·√(1 + 1/count). A nut at rest between blows is averaged over its whole quiet spell;
+/// its motion within the blow ends the run, so the motion never enters the mean. None when
+/// `[lo, k]` holds no measured sample.
+fn rest_level(v: &[Option<f64>], k: usize, lo: usize, sigma_deg: f64) -> Option<f64> {
+    if k >= v.len() || lo > k {
+        return None;
+    }
+    let (mut sum, mut count) = (0.0, 0usize);
+    for i in (lo..=k).rev() {
+        let Some(y) = v[i] else { continue };
+        if count > 0 {
+            let mean = sum / count as f64;
+            let tol = 3.0 * sigma_deg * (1.0 + 1.0 / count as f64).sqrt();
+            if (y - mean).abs() > tol {
+                break;
+            }
+        }
+        sum += y;
+        count += 1;
+    }
+    (count > 0).then(|| sum / count as f64)
+}
+
 /// Quadratic Savitzky–Golay smoothing with half-width `h` (window 2h+1), applied where the
 /// whole window is measured; other samples are left as measured. Coefficients
 /// cⱼ = (3(3h²+3h−1) − 15j²) / ((2h−1)(2h+1)(2h+3)) (Savitzky & Golay 1964, quadratic
@@ -254,29 +304,146 @@ fn savitzky_golay(v: &[Option<f64>], h: usize) -> Vec<Option<f64>> {
     if h == 0 {
         return v.to_vec();
     }
+    let c = sg_coefficients(h);
+    (0..v.len()).map(|i| sg_at(v, i, &c).or(v[i])).collect()
+}
+
+/// Quadratic Savitzky–Golay smoothing coefficients for half-width `h` (see
+/// [`savitzky_golay`]).
+fn sg_coefficients(h: usize) -> Vec<f64> {
     let hf = h as f64;
     let den = (2.0 * hf - 1.0) * (2.0 * hf + 1.0) * (2.0 * hf + 3.0);
-    let c: Vec<f64> = (0..=2 * h)
+    (0..=2 * h)
         .map(|j| {
             let jf = j as f64 - hf;
             (3.0 * (3.0 * hf * hf + 3.0 * hf - 1.0) - 15.0 * jf * jf) / den
         })
-        .collect();
-    (0..v.len())
-        .map(|i| {
-            if i < h || i + h >= v.len() {
-                return v[i];
-            }
-            let mut acc = 0.0;
-            for (j, cj) in c.iter().enumerate() {
-                match v[i + j - h] {
-                    Some(y) => acc += cj * y,
-                    None => return v[i],
-                }
-            }
-            Some(acc)
-        })
         .collect()
+}
+
+/// The smoothed value at `i` with coefficients `c` (window 2h+1 = `c.len()`), None when
+/// the window leaves the trace or holds a lost sample.
+fn sg_at(v: &[Option<f64>], i: usize, c: &[f64]) -> Option<f64> {
+    let h = c.len() / 2;
+    if i < h || i + h >= v.len() {
+        return None;
+    }
+    c.iter()
+        .enumerate()
+        .try_fold(0.0, |acc, (j, cj)| Some(acc + cj * v[i + j - h]?))
+}
+
+/// The peak twist of one blow `[a, b)`, degrees. The top of the twist peak (the samples,
+/// around the highest lightly smoothed one, within 20 % of the blow's twist range below
+/// it) is fitted by a least-squares parabola and its highest value taken, so that every
+/// sample of the top averages out frame noise. The fit is kept only when its residuals are
+/// no larger than 1.5 × the twist noise `sigma_deg` (a sharp or ringing top is not a
+/// parabola); otherwise the top 10 %, then 5 %, is tried, and finally the lightly smoothed
+/// maximum is used, or the raw maximum when that stands more than 2σ above it (a top too
+/// sharp for the smoothing).
+fn peak_twist_deg(
+    raw: &[Option<f64>],
+    smooth: &[Option<f64>],
+    a: usize,
+    b: usize,
+    sigma_deg: f64,
+) -> Option<f64> {
+    let (mut top, mut peak) = (None, f64::NEG_INFINITY);
+    let mut low = f64::INFINITY;
+    for (i, v) in smooth.iter().enumerate().take(b).skip(a) {
+        if let Some(v) = *v {
+            low = low.min(v);
+            if v > peak {
+                peak = v;
+                top = Some(i);
+            }
+        }
+    }
+    let top = top?;
+    for frac in [0.2, 0.1, 0.05] {
+        let floor = peak - frac * (peak - low);
+        let above = |i: usize| smooth[i].is_some_and(|v| v >= floor);
+        let mut l = top;
+        while l > a && above(l - 1) {
+            l -= 1;
+        }
+        let mut r = top;
+        while r + 1 < b && above(r + 1) {
+            r += 1;
+        }
+        if r - l + 1 < 5 {
+            break;
+        }
+        if let Some((best, rms)) = parabola_top(raw, l, r)
+            && rms <= 1.5 * sigma_deg
+        {
+            return Some(best);
+        }
+    }
+    // No parabola fits: the lightly smoothed maximum, unless the raw maximum stands more
+    // than 2σ above it (a top too sharp for the smoothing, seen above the noise).
+    let raw_peak = raw[a..b].iter().flatten().copied().max_by(f64::total_cmp)?;
+    Some(if raw_peak - peak > 2.0 * sigma_deg {
+        raw_peak
+    } else {
+        peak
+    })
+}
+
+/// Least-squares parabola through the measured samples of `v[l..=r]`: its highest value
+/// within `[l, r]` (the vertex when it lies inside, else the higher end) and the RMS of the
+/// residuals. None with fewer than five measured samples or a singular fit.
+fn parabola_top(v: &[Option<f64>], l: usize, r: usize) -> Option<(f64, f64)> {
+    let mid = (l + r) as f64 / 2.0;
+    let pts: Vec<(f64, f64)> = (l..=r)
+        .filter_map(|i| Some((i as f64 - mid, v[i]?)))
+        .collect();
+    if pts.len() < 5 {
+        return None;
+    }
+    // Normal equations for y = c0 + c1·x + c2·x².
+    let mut s = [0.0f64; 5];
+    let mut t = [0.0f64; 3];
+    for &(x, y) in &pts {
+        let mut p = 1.0;
+        for (k, sk) in s.iter_mut().enumerate() {
+            *sk += p;
+            if k < 3 {
+                t[k] += p * y;
+            }
+            p *= x;
+        }
+    }
+    let m = [[s[0], s[1], s[2]], [s[1], s[2], s[3]], [s[2], s[3], s[4]]];
+    let det = |m: &[[f64; 3]; 3]| {
+        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+    };
+    let d = det(&m);
+    if d.abs() < 1e-12 {
+        return None;
+    }
+    // Cramer's rule.
+    let mut c = [0.0f64; 3];
+    for (k, ck) in c.iter_mut().enumerate() {
+        let mut mk = m;
+        for row in 0..3 {
+            mk[row][k] = t[row];
+        }
+        *ck = det(&mk) / d;
+    }
+    let f = |x: f64| c[0] + c[1] * x + c[2] * x * x;
+    let (xl, xr) = (l as f64 - mid, r as f64 - mid);
+    let mut best = f(xl).max(f(xr));
+    if c[2] < 0.0 {
+        let xv = -c[1] / (2.0 * c[2]);
+        if (xl..=xr).contains(&xv) {
+            best = best.max(f(xv));
+        }
+    }
+    let rms = (pts.iter().map(|&(x, y)| (y - f(x)).powi(2)).sum::<f64>() / pts.len() as f64).sqrt();
+    (best.is_finite() && rms.is_finite()).then_some((best, rms))
 }
 
 #[cfg(test)]
