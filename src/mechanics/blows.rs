@@ -118,7 +118,8 @@ pub struct Summary {
     /// Highest peak torque / rating.
     pub peak_to_rating: Option<f64>,
     /// A blow whose nut advance is below this counts as the nut not turning:
-    /// max([`NUT_STOP_MIN_DEG`], 3 × the noise of one blow's nut advance).
+    /// max([`NUT_STOP_MIN_DEG`], 3 × the noise of one blow's nut advance), that noise being
+    /// σ_nut·√(2/q) for rest levels averaged over q = half a typical blow.
     pub nut_stop_threshold: Angle,
     /// Number of blows in which the nut advanced at least the threshold.
     pub nut_advancing_blows: usize,
@@ -169,10 +170,11 @@ pub fn blow_metrics(
     let fps = trace.time_base.fps_hz();
     let level = |v: &[Option<f64>], k: usize| level_at(v, k, m);
 
-    // Noise of one advance (difference of two line-fit levels): σ·√(2·(4m−2)/(m(m+1))).
+    // Noise of one nut advance: the difference of two rest levels, each a mean over a quiet
+    // spell taken as half a typical blow (at least one sample): σ·√(2/q).
     let nut_sigma_deg = seg.nut_noise.map_or(0.0, Angle::deg);
-    let mf = m as f64;
-    let adv_sigma_deg = nut_sigma_deg * (2.0 * (4.0 * mf - 2.0) / (mf * (mf + 1.0))).sqrt();
+    let quiet = (typical_len / 2.0).max(1.0);
+    let adv_sigma_deg = nut_sigma_deg * (2.0 / quiet).sqrt();
     let threshold_deg = NUT_STOP_MIN_DEG.max(3.0 * adv_sigma_deg);
 
     let drive_sigma_deg = seg.drive_noise.map_or(0.0, Angle::deg);
@@ -618,6 +620,63 @@ mod tests {
         let (b, s, _) = blow_metrics(&trace, &find_blows(&trace), None);
         assert!(b.is_empty());
         assert_relative_eq!(s.drive_total.unwrap().deg(), 0.0);
+    }
+
+    mod props {
+        use super::*;
+        use proptest::prelude::*;
+
+        proptest! {
+            /// Any trace, segmented by `find_blows`: never a panic, one metric per blow in
+            /// order, finite numbers, and torque = stiffness × twist.
+            #[test]
+            fn metrics_never_panic_and_follow_the_blows(
+                v in prop::collection::vec(
+                    (prop::option::of(-500.0f64..500.0), prop::option::of(-500.0f64..500.0)),
+                    0..250,
+                ),
+                with_bar in prop::bool::ANY,
+            ) {
+                let n = v.len();
+                let trace = Trace {
+                    time_base: TimeBase::from_fps(3000.0, "t").unwrap(),
+                    frames: (0..n as u64).collect(),
+                    drive: v.iter().map(|p| p.0.map(Angle::from_deg)).collect(),
+                    nut: v.iter().map(|p| p.1.map(Angle::from_deg)).collect(),
+                    drive_confidence: vec![1.0; n],
+                    nut_confidence: vec![1.0; n],
+                    drive_zero_screen: None,
+                    nut_zero_screen: None,
+                };
+                let b = bar();
+                let seg = find_blows(&trace);
+                let (m, s, _) = blow_metrics(&trace, &seg, with_bar.then_some(&b));
+                prop_assert_eq!(m.len(), seg.blows.len());
+                prop_assert_eq!(s.blow_count, m.len());
+                for (k, x) in m.iter().enumerate() {
+                    prop_assert_eq!(x.index, k + 1);
+                    prop_assert_eq!(x.frame, seg.blows[k].onset as u64);
+                    for a in [x.drive_advance, x.nut_advance, x.peak_twist, x.residual_twist]
+                        .into_iter()
+                        .flatten()
+                    {
+                        prop_assert!(a.rad().is_finite());
+                    }
+                    match (x.peak_twist, x.peak_torque) {
+                        (Some(t), Some(q)) => {
+                            prop_assert!(with_bar);
+                            prop_assert!((q.nm() - 50.0 * t.deg()).abs() <= 1e-9 * q.nm().abs().max(1.0));
+                        }
+                        (_, None) => prop_assert!(!with_bar || x.peak_twist.is_none()),
+                        (None, Some(_)) => prop_assert!(false, "torque without twist"),
+                    }
+                }
+                if let Some(k) = s.nut_stopped_after_blow {
+                    prop_assert!(k >= 1 && k < m.len());
+                    prop_assert!(m[k..].iter().all(|b| !b.nut_advanced));
+                }
+            }
+        }
     }
 
     #[test]
