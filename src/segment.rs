@@ -29,16 +29,21 @@
 //!    sees only the few steepest rises (for example across gaps). When no scale qualifies,
 //!    the one with the best Qₛ/σᵤ is used.
 //! 4. **Rises.** A rise is a run of uₛ ≥ τ_lo containing a sample ≥ τ_hi, with
-//!    τ_hi = max([`HI_FRACTION`]·Qₛ, 5σᵤ) and τ_lo = max(τ_hi/2, 3σᵤ): the two thresholds
-//!    (hysteresis) stop noise from splitting one rise into several. Its amplitude is the
-//!    drive end's climb from the trough before the run to the peak after it.
-//! 5. **Impacts, not ringing.** Rises smaller than [`AMP_FRACTION`] of the typical blow
-//!    amplitude (the 75th percentile of all rises) are ringing or noise and are dropped.
-//!    Then, with P the median spacing of what is left, of two rises closer than
-//!    [`REFRACTORY_FRACTION`]·P only the larger is kept (a blow's ringing follows it within
-//!    a fraction of the blow interval; the tool's rate jitters far less than that). If the
-//!    window s turns out longer than P/3 the rises would blur into each other, so detection
-//!    is repeated at the largest scale ≤ P/3.
+//!    τ_hi = max([`HI_FRACTION`]·Q₁₀, 5σᵤ) and τ_lo = max(τ_hi/2, 3σᵤ), where Q₁₀ is the 10th
+//!    percentile of the run maxima of step 3 (low, so that weak blows after strong ones — a
+//!    nut that ran freely and then tightened — still count). The two thresholds
+//!    (hysteresis) stop noise from splitting one rise into several. A rise's amplitude is
+//!    the drive end's climb from the trough before the run to the peak after it; rises
+//!    under 4σᵤ are dropped.
+//! 5. **Impacts, not ringing.** The blow interval P is first taken as the median spacing of
+//!    the strong rises (at least [`AMP_FRACTION`] of the 75th percentile of amplitudes),
+//!    which are blows whatever else is there. A rise smaller than [`AMP_FRACTION`] of a rise
+//!    that started less than [`REFRACTORY_FRACTION`]·P before it is the ringing of that blow
+//!    and is dropped; a weak blow a whole interval after a strong one is kept. Then, with P
+//!    the median spacing of what is left, of two rises closer than
+//!    [`REFRACTORY_FRACTION`]·P only the larger is kept (the tool's rate jitters far less
+//!    than that). If the window s turns out longer than P/3 the rises would blur into each
+//!    other, so detection is repeated at the largest scale ≤ P/3.
 //! 6. **Onset.** The rest level is the median of the s + 1 measured samples ending at the
 //!    trough. From the trough, the onset is the first sample more than max(3σ, 10 % of the
 //!    rise) above the rest level, walked back while the previous sample is still more than
@@ -100,7 +105,8 @@ pub const PEAK_Z: f64 = 6.0;
 pub const CLEAR_Z: f64 = 10.0;
 /// Upper hysteresis threshold as a fraction of the blow rise.
 pub const HI_FRACTION: f64 = 0.35;
-/// Rises below this fraction of the typical blow amplitude are not blows.
+/// A rise below this fraction of a rise shortly before it is that blow's ringing; also the
+/// fraction of the 75th-percentile amplitude that makes a rise surely a blow.
 pub const AMP_FRACTION: f64 = 0.3;
 /// Two blows closer than this fraction of the median interval are one blow and its ringing.
 pub const REFRACTORY_FRACTION: f64 = 0.5;
@@ -308,6 +314,11 @@ fn rise_over(x: &[f64], s: usize) -> Vec<f64> {
 
 /// The blow rise Qₛ at scale s: median of the run maxima of uₛ above `PEAK_Z`·σᵤ.
 fn blow_rise(u: &[f64], sigma_u: f64) -> Option<f64> {
+    run_maxima_quantile(u, sigma_u, 0.5)
+}
+
+/// The `q` quantile of the run maxima of uₛ above `PEAK_Z`·σᵤ.
+fn run_maxima_quantile(u: &[f64], sigma_u: f64, q: f64) -> Option<f64> {
     let floor = PEAK_Z * sigma_u;
     let mut maxima = Vec::new();
     let mut run_max: Option<f64> = None;
@@ -319,7 +330,7 @@ fn blow_rise(u: &[f64], sigma_u: f64) -> Option<f64> {
         }
     }
     maxima.extend(run_max);
-    median(&maxima)
+    quantile(&maxima, q)
 }
 
 /// Onsets of every blow in the drive angle `raw` (degrees, gap-filled copy `x`) with noise
@@ -397,7 +408,7 @@ fn rises_at(x: &[f64], s: usize, sigma: f64) -> Vec<Rise> {
     let n = x.len();
     let sigma_u = sigma * 2f64.sqrt();
     let u = rise_over(x, s);
-    let Some(q) = blow_rise(&u, sigma_u) else {
+    let Some(q) = run_maxima_quantile(&u, sigma_u, 0.1) else {
         return Vec::new();
     };
     let hi = (HI_FRACTION * q).max(5.0 * sigma_u);
@@ -448,11 +459,32 @@ fn rises_at(x: &[f64], s: usize, sigma: f64) -> Vec<Rise> {
             _ => rises.push(rise),
         }
     }
-    // Ringing and noise: far smaller than a typical blow.
+    rises.retain(|r| r.amp >= 4.0 * sigma_u);
+    // Ringing: far smaller than the blow it follows, and within half a blow interval of it.
+    // The interval is taken from the strong rises (at least AMP_FRACTION of the 75th
+    // percentile), which are blows whatever else is there.
     let amps: Vec<f64> = rises.iter().map(|r| r.amp).collect();
     if let Some(typical) = quantile(&amps, 0.75) {
-        let floor = (AMP_FRACTION * typical).max(4.0 * sigma_u);
-        rises.retain(|r| r.amp >= floor);
+        let strong: Vec<Rise> = rises
+            .iter()
+            .copied()
+            .filter(|r| r.amp >= AMP_FRACTION * typical)
+            .collect();
+        let reach = median_spacing(&strong)
+            .map_or(usize::MAX, |p| (REFRACTORY_FRACTION * p).ceil() as usize);
+        let mut kept: Vec<Rise> = Vec::with_capacity(rises.len());
+        for r in rises {
+            let parent = kept
+                .iter()
+                .rev()
+                .take_while(|k| r.trough - k.trough < reach)
+                .map(|k| k.amp)
+                .fold(0.0, f64::max);
+            if r.amp >= AMP_FRACTION * parent {
+                kept.push(r);
+            }
+        }
+        rises = kept;
     }
     // Refractory: a blow and its ringing, twice with the refreshed median interval.
     for _ in 0..2 {
@@ -611,6 +643,10 @@ pub(crate) mod tests {
         pub jitter: f64,
         pub gaps: usize,
         pub seed: u64,
+        /// From this blow on (0-based), rise, spring-back and nut advance are scaled by
+        /// `late_scale` (a nut that runs freely first and then tightens).
+        pub late_from: usize,
+        pub late_scale: f64,
     }
 
     impl Scene {
@@ -628,6 +664,8 @@ pub(crate) mod tests {
                 jitter: 0.0,
                 gaps: 0,
                 seed: 7,
+                late_from: usize::MAX,
+                late_scale: 1.0,
             }
         }
 
@@ -645,6 +683,11 @@ pub(crate) mod tests {
             let back_len = ((self.period / 3.0) as usize).max(1);
             for (k, &o) in onsets.iter().enumerate() {
                 let next = onsets.get(k + 1).copied().unwrap_or(n);
+                let g = if k >= self.late_from {
+                    self.late_scale
+                } else {
+                    1.0
+                };
                 for i in o..n {
                     let tau = (i - o + 1) as f64;
                     // Drive: rise then spring-back (both permanent offsets from here on).
@@ -662,7 +705,7 @@ pub(crate) mod tests {
                     } else {
                         after / back_len as f64
                     };
-                    drive[i] += self.amp_deg * up - self.back_deg * back;
+                    drive[i] += g * (self.amp_deg * up - self.back_deg * back);
                     // Nut: advances over `rise` samples after its lag.
                     let nl = tau - self.nut_lag as f64;
                     let nu = if nl <= 0.0 {
@@ -672,7 +715,7 @@ pub(crate) mod tests {
                     } else {
                         nl / r
                     };
-                    nut[i] += self.nut_deg * nu;
+                    nut[i] += g * self.nut_deg * nu;
                 }
                 let _ = next;
             }
@@ -761,6 +804,25 @@ pub(crate) mod tests {
                     &format!("noisy, {period} per blow, seed {seed}"),
                 );
             }
+        }
+    }
+
+    #[test]
+    fn weak_blows_after_strong_ones_are_all_found() {
+        // Free-running nut first (blows 1-8 rise 30°), then a tight joint (blows 9-12 rise
+        // 3°): a tenth of the early rises, and only a third of the blows.
+        for period in [17.0, 40.0, 100.0, 400.0] {
+            let mut sc = Scene::new(period);
+            sc.amp_deg = 30.0;
+            sc.back_deg = 5.0;
+            sc.nut_deg = 20.0;
+            sc.late_from = 8;
+            sc.late_scale = 0.1;
+            sc.noise_deg = 0.05;
+            let (trace, truth) = sc.build();
+            let seg = find_blows(&trace);
+            let tol = ((period / 20.0).ceil() as usize).max(2);
+            assert_matches(&seg.blows, &truth, tol, &format!("weak late, {period}"));
         }
     }
 
