@@ -35,15 +35,18 @@
 //!    (hysteresis) stop noise from splitting one rise into several. A rise's amplitude is
 //!    the drive end's climb from the trough before the run to the peak after it; rises
 //!    under 4σᵤ are dropped.
-//! 5. **Impacts, not ringing.** The blow interval P is first taken as the median spacing of
-//!    the strong rises (at least [`AMP_FRACTION`] of the 75th percentile of amplitudes),
-//!    which are blows whatever else is there. A rise smaller than [`AMP_FRACTION`] of a rise
-//!    that started less than [`REFRACTORY_FRACTION`]·P before it is the ringing of that blow
-//!    and is dropped; a weak blow a whole interval after a strong one is kept. Then, with P
-//!    the median spacing of what is left, of two rises closer than
-//!    [`REFRACTORY_FRACTION`]·P only the larger is kept (the tool's rate jitters far less
-//!    than that). If the window s turns out longer than P/3 the rises would blur into each
-//!    other, so detection is repeated at the largest scale ≤ P/3.
+//! 5. **Impacts, not ringing.** The reference amplitude is the amplitude-weighted median
+//!    of the rises (the size below which half the total climb lies), so that many small
+//!    ringing rises after each blow do not drag it down. The blow interval P is the median
+//!    spacing of the strong rises (at least [`STRONG_FRACTION`] of the reference): blows,
+//!    whatever ringing, rebound or weak blows are also there. Of two rises closer than
+//!    [`REFRACTORY_FRACTION`]·P only the larger is kept: a blow's ringing follows it within
+//!    a fraction of the interval, and the tool's rate jitters far less than half an
+//!    interval. A rise below [`MIN_FRACTION`] of the reference is never a blow (the tail of
+//!    a long ring); a weak blow, a tenth of the strong ones, a whole interval after a strong
+//!    one is kept. These steps are repeated three times with the reference refreshed from
+//!    the survivors. If the window s turns out longer than P/3 the rises would blur into
+//!    each other, so detection is repeated at the largest scale ≤ P/3.
 //! 6. **Onset.** The rest level is the median of the s + 1 measured samples ending at the
 //!    trough. From the trough, the onset is the first sample more than max(3σ, 10 % of the
 //!    rise) above the rest level, walked back while the previous sample is still more than
@@ -105,9 +108,12 @@ pub const PEAK_Z: f64 = 6.0;
 pub const CLEAR_Z: f64 = 10.0;
 /// Upper hysteresis threshold as a fraction of the blow rise.
 pub const HI_FRACTION: f64 = 0.35;
-/// A rise below this fraction of a rise shortly before it is that blow's ringing; also the
-/// fraction of the 75th-percentile amplitude that makes a rise surely a blow.
-pub const AMP_FRACTION: f64 = 0.3;
+/// A rise below this fraction of the amplitude-weighted median is not a blow (the tail of a
+/// ring after the spring-back, a tremor); a tenth, as when a free-running nut tightens, is.
+pub const MIN_FRACTION: f64 = 0.05;
+/// A rise of at least this fraction of the amplitude-weighted median is surely a blow, and
+/// sets the blow interval.
+pub const STRONG_FRACTION: f64 = 0.6;
 /// Two blows closer than this fraction of the median interval are one blow and its ringing.
 pub const REFRACTORY_FRACTION: f64 = 0.5;
 /// Intervals further than this fraction from the median interval are left out of the blow
@@ -460,40 +466,24 @@ fn rises_at(x: &[f64], s: usize, sigma: f64) -> Vec<Rise> {
         }
     }
     rises.retain(|r| r.amp >= 4.0 * sigma_u);
-    // Ringing: far smaller than the blow it follows, and within half a blow interval of it.
-    // The interval is taken from the strong rises (at least AMP_FRACTION of the 75th
-    // percentile), which are blows whatever else is there.
-    let amps: Vec<f64> = rises.iter().map(|r| r.amp).collect();
-    if let Some(typical) = quantile(&amps, 0.75) {
+    // Ringing and rebounds: of two rises closer than half a blow interval only the larger
+    // is a blow. The interval comes from the strong rises (at least STRONG_FRACTION of the
+    // amplitude-weighted median), which are blows whatever else is there. The reference is
+    // refreshed from the survivors, three times (each pass only removes rises).
+    for _ in 0..3 {
+        let amps: Vec<f64> = rises.iter().map(|r| r.amp).collect();
+        let Some(typical) = amplitude_weighted_median(&amps) else {
+            break;
+        };
+        rises.retain(|r| r.amp >= MIN_FRACTION * typical);
         let strong: Vec<Rise> = rises
             .iter()
             .copied()
-            .filter(|r| r.amp >= AMP_FRACTION * typical)
+            .filter(|r| r.amp >= STRONG_FRACTION * typical)
             .collect();
-        let reach = median_spacing(&strong)
-            .map_or(usize::MAX, |p| (REFRACTORY_FRACTION * p).ceil() as usize);
-        let mut kept: Vec<Rise> = Vec::with_capacity(rises.len());
-        for r in rises {
-            let parent = kept
-                .iter()
-                .rev()
-                .take_while(|k| r.trough - k.trough < reach)
-                .map(|k| k.amp)
-                .fold(0.0, f64::max);
-            if r.amp >= AMP_FRACTION * parent {
-                kept.push(r);
-            }
-        }
-        rises = kept;
-    }
-    // Refractory: a blow and its ringing, twice with the refreshed median interval.
-    for _ in 0..2 {
-        let Some(p) = median_spacing(&rises) else {
+        let Some(p) = median_spacing(&strong).or_else(|| median_spacing(&rises)) else {
             break;
         };
-        if rises.len() < 3 {
-            break;
-        }
         let min_gap = REFRACTORY_FRACTION * p;
         let mut kept: Vec<Rise> = Vec::with_capacity(rises.len());
         for r in rises {
@@ -509,6 +499,27 @@ fn rises_at(x: &[f64], s: usize, sigma: f64) -> Vec<Rise> {
         rises = kept;
     }
     rises
+}
+
+/// The amplitude-weighted median: the amplitude below which half of the total amplitude
+/// lies. Many small ringing rises carry little total amplitude, so this stays at the size
+/// of the blows even when ringing rises outnumber them.
+fn amplitude_weighted_median(amps: &[f64]) -> Option<f64> {
+    let mut a: Vec<f64> = amps
+        .iter()
+        .copied()
+        .filter(|x| x.is_finite() && *x > 0.0)
+        .collect();
+    a.sort_by(f64::total_cmp);
+    let total: f64 = a.iter().sum();
+    let mut acc = 0.0;
+    for &x in &a {
+        acc += x;
+        if acc >= 0.5 * total {
+            return Some(x);
+        }
+    }
+    a.last().copied()
 }
 
 /// First index of the largest value in `x[a..=b]`.
@@ -647,6 +658,9 @@ pub(crate) mod tests {
         /// `late_scale` (a nut that runs freely first and then tightens).
         pub late_from: usize,
         pub late_scale: f64,
+        /// Amplitude of a decaying ring on the drive end after each rise, degrees (period
+        /// twice the rise time, decaying by e every period).
+        pub ring_deg: f64,
     }
 
     impl Scene {
@@ -666,6 +680,7 @@ pub(crate) mod tests {
                 seed: 7,
                 late_from: usize::MAX,
                 late_scale: 1.0,
+                ring_deg: 0.0,
             }
         }
 
@@ -705,7 +720,15 @@ pub(crate) mod tests {
                     } else {
                         after / back_len as f64
                     };
-                    drive[i] += g * (self.amp_deg * up - self.back_deg * back);
+                    let ring = if after > 0.0 {
+                        let period = 2.0 * r;
+                        self.ring_deg
+                            * (-after / period).exp()
+                            * (2.0 * std::f64::consts::PI * after / period).sin()
+                    } else {
+                        0.0
+                    };
+                    drive[i] += g * (self.amp_deg * up - self.back_deg * back + ring);
                     // Nut: advances over `rise` samples after its lag.
                     let nl = tau - self.nut_lag as f64;
                     let nu = if nl <= 0.0 {
@@ -823,6 +846,28 @@ pub(crate) mod tests {
             let seg = find_blows(&trace);
             let tol = ((period / 20.0).ceil() as usize).max(2);
             assert_matches(&seg.blows, &truth, tol, &format!("weak late, {period}"));
+        }
+    }
+
+    #[test]
+    fn ringing_after_each_blow_is_not_a_blow() {
+        // A ring of 1.5° (30 % of the 5° rise) after every blow, whose upswings are as fast
+        // as the rise itself.
+        for period in [40.0, 100.0, 400.0] {
+            for noise in [0.0, 0.05] {
+                let mut sc = Scene::new(period);
+                sc.ring_deg = 1.5;
+                sc.noise_deg = noise;
+                let (trace, truth) = sc.build();
+                let seg = find_blows(&trace);
+                let tol = ((period / 20.0).ceil() as usize).max(2);
+                assert_matches(
+                    &seg.blows,
+                    &truth,
+                    tol,
+                    &format!("ringing, {period}, {noise}"),
+                );
+            }
         }
     }
 
