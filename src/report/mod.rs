@@ -142,6 +142,13 @@ pub(crate) mod tests {
         if !with_bar {
             rig.bar = None;
         }
+        analysis_of(trace, rig)
+    }
+
+    /// The analysis stages after tracking, on any trace.
+    pub(crate) fn analysis_of(trace: Trace, rig: crate::rig::Rig) -> Analysis {
+        let n = trace.len();
+        let tb = trace.time_base;
         let segmentation = find_blows(&trace);
         let (blows, summary, mut warnings) = blow_metrics(&trace, &segmentation, rig.bar.as_ref());
         warnings.extend(segmentation.warnings.iter().cloned());
@@ -188,6 +195,43 @@ pub(crate) mod tests {
         // Writing again replaces the files.
         write_outputs(&a, &out).unwrap();
         assert_eq!(fs::read_dir(&out).unwrap().count(), 3);
+    }
+
+    #[test]
+    fn a_clip_without_blows_still_gets_a_complete_report_and_a_warning() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let n = 200;
+        let still = vec![Some(Angle::ZERO); n];
+        let trace = Trace {
+            time_base: TimeBase::from_fps(1000.0, "test").unwrap(),
+            frames: (0..n as u64).collect(),
+            drive: still.clone(),
+            nut: still,
+            drive_confidence: vec![1.0; n],
+            nut_confidence: vec![1.0; n],
+            drive_zero_screen: None,
+            nut_zero_screen: None,
+        };
+        let a = analysis_of(trace, sc.rig());
+        let dir = tempfile::tempdir().unwrap();
+        write_outputs(&a, dir.path()).unwrap();
+        let v: serde_json::Value =
+            serde_json::from_str(&fs::read_to_string(dir.path().join("report.json")).unwrap())
+                .unwrap();
+        assert_eq!(v["summary"]["blow_count"].as_u64(), Some(0));
+        assert!(v["summary"]["blow_rate_per_min"].is_null());
+        assert_eq!(v["blows"].as_array().map(Vec::len), Some(0));
+        assert_eq!(v["trace"]["t_s"].as_array().map(Vec::len), Some(n));
+        assert!(
+            v["warnings"][0]
+                .as_str()
+                .is_some_and(|w| w.contains("0 blow")),
+            "{}",
+            v["warnings"]
+        );
+        let csv = fs::read_to_string(dir.path().join("blows.csv")).unwrap();
+        assert_eq!(csv.lines().count(), 1, "header only");
+        assert!(blow_table(&a).contains("no blows found"));
     }
 
     #[test]
