@@ -55,9 +55,13 @@
 //!    max(3σ, 0.2 % of the rise) above it: the first sample that has visibly left the rest
 //!    level (3σ: a sample at rest passes it about once in 700). Spring-back before the blow ends at the trough, so a drive end
 //!    moving backwards between blows never triggers a blow.
-//! 7. **Nut onset.** Within each blow the nut is taken to have moved when its highest angle
-//!    rises more than max([`NUT_MIN_MOVE_DEG`], 5σ_nut) above its level just before the blow;
-//!    its onset is found as in step 6.
+//! 7. **Nut onset.** The nut rests between blows, so its level before a blow and after it
+//!    are means over its quiet spells (samples that agree with their running mean within
+//!    3σ). It moved in the blow when the settled advance exceeds
+//!    max([`NUT_MIN_MOVE_DEG`], 5 × its noise σ_nut·√(1/q₀ + 1/q₁)), or its highest angle
+//!    rises more than max([`NUT_MIN_MOVE_DEG`], 5σ_nut) above the level before. Its onset is
+//!    found as in step 6, on a trailing mean wide enough to lift the advance 6 noise widths
+//!    above the noise when the advance is small.
 //! 8. **Rate.** Blows per minute = 60 / the mean of the onset intervals that lie within
 //!    [`RATE_SCREEN`] of their median: the median screens out an interval that is not one
 //!    blow (a pause, a blow lost in a gap) as robustly as the median itself, while the mean
@@ -176,8 +180,9 @@ pub fn find_blows(trace: &Trace) -> Segmentation {
         let nut_filled = fill_gaps(&nut);
         for (k, &onset) in onsets.iter().enumerate() {
             let end = onsets.get(k + 1).copied().unwrap_or(n);
+            let prev = k.checked_sub(1).map_or(0, |j| onsets[j]);
             let nut_onset = match (&nut_filled, nut_sigma) {
-                (Some(y), Some(s)) => nut_onset(&nut, y, s, onset, end, &onsets),
+                (Some(y), Some(s)) => nut_onset(&nut, y, s, onset, end, prev),
                 _ => None,
             };
             seg.blows.push(Blow {
@@ -575,26 +580,93 @@ fn dedup_sorted(mut v: Vec<usize>) -> Vec<usize> {
 }
 
 /// The nut's onset within the blow `[onset, end)`, if it moved (step 7 of the module doc).
+/// `prev` is the previous blow's onset (0 for the first blow).
 fn nut_onset(
     raw: &[Option<f64>],
     y: &[f64],
     sigma: f64,
     onset: usize,
     end: usize,
-    onsets: &[usize],
+    prev: usize,
 ) -> Option<usize> {
     if onset >= end || end > y.len() {
         return None;
     }
-    let window = rest_window(onsets, y.len());
-    let base = level_at(raw, onset.saturating_sub(1), window).unwrap_or(y[onset]);
+    let from = onset.saturating_sub(1);
+    let (base, q0) = rest_level(raw, from, prev.min(from), sigma).unwrap_or((y[from], 1));
+    let (after, q1) = rest_level(raw, end - 1, onset, sigma).unwrap_or((y[end - 1], 1));
     let peak = argmax(y, onset, end - 1);
-    let rise = y[peak] - base;
-    if rise <= NUT_MIN_MOVE_DEG.max(5.0 * sigma) {
+    let settled = after - base;
+    let settled_sigma = sigma * (1.0 / q0 as f64 + 1.0 / q1 as f64).sqrt();
+    let moved = settled > NUT_MIN_MOVE_DEG.max(5.0 * settled_sigma)
+        || y[peak] - base > NUT_MIN_MOVE_DEG.max(5.0 * sigma);
+    if !moved {
         return None;
     }
-    let from = onset.saturating_sub(1);
-    Some(leave_level(y, from, base, peak, sigma).max(onset))
+    // A small advance in noisy angles: find the onset on a trailing mean of w samples, wide
+    // enough that the advance stands 6 noise widths clear (a trailing mean only starts to
+    // rise at the step itself, so it does not move the onset earlier).
+    let rise = settled.max(y[peak] - base).max(f64::MIN_POSITIVE);
+    let span = end - from;
+    let w = ((6.0 * sigma / rise).powi(2).ceil() as usize).clamp(1, (span / 4).max(1));
+    if w == 1 {
+        return Some(leave_level(y, from, base, peak, sigma).max(onset));
+    }
+    let ma: Vec<f64> = (from..end)
+        .map(|i| {
+            let a = (i + 1).saturating_sub(w);
+            y[a..=i].iter().sum::<f64>() / (i + 1 - a) as f64
+        })
+        .collect();
+    let top = argmax(&ma, 0, ma.len() - 1);
+    let k = leave_level(&ma, 0, base, top, sigma / (w as f64).sqrt());
+    Some((from + k).max(onset))
+}
+
+/// The nut's rest level at sample `k`: the mean of the longest run of measured samples
+/// ending at `k` (and not before `lo`) that agree with their running mean within
+/// 3σ·√(1 + 1/count), starting from the median of the last three samples; one stray sample
+/// is skipped, two in a row end the run. A nut at rest between blows is averaged over its
+/// whole quiet spell; its motion within the blow ends the run, so the motion never enters
+/// the mean. None when `[lo, k]` holds no measured sample; else the level and the number of
+/// samples averaged.
+pub(crate) fn rest_level(
+    v: &[Option<f64>],
+    k: usize,
+    lo: usize,
+    sigma_deg: f64,
+) -> Option<(f64, usize)> {
+    if k >= v.len() || lo > k {
+        return None;
+    }
+    let mut samples = (lo..=k).rev().filter_map(|i| v[i]);
+    let first: Vec<f64> = samples.by_ref().take(3).collect();
+    // Start from the median of the last three samples, so one noisy sample at `k` does not
+    // set the level.
+    let mut start = first.clone();
+    start.sort_by(f64::total_cmp);
+    let center0 = *start.get(start.len() / 2)?;
+    let (mut sum, mut count, mut misses) = (0.0, 0usize, 0usize);
+    for y in first.into_iter().chain(samples) {
+        let center = if count == 0 {
+            center0
+        } else {
+            sum / count as f64
+        };
+        let tol = 3.0 * sigma_deg * (1.0 + 1.0 / count.max(1) as f64).sqrt();
+        if (y - center).abs() <= tol {
+            sum += y;
+            count += 1;
+            misses = 0;
+        } else {
+            // One stray sample is skipped; two in a row end the quiet spell.
+            misses += 1;
+            if misses == 2 {
+                break;
+            }
+        }
+    }
+    (count > 0).then(|| (sum / count as f64, count))
 }
 
 /// Samples used to estimate a rest level before a blow: a tenth of the median blow length,

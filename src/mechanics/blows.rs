@@ -34,7 +34,7 @@
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
 use crate::mechanics::BarSpec;
-use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_window};
+use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_level, rest_window};
 use crate::track::Trace;
 use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
@@ -182,7 +182,9 @@ pub fn blow_metrics(
         .hypot(nut_sigma_deg)
         .max(NOISE_FLOOR_DEG * 2f64.sqrt());
     let nut_rest = |k: usize, lo: usize| {
-        rest_level(&nut, k, lo, nut_sigma_deg.max(NOISE_FLOOR_DEG)).or_else(|| level(&nut, k))
+        rest_level(&nut, k, lo, nut_sigma_deg.max(NOISE_FLOOR_DEG))
+            .map(|(mean, _)| mean)
+            .or_else(|| level(&nut, k))
     };
     let mut out = Vec::with_capacity(blows.len());
     for (k, b) in blows.iter().enumerate() {
@@ -271,31 +273,6 @@ pub fn blow_metrics(
             .map(Angle::from_deg),
     };
     (out, summary, warnings)
-}
-
-/// The nut's rest level at sample `k`: the mean of the longest run of measured samples
-/// ending at `k` (and not before `lo`) that all agree with their running mean within
-/// 3σ·√(1 + 1/count). A nut at rest between blows is averaged over its whole quiet spell;
-/// its motion within the blow ends the run, so the motion never enters the mean. None when
-/// `[lo, k]` holds no measured sample.
-fn rest_level(v: &[Option<f64>], k: usize, lo: usize, sigma_deg: f64) -> Option<f64> {
-    if k >= v.len() || lo > k {
-        return None;
-    }
-    let (mut sum, mut count) = (0.0, 0usize);
-    for i in (lo..=k).rev() {
-        let Some(y) = v[i] else { continue };
-        if count > 0 {
-            let mean = sum / count as f64;
-            let tol = 3.0 * sigma_deg * (1.0 + 1.0 / count as f64).sqrt();
-            if (y - mean).abs() > tol {
-                break;
-            }
-        }
-        sum += y;
-        count += 1;
-    }
-    (count > 0).then(|| sum / count as f64)
 }
 
 /// Quadratic Savitzky–Golay smoothing with half-width `h` (window 2h+1), applied where the
