@@ -146,6 +146,17 @@ fn lbf_ft(t: Option<Torque>) -> Option<f64> {
     t.map(Torque::lbf_ft).filter(|v| v.is_finite())
 }
 
+/// A confidence as written: 0 to 1, four decimals (an f32 widened to f64 would otherwise
+/// print as 0.8999999761581421).
+fn confidence(c: Option<f32>) -> f64 {
+    let c = f64::from(c.unwrap_or(0.0));
+    if c.is_finite() {
+        (c.clamp(0.0, 1.0) * 1e4).round() / 1e4
+    } else {
+        0.0
+    }
+}
+
 fn finite(v: Option<f64>) -> Option<f64> {
     v.filter(|x| x.is_finite())
 }
@@ -172,10 +183,10 @@ pub fn report(a: &Analysis) -> Report {
             })
             .collect(),
         drive_confidence: (0..n)
-            .map(|i| f64::from(tr.drive_confidence.get(i).copied().unwrap_or(0.0)))
+            .map(|i| confidence(tr.drive_confidence.get(i).copied()))
             .collect(),
         nut_confidence: (0..n)
-            .map(|i| f64::from(tr.nut_confidence.get(i).copied().unwrap_or(0.0)))
+            .map(|i| confidence(tr.nut_confidence.get(i).copied()))
             .collect(),
     };
     let blows = a
