@@ -129,6 +129,9 @@ pub const REFRACTORY_FRACTION: f64 = 0.5;
 /// Intervals further than this fraction from the median interval are left out of the blow
 /// rate (a blow lost in a gap, a pause of the trigger).
 pub const RATE_SCREEN: f64 = 0.25;
+/// Rises in the loosening direction this many times faster than the tightening ones suggest
+/// a reversed `tighten` in the rig.
+pub const REVERSED_SPEED: f64 = 2.0;
 /// Smallest nut rise, degrees, that counts as the nut moving within a blow.
 pub const NUT_MIN_MOVE_DEG: f64 = 0.05;
 
@@ -176,8 +179,22 @@ pub fn find_blows(trace: &Trace) -> Segmentation {
         ..Segmentation::default()
     };
     if let (Some(x), Some(sigma)) = (fill_gaps(&drive), drive_sigma) {
-        let (onsets, scale) = drive_onsets(&drive, &x, sigma);
+        let (onsets, scale, speed) = drive_onsets(&drive, &x, sigma);
         seg.scale_samples = scale;
+        // Rapid steps in the loosening direction, much faster than the tightening ones, mean
+        // the rig's tightening direction is probably reversed (the "blows" found would be
+        // the spring-backs).
+        let reversed: Vec<Option<f64>> = drive.iter().map(|d| d.map(|v| -v)).collect();
+        if let Some(xr) = fill_gaps(&reversed) {
+            let (back, _, back_speed) = drive_onsets(&reversed, &xr, sigma);
+            if back.len() >= 2 && (onsets.len() < 2 || back_speed > REVERSED_SPEED * speed) {
+                seg.warnings.push(Warning::Note(
+                    "the drive mark makes its rapid steps in the loosening direction: check \
+                     \"tighten\" of the marks in the rig (cw or ccw as seen on screen)"
+                        .into(),
+                ));
+            }
+        }
         let nut_filled = fill_gaps(&nut);
         for (k, &onset) in onsets.iter().enumerate() {
             let end = onsets.get(k + 1).copied().unwrap_or(n);
@@ -353,12 +370,12 @@ fn run_maxima_quantile(u: &[f64], sigma_u: f64, q: f64) -> Option<f64> {
 /// Onsets of every blow in the drive angle `raw` (degrees, gap-filled copy `x`) with noise
 /// `sigma`, and the scale used. Rises are looked for among measured samples only, so a rise
 /// hidden partly in a gap still counts as one step; indices are mapped back afterwards.
-fn drive_onsets(raw: &[Option<f64>], x: &[f64], sigma: f64) -> (Vec<usize>, usize) {
+fn drive_onsets(raw: &[Option<f64>], x: &[f64], sigma: f64) -> (Vec<usize>, usize, f64) {
     let idx: Vec<usize> = (0..raw.len()).filter(|&i| raw[i].is_some()).collect();
     let xc: Vec<f64> = idx.iter().map(|&i| x[i]).collect();
     let n = xc.len();
     if n < 3 {
-        return (Vec::new(), 0);
+        return (Vec::new(), 0, 0.0);
     }
     let sigma_u = sigma * 2f64.sqrt();
     let scales: Vec<usize> = SCALES
@@ -383,7 +400,7 @@ fn drive_onsets(raw: &[Option<f64>], x: &[f64], sigma: f64) -> (Vec<usize>, usiz
         })
         .collect();
     let Some(best) = valid.iter().copied().max_by(|a, b| a.1.total_cmp(&b.1)) else {
-        return (Vec::new(), 0);
+        return (Vec::new(), 0, 0.0);
     };
     let n_best = best.2.len();
     let best_ratio = best.1;
@@ -413,7 +430,12 @@ fn drive_onsets(raw: &[Option<f64>], x: &[f64], sigma: f64) -> (Vec<usize>, usiz
             leave_level(x, trough, base, peak, sigma)
         })
         .collect();
-    (dedup_sorted(onsets), s)
+    // Median speed of the rises, degrees per measured sample.
+    let speeds: Vec<f64> = rises
+        .iter()
+        .map(|r| r.amp / (r.peak - r.trough).max(1) as f64)
+        .collect();
+    (dedup_sorted(onsets), s, median(&speeds).unwrap_or(0.0))
 }
 
 /// Median spacing of rise troughs, samples.
@@ -1091,6 +1113,29 @@ pub(crate) mod tests {
         let seg = find_blows(&trace);
         assert_eq!(seg.blows.len(), 1);
         assert!(seg.blows[0].onset.abs_diff(10) <= 2, "{:?}", seg.blows);
+    }
+
+    #[test]
+    fn blows_that_run_backwards_suggest_checking_tighten() {
+        let (mut trace, _) = Scene::new(40.0).build();
+        let seg = find_blows(&trace);
+        assert!(
+            seg.warnings
+                .iter()
+                .all(|w| !w.to_string().contains("\"tighten\"")),
+            "the right way round: no hint"
+        );
+        for d in trace.drive.iter_mut().chain(trace.nut.iter_mut()) {
+            *d = d.map(|a| -a);
+        }
+        let seg = find_blows(&trace);
+        assert!(
+            seg.warnings
+                .iter()
+                .any(|w| w.to_string().contains("\"tighten\"")),
+            "{:?}",
+            seg.warnings
+        );
     }
 
     #[test]

@@ -84,6 +84,13 @@ fn check_blows(sc: &Scenario, noise_deg: f64, gaps: usize, seed: u64, metrics: b
     );
     let trace = trace_from(&truth, noise_deg, gaps, seed);
     let seg = find_blows(&trace);
+    assert!(
+        seg.warnings
+            .iter()
+            .all(|w| !w.to_string().contains("tighten")),
+        "{what}: {:?}",
+        seg.warnings
+    );
     let found: Vec<u64> = seg.blows.iter().map(|b| b.onset as u64).collect();
     let want: Vec<u64> = truth.blows.iter().map(|b| b.frame).collect();
     assert_eq!(
