@@ -69,6 +69,10 @@
 //!    of the rest removes most of the whole-frame rounding of each interval (±1 frame in 10
 //!    frames is ±10 % on one interval). Its spread is the standard deviation of the
 //!    per-interval rates.
+//! 9. **Direction check.** The same search runs on the negated drive angle; if it finds
+//!    blows whose rises are more than [`REVERSED_SPEED`] times faster than the tightening
+//!    ones (or there are none that way), the rig's `tighten` is probably reversed and a
+//!    warning says so: the "blows" found would be the spring-backs.
 
 use crate::track::Trace;
 use crate::units::Angle;
