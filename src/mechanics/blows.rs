@@ -33,7 +33,7 @@
 //!
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
-use crate::mechanics::BarSpec;
+use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_level, rest_window};
 use crate::track::Trace;
 use crate::units::{Angle, Stiffness, Torque};
@@ -73,25 +73,6 @@ pub struct BlowMetrics {
     pub breakaway_torque: Option<Torque>,
     /// The nut's advance in this blow reached the summary's stop threshold.
     pub nut_advanced: bool,
-}
-
-/// Where the stiffness used for torque came from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum StiffnessSource {
-    /// The rig's `calibrated_stiffness_nm_per_deg`.
-    Calibrated,
-    /// Computed from the bar's sections and shear modulus.
-    Computed,
-}
-
-impl StiffnessSource {
-    /// `"calibrated"` or `"computed"`, as written in reports.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            StiffnessSource::Calibrated => "calibrated",
-            StiffnessSource::Computed => "computed",
-        }
-    }
 }
 
 /// Clip-level results.
@@ -428,7 +409,6 @@ fn parabola_top(v: &[Option<f64>], l: usize, r: usize) -> Option<(f64, f64)> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::mechanics::SectionSpec;
     use crate::segment::{Blow, find_blows, tests::Scene};
     use crate::units::TimeBase;
     use approx::assert_relative_eq;
@@ -447,17 +427,14 @@ mod tests {
         }
     }
 
-    /// A bar of calibrated stiffness 50 N·m/deg rated 200 N·m.
+    /// A bar of calibrated stiffness 50 N·m/deg rated 200 N·m (from its rig JSON, as a
+    /// user would write it).
     fn bar() -> BarSpec {
-        BarSpec {
-            sections: vec![SectionSpec::Round {
-                length_mm: 200.0,
-                d_mm: 16.0,
-            }],
-            shear_modulus_gpa: None,
-            rating_nm: Some(200.0),
-            calibrated_stiffness_nm_per_deg: Some(50.0),
-        }
+        serde_json::from_str(
+            r#"{"sections": [{"shape": "round", "length_mm": 200, "d_mm": 16}],
+                "rating_nm": 200, "calibrated_stiffness_nm_per_deg": 50}"#,
+        )
+        .unwrap()
     }
 
     #[test]

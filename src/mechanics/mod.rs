@@ -9,4 +9,25 @@ mod bar;
 mod blows;
 
 pub use bar::{BarSpec, SectionSpec};
-pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, StiffnessSource, Summary, blow_metrics};
+pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, Summary, blow_metrics};
+
+// Stand-in until the bar-report work lands: it defines `StiffnessSource` with the same
+// variants and `as_str`, and this block goes.
+/// Where the stiffness used for torque came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum StiffnessSource {
+    /// The rig's `calibrated_stiffness_nm_per_deg`.
+    Calibrated,
+    /// Computed from the bar's sections and shear modulus.
+    Computed,
+}
+
+impl StiffnessSource {
+    /// `"calibrated"` or `"computed"`, as written in reports.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            StiffnessSource::Calibrated => "calibrated",
+            StiffnessSource::Computed => "computed",
+        }
+    }
+}
