@@ -16,6 +16,6 @@ pub use bar_report::{
     BarJson, BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionJson,
     SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
 };
-pub use blows::{BlowMetrics, Summary, blow_metrics};
+pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, Summary, blow_metrics};
 pub use calibration::{CalibrationFit, CalibrationPair, fit_stiffness, parse_pair, read_pairs_csv};
 pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};

@@ -1,27 +1,258 @@
 //! Stage 5, report: writes `report.json`, `blows.csv` and `trace.csv` (report format v1, every
 //! number with its unit in the key) and formats the per-blow table for the terminal.
+//!
+//! In: an [`Analysis`]. Out: files in an output folder, and text. Each file is written under a
+//! temporary name in the same folder and renamed into place when complete, so an interrupted
+//! run never leaves a half-written file under a final name (a rename within one folder is
+//! atomic on POSIX file systems and replaces the target on Windows).
 
+use std::fs;
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use crate::analyze::Analysis;
-use crate::error::Result;
+use crate::error::{Error, Result};
 
 pub mod overlay;
 pub mod plot;
 
 pub use plot::{write_comparison, write_plots};
 
-/// Writes every output file for one analysis into `dir` and returns their paths.
+mod csv;
+mod json;
+mod table;
+
+pub use json::{BlowJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report};
+pub use table::blow_table;
+
+/// The caution printed and written wherever a torque is shown.
+pub const CAUTION: &str = "A torque estimated from video is a model (bar stiffness × twist), \
+not a calibrated measurement. Finish wheel nuts with a calibrated torque wrench to the vehicle \
+maker's specification.";
+
+/// Writes every output file for one analysis into `dir` (created if missing) and returns
+/// their paths.
 ///
 /// # Errors
-/// [`crate::Error::Io`] naming the file that could not be written.
+/// [`crate::Error::Output`] when `dir` cannot be created, [`crate::Error::Io`] naming the file
+/// that could not be written.
 pub fn write_outputs(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
-    let _ = (analysis, dir);
-    Ok(Vec::new())
+    if dir.exists() && !dir.is_dir() {
+        return Err(Error::Output {
+            path: dir.to_path_buf(),
+            reason: "is a file, not a folder: give --out a folder name".into(),
+        });
+    }
+    fs::create_dir_all(dir).map_err(|e| Error::Output {
+        path: dir.to_path_buf(),
+        reason: format!("cannot create the output folder ({e}): choose another --out"),
+    })?;
+    let report = json::report(analysis);
+    let mut text = serde_json::to_string_pretty(&report).map_err(|e| Error::Output {
+        path: dir.join("report.json"),
+        reason: format!("cannot serialise the report: {e}"),
+    })?;
+    text.push('\n');
+    let mut written = Vec::new();
+    for (name, bytes) in [
+        ("report.json", text.into_bytes()),
+        ("blows.csv", csv::blows_csv(&report).into_bytes()),
+        ("trace.csv", csv::trace_csv(&report).into_bytes()),
+    ] {
+        let path = dir.join(name);
+        write_atomic(&path, &bytes)?;
+        written.push(path);
+    }
+    Ok(written)
 }
 
-/// The per-blow table, summary line and cautions, as text for a terminal.
-pub fn blow_table(analysis: &Analysis) -> String {
-    let _ = analysis;
-    String::new()
+/// Writes `bytes` to `path` through a temporary file in the same folder and a rename.
+///
+/// # Errors
+/// [`crate::Error::Io`] naming the file.
+pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "output".into());
+    let tmp = path.with_file_name(format!(".{name}.{}.partial", std::process::id()));
+    let io = |p: &Path| {
+        let p = p.to_path_buf();
+        move |source| Error::Io { path: p, source }
+    };
+    let result = (|| {
+        let mut f = fs::File::create(&tmp).map_err(io(&tmp))?;
+        f.write_all(bytes).map_err(io(&tmp))?;
+        f.sync_all().map_err(io(&tmp))?;
+        drop(f);
+        fs::rename(&tmp, path).map_err(io(path))
+    })();
+    if result.is_err() {
+        let _ = fs::remove_file(&tmp);
+    }
+    result
+}
+
+/// A number for a table or CSV cell, with `decimals` places; empty when unknown or not
+/// finite.
+pub(crate) fn cell(v: Option<f64>, decimals: usize) -> String {
+    match v {
+        Some(x) if x.is_finite() => format!("{x:.decimals$}"),
+        _ => String::new(),
+    }
+}
+
+#[cfg(test)]
+pub(crate) mod tests {
+    use super::*;
+    use crate::analyze::{Analysis, FpsSource};
+    use crate::decode::{ClipInfo, ClipKind};
+    use crate::mechanics::blow_metrics;
+    use crate::segment::find_blows;
+    use crate::synth::{Scenario, simulate};
+    use crate::track::Trace;
+    use crate::units::{Angle, TimeBase};
+
+    /// An analysis of the `fast-tool` synthetic scene's exact angles (the project's invented
+    /// bench), with the drive lost on a few frames and, optionally, without a bar.
+    pub(crate) fn analysis(with_bar: bool) -> Analysis {
+        let sc = Scenario::preset("fast-tool").unwrap();
+        let truth = simulate(&sc);
+        let n = truth.trace.drive_deg.len();
+        let tb = TimeBase::from_fps(truth.fps, "test").unwrap();
+        let mut drive: Vec<Option<Angle>> = truth
+            .trace
+            .drive_deg
+            .iter()
+            .map(|&d| Some(Angle::from_deg(d)))
+            .collect();
+        drive[3] = None;
+        drive[4] = None;
+        let trace = Trace {
+            time_base: tb,
+            frames: (0..n as u64).collect(),
+            drive,
+            nut: truth
+                .trace
+                .nut_deg
+                .iter()
+                .map(|&d| Some(Angle::from_deg(d)))
+                .collect(),
+            drive_confidence: vec![0.9; n],
+            nut_confidence: vec![0.8; n],
+            drive_zero_screen: None,
+            nut_zero_screen: None,
+        };
+        let mut rig = sc.rig();
+        if !with_bar {
+            rig.bar = None;
+        }
+        analysis_of(trace, rig)
+    }
+
+    /// The analysis stages after tracking, on any trace.
+    pub(crate) fn analysis_of(trace: Trace, rig: crate::rig::Rig) -> Analysis {
+        let n = trace.len();
+        let tb = trace.time_base;
+        let segmentation = find_blows(&trace);
+        let (blows, summary, mut warnings) = blow_metrics(&trace, &segmentation, rig.bar.as_ref());
+        warnings.extend(segmentation.warnings.iter().cloned());
+        Analysis {
+            clip: ClipInfo {
+                path: PathBuf::from("bench/fast-tool"),
+                kind: ClipKind::Memory,
+                frames: n as u64,
+                width: 320,
+                height: 240,
+                bit_depth: 8,
+                container_fps_hz: None,
+                codec: "raw".into(),
+                duration_s: None,
+                warnings: Vec::new(),
+            },
+            rig,
+            time_base: tb,
+            fps_source: FpsSource::Rig,
+            trace,
+            segmentation,
+            blows,
+            summary,
+            warnings,
+        }
+    }
+
+    #[test]
+    fn writes_three_files_into_a_new_folder_and_leaves_no_partials() {
+        let a = analysis(true);
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("nested/out");
+        let written = write_outputs(&a, &out).unwrap();
+        let names: Vec<String> = written
+            .iter()
+            .map(|p| p.file_name().unwrap().to_string_lossy().into_owned())
+            .collect();
+        assert_eq!(names, ["report.json", "blows.csv", "trace.csv"]);
+        let all: Vec<String> = fs::read_dir(&out)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        assert_eq!(all.len(), 3, "{all:?}");
+        // Writing again replaces the files.
+        write_outputs(&a, &out).unwrap();
+        assert_eq!(fs::read_dir(&out).unwrap().count(), 3);
+    }
+
+    #[test]
+    fn a_clip_without_blows_still_gets_a_complete_report_and_a_warning() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let n = 200;
+        let still = vec![Some(Angle::ZERO); n];
+        let trace = Trace {
+            time_base: TimeBase::from_fps(1000.0, "test").unwrap(),
+            frames: (0..n as u64).collect(),
+            drive: still.clone(),
+            nut: still,
+            drive_confidence: vec![1.0; n],
+            nut_confidence: vec![1.0; n],
+            drive_zero_screen: None,
+            nut_zero_screen: None,
+        };
+        let a = analysis_of(trace, sc.rig());
+        let dir = tempfile::tempdir().unwrap();
+        write_outputs(&a, dir.path()).unwrap();
+        let v: serde_json::Value =
+            serde_json::from_str(&fs::read_to_string(dir.path().join("report.json")).unwrap())
+                .unwrap();
+        assert_eq!(v["summary"]["blow_count"].as_u64(), Some(0));
+        assert!(v["summary"]["blow_rate_per_min"].is_null());
+        assert_eq!(v["blows"].as_array().map(Vec::len), Some(0));
+        assert_eq!(v["trace"]["t_s"].as_array().map(Vec::len), Some(n));
+        assert!(
+            v["warnings"][0]
+                .as_str()
+                .is_some_and(|w| w.contains("0 blow")),
+            "{}",
+            v["warnings"]
+        );
+        let csv = fs::read_to_string(dir.path().join("blows.csv")).unwrap();
+        assert_eq!(csv.lines().count(), 1, "header only");
+        assert!(blow_table(&a).contains("no blows found"));
+    }
+
+    #[test]
+    fn an_out_path_that_is_a_file_is_an_error_naming_it() {
+        let a = analysis(true);
+        let dir = tempfile::tempdir().unwrap();
+        let f = dir.path().join("taken");
+        fs::write(&f, b"x").unwrap();
+        let e = write_outputs(&a, &f).unwrap_err().to_string();
+        assert!(e.contains("taken") && e.contains("--out"), "{e}");
+    }
+
+    #[test]
+    fn cells_are_empty_for_null() {
+        assert_eq!(cell(None, 3), "");
+        assert_eq!(cell(Some(f64::NAN), 3), "");
+        assert_eq!(cell(Some(1.23456), 2), "1.23");
+    }
 }

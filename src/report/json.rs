@@ -1,0 +1,411 @@
+//! The `report.json` schema (interface v1 plus extensions) as plain serde structs, and its
+//! construction from an [`Analysis`]. Every number carries its unit in its key; an unknown
+//! value is `null`. The v1 keys of the interface are never renamed or removed.
+
+use serde::{Deserialize, Serialize};
+
+use crate::analyze::{Analysis, FpsSource};
+use crate::units::{Angle, Torque};
+
+/// Version of this report layout, written as `"report_version"`.
+pub const REPORT_VERSION: u32 = 1;
+
+/// The whole `report.json` document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Report {
+    /// Layout version ([`REPORT_VERSION`]).
+    pub report_version: u32,
+    /// Capture rate used for all timing, frames per second.
+    pub fps: f64,
+    /// Number of analysed frames (entries in the trace).
+    pub frames: usize,
+    /// Every warning, one line each.
+    pub warnings: Vec<String>,
+    /// That a torque from video is a model, and what to finish wheel nuts with.
+    pub caution: String,
+    /// The clip analysed.
+    pub clip: String,
+    /// Frames in the whole clip.
+    pub clip_frames: u64,
+    /// Where the capture rate came from: `option` (--fps), `rig` or `container`.
+    pub fps_source: String,
+    /// Per-frame angles.
+    pub trace: TraceJson,
+    /// One entry per blow.
+    pub blows: Vec<BlowJson>,
+    /// Clip-level results.
+    pub summary: SummaryJson,
+}
+
+/// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TraceJson {
+    /// Time, s (clip frame index / capture rate).
+    pub t_s: Vec<f64>,
+    /// Clip frame index.
+    pub frame: Vec<u64>,
+    /// Drive-end angle, degrees, 0 at the first analysed frame, tightening positive.
+    pub drive_deg: Vec<Option<f64>>,
+    /// Nut-end angle, degrees.
+    pub nut_deg: Vec<Option<f64>>,
+    /// drive − nut, degrees.
+    pub twist_deg: Vec<Option<f64>>,
+    /// Tracker confidence of each drive angle, 0 to 1.
+    pub drive_confidence: Vec<f64>,
+    /// Tracker confidence of each nut angle, 0 to 1.
+    pub nut_confidence: Vec<f64>,
+}
+
+/// One entry of `report.json`'s `blows`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BlowJson {
+    /// 1-based blow number.
+    pub index: usize,
+    /// Clip frame index of the drive end's onset.
+    pub frame: u64,
+    /// `frame / fps`, s.
+    pub t_s: f64,
+    /// Drive-end advance from just before this blow to just before the next, degrees.
+    pub drive_advance_deg: Option<f64>,
+    /// Nut-end advance over the same span, degrees.
+    pub nut_advance_deg: Option<f64>,
+    /// Largest twist between this blow and the next, degrees.
+    pub peak_twist_deg: Option<f64>,
+    /// Stiffness × peak twist, N·m.
+    pub peak_torque_nm: Option<f64>,
+    /// Twist just before the next blow (end of clip for the last blow), degrees.
+    pub residual_twist_deg: Option<f64>,
+    /// Drive onset to nut onset, ms (null when the nut did not move).
+    pub nut_lag_ms: Option<f64>,
+    /// Peak torque, lbf·ft.
+    pub peak_torque_lbf_ft: Option<f64>,
+    /// Stiffness × residual twist, N·m.
+    pub residual_torque_nm: Option<f64>,
+    /// Clip frame index of the nut's onset.
+    pub nut_onset_frame: Option<u64>,
+    /// Twist when the nut first moved in this blow, degrees.
+    pub breakaway_twist_deg: Option<f64>,
+    /// Stiffness × breakaway twist, N·m.
+    pub breakaway_torque_nm: Option<f64>,
+    /// The nut advance reached the summary's `nut_stop_threshold_deg`.
+    pub nut_advanced: bool,
+}
+
+/// `report.json`'s `summary`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SummaryJson {
+    /// Number of blows.
+    pub blow_count: usize,
+    /// 60 / median blow interval, blows per minute.
+    pub blow_rate_per_min: Option<f64>,
+    /// Drive end's total rotation, degrees.
+    pub drive_total_deg: Option<f64>,
+    /// Nut end's total rotation, degrees.
+    pub nut_total_deg: Option<f64>,
+    /// Stiffness used for torque, N·m/deg.
+    pub bar_stiffness_nm_per_deg: Option<f64>,
+    /// Highest peak torque over all blows, N·m.
+    pub peak_torque_nm: Option<f64>,
+    /// Standard deviation of the per-interval blow rates, blows per minute.
+    pub blow_rate_spread_per_min: Option<f64>,
+    /// Stiffness used for torque, N·m/rad.
+    pub bar_stiffness_nm_per_rad: Option<f64>,
+    /// `calibrated` (the rig's calibrated_stiffness_nm_per_deg) or `computed` (sections).
+    pub stiffness_source: Option<String>,
+    /// The bar's rated torque, N·m.
+    pub bar_rating_nm: Option<f64>,
+    /// Highest peak torque, lbf·ft.
+    pub peak_torque_lbf_ft: Option<f64>,
+    /// Highest peak torque / rating.
+    pub peak_torque_to_rating_ratio: Option<f64>,
+    /// Per-blow nut advance below which the nut counts as not turning, degrees.
+    pub nut_stop_threshold_deg: f64,
+    /// Blows whose nut advance reached the threshold.
+    pub nut_advancing_blow_count: usize,
+    /// The blow after which the nut stayed below the threshold to the end of the clip.
+    pub nut_stopped_after_blow: Option<usize>,
+    /// Highest peak torque on a blow in which the nut still advanced, N·m.
+    pub peak_torque_nut_advancing_nm: Option<f64>,
+    /// Twist at the end of the clip, degrees.
+    pub residual_twist_end_deg: Option<f64>,
+    /// Estimated angle noise of the drive end (one frame, σ), degrees.
+    pub drive_noise_deg: Option<f64>,
+    /// Estimated angle noise of the nut end (one frame, σ), degrees.
+    pub nut_noise_deg: Option<f64>,
+}
+
+fn deg(a: Option<Angle>) -> Option<f64> {
+    a.map(Angle::deg).filter(|v| v.is_finite())
+}
+
+fn nm(t: Option<Torque>) -> Option<f64> {
+    t.map(Torque::nm).filter(|v| v.is_finite())
+}
+
+fn lbf_ft(t: Option<Torque>) -> Option<f64> {
+    t.map(Torque::lbf_ft).filter(|v| v.is_finite())
+}
+
+/// A confidence as written: 0 to 1, four decimals (an f32 widened to f64 would otherwise
+/// print as 0.8999999761581421).
+fn confidence(c: Option<f32>) -> f64 {
+    let c = f64::from(c.unwrap_or(0.0));
+    if c.is_finite() {
+        (c.clamp(0.0, 1.0) * 1e4).round() / 1e4
+    } else {
+        0.0
+    }
+}
+
+fn finite(v: Option<f64>) -> Option<f64> {
+    v.filter(|x| x.is_finite())
+}
+
+/// Builds the report document for an analysis.
+pub fn report(a: &Analysis) -> Report {
+    let tr = &a.trace;
+    let n = tr.len();
+    let stiffness = a.summary.stiffness;
+    let trace = TraceJson {
+        t_s: (0..n).map(|i| tr.t_s(i)).collect(),
+        frame: tr.frames.clone(),
+        drive_deg: (0..n)
+            .map(|i| deg(tr.drive.get(i).copied().flatten()))
+            .collect(),
+        nut_deg: (0..n)
+            .map(|i| deg(tr.nut.get(i).copied().flatten()))
+            .collect(),
+        twist_deg: (0..n)
+            .map(|i| {
+                let d = tr.drive.get(i).copied().flatten()?;
+                let u = tr.nut.get(i).copied().flatten()?;
+                deg(Some(d - u))
+            })
+            .collect(),
+        drive_confidence: (0..n)
+            .map(|i| confidence(tr.drive_confidence.get(i).copied()))
+            .collect(),
+        nut_confidence: (0..n)
+            .map(|i| confidence(tr.nut_confidence.get(i).copied()))
+            .collect(),
+    };
+    let blows = a
+        .blows
+        .iter()
+        .map(|b| BlowJson {
+            index: b.index,
+            frame: b.frame,
+            t_s: b.t_s,
+            drive_advance_deg: deg(b.drive_advance),
+            nut_advance_deg: deg(b.nut_advance),
+            peak_twist_deg: deg(b.peak_twist),
+            peak_torque_nm: nm(b.peak_torque),
+            residual_twist_deg: deg(b.residual_twist),
+            nut_lag_ms: finite(b.nut_lag_s.map(|s| s * 1e3)),
+            peak_torque_lbf_ft: lbf_ft(b.peak_torque),
+            residual_torque_nm: nm(stiffness.zip(b.residual_twist).map(|(k, t)| k * t)),
+            nut_onset_frame: b.nut_onset_frame,
+            breakaway_twist_deg: deg(b.breakaway_twist),
+            breakaway_torque_nm: nm(b.breakaway_torque),
+            nut_advanced: b.nut_advanced,
+        })
+        .collect();
+    let s = &a.summary;
+    let summary = SummaryJson {
+        blow_count: s.blow_count,
+        blow_rate_per_min: finite(s.blow_rate_per_min),
+        drive_total_deg: deg(s.drive_total),
+        nut_total_deg: deg(s.nut_total),
+        bar_stiffness_nm_per_deg: finite(stiffness.map(|k| k.nm_per_deg())),
+        peak_torque_nm: nm(s.peak_torque),
+        blow_rate_spread_per_min: finite(s.blow_rate_spread_per_min),
+        bar_stiffness_nm_per_rad: finite(stiffness.map(|k| k.nm_per_rad())),
+        stiffness_source: s.stiffness_source.map(|x| x.as_str().to_string()),
+        bar_rating_nm: nm(s.rating),
+        peak_torque_lbf_ft: lbf_ft(s.peak_torque),
+        peak_torque_to_rating_ratio: finite(s.peak_to_rating),
+        nut_stop_threshold_deg: s.nut_stop_threshold.deg(),
+        nut_advancing_blow_count: s.nut_advancing_blows,
+        nut_stopped_after_blow: s.nut_stopped_after_blow,
+        peak_torque_nut_advancing_nm: nm(s.peak_torque_nut_advancing),
+        residual_twist_end_deg: deg(s.residual_twist_end),
+        drive_noise_deg: deg(a.segmentation.drive_noise),
+        nut_noise_deg: deg(a.segmentation.nut_noise),
+    };
+    Report {
+        report_version: REPORT_VERSION,
+        fps: a.time_base.fps_hz(),
+        frames: n,
+        warnings: a.warnings.iter().map(ToString::to_string).collect(),
+        caution: super::CAUTION.to_string(),
+        clip: a.clip.path.display().to_string(),
+        clip_frames: a.clip.frames,
+        fps_source: match a.fps_source {
+            FpsSource::Option => "option",
+            FpsSource::Rig => "rig",
+            FpsSource::Container => "container",
+        }
+        .to_string(),
+        trace,
+        blows,
+        summary,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::tests::analysis;
+    use super::super::write_outputs;
+    use serde_json::Value;
+
+    /// Every key the interface lists for report.json (`/work/shared/interface.md`, section
+    /// "report.json", version 1), by object.
+    const TOP: [&str; 6] = ["fps", "frames", "warnings", "trace", "blows", "summary"];
+    const TRACE: [&str; 4] = ["t_s", "drive_deg", "nut_deg", "twist_deg"];
+    const BLOW: [&str; 9] = [
+        "index",
+        "frame",
+        "t_s",
+        "drive_advance_deg",
+        "nut_advance_deg",
+        "peak_twist_deg",
+        "peak_torque_nm",
+        "residual_twist_deg",
+        "nut_lag_ms",
+    ];
+    const SUMMARY: [&str; 6] = [
+        "blow_count",
+        "blow_rate_per_min",
+        "drive_total_deg",
+        "nut_total_deg",
+        "bar_stiffness_nm_per_deg",
+        "peak_torque_nm",
+    ];
+
+    /// Numbers, or null.
+    fn is_num_or_null(v: &Value) -> bool {
+        v.is_number() || v.is_null()
+    }
+
+    fn written(with_bar: bool) -> Value {
+        let a = analysis(with_bar);
+        let dir = tempfile::tempdir().unwrap();
+        write_outputs(&a, dir.path()).unwrap();
+        let text = std::fs::read_to_string(dir.path().join("report.json")).unwrap();
+        serde_json::from_str(&text).unwrap()
+    }
+
+    #[test]
+    fn report_json_has_every_interface_key_with_its_type() {
+        let v = written(true);
+        for k in TOP {
+            assert!(v.get(k).is_some(), "top-level key {k} missing");
+        }
+        assert!(v["fps"].is_number() && v["frames"].is_u64() && v["warnings"].is_array());
+        let n = v["frames"].as_u64().unwrap() as usize;
+        for k in TRACE {
+            let arr = v["trace"][k]
+                .as_array()
+                .unwrap_or_else(|| panic!("trace.{k}"));
+            assert_eq!(arr.len(), n, "trace.{k} has one entry per frame");
+            assert!(arr.iter().all(is_num_or_null), "trace.{k}");
+        }
+        // Angles are 0 at the first analysed frame; twist = drive − nut.
+        assert_eq!(v["trace"]["nut_deg"][0].as_f64(), Some(0.0));
+        // The test analysis loses the drive on frames 3 and 4: null there, and in twist.
+        assert!(v["trace"]["drive_deg"][3].is_null() && v["trace"]["twist_deg"][4].is_null());
+        let blows = v["blows"].as_array().unwrap();
+        assert_eq!(blows.len(), 10, "fast-tool has 10 blows");
+        for b in blows {
+            for k in BLOW {
+                assert!(b.get(k).is_some_and(is_num_or_null), "blow key {k}");
+            }
+            let f = b["frame"].as_f64().unwrap();
+            let t = b["t_s"].as_f64().unwrap();
+            assert!(
+                (t - f / v["fps"].as_f64().unwrap()).abs() < 1e-12,
+                "t_s = frame/fps"
+            );
+        }
+        for k in SUMMARY {
+            assert!(
+                v["summary"].get(k).is_some_and(is_num_or_null),
+                "summary {k}"
+            );
+        }
+        assert_eq!(v["summary"]["blow_count"].as_u64(), Some(10));
+        // Extensions.
+        assert_eq!(v["report_version"].as_u64(), Some(1));
+        assert!(
+            v["caution"]
+                .as_str()
+                .unwrap()
+                .contains("calibrated torque wrench")
+        );
+        assert_eq!(v["summary"]["stiffness_source"].as_str(), Some("computed"));
+        assert_eq!(v["summary"]["bar_rating_nm"].as_f64(), Some(136.0));
+    }
+
+    #[test]
+    fn every_number_key_carries_a_unit_or_is_a_count() {
+        // House rule: unit suffix in every numeric key. Counts, indices, frame numbers,
+        // ratios and confidences are dimensionless and named so.
+        let dimensionless = [
+            "report_version",
+            "frames",
+            "clip_frames",
+            "index",
+            "frame",
+            "blow_count",
+            "nut_advancing_blow_count",
+            "nut_stopped_after_blow",
+            "nut_onset_frame",
+            "peak_torque_to_rating_ratio",
+            "drive_confidence",
+            "nut_confidence",
+            "fps",
+        ];
+        let units = [
+            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad",
+        ];
+        fn walk(v: &Value, f: &mut dyn FnMut(&str, &Value)) {
+            if let Value::Object(m) = v {
+                for (k, x) in m {
+                    f(k, x);
+                    walk(x, f);
+                }
+            } else if let Value::Array(a) = v {
+                a.iter().for_each(|x| walk(x, f));
+            }
+        }
+        let v = written(true);
+        walk(&v, &mut |k, x| {
+            let numeric = x.is_number()
+                || x.as_array()
+                    .is_some_and(|a| a.first().is_some_and(Value::is_number));
+            if numeric {
+                assert!(
+                    dimensionless.contains(&k) || units.iter().any(|u| k.ends_with(u)),
+                    "numeric key {k} has no unit"
+                );
+            }
+        });
+    }
+
+    #[test]
+    fn without_a_bar_torque_fields_are_null() {
+        let v = written(false);
+        for b in v["blows"].as_array().unwrap() {
+            assert!(b["peak_torque_nm"].is_null() && b["peak_twist_deg"].is_number());
+        }
+        assert!(v["summary"]["peak_torque_nm"].is_null());
+        assert!(v["summary"]["bar_stiffness_nm_per_deg"].is_null());
+        let w: Vec<&str> = v["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter_map(Value::as_str)
+            .collect();
+        assert!(w.iter().any(|s| s.contains("no bar")), "{w:?}");
+    }
+}

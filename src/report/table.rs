@@ -1,0 +1,146 @@
+//! The per-blow table for the terminal: one row per blow with torque in N·m and lbf·ft, one
+//! summary line, and the caution that a torque from video is a model.
+
+use std::fmt::Write;
+
+use super::CAUTION;
+use crate::analyze::Analysis;
+use crate::units::Angle;
+
+/// The per-blow table, summary line and cautions, as text for a terminal.
+pub fn blow_table(a: &Analysis) -> String {
+    let mut out = String::new();
+    let fmt = |v: Option<f64>, d: usize| match v {
+        Some(x) if x.is_finite() => format!("{x:.d$}"),
+        _ => "-".to_string(),
+    };
+    let deg = |v: Option<Angle>, d: usize| fmt(v.map(Angle::deg), d);
+    let _ = writeln!(
+        out,
+        "{:>5} {:>8} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9} {:>8}",
+        "blow", "t", "drive", "nut", "peak", "peak", "peak", "residual", "nut lag"
+    );
+    let _ = writeln!(
+        out,
+        "{:>5} {:>8} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9} {:>8}",
+        "", "s", "adv °", "adv °", "twist °", "N·m", "lbf·ft", "twist °", "ms"
+    );
+    for b in &a.blows {
+        let _ = writeln!(
+            out,
+            "{:>5} {:>8.4} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9} {:>8}",
+            b.index,
+            b.t_s,
+            deg(b.drive_advance, 2),
+            deg(b.nut_advance, 2),
+            deg(b.peak_twist, 2),
+            fmt(b.peak_torque.map(|t| t.nm()), 1),
+            fmt(b.peak_torque.map(|t| t.lbf_ft()), 1),
+            deg(b.residual_twist, 2),
+            fmt(b.nut_lag_s.map(|s| s * 1e3), 2),
+        );
+    }
+    if a.blows.is_empty() {
+        let _ = writeln!(out, "{:>5} (no blows found)", "-");
+    }
+    out.push_str(&summary_line(a));
+    out.push('\n');
+    let _ = writeln!(out, "Caution: {CAUTION}");
+    out
+}
+
+/// One line: blows and rate, rotations, when the nut stopped, peak torque against the rating,
+/// and the stiffness used.
+fn summary_line(a: &Analysis) -> String {
+    let s = &a.summary;
+    let mut parts = Vec::new();
+    parts.push(match (s.blow_rate_per_min, s.blow_rate_spread_per_min) {
+        (Some(r), Some(sd)) => format!(
+            "{} blows at {r:.0} blows/min (spread {sd:.0})",
+            s.blow_count
+        ),
+        _ => format!("{} blow(s)", s.blow_count),
+    });
+    let d = |v: Option<Angle>| v.map_or("-".to_string(), |x| format!("{:.2}°", x.deg()));
+    parts.push(format!(
+        "drive turned {}, nut {}",
+        d(s.drive_total),
+        d(s.nut_total)
+    ));
+    let th = s.nut_stop_threshold.deg();
+    parts.push(match s.nut_stopped_after_blow {
+        Some(k) => format!("nut stopped advancing after blow {k} (< {th:.2}° per blow)"),
+        None if s.nut_advancing_blows == 0 && s.blow_count > 0 => {
+            format!("nut never advanced ≥ {th:.2}° in a blow")
+        }
+        None if s.blow_count > 0 => "nut still advancing on the last blow".to_string(),
+        None => String::new(),
+    });
+    match (s.peak_torque, s.stiffness) {
+        (Some(p), Some(k)) => {
+            let mut t = format!("peak torque {:.1} N·m ({:.1} lbf·ft)", p.nm(), p.lbf_ft());
+            if let (Some(r), Some(ratio)) = (s.rating, s.peak_to_rating) {
+                let _ = write!(
+                    t,
+                    " = {:.0} % of the {:.0} N·m rating",
+                    100.0 * ratio,
+                    r.nm()
+                );
+            }
+            parts.push(t);
+            if let Some(q) = s.peak_torque_nut_advancing {
+                parts.push(format!(
+                    "highest while the nut still turned {:.1} N·m ({:.1} lbf·ft)",
+                    q.nm(),
+                    q.lbf_ft()
+                ));
+            }
+            parts.push(format!(
+                "stiffness {:.2} N·m/deg ({})",
+                k.nm_per_deg(),
+                s.stiffness_source.map_or("computed", |x| x.as_str())
+            ));
+        }
+        (_, None) => parts.push("torque not computed: the rig has no bar".to_string()),
+        (None, Some(_)) => {}
+    }
+    parts.retain(|p| !p.is_empty());
+    format!("Summary: {}.", parts.join("; "))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::tests::analysis;
+    use super::*;
+
+    #[test]
+    fn table_has_a_row_per_blow_both_units_summary_and_caution() {
+        let a = analysis(true);
+        let t = blow_table(&a);
+        let lines: Vec<&str> = t.lines().collect();
+        assert_eq!(lines.len(), 2 + a.blows.len() + 2, "{t}");
+        assert!(lines[1].contains("N·m") && lines[1].contains("lbf·ft"));
+        // Row 1 shows blow 1's peak torque in both units (1 lbf·ft = 1.355818 N·m, NIST
+        // SP 811 App. B).
+        let q = a.blows[0].peak_torque.unwrap();
+        assert!(lines[2].contains(&format!("{:.1}", q.nm())));
+        assert!(lines[2].contains(&format!("{:.1}", q.nm() / 1.355_818)));
+        let summary = lines[lines.len() - 2];
+        assert!(summary.starts_with("Summary: 10 blows at"), "{summary}");
+        assert!(summary.contains("rating") && summary.contains("computed"));
+        assert!(lines.last().unwrap().contains("calibrated torque wrench"));
+        assert!(lines.last().unwrap().contains("vehicle maker"));
+    }
+
+    #[test]
+    fn without_bar_or_blows_the_table_says_so() {
+        let mut a = analysis(false);
+        let t = blow_table(&a);
+        assert!(t.contains("torque not computed"));
+        assert!(t.contains(" - "), "null torque shows as '-'");
+        a.blows.clear();
+        a.summary.blow_count = 0;
+        let t = blow_table(&a);
+        assert!(t.contains("no blows found") && t.contains("Caution:"));
+    }
+}
