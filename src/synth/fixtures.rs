@@ -460,12 +460,17 @@ fn readme_entry(out: &mut String, fx: &Fixture, t: &Truth) {
     }
     let s = &t.summary;
     let _ = writeln!(out, "## `{}/`\n", fx.dir);
-    let _ = writeln!(out, "{}. {}.\n", capitalise(&sc.description), fx.purpose);
+    let _ = writeln!(
+        out,
+        "{}. Purpose: {}.\n",
+        capitalise(&sc.description),
+        fx.purpose
+    );
     let _ = writeln!(out, "- Files: {}.", formats.join("; "));
     let _ = writeln!(out, "- Knobs: {}.", knobs.join(", "));
     let _ = writeln!(
         out,
-        "- Truth: {} frames, {} blows, blow rate {}, drive total {:.3} deg, nut total {:.3} deg, bar {:.4} N·m/deg, peak torque {} (model's continuous peak {:.1} N·m; bar rating {}).\n",
+        "- Truth: {} frames, {} blow(s), blow rate {}, drive total {:.3} deg, nut total {:.3} deg, bar {:.4} N·m/deg, peak torque {} (model's continuous peak {:.1} N·m; bar rating {}).\n",
         t.frames,
         s.blow_count,
         s.blow_rate_per_min
