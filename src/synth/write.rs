@@ -4,7 +4,7 @@
 //! `image` crate; video on the same FFmpeg build).
 
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use image::{ImageBuffer, Luma as PixLuma};
 
@@ -113,7 +113,7 @@ pub fn write_video(
     path: &Path,
     codec: crate::encode::Codec,
     container_fps_hz: f64,
-) -> Result<PathBuf> {
+) -> Result<std::path::PathBuf> {
     let frames: Vec<Frame> = (0..truth.frames)
         .map(|i| render_frame(sc, truth, i))
         .collect();
