@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 
 use super::write::{save_stills, write_sidecars};
 use super::{
-    Effects, Flicker, Highlight, Paint, Scenario, Steel, StillFormat, Truth, render_frame, simulate,
+    Effects, Flicker, Highlight, Paint, Scenario, Steel, StillFormat, Truth, render_clip, simulate,
 };
 use crate::decode::Frame;
 use crate::error::{Error, Result};
@@ -253,12 +253,6 @@ pub fn fixture_set() -> Vec<Fixture> {
     v
 }
 
-fn render_all(sc: &Scenario, truth: &Truth) -> Vec<Frame> {
-    (0..truth.frames)
-        .map(|i| render_frame(sc, truth, i))
-        .collect()
-}
-
 /// Writes every fixture and `README.md` into `root`, replacing what is there. Returns the
 /// files written (relative to `root`).
 ///
@@ -274,7 +268,7 @@ pub fn write_fixtures(root: &Path) -> Result<Vec<PathBuf>> {
             std::fs::remove_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
         }
         let truth = simulate(&fx.scenario);
-        let frames = render_all(&fx.scenario, &truth);
+        let frames = render_clip(&fx.scenario, &truth);
         write_sidecars(&fx.scenario, &truth, &dir)?;
         let sums = Checksums {
             note: "FNV-1a checksum of each rendered frame's luma samples (Frame::checksum), before any encoding; a lossless decode must reproduce them exactly".into(),

@@ -775,6 +775,14 @@ pub fn render_frame(sc: &Scenario, truth: &Truth, index: u64) -> Frame {
     }
 }
 
+/// Renders every frame of a simulated clip, in order (for in-memory pipelines:
+/// `decode::MemorySource::new(render_clip(&sc, &truth), None)`).
+pub fn render_clip(sc: &Scenario, truth: &Truth) -> Vec<Frame> {
+    (0..truth.frames)
+        .map(|i| render_frame(sc, truth, i))
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -8,7 +8,7 @@ use std::path::Path;
 
 use image::{ImageBuffer, Luma as PixLuma};
 
-use super::{Scenario, Truth, render_frame};
+use super::{Scenario, Truth, render_clip};
 use crate::decode::{Frame, Luma};
 use crate::error::{Error, Result};
 
@@ -82,9 +82,7 @@ fn save_frame(frame: &Frame, path: &Path, fmt: StillFormat) -> Result<()> {
 /// # Errors
 /// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
 pub fn write_stills(sc: &Scenario, truth: &Truth, dir: &Path, fmt: StillFormat) -> Result<u64> {
-    let frames: Vec<Frame> = (0..truth.frames)
-        .map(|i| render_frame(sc, truth, i))
-        .collect();
+    let frames = render_clip(sc, truth);
     save_stills(&frames, &dir.join("frames"), fmt)?;
     write_sidecars(sc, truth, dir)?;
     Ok(truth.frames)
@@ -114,9 +112,7 @@ pub fn write_video(
     codec: crate::encode::Codec,
     container_fps_hz: f64,
 ) -> Result<std::path::PathBuf> {
-    let frames: Vec<Frame> = (0..truth.frames)
-        .map(|i| render_frame(sc, truth, i))
-        .collect();
+    let frames = render_clip(sc, truth);
     save_video(&frames, path, codec, container_fps_hz)?;
     Ok(path.to_path_buf())
 }
