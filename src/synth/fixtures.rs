@@ -149,6 +149,8 @@ pub fn fixture_set() -> Vec<Fixture> {
     noisy.tool.clip_blows = 3;
     noisy.tool.jitter = 0.03;
     noisy.scene.paint = Paint::White;
+    // Blur samples multiply the cost; 8×8 per sample is plenty under noise.
+    noisy.scene.supersample = 8;
     noisy.scene.drive.highlight = Some(Highlight {
         offset_px: [-30.0, -28.0],
         sigma_px: 9.0,
@@ -243,6 +245,7 @@ pub fn fixture_set() -> Vec<Fixture> {
         peak: 0.35,
     });
     demo.effects.noise_sigma = 0.004;
+    demo.scene.supersample = 8;
     v.push(Fixture {
         dir: "demo",
         purpose: "the README's bundled demo clip",
