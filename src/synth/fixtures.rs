@@ -509,6 +509,27 @@ mod tests {
     }
 
     #[test]
+    fn committed_scenarios_reproduce_their_truth() {
+        // scenario.json is enough to regenerate a fixture: parsing it and simulating gives
+        // the committed truth.json byte for byte.
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures");
+        for fx in fixture_set() {
+            let dir = root.join(fx.dir);
+            let read = |f: &str| {
+                std::fs::read_to_string(dir.join(f))
+                    .unwrap_or_else(|e| panic!("{}/{f}: {e}; run tools/make-fixtures", fx.dir))
+            };
+            let (sc_text, truth_text) = (read("scenario.json"), read("truth.json"));
+            let sc: Scenario = serde_json::from_str(&sc_text).unwrap();
+            assert_eq!(sc, fx.scenario, "{}", fx.dir);
+            let t = simulate(&sc);
+            let mut text = serde_json::to_string_pretty(&t).unwrap();
+            text.push('\n');
+            assert!(text == truth_text, "{}: truth.json differs", fx.dir);
+        }
+    }
+
+    #[test]
     fn fixture_set_covers_the_brief() {
         // Frame rates from 1,000 to 4,000 fps, both tightening directions, more than one
         // paint colour, 16-bit stills, and a demo folder.
