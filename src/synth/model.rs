@@ -103,8 +103,6 @@ pub(crate) struct Events {
     /// For each blow, the largest spring torque k·twist between its start and the next blow,
     /// N·m.
     pub peak_spring_torque: Vec<f64>,
-    /// For each blow, the twist when the next blow starts (or at the end), rad.
-    pub residual_twist: Vec<f64>,
 }
 
 impl Model {
@@ -140,12 +138,10 @@ impl Model {
     pub fn run(&self, times: &[f64]) -> (Vec<State>, Events) {
         assert!(times.windows(2).all(|w| w[0] <= w[1]), "times ascending");
         assert!(times.first().is_none_or(|&t| t >= self.start));
-        let end = times.last().copied().unwrap_or(self.start);
         let nb = self.blow_times.len();
         let mut ev = Events {
             nut_slip: vec![None; nb],
             peak_spring_torque: vec![0.0; nb],
-            residual_twist: vec![0.0; nb],
         };
         let mut out = Vec::with_capacity(times.len());
         let mut s = State {
@@ -164,9 +160,6 @@ impl Model {
         }
         while ti < times.len() {
             while next_blow < nb && self.blow_times[next_blow] <= t {
-                if next_blow > 0 {
-                    ev.residual_twist[next_blow - 1] = s.theta_d - s.theta_n;
-                }
                 next_blow += 1;
             }
             let prev = s;
@@ -228,10 +221,6 @@ impl Model {
             }
             t = t_new;
         }
-        if next_blow > 0 {
-            ev.residual_twist[next_blow - 1] = s.theta_d - s.theta_n;
-        }
-        let _ = end;
         (out, ev)
     }
 
