@@ -164,23 +164,13 @@ pub const PRESETS: [&str; 2] = ["slow-tool", "fast-tool"];
 /// 136 N·m (100 lbf·ft). Invented; k ≈ 13.3 N·m/deg.
 fn bench_bar() -> BarSpec {
     BarSpec {
-        sections: vec![
-            SectionSpec::Hex {
-                length_mm: 25.0,
-                across_flats_mm: 19.0,
-            },
-            SectionSpec::Round {
-                length_mm: 220.0,
-                d_mm: 12.0,
-            },
-            SectionSpec::Hex {
-                length_mm: 30.0,
-                across_flats_mm: 19.0,
-            },
-        ],
         shear_modulus_gpa: Some(79.3),
         rating_nm: Some(136.0),
-        calibrated_stiffness_nm_per_deg: None,
+        ..BarSpec::new(vec![
+            SectionSpec::hex(25.0, 19.0),
+            SectionSpec::round(220.0, 12.0),
+            SectionSpec::hex(30.0, 19.0),
+        ])
     }
 }
 
@@ -318,7 +308,13 @@ impl Scenario {
                     })
                 }),
             },
-            bar: Some(self.bar.clone()),
+            // The drive-end inertia and back-drive damping let `analyze` state whether the bar
+            // can spring back between blows (the mechanics' spring-back verdict).
+            bar: Some(BarSpec {
+                drive_inertia_kg_m2: Some(self.tool.drive_inertia_kgm2),
+                drive_back_damping_nms_per_rad: Some(self.tool.back_damping_nms_per_rad),
+                ..self.bar.clone()
+            }),
         }
     }
 
