@@ -7,7 +7,7 @@ use std::sync::mpsc;
 
 use crate::decode::{self, ClipInfo, Frame, FrameSource};
 use crate::error::{Error, Result};
-use crate::mechanics::{self, BlowMetrics, Summary};
+use crate::mechanics::{self, BarReport, BlowMetrics, SpringbackVerdict, Summary};
 use crate::rig::Rig;
 use crate::segment::{self, Segmentation};
 use crate::track::{Trace, Tracker};
@@ -58,6 +58,11 @@ pub struct Analysis {
     pub blows: Vec<BlowMetrics>,
     /// Clip-level results.
     pub summary: Summary,
+    /// The bar's stiffness, stress and timing (None without a bar in the rig).
+    pub bar: Option<BarReport>,
+    /// Whether the bar could spring back between blows: the model against the measured
+    /// residual twist (None without a bar or with fewer than two blows).
+    pub springback: Option<SpringbackVerdict>,
     /// Every warning from every stage, in pipeline order.
     pub warnings: Vec<Warning>,
 }
@@ -183,6 +188,22 @@ pub fn analyze_source(
     let (blows, summary, mech_warnings) =
         mechanics::blow_metrics(&trace, &segmentation, rig.bar.as_ref());
     warnings.extend(mech_warnings);
+    let bar = rig.bar.as_ref().map(BarReport::new).transpose()?;
+    let springback = bar.as_ref().and_then(|b| {
+        let onsets: Vec<f64> = blows.iter().map(|m| m.t_s).collect();
+        let residual: Vec<_> = blows.iter().map(|m| m.residual_twist).collect();
+        let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
+        b.springback_verdict_for_blows(&onsets, &residual, &peak)
+    });
+    if let Some(b) = &bar {
+        warnings.extend(b.warnings());
+        if let Some(w) = summary
+            .peak_torque
+            .and_then(|t| b.stress_warning(t, "measured peak"))
+        {
+            warnings.push(w);
+        }
+    }
     Ok(Analysis {
         clip,
         rig: rig.clone(),
@@ -192,6 +213,8 @@ pub fn analyze_source(
         segmentation,
         blows,
         summary,
+        bar,
+        springback,
         warnings,
     })
 }

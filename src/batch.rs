@@ -46,10 +46,6 @@ const RESERVED_NAMES: &[&str] = &[
     "comparison.png",
 ];
 
-/// Key and text of the caution that goes with every torque in batch outputs.
-pub const TORQUE_CAUTION: &str = "torques are a model (bar stiffness x twist), not a calibrated \
-measurement: check final torque with a calibrated torque wrench to the vehicle maker's spec";
-
 /// How a clip is stored.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -659,7 +655,7 @@ pub fn write_summary(outcomes: &[ClipOutcome], out: &Path) -> Result<Vec<PathBuf
     let json_path = out.join("summary.json");
     let doc = SummaryFile {
         summary_version: 1,
-        torque_note: TORQUE_CAUTION.to_string(),
+        torque_note: crate::mechanics::TORQUE_CAUTION.to_string(),
         clips: outcomes.iter().map(|o| o.row.clone()).collect(),
     };
     let text = serde_json::to_string_pretty(&doc).map_err(|e| Error::Output {
@@ -740,7 +736,7 @@ pub fn summary_table(report: &BatchReport) -> String {
         failed.len()
     ));
     if ok.iter().any(|r| r.peak_torque_nm.is_some()) {
-        s.push_str(&format!("note: {TORQUE_CAUTION}\n"));
+        s.push_str(&format!("note: {}\n", crate::mechanics::TORQUE_CAUTION));
     }
     s
 }

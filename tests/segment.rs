@@ -139,7 +139,10 @@ fn check_blows(sc: &Scenario, noise_deg: f64, gaps: usize, seed: u64, metrics: b
         );
     }
     let mae = nut_err.iter().sum::<f64>() / nut_err.len() as f64;
-    let truth_peak_nm = truth.summary.peak_torque_nm.expect("the bench scenes have a bar");
+    let truth_peak_nm = truth
+        .summary
+        .peak_torque_nm
+        .expect("the bench scenes have a bar");
     eprintln!(
         "{what}: {} blows, nut MAE {mae:.4}°, peak {:.1} vs {:.1} N·m",
         found.len(),

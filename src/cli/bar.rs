@@ -139,6 +139,6 @@ pub fn run(a: BarArgs) -> Result<ExitCode> {
         _ => println!("spring-back:    unknown: set bar.drive_inertia_kg_m2 or bar.drive_parts"),
     }
     super::print_warnings(&report.warnings());
-    println!("caution: {TORQUE_CAUTION}.");
+    println!("caution: {TORQUE_CAUTION}");
     Ok(ExitCode::SUCCESS)
 }

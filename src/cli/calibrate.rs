@@ -134,6 +134,6 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         ),
         None => println!("not written: pass --out RIG.json to store the calibration in a rig"),
     }
-    println!("caution: {TORQUE_CAUTION}.");
+    println!("caution: {TORQUE_CAUTION}");
     Ok(ExitCode::SUCCESS)
 }

@@ -40,10 +40,10 @@ use crate::mechanics::steel::YieldCriterion;
 use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
 
-/// The caution printed with every torque.
-pub const TORQUE_CAUTION: &str = "torque from twist is a model (stiffness x twist), not a \
-calibrated measurement; follow the vehicle maker's specification and check with a calibrated \
-torque wrench";
+/// The caution printed and written wherever a torque is shown (two full sentences).
+pub const TORQUE_CAUTION: &str = "A torque estimated from video is a model (bar stiffness × \
+twist), not a calibrated measurement. Finish wheel nuts with a calibrated torque wrench to the \
+vehicle maker's specification.";
 
 /// Where the stiffness used for torque came from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

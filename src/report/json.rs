@@ -35,6 +35,11 @@ pub struct Report {
     pub blows: Vec<BlowJson>,
     /// Clip-level results.
     pub summary: SummaryJson,
+    /// The bar: stiffness per section, stress at the rating and at the measured peak, timing.
+    /// (The form of `twistmark bar --json`.)
+    pub bar: Option<serde_json::Value>,
+    /// Could the bar spring back between blows? Model against measurement, in one sentence.
+    pub springback: Option<serde_json::Value>,
 }
 
 /// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
@@ -128,6 +133,10 @@ pub struct SummaryJson {
     pub peak_torque_nut_advancing_nm: Option<f64>,
     /// Twist at the end of the clip, degrees.
     pub residual_twist_end_deg: Option<f64>,
+    /// Largest maximum shear stress over the bar's sections at the peak torque, MPa.
+    pub peak_shear_stress_mpa: Option<f64>,
+    /// That stress over the section's shear yield (null when no yield strength is known).
+    pub peak_stress_to_shear_yield_ratio: Option<f64>,
     /// Estimated angle noise of the drive end (one frame, σ), degrees.
     pub drive_noise_deg: Option<f64>,
     /// Estimated angle noise of the nut end (one frame, σ), degrees.
@@ -229,6 +238,19 @@ pub fn report(a: &Analysis) -> Report {
         nut_stopped_after_blow: s.nut_stopped_after_blow,
         peak_torque_nut_advancing_nm: nm(s.peak_torque_nut_advancing),
         residual_twist_end_deg: deg(s.residual_twist_end),
+        peak_shear_stress_mpa: finite(
+            a.bar
+                .as_ref()
+                .zip(s.peak_torque)
+                .map(|(b, t)| b.max_shear_stress(t).stress_pa * 1e-6),
+        ),
+        peak_stress_to_shear_yield_ratio: finite(
+            a.bar
+                .as_ref()
+                .zip(s.peak_torque)
+                .and_then(|(b, t)| b.max_stress_ratio(t))
+                .map(|(_, r)| r),
+        ),
         drive_noise_deg: deg(a.segmentation.drive_noise),
         nut_noise_deg: deg(a.segmentation.nut_noise),
     };
@@ -249,6 +271,14 @@ pub fn report(a: &Analysis) -> Report {
         trace,
         blows,
         summary,
+        bar: a
+            .bar
+            .as_ref()
+            .and_then(|b| serde_json::to_value(b.to_json()).ok()),
+        springback: a
+            .springback
+            .as_ref()
+            .and_then(|v| serde_json::to_value(v).ok()),
     }
 }
 

@@ -26,9 +26,7 @@ pub use json::{BlowJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report}
 pub use table::blow_table;
 
 /// The caution printed and written wherever a torque is shown.
-pub const CAUTION: &str = "A torque estimated from video is a model (bar stiffness × twist), \
-not a calibrated measurement. Finish wheel nuts with a calibrated torque wrench to the vehicle \
-maker's specification.";
+pub use crate::mechanics::TORQUE_CAUTION as CAUTION;
 
 /// Writes every output file for one analysis into `dir` (created if missing) and returns
 /// their paths.
@@ -178,6 +176,8 @@ pub(crate) mod tests {
             blows,
             summary,
             warnings,
+            bar: None,
+            springback: None,
         }
     }
 

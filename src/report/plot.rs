@@ -864,6 +864,8 @@ pub(crate) mod tests {
                 ..Default::default()
             },
             warnings: Vec::new(),
+            bar: None,
+            springback: None,
         }
     }
 

@@ -45,6 +45,9 @@ pub fn blow_table(a: &Analysis) -> String {
     }
     out.push_str(&summary_line(a));
     out.push('\n');
+    if let Some(v) = &a.springback {
+        let _ = writeln!(out, "Spring-back: {}", v.sentence);
+    }
     let _ = writeln!(out, "Caution: {CAUTION}");
     out
 }
