@@ -4,14 +4,32 @@
 //! relative to the first analysed frame and positive in the tightening direction, with a
 //! confidence per measurement and `None` where a mark was lost. Set up once per clip
 //! ([`Tracker::new`]); per frame only the annulus pixels are sampled.
+//!
+//! How one radial mark is measured is described in `radial.rs`; the sampling grid (and the
+//! mapping of an oblique disc back to a circle) in `polar.rs`; unwrapping in `unwrap.rs`.
+//!
+//! Camera shake: when the rig has a `fixed` mark, each frame's image translation around it is
+//! estimated by Lucas–Kanade registration against the first frame (`shake.rs`), and the
+//! fixed mark's own stripe angle gives the camera's roll. Every other mark is then sampled on
+//! a grid moved by the shift that translation and roll imply at its pivot, and the roll is
+//! subtracted from its angle. Without a fixed mark no correction is made.
 
 use std::path::Path;
 
 use crate::decode::Frame;
-use crate::error::Result;
-use crate::rig::Rig;
+use crate::error::{Error, Result};
+use crate::rig::{Mark, Rig, Role};
 use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
+
+mod polar;
+mod radial;
+mod shake;
+pub(crate) mod unwrap;
+
+use polar::PolarGrid;
+use radial::RadialTracker;
+use shake::ShakeEstimator;
 
 /// Per-frame angles of the drive and nut ends.
 #[derive(Debug, Clone, PartialEq)]
@@ -54,45 +72,209 @@ impl Trace {
     }
 }
 
+/// One mark being tracked.
+struct MarkTrack {
+    role: Role,
+    radial: RadialTracker,
+    /// +1 when tightening is clockwise on screen.
+    sign: f64,
+    /// Continuous disc-plane angle per frame (roll removed), rad.
+    angle: Vec<Option<f64>>,
+    confidence: Vec<f32>,
+}
+
 /// Measures the rig's marks frame by frame.
 pub struct Tracker {
     frames: Vec<u64>,
+    width: u32,
+    height: u32,
+    drive: MarkTrack,
+    nut: MarkTrack,
+    fixed: Option<MarkTrack>,
+    fixed_pivot: [f64; 2],
+    shake: Option<ShakeEstimator>,
+    /// Camera roll (rad) and translation (px) of the last frame, held while the fixed mark
+    /// is lost.
+    roll: f64,
+    shift: [f64; 2],
+    /// The fixed mark's angle in the first frame.
+    fixed_zero: f64,
 }
 
 impl Tracker {
     /// Prepares sampling geometry for every mark of `rig` in frames of this size.
     ///
     /// # Errors
-    /// [`crate::Error::Rig`] when a mark does not fit the frame.
+    /// [`crate::Error::Rig`] when a mark does not fit the frame; [`crate::Error::Mark`] for a
+    /// side-view mark, which this tracker does not measure yet.
     pub fn new(rig: &Rig, rig_path: &Path, width: u32, height: u32) -> Result<Tracker> {
         rig.check_frame(rig_path, width, height)?;
-        Ok(Tracker { frames: Vec::new() })
+        if width < 2 || height < 2 {
+            return Err(Error::Rig {
+                path: rig_path.to_path_buf(),
+                field: "marks".into(),
+                reason: format!("the {width}x{height} frame is too small to hold a mark"),
+            });
+        }
+        let make = |role: Role, mark: &Mark| -> Result<MarkTrack> {
+            match mark {
+                Mark::Radial(m) => Ok(MarkTrack {
+                    role,
+                    radial: RadialTracker::new(PolarGrid::new(m, width, height)),
+                    sign: m.tighten.map_or(1.0, |t| t.sign()),
+                    angle: Vec::new(),
+                    confidence: Vec::new(),
+                }),
+                Mark::Side(_) => Err(Error::Mark {
+                    mark: role.name().into(),
+                    reason: "side-view marks (\"kind\": \"side\") are not measured by this build yet; film the disc, socket face or nut face and use a \"radial\" mark".into(),
+                }),
+            }
+        };
+        let drive = make(Role::Drive, &rig.marks.drive)?;
+        let nut = make(Role::Nut, &rig.marks.nut)?;
+        let (fixed, shake, fixed_pivot) = match &rig.marks.fixed {
+            Some(m) => {
+                let t = make(Role::Fixed, m)?;
+                let Mark::Radial(r) = m else {
+                    unreachable!("side marks were rejected above")
+                };
+                (
+                    Some(t),
+                    Some(ShakeEstimator::new(r, width, height)),
+                    r.pivot,
+                )
+            }
+            None => (None, None, [0.0, 0.0]),
+        };
+        Ok(Tracker {
+            frames: Vec::new(),
+            width,
+            height,
+            drive,
+            nut,
+            fixed,
+            fixed_pivot,
+            shake,
+            roll: 0.0,
+            shift: [0.0, 0.0],
+            fixed_zero: 0.0,
+        })
     }
 
     /// Measures every mark in one frame.
     ///
     /// # Errors
-    /// [`crate::Error::Mark`] when a mark shows no paint at all in the first frame.
+    /// [`crate::Error::Mark`] when a mark shows no paint at all in the first frame;
+    /// [`crate::Error::Input`] when the frame's size differs from the clip's.
     pub fn push(&mut self, frame: &Frame) -> Result<()> {
+        if (frame.width, frame.height) != (self.width, self.height) {
+            return Err(Error::Input {
+                path: "(clip)".into(),
+                reason: format!(
+                    "frame {} is {}x{} but the clip started at {}x{}; re-encode the clip at one frame size",
+                    frame.index, frame.width, frame.height, self.width, self.height
+                ),
+            });
+        }
+        let first = self.frames.is_empty();
         self.frames.push(frame.index);
+
+        // Shake: translation at the fixed mark, then the fixed mark's own angle (roll).
+        if let Some(sh) = self.shake.as_mut() {
+            if first {
+                if !sh.init(frame) {
+                    self.shake = None;
+                }
+            } else {
+                self.shift = sh.estimate(frame);
+            }
+        }
+        if let Some(f) = self.fixed.as_mut() {
+            let m = measure(f, frame, self.shift, first)?;
+            match m {
+                Some(a) if first => self.fixed_zero = a,
+                Some(a) => self.roll = a - self.fixed_zero,
+                None => {}
+            }
+        }
+        let (roll, shift, fp) = (self.roll, self.shift, self.fixed_pivot);
+        for t in [&mut self.drive, &mut self.nut] {
+            // Shift at this mark's pivot: translation plus roll about the fixed pivot.
+            let p = t.radial.grid().pivot();
+            let (s, c) = roll.sin_cos();
+            let (dx, dy) = (p[0] - fp[0], p[1] - fp[1]);
+            let here = [
+                shift[0] + (c - 1.0) * dx - s * dy,
+                shift[1] + s * dx + (c - 1.0) * dy,
+            ];
+            let here = if self.fixed.is_some() { here } else { [0.0, 0.0] };
+            let m = measure(t, frame, here, first)?;
+            if let (Some(a), Some(slot)) = (m, t.angle.last_mut()) {
+                *slot = Some(a - roll);
+            }
+        }
         Ok(())
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
     pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
-        let n = self.frames.len();
+        let mut warnings = Vec::new();
+        let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
+            let zero = t.angle.first().copied().flatten();
+            let v = t
+                .angle
+                .iter()
+                .map(|a| Some(Angle::from_rad(t.sign * (a.as_ref()? - zero?))))
+                .collect();
+            let screen = zero.map(|z| Angle::from_rad(t.radial.grid().screen_angle(z)));
+            (v, screen)
+        };
+        for t in [&self.drive, &self.nut] {
+            for (first_frame, last_frame) in unwrap::lost_runs(&t.angle, &self.frames) {
+                warnings.push(Warning::MarkLost {
+                    mark: t.role.name().into(),
+                    first_frame,
+                    last_frame,
+                });
+            }
+        }
+        if let Some(f) = &self.fixed {
+            for (a, b) in unwrap::lost_runs(&f.angle, &self.frames) {
+                warnings.push(Warning::Note(format!(
+                    "fixed mark lost in frames {a}..={b}; camera roll correction held its last value there (check the fixed mark's paint and lighting)"
+                )));
+            }
+        }
+        let (drive, drive_zero_screen) = rel(&self.drive);
+        let (nut, nut_zero_screen) = rel(&self.nut);
         (
             Trace {
                 time_base,
                 frames: self.frames,
-                drive: vec![None; n],
-                nut: vec![None; n],
-                drive_confidence: vec![0.0; n],
-                nut_confidence: vec![0.0; n],
-                drive_zero_screen: None,
-                nut_zero_screen: None,
+                drive,
+                nut,
+                drive_confidence: self.drive.confidence,
+                nut_confidence: self.nut.confidence,
+                drive_zero_screen,
+                nut_zero_screen,
             },
-            Vec::new(),
+            warnings,
         )
     }
+}
+
+/// Measures one mark in one frame, appending to its series; returns the raw angle.
+fn measure(t: &mut MarkTrack, frame: &Frame, shift: [f64; 2], first: bool) -> Result<Option<f64>> {
+    let m = if first {
+        Some(t.radial.init(frame, shift).map_err(|reason| Error::Mark {
+            mark: t.role.name().into(),
+            reason: format!("frame {}: {reason}", frame.index),
+        })?)
+    } else {
+        t.radial.measure(frame, shift)
+    };
+    t.angle.push(m.map(|m| m.angle));
+    t.confidence.push(m.map_or(0.0, |m| m.confidence));
+    Ok(m.map(|m| m.angle))
 }
