@@ -24,6 +24,8 @@
 
 pub mod analyze;
 pub mod decode;
+#[cfg(feature = "ffmpeg")]
+pub mod encode;
 mod error;
 pub mod mechanics;
 pub mod report;

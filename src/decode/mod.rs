@@ -166,6 +166,19 @@ pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
     open_video(path)
 }
 
+/// Initialises the FFmpeg libraries once per process and sets their log level to errors only,
+/// so that they never print (the library must not write to stderr).
+#[cfg(feature = "ffmpeg")]
+pub(crate) fn ffmpeg_init() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| {
+        // `init` only registers devices and sets nothing that can fail in a way we could act on;
+        // a failure here shows up as an open error on the first file.
+        let _ = ffmpeg_next::init();
+        ffmpeg_next::util::log::set_level(ffmpeg_next::util::log::Level::Error);
+    });
+}
+
 #[cfg(feature = "ffmpeg")]
 fn open_video(path: &Path) -> Result<Box<dyn FrameSource>> {
     Ok(Box::new(video::VideoSource::open(path)?))

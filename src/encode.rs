@@ -1,0 +1,486 @@
+//! Clip writer (feature `ffmpeg`): turns luma [`Frame`]s into a video file with the FFmpeg
+//! libraries. The renderer uses it to store synthetic scenes and the tests use it to make
+//! clips in every supported codec and container.
+//!
+//! The container comes from the file extension (`mkv`, `mp4`, `mov`, `avi`). Luma samples
+//! are stored as they are: no range scaling, so a decoder that copies the Y plane gets the
+//! same values back (exactly for FFV1, approximately for the lossy codecs). Chroma planes, where
+//! the pixel format has them, hold the neutral value (128 for 8 bit, 512 for 10 bit).
+//!
+//! | codec | 8-bit input | 10-bit input | 12-bit input | 16-bit input |
+//! |---|---|---|---|---|
+//! | [`Codec::Ffv1`] | `gray` | `yuv420p10le` | `gray12le` | `gray16le` |
+//! | [`Codec::H264`] | `yuv420p` | `yuv420p10le` | – | – |
+//! | [`Codec::Mjpeg`] | `yuvj420p` | – | – | – |
+//! | [`Codec::Mpeg4`] | `yuv420p` | – | – | – |
+//!
+//! Output is byte-for-byte deterministic for the same frames and settings on the same FFmpeg
+//! build: every encoder runs on one thread, the codec and the muxer run in bit-exact mode
+//! (no version strings, no random container identifiers), and timestamps are the frame index
+//! in units of 1 / fps. Frame timing inside twistmark never comes from these timestamps; they
+//! only make the file playable.
+
+use std::path::{Path, PathBuf};
+
+use ff::codec::{self, encoder};
+use ff::format::Pixel;
+use ff::{Dictionary, Rational};
+use ffmpeg_next as ff;
+
+use crate::decode::{Frame, Luma, ffmpeg_init};
+use crate::error::{Error, Result};
+
+/// Which video codec to write, with its one quality setting.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Codec {
+    /// FFV1, lossless; decoded luma equals the input exactly.
+    Ffv1,
+    /// H.264 through libx264 (preset `veryfast`, one thread, B-frames on).
+    H264 {
+        /// Constant rate factor, 0 (lossless for 8 bit) to 51; 18 looks clean, 23 is x264's default.
+        crf: u8,
+    },
+    /// Motion JPEG, every frame a JPEG.
+    Mjpeg {
+        /// Quantiser scale 1 (best) to 31 (worst); 2 to 5 is visually clean.
+        quality: u8,
+    },
+    /// MPEG-4 Part 2.
+    Mpeg4 {
+        /// Quantiser scale 1 (best) to 31 (worst); 2 to 5 is visually clean.
+        quality: u8,
+    },
+}
+
+impl Codec {
+    /// The pixel format written for frames of `bit_depth` bits, or `None` when unsupported.
+    fn pixel_format(self, bit_depth: u8) -> Option<Pixel> {
+        match (self, bit_depth) {
+            (Codec::Ffv1, 8) => Some(Pixel::GRAY8),
+            (Codec::Ffv1, 10) => Some(Pixel::YUV420P10LE),
+            (Codec::Ffv1, 12) => Some(Pixel::GRAY12LE),
+            (Codec::Ffv1, 16) => Some(Pixel::GRAY16LE),
+            (Codec::H264 { .. }, 8) => Some(Pixel::YUV420P),
+            (Codec::H264 { .. }, 10) => Some(Pixel::YUV420P10LE),
+            (Codec::Mjpeg { .. }, 8) => Some(Pixel::YUVJ420P),
+            (Codec::Mpeg4 { .. }, 8) => Some(Pixel::YUV420P),
+            _ => None,
+        }
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            Codec::Ffv1 => "FFV1",
+            Codec::H264 { .. } => "H.264",
+            Codec::Mjpeg { .. } => "MJPEG",
+            Codec::Mpeg4 { .. } => "MPEG-4 Part 2",
+        }
+    }
+}
+
+/// Writes luma frames to a video file. Create it, [`write`](ClipWriter::write) each frame in
+/// order, then call [`finish`](ClipWriter::finish); a writer dropped without `finish` leaves
+/// an incomplete file.
+///
+/// ```no_run
+/// use twistmark::decode::Frame;
+/// use twistmark::encode::{ClipWriter, Codec};
+/// let mut w = ClipWriter::create("clip.mkv".as_ref(), Codec::Ffv1, 64, 48, 2000.0)?;
+/// for i in 0..10 {
+///     w.write(&Frame::from_u8(i, 64, 48, vec![(i * 20) as u8; 64 * 48]))?;
+/// }
+/// w.finish()?;
+/// # Ok::<(), twistmark::Error>(())
+/// ```
+pub struct ClipWriter {
+    path: PathBuf,
+    octx: ff::format::context::Output,
+    encoder: encoder::video::Encoder,
+    picture: ff::frame::Video,
+    packet: ff::Packet,
+    stream_index: usize,
+    encoder_tb: Rational,
+    stream_tb: Rational,
+    width: u32,
+    height: u32,
+    bit_depth: u8,
+    next_pts: i64,
+}
+
+impl ClipWriter {
+    /// Creates an 8-bit clip at `path`; the container is chosen by the extension.
+    ///
+    /// `fps_hz` is the rate stored in the container (for high-speed footage, usually a
+    /// playback rate; twistmark's timing always uses the capture rate given separately).
+    ///
+    /// # Errors
+    /// [`Error::Output`] naming the path when the extension is unknown, the size is not
+    /// usable by the codec (4:2:0 codecs need even sizes), the rate is not positive, or the
+    /// file cannot be created.
+    pub fn create(path: &Path, codec: Codec, width: u32, height: u32, fps_hz: f64) -> Result<Self> {
+        Self::create_with_depth(path, codec, width, height, fps_hz, 8)
+    }
+
+    /// Like [`create`](ClipWriter::create) for frames of `bit_depth` bits (8, 10, 12 or 16;
+    /// see the module table for which codecs take which depth).
+    ///
+    /// # Errors
+    /// As [`create`](ClipWriter::create), and when the codec cannot store `bit_depth`.
+    pub fn create_with_depth(
+        path: &Path,
+        codec: Codec,
+        width: u32,
+        height: u32,
+        fps_hz: f64,
+        bit_depth: u8,
+    ) -> Result<Self> {
+        ffmpeg_init();
+        let fail = |reason: String| Error::Output {
+            path: path.to_path_buf(),
+            reason,
+        };
+        let ext = path
+            .extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+            .unwrap_or_default();
+        let muxer = match ext.as_str() {
+            "mkv" => "matroska",
+            "mp4" => "mp4",
+            "mov" => "mov",
+            "avi" => "avi",
+            _ => {
+                return Err(fail(format!(
+                    "unknown container '.{ext}'; use .mkv, .mp4, .mov or .avi"
+                )));
+            }
+        };
+        if codec == Codec::Ffv1 && muxer == "mp4" {
+            return Err(fail(
+                "the mp4 container cannot hold FFV1; use .mkv, .mov or .avi".into(),
+            ));
+        }
+        let pix = codec.pixel_format(bit_depth).ok_or_else(|| {
+            fail(format!(
+                "{} cannot store {bit_depth}-bit frames here; use FFV1 (8, 10, 12, 16 bit) or \
+                 H.264 (8, 10 bit)",
+                codec.name()
+            ))
+        })?;
+        if width == 0 || height == 0 {
+            return Err(fail(format!("frame size {width}x{height} is empty")));
+        }
+        let subsampled = !matches!(pix, Pixel::GRAY8 | Pixel::GRAY12LE | Pixel::GRAY16LE);
+        if subsampled && (!width.is_multiple_of(2) || !height.is_multiple_of(2)) {
+            return Err(fail(format!(
+                "{} stores 4:2:0 colour and needs an even frame size, got {width}x{height}",
+                codec.name()
+            )));
+        }
+        if !(fps_hz.is_finite() && fps_hz > 0.0) {
+            return Err(fail(format!(
+                "frame rate must be a positive number, got {fps_hz}"
+            )));
+        }
+        let frame_rate = rate_rational(fps_hz);
+        let encoder_tb = Rational::new(frame_rate.denominator(), frame_rate.numerator());
+
+        let ff_err = |what: &str, e: ff::Error| fail(format!("{what}: {e}"));
+        let mut octx =
+            ff::format::output_as(&path, muxer).map_err(|e| ff_err("cannot create the file", e))?;
+        // Bit-exact muxing: no random segment/track identifiers, no version strings.
+        // SAFETY: octx owns a valid AVFormatContext; only the flags field is changed.
+        unsafe {
+            (*octx.as_mut_ptr()).flags |= ff::ffi::AVFMT_FLAG_BITEXACT;
+        }
+        let global_header = octx
+            .format()
+            .flags()
+            .contains(ff::format::Flags::GLOBAL_HEADER);
+
+        let (codec_id, name) = match codec {
+            Codec::Ffv1 => (codec::Id::FFV1, None),
+            Codec::H264 { .. } => (codec::Id::H264, Some("libx264")),
+            Codec::Mjpeg { .. } => (codec::Id::MJPEG, None),
+            Codec::Mpeg4 { .. } => (codec::Id::MPEG4, None),
+        };
+        let ff_codec = match name {
+            Some(n) => encoder::find_by_name(n),
+            None => encoder::find(codec_id),
+        }
+        .ok_or_else(|| {
+            fail(format!(
+                "this FFmpeg build has no {} encoder; install one with it (e.g. Debian's libavcodec59 with libx264)",
+                codec.name()
+            ))
+        })?;
+
+        let stream_index = {
+            let st = octx
+                .add_stream(ff_codec)
+                .map_err(|e| ff_err("cannot add a video stream", e))?;
+            st.index()
+        };
+        let mut enc = codec::context::Context::new_with_codec(ff_codec)
+            .encoder()
+            .video()
+            .map_err(|e| ff_err("cannot set up the encoder", e))?;
+        enc.set_width(width);
+        enc.set_height(height);
+        enc.set_format(pix);
+        enc.set_time_base(encoder_tb);
+        enc.set_frame_rate(Some(frame_rate));
+        // set_flags replaces earlier flags, so every flag goes in this one call.
+        let mut flags = codec::Flags::BITEXACT;
+        if global_header {
+            flags |= codec::Flags::GLOBAL_HEADER;
+        }
+        let mut opts = Dictionary::new();
+        match codec {
+            Codec::Ffv1 => {}
+            Codec::H264 { crf } => {
+                opts.set("crf", &crf.min(51).to_string());
+                opts.set("preset", "veryfast");
+            }
+            Codec::Mjpeg { quality } | Codec::Mpeg4 { quality } => {
+                flags |= codec::Flags::QSCALE;
+                // FF_QP2LAMBDA = 118: the quantiser scale in lambda units.
+                enc.set_global_quality(i32::from(quality.clamp(1, 31)) * 118);
+                if matches!(codec, Codec::Mjpeg { .. }) {
+                    enc.set_color_range(ff::util::color::Range::JPEG);
+                }
+            }
+        }
+        enc.set_flags(flags);
+        // One thread: multi-threaded encoders may split work differently from run to run.
+        // SAFETY: enc wraps a valid, not yet opened AVCodecContext.
+        unsafe {
+            (*enc.as_mut_ptr()).thread_count = 1;
+        }
+        let encoder = enc
+            .open_with(opts)
+            .map_err(|e| ff_err("cannot open the encoder", e))?;
+        {
+            let mut st = octx
+                .stream_mut(stream_index)
+                .ok_or_else(|| fail("the video stream vanished".into()))?;
+            st.set_parameters(&encoder);
+            st.set_time_base(encoder_tb);
+            st.set_rate(frame_rate);
+            st.set_avg_frame_rate(frame_rate);
+        }
+        octx.write_header()
+            .map_err(|e| ff_err("cannot write the header", e))?;
+        // The muxer may change the stream time base in write_header: read it again.
+        let stream_tb = octx
+            .stream(stream_index)
+            .map(|s| s.time_base())
+            .ok_or_else(|| fail("the video stream vanished".into()))?;
+
+        let mut picture = ff::frame::Video::new(pix, width, height);
+        fill_neutral_chroma(&mut picture, pix);
+        Ok(ClipWriter {
+            path: path.to_path_buf(),
+            octx,
+            encoder,
+            picture,
+            packet: ff::Packet::empty(),
+            stream_index,
+            encoder_tb,
+            stream_tb,
+            width,
+            height,
+            bit_depth,
+            next_pts: 0,
+        })
+    }
+
+    /// Encodes one frame. Frames are stored in call order; `frame.index` is not used.
+    ///
+    /// # Errors
+    /// [`Error::Output`] when the frame's size or bit depth differs from the clip's, or the
+    /// encoder or the file fails.
+    pub fn write(&mut self, frame: &Frame) -> Result<()> {
+        if frame.width != self.width || frame.height != self.height {
+            return Err(self.fail(format!(
+                "frame {} is {}x{} but the clip is {}x{}",
+                self.next_pts, frame.width, frame.height, self.width, self.height
+            )));
+        }
+        let depth_ok = match &frame.luma {
+            Luma::U8(_) => self.bit_depth == 8,
+            Luma::U16(_) => self.bit_depth > 8 && frame.bit_depth == self.bit_depth,
+        };
+        if !depth_ok {
+            return Err(self.fail(format!(
+                "frame {} is {}-bit but the clip was created for {}-bit frames",
+                self.next_pts, frame.bit_depth, self.bit_depth
+            )));
+        }
+        // The encoder may still hold a reference to the previous picture's buffer.
+        // SAFETY: picture wraps a valid AVFrame allocated with buffers.
+        let r = unsafe { ff::ffi::av_frame_make_writable(self.picture.as_mut_ptr()) };
+        if r < 0 {
+            return Err(self.fail(format!("cannot get a frame buffer: {}", ff::Error::from(r))));
+        }
+        let w = self.width as usize;
+        let stride = self.picture.stride(0);
+        let dst = self.picture.data_mut(0);
+        match &frame.luma {
+            Luma::U8(src) => {
+                for (row, line) in src.chunks_exact(w).enumerate() {
+                    dst[row * stride..row * stride + w].copy_from_slice(line);
+                }
+            }
+            Luma::U16(src) => {
+                let max = (1u32 << self.bit_depth) - 1;
+                for (row, line) in src.chunks_exact(w).enumerate() {
+                    let out = &mut dst[row * stride..row * stride + 2 * w];
+                    for (o, &v) in out.chunks_exact_mut(2).zip(line) {
+                        o.copy_from_slice(&(u32::from(v).min(max) as u16).to_le_bytes());
+                    }
+                }
+            }
+        }
+        self.picture.set_pts(Some(self.next_pts));
+        self.next_pts += 1;
+        self.encoder
+            .send_frame(&self.picture)
+            .map_err(|e| self.fail(format!("encoder refused frame {}: {e}", self.next_pts - 1)))?;
+        self.drain()
+    }
+
+    /// Flushes the encoder and writes the file's trailer. Returns the number of frames written.
+    ///
+    /// # Errors
+    /// [`Error::Output`] when flushing or writing fails.
+    pub fn finish(mut self) -> Result<u64> {
+        self.encoder
+            .send_eof()
+            .map_err(|e| self.fail(format!("cannot flush the encoder: {e}")))?;
+        self.drain()?;
+        self.octx
+            .write_trailer()
+            .map_err(|e| self.fail(format!("cannot finish the file: {e}")))?;
+        Ok(self.next_pts as u64)
+    }
+
+    fn drain(&mut self) -> Result<()> {
+        loop {
+            match self.encoder.receive_packet(&mut self.packet) {
+                Ok(()) => {}
+                Err(ff::Error::Other { errno }) if errno == ff::util::error::EAGAIN => {
+                    return Ok(());
+                }
+                Err(ff::Error::Eof) => return Ok(()),
+                Err(e) => return Err(self.fail(format!("encoder failed: {e}"))),
+            }
+            if self.packet.duration() == 0 {
+                self.packet.set_duration(1);
+            }
+            self.packet.set_stream(self.stream_index);
+            self.packet.rescale_ts(self.encoder_tb, self.stream_tb);
+            self.packet
+                .write_interleaved(&mut self.octx)
+                .map_err(|e| Error::Output {
+                    path: self.path.clone(),
+                    reason: format!("cannot write a packet: {e}"),
+                })?;
+        }
+    }
+
+    fn fail(&self, reason: String) -> Error {
+        Error::Output {
+            path: self.path.clone(),
+            reason,
+        }
+    }
+}
+
+/// The frame rate as a rational: exact for integer rates, FFmpeg's best approximation else.
+fn rate_rational(fps_hz: f64) -> Rational {
+    if fps_hz.fract() == 0.0 && fps_hz <= i32::MAX as f64 {
+        Rational::new(fps_hz as i32, 1)
+    } else {
+        Rational::from(fps_hz)
+    }
+}
+
+/// Sets the chroma planes (if any) to the neutral value: 128 for 8 bit, 512 for 10 bit.
+fn fill_neutral_chroma(picture: &mut ff::frame::Video, pix: Pixel) {
+    for plane in 1..picture.planes() {
+        let data = picture.data_mut(plane);
+        if pix == Pixel::YUV420P10LE {
+            for pair in data.chunks_exact_mut(2) {
+                pair.copy_from_slice(&512u16.to_le_bytes());
+            }
+        } else {
+            data.fill(128);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ramp(i: u64, w: u32, h: u32) -> Frame {
+        let data = (0..w * h)
+            .map(|p| ((p % w + p / w + i as u32 * 7) % 256) as u8)
+            .collect();
+        Frame::from_u8(i, w, h, data)
+    }
+
+    fn write_clip(path: &Path, codec: Codec) -> Vec<u8> {
+        let mut w = ClipWriter::create(path, codec, 64, 48, 30.0).unwrap();
+        for i in 0..12 {
+            w.write(&ramp(i, 64, 48)).unwrap();
+        }
+        assert_eq!(w.finish().unwrap(), 12);
+        std::fs::read(path).unwrap()
+    }
+
+    #[test]
+    fn every_codec_and_container_is_deterministic() {
+        let dir = tempfile::tempdir().unwrap();
+        let codecs = [
+            Codec::Ffv1,
+            Codec::H264 { crf: 18 },
+            Codec::Mjpeg { quality: 3 },
+            Codec::Mpeg4 { quality: 3 },
+        ];
+        for (ci, codec) in codecs.into_iter().enumerate() {
+            for ext in ["mkv", "mp4", "mov", "avi"] {
+                if matches!(codec, Codec::Ffv1) && ext == "mp4" {
+                    let p = dir.path().join("f.mp4");
+                    let e = ClipWriter::create(&p, codec, 64, 48, 30.0).err().unwrap();
+                    assert!(e.to_string().contains("mkv"), "{e}");
+                    continue;
+                }
+                let a = dir.path().join(format!("a{ci}.{ext}"));
+                let b = dir.path().join(format!("b{ci}.{ext}"));
+                let (da, db) = (write_clip(&a, codec), write_clip(&b, codec));
+                assert!(!da.is_empty());
+                assert!(da == db, "{codec:?} in .{ext} differs between two runs");
+            }
+        }
+    }
+
+    #[test]
+    fn rejects_bad_settings() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("x.webm");
+        assert!(ClipWriter::create(&p, Codec::Ffv1, 8, 8, 30.0).is_err());
+        let p = dir.path().join("x.mkv");
+        let e = ClipWriter::create(&p, Codec::H264 { crf: 18 }, 7, 8, 30.0)
+            .err()
+            .unwrap();
+        assert!(e.to_string().contains("even"), "{e}");
+        assert!(ClipWriter::create(&p, Codec::Ffv1, 8, 8, 0.0).is_err());
+        assert!(
+            ClipWriter::create_with_depth(&p, Codec::Mjpeg { quality: 3 }, 8, 8, 30.0, 16).is_err()
+        );
+        let mut w = ClipWriter::create(&p, Codec::Ffv1, 8, 8, 30.0).unwrap();
+        assert!(w.write(&Frame::from_u8(0, 4, 4, vec![0; 16])).is_err());
+    }
+}
