@@ -9,10 +9,16 @@
 //! mapping of an oblique disc back to a circle) in `polar.rs`; unwrapping in `unwrap.rs`.
 //!
 //! Camera shake: when the rig has a `fixed` mark, each frame's image translation around it is
-//! estimated by Lucas–Kanade registration against the first frame (`shake.rs`), and the
-//! fixed mark's own stripe angle gives the camera's roll. Every other mark is then sampled on
-//! a grid moved by the shift that translation and roll imply at its pivot, and the roll is
-//! subtracted from its angle. Without a fixed mark no correction is made.
+//! estimated by Lucas–Kanade registration against the first frame (`shake.rs`), and the drive
+//! and nut marks are sampled on grids moved by that translation. Camera roll is not corrected:
+//! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
+//! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
+//! made. The fixed mark's stripe is still tracked, so a fixed mark that loses its paint is
+//! reported.
+//!
+//! Once the clip is done, each mark's pivot is refined from the stripe itself and every angle
+//! is re-read about the refined pivot (`refine.rs`); this removes the error a pivot that is off
+//! by a pixel (or shake in the first frame) would leave.
 
 use std::path::Path;
 
@@ -24,6 +30,7 @@ use crate::warning::Warning;
 
 mod polar;
 mod radial;
+mod refine;
 mod shake;
 pub(crate) mod unwrap;
 
@@ -81,6 +88,8 @@ struct MarkTrack {
     /// Continuous disc-plane angle per frame (roll removed), rad.
     angle: Vec<Option<f64>>,
     confidence: Vec<f32>,
+    /// Per frame and ring: ring angle relative to the frame's angle, rad, and weight.
+    rings: Vec<(f32, f32)>,
 }
 
 /// Measures the rig's marks frame by frame.
@@ -91,14 +100,9 @@ pub struct Tracker {
     drive: MarkTrack,
     nut: MarkTrack,
     fixed: Option<MarkTrack>,
-    fixed_pivot: [f64; 2],
     shake: Option<ShakeEstimator>,
-    /// Camera roll (rad) and translation (px) of the last frame, held while the fixed mark
-    /// is lost.
-    roll: f64,
+    /// Camera translation (px) of the last frame.
     shift: [f64; 2],
-    /// The fixed mark's angle in the first frame.
-    fixed_zero: f64,
 }
 
 impl Tracker {
@@ -124,6 +128,7 @@ impl Tracker {
                     sign: m.tighten.map_or(1.0, |t| t.sign()),
                     angle: Vec::new(),
                     confidence: Vec::new(),
+                    rings: Vec::new(),
                 }),
                 Mark::Side(_) => Err(Error::Mark {
                     mark: role.name().into(),
@@ -133,19 +138,16 @@ impl Tracker {
         };
         let drive = make(Role::Drive, &rig.marks.drive)?;
         let nut = make(Role::Nut, &rig.marks.nut)?;
-        let (fixed, shake, fixed_pivot) = match &rig.marks.fixed {
+        let (fixed, shake) = match &rig.marks.fixed {
             Some(m) => {
                 let t = make(Role::Fixed, m)?;
-                let Mark::Radial(r) = m else {
-                    unreachable!("side marks were rejected above")
+                let shake = match m {
+                    Mark::Radial(r) => Some(ShakeEstimator::new(r, width, height)),
+                    Mark::Side(_) => None,
                 };
-                (
-                    Some(t),
-                    Some(ShakeEstimator::new(r, width, height)),
-                    r.pivot,
-                )
+                (Some(t), shake)
             }
-            None => (None, None, [0.0, 0.0]),
+            None => (None, None),
         };
         Ok(Tracker {
             frames: Vec::new(),
@@ -154,11 +156,8 @@ impl Tracker {
             drive,
             nut,
             fixed,
-            fixed_pivot,
             shake,
-            roll: 0.0,
             shift: [0.0, 0.0],
-            fixed_zero: 0.0,
         })
     }
 
@@ -180,7 +179,7 @@ impl Tracker {
         let first = self.frames.is_empty();
         self.frames.push(frame.index);
 
-        // Shake: translation at the fixed mark, then the fixed mark's own angle (roll).
+        // Shake: translation at the fixed mark, relative to the first frame.
         if let Some(sh) = self.shake.as_mut() {
             if first {
                 if !sh.init(frame) {
@@ -190,30 +189,12 @@ impl Tracker {
                 self.shift = sh.estimate(frame);
             }
         }
+        let shift = self.shift;
         if let Some(f) = self.fixed.as_mut() {
-            let m = measure(f, frame, self.shift, first)?;
-            match m {
-                Some(a) if first => self.fixed_zero = a,
-                Some(a) => self.roll = a - self.fixed_zero,
-                None => {}
-            }
+            measure(f, frame, shift, first)?;
         }
-        let (roll, shift, fp) = (self.roll, self.shift, self.fixed_pivot);
-        for t in [&mut self.drive, &mut self.nut] {
-            // Shift at this mark's pivot: translation plus roll about the fixed pivot.
-            let p = t.radial.grid().pivot();
-            let (s, c) = roll.sin_cos();
-            let (dx, dy) = (p[0] - fp[0], p[1] - fp[1]);
-            let here = [
-                shift[0] + (c - 1.0) * dx - s * dy,
-                shift[1] + s * dx + (c - 1.0) * dy,
-            ];
-            let here = if self.fixed.is_some() { here } else { [0.0, 0.0] };
-            let m = measure(t, frame, here, first)?;
-            if let (Some(a), Some(slot)) = (m, t.angle.last_mut()) {
-                *slot = Some(a - roll);
-            }
-        }
+        measure(&mut self.drive, frame, shift, first)?;
+        measure(&mut self.nut, frame, shift, first)?;
         Ok(())
     }
 
@@ -221,9 +202,13 @@ impl Tracker {
     pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
         let mut warnings = Vec::new();
         let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
-            let zero = t.angle.first().copied().flatten();
-            let v = t
-                .angle
+            let (refined, _pivot_correction) = refine::refine(&refine::RingData {
+                angles: &t.angle,
+                rings: &t.rings,
+                radius: &t.radial.grid().radius,
+            });
+            let zero = refined.first().copied().flatten();
+            let v = refined
                 .iter()
                 .map(|a| Some(Angle::from_rad(t.sign * (a.as_ref()? - zero?))))
                 .collect();
@@ -276,5 +261,131 @@ fn measure(t: &mut MarkTrack, frame: &Frame, shift: [f64; 2], first: bool) -> Re
     };
     t.angle.push(m.map(|m| m.angle));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
+    match m {
+        Some(_) => t.rings.extend_from_slice(t.radial.rings()),
+        None => t
+            .rings
+            .extend(std::iter::repeat_n((0.0, 0.0), t.radial.grid().rings)),
+    }
     Ok(m.map(|m| m.angle))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::synth::{Scenario, render_frame, simulate};
+
+    #[test]
+    #[ignore = "diagnostic"]
+    fn diag_shake() {
+        let mut sc = Scenario::preset("fast-tool").unwrap();
+        sc.effects.shake_sigma_px = 1.0;
+        let truth = simulate(&sc);
+        let rig = sc.rig();
+        let mut t = Tracker::new(&rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        for i in 0..40 {
+            t.push(&render_frame(&sc, &truth, i)).unwrap();
+            let s = truth.shake_px[i as usize];
+            let s0 = truth.shake_px[0];
+            let d = t.drive.angle[i as usize].unwrap() - t.drive.angle[0].unwrap();
+            let n = t.nut.angle[i as usize].unwrap() - t.nut.angle[0].unwrap();
+            eprintln!(
+                "{i}: shift est {:?} truth {:?} drive err {:.3} nut err {:.3}",
+                t.shift,
+                [s[0] - s0[0], s[1] - s0[1]],
+                d.to_degrees() - truth.trace.drive_deg[i as usize],
+                n.to_degrees() - truth.trace.nut_deg[i as usize]
+            );
+        }
+    }
+}
+
+#[cfg(test)]
+mod diag_pivot {
+    use super::*;
+    use crate::rig::Mark;
+    use crate::synth::{Scenario, render_frame, simulate};
+
+    #[test]
+    #[ignore = "diagnostic"]
+    fn diag_pivot_error() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let mut rig = sc.rig();
+        for m in [&mut rig.marks.drive, &mut rig.marks.nut] {
+            if let Mark::Radial(r) = m {
+                r.pivot[0] += 1.0;
+            }
+        }
+        let mut t = Tracker::new(&rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        let n = truth.frames;
+        for i in 0..n {
+            t.push(&render_frame(&sc, &truth, i)).unwrap();
+        }
+        let (tr, _) = t.finish(TimeBase::from_fps(1000.0, "t").unwrap());
+        let (mut sd, mut sn) = (0.0, 0.0);
+        for i in 0..n as usize {
+            sd += (tr.drive[i].unwrap().deg() - truth.trace.drive_deg[i]).powi(2);
+            sn += (tr.nut[i].unwrap().deg() - truth.trace.nut_deg[i]).powi(2);
+        }
+        eprintln!(
+            "travel drive {:.1} nut {:.1}; rms drive {:.3} nut {:.3}",
+            truth.trace.drive_deg[n as usize - 1],
+            truth.trace.nut_deg[n as usize - 1],
+            (sd / n as f64).sqrt(),
+            (sn / n as f64).sqrt()
+        );
+    }
+}
+
+#[cfg(test)]
+mod diag_refine {
+    use super::*;
+    use crate::synth::{Scenario, render_frame, simulate};
+
+    #[test]
+    #[ignore = "diagnostic"]
+    fn diag_refine_nut() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let rig = sc.rig();
+        let mut t = Tracker::new(&rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        for i in 0..truth.frames {
+            t.push(&render_frame(&sc, &truth, i)).unwrap();
+        }
+        for m in [&t.drive, &t.nut] {
+            let (out, p) = refine::refine(&refine::RingData {
+                angles: &m.angle,
+                rings: &m.rings,
+                radius: &m.radial.grid().radius,
+            });
+            let truth_deg = if m.role == Role::Drive {
+                &truth.trace.drive_deg
+            } else {
+                &truth.trace.nut_deg
+            };
+            let (mut a, mut b) = (0.0, 0.0);
+            for i in 0..out.len() {
+                let raw = (m.angle[i].unwrap() - m.angle[0].unwrap()).to_degrees() * m.sign;
+                let re = (out[i].unwrap() - out[0].unwrap()).to_degrees() * m.sign;
+                a += (raw - truth_deg[i]).powi(2);
+                b += (re - truth_deg[i]).powi(2);
+                if i % 25 == 0 {
+                    eprintln!(
+                        "{i}: truth {:.3} raw err {:.4} refined err {:.4}",
+                        truth_deg[i],
+                        raw - truth_deg[i],
+                        re - truth_deg[i]
+                    );
+                }
+            }
+            let n = out.len() as f64;
+            eprintln!(
+                "{:?}: p {p:?} raw rms {:.4} refined rms {:.4}",
+                m.role,
+                (a / n).sqrt(),
+                (b / n).sqrt()
+            );
+        }
+    }
 }

@@ -88,11 +88,6 @@ impl PolarGrid {
         grid
     }
 
-    /// The pivot on screen, px.
-    pub fn pivot(&self) -> [f64; 2] {
-        self.pivot
-    }
-
     /// Angular step between bins, rad.
     pub fn step(&self) -> f64 {
         2.0 * PI / self.bins as f64

@@ -98,6 +98,8 @@ pub(crate) struct RadialTracker {
     ring_ok: Vec<bool>,
     sort_buf: Vec<(f64, f64)>,
     dev_buf: Vec<(f64, f64)>,
+    /// Per ring, from the last measurement: angle relative to the result (rad) and weight.
+    ring_out: Vec<(f32, f32)>,
     model: Option<StripeModel>,
     /// Last good continuous angle, its velocity (rad/frame) and frames since it.
     last: Option<f64>,
@@ -121,6 +123,7 @@ impl RadialTracker {
             ring_ok: vec![false; k],
             sort_buf: Vec::with_capacity(k.max(n)),
             dev_buf: Vec::with_capacity(k),
+            ring_out: vec![(0.0, 0.0); k],
             model: None,
             last: None,
             velocity: 0.0,
@@ -132,6 +135,12 @@ impl RadialTracker {
     /// The sampling grid.
     pub fn grid(&self) -> &PolarGrid {
         &self.grid
+    }
+
+    /// Per ring, from the last successful measurement: the ring's stripe angle minus the
+    /// measured angle (rad), and the ring's weight in the result (0 when not used).
+    pub fn rings(&self) -> &[(f32, f32)] {
+        &self.ring_out
     }
 
     /// Learns the stripe from the first frame and measures it there.
@@ -390,6 +399,20 @@ impl RadialTracker {
         let inlier_frac = inliers as f64 / k_n as f64;
         if inlier_frac < MIN_INLIER_FRACTION {
             return None;
+        }
+        // Each ring's angle relative to the result, and its final weight, for the pivot
+        // refinement done once the whole clip is seen (see `refine.rs`).
+        for k in 0..k_n {
+            let ring_theta = wrap_pi(self.ring_c[k] * step - theta_c);
+            let e = ring_theta - model.offset[k];
+            let u = (e - mu) / c;
+            let w = if self.ring_ok[k] && u.abs() < 1.0 {
+                let t = 1.0 - u * u;
+                self.ring_z[k].min(30.0).powi(2) * self.grid.radius[k].powi(2) * t * t
+            } else {
+                0.0
+            };
+            self.ring_out[k] = ((ring_theta - mu) as f32, w as f32);
         }
         let raw = wrap_pi(theta_c + mu);
         let angle = match pred {
