@@ -134,6 +134,25 @@ impl ClipWriter {
         fps_hz: f64,
         bit_depth: u8,
     ) -> Result<Self> {
+        Self::create_inner(path, codec, width, height, fps_hz, bit_depth, false)
+    }
+
+    /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
+    /// swscale path for formats without a Y plane.
+    #[cfg(test)]
+    pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
+        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, true)
+    }
+
+    fn create_inner(
+        path: &Path,
+        codec: Codec,
+        width: u32,
+        height: u32,
+        fps_hz: f64,
+        bit_depth: u8,
+        rgb_png: bool,
+    ) -> Result<Self> {
         ffmpeg_init();
         let fail = |reason: String| Error::Output {
             path: path.to_path_buf(),
@@ -160,7 +179,12 @@ impl ClipWriter {
                 "the mp4 container cannot hold FFV1; use .mkv, .mov or .avi".into(),
             ));
         }
-        let pix = codec.pixel_format(bit_depth).ok_or_else(|| {
+        let pix = if rgb_png {
+            Some(Pixel::RGB24)
+        } else {
+            codec.pixel_format(bit_depth)
+        };
+        let pix = pix.ok_or_else(|| {
             fail(format!(
                 "{} cannot store {bit_depth}-bit frames here; use FFV1 (8, 10, 12, 16 bit) or \
                  H.264 (8, 10 bit)",
@@ -170,7 +194,10 @@ impl ClipWriter {
         if width == 0 || height == 0 {
             return Err(fail(format!("frame size {width}x{height} is empty")));
         }
-        let subsampled = !matches!(pix, Pixel::GRAY8 | Pixel::GRAY12LE | Pixel::GRAY16LE);
+        let subsampled = !matches!(
+            pix,
+            Pixel::GRAY8 | Pixel::GRAY12LE | Pixel::GRAY16LE | Pixel::RGB24
+        );
         if subsampled && (!width.is_multiple_of(2) || !height.is_multiple_of(2)) {
             return Err(fail(format!(
                 "{} stores 4:2:0 colour and needs an even frame size, got {width}x{height}",
@@ -199,6 +226,7 @@ impl ClipWriter {
             .contains(ff::format::Flags::GLOBAL_HEADER);
 
         let (codec_id, name) = match codec {
+            _ if rgb_png => (codec::Id::PNG, None),
             Codec::Ffv1 => (codec::Id::FFV1, None),
             Codec::H264 { .. } => (codec::Id::H264, Some("libx264")),
             Codec::Mjpeg { .. } => (codec::Id::MJPEG, None),
@@ -325,8 +353,17 @@ impl ClipWriter {
         }
         let w = self.width as usize;
         let stride = self.picture.stride(0);
+        let rgb = self.picture.format() == Pixel::RGB24;
         let dst = self.picture.data_mut(0);
         match &frame.luma {
+            Luma::U8(src) if rgb => {
+                for (row, line) in src.chunks_exact(w).enumerate() {
+                    let out = &mut dst[row * stride..row * stride + 3 * w];
+                    for (o, &v) in out.chunks_exact_mut(3).zip(line) {
+                        o.fill(v);
+                    }
+                }
+            }
             Luma::U8(src) => {
                 for (row, line) in src.chunks_exact(w).enumerate() {
                     dst[row * stride..row * stride + w].copy_from_slice(line);

@@ -15,7 +15,7 @@ pub struct AnalyzeArgs {
     #[arg(long)]
     rig: PathBuf,
     /// The camera's capture rate in frames per second (overrides the rig's capture_fps_hz).
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true)]
     fps: Option<String>,
     /// Folder for report.json, blows.csv, trace.csv and plots.
     #[arg(long, value_name = "DIR", default_value = "twistmark-out")]

@@ -166,8 +166,9 @@ pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
     open_video(path)
 }
 
-/// Initialises the FFmpeg libraries once per process and sets their log level to errors only,
-/// so that they never print (the library must not write to stderr).
+/// Initialises the FFmpeg libraries once per process and silences their logging: even at the
+/// "error" level FFmpeg prints lines such as "moov atom not found" to stderr, and the library
+/// must never print. Every failure still reaches the caller as an [`Error`].
 #[cfg(feature = "ffmpeg")]
 pub(crate) fn ffmpeg_init() {
     static ONCE: std::sync::Once = std::sync::Once::new();
@@ -175,7 +176,7 @@ pub(crate) fn ffmpeg_init() {
         // `init` only registers devices and sets nothing that can fail in a way we could act on;
         // a failure here shows up as an open error on the first file.
         let _ = ffmpeg_next::init();
-        ffmpeg_next::util::log::set_level(ffmpeg_next::util::log::Level::Error);
+        ffmpeg_next::util::log::set_level(ffmpeg_next::util::log::Level::Quiet);
     });
 }
 

@@ -1,19 +1,437 @@
-//! Video files decoded with the FFmpeg libraries; the luma plane is copied row by row.
+//! Stage 1, decode (feature `ffmpeg`): video files (mp4, mov, mkv, avi, ...) decoded with the
+//! FFmpeg libraries into luma [`Frame`]s, one at a time.
+//!
+//! - The luma plane is copied row by row using the decoder's stride (no scaling, no range
+//!   change) for every pixel format whose first plane holds Y: `gray*`, `yuv*p*`, `yuvj*p`,
+//!   `nv12` and packed `yuyv422`-style formats. Only formats without a Y plane (RGB, palette)
+//!   go through swscale, to `gray` (8 bit) or `gray16le` (deeper).
+//! - 8-bit formats give [`Luma::U8`]; 9- to 16-bit formats give [`Luma::U16`] with the format's
+//!   own bit depth (10 for `yuv420p10le`, 16 for `gray16le`).
+//! - Frame indices count decoded frames from 0; container timestamps are never used for
+//!   timing (Matroska, for one, rounds them to 1 ms).
+//! - The frame count in [`ClipInfo`] is exact: the video stream's packets are counted on open
+//!   (demuxing only, no decoding), because containers often omit the count (Matroska) or may
+//!   carry a stale one. Each packet of the supported codecs holds exactly one frame, and B-frame
+//!   reordering changes the order frames leave the decoder, not their number; the tests check
+//!   the count against a full decode for every codec and container.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
-use super::{ClipInfo, Frame, FrameSource};
+use ff::format::Pixel;
+use ff::packet::Ref as _;
+use ffmpeg_next as ff;
+
+use super::{ClipInfo, ClipKind, Frame, FrameSource, Luma, ffmpeg_init};
 use crate::error::{Error, Result};
+use crate::warning::Warning;
+
+/// How the luma samples are taken out of a decoded picture.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum LumaPlan {
+    /// 8-bit Y in plane 0: byte `offset + x * step` of each row.
+    Direct8 { offset: usize, step: usize },
+    /// 9- to 16-bit little-endian Y in plane 0, two bytes per sample, no shift.
+    Direct16 { depth: u8 },
+    /// No usable Y plane: convert with swscale to `gray` (deep = false) or `gray16le`.
+    Scale { deep: bool },
+}
+
+impl LumaPlan {
+    fn bit_depth(self) -> u8 {
+        match self {
+            LumaPlan::Direct8 { .. } => 8,
+            LumaPlan::Direct16 { depth } => depth,
+            LumaPlan::Scale { deep } => {
+                if deep {
+                    16
+                } else {
+                    8
+                }
+            }
+        }
+    }
+}
+
+/// Chooses how to read luma from pixel format `pix`, from its FFmpeg descriptor.
+fn plan_for(pix: Pixel) -> LumaPlan {
+    let Some(desc) = pix.descriptor() else {
+        return LumaPlan::Scale { deep: false };
+    };
+    // SAFETY: the descriptor pointer comes from av_pix_fmt_desc_get and is static.
+    let d = unsafe { &*desc.as_ptr() };
+    let c = d.comp[0];
+    let flags = d.flags;
+    let depth = c.depth.clamp(1, 16) as u8;
+    let no_y = flags
+        & (ff::ffi::AV_PIX_FMT_FLAG_RGB
+            | ff::ffi::AV_PIX_FMT_FLAG_PAL
+            | ff::ffi::AV_PIX_FMT_FLAG_BITSTREAM
+            | ff::ffi::AV_PIX_FMT_FLAG_HWACCEL
+            | ff::ffi::AV_PIX_FMT_FLAG_FLOAT
+            | ff::ffi::AV_PIX_FMT_FLAG_BE) as u64
+        != 0;
+    if no_y || c.plane != 0 || c.shift != 0 {
+        return LumaPlan::Scale { deep: depth > 8 };
+    }
+    match (depth, c.step, c.offset) {
+        (8, step @ 1..=4, offset) if offset >= 0 => LumaPlan::Direct8 {
+            offset: offset as usize,
+            step: step as usize,
+        },
+        (9..=16, 2, 0) => LumaPlan::Direct16 { depth },
+        _ => LumaPlan::Scale { deep: depth > 8 },
+    }
+}
 
 /// Decodes a video file one frame at a time.
 pub struct VideoSource {
     info: ClipInfo,
+    ictx: ff::format::context::Input,
+    stream_index: usize,
+    decoder: ff::decoder::Video,
+    picture: ff::frame::Video,
+    packet: ff::Packet,
+    scaler: Option<(Pixel, u32, u32, ff::software::scaling::Context)>,
+    gray: ff::frame::Video,
+    next_index: u64,
+    eof_sent: bool,
+    done: bool,
 }
 
+// SAFETY: the FFmpeg contexts inside are owned exclusively by this value and never shared;
+// moving them to another thread between calls is allowed by FFmpeg (no thread-local state).
+unsafe impl Send for VideoSource {}
+
 impl VideoSource {
-    /// Opens the file and its first video stream.
+    /// Opens the file, checks that it holds a decodable video stream, and counts its frames.
+    ///
+    /// # Errors
+    /// [`Error::Input`] naming the file when it is empty, not a video FFmpeg can read, a single
+    /// still image or a text file, audio only, or has no frames; [`Error::Io`] when it cannot be
+    /// read at all.
     pub fn open(path: &Path) -> Result<Self> {
-        Err(Error::input(path, "video decoding is not built yet"))
+        ffmpeg_init();
+        let meta = std::fs::metadata(path).map_err(|e| Error::io(path, e))?;
+        if meta.len() == 0 {
+            return Err(Error::input(
+                path,
+                "the file is empty (0 bytes); give a video file or a folder of stills",
+            ));
+        }
+        let (stream_index, counted, irregular) = scan(path)?;
+        let mut ictx = open_input(path)?;
+        let stream = ictx
+            .stream(stream_index)
+            .ok_or_else(|| Error::input(path, "the video stream vanished on reopening"))?;
+        let params = stream.parameters();
+        let codec_name = params.id().name().to_string();
+        let container_fps_hz = [stream.avg_frame_rate(), stream.rate()]
+            .into_iter()
+            .find(|r| r.numerator() > 0 && r.denominator() > 0)
+            .map(f64::from);
+        let mut ctx = ff::codec::context::Context::from_parameters(params).map_err(|e| {
+            Error::input(path, format!("cannot set up a {codec_name} decoder: {e}"))
+        })?;
+        // Only thread_count is set: libavcodec then keeps its own frame+slice threading
+        // default (choosing one kind through ffmpeg-next turned threading off for FFV1).
+        let threads = std::thread::available_parallelism()
+            .map(|n| n.get().min(16))
+            .unwrap_or(1) as i32;
+        // SAFETY: ctx wraps a valid, not yet opened AVCodecContext.
+        unsafe {
+            (*ctx.as_mut_ptr()).thread_count = threads;
+        }
+        let decoder = ctx.decoder().video().map_err(|e| {
+            Error::input(
+                path,
+                format!(
+                    "this FFmpeg build cannot decode its {codec_name} video ({e}); re-encode it, \
+                     e.g. to FFV1 or H.264"
+                ),
+            )
+        })?;
+        let (width, height) = (decoder.width(), decoder.height());
+        if width == 0 || height == 0 {
+            return Err(Error::input(
+                path,
+                format!("the {codec_name} video stream has no frame size; the file may be damaged"),
+            ));
+        }
+        let bit_depth = plan_for(decoder.format()).bit_depth();
+        let mut warnings = Vec::new();
+        if irregular {
+            warnings.push(Warning::Note(
+                "the container's timestamps are irregular (variable frame rate); twistmark \
+                 ignores them and times every frame as frame index / capture rate"
+                    .into(),
+            ));
+        }
+        // Keep the packet reader at the video stream only.
+        for (i, mut s) in ictx.streams_mut().enumerate() {
+            if i != stream_index {
+                // SAFETY: valid stream pointer owned by ictx.
+                unsafe {
+                    (*s.as_mut_ptr()).discard = ff::ffi::AVDiscard::AVDISCARD_ALL;
+                }
+            }
+        }
+        let info = ClipInfo {
+            path: path.to_path_buf(),
+            kind: ClipKind::Video,
+            frames: counted,
+            width,
+            height,
+            bit_depth,
+            container_fps_hz,
+            codec: codec_name,
+            duration_s: container_fps_hz.map(|fps| counted as f64 / fps),
+            warnings,
+        };
+        Ok(VideoSource {
+            info,
+            ictx,
+            stream_index,
+            decoder,
+            picture: ff::frame::Video::empty(),
+            packet: ff::Packet::empty(),
+            scaler: None,
+            gray: ff::frame::Video::empty(),
+            next_index: 0,
+            eof_sent: false,
+            done: false,
+        })
+    }
+
+    fn path(&self) -> PathBuf {
+        self.info.path.clone()
+    }
+
+    fn decode_error(&self, reason: String) -> Error {
+        Error::Decode {
+            path: self.path(),
+            frame: self.next_index,
+            reason,
+        }
+    }
+
+    /// Copies the luma of `self.picture` into `frame`.
+    fn copy_out(&mut self, frame: &mut Frame) -> Result<()> {
+        let (w, h) = (self.picture.width(), self.picture.height());
+        if w != self.info.width || h != self.info.height {
+            return Err(self.decode_error(format!(
+                "the frame size changed from {}x{} to {w}x{h}; twistmark needs one size per clip",
+                self.info.width, self.info.height
+            )));
+        }
+        let plan = plan_for(self.picture.format());
+        frame.index = self.next_index;
+        frame.width = w;
+        frame.height = h;
+        frame.bit_depth = plan.bit_depth();
+        let (wu, hu) = (w as usize, h as usize);
+        match plan {
+            LumaPlan::Direct8 { offset, step } => {
+                copy_u8(&self.picture, offset, step, wu, hu, frame);
+            }
+            LumaPlan::Direct16 { .. } => copy_u16(&self.picture, wu, hu, frame),
+            LumaPlan::Scale { deep } => {
+                let src_fmt = self.picture.format();
+                let dst_fmt = if deep { Pixel::GRAY16LE } else { Pixel::GRAY8 };
+                let stale = !matches!(&self.scaler, Some((f, sw, sh, _)) if *f == src_fmt && *sw == w && *sh == h);
+                if stale {
+                    let ctx = ff::software::scaling::Context::get(
+                        src_fmt,
+                        w,
+                        h,
+                        dst_fmt,
+                        w,
+                        h,
+                        ff::software::scaling::Flags::POINT,
+                    )
+                    .map_err(|e| {
+                        self.decode_error(format!(
+                            "cannot convert pixel format {} to grey: {e}",
+                            src_fmt.descriptor().map_or("?", |d| d.name())
+                        ))
+                    })?;
+                    self.scaler = Some((src_fmt, w, h, ctx));
+                }
+                let Some((_, _, _, sws)) = self.scaler.as_mut() else {
+                    unreachable!("scaler set above");
+                };
+                sws.run(&self.picture, &mut self.gray)
+                    .map_err(|e| self.decode_error(format!("grey conversion failed: {e}")))?;
+                if deep {
+                    copy_u16(&self.gray, wu, hu, frame);
+                } else {
+                    copy_u8(&self.gray, 0, 1, wu, hu, frame);
+                }
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The reason FFmpeg gives, for messages.
+fn ff_reason(e: &ff::Error) -> String {
+    match e {
+        ff::Error::InvalidData => {
+            "FFmpeg finds no valid media data: it is not a video, or it is damaged or cut short"
+                .into()
+        }
+        other => other.to_string(),
+    }
+}
+
+fn open_input(path: &Path) -> Result<ff::format::context::Input> {
+    ff::format::input(&path).map_err(|e| {
+        Error::input(
+            path,
+            format!(
+                "cannot be read as a video ({}); give a video file (mp4, mov, mkv, avi) or a \
+                 folder of numbered stills",
+                ff_reason(&e)
+            ),
+        )
+    })
+}
+
+/// Opens the file once to pick the video stream and count its frames by demuxing (no
+/// decoding). Returns (stream index, frame count, timestamps irregular).
+fn scan(path: &Path) -> Result<(usize, u64, bool)> {
+    let mut ictx = open_input(path)?;
+    let demuxer = ictx.format().name().to_string();
+    if demuxer == "tty" {
+        return Err(Error::input(
+            path,
+            "looks like a text file, not a video; give a video file or a folder of stills",
+        ));
+    }
+    if demuxer == "image2" || demuxer.ends_with("_pipe") {
+        let kind = demuxer.trim_end_matches("_pipe");
+        return Err(Error::input(
+            path,
+            format!(
+                "is a single still image ({kind}), not a video; put numbered stills in a folder \
+                 and give the folder"
+            ),
+        ));
+    }
+    let mut video = None;
+    let mut audio = 0usize;
+    for s in ictx.streams() {
+        let medium = s.parameters().medium();
+        let attached = s
+            .disposition()
+            .contains(ff::format::stream::Disposition::ATTACHED_PIC);
+        match medium {
+            ff::media::Type::Video if !attached && video.is_none() => video = Some(s.index()),
+            ff::media::Type::Audio => audio += 1,
+            _ => {}
+        }
+    }
+    let Some(index) = video else {
+        let reason = if audio > 0 {
+            "has only audio, no video stream; give the camera's video file".to_string()
+        } else {
+            format!("has no video stream ({demuxer} container); give the camera's video file")
+        };
+        return Err(Error::input(path, reason));
+    };
+    let mut count = 0u64;
+    let mut stamps: Vec<i64> = Vec::new();
+    let mut packet = ff::Packet::empty();
+    loop {
+        match packet.read(&mut ictx) {
+            Ok(()) => {}
+            Err(ff::Error::Eof) => break,
+            // A damaged tail: count what could be read; decoding reports the error later.
+            Err(_) => break,
+        }
+        if packet.stream() != index {
+            continue;
+        }
+        // SAFETY: the packet wraps a valid AVPacket just filled by av_read_frame.
+        let discard = unsafe { (*packet.as_ptr()).flags & ff::ffi::AV_PKT_FLAG_DISCARD } != 0;
+        if discard {
+            continue;
+        }
+        count += 1;
+        if let Some(t) = packet.pts().or(packet.dts()) {
+            stamps.push(t);
+        }
+    }
+    if count == 0 {
+        return Err(Error::input(
+            path,
+            "has a video stream but no frames in it; the recording may have failed",
+        ));
+    }
+    Ok((index, count, timestamps_irregular(&mut stamps)))
+}
+
+/// True when frame timestamps (in stream ticks) vary by more than rounding explains: the
+/// spread of successive differences is over 2 ticks and over 10 % of the median interval.
+fn timestamps_irregular(stamps: &mut [i64]) -> bool {
+    if stamps.len() < 3 {
+        return false;
+    }
+    stamps.sort_unstable();
+    let mut diffs: Vec<i64> = stamps.windows(2).map(|p| p[1] - p[0]).collect();
+    diffs.sort_unstable();
+    let median = diffs[diffs.len() / 2];
+    let spread = diffs[diffs.len() - 1] - diffs[0];
+    spread > 2 && spread as f64 > 0.1 * median as f64
+}
+
+fn copy_u8(
+    pic: &ff::frame::Video,
+    offset: usize,
+    step: usize,
+    w: usize,
+    h: usize,
+    frame: &mut Frame,
+) {
+    let buf = match &mut frame.luma {
+        Luma::U8(v) => v,
+        other => {
+            *other = Luma::U8(Vec::new());
+            let Luma::U8(v) = other else { unreachable!() };
+            v
+        }
+    };
+    buf.resize(w * h, 0);
+    let stride = pic.stride(0);
+    let data = pic.data(0);
+    for (row, out) in buf.chunks_exact_mut(w).enumerate() {
+        let line = &data[row * stride..];
+        if step == 1 {
+            out.copy_from_slice(&line[offset..offset + w]);
+        } else {
+            for (x, o) in out.iter_mut().enumerate() {
+                *o = line[offset + x * step];
+            }
+        }
+    }
+}
+
+fn copy_u16(pic: &ff::frame::Video, w: usize, h: usize, frame: &mut Frame) {
+    let buf = match &mut frame.luma {
+        Luma::U16(v) => v,
+        other => {
+            *other = Luma::U16(Vec::new());
+            let Luma::U16(v) = other else { unreachable!() };
+            v
+        }
+    };
+    buf.resize(w * h, 0);
+    let stride = pic.stride(0);
+    let data = pic.data(0);
+    for (row, out) in buf.chunks_exact_mut(w).enumerate() {
+        let line = &data[row * stride..row * stride + 2 * w];
+        for (o, b) in out.iter_mut().zip(line.chunks_exact(2)) {
+            *o = u16::from_le_bytes([b[0], b[1]]);
+        }
     }
 }
 
@@ -21,7 +439,197 @@ impl FrameSource for VideoSource {
     fn info(&self) -> &ClipInfo {
         &self.info
     }
-    fn read_into(&mut self, _frame: &mut Frame) -> Result<bool> {
-        Ok(false)
+
+    fn read_into(&mut self, frame: &mut Frame) -> Result<bool> {
+        if self.done {
+            return Ok(false);
+        }
+        loop {
+            match self.decoder.receive_frame(&mut self.picture) {
+                Ok(()) => {
+                    // SAFETY: picture wraps a valid AVFrame just filled by the decoder.
+                    let (errors, flags) = unsafe {
+                        let p = self.picture.as_ptr();
+                        ((*p).decode_error_flags, (*p).flags)
+                    };
+                    if errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0 {
+                        self.done = true;
+                        return Err(self.decode_error(
+                            "the frame is damaged (the decoder had to conceal errors); the file \
+                             may be cut short or corrupt: re-export it, or analyse only the frames \
+                             before this one with --end-s"
+                                .into(),
+                        ));
+                    }
+                    if let Err(e) = self.copy_out(frame) {
+                        self.done = true;
+                        return Err(e);
+                    }
+                    self.next_index += 1;
+                    return Ok(true);
+                }
+                Err(ff::Error::Eof) => {
+                    self.done = true;
+                    return Ok(false);
+                }
+                Err(ff::Error::Other { errno }) if errno == ff::util::error::EAGAIN => {}
+                Err(e) => {
+                    self.done = true;
+                    return Err(self.decode_error(format!("the decoder failed: {e}")));
+                }
+            }
+            if self.eof_sent {
+                // Drained but no end-of-stream marker: treat as the end.
+                self.done = true;
+                return Ok(false);
+            }
+            // Feed the next packet of the video stream.
+            loop {
+                match self.packet.read(&mut self.ictx) {
+                    Ok(()) if self.packet.stream() == self.stream_index => {
+                        if let Err(e) = self.decoder.send_packet(&self.packet) {
+                            self.done = true;
+                            return Err(self.decode_error(format!(
+                                "damaged data ({e}); the file may be cut short or corrupt"
+                            )));
+                        }
+                        break;
+                    }
+                    Ok(()) => continue,
+                    Err(ff::Error::Eof) => {
+                        // Any error here is about flushing; the drain above reports real ones.
+                        let _ = self.decoder.send_eof();
+                        self.eof_sent = true;
+                        break;
+                    }
+                    Err(e) => {
+                        self.done = true;
+                        return Err(self.decode_error(format!(
+                            "cannot read the file ({e}); it may be cut short or corrupt"
+                        )));
+                    }
+                }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn plans_for_common_formats() {
+        assert_eq!(
+            plan_for(Pixel::YUV420P),
+            LumaPlan::Direct8 { offset: 0, step: 1 }
+        );
+        assert_eq!(
+            plan_for(Pixel::GRAY8),
+            LumaPlan::Direct8 { offset: 0, step: 1 }
+        );
+        assert_eq!(
+            plan_for(Pixel::NV12),
+            LumaPlan::Direct8 { offset: 0, step: 1 }
+        );
+        assert_eq!(
+            plan_for(Pixel::YUYV422),
+            LumaPlan::Direct8 { offset: 0, step: 2 }
+        );
+        assert_eq!(
+            plan_for(Pixel::UYVY422),
+            LumaPlan::Direct8 { offset: 1, step: 2 }
+        );
+        assert_eq!(
+            plan_for(Pixel::YUV420P10LE),
+            LumaPlan::Direct16 { depth: 10 }
+        );
+        assert_eq!(plan_for(Pixel::GRAY16LE), LumaPlan::Direct16 { depth: 16 });
+        assert_eq!(plan_for(Pixel::RGB24), LumaPlan::Scale { deep: false });
+        assert_eq!(plan_for(Pixel::BGRZ), LumaPlan::Scale { deep: false });
+        assert_eq!(plan_for(Pixel::PAL8), LumaPlan::Scale { deep: false });
+        assert_eq!(plan_for(Pixel::RGB48LE), LumaPlan::Scale { deep: true });
+        assert_eq!(plan_for(Pixel::GRAY16BE), LumaPlan::Scale { deep: true });
+        // P010 keeps its 10 bits in the high end of each word: needs conversion.
+        assert_eq!(plan_for(Pixel::P010LE), LumaPlan::Scale { deep: true });
+    }
+
+    #[test]
+    fn timestamp_regularity() {
+        // Matroska at 240 fps: 1 ms rounding gives 4 or 5 ms steps; still regular.
+        let mut mkv: Vec<i64> = (0..50)
+            .map(|i| (i as f64 * 1000.0 / 240.0).round() as i64)
+            .collect();
+        assert!(!timestamps_irregular(&mut mkv));
+        // 2000 fps in 1 ms ticks: steps of 0 or 1.
+        let mut fast: Vec<i64> = (0..50).map(|i| i / 2).collect();
+        assert!(!timestamps_irregular(&mut fast));
+        // A 30 fps clip with a dropped stretch.
+        let mut vfr: Vec<i64> = (0..20)
+            .map(|i| i * 33)
+            .chain((20..40).map(|i| i * 33 + 200))
+            .collect();
+        assert!(timestamps_irregular(&mut vfr));
+    }
+
+    fn pattern(i: u64, w: u32, h: u32) -> Frame {
+        let data = (0..w * h)
+            .map(|p| (((p % w) * 5 + (p / w) * 3 + i as u32 * 11) % 251) as u8)
+            .collect();
+        Frame::from_u8(i, w, h, data)
+    }
+
+    fn decode_all(path: &Path) -> (ClipInfo, Vec<Frame>) {
+        let mut src = VideoSource::open(path).unwrap();
+        let mut f = Frame::empty();
+        let mut out = Vec::new();
+        while src.read_into(&mut f).unwrap() {
+            out.push(f.clone());
+        }
+        (src.info().clone(), out)
+    }
+
+    #[test]
+    fn rgb_video_goes_through_swscale_to_the_same_grey() {
+        use crate::encode::ClipWriter;
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("rgb.mkv");
+        let mut w = ClipWriter::create_rgb_for_tests(&p, 33, 20).unwrap();
+        let input: Vec<Frame> = (0..5).map(|i| pattern(i, 33, 20)).collect();
+        for f in &input {
+            w.write(f).unwrap();
+        }
+        w.finish().unwrap();
+        let (info, frames) = decode_all(&p);
+        assert_eq!(info.codec, "png");
+        assert_eq!(
+            (info.frames, info.width, info.height, info.bit_depth),
+            (5, 33, 20, 8)
+        );
+        assert_eq!(frames.len(), 5);
+        for (a, b) in input.iter().zip(&frames) {
+            let (Luma::U8(x), Luma::U8(y)) = (&a.luma, &b.luma) else {
+                panic!("8-bit expected");
+            };
+            // R = G = B = v must come back as v (swscale rounding allows 1).
+            let worst = x.iter().zip(y).map(|(&p, &q)| p.abs_diff(q)).max().unwrap();
+            assert!(worst <= 1, "frame {}: worst difference {worst}", a.index);
+        }
+    }
+
+    #[test]
+    fn odd_sizes_and_strides_copy_exactly() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("odd.mkv");
+        // 37 px rows are padded to a larger stride inside FFmpeg.
+        let mut w = ClipWriter::create(&p, Codec::Ffv1, 37, 11, 30.0).unwrap();
+        let input: Vec<Frame> = (0..4).map(|i| pattern(i, 37, 11)).collect();
+        for f in &input {
+            w.write(f).unwrap();
+        }
+        w.finish().unwrap();
+        let (_, frames) = decode_all(&p);
+        assert_eq!(frames, input);
     }
 }
