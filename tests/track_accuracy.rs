@@ -73,6 +73,8 @@ struct Stats {
     worst: f64,
     lost: usize,
     drive_travel: f64,
+    /// Tracking time per frame (all marks, push only), µs.
+    per_frame_us: f64,
 }
 
 fn rms(e: &[f64]) -> f64 {
@@ -122,9 +124,11 @@ fn run(case: &Case) -> Stats {
     let rig = case.sc.rig();
     let (w, h) = (case.sc.scene.width, case.sc.scene.height);
     let mut tracker = Tracker::new(&rig, Path::new("rig.json"), w, h).unwrap();
+    let t0 = std::time::Instant::now();
     for f in &frames {
         tracker.push(f).unwrap();
     }
+    let per_frame_us = t0.elapsed().as_secs_f64() * 1e6 / frames.len() as f64;
     let tb = TimeBase::from_fps(case.sc.camera.fps_hz, "test").unwrap();
     let (trace, _warnings) = tracker.finish(tb);
     let (mut ed, mut en, mut et) = (Vec::new(), Vec::new(), Vec::new());
@@ -160,6 +164,7 @@ fn run(case: &Case) -> Stats {
         worst,
         lost,
         drive_travel: travel,
+        per_frame_us,
     }
 }
 
@@ -590,13 +595,13 @@ proptest! {
 #[ignore = "slow: renders every scene of the table; run with --release --ignored"]
 fn regenerate_accuracy_table() {
     let mut rows = String::from(
-        "| scene | medium | fps | frames | drive RMS ° | nut RMS ° | twist RMS ° | worst ° | lost | target ° |\n|---|---|---|---|---|---|---|---|---|---|\n",
+        "| scene | medium | fps | frames | drive RMS ° | nut RMS ° | twist RMS ° | worst ° | lost | target ° | µs/frame |\n|---|---|---|---|---|---|---|---|---|---|---|\n",
     );
     for case in all_cases() {
         let s = run(&case);
         let target = if case.medium.lossless() { 0.10 } else { 0.20 };
         let line = format!(
-            "| {} | {} | {} | {} | {:.3} | {:.3} | {:.3} | {:.3} | {} | {:.2} |\n",
+            "| {} | {} | {} | {} | {:.3} | {:.3} | {:.3} | {:.3} | {} | {:.2} | {:.0} |\n",
             case.name,
             case.medium.label(),
             case.sc.camera.fps_hz,
@@ -606,7 +611,8 @@ fn regenerate_accuracy_table() {
             s.twist_rms,
             s.worst,
             s.lost,
-            target
+            target,
+            s.per_frame_us
         );
         print!("{line}");
         rows.push_str(&line);
