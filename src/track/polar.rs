@@ -15,13 +15,13 @@ use crate::decode::{Frame, Luma};
 use crate::rig::RadialMark;
 
 /// Target spacing of angular samples along the mid-radius circle, px.
-const BIN_SPACING_PX: f64 = 0.5;
+const BIN_SPACING_PX: f64 = 0.75;
 /// Bounds on the number of angular samples.
 const MIN_BINS: usize = 180;
 const MAX_BINS: usize = 4096;
 /// Bounds on the number of rings (rings are 1 px apart until the cap is reached).
 const MIN_RINGS: usize = 2;
-const MAX_RINGS: usize = 48;
+const MAX_RINGS: usize = 32;
 
 /// Precomputed sample positions and bilinear taps over an annulus.
 #[derive(Debug, Clone)]

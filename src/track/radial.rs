@@ -50,6 +50,8 @@ const MIN_INLIER_FRACTION: f64 = 0.4;
 /// Prior: a candidate this far from the prediction loses `PRIOR_WEIGHT` of the reference score.
 const PRIOR_SPAN_RAD: f64 = PI / 2.0;
 const PRIOR_WEIGHT: f64 = 0.3;
+/// Rings used by the coarse search at most.
+const COARSE_RINGS: usize = 16;
 /// Tukey biweight tuning constant (95 % efficiency at the normal distribution).
 const TUKEY_C: f64 = 4.685;
 
@@ -90,7 +92,6 @@ pub(crate) struct RadialTracker {
     polar: Vec<f32>,
     mean: Vec<f32>,
     sigma: Vec<f32>,
-    prefix: Vec<f64>,
     score: Vec<f32>,
     scratch: Vec<f32>,
     ring_c: Vec<f64>,
@@ -115,7 +116,6 @@ impl RadialTracker {
             polar: vec![0.0; k * n],
             mean: vec![0.0; k],
             sigma: vec![0.0; k],
-            prefix: vec![0.0; 3 * n + 1],
             score: vec![0.0; n],
             scratch: vec![0.0; n],
             ring_c: vec![0.0; k],
@@ -449,15 +449,18 @@ impl RadialTracker {
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
             let ring = &self.polar[k * n..(k + 1) * n];
-            let lag = ((1.0 / (self.grid.radius[k] * self.grid.step())).round() as usize).max(1);
-            let mut s = 0.0f64;
-            let mut d = 0.0f64;
-            for j in 0..n {
-                s += f64::from(ring[j]);
-                d += f64::from((ring[(j + lag) % n] - ring[j]).abs());
+            let lag =
+                ((1.0 / (self.grid.radius[k] * self.grid.step())).round() as usize).clamp(1, n - 1);
+            let s: f32 = ring.iter().sum();
+            let mut d = 0.0f32;
+            for (a, b) in ring[lag..].iter().zip(ring) {
+                d += (a - b).abs();
             }
-            self.mean[k] = (s / n as f64) as f32;
-            self.sigma[k] = ((d / n as f64) * PI.sqrt() / 2.0).max(1.0 / 1024.0) as f32;
+            for (a, b) in ring.iter().zip(&ring[n - lag..]) {
+                d += (a - b).abs();
+            }
+            self.mean[k] = s / n as f32;
+            self.sigma[k] = ((d / n as f32) * PI.sqrt() as f32 / 2.0).max(1.0 / 1024.0);
         }
     }
 
@@ -466,33 +469,61 @@ impl RadialTracker {
             .clamp(1, self.grid.bins / 4)
     }
 
-    /// Fills `scratch[j]` with `polarity × (box mean at j + shift − ring mean) / noise`, clipped.
+    /// Fills `scratch[j]` with `polarity × (box mean at j + shift − ring mean) / noise`, clipped
+    /// (`add`: adds to `score` instead). A sliding window sum, so O(bins) per ring.
     fn box_response(&mut self, k: usize, hb: usize, shift: i64, clip: f32, polarity: f32) {
+        self.box_pass(k, hb, shift, clip, polarity, false);
+    }
+
+    fn box_pass(&mut self, k: usize, hb: usize, shift: i64, clip: f32, polarity: f32, add: bool) {
         let n = self.grid.bins;
         let ring = &self.polar[k * n..(k + 1) * n];
-        self.prefix[0] = 0.0;
-        for t in 0..3 * n {
-            self.prefix[t + 1] = self.prefix[t] + f64::from(ring[t % n]);
-        }
         let inv = 1.0 / (2 * hb + 1) as f64;
-        let (m, s) = (f64::from(self.mean[k]), f64::from(self.sigma[k]));
-        for j in 0..n {
-            let jj = (j as i64 + shift).rem_euclid(n as i64) as usize + n;
-            let b = (self.prefix[jj + hb + 1] - self.prefix[jj - hb]) * inv;
-            self.scratch[j] = (polarity * ((b - m) / s) as f32).clamp(-clip, clip);
+        let (m, sd) = (f64::from(self.mean[k]), f64::from(self.sigma[k]));
+        // Window for j = 0 covers bins shift − hb ..= shift + hb (wrapped).
+        let mut lo = (shift - hb as i64).rem_euclid(n as i64) as usize;
+        let mut hi = (shift + hb as i64).rem_euclid(n as i64) as usize;
+        let mut sum = 0.0f64;
+        let mut i = lo;
+        for _ in 0..2 * hb + 1 {
+            sum += f64::from(ring[i]);
+            i = if i + 1 == n { 0 } else { i + 1 };
+        }
+        let out = if add {
+            &mut self.score
+        } else {
+            &mut self.scratch
+        };
+        let scale = inv / sd;
+        for o in out.iter_mut() {
+            let v = (polarity * ((sum * scale - m / sd) as f32)).clamp(-clip, clip);
+            if add {
+                *o += v;
+            } else {
+                *o = v;
+            }
+            sum -= f64::from(ring[lo]);
+            lo = if lo + 1 == n { 0 } else { lo + 1 };
+            hi = if hi + 1 == n { 0 } else { hi + 1 };
+            sum += f64::from(ring[hi]);
         }
     }
 
     /// The clipped, offset-aligned sum over rings of the box response (into `score`).
     fn coarse_score(&mut self, model: &StripeModel) {
-        let n = self.grid.bins;
         self.score.iter_mut().for_each(|s| *s = 0.0);
-        for k in 0..self.grid.rings {
+        // At most COARSE_RINGS rings, evenly spaced: enough to place the stripe to a bin or two.
+        let stride = self.grid.rings.div_ceil(COARSE_RINGS);
+        for k in (0..self.grid.rings).step_by(stride) {
             let hb = self.box_half_bins(model.half_width_px, k);
-            self.box_response(k, hb, model.offset_bins[k], model.clip, model.polarity);
-            for j in 0..n {
-                self.score[j] += self.scratch[j];
-            }
+            self.box_pass(
+                k,
+                hb,
+                model.offset_bins[k],
+                model.clip,
+                model.polarity,
+                true,
+            );
         }
     }
 

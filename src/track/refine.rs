@@ -9,9 +9,10 @@
 //! that distance is `e_i = e0 + (P − A)·n_i`, with `n_i` the line's unit normal in frame i.
 //!
 //! For every measured frame the ring crossings (points of the stripe, in the disc plane) are
-//! fitted with a straight line by weighted least squares, giving `n_i` and `e_i`; then `e0` and
-//! `P − A` come from one linear least-squares fit over all frames, with a small ridge term so a
-//! part that hardly turns keeps the rig's pivot. Each frame's ring crossings are then re-read
+//! fitted with a straight line by weighted least squares, giving `n_i` and `e_i`; then `P − A`
+//! comes from a linear least-squares fit over all frames (see [`pivot_correction`] for which
+//! components a small turn can show). Corrections too small to tell from pixelation are not
+//! applied. Each frame's ring crossings are then re-read
 //! as angles about P and combined again, with each ring's own constant offset (a stripe that
 //! misses the pivot sits at a different angle on each ring) estimated from the whole clip.
 
@@ -25,6 +26,9 @@ const MAX_CORRECTION_PX: f64 = 6.0;
 /// (and `PIXELATION_PX` divided by the spread of the stripe's direction, whichever is larger).
 const MIN_CORRECTION_PX: f64 = 0.2;
 const PIXELATION_PX: f64 = 0.03;
+/// Spread (standard deviation) of the stripe's direction above which both components of the
+/// pivot correction are fitted, rad (about 17°).
+const WIDE_TURN_RAD: f64 = 0.3;
 /// Ridge weight per frame on the pivot correction: normals that spread less than about
 /// √RIDGE rad (about 0.2°) leave the pivot where the rig put it; above that the fit decides.
 const RIDGE: f64 = 1e-5;
@@ -42,43 +46,18 @@ pub(crate) struct RingData<'a> {
 pub(crate) fn refine(d: &RingData<'_>) -> (Vec<Option<f64>>, [f64; 2]) {
     let k = d.radius.len();
     // Per frame line fits.
-    let mut a = [[0.0f64; 3]; 3];
-    let mut b = [0.0f64; 3];
-    let mut count = 0usize;
-    let (mut sphi, mut sphi2) = (0.0f64, 0.0f64);
+    let mut fits: Vec<(f64, [f64; 2])> = Vec::new();
     for (i, th) in d.angles.iter().enumerate() {
         let Some(th) = *th else { continue };
-        let rings = &d.rings[i * k..(i + 1) * k];
-        let Some((e, n)) = line_fit(th, rings, d.radius) else {
-            continue;
-        };
-        let row = [1.0, n[0], n[1]];
-        for r in 0..3 {
-            for c in 0..3 {
-                a[r][c] += row[r] * row[c];
-            }
-            b[r] += row[r] * e;
-        }
-        let phi = th - d.angles.iter().flatten().next().copied().unwrap_or(0.0);
-        sphi += phi;
-        sphi2 += phi * phi;
-        count += 1;
-    }
-    let mut p = [0.0, 0.0];
-    if count >= 3 {
-        a[1][1] += RIDGE * count as f64;
-        a[2][2] += RIDGE * count as f64;
-        let spread = (sphi2 / count as f64 - (sphi / count as f64).powi(2))
-            .max(0.0)
-            .sqrt();
-        let floor = MIN_CORRECTION_PX.max(PIXELATION_PX / spread.max(1e-6));
-        if let Some(x) = solve3(a, b) {
-            let size = x[1].hypot(x[2]);
-            if (floor..=MAX_CORRECTION_PX).contains(&size) {
-                p = [x[1], x[2]];
-            }
+        if let Some(fit) = line_fit(th, &d.rings[i * k..(i + 1) * k], d.radius) {
+            fits.push(fit);
         }
     }
+    let p = if fits.len() >= 3 {
+        pivot_correction(&fits)
+    } else {
+        [0.0, 0.0]
+    };
 
     // Re-read every ring about the refined pivot; two passes for the per-ring offsets.
     let ring_angle = |i: usize, j: usize, th: f64| -> f64 {
@@ -137,6 +116,70 @@ pub(crate) fn refine(d: &RingData<'_>) -> (Vec<Option<f64>>, [f64; 2]) {
         .map(|(i, a)| a.map(|th| combine(i, th, &offset)))
         .collect();
     (out, p)
+}
+
+/// The pivot correction from per-frame line fits `(e_i, n_i)`, or zero when the fit cannot
+/// be trusted. `e_i = e0 + p·n_i`. Over a turn of less than about 40° only the component of
+/// `p` along the stripe's mean direction is seen to first order (the component along the
+/// mean normal trades against `e0`), and only that component moves relative angles to first
+/// order; so for small turns that component alone is fitted, and for larger turns both.
+fn pivot_correction(fits: &[(f64, [f64; 2])]) -> [f64; 2] {
+    let m = fits.len() as f64;
+    let (sx, sy) = fits
+        .iter()
+        .fold((0.0, 0.0), |a, (_, n)| (a.0 + n[0], a.1 + n[1]));
+    let norm = sx.hypot(sy);
+    if norm <= 0.0 {
+        return [0.0, 0.0];
+    }
+    let nbar = [sx / norm, sy / norm];
+    let tbar = [-nbar[1], nbar[0]];
+    // Spread of the normal's direction about its mean, rad.
+    let along: Vec<f64> = fits
+        .iter()
+        .map(|(_, n)| n[0] * tbar[0] + n[1] * tbar[1])
+        .collect();
+    let mean_a = along.iter().sum::<f64>() / m;
+    let spread = (along.iter().map(|a| (a - mean_a).powi(2)).sum::<f64>() / m).sqrt();
+    let floor = MIN_CORRECTION_PX.max(PIXELATION_PX / spread.max(1e-6));
+    let p = if spread > WIDE_TURN_RAD {
+        let mut a = [[0.0f64; 3]; 3];
+        let mut b = [0.0f64; 3];
+        for (e, n) in fits {
+            let row = [1.0, n[0], n[1]];
+            for r in 0..3 {
+                for c in 0..3 {
+                    a[r][c] += row[r] * row[c];
+                }
+                b[r] += row[r] * e;
+            }
+        }
+        a[1][1] += RIDGE * m;
+        a[2][2] += RIDGE * m;
+        match solve3(a, b) {
+            Some(x) => [x[1], x[2]],
+            None => return [0.0, 0.0],
+        }
+    } else {
+        // e_i = c + q·(n_i·t̄): a straight-line fit of e against n·t̄.
+        let mean_e = fits.iter().map(|f| f.0).sum::<f64>() / m;
+        let (mut sxy, mut sxx) = (0.0, 0.0);
+        for ((e, _), a) in fits.iter().zip(&along) {
+            sxy += (a - mean_a) * (e - mean_e);
+            sxx += (a - mean_a).powi(2);
+        }
+        if sxx <= 0.0 {
+            return [0.0, 0.0];
+        }
+        let q = sxy / sxx;
+        [q * tbar[0], q * tbar[1]]
+    };
+    let size = p[0].hypot(p[1]);
+    if (floor..=MAX_CORRECTION_PX).contains(&size) {
+        p
+    } else {
+        [0.0, 0.0]
+    }
 }
 
 /// Weighted straight-line fit through a frame's ring crossings. Returns the signed distance of

@@ -14,9 +14,9 @@ use crate::decode::{Frame, Luma};
 use crate::rig::RadialMark;
 
 /// Largest number of template pixels used.
-const MAX_POINTS: usize = 6000;
+const MAX_POINTS: usize = 1024;
 /// Iterations per frame at most.
-const MAX_ITER: usize = 12;
+const MAX_ITER: usize = 8;
 /// Stop when an update is smaller than this, px.
 const CONVERGED_PX: f64 = 2e-3;
 
@@ -29,7 +29,9 @@ pub(crate) struct ShakeEstimator {
     hinv: [[f64; 2]; 2],
     t_mean: f64,
     t_var: f64,
-    samples: Vec<f32>,
+    /// Σgx, Σgy and Σg·(t − t̄) over the template.
+    g_sum: [f64; 2],
+    g_t: [f64; 2],
     shift: [f64; 2],
     /// The smoothed copy of the region around the patch: origin, size, values, scratch.
     origin: [usize; 2],
@@ -75,7 +77,8 @@ impl ShakeEstimator {
             hinv: [[0.0; 2]; 2],
             t_mean: 0.0,
             t_var: 0.0,
-            samples: vec![0.0; n],
+            g_sum: [0.0; 2],
+            g_t: [0.0; 2],
             shift: [0.0, 0.0],
             origin: [ox, oy],
             size,
@@ -114,6 +117,17 @@ impl ShakeEstimator {
             .map(|&t| (f64::from(t) - self.t_mean).powi(2))
             .sum::<f64>()
             / n;
+        self.g_sum = [
+            self.gx.iter().map(|&g| f64::from(g)).sum(),
+            self.gy.iter().map(|&g| f64::from(g)).sum(),
+        ];
+        let mut g_t = [0.0f64; 2];
+        for i in 0..self.pts.len() {
+            let dt = f64::from(self.tmpl[i]) - self.t_mean;
+            g_t[0] += f64::from(self.gx[i]) * dt;
+            g_t[1] += f64::from(self.gy[i]) * dt;
+        }
+        self.g_t = g_t;
         // A little Tikhonov damping keeps a patch with one dominant edge direction stable.
         let damp = 1e-3 * (sxx + syy);
         let (a, b, d) = (sxx + damp, sxy, syy + damp);
@@ -129,28 +143,19 @@ impl ShakeEstimator {
     pub fn estimate(&mut self, frame: &Frame) -> [f64; 2] {
         self.load(frame);
         let mut d = self.shift;
+        let n = self.pts.len() as f64;
         for _ in 0..MAX_ITER {
-            self.gather(d);
-            let n = self.pts.len() as f64;
-            let s_mean = self.samples.iter().map(|&s| f64::from(s)).sum::<f64>() / n;
-            let cov = self
-                .samples
-                .iter()
-                .zip(&self.tmpl)
-                .map(|(&s, &t)| (f64::from(s) - s_mean) * (f64::from(t) - self.t_mean))
-                .sum::<f64>()
-                / n;
-            let gain = cov / self.t_var;
+            // One pass: Σs, Σs·(t − t̄), Σgx·s, Σgy·s. With the photometric fit s ≈ g·t + b,
+            // the residual is e = (s − s̄)/g − (t − t̄), so Σg·e needs only these sums and the
+            // template's own Σgx, Σgy and Σg·(t − t̄), computed once.
+            let [ss, sst, sgx, sgy] = self.gather_sums(d);
+            let s_mean = ss / n;
+            let gain = sst / n / self.t_var;
             if gain <= 0.05 {
                 break;
             }
-            let (mut bx, mut by) = (0.0f64, 0.0f64);
-            for i in 0..self.pts.len() {
-                let e = (f64::from(self.samples[i]) - s_mean) / gain
-                    - (f64::from(self.tmpl[i]) - self.t_mean);
-                bx += f64::from(self.gx[i]) * e;
-                by += f64::from(self.gy[i]) * e;
-            }
+            let bx = (sgx - s_mean * self.g_sum[0]) / gain - self.g_t[0];
+            let by = (sgy - s_mean * self.g_sum[1]) / gain - self.g_t[1];
             let dx = self.hinv[0][0] * bx + self.hinv[0][1] * by;
             let dy = self.hinv[1][0] * bx + self.hinv[1][1] * by;
             d = [d[0] - dx, d[1] - dy];
@@ -164,7 +169,7 @@ impl ShakeEstimator {
         self.shift
     }
 
-    /// Copies the region around the patch and smooths it with a Gaussian of σ = `SMOOTH_PX`.
+    /// Copies the region around the patch and smooths it with a binomial kernel (σ = 1 px).
     /// Smoothing makes the image locally close to linear over a pixel, which is what bilinear
     /// resampling and the gradient step assume; without it the shift locks to preferred
     /// sub-pixel phases ("peak locking", facts.md §7.3).
@@ -177,67 +182,72 @@ impl ShakeEstimator {
             Luma::U8(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
             Luma::U16(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
         }
-        let k = kernel();
-        let r = KERNEL_RADIUS as i64;
+        // Binomial kernel [1 4 6 4 1]/16 (σ = 1 px), horizontal then vertical; the borders
+        // repeat the edge sample.
+        const K: [f32; 5] = [1.0 / 16.0, 4.0 / 16.0, 6.0 / 16.0, 4.0 / 16.0, 1.0 / 16.0];
+        let clampi = |i: i64, n: usize| i.clamp(0, n as i64 - 1) as usize;
         for y in 0..sh {
+            let row = &self.raw[y * sw..(y + 1) * sw];
+            let out = &mut self.tmp[y * sw..(y + 1) * sw];
             for x in 0..sw {
-                let mut acc = 0.0;
-                for (i, w) in k.iter().enumerate() {
-                    let xx = (x as i64 + i as i64 - r).clamp(0, sw as i64 - 1) as usize;
-                    acc += w * self.raw[y * sw + xx];
-                }
-                self.tmp[y * sw + x] = acc;
+                out[x] = if x >= 2 && x + 2 < sw {
+                    K[0] * (row[x - 2] + row[x + 2])
+                        + K[1] * (row[x - 1] + row[x + 1])
+                        + K[2] * row[x]
+                } else {
+                    (0..5)
+                        .map(|i| K[i] * row[clampi(x as i64 + i as i64 - 2, sw)])
+                        .sum()
+                };
             }
         }
         for y in 0..sh {
+            let r = |d: i64| clampi(y as i64 + d, sh) * sw;
+            let (m2, m1, z, p1, p2) = (r(-2), r(-1), r(0), r(1), r(2));
             for x in 0..sw {
-                let mut acc = 0.0;
-                for (i, w) in k.iter().enumerate() {
-                    let yy = (y as i64 + i as i64 - r).clamp(0, sh as i64 - 1) as usize;
-                    acc += w * self.tmp[yy * sw + x];
-                }
-                self.smooth[y * sw + x] = acc;
+                let t = &self.tmp;
+                self.smooth[z + x] = K[0] * (t[m2 + x] + t[p2 + x])
+                    + K[1] * (t[m1 + x] + t[p1 + x])
+                    + K[2] * t[z + x];
             }
         }
     }
 
-    /// Bilinear samples of the smoothed region at every template point moved by `d`.
-    fn gather(&mut self, d: [f64; 2]) {
+    /// Bilinear samples of the smoothed region at every template point moved by `d`, reduced
+    /// to the four sums the update needs.
+    fn gather_sums(&self, d: [f64; 2]) -> [f64; 4] {
         let [sw, sh] = self.size;
         let (ox, oy) = (self.origin[0] as f64, self.origin[1] as f64);
-        for (o, p) in self.samples.iter_mut().zip(&self.pts) {
+        let v = &self.smooth;
+        let t_mean = self.t_mean as f32;
+        let (mut ss, mut sst, mut sgx, mut sgy) = (0.0f32, 0.0f32, 0.0f32, 0.0f32);
+        for (i, p) in self.pts.iter().enumerate() {
             let x = (p[0] + d[0] - ox).clamp(0.0, (sw - 1) as f64);
             let y = (p[1] + d[1] - oy).clamp(0.0, (sh - 1) as f64);
-            let x0 = (x.floor() as usize).min(sw - 2);
-            let y0 = (y.floor() as usize).min(sh - 2);
+            let x0 = (x as usize).min(sw - 2);
+            let y0 = (y as usize).min(sh - 2);
             let fx = (x - x0 as f64) as f32;
             let fy = (y - y0 as f64) as f32;
-            let i = y0 * sw + x0;
-            let v = &self.smooth;
-            *o = (1.0 - fx) * (1.0 - fy) * v[i]
-                + fx * (1.0 - fy) * v[i + 1]
-                + (1.0 - fx) * fy * v[i + sw]
-                + fx * fy * v[i + sw + 1];
+            let j = y0 * sw + x0;
+            let top = v[j] + fx * (v[j + 1] - v[j]);
+            let bot = v[j + sw] + fx * (v[j + sw + 1] - v[j + sw]);
+            let s = top + fy * (bot - top);
+            ss += s;
+            sst += s * (self.tmpl[i] - t_mean);
+            sgx += self.gx[i] * s;
+            sgy += self.gy[i] * s;
         }
+        [
+            f64::from(ss),
+            f64::from(sst),
+            f64::from(sgx),
+            f64::from(sgy),
+        ]
     }
 }
 
-/// Smoothing σ, px, and the kernel's radius.
-const SMOOTH_PX: f32 = 1.0;
-const KERNEL_RADIUS: usize = 3;
 /// Room around the patch for the shift, px.
 const REGION_MARGIN_PX: usize = 10;
-
-fn kernel() -> [f32; 2 * KERNEL_RADIUS + 1] {
-    let mut k = [0.0f32; 2 * KERNEL_RADIUS + 1];
-    for (i, w) in k.iter_mut().enumerate() {
-        let x = i as f32 - KERNEL_RADIUS as f32;
-        *w = (-x * x / (2.0 * SMOOTH_PX * SMOOTH_PX)).exp();
-    }
-    let s: f32 = k.iter().sum();
-    k.iter_mut().for_each(|w| *w /= s);
-    k
-}
 
 #[allow(clippy::too_many_arguments)]
 fn copy_region<T: Copy + Into<f32>>(
