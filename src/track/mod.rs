@@ -203,7 +203,7 @@ impl Tracker {
     pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
         let mut warnings = Vec::new();
         let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
-            let (refined, _pivot_correction) = refine::refine(&refine::RingData {
+            let refined = refine::refine(&refine::RingData {
                 angles: &t.angle,
                 rings: &t.rings,
                 radius: &t.radial.grid().radius,

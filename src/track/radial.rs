@@ -260,7 +260,7 @@ impl RadialTracker {
         let (_, half) = self.half_max(j0, n / 4);
         model.peak_half_bins = half;
         self.model = Some(model);
-        match self.measure_at(frame, shift, true) {
+        match self.measure_at(true) {
             Some(m) => Ok(m),
             None => Err(
                 "the stripe found in the first frame could not be measured consistently across the annulus; check pivot and radius in the rig"
@@ -273,10 +273,10 @@ impl RadialTracker {
     pub fn measure(&mut self, frame: &Frame, shift: [f64; 2]) -> Option<Measurement> {
         self.grid.sample(frame, shift, &mut self.polar);
         self.ring_stats();
-        self.measure_at(frame, shift, false)
+        self.measure_at(false)
     }
 
-    fn measure_at(&mut self, _frame: &Frame, _shift: [f64; 2], first: bool) -> Option<Measurement> {
+    fn measure_at(&mut self, first: bool) -> Option<Measurement> {
         let model = self.model.take()?;
         let out = self.measure_with(&model, first);
         self.model = Some(model);
