@@ -38,6 +38,11 @@ pub(crate) struct PolarGrid {
     idx: Vec<u32>,
     /// Bilinear weights (top-left, top-right, bottom-left, bottom-right), unshifted grid.
     wts: Vec<[f32; 4]>,
+    /// Fractional position of each sample within its top-left pixel, unshifted grid.
+    frac: Vec<[f32; 2]>,
+    /// Range of the top-left neighbours' columns and rows over the grid: x0 min, x0 max,
+    /// y0 min, y0 max (to keep a shifted grid inside the frame).
+    bbox: [usize; 4],
     pivot: [f64; 2],
     /// The 2×2 disc-to-screen map `M`.
     map: [[f64; 2]; 2],
@@ -73,6 +78,8 @@ impl PolarGrid {
             offset,
             idx: Vec::new(),
             wts: Vec::new(),
+            frac: Vec::new(),
+            bbox: [0; 4],
             pivot: mark.pivot,
             map,
             width: width as usize,
@@ -85,6 +92,24 @@ impl PolarGrid {
             .unzip();
         grid.idx = idx;
         grid.wts = wts;
+        let w = grid.width;
+        grid.frac = grid
+            .wts
+            .iter()
+            .map(|wt| {
+                // fx = weight of the right taps, fy = weight of the bottom taps.
+                [wt[1] + wt[3], wt[2] + wt[3]]
+            })
+            .collect();
+        let (mut x_lo, mut x_hi, mut y_lo, mut y_hi) = (usize::MAX, 0, usize::MAX, 0);
+        for &i in &grid.idx {
+            let (x, y) = (i as usize % w, i as usize / w);
+            x_lo = x_lo.min(x);
+            x_hi = x_hi.max(x);
+            y_lo = y_lo.min(y);
+            y_hi = y_hi.max(y);
+        }
+        grid.bbox = [x_lo, x_hi, y_lo, y_hi];
         grid
     }
 
@@ -152,9 +177,33 @@ impl PolarGrid {
                 *o = gather(i, wt);
             }
         } else {
-            for (o, off) in out.iter_mut().zip(&self.offset) {
-                let (i, wt) = self.tap(f64::from(off[0]), f64::from(off[1]), shift);
-                *o = gather(i, &wt);
+            // Shift = whole pixels + a fraction; each sample's own fraction plus the shift's
+            // fraction carries into the next pixel when it passes 1. The whole-pixel part is
+            // limited so the grid stays inside the frame.
+            let lim = |v: f64, lo: usize, hi: usize, n: usize| -> (isize, f32) {
+                let (min, max) = (-(lo as f64), (n as f64 - 3.0 - hi as f64).max(-(lo as f64)));
+                let v = v.clamp(min, max);
+                let i = v.floor();
+                (i as isize, (v - i) as f32)
+            };
+            let (ix, fxs) = lim(shift[0], self.bbox[0], self.bbox[1], self.width);
+            let (iy, fys) = lim(shift[1], self.bbox[2], self.bbox[3], self.height);
+            let base = iy * w as isize + ix;
+            for ((o, &i), f) in out.iter_mut().zip(&self.idx).zip(&self.frac) {
+                let mut i = (i as isize + base) as usize;
+                let mut fx = f[0] + fxs;
+                if fx >= 1.0 {
+                    fx -= 1.0;
+                    i += 1;
+                }
+                let mut fy = f[1] + fys;
+                if fy >= 1.0 {
+                    fy -= 1.0;
+                    i += w;
+                }
+                let top = d[i].into() + fx * (d[i + 1].into() - d[i].into());
+                let bot = d[i + w].into() + fx * (d[i + w + 1].into() - d[i + w].into());
+                *o = (top + fy * (bot - top)) * scale;
             }
         }
     }

@@ -568,7 +568,18 @@ impl RadialTracker {
         let n = self.grid.bins;
         let ni = n as i64;
         let ring = &self.polar[k * n..(k + 1) * n];
-        let at = |j: i64| f64::from(ring[j.rem_euclid(ni) as usize]);
+        // Windows are far shorter than the ring, so one conditional wrap suffices (and avoids
+        // an integer division per sample).
+        let at = |j: i64| {
+            let j = if j < 0 {
+                j + ni
+            } else if j >= ni {
+                j - ni
+            } else {
+                j
+            };
+            f64::from(ring[j.clamp(0, ni - 1) as usize])
+        };
         let s = f64::from(polarity);
         let h = (hw_b + (0.6 * hw_b).max(3.0)).min(n as f64 / 4.0);
         let f = flank.ceil().min(n as f64 / 8.0) as i64;
@@ -608,7 +619,7 @@ impl RadialTracker {
             amp = sw / (2.0 * hw_b + 1.0);
             let next = swj / sw;
             ok = true;
-            let done = (next - c).abs() < 1e-4;
+            let done = (next - c).abs() < 1e-3;
             c = next;
             if done {
                 break;

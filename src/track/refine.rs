@@ -60,10 +60,10 @@ pub(crate) fn refine(d: &RingData<'_>) -> Vec<Option<f64>> {
     let mut sorted = resid.clone();
     sorted.sort_by(f64::total_cmp);
     let scale = 1.4826 * sorted[sorted.len() / 2];
-    if scale > 0.0 {
-        if let Some(c) = fit_curve(&pts, Some((&resid, OUTLIER_SIGMAS * scale))) {
-            coef = c;
-        }
+    if scale > 0.0
+        && let Some(c) = fit_curve(&pts, Some((&resid, OUTLIER_SIGMAS * scale)))
+    {
+        coef = c;
     }
     let corr = |t: f64| coef[1] * t.sin() + coef[2] * t.cos();
     let (lo, hi) = d
@@ -90,10 +90,10 @@ fn fit_curve(pts: &[(f64, f64)], keep: Option<(&[f64], f64)>) -> Option<[f64; 3]
     let mut b = [0.0f64; 3];
     let mut used = 0;
     for (i, &(t, y)) in pts.iter().enumerate() {
-        if let Some((r, lim)) = keep {
-            if r[i] > lim {
-                continue;
-            }
+        if let Some((r, lim)) = keep
+            && r[i] > lim
+        {
+            continue;
         }
         let row = [1.0, t.sin(), t.cos()];
         for r in 0..3 {
