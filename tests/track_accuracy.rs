@@ -699,3 +699,85 @@ fn zero_screen_is_the_rendered_stripe_angle() {
         );
     }
 }
+
+/// A slow, obviously correct reference for one radial mark on a clean frame: the principal
+/// axis of the paint's brightness excess over the annulus median, from second central moments,
+/// θ = ½·atan2(2μ11, μ20 − μ02) (Hu 1962; facts.md §7.1), turned to point from the pivot
+/// towards the paint's centroid. Screen angle in degrees. Bright paint only, no ellipse.
+fn moment_reference(frame: &Frame, pivot: [f64; 2], radius: [f64; 2]) -> f64 {
+    let mut px = Vec::new();
+    for y in 0..frame.height {
+        for x in 0..frame.width {
+            let (dx, dy) = (f64::from(x) - pivot[0], f64::from(y) - pivot[1]);
+            let r = dx.hypot(dy);
+            if r >= radius[0] && r <= radius[1] {
+                px.push((f64::from(x), f64::from(y), f64::from(frame.value(x, y))));
+            }
+        }
+    }
+    let mut vals: Vec<f64> = px.iter().map(|p| p.2).collect();
+    vals.sort_by(f64::total_cmp);
+    let bg = vals[vals.len() / 2];
+    let (mut m00, mut m10, mut m01) = (0.0, 0.0, 0.0);
+    for &(x, y, v) in &px {
+        let w = (v - bg).max(0.0);
+        m00 += w;
+        m10 += w * x;
+        m01 += w * y;
+    }
+    let (cx, cy) = (m10 / m00, m01 / m00);
+    let (mut mu20, mut mu02, mut mu11) = (0.0, 0.0, 0.0);
+    for &(x, y, v) in &px {
+        let w = (v - bg).max(0.0);
+        mu20 += w * (x - cx) * (x - cx);
+        mu02 += w * (y - cy) * (y - cy);
+        mu11 += w * (x - cx) * (y - cy);
+    }
+    let axis = 0.5 * (2.0 * mu11).atan2(mu20 - mu02);
+    let outward = (cy - pivot[1]).atan2(cx - pivot[0]);
+    let a = if (axis - outward).cos() >= 0.0 {
+        axis
+    } else {
+        axis + std::f64::consts::PI
+    };
+    a.to_degrees()
+}
+
+#[test]
+fn tracker_agrees_with_the_moment_reference() {
+    // Clean slow-tool clip: the reference, the tracker and the renderer's truth must agree.
+    let sc = base("slow-tool");
+    let truth = simulate(&sc);
+    let rig = sc.rig();
+    let twistmark::rig::Mark::Radial(m) = &rig.marks.drive else {
+        panic!("radial drive mark")
+    };
+    let (pivot, radius) = (m.pivot, m.radius);
+    let n = 120u64;
+    let frames: Vec<Frame> = (0..n).map(|i| render_frame(&sc, &truth, i)).collect();
+    let mut t = Tracker::new(&rig, Path::new("rig.json"), sc.scene.width, sc.scene.height).unwrap();
+    for f in &frames {
+        t.push(f).unwrap();
+    }
+    let trace = t.finish(TimeBase::from_fps(1000.0, "t").unwrap()).0;
+    let r0 = moment_reference(&frames[0], pivot, radius);
+    let (mut e_ref, mut e_trk, mut e_cross) = (Vec::new(), Vec::new(), Vec::new());
+    for (i, f) in frames.iter().enumerate() {
+        // cw tightening: screen angle grows with the tightening angle.
+        let r = moment_reference(f, pivot, radius) - r0;
+        let r = r - 360.0 * (r / 360.0).round();
+        let k = trace.drive[i].unwrap().deg();
+        e_ref.push(r - truth.trace.drive_deg[i]);
+        e_trk.push(k - truth.trace.drive_deg[i]);
+        e_cross.push(k - r);
+    }
+    let (rr, rt, rc) = (rms(&e_ref), rms(&e_trk), rms(&e_cross));
+    println!("RMS vs truth: reference {rr:.4}°, tracker {rt:.4}°; tracker vs reference {rc:.4}°");
+    assert!(
+        truth.trace.drive_deg[n as usize - 1].abs() > 5.0,
+        "the drive turns"
+    );
+    assert!(rr < 0.05, "reference RMS {rr:.4}°");
+    assert!(rt < 0.05, "tracker RMS {rt:.4}°");
+    assert!(rc < 0.07, "tracker vs reference RMS {rc:.4}°");
+}

@@ -56,6 +56,9 @@ pub struct Trace {
     pub nut_confidence: Vec<f32>,
     /// Screen angle (from +x towards +y) of the drive stripe at the first analysed frame, so
     /// that the screen angle at sample i is `drive_zero_screen + sign × drive[i]` (for overlays).
+    /// Measured about the rig's pivot. For an oblique disc (rig `ellipse`) the trace's angles
+    /// are in the disc's plane, so that sum is the disc-plane direction; map it through the
+    /// ellipse to draw it.
     pub drive_zero_screen: Option<Angle>,
     /// As `drive_zero_screen`, for the nut stripe.
     pub nut_zero_screen: Option<Angle>,
