@@ -13,8 +13,8 @@
 //! and nut marks are sampled on grids moved by that translation. Camera roll is not corrected:
 //! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
 //! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
-//! made. The fixed mark's stripe is still tracked, so a fixed mark that loses its paint is
-//! reported.
+//! made. Frames where the fixed mark's patch no longer matches the first frame keep the last
+//! good shift and are reported.
 //!
 //! Once the clip is done, each mark's pivot is refined from the stripe itself and every angle
 //! is re-read about the refined pivot (`refine.rs`); this removes the error a pivot that is off
@@ -107,6 +107,8 @@ pub struct Tracker {
     shake: Option<ShakeEstimator>,
     /// Camera translation (px) of the last frame.
     shift: [f64; 2],
+    /// Per frame: `None` where the fixed mark could not be registered.
+    shake_lost: Vec<Option<()>>,
 }
 
 impl Tracker {
@@ -162,6 +164,7 @@ impl Tracker {
             fixed,
             shake,
             shift: [0.0, 0.0],
+            shake_lost: Vec::new(),
         })
     }
 
@@ -183,18 +186,26 @@ impl Tracker {
         let first = self.frames.is_empty();
         self.frames.push(frame.index);
 
-        // Shake: translation at the fixed mark, relative to the first frame.
+        // Shake: translation at the fixed mark, relative to the first frame. The fixed mark's
+        // stripe is measured in the first frame only (a fixed mark without paint is an error);
+        // afterwards the registration's own correlation says whether the mark is still seen.
+        let mut shake_lost = false;
         if let Some(sh) = self.shake.as_mut() {
             if first {
                 if !sh.init(frame) {
                     self.shake = None;
                 }
             } else {
-                self.shift = sh.estimate(frame);
+                match sh.estimate(frame) {
+                    Some(d) => self.shift = d,
+                    None => shake_lost = true,
+                }
             }
         }
+        self.shake_lost
+            .push(if shake_lost { None } else { Some(()) });
         let shift = self.shift;
-        if let Some(f) = self.fixed.as_mut() {
+        if first && let Some(f) = self.fixed.as_mut() {
             measure(f, frame, shift, first)?;
         }
         measure(&mut self.drive, frame, shift, first)?;
@@ -234,12 +245,10 @@ impl Tracker {
                 });
             }
         }
-        if let Some(f) = &self.fixed {
-            for (a, b) in unwrap::lost_runs(&f.angle, &self.frames) {
-                warnings.push(Warning::Note(format!(
-                    "fixed mark lost in frames {a}..={b}; camera roll correction held its last value there (check the fixed mark's paint and lighting)"
-                )));
-            }
+        for (a, b) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
+            warnings.push(Warning::Note(format!(
+                "fixed mark not matched in frames {a}..={b} (obscured or moved); camera shake correction held its last value there"
+            )));
         }
         let (drive, drive_zero_screen) = rel(&self.drive);
         let (nut, nut_zero_screen) = rel(&self.nut);
