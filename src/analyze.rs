@@ -165,9 +165,12 @@ pub fn analyze_source(
                 done += 1;
                 progress(done, total);
             }
-            if empty_tx.send(frame).is_err() || tracked.is_err() {
+            if tracked.is_err() {
                 break;
             }
+            // The decoder may already have finished and dropped its end: the frames still
+            // queued must be tracked all the same, so a failed recycle is not a stop.
+            let _ = empty_tx.send(frame);
         }
         drop(full_rx);
         drop(empty_tx);
