@@ -27,11 +27,11 @@ pub(crate) struct RingData<'a> {
     pub radius: &'a [f64],
 }
 
-/// A correction that changes relative angles by less than this over the clip (0.15°) is not
+/// A correction that changes relative angles by less than this over the clip (0.1°) is not
 /// applied: the stripe direction's own pixelation bias, which depends on the angle, can fake
-/// about 0.1° over a short clip, while a pivot error worth correcting (a few tenths of a pixel
-/// over a turn of tens of degrees) makes a larger one.
-const MIN_CORRECTION_RAD: f64 = 0.15 * std::f64::consts::PI / 180.0;
+/// a few hundredths of a degree over a clip, while a pivot error worth correcting (a few
+/// tenths of a pixel over a turn of tens of degrees) makes a larger one.
+const MIN_CORRECTION_RAD: f64 = 0.1 * std::f64::consts::PI / 180.0;
 /// The measured angles must fall in at least this many distinct whole degrees: a clip that
 /// sits at a handful of angles lets the curve follow the direction's bias at each of them.
 const MIN_DISTINCT_DEG: usize = 12;
