@@ -62,6 +62,9 @@ struct Case {
     medium: Medium,
     /// Analyse only the first N frames (None: all).
     limit: Option<u64>,
+    /// Move the rig's pivots by the first frame's camera shake, as when the pivots are read
+    /// off the first frame (the scenario's own rig gives the unshaken positions).
+    pivots_from_first_frame: bool,
 }
 
 #[derive(Debug, Clone)]
@@ -121,7 +124,21 @@ fn frames_of(case: &Case, truth: &twistmark::synth::Truth) -> Vec<Frame> {
 fn run(case: &Case) -> Stats {
     let truth = simulate(&case.sc);
     let frames = frames_of(case, &truth);
-    let rig = case.sc.rig();
+    let mut rig = case.sc.rig();
+    if case.pivots_from_first_frame
+        && let Some(s0) = truth.shake_px.first()
+    {
+        let marks = [
+            Some(&mut rig.marks.drive),
+            Some(&mut rig.marks.nut),
+            rig.marks.fixed.as_mut(),
+        ];
+        for m in marks.into_iter().flatten() {
+            if let twistmark::rig::Mark::Radial(r) = m {
+                r.pivot = [r.pivot[0] + s0[0], r.pivot[1] + s0[1]];
+            }
+        }
+    }
     let (w, h) = (case.sc.scene.width, case.sc.scene.height);
     let mut tracker = Tracker::new(&rig, Path::new("rig.json"), w, h).unwrap();
     // The first frame sets up the stripe models (a one-off search); time the others.
@@ -215,36 +232,42 @@ fn all_cases() -> Vec<Case> {
             sc: base("slow-tool"),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "fast tool, 2,000 fps",
             sc: base("fast-tool"),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "fast tool, 4,000 fps",
             sc: with("fast-tool", |s| s.camera.fps_hz = 4000.0),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "fast tool, 1,000 fps (big jumps)",
             sc: with("fast-tool", |s| s.camera.fps_hz = 1000.0),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "slow tool, tighten ccw",
             sc: with("slow-tool", |s| s.scene.tighten = Spin::Ccw),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "white paint",
             sc: with("slow-tool", |s| s.scene.paint = Paint::White),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "orange paint, bare drive disc",
@@ -254,6 +277,7 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "red paint (dark stripe) on bare steel",
@@ -263,30 +287,35 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "noise σ 2 %",
             sc: with("fast-tool", |s| s.effects.noise_sigma = 0.02),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "flicker 100 Hz, 25 %",
             sc: with("fast-tool", |s| flicker(s, 100.0)),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "shake σ 1 px, fixed mark",
             sc: with("fast-tool", |s| s.effects.shake_sigma_px = 1.0),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "static highlight on the drive disc",
             sc: with("fast-tool", highlight),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "oblique drive disc (b/a 0.7)",
@@ -298,12 +327,14 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "motion blur (exposure ½ frame)",
             sc: with("fast-tool", blur),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "16-bit stills, noise 1 %",
@@ -313,6 +344,7 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
     ];
     #[cfg(feature = "ffmpeg")]
@@ -324,24 +356,28 @@ fn all_cases() -> Vec<Case> {
                 sc: base("fast-tool"),
                 medium: Medium::Video(Codec::Ffv1),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + noise 1 %",
                 sc: with("fast-tool", |s| s.effects.noise_sigma = 0.01),
                 medium: Medium::Video(Codec::H264 { crf: 18 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + flicker 120 Hz",
                 sc: with("fast-tool", |s| flicker(s, 120.0)),
                 medium: Medium::Video(Codec::H264 { crf: 23 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + shake σ 1 px",
                 sc: with("fast-tool", |s| s.effects.shake_sigma_px = 1.0),
                 medium: Medium::Video(Codec::H264 { crf: 18 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "MJPEG + noise 1 % + flicker + highlight",
@@ -352,6 +388,7 @@ fn all_cases() -> Vec<Case> {
                 }),
                 medium: Medium::Video(Codec::Mjpeg { quality: 4 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + blur + noise + flicker + shake",
@@ -363,6 +400,7 @@ fn all_cases() -> Vec<Case> {
                 }),
                 medium: Medium::Video(Codec::H264 { crf: 20 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
         ]);
     }
@@ -394,6 +432,7 @@ fn clean_slow_tool_stills_within_target() {
         sc: base("slow-tool"),
         medium: Medium::Stills,
         limit: Some(80),
+        pivots_from_first_frame: false,
     });
 }
 
@@ -405,6 +444,7 @@ fn fast_jumps_at_1000_fps_are_followed() {
         sc: with("fast-tool", |s| s.camera.fps_hz = 1000.0),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: false,
     };
     let s = run(&case);
     assert!(s.drive_travel > 20.0, "scene should move: {s:?}");
@@ -423,6 +463,7 @@ fn dark_red_stripe_on_bare_steel_and_ccw() {
         }),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: false,
     });
 }
 
@@ -437,6 +478,7 @@ fn flicker_noise_highlight_within_target() {
         }),
         medium: Medium::Stills,
         limit: Some(80),
+        pivots_from_first_frame: false,
     };
     let s = run(&case);
     assert_eq!(s.lost, 0);
@@ -446,12 +488,15 @@ fn flicker_noise_highlight_within_target() {
 
 #[test]
 fn shake_is_cancelled_by_the_fixed_mark() {
+    // A short clip: pivots read off the first frame (over a whole clip the pivot refinement
+    // also removes the first frame's shake; see the table's shake rows).
     let sc = with("fast-tool", |s| s.effects.shake_sigma_px = 1.0);
     check(Case {
         name: "shake with fixed mark",
         sc: sc.clone(),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: true,
     });
     // Without the fixed mark the same shake costs far more: the correction is doing the work.
     let mut no_fixed = sc;
@@ -461,6 +506,7 @@ fn shake_is_cancelled_by_the_fixed_mark() {
         sc: no_fixed,
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: true,
     });
     assert!(s.drive_rms > 0.2 || s.nut_rms > 0.2, "{s:?}");
 }
@@ -477,6 +523,7 @@ fn oblique_disc_angles_are_in_the_disc_plane() {
         }),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: false,
     });
 }
 
@@ -555,11 +602,16 @@ fn h264_with_noise_within_target() {
         sc: with("fast-tool", |s| s.effects.noise_sigma = 0.01),
         medium: Medium::Video(twistmark::encode::Codec::H264 { crf: 18 }),
         limit: Some(60),
+        pivots_from_first_frame: false,
     });
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 6, .. ProptestConfig::default() })]
+    #![proptest_config(ProptestConfig {
+        cases: 8,
+        rng_seed: proptest::test_runner::RngSeed::Fixed(20_261_201),
+        .. ProptestConfig::default()
+    })]
     // Invariant (house style §23): rotating the whole scene by θ shifts both measured angles
     // by θ, so the relative angles do not change and the screen zero moves by θ.
     #[test]
@@ -656,6 +708,7 @@ fn print_tracking_speed() {
             sc,
             medium: Medium::Stills,
             limit: None,
+            pivots_from_first_frame: false,
         });
         println!(
             "{name}: {:.1} µs/frame over {} frames",

@@ -16,9 +16,14 @@
 //! made. Frames where the fixed mark's patch no longer matches the first frame keep the last
 //! good shift and are reported.
 //!
-//! Once the clip is done, each mark's pivot is refined from the stripe itself and every angle
-//! is re-read about the refined pivot (`refine.rs`); this removes the error a pivot that is off
-//! by a pixel (or shake in the first frame) would leave.
+//! Once the clip is done, each mark's angles are corrected for an offset pivot using the
+//! stripe's own direction, which does not depend on the pivot (`refine.rs`); this removes most
+//! of the error a pivot that is off by a pixel (or shake in the first frame) would leave.
+//!
+//! Unwrapping: each frame's angle is taken as the turn nearest the prediction from recent
+//! velocity, so the true turn between two measured frames must stay under 180° (facts.md
+//! §7.2). After a run of lost frames the prediction extrapolates the last velocity; if the
+//! part turned more than half a turn further than that while lost, whole turns are missed.
 
 use std::path::Path;
 
