@@ -154,13 +154,14 @@ pub struct SummaryRow {
     pub bar_stiffness_nm_per_deg: Option<f64>,
     /// Highest peak torque over all blows, N·m.
     pub peak_torque_nm: Option<f64>,
-    /// Peak torque on the last blow that still turned the nut, N·m (from the summary stage).
+    /// Peak torque on the last blow that still turned the nut, N·m.
     pub last_advancing_torque_nm: Option<f64>,
-    /// Residual twist at the end of the clip, degrees (from the summary stage).
+    /// Median residual twist just before the next blow, over the clip's blows, degrees.
     pub residual_twist_deg: Option<f64>,
     /// The bar's rated torque from the rig, N·m.
     pub rating_nm: Option<f64>,
-    /// Shear-yield margin at the peak torque, percent (from the summary stage).
+    /// Margin of the largest shear stress at the peak torque below shear yield, percent
+    /// (null when the bar's steel has no known yield strength).
     pub stress_margin_pct: Option<f64>,
     /// Number of warnings (listed in the clip's report.json).
     pub warning_count: Option<usize>,
@@ -572,14 +573,46 @@ fn ok_row(clip: &Clip, rig: &Rig, rig_path: &Path, analysis: &crate::Analysis) -
         nut_total_deg: s.nut_total.map(|a| a.deg()),
         bar_stiffness_nm_per_deg: s.stiffness.map(|k| k.nm_per_deg()),
         peak_torque_nm: s.peak_torque.map(|t| t.nm()),
-        // These three come from the summary stage once it reports them (docs/outputs.md);
-        // until then they are null rather than guessed here.
-        last_advancing_torque_nm: None,
-        residual_twist_deg: None,
-        stress_margin_pct: None,
+        last_advancing_torque_nm: analysis
+            .blows
+            .iter()
+            .rev()
+            .find(|b| b.nut_advanced)
+            .and_then(|b| b.peak_torque)
+            .map(|t| t.nm()),
+        residual_twist_deg: median_residual_deg(analysis),
+        stress_margin_pct: analysis
+            .bar
+            .as_ref()
+            .zip(s.peak_torque)
+            .and_then(|(b, t)| b.max_stress_ratio(t))
+            .map(|(_, ratio)| 100.0 * (1.0 - ratio)),
         rating_nm: rig.bar.as_ref().and_then(|b| b.rating_nm),
         warning_count: Some(analysis.warnings.len()),
     }
+}
+
+/// Median twist left just before the next blow, over every blow that has a next blow (the
+/// last blow's residual is taken at the clip's end, so it is left out unless it is the only
+/// one); degrees.
+fn median_residual_deg(analysis: &crate::Analysis) -> Option<f64> {
+    let n = analysis.blows.len();
+    let take = if n > 1 { n - 1 } else { n };
+    let mut v: Vec<f64> = analysis.blows[..take]
+        .iter()
+        .filter_map(|b| b.residual_twist.map(|a| a.deg()))
+        .filter(|x| x.is_finite())
+        .collect();
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(f64::total_cmp);
+    let m = v.len() / 2;
+    Some(if v.len() % 2 == 1 {
+        v[m]
+    } else {
+        0.5 * (v[m - 1] + v[m])
+    })
 }
 
 fn one_line(s: &str) -> String {

@@ -1,6 +1,6 @@
 //! `twistmark batch` run as a binary: bad folders, output placement, failing clips among
-//! others, sidecar rigs, and the summary files. Clips for real analysis (rendered scenes with
-//! known truth) are added with the fixtures; here every clip is made to fail in a known way.
+//! others, sidecar rigs, and the summary files, and a folder of rendered clips of the invented
+//! bench whose results must equal single `analyze` runs.
 
 use std::path::{Path, PathBuf};
 
@@ -278,5 +278,138 @@ fn corrupt_clip_and_bad_sidecar_fail_alone_with_reasons() {
     assert_eq!(
         std::fs::read_to_string(out_dir.join("summary.json")).unwrap(),
         text
+    );
+}
+
+/// Copies a folder of stills.
+fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for e in std::fs::read_dir(from).unwrap() {
+        let p = e.unwrap().path();
+        std::fs::copy(&p, to.join(p.file_name().unwrap())).unwrap();
+    }
+}
+
+/// The done-criterion of the batch work: rendered air-tool and fast-tool scenes of the invented
+/// bench (stills and video) plus one corrupt file. Every good clip is `ok` with the same numbers
+/// as a single `analyze`, the corrupt one is `failed` with its reason, and the exit code is 1.
+#[cfg(feature = "ffmpeg")]
+#[test]
+fn rendered_clips_match_single_runs_and_corrupt_one_fails() {
+    let fx = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures");
+    let d = tempfile::tempdir().unwrap();
+    let inp = d.path().join("in");
+    std::fs::create_dir(&inp).unwrap();
+    // (clip name in the batch folder, fixture, clip inside the fixture)
+    let clips = [
+        ("air_stills", "slow-tool", "frames"),
+        ("air_mjpeg.avi", "slow-tool", "clip_mjpeg.avi"),
+        ("fast_ffv1.mkv", "fast-tool", "clip_ffv1.mkv"),
+        ("fast_h264.mp4", "fast-tool", "clip_h264.mp4"),
+    ];
+    for (name, fixture, clip) in clips {
+        let src = fx.join(fixture).join(clip);
+        let dst = inp.join(name);
+        if src.is_dir() {
+            copy_dir(&src, &dst);
+        } else {
+            std::fs::copy(&src, &dst).unwrap();
+        }
+        // Each scene has its own capture rate and marks: a sidecar rig per clip.
+        let stem = Path::new(name)
+            .file_stem()
+            .unwrap()
+            .to_string_lossy()
+            .to_string();
+        std::fs::copy(
+            fx.join(fixture).join("rig.json"),
+            inp.join(format!("{stem}.rig.json")),
+        )
+        .unwrap();
+    }
+    let mp4 = std::fs::read(fx.join("fast-tool/clip_h264.mp4")).unwrap();
+    std::fs::write(inp.join("broken.mp4"), &mp4[..mp4.len() / 3]).unwrap();
+    let before = listing(&inp);
+
+    let out = d.path().join("out");
+    let run = |out: &Path| {
+        twistmark()
+            .arg("batch")
+            .arg(&inp)
+            .arg("--rig")
+            .arg(fx.join("slow-tool/rig.json"))
+            .arg("--out")
+            .arg(out)
+            .args(["--jobs", "2"])
+            .assert()
+            .code(1)
+    };
+    run(&out);
+    assert_eq!(listing(&inp), before, "the input folder was modified");
+
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let rows = summary["clips"].as_array().unwrap();
+    assert_eq!(rows.len(), 5);
+    let broken = rows.iter().find(|r| r["clip"] == "broken").unwrap();
+    assert_eq!(broken["status"], "failed");
+    assert!(
+        broken["error"].as_str().unwrap().contains("broken.mp4"),
+        "{broken}"
+    );
+
+    for (name, fixture, clip) in clips {
+        let stem = Path::new(name)
+            .file_stem()
+            .unwrap()
+            .to_string_lossy()
+            .to_string();
+        let row = rows.iter().find(|r| r["clip"] == stem.as_str()).unwrap();
+        assert_eq!(row["status"], "ok", "{row}");
+        // The same clip through a single `analyze`.
+        let single = d.path().join(format!("single_{stem}"));
+        twistmark()
+            .arg("analyze")
+            .arg(fx.join(fixture).join(clip))
+            .arg("--rig")
+            .arg(fx.join(fixture).join("rig.json"))
+            .arg("--out")
+            .arg(&single)
+            .assert()
+            .success();
+        let a = std::fs::read_to_string(single.join("report.json")).unwrap();
+        let a: serde_json::Value = serde_json::from_str(&a).unwrap();
+        let b: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(out.join(&stem).join("report.json")).unwrap(),
+        )
+        .unwrap();
+        assert_eq!(
+            a["blows"], b["blows"],
+            "{stem}: blows differ from a single run"
+        );
+        assert_eq!(
+            a["summary"], b["summary"],
+            "{stem}: summary differs from a single run"
+        );
+        assert_eq!(row["blow_count"], a["summary"]["blow_count"]);
+        assert_eq!(row["peak_torque_nm"], a["summary"]["peak_torque_nm"]);
+        assert_eq!(row["nut_total_deg"], a["summary"]["nut_total_deg"]);
+        assert!(row["last_advancing_torque_nm"].is_number(), "{row}");
+        assert!(row["residual_twist_deg"].is_number(), "{row}");
+    }
+    // The fast tool keeps the bar wound up between blows, the air tool lets it spring back.
+    let residual = |stem: &str| {
+        rows.iter().find(|r| r["clip"] == stem).unwrap()["residual_twist_deg"]
+            .as_f64()
+            .unwrap()
+    };
+    assert!(residual("fast_ffv1") > residual("air_stills"));
+
+    // Same inputs, same results.
+    let out2 = d.path().join("out2");
+    run(&out2);
+    assert_eq!(
+        std::fs::read_to_string(out.join("summary.csv")).unwrap(),
+        std::fs::read_to_string(out2.join("summary.csv")).unwrap()
     );
 }
