@@ -379,6 +379,36 @@ fn fill_luma(raw: &[u8], color: ColorType, n: usize, frame: &mut Frame) {
     }
 }
 
+/// Reads one still image into a luma [`Frame`] (index 0), with the same decoding and Rec. 601
+/// luma reduction as a stills folder. Used by `calibrate` for single images of a loaded bar.
+///
+/// # Errors
+/// [`Error::Io`] when the file cannot be opened; [`Error::Input`] naming the file when it is
+/// not a readable image or has an unsupported sample type.
+pub(crate) fn read_still(path: &Path) -> Result<Frame> {
+    let dec = decoder_for(path)?;
+    let (w, h) = dec.dimensions();
+    let color = dec.color_type();
+    if Samples::of(color).is_none() {
+        return Err(Error::input(
+            path,
+            format!(
+                "unsupported sample type {color:?}; save the image as 8- or 16-bit grey or colour"
+            ),
+        ));
+    }
+    let total = usize::try_from(dec.total_bytes())
+        .map_err(|_| Error::input(path, "image too large for this machine's memory"))?;
+    let mut raw = vec![0u8; total];
+    dec.read_image(&mut raw)
+        .map_err(|e| Error::input(path, format!("cannot be decoded ({e}); replace this image")))?;
+    let mut frame = Frame::empty();
+    fill_luma(&raw, color, w as usize * h as usize, &mut frame);
+    frame.width = w;
+    frame.height = h;
+    Ok(frame)
+}
+
 impl FrameSource for StillsSource {
     fn info(&self) -> &ClipInfo {
         &self.info
