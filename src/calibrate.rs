@@ -23,7 +23,7 @@ use std::path::{Path, PathBuf};
 
 use crate::decode::{Frame, read_still};
 use crate::error::{Error, Result};
-use crate::mechanics::CalibrationPair;
+use crate::mechanics::{CalibrationFit, CalibrationPair, fit_stiffness_line};
 use crate::rig::Rig;
 use crate::track::Tracker;
 use crate::units::{Angle, NM_PER_LBF_FT, TimeBase, Torque};
@@ -94,6 +94,10 @@ impl StillsTwist {
 /// Every loaded image's twist, and data-quality warnings.
 #[derive(Debug, Clone, PartialEq)]
 pub struct StillsMeasurement {
+    /// The reference image as written (in the CSV, or the `--reference` path).
+    pub reference: String,
+    /// The reference's line in the CSV (None when it was given apart).
+    pub reference_line: Option<u64>,
     /// One entry per loaded row, in the CSV's order.
     pub twists: Vec<StillsTwist>,
     /// Problems that did not stop the measurement, each naming its image.
@@ -101,9 +105,26 @@ pub struct StillsMeasurement {
 }
 
 impl StillsMeasurement {
-    /// The (torque, twist) pairs, in the CSV's order.
+    /// The points of the fit: the reference as (0, 0), then each loaded image's (torque,
+    /// twist) in the CSV's order.
     pub fn pairs(&self) -> Vec<CalibrationPair> {
-        self.twists.iter().map(StillsTwist::pair).collect()
+        let reference = CalibrationPair {
+            torque: Torque::from_nm(0.0),
+            twist: Angle::from_rad(0.0),
+        };
+        std::iter::once(reference)
+            .chain(self.twists.iter().map(StillsTwist::pair))
+            .collect()
+    }
+
+    /// Fits k to [`Self::pairs`] with a straight line with an offset, since every twist shares
+    /// the reference's measurement error ([`fit_stiffness_line`]).
+    ///
+    /// # Errors
+    /// As [`fit_stiffness_line`]: fewer than two loaded images, one torque only, or twists
+    /// that do not rise with torque.
+    pub fn fit(&self) -> Result<CalibrationFit> {
+        fit_stiffness_line(&self.pairs())
     }
 }
 
@@ -343,7 +364,16 @@ pub fn measure_stills(rig: &Rig, rig_path: &Path, plan: &StillsPlan) -> Result<S
             nut_confidence: trace.nut_confidence.get(1).copied().unwrap_or(0.0),
         });
     }
-    Ok(StillsMeasurement { twists, warnings })
+    let (reference, reference_line) = match &plan.reference {
+        Reference::Row(r) => (r.image.clone(), Some(r.line)),
+        Reference::Given(p) => (p.display().to_string(), None),
+    };
+    Ok(StillsMeasurement {
+        reference,
+        reference_line,
+        twists,
+        warnings,
+    })
 }
 
 #[cfg(test)]
@@ -500,7 +530,12 @@ mod tests {
         assert!((t.nut.deg() - 0.4).abs() < 0.05, "{}", t.nut.deg());
         assert!((t.twist().deg() - 6.6).abs() < 0.05);
         assert!((m.twists[0].twist().deg() - 3.5).abs() < 0.05);
-        assert_relative_eq!(m.pairs()[1].torque.nm(), 90.0);
+        assert_relative_eq!(m.pairs()[2].torque.nm(), 90.0);
+        assert_eq!(m.pairs()[0].torque.nm(), 0.0);
+        let fit = m.fit().unwrap();
+        // 45 N·m ↔ 3.5°, 90 N·m ↔ 6.6°: slope 3.1°/45 N·m and an offset of 0.4° by construction
+        // of these angles (the line runs through all three points only roughly).
+        assert!(fit.offset.is_some());
         assert!(m.warnings.is_empty(), "{:?}", m.warnings);
     }
 
