@@ -199,6 +199,7 @@ fn text_output_lists_each_photo_and_the_caution() {
         .assert()
         .success();
     let text = String::from_utf8(out.get_output().stdout.clone()).unwrap();
+    eprintln!("{text}");
     assert!(text.contains("twist measured from stills"), "{text}");
     assert!(text.contains("photos/t136.png"), "{text}");
     assert!(text.contains("not a calibrated measurement"), "{text}");

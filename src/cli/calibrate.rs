@@ -18,6 +18,9 @@ use twistmark::calibrate::{StillsMeasurement, measure_stills, read_stills_csv};
 use twistmark::mechanics::{self, CalibrationPair, TORQUE_CAUTION};
 use twistmark::units::Torque;
 
+/// A fitted point's image, CSV line, drive and nut angles (deg), for `--stills`.
+type StillInfo = (String, Option<u64>, f64, f64);
+
 /// Arguments of `calibrate`.
 #[derive(Debug, Args)]
 #[command(after_help = "\
@@ -100,7 +103,7 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         None => mechanics::fit_stiffness(&pairs)?,
     };
     // Per fitted point, for stills: (image, CSV line, drive, nut); the reference comes first.
-    let images: Vec<Option<(String, Option<u64>, f64, f64)>> = match &stills {
+    let images: Vec<Option<StillInfo>> = match &stills {
         Some(m) => std::iter::once(Some((m.reference.clone(), m.reference_line, 0.0, 0.0)))
             .chain(m.twists.iter().map(|t| {
                 Some((

@@ -147,7 +147,7 @@ pub fn fit_stiffness_line(pairs: &[CalibrationPair]) -> Result<CalibrationFit> {
         .iter()
         .map(|p| (p.torque.nm() - tm) * (p.twist.rad() - ym))
         .sum();
-    if !(sxx > 0.0) {
+    if sxx <= 0.0 {
         return Err(bad(
             "every check has the same torque; load the bar at several torques across its working range".into(),
         ));
