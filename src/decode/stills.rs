@@ -652,6 +652,27 @@ mod tests {
     }
 
     #[test]
+    fn read_still_matches_the_folder_reader() {
+        // One image read alone gives the same luma as the same file read as a folder frame
+        // (Rec. 601 weights, ITU-R BT.601-7 §2.5.1), and a bad file is named.
+        let dir = tempfile::tempdir().unwrap();
+        let px: [[u8; 3]; 4] = [[255, 0, 0], [0, 255, 0], [0, 0, 255], [200, 100, 50]];
+        let img = ImageBuffer::from_fn(4, 1, |x, _| Rgb(px[x as usize]));
+        img.save(dir.path().join("c_1.png")).unwrap();
+        let f = read_still(&dir.path().join("c_1.png")).unwrap();
+        assert_eq!((f.width, f.height, f.bit_depth), (4, 1, 8));
+        let mut src = StillsSource::open(dir.path()).unwrap();
+        assert_eq!(f.luma, read_all(&mut src).remove(0).luma);
+        assert_eq!(f.luma, Luma::U8(vec![76, 150, 29, 124]));
+        std::fs::write(dir.path().join("bad.png"), b"nope").unwrap();
+        let e = read_still(&dir.path().join("bad.png")).unwrap_err();
+        assert!(
+            matches!(&e, Error::Input { path, .. } if path.ends_with("bad.png")),
+            "{e}"
+        );
+    }
+
+    #[test]
     fn gap_warnings_are_capped() {
         let stills: Vec<Still> = (0..30)
             .map(|i| Still {
