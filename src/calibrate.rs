@@ -127,7 +127,39 @@ impl StillsMeasurement {
     pub fn fit(&self) -> Result<CalibrationFit> {
         fit_stiffness_line(&self.pairs())
     }
+
+    /// A warning when the reference image is off the line of the loaded images: the loaded
+    /// images alone are fitted with a line of their own, and its twist at zero torque, a′, is
+    /// compared with the reference's 0. Warns when |a′| is above [`OFFSET_WARN_DEG`] and above
+    /// three times √(u(a′)² + s′²), the standard uncertainty of a new reading at zero torque
+    /// predicted from that line, with u(a′) = s′·√(1/n + T̄²/Σ(Tᵢ−T̄)²) (straight-line least
+    /// squares, same textbook as the fit). Needs three loaded images.
+    pub fn offset_warning(&self, fit: &CalibrationFit) -> Option<Warning> {
+        let loaded = fit.pairs.get(1..)?;
+        let alone = fit_stiffness_line(loaded).ok()?;
+        let a = alone.offset?.deg();
+        let n = loaded.len() as f64;
+        let tm = loaded.iter().map(|p| p.torque.nm()).sum::<f64>() / n;
+        let sxx: f64 = loaded.iter().map(|p| (p.torque.nm() - tm).powi(2)).sum();
+        let ss: f64 = alone.residuals.iter().map(|r| r.deg().powi(2)).sum();
+        let s2 = ss / (n - 2.0);
+        let u_pred = (s2 * (1.0 + 1.0 / n + tm * tm / sxx)).sqrt();
+        if !(a.abs() > OFFSET_WARN_DEG && a.abs() > 3.0 * u_pred) {
+            return None;
+        }
+        Some(Warning::Note(format!(
+            "the reference image '{}' is off the line of the loaded images, which reaches zero torque at {a:+.3} deg (± {u_pred:.3}): play taken up by the first load, or the bar or camera moved between photos. That biases k ({:.3} N·m/deg with the reference; {:.3} ± {:.3} from the loaded images alone). Retake the set in one go with the camera fixed",
+            self.reference,
+            fit.stiffness.nm_per_deg(),
+            alone.stiffness.nm_per_deg(),
+            alone.stderr.nm_per_deg()
+        )))
+    }
 }
+
+/// A reference off the loaded images' line by less than this (deg) is not worth a warning:
+/// a few times the tracker's per-image twist error on clean stills (docs/accuracy.md).
+pub const OFFSET_WARN_DEG: f64 = 0.05;
 
 /// Reads the stills table. The torque column is `torque_nm` or `torque_lbf_ft`, the image
 /// column `image`; any other column is an error, so a misspelt unit does not pass silently.
@@ -537,7 +569,60 @@ mod tests {
         // 45 N·m ↔ 3.5°, 90 N·m ↔ 6.6°: slope 3.1°/45 N·m and an offset of 0.4° by construction
         // of these angles (the line runs through all three points only roughly).
         assert!(fit.offset.is_some());
+        // With one degree of freedom u(a) is large: no warning.
+        assert!(m.offset_warning(&fit).is_none());
         assert!(m.warnings.is_empty(), "{:?}", m.warnings);
+    }
+
+    /// Six loaded images on T/13.3 N·m/deg plus a constant `offset_deg` and ±0.01° of
+    /// alternating noise (invented values).
+    fn measured(offset_deg: f64) -> StillsMeasurement {
+        let twists = (1..=6u32)
+            .map(|i| {
+                let t = 20.0 * f64::from(i);
+                let e = if i % 2 == 0 { 0.01 } else { -0.01 };
+                StillsTwist {
+                    row: StillsRow {
+                        line: u64::from(i) + 2,
+                        torque: Torque::from_nm(t),
+                        image: format!("t{i}.png"),
+                        path: PathBuf::from(format!("t{i}.png")),
+                    },
+                    drive: Angle::from_deg(t / 13.3 + offset_deg + e),
+                    nut: Angle::from_deg(0.0),
+                    drive_confidence: 1.0,
+                    nut_confidence: 1.0,
+                }
+            })
+            .collect();
+        StillsMeasurement {
+            reference: "rest.png".into(),
+            reference_line: Some(2),
+            twists,
+            warnings: Vec::new(),
+        }
+    }
+
+    #[test]
+    fn a_reference_off_the_line_warns_with_k_from_the_loaded_images() {
+        let clean = measured(0.0);
+        let fit = clean.fit().unwrap();
+        assert!(clean.offset_warning(&fit).is_none());
+        let moved = measured(0.5);
+        let f2 = moved.fit().unwrap();
+        // The reference is a point of the line, so an offset of the loaded images pulls the
+        // slope; the warning names the reference and gives k from the loaded images alone,
+        // which the offset does not touch.
+        assert!(f2.stiffness.nm_per_deg() < 0.98 * fit.stiffness.nm_per_deg());
+        let alone = fit_stiffness_line(&f2.pairs[1..]).unwrap();
+        assert!((alone.stiffness.nm_per_deg() / 13.3 - 1.0).abs() < 0.005);
+        let w = moved
+            .offset_warning(&f2)
+            .map(|w| w.to_string())
+            .unwrap_or_default();
+        assert!(w.contains("rest.png") && w.contains("zero torque"), "{w}");
+        let k_alone = format!("{:.3} ±", alone.stiffness.nm_per_deg());
+        assert!(w.contains(&k_alone), "{w}");
     }
 
     #[test]

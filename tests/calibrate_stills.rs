@@ -54,6 +54,12 @@ fn save_png(f: &Frame, path: &Path) {
 /// Writes the stills into `dir/photos/`, the rig (without any calibration) and the CSV into
 /// `dir`. Returns (rig path, csv path, k_true).
 fn bench(dir: &Path) -> (PathBuf, PathBuf, f64) {
+    bench_with_play(dir, 0.0)
+}
+
+/// As [`bench`], with every loaded photo's drive turned `play_deg` further (play in the drive
+/// taken up by the first load).
+fn bench_with_play(dir: &Path, play_deg: f64) -> (PathBuf, PathBuf, f64) {
     let mut sc = Scenario::preset("slow-tool").unwrap();
     sc.seed = 20_261_202;
     sc.effects.noise_sigma = 0.01;
@@ -72,7 +78,7 @@ fn bench(dir: &Path) -> (PathBuf, PathBuf, f64) {
     let poses: Vec<(f64, f64, [f64; 2])> = TORQUES_NM
         .iter()
         .zip(shifts)
-        .map(|(t, s)| (t / k, 0.0, s))
+        .map(|(t, s)| (t / k + if *t > 0.0 { play_deg } else { 0.0 }, 0.0, s))
         .collect();
     let frames = render(&sc, &poses);
     std::fs::create_dir_all(dir.join("photos")).unwrap();
@@ -109,6 +115,9 @@ fn stills_recover_the_bench_stiffness_and_bar_uses_it() {
         .arg(&out_rig)
         .assert()
         .success();
+    // A clean set: no warning at all (camera shifts matched, reference on the line).
+    let stderr = String::from_utf8(out.get_output().stderr.clone()).unwrap();
+    assert!(stderr.is_empty(), "{stderr}");
     let v: Value = serde_json::from_slice(&out.get_output().stdout).unwrap();
     let written: Value = serde_json::from_slice(&std::fs::read(&out_rig).unwrap()).unwrap();
     let k = written["bar"]["calibrated_stiffness_nm_per_deg"]
@@ -286,4 +295,32 @@ fn bad_stills_input_is_one_line_naming_the_file_and_row() {
         2,
     );
     assert!(e.contains("--reference") && e.contains("--pair"), "{e}");
+}
+
+#[test]
+fn a_reference_off_the_loaded_line_warns() {
+    // Synthetic truth: 0.5° of play taken up by the first load on the invented bench.
+    let dir = tempfile::tempdir().unwrap();
+    let (rig, table, k_true) = bench_with_play(dir.path(), 0.5);
+    let out = bin()
+        .args(["calibrate", "--rig"])
+        .arg(&rig)
+        .arg("--stills")
+        .arg(&table)
+        .assert()
+        .success();
+    let stderr = String::from_utf8(out.get_output().stderr.clone()).unwrap();
+    eprintln!("{stderr}");
+    assert!(
+        stderr.contains("warning: the reference image 'photos/t000.png' is off the line"),
+        "{stderr}"
+    );
+    // The k from the loaded images alone, given in the warning, recovers the truth.
+    let alone: f64 = stderr
+        .split("; ")
+        .nth(1)
+        .and_then(|t| t.split_whitespace().next())
+        .and_then(|t| t.parse().ok())
+        .unwrap_or_else(|| panic!("{stderr}"));
+    assert!((alone / k_true - 1.0).abs() < 0.01, "{alone} vs {k_true}");
 }

@@ -99,7 +99,11 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         );
     }
     let fit = match &stills {
-        Some(m) => m.fit()?,
+        Some(m) => {
+            let fit = m.fit()?;
+            super::print_warnings(&m.offset_warning(&fit).into_iter().collect::<Vec<_>>());
+            fit
+        }
         None => mechanics::fit_stiffness(&pairs)?,
     };
     // Per fitted point, for stills: (image, CSV line, drive, nut); the reference comes first.
