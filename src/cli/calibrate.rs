@@ -1,7 +1,8 @@
 //! `twistmark calibrate --rig RIG (--pair TORQUE_NM:TWIST_DEG ... | --csv FILE | --stills FILE
-//! [--reference IMAGE]) [--out RIG]`: fits the bar's stiffness through the origin from
-//! torque-wrench checks, prints it with its uncertainty and residuals, and writes it into a rig
-//! as `calibrated_stiffness_nm_per_deg`.
+//! [--reference IMAGE]) [--out RIG]`: fits the bar's stiffness from torque-wrench checks
+//! (through the origin for given twists, a line with an offset for twists measured from
+//! stills), prints it with its uncertainty and residuals, and writes it into a rig as
+//! `calibrated_stiffness_nm_per_deg`.
 //!
 //! Twist comes either as numbers (typed pairs and/or a CSV, which may be combined) or measured
 //! by the tracker from still images of the loaded bar (`--stills`, see `twistmark::calibrate`).
