@@ -326,10 +326,12 @@ impl StillsPlan {
 fn load(plan: &StillsPlan, label: &str, path: &Path) -> Result<Frame> {
     let wrap = |reason: String| Error::input(&plan.csv, format!("{label}: {reason}"));
     if !path.is_file() {
-        return Err(wrap(format!(
-            "no such file ({}); image paths are relative to the CSV's folder",
-            path.display()
-        )));
+        let hint = if matches!(plan.reference, Reference::Given(ref p) if p == path) {
+            "check the --reference path"
+        } else {
+            "image paths are relative to the CSV's folder"
+        };
+        return Err(wrap(format!("no such file ({}); {hint}", path.display())));
     }
     read_still(path).map_err(|e| match e {
         Error::Input { reason, .. } => wrap(reason),
