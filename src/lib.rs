@@ -24,6 +24,7 @@
 
 pub mod analyze;
 pub mod batch;
+pub mod calibrate;
 pub mod decode;
 #[cfg(feature = "ffmpeg")]
 pub mod encode;

@@ -1,21 +1,44 @@
-//! `twistmark calibrate --rig RIG --pair TORQUE_NM:TWIST_DEG ... [--csv FILE] [--out RIG]`:
-//! fits the bar's stiffness through the origin from torque-wrench checks, prints it with its
-//! uncertainty and residuals, and writes it into a rig as `calibrated_stiffness_nm_per_deg`.
+//! `twistmark calibrate --rig RIG (--pair TORQUE_NM:TWIST_DEG ... | --csv FILE | --stills FILE
+//! [--reference IMAGE]) [--out RIG]`: fits the bar's stiffness from torque-wrench checks
+//! (through the origin for given twists, a line with an offset for twists measured from
+//! stills), prints it with its uncertainty and residuals, and writes it into a rig as
+//! `calibrated_stiffness_nm_per_deg`.
 //!
-//! Pairs come from sources that all yield (torque, twist); typed pairs and a CSV file today.
-//! Twist measured from still images of the loaded bar (a `--stills` source using the rig's
-//! marks) needs the tracker and would be one more source feeding the same fit.
+//! Twist comes either as numbers (typed pairs and/or a CSV, which may be combined) or measured
+//! by the tracker from still images of the loaded bar (`--stills`, see `twistmark::calibrate`).
+//! The two kinds are not mixed in one fit: the fit is unweighted, so it assumes every twist
+//! has the same noise, and the rig's record names one twist source. Clap refuses the mix as a
+//! usage error (exit 2).
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 use anyhow::{Context, Result};
 use clap::Args;
+use twistmark::calibrate::{StillsMeasurement, measure_stills, read_stills_csv};
 use twistmark::mechanics::{self, CalibrationPair, TORQUE_CAUTION};
 use twistmark::units::Torque;
 
+/// A fitted point's image, CSV line, drive and nut angles (deg), for `--stills`.
+type StillInfo = (String, Option<u64>, f64, f64);
+
 /// Arguments of `calibrate`.
 #[derive(Debug, Args)]
+#[command(after_help = "\
+Twist from still images (--stills): a CSV with a header row, torque_nm (or torque_lbf_ft) and
+image, one row per photo of the bar held at that torque; image paths are relative to the CSV's
+folder. The row with torque 0 (or --reference IMAGE) is the bar at rest. Each image is measured
+against it with the rig's drive and nut marks: twist = drive - nut, tightening positive. Take
+every photo from the same fixed camera position, at the same size, e.g.
+
+    torque_nm,image
+    0,rest.png
+    40,t040.png
+    80,t080.png
+
+--stills cannot be combined with --pair or --csv; --pair and --csv can be combined.
+Torque from twist is a model, not a calibrated measurement: follow the vehicle maker's
+specification and check with a calibrated torque wrench.")]
 pub struct CalibrateArgs {
     /// The rig file holding the bar.
     #[arg(long)]
@@ -32,6 +55,13 @@ pub struct CalibrateArgs {
     /// (or twist_rad).
     #[arg(long, value_name = "FILE")]
     csv: Option<PathBuf>,
+    /// A CSV of photos of the loaded bar: torque_nm (or torque_lbf_ft) and image; the twist in
+    /// each image is measured against the unloaded one with the rig's drive and nut marks.
+    #[arg(long, value_name = "FILE.csv", conflicts_with_all = ["pairs", "csv"])]
+    stills: Option<PathBuf>,
+    /// The image of the bar at rest, when the --stills CSV has no row with torque 0.
+    #[arg(long, value_name = "IMAGE", requires = "stills", conflicts_with_all = ["pairs", "csv"])]
+    reference: Option<PathBuf>,
     /// Write the rig with the calibrated stiffness to this file (may be the --rig file).
     #[arg(long, value_name = "RIG.json")]
     out: Option<PathBuf>,
@@ -43,6 +73,21 @@ pub struct CalibrateArgs {
 pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
     let (mut rig, mut bar) = super::bar::load_bar(&a.rig)?;
     let mut pairs: Vec<CalibrationPair> = Vec::new();
+    let mut stills: Option<StillsMeasurement> = None;
+    if let Some(table) = &a.stills {
+        let plan = read_stills_csv(table, a.reference.as_deref())?;
+        let m = measure_stills(&rig, &a.rig, &plan)?;
+        super::print_warnings(&m.warnings);
+        pairs = m.pairs();
+        if m.twists.iter().all(|t| t.twist().rad() <= 0.0) {
+            anyhow::bail!(
+                "--stills: every measured twist is zero or negative (drive - nut, tightening positive); \
+                 check the rig's \"tighten\" directions, that the drive and nut marks are not swapped, \
+                 and that the reference is the unloaded image"
+            );
+        }
+        stills = Some(m);
+    }
     for p in &a.pairs {
         pairs.push(mechanics::parse_pair(p)?);
     }
@@ -51,17 +96,39 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
     }
     if pairs.is_empty() {
         anyhow::bail!(
-            "--pair: no checks given; pass --pair TORQUE_NM:TWIST_DEG for each, or --csv FILE"
+            "--pair: no checks given; pass --pair TORQUE_NM:TWIST_DEG for each, --csv FILE, or --stills FILE"
         );
     }
-    let fit = mechanics::fit_stiffness(&pairs)?;
+    let fit = match &stills {
+        Some(m) => {
+            let fit = m.fit()?;
+            super::print_warnings(&m.offset_warning(&fit).into_iter().collect::<Vec<_>>());
+            fit
+        }
+        None => mechanics::fit_stiffness(&pairs)?,
+    };
+    // Per fitted point, for stills: (image, CSV line, drive, nut); the reference comes first.
+    let images: Vec<Option<StillInfo>> = match &stills {
+        Some(m) => std::iter::once(Some((m.reference.clone(), m.reference_line, 0.0, 0.0)))
+            .chain(m.twists.iter().map(|t| {
+                Some((
+                    t.row.image.clone(),
+                    Some(t.row.line),
+                    t.drive.deg(),
+                    t.nut.deg(),
+                ))
+            }))
+            .collect(),
+        None => vec![None; fit.pairs.len()],
+    };
+    let source = if stills.is_some() { "stills" } else { "given" };
     let computed = bar.computed_stiffness();
     let k = fit.stiffness;
     let u = fit.stderr;
     let vs_pct = 100.0 * (k.nm_per_rad() / computed.nm_per_rad() - 1.0);
 
     bar.calibrated_stiffness_nm_per_deg = Some(k.nm_per_deg());
-    bar.calibration = Some(fit.to_spec(computed, "given"));
+    bar.calibration = Some(fit.to_spec(computed, source));
     rig.bar = Some(bar);
     if let Some(out) = &a.out {
         let text = rig.to_json_pretty() + "\n";
@@ -78,21 +145,61 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
             "computed_stiffness_nm_per_deg": computed.nm_per_deg(),
             "calibrated_vs_computed_pct": vs_pct,
             "rms_residual_deg": fit.rms_residual.deg(),
-            "pairs": fit.pairs.iter().zip(&fit.residuals).map(|(p, r)| serde_json::json!({
-                "torque_nm": p.torque.nm(),
-                "twist_deg": p.twist.deg(),
-                "fitted_twist_deg": (p.torque / k).deg(),
-                "residual_deg": r.deg(),
-            })).collect::<Vec<_>>(),
+            "twist_source": source,
+            "offset_deg": fit.offset.map(|a| a.deg()),
+            "pairs": fit.pairs.iter().zip(&fit.residuals).zip(&images).map(|((p, r), img)| {
+                let mut o = serde_json::json!({
+                    "torque_nm": p.torque.nm(),
+                    "twist_deg": p.twist.deg(),
+                    "fitted_twist_deg": fit.fitted_twist(p).deg(),
+                    "residual_deg": r.deg(),
+                });
+                if let Some((image, line, drive, nut)) = img {
+                    o["image"] = image.clone().into();
+                    o["line"] = (*line).into();
+                    o["drive_deg"] = (*drive).into();
+                    o["nut_deg"] = (*nut).into();
+                }
+                o
+            }).collect::<Vec<_>>(),
+            "caution": TORQUE_CAUTION,
             "written_to": a.out.as_ref().map(|p| p.display().to_string()),
         });
         println!("{}", serde_json::to_string_pretty(&v)?);
         return Ok(ExitCode::SUCCESS);
     }
-    println!(
-        "calibration from {} check(s), fit through the origin",
-        fit.pairs.len()
-    );
+    match fit.offset {
+        None => println!(
+            "calibration from {} check(s), fit through the origin",
+            fit.pairs.len()
+        ),
+        Some(a) => println!(
+            "calibration from {} image(s) including the reference, straight line with an offset \
+             (the reference's own error is shared by every twist): offset {:+.4} deg",
+            fit.pairs.len(),
+            a.deg()
+        ),
+    }
+    if let Some(m) = &stills {
+        println!(
+            "twist measured from stills, against the unloaded reference (tightening positive)"
+        );
+        println!(
+            "  {:>4}  {:>10}  {:>10}  {:>10}  {:>10}  image",
+            "line", "torque", "drive", "nut", "twist"
+        );
+        for t in &m.twists {
+            println!(
+                "  {:>4}  {:>6.1} N·m  {:>6.3} deg  {:>6.3} deg  {:>6.3} deg  {}",
+                t.row.line,
+                t.row.torque.nm(),
+                t.drive.deg(),
+                t.nut.deg(),
+                t.twist().deg(),
+                t.row.image
+            );
+        }
+    }
     println!(
         "  {:>10}  {:>10}  {:>10}  {:>10}  {:>12}",
         "torque", "twist", "fitted", "residual", "as torque"
@@ -102,7 +209,7 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
             "  {:>6.1} N·m  {:>6.3} deg  {:>6.3} deg  {:>+6.3} deg  {:>+8.2} N·m",
             p.torque.nm(),
             p.twist.deg(),
-            (p.torque / k).deg(),
+            fit.fitted_twist(p).deg(),
             r.deg(),
             (k * *r).nm()
         );

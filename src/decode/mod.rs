@@ -10,6 +10,7 @@ use crate::error::{Error, Result};
 use crate::warning::Warning;
 
 mod stills;
+pub(crate) use stills::read_still;
 #[cfg(feature = "ffmpeg")]
 mod video;
 

@@ -379,6 +379,36 @@ fn fill_luma(raw: &[u8], color: ColorType, n: usize, frame: &mut Frame) {
     }
 }
 
+/// Reads one still image into a luma [`Frame`] (index 0), with the same decoding and Rec. 601
+/// luma reduction as a stills folder. Used by `calibrate` for single images of a loaded bar.
+///
+/// # Errors
+/// [`Error::Io`] when the file cannot be opened; [`Error::Input`] naming the file when it is
+/// not a readable image or has an unsupported sample type.
+pub(crate) fn read_still(path: &Path) -> Result<Frame> {
+    let dec = decoder_for(path)?;
+    let (w, h) = dec.dimensions();
+    let color = dec.color_type();
+    if Samples::of(color).is_none() {
+        return Err(Error::input(
+            path,
+            format!(
+                "unsupported sample type {color:?}; save the image as 8- or 16-bit grey or colour"
+            ),
+        ));
+    }
+    let total = usize::try_from(dec.total_bytes())
+        .map_err(|_| Error::input(path, "image too large for this machine's memory"))?;
+    let mut raw = vec![0u8; total];
+    dec.read_image(&mut raw)
+        .map_err(|e| Error::input(path, format!("cannot be decoded ({e}); replace this image")))?;
+    let mut frame = Frame::empty();
+    fill_luma(&raw, color, w as usize * h as usize, &mut frame);
+    frame.width = w;
+    frame.height = h;
+    Ok(frame)
+}
+
 impl FrameSource for StillsSource {
     fn info(&self) -> &ClipInfo {
         &self.info
@@ -619,6 +649,27 @@ mod tests {
         let f = read_all(&mut src).remove(0);
         // 0.299 × 65535 = 19594.97 → 19595; 0.114 × 65535 = 7470.99 → 7471
         assert_eq!(f.luma, Luma::U16(vec![19595, 7471]));
+    }
+
+    #[test]
+    fn read_still_matches_the_folder_reader() {
+        // One image read alone gives the same luma as the same file read as a folder frame
+        // (Rec. 601 weights, ITU-R BT.601-7 §2.5.1), and a bad file is named.
+        let dir = tempfile::tempdir().unwrap();
+        let px: [[u8; 3]; 4] = [[255, 0, 0], [0, 255, 0], [0, 0, 255], [200, 100, 50]];
+        let img = ImageBuffer::from_fn(4, 1, |x, _| Rgb(px[x as usize]));
+        img.save(dir.path().join("c_1.png")).unwrap();
+        let f = read_still(&dir.path().join("c_1.png")).unwrap();
+        assert_eq!((f.width, f.height, f.bit_depth), (4, 1, 8));
+        let mut src = StillsSource::open(dir.path()).unwrap();
+        assert_eq!(f.luma, read_all(&mut src).remove(0).luma);
+        assert_eq!(f.luma, Luma::U8(vec![76, 150, 29, 124]));
+        std::fs::write(dir.path().join("bad.png"), b"nope").unwrap();
+        let e = read_still(&dir.path().join("bad.png")).unwrap_err();
+        assert!(
+            matches!(&e, Error::Input { path, .. } if path.ends_with("bad.png")),
+            "{e}"
+        );
     }
 
     #[test]

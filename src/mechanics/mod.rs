@@ -17,5 +17,7 @@ pub use bar_report::{
     SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
 };
 pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, Summary, blow_metrics};
-pub use calibration::{CalibrationFit, CalibrationPair, fit_stiffness, parse_pair, read_pairs_csv};
+pub use calibration::{
+    CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
+};
 pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};
