@@ -335,7 +335,7 @@ fn load(plan: &StillsPlan, label: &str, path: &Path) -> Result<Frame> {
     }
     read_still(path).map_err(|e| match e {
         Error::Input { reason, .. } => wrap(reason),
-        Error::Io { source, .. } => wrap(format!("cannot read: {source}")),
+        Error::Io { cause, .. } => wrap(format!("cannot read: {cause}")),
         other => wrap(other.to_string()),
     })
 }

@@ -12,12 +12,14 @@ pub type Result<T, E = Error> = std::result::Result<T, E>;
 #[non_exhaustive]
 pub enum Error {
     /// A file or folder could not be read or written.
-    #[error("{path}: {source}")]
+    // The OS error is part of the one-line message, not a separate cause, so that the CLI's
+    // `{:#}` chain does not print it twice.
+    #[error("{path}: {cause}")]
     Io {
         /// The file or folder.
         path: PathBuf,
         /// What the operating system said.
-        source: std::io::Error,
+        cause: std::io::Error,
     },
     /// An input clip (video file or stills folder) is unusable.
     #[error("{path}: {reason}")]
@@ -86,7 +88,7 @@ impl Error {
     pub fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
         Error::Io {
             path: path.into(),
-            source,
+            cause: source,
         }
     }
     /// Builds an [`Error::Input`] for `path`.

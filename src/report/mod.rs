@@ -76,7 +76,7 @@ pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     let tmp = path.with_file_name(format!(".{name}.{}.partial", std::process::id()));
     let io = |p: &Path| {
         let p = p.to_path_buf();
-        move |source| Error::Io { path: p, source }
+        move |cause| Error::Io { path: p, cause }
     };
     let result = (|| {
         let mut f = fs::File::create(&tmp).map_err(io(&tmp))?;
