@@ -260,7 +260,7 @@ fn detect(img: &Img, win: [usize; 4]) -> Vec<Seg> {
                 continue;
             }
             if let Some(seg) = segment(&pts, dark) {
-                out.push(seg);
+                out.push(centre_line(img, seg));
             }
         }
     }
@@ -306,6 +306,64 @@ fn segment(pts: &[(f64, f64, f64)], dark: bool) -> Option<Seg> {
         length,
         dark,
     })
+}
+
+/// Refines a stripe's centre line to sub-pixel: across the stripe, every pixel along it, the
+/// centroid of the paint's contrast over the local surface (the lower of the two profile
+/// ends) gives a centre point; a straight line fitted to those points by least squares gives
+/// the centroid and orientation. The thresholded component alone is biased by its pixel mask.
+fn centre_line(img: &Img, seg: Seg) -> Seg {
+    let u = seg.dir();
+    let nrm = [-u[1], u[0]];
+    let sgn = if seg.dark { -1.0f32 } else { 1.0 };
+    let half = f64::from(RIDGE_OFFSET_PX) + 1.0;
+    let mut pts: Vec<(f64, f64)> = Vec::new();
+    let mut s = seg.ext[0] + 3.0;
+    while s <= seg.ext[1] - 3.0 {
+        let base = [seg.c[0] + s * u[0], seg.c[1] + s * u[1]];
+        let prof: Vec<(f64, f32)> = (0..=(4.0 * half) as i32)
+            .map(|k| {
+                let t = -half + 0.5 * f64::from(k);
+                (
+                    t,
+                    sgn * img.sample(base[0] + t * nrm[0], base[1] + t * nrm[1]),
+                )
+            })
+            .collect();
+        let floor = prof[0].1.max(prof[prof.len() - 1].1);
+        let (mut sw, mut st) = (0.0, 0.0);
+        for (t, v) in &prof {
+            let w = f64::from((v - floor).max(0.0));
+            sw += w;
+            st += w * t;
+        }
+        if sw > 0.0 {
+            pts.push((s, st / sw));
+        }
+        s += 1.0;
+    }
+    if pts.len() < 6 {
+        return seg;
+    }
+    let n = pts.len() as f64;
+    let ms = pts.iter().map(|p| p.0).sum::<f64>() / n;
+    let mt = pts.iter().map(|p| p.1).sum::<f64>() / n;
+    let sst: f64 = pts.iter().map(|p| (p.0 - ms) * (p.1 - mt)).sum();
+    let sss: f64 = pts.iter().map(|p| (p.0 - ms).powi(2)).sum();
+    if sss <= 0.0 {
+        return seg;
+    }
+    let slope = sst / sss;
+    let c = [
+        seg.c[0] + ms * u[0] + mt * nrm[0],
+        seg.c[1] + ms * u[1] + mt * nrm[1],
+    ];
+    Seg {
+        c,
+        theta: wrap_half(seg.theta + slope.atan()),
+        ext: [seg.ext[0] - ms, seg.ext[1] - ms],
+        ..seg
+    }
 }
 
 /// Wraps an orientation to (−π/2, π/2].
@@ -691,15 +749,16 @@ fn unsure(item: &str, reason: String) -> Warning {
 fn fixed_from(t: &Track) -> FoundMark {
     let s = t.first;
     let [a, _] = s.ends();
-    let len = s.ext[1] - s.ext[0];
+    let u = s.dir();
+    // The painted end lies about 1.5 px inside the component's end (the 3×3 smoothing).
+    let pivot = [a[0] + 1.5 * u[0], a[1] + 1.5 * u[1]];
+    let len = s.ext[1] - s.ext[0] - 3.0;
+    let inner = 4.0f64.min(0.25 * len);
     FoundMark {
         role: Some(Role::Fixed),
         mark: RadialMark {
-            pivot: round2(a),
-            radius: [
-                round1(TRIM_INNER_PX.min(0.25 * len)),
-                round1((len - TRIM_OUTER_PX).max(TRIM_INNER_PX + 2.0)),
-            ],
+            pivot: round2(pivot),
+            radius: [round1(inner), round1((len - 2.0).max(inner + 2.0))],
             tighten: None,
             ellipse: None,
         },
