@@ -876,21 +876,34 @@ fn outline_ellipse(img: &Img, pivot: [f64; 2], s: &Seg) -> Option<Ellipse> {
         }
         let (c, sn) = (al.cos(), al.sin());
         let (r0, r1) = (0.4 * reach, 1.6 * reach);
+        let step = 0.25;
+        let grad = |r: f64| -> Option<f32> {
+            let (x, y) = (pivot[0] + r * c, pivot[1] + r * sn);
+            if x < 1.0 || y < 1.0 || x > (img.w - 2) as f64 || y > (img.h - 2) as f64 {
+                return None;
+            }
+            Some((img.sample(x + c, y + sn) - img.sample(x - c, y - sn)).abs())
+        };
         let mut best = (0.0f32, 0.0f64);
         let mut r = r0;
         while r < r1 {
-            let (x, y) = (pivot[0] + r * c, pivot[1] + r * sn);
-            if x < 1.0 || y < 1.0 || x > (img.w - 2) as f64 || y > (img.h - 2) as f64 {
-                break;
-            }
-            let g = (img.sample(x + c, y + sn) - img.sample(x - c, y - sn)).abs();
+            let Some(g) = grad(r) else { break };
             if g > best.0 {
                 best = (g, r);
             }
-            r += 0.5;
+            r += step;
         }
         if best.0 > 0.03 {
-            pts.push([best.1 * c, best.1 * sn]);
+            // Sub-sample peak: a parabola through the gradient at the peak and its neighbours.
+            let rb = best.1;
+            let mut re = rb;
+            if let (Some(gm), Some(gp)) = (grad(rb - step), grad(rb + step)) {
+                let den = f64::from(gm - 2.0 * best.0 + gp);
+                if den < 0.0 {
+                    re = rb + 0.5 * step * f64::from(gm - gp) / den;
+                }
+            }
+            pts.push([re * c, re * sn]);
         }
     }
     if pts.len() < rays / 4 {
