@@ -16,6 +16,9 @@
 //! guess. With N stripes (rig `stripes`) equally spaced, each visible one inside that range
 //! gives θ = φₖ − 2πk/N, and the estimates are averaged with weight cos φₖ; a hand-over from
 //! one stripe to the next keeps θ continuous because every stripe predicts the same θ.
+//! After a loss, every stripe seen in range is a candidate, and the bar angle nearest the
+//! last measured one is taken: right whenever the bar turned less than half the stripe
+//! spacing while no stripe was measurable (see docs/accuracy.md).
 
 use std::f64::consts::{PI, TAU};
 
@@ -41,8 +44,12 @@ pub(crate) struct SideTracker {
     polarity: f32,
     /// Stripe half-width in bar angle, rad (measured in the first frame).
     half: f64,
-    /// Bar angle of the last measurement (continuous), rad.
+    /// Bar angle of the last measurement, or its prediction while lost (continuous), rad.
     last: Option<f64>,
+    /// Turn per frame at the last measurement, rad (to predict the next frame).
+    vel: f64,
+    /// True while no stripe is measured (the next sighting is searched for over the range).
+    lost: bool,
 }
 
 impl SideTracker {
@@ -101,6 +108,8 @@ impl SideTracker {
             polarity: 1.0,
             half: 0.0,
             last: None,
+            vel: 0.0,
+            lost: false,
         })
     }
 
@@ -233,8 +242,12 @@ impl SideTracker {
     /// The bar angle (continuous, rad) in a later frame, or None when no stripe can be
     /// measured reliably.
     pub(crate) fn measure(&mut self, frame: &Frame, shift: [f64; 2]) -> Option<(f64, f32)> {
-        let last = self.last?;
         let prof = self.profile(frame, shift);
+        if self.lost {
+            return self.reacquire(&prof);
+        }
+        // Where the bar should be now if it kept turning at its last rate.
+        let last = self.last? + self.vel;
         let step = TAU / f64::from(self.stripes);
         let window = (0.45 * step).min(25f64.to_radians());
         let (mut sw, mut st, mut conf) = (0.0, 0.0, 0.0f32);
@@ -255,11 +268,50 @@ impl SideTracker {
             }
         }
         if sw <= 0.0 {
+            self.lost = true;
+            self.vel = 0.0;
             return None;
         }
         let th = st / sw;
+        self.vel = th - (last - self.vel);
         self.last = Some(th);
         Some((th, (conf / 0.2).clamp(0.0, 1.0)))
+    }
+}
+
+impl SideTracker {
+    /// After a loss: every stripe in range, each read as every stripe index, and the bar
+    /// angle nearest the last measured one.
+    fn reacquire(&mut self, prof: &[f32]) -> Option<(f64, f32)> {
+        let last = self.last?;
+        let lim = MAX_FACING_DEG.to_radians();
+        let step = TAU / f64::from(self.stripes);
+        let mut seen: Vec<(f64, f32)> = Vec::new();
+        let mut g = -lim;
+        while g <= lim {
+            if let Some((c, pc)) = self.centroid(prof, g, 6f64.to_radians())
+                && !seen.iter().any(|s| (s.0 - c).abs() < 2f64.to_radians())
+            {
+                seen.push((c, pc));
+            }
+            g += 8f64.to_radians();
+        }
+        let mut best: Option<(f64, f64, f32)> = None;
+        for (c, pc) in seen {
+            for k in 0..self.stripes {
+                let th = c - step * f64::from(k);
+                let th = th + TAU * ((last - th) / TAU).round();
+                let d = (th - last).abs();
+                if best.is_none_or(|b| d < b.0) {
+                    best = Some((d, th, pc));
+                }
+            }
+        }
+        let (_, th, pc) = best?;
+        self.lost = false;
+        self.vel = 0.0;
+        self.last = Some(th);
+        Some((th, (pc / 0.2).clamp(0.0, 1.0)))
     }
 }
 
