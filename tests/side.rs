@@ -145,3 +145,52 @@ fn two_stripes_lose_only_where_neither_faces_the_camera() {
         }
     }
 }
+
+#[test]
+fn analyze_accepts_a_side_view_rig_end_to_end() {
+    // The real binary on 8-bit PNG stills of a side view: drive and nut both given as side
+    // marks on the same bar (so their twist is zero), turning in uneven steps within ±50°.
+    let mut sc = SideScene::bench(3);
+    sc.supersample = 4;
+    let tmp = tempfile::tempdir().unwrap();
+    let frames = tmp.path().join("frames");
+    std::fs::create_dir_all(&frames).unwrap();
+    let truth = swing(40, 50.0);
+    for (i, a) in truth.iter().enumerate() {
+        let f = sc.render(i as u64, a.to_radians());
+        let twistmark::decode::Luma::U8(data) = &f.luma else {
+            panic!("8-bit")
+        };
+        image::GrayImage::from_raw(f.width, f.height, data.clone())
+            .unwrap()
+            .save(frames.join(format!("f_{i:03}.png")))
+            .unwrap();
+    }
+    let mark = serde_json::to_value(sc.mark()).unwrap();
+    let rig = serde_json::json!({"rig_version": 1, "capture_fps_hz": 1000, "marks": {"drive": mark, "nut": mark}});
+    let rig_path = tmp.path().join("rig.json");
+    std::fs::write(&rig_path, rig.to_string()).unwrap();
+    let out = tmp.path().join("out");
+    assert_cmd::Command::cargo_bin("twistmark")
+        .unwrap()
+        .arg("analyze")
+        .arg(&frames)
+        .arg("--rig")
+        .arg(&rig_path)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .success();
+    let rep: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
+    let got = rep["trace"]["drive_deg"].as_array().unwrap();
+    assert_eq!(got.len(), truth.len());
+    let s2: f64 = got
+        .iter()
+        .zip(&truth)
+        .map(|(g, w)| (g.as_f64().unwrap() - (w - truth[0])).powi(2))
+        .sum();
+    let rms = (s2 / truth.len() as f64).sqrt();
+    println!("side, analyze binary, 3 stripes: RMS {rms:.3}°");
+    assert!(rms <= 0.5, "RMS {rms:.3}°");
+}
