@@ -1084,3 +1084,134 @@ pub fn write_preview(found: &Located, path: &Path) -> Result<()> {
         ),
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn img(w: usize, h: usize, f: impl Fn(f64, f64) -> f32) -> Img {
+        let mut v = Vec::with_capacity(w * h);
+        for y in 0..h {
+            for x in 0..w {
+                v.push(f(x as f64, y as f64));
+            }
+        }
+        Img { w, h, v }
+    }
+
+    #[test]
+    fn a_stripe_is_found_but_a_step_edge_and_a_round_highlight_are_not() {
+        // A 5 px bright stripe at 30° through (60, 60), a vertical step edge at x = 100 and a
+        // Gaussian highlight (σ 9 px, peak 0.4) at (40, 100): only the stripe is a stripe.
+        let (c, s) = (30f64.to_radians().cos(), 30f64.to_radians().sin());
+        let im = img(140, 140, |x, y| {
+            let mut v = if x >= 100.0 { 0.6 } else { 0.15 };
+            let (dx, dy) = (x - 60.0, y - 60.0);
+            let along = dx * c + dy * s;
+            let across = -dx * s + dy * c;
+            if across.abs() <= 2.5 && along.abs() <= 25.0 && x < 100.0 {
+                v = 0.85;
+            }
+            let g = ((x - 40.0).powi(2) + (y - 110.0).powi(2)) / (2.0 * 81.0);
+            v + 0.4 * (-g).exp() as f32
+        });
+        let segs = detect(&im, [0, 140, 0, 140]);
+        assert_eq!(segs.len(), 1, "{segs:?}");
+        let sg = centre_line(&im, segs[0]);
+        assert!(
+            (sg.theta.to_degrees() - 30.0).abs() < 0.5,
+            "{:.2}°",
+            sg.theta.to_degrees()
+        );
+        let off = -(sg.c[0] - 60.0) * s + (sg.c[1] - 60.0) * c;
+        assert!(off.abs() < 0.2, "line off by {off:.3} px");
+    }
+
+    #[test]
+    fn lines_turning_about_a_point_meet_there() {
+        let p = [50.3, 40.7];
+        let seen = (0..20)
+            .map(|k| {
+                let a = (10.0 + k as f64).to_radians();
+                let c = [p[0] + 30.0 * a.cos(), p[1] + 30.0 * a.sin()];
+                let s = Seg {
+                    c,
+                    theta: wrap_half(a),
+                    ext: [-20.0, 20.0],
+                    length: 40.0,
+                    dark: false,
+                };
+                Some((s, a))
+            })
+            .collect::<Vec<_>>();
+        let first = seen[0].unwrap().0;
+        let t = Track {
+            first,
+            last: first,
+            seen,
+            theta: 0.0,
+        };
+        let q = t.pivot().unwrap();
+        assert!((q[0] - p[0]).hypot(q[1] - p[1]) < 1e-6);
+        assert!(t.line_rms(q) < 1e-6);
+        // The pivot lies 10 px beyond the stripe's inner end: a radial stripe.
+        assert!(t.is_radial());
+        assert!((t.span_deg() - 19.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn an_elliptic_outline_gives_its_axes_and_a_hexagon_does_not_fit() {
+        // Outline of a disc of radius 60 seen at b/a = 0.55, major axis at 25°: bright inside.
+        let (ratio, phi) = (0.55f64, 25f64.to_radians());
+        let inside = |x: f64, y: f64| {
+            let (dx, dy) = (x - 80.0, y - 80.0);
+            let u = dx * phi.cos() + dy * phi.sin();
+            let v = (-dx * phi.sin() + dy * phi.cos()) / ratio;
+            u.hypot(v) < 60.0
+        };
+        let im = img(160, 160, |x, y| {
+            // 4×4 supersampled edge.
+            let mut a = 0.0;
+            for j in 0..4 {
+                for i in 0..4 {
+                    if inside(x - 0.375 + 0.25 * i as f64, y - 0.375 + 0.25 * j as f64) {
+                        a += 1.0;
+                    }
+                }
+            }
+            0.1 + 0.4 * a / 16.0
+        });
+        let stripe = Seg {
+            c: [80.0 + 30.0 * phi.cos(), 80.0 + 30.0 * phi.sin()],
+            theta: phi,
+            ext: [-25.0, 25.0],
+            length: 50.0,
+            dark: false,
+        };
+        let e = outline_ellipse(&im, [80.0, 80.0], &stripe).expect("ellipse");
+        assert!((e.axis_ratio - ratio).abs() < 0.01, "{e:?}");
+        assert!((e.major_deg - 25.0).abs() < 1.0, "{e:?}");
+
+        // A hexagon (apothem 55) about the same centre is not taken for an ellipse.
+        let hex = img(160, 160, |x, y| {
+            let (dx, dy) = (x - 80.0, y - 80.0);
+            let d = (0..3)
+                .map(|k| {
+                    let a = (k as f64 * 60.0 + 10.0).to_radians();
+                    (dx * a.cos() + dy * a.sin()).abs()
+                })
+                .fold(0.0, f64::max);
+            if d < 55.0 { 0.5 } else { 0.1 }
+        });
+        assert_eq!(outline_ellipse(&hex, [80.0, 80.0], &stripe), None);
+    }
+
+    #[test]
+    fn orientations_wrap_to_a_half_turn() {
+        for a in [-3.0, -1.6, 0.0, 1.6, 3.0, 7.0] {
+            let w = wrap_half(a);
+            assert!(w > -PI / 2.0 - 1e-12 && w <= PI / 2.0 + 1e-12);
+            assert!(((a - w) / PI - ((a - w) / PI).round()).abs() < 1e-9);
+        }
+    }
+}
