@@ -802,7 +802,7 @@ fn radial_from(
         None
     };
     let lr = t.length_ratio();
-    if ellipse.is_none() && lr > 1.04 {
+    if ellipse.is_none() && lr > 1.03 {
         warnings.push(unsure(
             &format!("{} ellipse", role.name()),
             format!(
@@ -856,6 +856,8 @@ fn round2(p: [f64; 2]) -> [f64; 2] {
     ]
 }
 
+/// Smallest luma step (over 2 px) taken as a point of the disc's outline.
+const OUTLINE_MIN_STEP: f32 = 0.012;
 /// Below this axis ratio the outline counts as an ellipse; above, as a circle.
 const CIRCLE_RATIO: f64 = 0.97;
 
@@ -875,7 +877,7 @@ fn outline_ellipse(img: &Img, pivot: [f64; 2], s: &Seg) -> Option<Ellipse> {
             continue;
         }
         let (c, sn) = (al.cos(), al.sin());
-        let (r0, r1) = (0.4 * reach, 1.6 * reach);
+        let (r0, r1) = (0.4 * reach, 2.2 * reach);
         let step = 0.25;
         let grad = |r: f64| -> Option<f32> {
             let (x, y) = (pivot[0] + r * c, pivot[1] + r * sn);
@@ -893,7 +895,7 @@ fn outline_ellipse(img: &Img, pivot: [f64; 2], s: &Seg) -> Option<Ellipse> {
             }
             r += step;
         }
-        if best.0 > 0.03 {
+        if best.0 > OUTLINE_MIN_STEP {
             // Sub-sample peak: a parabola through the gradient at the peak and its neighbours.
             let rb = best.1;
             let mut re = rb;
@@ -909,8 +911,50 @@ fn outline_ellipse(img: &Img, pivot: [f64; 2], s: &Seg) -> Option<Ellipse> {
     if pts.len() < rays / 4 {
         return None;
     }
-    // Centred conic, trimmed least squares.
+    // Consensus first (other parts' edges are caught by some rays): the centred conic
+    // through three of the points that most points agree with (within 1 px along their ray),
+    // over a fixed set of triples (RANSAC, Fischler & Bolles 1981, from memory); then
+    // trimmed least squares on those points.
+    let resid = |sol: &[f64; 3], p: &[f64; 2]| -> f64 {
+        let r = p[0].hypot(p[1]);
+        let (c, sn) = (p[0] / r, p[1] / r);
+        let qv = sol[0] * c * c + sol[1] * c * sn + sol[2] * sn * sn;
+        if qv > 0.0 {
+            (r - 1.0 / qv.sqrt()).abs()
+        } else {
+            f64::INFINITY
+        }
+    };
+    let feat = |p: &[f64; 2]| [p[0] * p[0], p[0] * p[1], p[1] * p[1]];
+    let mut seed = 0x9e37_79b9_7f4a_7c15_u64;
+    let mut pick = |n: usize| {
+        seed ^= seed << 13;
+        seed ^= seed >> 7;
+        seed ^= seed << 17;
+        (seed % n as u64) as usize
+    };
     let mut keep: Vec<bool> = vec![true; pts.len()];
+    let mut best_count = 0;
+    for _ in 0..400 {
+        let (i, j, k) = (pick(pts.len()), pick(pts.len()), pick(pts.len()));
+        if i == j || j == k || i == k {
+            continue;
+        }
+        let m = [feat(&pts[i]), feat(&pts[j]), feat(&pts[k])];
+        let Some(sol) = solve3(m, [1.0, 1.0, 1.0]) else {
+            continue;
+        };
+        let count = pts.iter().filter(|p| resid(&sol, p) < 1.0).count();
+        if count > best_count {
+            best_count = count;
+            for (kp, p) in keep.iter_mut().zip(&pts) {
+                *kp = resid(&sol, p) < 1.0;
+            }
+        }
+    }
+    if best_count < rays / 4 {
+        return None;
+    }
     let mut q = None;
     for _ in 0..4 {
         let mut m = [[0.0f64; 3]; 3];
@@ -942,10 +986,18 @@ fn outline_ellipse(img: &Img, pivot: [f64; 2], s: &Seg) -> Option<Ellipse> {
                 }
             })
             .collect();
-        let mut sorted: Vec<f64> = res.clone();
+        let mut sorted: Vec<f64> = res
+            .iter()
+            .zip(&keep)
+            .filter(|(_, k)| **k)
+            .map(|(r, _)| *r)
+            .collect();
+        if sorted.is_empty() {
+            return None;
+        }
         sorted.sort_by(f64::total_cmp);
         let med = sorted[sorted.len() / 2];
-        let cut = (3.0 * med).max(1.0);
+        let cut = (2.5 * med).max(0.75);
         for (k, r) in keep.iter_mut().zip(&res) {
             *k = *r <= cut;
         }

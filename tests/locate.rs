@@ -111,6 +111,18 @@ fn check_fixture(name: &str, clip: &str) {
             w.pivot
         );
         assert_eq!(g.tighten, w.tighten, "{name}: {role} tighten");
+        match (g.ellipse, w.ellipse) {
+            (None, None) => {}
+            (Some(ge), Some(we)) => {
+                println!("{name}: {role} ellipse found {ge:?}, true {we:?}");
+                assert!(
+                    (ge.axis_ratio - we.axis_ratio).abs() <= 0.02
+                        && (ge.major_deg - we.major_deg).abs() <= 2.0,
+                    "{name}: {role} ellipse {ge:?} vs {we:?}"
+                );
+            }
+            (ge, we) => panic!("{name}: {role} ellipse {ge:?}, true {we:?}"),
+        }
         assert!(
             (g.radius[0] - w.radius[0]).abs() <= 3.0 && (g.radius[1] - w.radius[1]).abs() <= 3.0,
             "{name}: {role} annulus {:?} vs {:?}",
@@ -174,6 +186,14 @@ fn locate_red_paint_tightening_ccw() {
     // Dark (red) paint on bare steel, tightening counter-clockwise; the fixed stripe barely
     // contrasts with its bracket, so the draft has none (with a warning).
     check_fixture("ccw-red-bare", "frames");
+}
+
+#[cfg(feature = "ffmpeg")]
+#[test]
+fn locate_oblique_drive_disc_ffv1() {
+    // The drive disc seen at b/a = 0.8: the ellipse comes from the disc's faint outline (dark
+    // steel on a dark background).
+    check_fixture("oblique-drive", "clip_ffv1.mkv");
 }
 
 #[cfg(feature = "ffmpeg")]
