@@ -22,9 +22,12 @@
 //! 5. **Tightening.** The drive end's fast steps (the blows) run the tightening way: the sign
 //!    of Σ Δθ·|Δθ|² over the drive's frame steps. The nut end's net advance gives its own.
 //! 6. **Ellipse.** Rays from the pivot find the disc's outline (the strongest luma step
-//!    beyond the stripe); a centred conic `A x² + B xy + C y² = 1` fitted to those points by
-//!    least squares with outlier trimming gives the axes (eigenvalues) and the major-axis
-//!    direction (eigenvector). It is used only when the fit is tight; a hexagon does not fit.
+//!    beyond the stripe); a centred conic `A x² + B xy + C y² = 1` chosen by consensus over
+//!    fixed triples of those points, then fitted by trimmed least squares, gives the axes
+//!    (eigenvalues) and the major-axis direction (eigenvector). It is used only when the fit
+//!    is tight (RMS ≤ 1.2 % of the major axis); a hexagon does not fit.
+//!
+//! At most the first [`MAX_FRAMES`] frames are read.
 
 use std::f64::consts::PI;
 use std::path::Path;
