@@ -3,8 +3,9 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use anyhow::Result;
+use anyhow::{Context, Result};
 use clap::Args;
+use twistmark::locate::{LocateOptions, PivotFrom, locate, write_preview};
 
 /// Arguments of `locate`.
 #[derive(Debug, Args)]
@@ -14,7 +15,7 @@ pub struct LocateArgs {
     /// Where to write the draft rig.
     #[arg(long, value_name = "RIG.json")]
     out: PathBuf,
-    /// The camera's capture rate in frames per second.
+    /// The camera's capture rate in frames per second (written as capture_fps_hz).
     #[arg(long, value_name = "HZ")]
     fps: Option<String>,
     /// Write a preview of the first frame with the marks drawn.
@@ -23,6 +24,52 @@ pub struct LocateArgs {
 }
 
 pub fn run(a: LocateArgs) -> Result<ExitCode> {
-    let _ = a;
-    anyhow::bail!("locate: not built yet")
+    let fps_hz = super::parse_fps(a.fps.as_deref())?;
+    let found = locate(&a.clip, &LocateOptions { fps_hz })?;
+    std::fs::write(&a.out, found.rig.to_json_pretty() + "\n")
+        .with_context(|| format!("{}: could not write the draft rig", a.out.display()))?;
+    if let Some(p) = &a.preview {
+        write_preview(&found, p)?;
+    }
+    println!(
+        "read {} frame(s) of {}; wrote the draft rig {}",
+        found.frames_read,
+        a.clip.display(),
+        a.out.display()
+    );
+    for m in &found.marks {
+        let role = m.role.map_or("unused", |r| r.name());
+        let r = &m.mark;
+        let pivot = match m.pivot_from {
+            PivotFrom::Lines => "from the stripe's lines",
+            PivotFrom::StripeEnd => "at the stripe's end (not from motion)",
+        };
+        let ellipse = r.ellipse.map_or(String::new(), |e| {
+            format!(
+                ", oblique disc b/a {:.3} major {:.1}°",
+                e.axis_ratio, e.major_deg
+            )
+        });
+        println!(
+            "  {role:<7} pivot [{:.1}, {:.1}] {pivot}, annulus {:.1}..{:.1} px, turned {:+.1}° net / {:.1}° back and forth{ellipse}",
+            r.pivot[0], r.pivot[1], r.radius[0], r.radius[1], m.net_deg, m.travel_deg
+        );
+    }
+    if let Some(p) = &a.preview {
+        println!(
+            "preview: {} (check every pivot, annulus and role)",
+            p.display()
+        );
+    }
+    if found.rig.capture_fps_hz.is_none() {
+        println!(
+            "to do: the capture rate is not in the rig; pass --fps HZ to analyze or add \"capture_fps_hz\""
+        );
+    }
+    println!(
+        "to do: the rig has no \"bar\", so analyze will report angles and twist but no torque; add a \"bar\" with its \"sections\" (see the README's rig format), check it with `twistmark bar --rig {}`",
+        a.out.display()
+    );
+    super::print_warnings(&found.warnings);
+    Ok(ExitCode::SUCCESS)
 }

@@ -31,9 +31,9 @@ const MIN_WIDTH_PX: u32 = 640;
 /// Largest enlargement factor.
 const MAX_SCALE: u32 = 4;
 
-const DRIVE: Rgb<u8> = Rgb([40, 160, 255]);
-const NUT: Rgb<u8> = Rgb([255, 140, 0]);
-const FIXED: Rgb<u8> = Rgb([60, 200, 90]);
+pub(crate) const DRIVE: Rgb<u8> = Rgb([40, 160, 255]);
+pub(crate) const NUT: Rgb<u8> = Rgb([255, 140, 0]);
+pub(crate) const FIXED: Rgb<u8> = Rgb([60, 200, 90]);
 const LOST: Rgb<u8> = Rgb([255, 40, 40]);
 const TEXT_BG: Rgb<u8> = Rgb([20, 20, 20]);
 const TEXT: Rgb<u8> = Rgb([245, 245, 245]);
@@ -174,7 +174,7 @@ pub fn write_overlays_from(
     Ok(written)
 }
 
-fn font() -> Result<FontRef<'static>> {
+pub(crate) fn font() -> Result<FontRef<'static>> {
     FontRef::try_from_slice(super::plot::FONT_TTF).map_err(|_| Error::Output {
         path: PathBuf::from("assets/DejaVuSans.ttf"),
         reason: "the embedded overlay font could not be loaded; rebuild from a clean checkout"
@@ -191,7 +191,7 @@ pub(crate) fn scale_for(width: u32) -> u32 {
 }
 
 /// The frame as RGB, enlarged by `s` (nearest neighbour).
-fn to_rgb(frame: &Frame, s: u32) -> RgbImage {
+pub(crate) fn to_rgb(frame: &Frame, s: u32) -> RgbImage {
     let (w, h) = (frame.width, frame.height);
     let mut img = RgbImage::new(w * s, h * s);
     for y in 0..h * s {
@@ -208,12 +208,12 @@ fn to_rgb(frame: &Frame, s: u32) -> RgbImage {
 /// Maps frame pixel coordinates (origin at the centre of the top-left pixel) to the
 /// enlarged image.
 #[derive(Debug, Clone, Copy)]
-struct View {
-    s: f32,
+pub(crate) struct View {
+    pub(crate) s: f32,
 }
 
 impl View {
-    fn p(self, x: f64, y: f64) -> (f32, f32) {
+    pub(crate) fn p(self, x: f64, y: f64) -> (f32, f32) {
         let s = self.s;
         (
             x as f32 * s + (s - 1.0) / 2.0,
@@ -223,7 +223,13 @@ impl View {
 }
 
 /// A line a few pixels wide, so it shows on a busy frame.
-fn thick_line(img: &mut RgbImage, a: (f32, f32), b: (f32, f32), color: Rgb<u8>, width: i32) {
+pub(crate) fn thick_line(
+    img: &mut RgbImage,
+    a: (f32, f32),
+    b: (f32, f32),
+    color: Rgb<u8>,
+    width: i32,
+) {
     let (dx, dy) = (b.0 - a.0, b.1 - a.1);
     let len = (dx * dx + dy * dy).sqrt().max(1e-6);
     let (nx, ny) = (-dy / len, dx / len);
@@ -239,7 +245,7 @@ fn thick_line(img: &mut RgbImage, a: (f32, f32), b: (f32, f32), color: Rgb<u8>, 
 }
 
 /// A point on a mark's disc at radius `r` and disc angle `psi`, on screen.
-fn disc_point(
+pub(crate) fn disc_point(
     pivot: [f64; 2],
     r: f64,
     psi: f64,
@@ -258,7 +264,7 @@ fn disc_point(
     }
 }
 
-fn label(img: &mut RgbImage, font: &FontRef<'_>, x: i32, y: i32, size: f32, text: &str) {
+pub(crate) fn label(img: &mut RgbImage, font: &FontRef<'_>, x: i32, y: i32, size: f32, text: &str) {
     let scale = PxScale::from(size);
     let (tw, th) = text_size(scale, font, text);
     let pad = 3;

@@ -25,6 +25,7 @@
 pub mod fixtures;
 mod model;
 mod scene;
+pub mod side;
 mod write;
 
 use rand::{Rng, SeedableRng};

@@ -37,6 +37,7 @@ mod polar;
 mod radial;
 mod refine;
 mod shake;
+mod side;
 pub(crate) mod unwrap;
 
 use polar::PolarGrid;
@@ -99,6 +100,8 @@ struct MarkTrack {
     confidence: Vec<f32>,
     /// Per frame and ring: ring angle relative to the frame's angle, rad, and weight.
     rings: Vec<(f32, f32)>,
+    /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
+    side: Option<side::SideTracker>,
 }
 
 /// Measures the rig's marks frame by frame.
@@ -120,8 +123,8 @@ impl Tracker {
     /// Prepares sampling geometry for every mark of `rig` in frames of this size.
     ///
     /// # Errors
-    /// [`crate::Error::Rig`] when a mark does not fit the frame; [`crate::Error::Mark`] for a
-    /// side-view mark, which this tracker does not measure yet.
+    /// [`crate::Error::Rig`] when a mark does not fit the frame; [`crate::Error::Mark`] when a
+    /// side-view mark's bar leaves the frame or its `tighten` runs along the bar.
     pub fn new(rig: &Rig, rig_path: &Path, width: u32, height: u32) -> Result<Tracker> {
         rig.check_frame(rig_path, width, height)?;
         if width < 2 || height < 2 {
@@ -140,10 +143,21 @@ impl Tracker {
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     rings: Vec::new(),
+                    side: None,
                 }),
-                Mark::Side(_) => Err(Error::Mark {
-                    mark: role.name().into(),
-                    reason: "side-view marks (\"kind\": \"side\") are not measured by this build yet; film the disc, socket face or nut face and use a \"radial\" mark".into(),
+                Mark::Side(m) => Ok(MarkTrack {
+                    role,
+                    radial: RadialTracker::new(PolarGrid::new(&side::stand_in(m), width, height)),
+                    sign: 1.0,
+                    angle: Vec::new(),
+                    confidence: Vec::new(),
+                    rings: Vec::new(),
+                    side: Some(side::SideTracker::new(m, width, height).map_err(|reason| {
+                        Error::Mark {
+                            mark: role.name().into(),
+                            reason,
+                        }
+                    })?),
                 }),
             }
         };
@@ -222,6 +236,9 @@ impl Tracker {
     pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
         let mut warnings = Vec::new();
         let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
+            if t.side.is_some() {
+                return side::relative(t);
+            }
             let refined = refine::refine(&refine::RingData {
                 angles: &t.angle,
                 rings: &t.rings,
@@ -275,6 +292,9 @@ impl Tracker {
 
 /// Measures one mark in one frame, appending to its series; returns the raw angle.
 fn measure(t: &mut MarkTrack, frame: &Frame, shift: [f64; 2], first: bool) -> Result<Option<f64>> {
+    if t.side.is_some() {
+        return side::measure(t, frame, shift, first);
+    }
     let m = if first {
         Some(t.radial.init(frame, shift).map_err(|reason| Error::Mark {
             mark: t.role.name().into(),
@@ -333,21 +353,21 @@ mod tests {
     }
 
     #[test]
-    fn side_marks_are_refused_with_a_clear_error() {
+    fn side_marks_along_the_bar_tightening_are_refused_with_a_clear_error() {
         let mut rig = Scenario::preset("slow-tool").unwrap().rig();
         rig.marks.nut = Mark::Side(crate::rig::SideMark {
             axis: [[100.0, 100.0], [200.0, 100.0]],
             radius_px: 8.0,
-            tighten: Some(crate::rig::ScreenDir::Up),
+            tighten: Some(crate::rig::ScreenDir::Right),
             stripes: None,
         });
         match Tracker::new(&rig, Path::new("r"), 320, 240) {
             Err(Error::Mark { mark, reason }) => {
                 assert_eq!(mark, "nut");
-                assert!(reason.contains("side-view"), "{reason}");
+                assert!(reason.contains("tighten"), "{reason}");
             }
             Err(e) => panic!("wrong error {e}"),
-            Ok(_) => panic!("side mark accepted"),
+            Ok(_) => panic!("side mark with tighten along the bar accepted"),
         }
     }
 }
