@@ -4,14 +4,40 @@
 //! relative to the first analysed frame and positive in the tightening direction, with a
 //! confidence per measurement and `None` where a mark was lost. Set up once per clip
 //! ([`Tracker::new`]); per frame only the annulus pixels are sampled.
+//!
+//! How one radial mark is measured is described in `radial.rs`; the sampling grid (and the
+//! mapping of an oblique disc back to a circle) in `polar.rs`; unwrapping in `unwrap.rs`.
+//!
+//! Camera shake: when the rig has a `fixed` mark, each frame's image translation around it is
+//! estimated by Lucas–Kanade registration against the first frame (`shake.rs`), and the drive
+//! and nut marks are sampled on grids moved by that translation. Camera roll is not corrected:
+//! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
+//! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
+//! made. The fixed mark's stripe is still tracked, so a fixed mark that loses its paint is
+//! reported.
+//!
+//! Once the clip is done, each mark's pivot is refined from the stripe itself and every angle
+//! is re-read about the refined pivot (`refine.rs`); this removes the error a pivot that is off
+//! by a pixel (or shake in the first frame) would leave.
 
 use std::path::Path;
 
 use crate::decode::Frame;
-use crate::error::Result;
-use crate::rig::Rig;
+use crate::error::{Error, Result};
+use crate::rig::{Mark, Rig, Role};
 use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
+
+mod polar;
+mod radial;
+mod refine;
+mod shake;
+pub(crate) mod unwrap;
+
+use polar::PolarGrid;
+use radial::RadialTracker;
+use shake::ShakeEstimator;
+use unwrap::wrap_pi;
 
 /// Per-frame angles of the drive and nut ends.
 #[derive(Debug, Clone, PartialEq)]
@@ -54,45 +80,257 @@ impl Trace {
     }
 }
 
+/// One mark being tracked.
+struct MarkTrack {
+    role: Role,
+    radial: RadialTracker,
+    /// +1 when tightening is clockwise on screen.
+    sign: f64,
+    /// Continuous disc-plane angle per frame (roll removed), rad.
+    angle: Vec<Option<f64>>,
+    confidence: Vec<f32>,
+    /// Per frame and ring: ring angle relative to the frame's angle, rad, and weight.
+    rings: Vec<(f32, f32)>,
+}
+
 /// Measures the rig's marks frame by frame.
 pub struct Tracker {
     frames: Vec<u64>,
+    width: u32,
+    height: u32,
+    drive: MarkTrack,
+    nut: MarkTrack,
+    fixed: Option<MarkTrack>,
+    shake: Option<ShakeEstimator>,
+    /// Camera translation (px) of the last frame.
+    shift: [f64; 2],
 }
 
 impl Tracker {
     /// Prepares sampling geometry for every mark of `rig` in frames of this size.
     ///
     /// # Errors
-    /// [`crate::Error::Rig`] when a mark does not fit the frame.
+    /// [`crate::Error::Rig`] when a mark does not fit the frame; [`crate::Error::Mark`] for a
+    /// side-view mark, which this tracker does not measure yet.
     pub fn new(rig: &Rig, rig_path: &Path, width: u32, height: u32) -> Result<Tracker> {
         rig.check_frame(rig_path, width, height)?;
-        Ok(Tracker { frames: Vec::new() })
+        if width < 2 || height < 2 {
+            return Err(Error::Rig {
+                path: rig_path.to_path_buf(),
+                field: "marks".into(),
+                reason: format!("the {width}x{height} frame is too small to hold a mark"),
+            });
+        }
+        let make = |role: Role, mark: &Mark| -> Result<MarkTrack> {
+            match mark {
+                Mark::Radial(m) => Ok(MarkTrack {
+                    role,
+                    radial: RadialTracker::new(PolarGrid::new(m, width, height)),
+                    sign: m.tighten.map_or(1.0, |t| t.sign()),
+                    angle: Vec::new(),
+                    confidence: Vec::new(),
+                    rings: Vec::new(),
+                }),
+                Mark::Side(_) => Err(Error::Mark {
+                    mark: role.name().into(),
+                    reason: "side-view marks (\"kind\": \"side\") are not measured by this build yet; film the disc, socket face or nut face and use a \"radial\" mark".into(),
+                }),
+            }
+        };
+        let drive = make(Role::Drive, &rig.marks.drive)?;
+        let nut = make(Role::Nut, &rig.marks.nut)?;
+        let (fixed, shake) = match &rig.marks.fixed {
+            Some(m) => {
+                let t = make(Role::Fixed, m)?;
+                let shake = match m {
+                    Mark::Radial(r) => Some(ShakeEstimator::new(r, width, height)),
+                    Mark::Side(_) => None,
+                };
+                (Some(t), shake)
+            }
+            None => (None, None),
+        };
+        Ok(Tracker {
+            frames: Vec::new(),
+            width,
+            height,
+            drive,
+            nut,
+            fixed,
+            shake,
+            shift: [0.0, 0.0],
+        })
     }
 
     /// Measures every mark in one frame.
     ///
     /// # Errors
-    /// [`crate::Error::Mark`] when a mark shows no paint at all in the first frame.
+    /// [`crate::Error::Mark`] when a mark shows no paint at all in the first frame;
+    /// [`crate::Error::Input`] when the frame's size differs from the clip's.
     pub fn push(&mut self, frame: &Frame) -> Result<()> {
+        if (frame.width, frame.height) != (self.width, self.height) {
+            return Err(Error::Input {
+                path: "(clip)".into(),
+                reason: format!(
+                    "frame {} is {}x{} but the clip started at {}x{}; re-encode the clip at one frame size",
+                    frame.index, frame.width, frame.height, self.width, self.height
+                ),
+            });
+        }
+        let first = self.frames.is_empty();
         self.frames.push(frame.index);
+
+        // Shake: translation at the fixed mark, relative to the first frame.
+        if let Some(sh) = self.shake.as_mut() {
+            if first {
+                if !sh.init(frame) {
+                    self.shake = None;
+                }
+            } else {
+                self.shift = sh.estimate(frame);
+            }
+        }
+        let shift = self.shift;
+        if let Some(f) = self.fixed.as_mut() {
+            measure(f, frame, shift, first)?;
+        }
+        measure(&mut self.drive, frame, shift, first)?;
+        measure(&mut self.nut, frame, shift, first)?;
         Ok(())
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
     pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
-        let n = self.frames.len();
+        let mut warnings = Vec::new();
+        let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
+            let refined = refine::refine(&refine::RingData {
+                angles: &t.angle,
+                rings: &t.rings,
+                radius: &t.radial.grid().radius,
+            });
+            let zero = refined.first().copied().flatten();
+            let v = refined
+                .iter()
+                .map(|a| Some(Angle::from_rad(t.sign * (a.as_ref()? - zero?))))
+                .collect();
+            // For overlays drawn about the rig's pivot: the first frame's raw angle about it.
+            let screen = t
+                .angle
+                .first()
+                .copied()
+                .flatten()
+                .map(|z| Angle::from_rad(wrap_pi(t.radial.grid().screen_angle(z))));
+            (v, screen)
+        };
+        for t in [&self.drive, &self.nut] {
+            for (first_frame, last_frame) in unwrap::lost_runs(&t.angle, &self.frames) {
+                warnings.push(Warning::MarkLost {
+                    mark: t.role.name().into(),
+                    first_frame,
+                    last_frame,
+                });
+            }
+        }
+        if let Some(f) = &self.fixed {
+            for (a, b) in unwrap::lost_runs(&f.angle, &self.frames) {
+                warnings.push(Warning::Note(format!(
+                    "fixed mark lost in frames {a}..={b}; camera roll correction held its last value there (check the fixed mark's paint and lighting)"
+                )));
+            }
+        }
+        let (drive, drive_zero_screen) = rel(&self.drive);
+        let (nut, nut_zero_screen) = rel(&self.nut);
         (
             Trace {
                 time_base,
                 frames: self.frames,
-                drive: vec![None; n],
-                nut: vec![None; n],
-                drive_confidence: vec![0.0; n],
-                nut_confidence: vec![0.0; n],
-                drive_zero_screen: None,
-                nut_zero_screen: None,
+                drive,
+                nut,
+                drive_confidence: self.drive.confidence,
+                nut_confidence: self.nut.confidence,
+                drive_zero_screen,
+                nut_zero_screen,
             },
-            Vec::new(),
+            warnings,
         )
+    }
+}
+
+/// Measures one mark in one frame, appending to its series; returns the raw angle.
+fn measure(t: &mut MarkTrack, frame: &Frame, shift: [f64; 2], first: bool) -> Result<Option<f64>> {
+    let m = if first {
+        Some(t.radial.init(frame, shift).map_err(|reason| Error::Mark {
+            mark: t.role.name().into(),
+            reason: format!("frame {}: {reason}", frame.index),
+        })?)
+    } else {
+        t.radial.measure(frame, shift)
+    };
+    t.angle.push(m.map(|m| m.angle));
+    t.confidence.push(m.map_or(0.0, |m| m.confidence));
+    match m {
+        Some(_) => t.rings.extend_from_slice(t.radial.rings()),
+        None => t
+            .rings
+            .extend(std::iter::repeat_n((0.0, 0.0), t.radial.grid().rings)),
+    }
+    Ok(m.map(|m| m.angle))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rig::Mark;
+    use crate::synth::{Scenario, render_frame, simulate};
+
+    /// RMS error (degrees) of drive and nut over a whole slow-tool clip, with both rig pivots
+    /// moved by `dx` px (synthetic clip with known truth).
+    fn rms_with_pivot_error(dx: f64) -> (f64, f64) {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let mut rig = sc.rig();
+        for m in [&mut rig.marks.drive, &mut rig.marks.nut] {
+            if let Mark::Radial(r) = m {
+                r.pivot[0] += dx;
+            }
+        }
+        let mut t = Tracker::new(&rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        for i in 0..truth.frames {
+            t.push(&render_frame(&sc, &truth, i)).unwrap();
+        }
+        let (tr, _) = t.finish(TimeBase::from_fps(1000.0, "t").unwrap());
+        let (mut sd, mut sn) = (0.0, 0.0);
+        let n = truth.frames as usize;
+        for i in 0..n {
+            sd += (tr.drive[i].unwrap().deg() - truth.trace.drive_deg[i]).powi(2);
+            sn += (tr.nut[i].unwrap().deg() - truth.trace.nut_deg[i]).powi(2);
+        }
+        ((sd / n as f64).sqrt(), (sn / n as f64).sqrt())
+    }
+
+    #[test]
+    fn a_pivot_one_pixel_off_is_refined_from_the_stripe() {
+        // Without refinement this costs 0.28° RMS on the drive end (measured while developing).
+        let (d, n) = rms_with_pivot_error(1.0);
+        assert!(d < 0.08 && n < 0.08, "drive {d:.3}°, nut {n:.3}°");
+    }
+
+    #[test]
+    fn side_marks_are_refused_with_a_clear_error() {
+        let mut rig = Scenario::preset("slow-tool").unwrap().rig();
+        rig.marks.nut = Mark::Side(crate::rig::SideMark {
+            axis: [[100.0, 100.0], [200.0, 100.0]],
+            radius_px: 8.0,
+            tighten: Some(crate::rig::ScreenDir::Up),
+            stripes: None,
+        });
+        match Tracker::new(&rig, Path::new("r"), 320, 240) {
+            Err(Error::Mark { mark, reason }) => {
+                assert_eq!(mark, "nut");
+                assert!(reason.contains("side-view"), "{reason}");
+            }
+            Err(e) => panic!("wrong error {e}"),
+            Ok(_) => panic!("side mark accepted"),
+        }
     }
 }

@@ -1,0 +1,253 @@
+//! Pivot refinement, once the whole clip has been measured.
+//!
+//! A pivot that is off by a pixel makes the stripe's angular position about it wrong by an
+//! amount that changes as the part turns (about 0.3° RMS over a 30° turn for 1 px at 40 px
+//! radius), and a rig's pivot is read off a frame by a person or by `locate`, so it is rarely
+//! exact. Camera shake in the first frame has the same effect.
+//!
+//! The stripe's *direction* does not depend on the pivot: it is a straight line fixed to the
+//! turning part, so its direction turns exactly with the part. It is a noisier measure than the
+//! angular position (its lever is the annulus width, not the radius), so it is not used frame
+//! by frame. Instead, for every frame the ring crossings (points of the stripe, in the disc
+//! plane) are fitted with a straight line by weighted least squares, and the difference
+//! between its direction and the measured angle is modelled over the whole clip as
+//! `a + b·sin θ + c·cos θ` (to first order in pivot error / radius, that is exactly the form of
+//! the error an offset pivot causes). The fitted `b·sin θ + c·cos θ` is then added to every
+//! frame's angle. When the part turns little, the three terms are nearly collinear, but the
+//! fitted curve is still well determined inside the range of angles actually seen, which is
+//! the only place it is used; the constant `a` cancels in relative angles.
+
+use super::unwrap::wrap_pi;
+
+/// Per-frame ring data of one mark: `rings[i*k + j]` is ring j's stripe angle relative to
+/// frame i's measured angle (rad) and its weight.
+pub(crate) struct RingData<'a> {
+    pub angles: &'a [Option<f64>],
+    pub rings: &'a [(f32, f32)],
+    pub radius: &'a [f64],
+}
+
+/// A correction that changes relative angles by less than this over the clip (0.1°) is not
+/// applied: the stripe direction's own pixelation bias, which depends on the angle, can fake
+/// one that large over a short clip, while a pivot error worth correcting (a few tenths of a
+/// pixel over a turn of tens of degrees) makes a larger one.
+const MIN_CORRECTION_RAD: f64 = 0.1 * std::f64::consts::PI / 180.0;
+/// Frames needed before the correction is fitted.
+const MIN_FRAMES: usize = 8;
+/// Frames whose direction disagrees with the fitted curve by more than this many robust
+/// standard deviations are left out of the final fit.
+const OUTLIER_SIGMAS: f64 = 4.0;
+
+/// Refined angles, same length as the input.
+pub(crate) fn refine(d: &RingData<'_>) -> Vec<Option<f64>> {
+    let k = d.radius.len();
+    // (θ_i, direction − θ_i) for every frame with a usable line fit.
+    let mut pts: Vec<(f64, f64)> = Vec::new();
+    for (i, th) in d.angles.iter().enumerate() {
+        let Some(th) = *th else { continue };
+        if let Some(dir) = line_direction(th, &d.rings[i * k..(i + 1) * k], d.radius) {
+            pts.push((th, wrap_pi(dir - th)));
+        }
+    }
+    let Some(mut coef) = fit_curve(&pts, None) else {
+        return d.angles.to_vec();
+    };
+    // One robust pass: drop frames far from the first fit, refit.
+    let resid: Vec<f64> = pts
+        .iter()
+        .map(|&(t, y)| (y - eval(coef, t)).abs())
+        .collect();
+    let mut sorted = resid.clone();
+    sorted.sort_by(f64::total_cmp);
+    let scale = 1.4826 * sorted[sorted.len() / 2];
+    if scale > 0.0
+        && let Some(c) = fit_curve(&pts, Some((&resid, OUTLIER_SIGMAS * scale)))
+    {
+        coef = c;
+    }
+    let corr = |t: f64| coef[1] * t.sin() + coef[2] * t.cos();
+    let (lo, hi) = d
+        .angles
+        .iter()
+        .flatten()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| {
+            (lo.min(corr(t)), hi.max(corr(t)))
+        });
+    if hi - lo < MIN_CORRECTION_RAD {
+        return d.angles.to_vec();
+    }
+    d.angles.iter().map(|a| a.map(|t| t + corr(t))).collect()
+}
+
+fn eval(c: [f64; 3], t: f64) -> f64 {
+    c[0] + c[1] * t.sin() + c[2] * t.cos()
+}
+
+/// Least-squares fit of `y ≈ a + b·sin θ + c·cos θ`, leaving out points whose residual is
+/// above the limit when one is given. None with too few points or a singular system.
+fn fit_curve(pts: &[(f64, f64)], keep: Option<(&[f64], f64)>) -> Option<[f64; 3]> {
+    let mut a = [[0.0f64; 3]; 3];
+    let mut b = [0.0f64; 3];
+    let mut used = 0;
+    for (i, &(t, y)) in pts.iter().enumerate() {
+        if let Some((r, lim)) = keep
+            && r[i] > lim
+        {
+            continue;
+        }
+        let row = [1.0, t.sin(), t.cos()];
+        for r in 0..3 {
+            for c in 0..3 {
+                a[r][c] += row[r] * row[c];
+            }
+            b[r] += row[r] * y;
+        }
+        used += 1;
+    }
+    if used < MIN_FRAMES {
+        return None;
+    }
+    // A whisker of ridge keeps a part that never turns (all rows equal) solvable; the fitted
+    // curve inside the seen range is unaffected.
+    let ridge = 1e-9 * used as f64;
+    a[1][1] += ridge;
+    a[2][2] += ridge;
+    solve3(a, b)
+}
+
+/// Direction (rad, near `th`) of the weighted straight line through a frame's ring crossings,
+/// or None with too few rings or too little radial spread.
+fn line_direction(th: f64, rings: &[(f32, f32)], radius: &[f64]) -> Option<f64> {
+    let u = [th.cos(), th.sin()];
+    let n = [-u[1], u[0]];
+    let (mut sw, mut ss, mut sv, mut sss, mut ssv) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    let mut used = 0;
+    for (j, &(e, w)) in rings.iter().enumerate() {
+        if w <= 0.0 {
+            continue;
+        }
+        let w = f64::from(w);
+        let a = th + f64::from(e);
+        let q = [radius[j] * a.cos(), radius[j] * a.sin()];
+        let s = q[0] * u[0] + q[1] * u[1];
+        let v = q[0] * n[0] + q[1] * n[1];
+        sw += w;
+        ss += w * s;
+        sv += w * v;
+        sss += w * s * s;
+        ssv += w * s * v;
+        used += 1;
+    }
+    if used < 3 {
+        return None;
+    }
+    let var = sss / sw - (ss / sw).powi(2);
+    if var < 1.0 {
+        return None;
+    }
+    let slope = (ssv / sw - ss / sw * sv / sw) / var;
+    Some(th + slope.atan())
+}
+
+/// Solves a 3×3 linear system by Cramer's rule; None when it is singular.
+fn solve3(a: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
+    let det = |m: &[[f64; 3]; 3]| {
+        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+    };
+    let d = det(&a);
+    if d.abs() < 1e-12 {
+        return None;
+    }
+    let mut x = [0.0; 3];
+    for (c, xc) in x.iter_mut().enumerate() {
+        let mut m = a;
+        for r in 0..3 {
+            m[r][c] = b[r];
+        }
+        *xc = det(&m) / d;
+    }
+    Some(x)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Ring data for a straight stripe through `pivot` (relative to the assumed pivot at the
+    /// origin), missing it by `miss` px, turned to each of `angles`.
+    fn rings_for(pivot: [f64; 2], miss: f64, angles: &[f64], radius: &[f64]) -> RingData<'static> {
+        let mut meas = Vec::new();
+        let mut rings = Vec::new();
+        for &a in angles {
+            let u = [a.cos(), a.sin()];
+            let n = [-u[1], u[0]];
+            // Crossings of the line {P + miss·n + t·u} with circles of radius r about the origin.
+            let c = [pivot[0] + miss * n[0], pivot[1] + miss * n[1]];
+            let mut crossing = Vec::new();
+            for &r in radius {
+                let bq = c[0] * u[0] + c[1] * u[1];
+                let cq = c[0] * c[0] + c[1] * c[1] - r * r;
+                let t = -bq + (bq * bq - cq).sqrt();
+                crossing.push((c[1] + t * u[1]).atan2(c[0] + t * u[0]));
+            }
+            let mean = crossing.iter().sum::<f64>() / crossing.len() as f64;
+            meas.push(Some(mean));
+            for x in crossing {
+                rings.push(((x - mean) as f32, 1.0f32));
+            }
+        }
+        RingData {
+            angles: Box::leak(meas.into_boxed_slice()),
+            rings: Box::leak(rings.into_boxed_slice()),
+            radius: Box::leak(radius.to_vec().into_boxed_slice()),
+        }
+    }
+
+    #[test]
+    fn corrects_a_misplaced_pivot() {
+        let radius: Vec<f64> = (0..30).map(|i| 10.0 + 2.0 * i as f64).collect();
+        let angles: Vec<f64> = (0..50)
+            .map(|i| (-72.0 + 1.0 * i as f64).to_radians())
+            .collect();
+        let d = rings_for([0.8, -0.6], 0.0, &angles, &radius);
+        let out = refine(&d);
+        let raw_err = (d.angles[49].unwrap() - d.angles[0].unwrap()) - (angles[49] - angles[0]);
+        assert!(raw_err.abs().to_degrees() > 0.3, "{}", raw_err.to_degrees());
+        for (i, a) in angles.iter().enumerate() {
+            let err = (out[i].unwrap() - out[0].unwrap()) - (a - angles[0]);
+            assert!(
+                err.abs().to_degrees() < 0.03,
+                "frame {i}: {}",
+                err.to_degrees()
+            );
+        }
+    }
+
+    #[test]
+    fn keeps_an_exact_pivot_and_a_stripe_that_misses_it() {
+        let radius: Vec<f64> = (0..30).map(|i| 10.0 + 2.0 * i as f64).collect();
+        let angles: Vec<f64> = (0..50)
+            .map(|i| (10.0 + 1.5 * i as f64).to_radians())
+            .collect();
+        let d = rings_for([0.0, 0.0], 2.5, &angles, &radius);
+        let out = refine(&d);
+        for (i, a) in angles.iter().enumerate() {
+            let err = (out[i].unwrap() - out[0].unwrap()) - (a - angles[0]);
+            assert!(err.abs().to_degrees() < 0.01);
+        }
+    }
+
+    #[test]
+    fn solve3_known_system() {
+        let x = solve3(
+            [[2.0, 1.0, 0.0], [1.0, 3.0, 1.0], [0.0, 1.0, 4.0]],
+            [3.0, 5.0, 5.0],
+        )
+        .unwrap();
+        for (g, w) in x.iter().zip([1.0, 1.0, 1.0]) {
+            assert!((g - w).abs() < 1e-12);
+        }
+    }
+}
