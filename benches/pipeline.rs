@@ -72,12 +72,15 @@ fn main() {
         ("ffv1", Codec::Ffv1, "mkv"),
     ];
     let mut clips = Vec::new();
+    let mut wanted = Vec::new();
     for (name, codec, ext) in codecs {
         let long = root.join(format!("fast-720p-{long_frames}-{name}.{ext}"));
         let short = root.join(format!("fast-720p-{short_frames}-{name}.{ext}"));
-        ensure_clips(&sc, codec, &[(&short, short_frames), (&long, long_frames)]);
+        wanted.push((short.clone(), short_frames, codec));
+        wanted.push((long.clone(), long_frames, codec));
         clips.push((name, short, long));
     }
+    ensure_clips(&sc, &wanted);
 
     let ffmpeg = Command::new("ffmpeg").arg("-version").output().is_ok();
     let mut rows = Vec::new();
@@ -235,10 +238,10 @@ fn scenario(frames: u64) -> Scenario {
     sc
 }
 
-/// Renders and encodes the clips that are not cached yet. Every clip is a prefix of the same
-/// simulated take, so the short clip is the first part of the long one.
-fn ensure_clips(sc: &Scenario, codec: Codec, clips: &[(&Path, u64)]) {
-    let missing: Vec<_> = clips.iter().filter(|(p, _)| !p.exists()).collect();
+/// Renders once and encodes every clip that is not cached yet. Every clip is a prefix of the
+/// same simulated take, so the short clip is the first part of the long one.
+fn ensure_clips(sc: &Scenario, clips: &[(PathBuf, u64, Codec)]) {
+    let missing: Vec<_> = clips.iter().filter(|(p, _, _)| !p.exists()).collect();
     if missing.is_empty() {
         return;
     }
@@ -246,12 +249,10 @@ fn ensure_clips(sc: &Scenario, codec: Codec, clips: &[(&Path, u64)]) {
     let truth = simulate(sc);
     let mut writers: Vec<(ClipWriter, u64, PathBuf)> = missing
         .iter()
-        .map(|(p, n)| {
-            let tmp = p.with_extension(format!(
-                "partial.{}",
-                p.extension().unwrap().to_string_lossy()
-            ));
-            let w = ClipWriter::create(&tmp, codec, 1280, 720, 30.0).expect("create clip");
+        .map(|(p, n, codec)| {
+            let ext = p.extension().map_or("mkv".into(), |e| e.to_string_lossy());
+            let tmp = p.with_extension(format!("partial.{ext}"));
+            let w = ClipWriter::create(&tmp, *codec, 1280, 720, 30.0).expect("create clip");
             (w, *n, tmp)
         })
         .collect();
@@ -261,7 +262,10 @@ fn ensure_clips(sc: &Scenario, codec: Codec, clips: &[(&Path, u64)]) {
         .max()
         .unwrap_or(0)
         .min(truth.frames);
-    eprintln!("rendering {max} frames at 1280x720 and encoding {codec:?} (cached afterwards) ...");
+    eprintln!(
+        "rendering {max} frames at 1280x720 and encoding {} clip(s) (cached afterwards) ...",
+        writers.len()
+    );
     // Render in parallel batches, write in order.
     let batch = 64u64;
     let mut i = 0;
@@ -283,7 +287,7 @@ fn ensure_clips(sc: &Scenario, codec: Codec, clips: &[(&Path, u64)]) {
         }
         i = end;
     }
-    for ((w, _, tmp), (p, _)) in writers.into_iter().zip(missing) {
+    for ((w, _, tmp), (p, _, _)) in writers.into_iter().zip(missing) {
         w.finish().expect("finish clip");
         std::fs::rename(tmp, p).expect("rename clip");
     }

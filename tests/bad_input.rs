@@ -26,7 +26,7 @@
 //! | --fps negative: locate | [`negative_fps_on_locate_is_a_value_not_a_usage_error`] |
 //! | data: a mark never found | [`a_mark_with_no_paint_is_named`] |
 //! | data: a clip shorter than one blow | [`a_clip_shorter_than_one_blow_is_a_warning`] |
-//! | fuzz regressions | (none found so far; see `tools/fuzz.sh`) |
+//! | fuzz finds (`tools/fuzz.sh`) | [`fuzz_rig_field_name_with_a_newline`], [`fuzz_truncated_jpeg_still`] |
 //!
 //! The output-safety checks of issue 6 (results never overwritten without `--force`, inputs
 //! never written) are at the end of this file. Clips here are the project's own rendered
@@ -517,6 +517,46 @@ fn a_clip_shorter_than_one_blow_is_a_warning() {
     let w = warnings(&v).join(" | ");
     assert!(w.contains("0 blow"), "{w}");
     assert!(out.stderr.contains("warning: "), "{}", out.stderr);
+}
+
+// ---- fuzz finds -----------------------------------------------------------------------------
+
+#[test]
+fn fuzz_rig_field_name_with_a_newline() {
+    // Found by the `rig` fuzz target: an unknown field whose name holds an escaped newline
+    // made a two-line library message. The binary must still print one line.
+    let dir = tempfile::tempdir().unwrap();
+    let rig = dir.path().join("odd.rig.json");
+    std::fs::write(&rig, r#"{"drive\nmark": 1}"#).unwrap();
+    let out = run(["bar".as_ref(), "--rig".as_ref(), rig.as_os_str()]);
+    one_line_error(&out, &["odd.rig.json", "unknown field"]);
+}
+
+#[test]
+fn fuzz_truncated_jpeg_still() {
+    // Found by the `stills` fuzz target: a JPEG cut short gives a decoder message with a
+    // newline in it. The binary must print one line naming the frame.
+    let dir = tempfile::tempdir().unwrap();
+    let clip = dir.path().join("clip");
+    std::fs::create_dir(&clip).unwrap();
+    let mut jpg = Vec::new();
+    image::GrayImage::from_fn(16, 16, |x, y| image::Luma([(x * 13 + y * 7) as u8]))
+        .write_to(
+            &mut std::io::Cursor::new(&mut jpg),
+            image::ImageFormat::Jpeg,
+        )
+        .unwrap();
+    std::fs::write(clip.join("f_0.jpg"), &jpg[..jpg.len() / 2]).unwrap();
+    std::fs::write(clip.join("f_1.jpg"), &jpg).unwrap();
+    let out = run([
+        "analyze".as_ref(),
+        clip.as_os_str(),
+        "--rig".as_ref(),
+        fixture("fast-tool/rig.json").as_os_str(),
+        "--out".as_ref(),
+        dir.path().join("out").as_os_str(),
+    ]);
+    one_line_error(&out, &["f_0.jpg"]);
 }
 
 // ---- no data lost ---------------------------------------------------------------------------
