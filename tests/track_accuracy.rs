@@ -62,6 +62,9 @@ struct Case {
     medium: Medium,
     /// Analyse only the first N frames (None: all).
     limit: Option<u64>,
+    /// Move the rig's pivots by the first frame's camera shake, as when the pivots are read
+    /// off the first frame (the scenario's own rig gives the unshaken positions).
+    pivots_from_first_frame: bool,
 }
 
 #[derive(Debug, Clone)]
@@ -121,7 +124,21 @@ fn frames_of(case: &Case, truth: &twistmark::synth::Truth) -> Vec<Frame> {
 fn run(case: &Case) -> Stats {
     let truth = simulate(&case.sc);
     let frames = frames_of(case, &truth);
-    let rig = case.sc.rig();
+    let mut rig = case.sc.rig();
+    if case.pivots_from_first_frame
+        && let Some(s0) = truth.shake_px.first()
+    {
+        let marks = [
+            Some(&mut rig.marks.drive),
+            Some(&mut rig.marks.nut),
+            rig.marks.fixed.as_mut(),
+        ];
+        for m in marks.into_iter().flatten() {
+            if let twistmark::rig::Mark::Radial(r) = m {
+                r.pivot = [r.pivot[0] + s0[0], r.pivot[1] + s0[1]];
+            }
+        }
+    }
     let (w, h) = (case.sc.scene.width, case.sc.scene.height);
     let mut tracker = Tracker::new(&rig, Path::new("rig.json"), w, h).unwrap();
     // The first frame sets up the stripe models (a one-off search); time the others.
@@ -208,42 +225,49 @@ fn blur(s: &mut Scenario) {
 /// Every scene of the full table.
 fn all_cases() -> Vec<Case> {
     let st = Medium::Stills;
+    #[cfg_attr(not(feature = "ffmpeg"), allow(unused_mut))]
     let mut v = vec![
         Case {
             name: "slow tool, 1,000 fps, yellow on dark/bare",
             sc: base("slow-tool"),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "fast tool, 2,000 fps",
             sc: base("fast-tool"),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "fast tool, 4,000 fps",
             sc: with("fast-tool", |s| s.camera.fps_hz = 4000.0),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "fast tool, 1,000 fps (big jumps)",
             sc: with("fast-tool", |s| s.camera.fps_hz = 1000.0),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "slow tool, tighten ccw",
             sc: with("slow-tool", |s| s.scene.tighten = Spin::Ccw),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "white paint",
             sc: with("slow-tool", |s| s.scene.paint = Paint::White),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "orange paint, bare drive disc",
@@ -253,6 +277,7 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "red paint (dark stripe) on bare steel",
@@ -262,30 +287,35 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "noise σ 2 %",
             sc: with("fast-tool", |s| s.effects.noise_sigma = 0.02),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "flicker 100 Hz, 25 %",
             sc: with("fast-tool", |s| flicker(s, 100.0)),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "shake σ 1 px, fixed mark",
             sc: with("fast-tool", |s| s.effects.shake_sigma_px = 1.0),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "static highlight on the drive disc",
             sc: with("fast-tool", highlight),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "oblique drive disc (b/a 0.7)",
@@ -297,12 +327,14 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "motion blur (exposure ½ frame)",
             sc: with("fast-tool", blur),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
         Case {
             name: "16-bit stills, noise 1 %",
@@ -312,6 +344,7 @@ fn all_cases() -> Vec<Case> {
             }),
             medium: st,
             limit: None,
+            pivots_from_first_frame: false,
         },
     ];
     #[cfg(feature = "ffmpeg")]
@@ -323,24 +356,28 @@ fn all_cases() -> Vec<Case> {
                 sc: base("fast-tool"),
                 medium: Medium::Video(Codec::Ffv1),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + noise 1 %",
                 sc: with("fast-tool", |s| s.effects.noise_sigma = 0.01),
                 medium: Medium::Video(Codec::H264 { crf: 18 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + flicker 120 Hz",
                 sc: with("fast-tool", |s| flicker(s, 120.0)),
                 medium: Medium::Video(Codec::H264 { crf: 23 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + shake σ 1 px",
                 sc: with("fast-tool", |s| s.effects.shake_sigma_px = 1.0),
                 medium: Medium::Video(Codec::H264 { crf: 18 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "MJPEG + noise 1 % + flicker + highlight",
@@ -351,6 +388,7 @@ fn all_cases() -> Vec<Case> {
                 }),
                 medium: Medium::Video(Codec::Mjpeg { quality: 4 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
             Case {
                 name: "H.264 + blur + noise + flicker + shake",
@@ -362,21 +400,17 @@ fn all_cases() -> Vec<Case> {
                 }),
                 medium: Medium::Video(Codec::H264 { crf: 20 }),
                 limit: None,
+                pivots_from_first_frame: false,
             },
         ]);
     }
     v
 }
 
-fn limit(target: f64, case: &Case) -> f64 {
-    let _ = case;
-    target
-}
-
 fn check(case: Case) {
     let s = run(&case);
     let target = if case.medium.lossless() { 0.10 } else { 0.20 };
-    let bound = limit(target, &case);
+    let bound = target;
     assert_eq!(s.lost, 0, "{}: {} frames lost ({s:?})", case.name, s.lost);
     assert!(
         s.drive_rms <= bound && s.nut_rms <= bound,
@@ -398,6 +432,7 @@ fn clean_slow_tool_stills_within_target() {
         sc: base("slow-tool"),
         medium: Medium::Stills,
         limit: Some(80),
+        pivots_from_first_frame: false,
     });
 }
 
@@ -409,6 +444,7 @@ fn fast_jumps_at_1000_fps_are_followed() {
         sc: with("fast-tool", |s| s.camera.fps_hz = 1000.0),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: false,
     };
     let s = run(&case);
     assert!(s.drive_travel > 20.0, "scene should move: {s:?}");
@@ -427,6 +463,7 @@ fn dark_red_stripe_on_bare_steel_and_ccw() {
         }),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: false,
     });
 }
 
@@ -441,6 +478,7 @@ fn flicker_noise_highlight_within_target() {
         }),
         medium: Medium::Stills,
         limit: Some(80),
+        pivots_from_first_frame: false,
     };
     let s = run(&case);
     assert_eq!(s.lost, 0);
@@ -450,12 +488,15 @@ fn flicker_noise_highlight_within_target() {
 
 #[test]
 fn shake_is_cancelled_by_the_fixed_mark() {
+    // A short clip: pivots read off the first frame (over a whole clip the pivot refinement
+    // also removes the first frame's shake; see the table's shake rows).
     let sc = with("fast-tool", |s| s.effects.shake_sigma_px = 1.0);
     check(Case {
         name: "shake with fixed mark",
         sc: sc.clone(),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: true,
     });
     // Without the fixed mark the same shake costs far more: the correction is doing the work.
     let mut no_fixed = sc;
@@ -465,6 +506,7 @@ fn shake_is_cancelled_by_the_fixed_mark() {
         sc: no_fixed,
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: true,
     });
     assert!(s.drive_rms > 0.2 || s.nut_rms > 0.2, "{s:?}");
 }
@@ -481,6 +523,7 @@ fn oblique_disc_angles_are_in_the_disc_plane() {
         }),
         medium: Medium::Stills,
         limit: Some(60),
+        pivots_from_first_frame: false,
     });
 }
 
@@ -559,11 +602,16 @@ fn h264_with_noise_within_target() {
         sc: with("fast-tool", |s| s.effects.noise_sigma = 0.01),
         medium: Medium::Video(twistmark::encode::Codec::H264 { crf: 18 }),
         limit: Some(60),
+        pivots_from_first_frame: false,
     });
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 6, .. ProptestConfig::default() })]
+    #![proptest_config(ProptestConfig {
+        cases: 8,
+        rng_seed: proptest::test_runner::RngSeed::Fixed(20_261_201),
+        .. ProptestConfig::default()
+    })]
     // Invariant (house style §23): rotating the whole scene by θ shifts both measured angles
     // by θ, so the relative angles do not change and the screen zero moves by θ.
     #[test]
@@ -660,6 +708,7 @@ fn print_tracking_speed() {
             sc,
             medium: Medium::Stills,
             limit: None,
+            pivots_from_first_frame: false,
         });
         println!(
             "{name}: {:.1} µs/frame over {} frames",
@@ -698,4 +747,120 @@ fn zero_screen_is_the_rendered_stripe_angle() {
             "{theta}: {nz:?}"
         );
     }
+}
+
+/// A slow, obviously correct reference for one radial mark on a clean frame: the principal
+/// axis of the paint's brightness excess over the annulus median, from second central moments,
+/// θ = ½·atan2(2μ11, μ20 − μ02) (Hu 1962; facts.md §7.1), turned to point from the pivot
+/// towards the paint's centroid. Screen angle in degrees. Bright paint only, no ellipse.
+fn moment_reference(frame: &Frame, pivot: [f64; 2], radius: [f64; 2]) -> f64 {
+    let mut px = Vec::new();
+    for y in 0..frame.height {
+        for x in 0..frame.width {
+            let (dx, dy) = (f64::from(x) - pivot[0], f64::from(y) - pivot[1]);
+            let r = dx.hypot(dy);
+            if r >= radius[0] && r <= radius[1] {
+                px.push((f64::from(x), f64::from(y), f64::from(frame.value(x, y))));
+            }
+        }
+    }
+    let mut vals: Vec<f64> = px.iter().map(|p| p.2).collect();
+    vals.sort_by(f64::total_cmp);
+    let bg = vals[vals.len() / 2];
+    let (mut m00, mut m10, mut m01) = (0.0, 0.0, 0.0);
+    for &(x, y, v) in &px {
+        let w = (v - bg).max(0.0);
+        m00 += w;
+        m10 += w * x;
+        m01 += w * y;
+    }
+    let (cx, cy) = (m10 / m00, m01 / m00);
+    let (mut mu20, mut mu02, mut mu11) = (0.0, 0.0, 0.0);
+    for &(x, y, v) in &px {
+        let w = (v - bg).max(0.0);
+        mu20 += w * (x - cx) * (x - cx);
+        mu02 += w * (y - cy) * (y - cy);
+        mu11 += w * (x - cx) * (y - cy);
+    }
+    let axis = 0.5 * (2.0 * mu11).atan2(mu20 - mu02);
+    let outward = (cy - pivot[1]).atan2(cx - pivot[0]);
+    let a = if (axis - outward).cos() >= 0.0 {
+        axis
+    } else {
+        axis + std::f64::consts::PI
+    };
+    a.to_degrees()
+}
+
+#[test]
+fn tracker_agrees_with_the_moment_reference() {
+    // Clean slow-tool clip: the reference, the tracker and the renderer's truth must agree.
+    let sc = base("slow-tool");
+    let truth = simulate(&sc);
+    let rig = sc.rig();
+    let twistmark::rig::Mark::Radial(m) = &rig.marks.drive else {
+        panic!("radial drive mark")
+    };
+    let (pivot, radius) = (m.pivot, m.radius);
+    let n = 120u64;
+    let frames: Vec<Frame> = (0..n).map(|i| render_frame(&sc, &truth, i)).collect();
+    let mut t = Tracker::new(&rig, Path::new("rig.json"), sc.scene.width, sc.scene.height).unwrap();
+    for f in &frames {
+        t.push(f).unwrap();
+    }
+    let trace = t.finish(TimeBase::from_fps(1000.0, "t").unwrap()).0;
+    let r0 = moment_reference(&frames[0], pivot, radius);
+    let (mut e_ref, mut e_trk, mut e_cross) = (Vec::new(), Vec::new(), Vec::new());
+    for (i, f) in frames.iter().enumerate() {
+        // cw tightening: screen angle grows with the tightening angle.
+        let r = moment_reference(f, pivot, radius) - r0;
+        let r = r - 360.0 * (r / 360.0).round();
+        let k = trace.drive[i].unwrap().deg();
+        e_ref.push(r - truth.trace.drive_deg[i]);
+        e_trk.push(k - truth.trace.drive_deg[i]);
+        e_cross.push(k - r);
+    }
+    let (rr, rt, rc) = (rms(&e_ref), rms(&e_trk), rms(&e_cross));
+    println!("RMS vs truth: reference {rr:.4}°, tracker {rt:.4}°; tracker vs reference {rc:.4}°");
+    assert!(
+        truth.trace.drive_deg[n as usize - 1].abs() > 5.0,
+        "the drive turns"
+    );
+    assert!(rr < 0.05, "reference RMS {rr:.4}°");
+    assert!(rt < 0.05, "tracker RMS {rt:.4}°");
+    assert!(rc < 0.07, "tracker vs reference RMS {rc:.4}°");
+}
+
+#[test]
+fn a_covered_fixed_mark_holds_the_shake_correction_and_says_so() {
+    let sc = with("fast-tool", |s| s.effects.shake_sigma_px = 0.5);
+    let truth = simulate(&sc);
+    let rig = sc.rig();
+    let (w, h) = (sc.scene.width, sc.scene.height);
+    let mut t = Tracker::new(&rig, Path::new("rig.json"), w, h).unwrap();
+    let fixed = sc.scene.fixed.unwrap().pivot;
+    for i in 0..30 {
+        let mut f = render_frame(&sc, &truth, i);
+        if (10..14).contains(&i)
+            && let twistmark::decode::Luma::U8(d) = &mut f.luma
+        {
+            for y in 0..h as usize {
+                for x in 0..w as usize {
+                    if (x as f64 - fixed[0]).abs() < 40.0 && (y as f64 - fixed[1]).abs() < 30.0 {
+                        d[y * w as usize + x] = 40;
+                    }
+                }
+            }
+        }
+        t.push(&f).unwrap();
+    }
+    let (trace, warnings) = t.finish(TimeBase::from_fps(2000.0, "t").unwrap());
+    assert!(
+        warnings
+            .iter()
+            .any(|w| w.to_string().contains("frames 10..=13")),
+        "{warnings:?}"
+    );
+    // The drive and nut are still measured (with the last good shift) in those frames.
+    assert!(trace.drive[11].is_some() && trace.nut[11].is_some());
 }

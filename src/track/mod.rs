@@ -13,12 +13,17 @@
 //! and nut marks are sampled on grids moved by that translation. Camera roll is not corrected:
 //! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
 //! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
-//! made. The fixed mark's stripe is still tracked, so a fixed mark that loses its paint is
-//! reported.
+//! made. Frames where the fixed mark's patch no longer matches the first frame keep the last
+//! good shift and are reported.
 //!
-//! Once the clip is done, each mark's pivot is refined from the stripe itself and every angle
-//! is re-read about the refined pivot (`refine.rs`); this removes the error a pivot that is off
-//! by a pixel (or shake in the first frame) would leave.
+//! Once the clip is done, each mark's angles are corrected for an offset pivot using the
+//! stripe's own direction, which does not depend on the pivot (`refine.rs`); this removes most
+//! of the error a pivot that is off by a pixel (or shake in the first frame) would leave.
+//!
+//! Unwrapping: each frame's angle is taken as the turn nearest the prediction from recent
+//! velocity, so the true turn between two measured frames must stay under 180° (facts.md
+//! §7.2). After a run of lost frames the prediction extrapolates the last velocity; if the
+//! part turned more than half a turn further than that while lost, whole turns are missed.
 
 use std::path::Path;
 
@@ -56,6 +61,9 @@ pub struct Trace {
     pub nut_confidence: Vec<f32>,
     /// Screen angle (from +x towards +y) of the drive stripe at the first analysed frame, so
     /// that the screen angle at sample i is `drive_zero_screen + sign × drive[i]` (for overlays).
+    /// Measured about the rig's pivot. For an oblique disc (rig `ellipse`) the trace's angles
+    /// are in the disc's plane, so that sum is the disc-plane direction; map it through the
+    /// ellipse to draw it.
     pub drive_zero_screen: Option<Angle>,
     /// As `drive_zero_screen`, for the nut stripe.
     pub nut_zero_screen: Option<Angle>,
@@ -104,6 +112,8 @@ pub struct Tracker {
     shake: Option<ShakeEstimator>,
     /// Camera translation (px) of the last frame.
     shift: [f64; 2],
+    /// Per frame: `None` where the fixed mark could not be registered.
+    shake_lost: Vec<Option<()>>,
 }
 
 impl Tracker {
@@ -159,6 +169,7 @@ impl Tracker {
             fixed,
             shake,
             shift: [0.0, 0.0],
+            shake_lost: Vec::new(),
         })
     }
 
@@ -180,18 +191,26 @@ impl Tracker {
         let first = self.frames.is_empty();
         self.frames.push(frame.index);
 
-        // Shake: translation at the fixed mark, relative to the first frame.
+        // Shake: translation at the fixed mark, relative to the first frame. The fixed mark's
+        // stripe is measured in the first frame only (a fixed mark without paint is an error);
+        // afterwards the registration's own correlation says whether the mark is still seen.
+        let mut shake_lost = false;
         if let Some(sh) = self.shake.as_mut() {
             if first {
                 if !sh.init(frame) {
                     self.shake = None;
                 }
             } else {
-                self.shift = sh.estimate(frame);
+                match sh.estimate(frame) {
+                    Some(d) => self.shift = d,
+                    None => shake_lost = true,
+                }
             }
         }
+        self.shake_lost
+            .push(if shake_lost { None } else { Some(()) });
         let shift = self.shift;
-        if let Some(f) = self.fixed.as_mut() {
+        if first && let Some(f) = self.fixed.as_mut() {
             measure(f, frame, shift, first)?;
         }
         measure(&mut self.drive, frame, shift, first)?;
@@ -231,12 +250,10 @@ impl Tracker {
                 });
             }
         }
-        if let Some(f) = &self.fixed {
-            for (a, b) in unwrap::lost_runs(&f.angle, &self.frames) {
-                warnings.push(Warning::Note(format!(
-                    "fixed mark lost in frames {a}..={b}; camera roll correction held its last value there (check the fixed mark's paint and lighting)"
-                )));
-            }
+        for (a, b) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
+            warnings.push(Warning::Note(format!(
+                "fixed mark not matched in frames {a}..={b} (obscured or moved); camera shake correction held its last value there"
+            )));
         }
         let (drive, drive_zero_screen) = rel(&self.drive);
         let (nut, nut_zero_screen) = rel(&self.nut);

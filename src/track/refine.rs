@@ -29,9 +29,12 @@ pub(crate) struct RingData<'a> {
 
 /// A correction that changes relative angles by less than this over the clip (0.1°) is not
 /// applied: the stripe direction's own pixelation bias, which depends on the angle, can fake
-/// one that large over a short clip, while a pivot error worth correcting (a few tenths of a
-/// pixel over a turn of tens of degrees) makes a larger one.
+/// a few hundredths of a degree over a clip, while a pivot error worth correcting (a few
+/// tenths of a pixel over a turn of tens of degrees) makes a larger one.
 const MIN_CORRECTION_RAD: f64 = 0.1 * std::f64::consts::PI / 180.0;
+/// The measured angles must fall in at least this many distinct whole degrees: a clip that
+/// sits at a handful of angles lets the curve follow the direction's bias at each of them.
+const MIN_DISTINCT_DEG: usize = 12;
 /// Frames needed before the correction is fitted.
 const MIN_FRAMES: usize = 8;
 /// Frames whose direction disagrees with the fitted curve by more than this many robust
@@ -73,7 +76,15 @@ pub(crate) fn refine(d: &RingData<'_>) -> Vec<Option<f64>> {
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| {
             (lo.min(corr(t)), hi.max(corr(t)))
         });
-    if hi - lo < MIN_CORRECTION_RAD {
+    let mut degs: Vec<i64> = d
+        .angles
+        .iter()
+        .flatten()
+        .map(|t| t.to_degrees().floor() as i64)
+        .collect();
+    degs.sort_unstable();
+    degs.dedup();
+    if hi - lo < MIN_CORRECTION_RAD || degs.len() < MIN_DISTINCT_DEG {
         return d.angles.to_vec();
     }
     d.angles.iter().map(|a| a.map(|t| t + corr(t))).collect()

@@ -17,6 +17,8 @@ use crate::rig::RadialMark;
 const MAX_POINTS: usize = 1024;
 /// Iterations per frame at most.
 const MAX_ITER: usize = 8;
+/// Below this correlation with the first frame's patch the registration is not trusted.
+const MIN_CORRELATION: f64 = 0.8;
 /// Stop when an update is smaller than this, px.
 const CONVERGED_PX: f64 = 2e-3;
 
@@ -139,19 +141,30 @@ impl ShakeEstimator {
         true
     }
 
-    /// The translation of this frame's image relative to the first frame, px (x right, y down).
-    pub fn estimate(&mut self, frame: &Frame) -> [f64; 2] {
+    /// The translation of this frame's image relative to the first frame, px (x right, y down),
+    /// or None when the patch no longer matches the first frame (correlation below
+    /// `MIN_CORRELATION` after the photometric fit: the fixed mark is obscured or gone); the
+    /// last good shift is then kept for the next frame's start.
+    pub fn estimate(&mut self, frame: &Frame) -> Option<[f64; 2]> {
         self.load(frame);
         let mut d = self.shift;
         let n = self.pts.len() as f64;
+        let mut corr = 0.0;
         for _ in 0..MAX_ITER {
             // One pass: Σs, Σs·(t − t̄), Σgx·s, Σgy·s. With the photometric fit s ≈ g·t + b,
             // the residual is e = (s − s̄)/g − (t − t̄), so Σg·e needs only these sums and the
             // template's own Σgx, Σgy and Σg·(t − t̄), computed once.
-            let [ss, sst, sgx, sgy] = self.gather_sums(d);
+            let [ss, sst, sgx, sgy, sss] = self.gather_sums(d);
             let s_mean = ss / n;
             let gain = sst / n / self.t_var;
+            let s_var = sss / n - s_mean * s_mean;
+            corr = if s_var > 0.0 {
+                sst / n / (s_var * self.t_var).sqrt()
+            } else {
+                0.0
+            };
             if gain <= 0.05 {
+                corr = 0.0;
                 break;
             }
             let bx = (sgx - s_mean * self.g_sum[0]) / gain - self.g_t[0];
@@ -163,10 +176,12 @@ impl ShakeEstimator {
                 break;
             }
         }
-        if d[0].is_finite() && d[1].is_finite() {
+        if corr >= MIN_CORRELATION && d[0].is_finite() && d[1].is_finite() {
             self.shift = d;
+            Some(d)
+        } else {
+            None
         }
-        self.shift
     }
 
     /// Copies the region around the patch and smooths it with a binomial kernel (σ = 1 px).
@@ -215,12 +230,12 @@ impl ShakeEstimator {
 
     /// Bilinear samples of the smoothed region at every template point moved by `d`, reduced
     /// to the four sums the update needs.
-    fn gather_sums(&self, d: [f64; 2]) -> [f64; 4] {
+    fn gather_sums(&self, d: [f64; 2]) -> [f64; 5] {
         let [sw, sh] = self.size;
         let (ox, oy) = (self.origin[0] as f64, self.origin[1] as f64);
         let v = &self.smooth;
         let t_mean = self.t_mean as f32;
-        let (mut ss, mut sst, mut sgx, mut sgy) = (0.0f32, 0.0f32, 0.0f32, 0.0f32);
+        let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
         for (i, p) in self.pts.iter().enumerate() {
             let x = (p[0] + d[0] - ox).clamp(0.0, (sw - 1) as f64);
             let y = (p[1] + d[1] - oy).clamp(0.0, (sh - 1) as f64);
@@ -236,12 +251,14 @@ impl ShakeEstimator {
             sst += s * (self.tmpl[i] - t_mean);
             sgx += self.gx[i] * s;
             sgy += self.gy[i] * s;
+            sss += s * s;
         }
         [
             f64::from(ss),
             f64::from(sst),
             f64::from(sgx),
             f64::from(sgy),
+            f64::from(sss),
         ]
     }
 }
@@ -293,7 +310,7 @@ mod tests {
         assert!(est.init(&f0));
         let (mut worst, mut sq) = (0.0f64, 0.0f64);
         for i in 1..40 {
-            let d = est.estimate(&render_frame(&sc, &truth, i));
+            let d = est.estimate(&render_frame(&sc, &truth, i)).unwrap();
             let t = truth.shake_px[i as usize];
             let t0 = truth.shake_px[0];
             let e = (d[0] - (t[0] - t0[0])).hypot(d[1] - (t[1] - t0[1]));
