@@ -26,8 +26,7 @@
 //! | --fps negative: locate | [`negative_fps_on_locate_is_a_value_not_a_usage_error`] |
 //! | data: a mark never found | [`a_mark_with_no_paint_is_named`] |
 //! | data: a clip shorter than one blow | [`a_clip_shorter_than_one_blow_is_a_warning`] |
-//! | fuzz finds (`tools/fuzz.sh`) | [`fuzz_rig_field_name_with_a_newline`], [`fuzz_truncated_jpeg_still`] |
-//! | fuzz find not tested here: a PNG header claiming 2.3 GB | reported; input kept in `fuzz/regressions/stills/` (a test would allocate gigabytes) |
+//! | fuzz finds (`tools/fuzz.sh`) | [`fuzz_rig_field_name_with_a_newline`], [`fuzz_truncated_jpeg_still`], [`fuzz_still_header_claiming_petabytes`] |
 //!
 //! The output-safety checks of issue 6 (results never overwritten without `--force`, inputs
 //! never written) are at the end of this file. Clips here are the project's own rendered
@@ -558,6 +557,62 @@ fn fuzz_truncated_jpeg_still() {
         dir.path().join("out").as_os_str(),
     ]);
     one_line_error(&out, &["f_0.jpg"]);
+}
+
+/// Writes a `stills` fuzz input as the target does: chunks split at FF 00 FF 00 (at most
+/// four), each a numbered still whose extension comes from its first byte.
+fn fuzz_stills_folder(input: &[u8], dir: &Path) {
+    const EXTS: [&str; 4] = ["png", "bmp", "tif", "jpg"];
+    std::fs::create_dir_all(dir).unwrap();
+    let mut chunks = Vec::new();
+    let mut rest = input;
+    while chunks.len() < 3 {
+        match rest.windows(4).position(|w| w == [0xFF, 0x00, 0xFF, 0x00]) {
+            Some(p) => {
+                chunks.push(&rest[..p]);
+                rest = &rest[p + 4..];
+            }
+            None => break,
+        }
+    }
+    chunks.push(rest);
+    for (i, c) in chunks.iter().enumerate() {
+        let (ext, body) = match c.split_first() {
+            Some((b, body)) => (EXTS[usize::from(*b) % EXTS.len()], body),
+            None => ("png", *c),
+        };
+        std::fs::write(dir.join(format!("f_{i}.{ext}")), body).unwrap();
+    }
+}
+
+#[test]
+fn fuzz_still_header_claiming_petabytes() {
+    // Found by the `stills` fuzz target: a header claiming a frame of about 12 PB made the
+    // reader try to allocate it (an abort, not a message). Inputs kept in
+    // fuzz/regressions/stills/.
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz/regressions/stills");
+    for name in [
+        "crash-6258d539f3d3e63a4557b9ac9aea04c46cf87093",
+        "crash-c5dc4c9c635efde158056015b319a9298632c8eb",
+        // Headers claiming 2 to 3 GB: over the fuzzer's memory limit, now refused too.
+        "oom-27c8e81440fcdce0dc9fac9bc39c3a128c4818ad",
+        "oom-6fa2c01d46e28fcc0f573db2effb76488e1c8f12",
+        "oom-7d02426cf3908fa4e1882a44c5b0b9f40d385ec6",
+        "oom-049677ce565fd193ec4d640032830e0988d6ac5c",
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let clip = dir.path().join("clip");
+        fuzz_stills_folder(&std::fs::read(root.join(name)).unwrap(), &clip);
+        let out = run([
+            "analyze".as_ref(),
+            clip.as_os_str(),
+            "--rig".as_ref(),
+            fixture("fast-tool/rig.json").as_os_str(),
+            "--out".as_ref(),
+            dir.path().join("out").as_os_str(),
+        ]);
+        one_line_error(&out, &["f_"]);
+    }
 }
 
 // ---- no data lost ---------------------------------------------------------------------------
