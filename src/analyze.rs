@@ -265,3 +265,33 @@ fn window(
     }
     Ok((first, last))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::decode::MemorySource;
+    use crate::synth::{Scenario, render_frame, simulate};
+
+    #[test]
+    fn every_frame_is_tracked_up_to_the_last_one() {
+        // Regression: the tracker stopped when the finished decoder stopped taking buffers
+        // back, dropping the frames still queued (up to QUEUE_DEPTH at the clip's end).
+        // Synthetic fast-tool scene (invented bench, known truth).
+        let sc = Scenario::preset("fast-tool").unwrap();
+        let truth = simulate(&sc);
+        for n in [1u64, 2, 3, 8, 13] {
+            let frames: Vec<Frame> = (0..n).map(|i| render_frame(&sc, &truth, i)).collect();
+            let src = Box::new(MemorySource::new(frames, None));
+            let a = analyze_source(
+                src,
+                &sc.rig(),
+                Path::new("rig.json"),
+                &AnalyzeOptions::default(),
+                &|_, _| {},
+            )
+            .unwrap();
+            assert_eq!(a.trace.frames, (0..n).collect::<Vec<_>>(), "{n} frames");
+            assert_eq!(a.trace.drive.len(), n as usize);
+        }
+    }
+}

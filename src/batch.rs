@@ -679,11 +679,14 @@ fn comparison(outcomes: &[ClipOutcome]) -> Vec<report::plot::ComparisonClip> {
 pub fn write_summary(outcomes: &[ClipOutcome], out: &Path) -> Result<Vec<PathBuf>> {
     let csv_path = out.join("summary.csv");
     let io_err = |p: &Path, e: std::io::Error| Error::io(p, e);
-    let mut w = csv::Writer::from_path(&csv_path).map_err(|e| csv_err(&csv_path, e))?;
+    let mut w = csv::Writer::from_writer(Vec::new());
     for o in outcomes {
         w.serialize(&o.row).map_err(|e| csv_err(&csv_path, e))?;
     }
-    w.flush().map_err(|e| io_err(&csv_path, e))?;
+    let bytes = w
+        .into_inner()
+        .map_err(|e| io_err(&csv_path, std::io::Error::other(e.to_string())))?;
+    report::write_atomic(&csv_path, &bytes)?;
 
     let json_path = out.join("summary.json");
     let doc = SummaryFile {
@@ -695,7 +698,7 @@ pub fn write_summary(outcomes: &[ClipOutcome], out: &Path) -> Result<Vec<PathBuf
         path: json_path.clone(),
         reason: e.to_string(),
     })?;
-    std::fs::write(&json_path, text + "\n").map_err(|e| io_err(&json_path, e))?;
+    report::write_atomic(&json_path, (text + "\n").as_bytes())?;
     Ok(vec![csv_path, json_path])
 }
 

@@ -198,6 +198,8 @@ fn corrupt_clip_and_bad_sidecar_fail_alone_with_reasons() {
             .arg("--out")
             .arg(&out_dir)
             .args(["--jobs", "2"])
+            // The second run overwrites the first one's results, which needs --force.
+            .arg("--force")
             .assert()
             .code(1)
             .stdout(predicate::str::contains("corrupt"))

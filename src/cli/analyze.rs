@@ -26,6 +26,10 @@ pub struct AnalyzeArgs {
     /// End of the analysed window, seconds of capture time.
     #[arg(long, value_name = "T")]
     end_s: Option<String>,
+    /// Overwrite the results already in DIR (without it, a DIR holding a report.json is
+    /// left untouched and the run stops).
+    #[arg(long)]
+    force: bool,
     /// Also write annotated frames (first frame, each blow's peak twist, lost marks) into
     /// DIR/overlays/ to check the tracking by eye.
     #[arg(long)]
@@ -53,6 +57,8 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
     if a.overlay_every == 0 {
         anyhow::bail!("--overlay-every: must be at least 1 (1 draws every blow)");
     }
+    // Before the analysis, so a long clip is not analysed only to be refused at the end.
+    twistmark::report::check_output_folder(&a.out, "report.json", a.force)?;
     let progress = super::progress::FrameProgress::new(&a.clip.display().to_string());
     let analysis = twistmark::decode::open(&a.clip).and_then(|source| {
         twistmark::analyze::analyze_source(source, &rig, &a.rig, &opts, &|done, total| {
@@ -62,12 +68,10 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
     progress.finish();
     let analysis = analysis?;
     super::print_warnings(&analysis.warnings);
-    let mut written = twistmark::report::write_outputs(&analysis, &a.out)
-        .with_context(|| format!("writing results to {}", a.out.display()))?;
-    written.extend(
-        twistmark::report::write_plots(&analysis, &a.out)
-            .with_context(|| format!("writing plots to {}", a.out.display()))?,
-    );
+    // Plots and overlays first and report.json last: a report.json in DIR means the run
+    // finished (every file is also written under a temporary name and renamed).
+    let mut written = twistmark::report::write_plots(&analysis, &a.out)
+        .with_context(|| format!("writing plots to {}", a.out.display()))?;
     if a.overlay {
         let o = twistmark::report::overlay::OverlayOptions {
             every_nth_blow: a.overlay_every,
@@ -78,6 +82,10 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
                 .with_context(|| format!("writing overlay frames to {}", a.out.display()))?,
         );
     }
+    written.extend(
+        twistmark::report::write_outputs(&analysis, &a.out)
+            .with_context(|| format!("writing results to {}", a.out.display()))?,
+    );
     print!("{}", twistmark::report::blow_table(&analysis));
     for p in written {
         eprintln!("wrote {}", p.display());

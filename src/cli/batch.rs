@@ -21,8 +21,12 @@ pub struct BatchArgs {
     #[arg(long, value_name = "DIR")]
     out: PathBuf,
     /// The camera's capture rate in frames per second.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true)]
     fps: Option<String>,
+    /// Overwrite the results already in DIR (without it, a DIR holding a summary.json is
+    /// left untouched and the run stops).
+    #[arg(long)]
+    force: bool,
     /// Clips analysed at once (default: number of cores).
     #[arg(long, value_name = "N")]
     jobs: Option<usize>,
@@ -37,6 +41,7 @@ pub fn run(a: BatchArgs) -> Result<ExitCode> {
         jobs: a.jobs,
     };
     let rig = twistmark::Rig::from_path(&a.rig)?;
+    twistmark::report::check_output_folder(&a.out, "summary.json", a.force)?;
     let progress = BatchProgress::new();
     let result = run_batch(&a.folder, &rig, &a.rig, &a.out, &opts, &|ev| {
         progress.event(ev)

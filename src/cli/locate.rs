@@ -16,7 +16,7 @@ pub struct LocateArgs {
     #[arg(long, value_name = "RIG.json")]
     out: PathBuf,
     /// The camera's capture rate in frames per second (written as capture_fps_hz).
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true)]
     fps: Option<String>,
     /// Write a preview of the first frame with the marks drawn.
     #[arg(long, value_name = "PNG")]

@@ -31,6 +31,8 @@ use crate::warning::Warning;
 
 /// Extensions read as stills (compared in lower case).
 const EXTENSIONS: [&str; 6] = ["png", "tif", "tiff", "jpg", "jpeg", "bmp"];
+/// Largest decoded still accepted, bytes (1 GiB: an 8k × 8k 16-bit RGBA frame is 512 MiB).
+const MAX_FRAME_BYTES: usize = 1 << 30;
 /// At most this many gap warnings; the rest are summed up in one note.
 const MAX_GAP_WARNINGS: usize = 10;
 
@@ -441,8 +443,21 @@ impl FrameSource for StillsSource {
                 ),
             ));
         }
+        // A damaged header can claim petabytes (found by fuzzing): refuse before allocating,
+        // so the run ends with a message instead of an aborted allocation.
+        let too_big = || {
+            Error::input(
+                &path,
+                format!(
+                    "the header claims a {w}x{h} frame of {} bytes, more than any camera frame;                      the file is damaged: replace or remove this frame",
+                    dec.total_bytes()
+                ),
+            )
+        };
         let total = usize::try_from(dec.total_bytes())
-            .map_err(|_| Error::input(&path, "image too large for this machine's memory"))?;
+            .ok()
+            .filter(|&t| t <= MAX_FRAME_BYTES)
+            .ok_or_else(too_big)?;
         self.raw.resize(total, 0);
         dec.read_image(&mut self.raw).map_err(|e| {
             Error::input(

@@ -349,6 +349,9 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
     let mut stamps: Vec<i64> = Vec::new();
     let mut packet = ff::Packet::empty();
     loop {
+        // As in `read_into`: release the previous packet's buffer before reading the next.
+        // SAFETY: the packet is a valid AVPacket owned here; unref leaves it blank.
+        unsafe { ff::ffi::av_packet_unref(ff::packet::Mut::as_mut_ptr(&mut packet)) };
         match packet.read(&mut ictx) {
             Ok(()) => {}
             Err(ff::Error::Eof) => break,
@@ -492,6 +495,11 @@ impl FrameSource for VideoSource {
             }
             // Feed the next packet of the video stream.
             loop {
+                // `Packet::read` (av_read_frame) does not release the packet's previous
+                // buffer, so without this every packet read stays allocated and memory grows
+                // with the clip (about 0.5 MB per 720p FFV1 frame).
+                // SAFETY: the packet is a valid AVPacket owned by self; unref leaves it blank.
+                unsafe { ff::ffi::av_packet_unref(ff::packet::Mut::as_mut_ptr(&mut self.packet)) };
                 match self.packet.read(&mut self.ictx) {
                     Ok(()) if self.packet.stream() == self.stream_index => {
                         if let Err(e) = self.decoder.send_packet(&self.packet) {

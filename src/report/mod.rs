@@ -51,17 +51,66 @@ pub fn write_outputs(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
         reason: format!("cannot serialise the report: {e}"),
     })?;
     text.push('\n');
-    let mut written = Vec::new();
+    // report.json goes last, so its presence means the CSVs beside it are complete too.
+    let blows = csv::blows_csv(&report);
+    let trace = csv::trace_csv(&report);
     for (name, bytes) in [
-        ("report.json", text.into_bytes()),
-        ("blows.csv", csv::blows_csv(&report).into_bytes()),
-        ("trace.csv", csv::trace_csv(&report).into_bytes()),
+        ("blows.csv", blows.as_bytes()),
+        ("trace.csv", trace.as_bytes()),
+        ("report.json", text.as_bytes()),
     ] {
-        let path = dir.join(name);
-        write_atomic(&path, &bytes)?;
-        written.push(path);
+        write_atomic(&dir.join(name), bytes)?;
     }
-    Ok(written)
+    Ok(["report.json", "blows.csv", "trace.csv"]
+        .iter()
+        .map(|n| dir.join(n))
+        .collect())
+}
+
+/// Refuses to reuse an output folder that already holds twistmark results, unless `force`.
+///
+/// `marker` is the file whose presence means "results are here": `report.json` for
+/// `analyze`, `summary.json` for `batch`. A folder that does not exist, is empty, or holds
+/// other files only is always fine (nothing of ours would be lost).
+///
+/// # Errors
+/// [`Error::Output`] naming the folder and saying to pass `--force` or choose another
+/// `--out`; also when `dir` is a file.
+pub fn check_output_folder(dir: &Path, marker: &str, force: bool) -> Result<()> {
+    if dir.exists() && !dir.is_dir() {
+        return Err(Error::Output {
+            path: dir.to_path_buf(),
+            reason: "is a file, not a folder: give --out a folder name".into(),
+        });
+    }
+    if !force && dir.join(marker).exists() {
+        return Err(Error::Output {
+            path: dir.to_path_buf(),
+            reason: format!(
+                "already holds twistmark results ({marker}); pass --force to overwrite them or choose another --out"
+            ),
+        });
+    }
+    Ok(())
+}
+
+/// Encodes `img` as PNG in memory and writes it with [`write_atomic`].
+///
+/// # Errors
+/// [`crate::Error::Output`] when encoding fails, [`crate::Error::Io`] naming the file.
+pub(crate) fn save_png_atomic<P, C>(img: &image::ImageBuffer<P, C>, path: &Path) -> Result<()>
+where
+    P: image::PixelWithColorType,
+    [P::Subpixel]: image::EncodableLayout,
+    C: std::ops::Deref<Target = [P::Subpixel]>,
+{
+    let mut png = Vec::new();
+    img.write_to(&mut std::io::Cursor::new(&mut png), image::ImageFormat::Png)
+        .map_err(|e| Error::Output {
+            path: path.to_path_buf(),
+            reason: format!("could not encode the PNG: {e}"),
+        })?;
+    write_atomic(path, &png)
 }
 
 /// Writes `bytes` to `path` through a temporary file in the same folder and a rename.

@@ -164,11 +164,7 @@ pub fn write_overlays_from(
         }
         let img = draw_overlay(&frame, analysis, m, &font);
         let path = out_dir.join(format!("frame_{:06}.png", m.frame));
-        img.save_with_format(&path, image::ImageFormat::Png)
-            .map_err(|e| Error::Output {
-                path: path.clone(),
-                reason: format!("could not write the overlay PNG: {e}"),
-            })?;
+        super::save_png_atomic(&img, &path)?;
         written.push(path);
     }
     Ok(written)

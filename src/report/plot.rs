@@ -94,7 +94,7 @@ fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<
         plot.draw(&root).map_err(|e| failed(&svg_path, e))?;
         root.present().map_err(|e| failed(&svg_path, Box::new(e)))?;
     }
-    std::fs::write(&svg_path, svg).map_err(|e| Error::io(&svg_path, e))?;
+    super::write_atomic(&svg_path, svg.as_bytes())?;
 
     let mut buf = vec![255u8; size.0 as usize * size.1 as usize * 3];
     {
@@ -106,11 +106,7 @@ fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<
         path: png_path.clone(),
         reason: "plot buffer has the wrong size".into(),
     })?;
-    img.save_with_format(&png_path, image::ImageFormat::Png)
-        .map_err(|e| Error::Output {
-            path: png_path.clone(),
-            reason: format!("could not write the PNG: {e}"),
-        })?;
+    super::save_png_atomic(&img, &png_path)?;
     Ok(vec![svg_path, png_path])
 }
 
