@@ -6,6 +6,7 @@ mod cli;
 use std::process::ExitCode;
 
 fn main() -> ExitCode {
+    restore_sigpipe();
     match cli::run() {
         Ok(code) => code,
         Err(err) => {
@@ -16,3 +17,16 @@ fn main() -> ExitCode {
         }
     }
 }
+
+/// Lets `twistmark info CLIP | head -1` end quietly when the reader closes the pipe, as Unix
+/// tools do, instead of a panic from a failed write to stdout.
+#[cfg(unix)]
+fn restore_sigpipe() {
+    // SAFETY: called once at start-up, before any thread exists; SIG_DFL is a valid handler.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
+    }
+}
+
+#[cfg(not(unix))]
+fn restore_sigpipe() {}
