@@ -284,6 +284,7 @@ fn corrupt_clip_and_bad_sidecar_fail_alone_with_reasons() {
 }
 
 /// Copies a folder of stills.
+#[cfg(feature = "ffmpeg")]
 fn copy_dir(from: &Path, to: &Path) {
     std::fs::create_dir_all(to).unwrap();
     for e in std::fs::read_dir(from).unwrap() {

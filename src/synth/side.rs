@@ -29,7 +29,7 @@ pub struct SideScene {
     pub axis: [[f64; 2]; 2],
     /// The bar's radius on screen, px.
     pub radius_px: f64,
-    /// Where the stripes start and end along the axis, as fractions of axis[0]→axis[1].
+    /// Where the stripes start and end along the axis, as fractions of `axis[0]`→`axis[1]`.
     pub stripe_span: [f64; 2],
     /// Each stripe's width on the bar's surface, px (arc length).
     pub stripe_width_px: f64,
