@@ -174,14 +174,7 @@ pub fn read_stills_csv(csv: &Path, reference: Option<&Path>) -> Result<StillsPla
     let text = std::fs::read_to_string(csv).map_err(|e| Error::io(csv, e))?;
     let bad = |reason: String| Error::input(csv, reason);
     let dir = csv.parent().unwrap_or(Path::new(""));
-    let mut rdr = csv::ReaderBuilder::new()
-        .trim(csv::Trim::All)
-        .comment(Some(b'#'))
-        .from_reader(text.as_bytes());
-    let headers = rdr
-        .headers()
-        .map_err(|e| bad(format!("cannot read the header row: {e}")))?
-        .clone();
+    let (mut rdr, headers) = crate::mechanics::csv_with_headers(&text).map_err(bad)?;
     let (mut tcol, mut icol): (Option<(usize, f64)>, Option<usize>) = (None, None);
     for (i, h) in headers.iter().enumerate() {
         let unit = match h {

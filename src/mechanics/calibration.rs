@@ -234,14 +234,7 @@ pub fn parse_pair(text: &str) -> Result<CalibrationPair> {
 pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
     let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
     let bad = |reason: String| Error::input(path, reason);
-    let mut rdr = csv::ReaderBuilder::new()
-        .trim(csv::Trim::All)
-        .comment(Some(b'#'))
-        .from_reader(text.as_bytes());
-    let headers = rdr
-        .headers()
-        .map_err(|e| bad(format!("cannot read the header row: {e}")))?
-        .clone();
+    let (mut rdr, headers) = csv_with_headers(&text).map_err(bad)?;
     let (mut tcol, mut thcol) = (None, None);
     for (i, h) in headers.iter().enumerate() {
         match h {
@@ -290,6 +283,22 @@ pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
         return Err(bad("has a header but no pairs".into()));
     }
     Ok(pairs)
+}
+
+/// A CSV reader over `text` (cells trimmed, `#` lines are comments) and its header row; the
+/// error is the reason, for the caller to attach the file name.
+pub(crate) fn csv_with_headers(
+    text: &str,
+) -> std::result::Result<(csv::Reader<&[u8]>, csv::StringRecord), String> {
+    let mut rdr = csv::ReaderBuilder::new()
+        .trim(csv::Trim::All)
+        .comment(Some(b'#'))
+        .from_reader(text.as_bytes());
+    let headers = rdr
+        .headers()
+        .map_err(|e| format!("cannot read the header row: {e}"))?
+        .clone();
+    Ok((rdr, headers))
 }
 
 #[cfg(test)]

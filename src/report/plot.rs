@@ -12,6 +12,7 @@ use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
 use plotters::coord::Shift;
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 use plotters::style::FontStyle;
 
@@ -283,6 +284,34 @@ where
     Ok(())
 }
 
+/// The mesh of a nut-advance-per-blow chart: whole blow numbers on x, degrees on y.
+fn nut_advance_mesh<DB: DrawingBackend>(
+    chart: &mut ChartContext<'_, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>,
+    blows: usize,
+) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    chart
+        .configure_mesh()
+        .x_desc("blow number")
+        .y_desc("nut advance (°)")
+        .x_labels(blows.clamp(1, 20) + 1)
+        .x_label_formatter(&|x| {
+            if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
+                format!("{}", x.round() as i64)
+            } else {
+                String::new()
+            }
+        })
+        .label_style((FONT, 18))
+        .axis_desc_style((FONT, 22))
+        .light_line_style(GRID_COLOR)
+        .bold_line_style(GRID_COLOR.mix(0.0))
+        .draw()?;
+    Ok(())
+}
+
 struct AnglesPlot<'a>(&'a ClipPlotData);
 
 impl Plot for AnglesPlot<'_> {
@@ -482,23 +511,7 @@ impl Plot for AdvancePlot<'_> {
             .x_label_area_size(60)
             .y_label_area_size(90)
             .build_cartesian_2d(0.5..(n.max(1) as f64 + 0.5), y0..y1)?;
-        chart
-            .configure_mesh()
-            .x_desc("blow number")
-            .y_desc("nut advance (°)")
-            .x_labels(n.clamp(1, 20) + 1)
-            .x_label_formatter(&|x| {
-                if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
-                    format!("{}", x.round() as i64)
-                } else {
-                    String::new()
-                }
-            })
-            .label_style((FONT, 18))
-            .axis_desc_style((FONT, 22))
-            .light_line_style(GRID_COLOR)
-            .bold_line_style(GRID_COLOR.mix(0.0))
-            .draw()?;
+        nut_advance_mesh(&mut chart, n)?;
         chart.draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
             v.map(|v| {
                 let x = i as f64;
@@ -678,23 +691,7 @@ impl Plot for ComparisonPlot<'_> {
             .x_label_area_size(60)
             .y_label_area_size(90)
             .build_cartesian_2d(0.5..(nb.max(1) as f64 + 0.5), a0..a1)?;
-        chart
-            .configure_mesh()
-            .x_desc("blow number")
-            .y_desc("nut advance (°)")
-            .x_labels(nb.clamp(1, 20) + 1)
-            .x_label_formatter(&|x| {
-                if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
-                    format!("{}", x.round() as i64)
-                } else {
-                    String::new()
-                }
-            })
-            .label_style((FONT, 18))
-            .axis_desc_style((FONT, 22))
-            .light_line_style(GRID_COLOR)
-            .bold_line_style(GRID_COLOR.mix(0.0))
-            .draw()?;
+        nut_advance_mesh(&mut chart, nb)?;
         for (i, c) in clips.iter().enumerate() {
             let color = SERIES_COLORS[i % SERIES_COLORS.len()];
             let style = color.stroke_width(2);
