@@ -7,7 +7,7 @@ cd "$(dirname "$0")/.."
 cargo build --release --locked
 demo=fixtures/demo
 ./target/release/twistmark info "$demo/clip_h264.mp4"
-./target/release/twistmark analyze "$demo/clip_h264.mp4" --rig "$demo/rig.json" --out demo-out "$@"
+./target/release/twistmark analyze "$demo/clip_h264.mp4" --rig "$demo/rig.json" --out demo-out --force "$@"
 echo
 echo "Results are in demo-out/ (report.json, blows.csv, trace.csv and plots)."
 echo "The demo's true values are in $demo/truth.json, for comparison."
