@@ -54,12 +54,42 @@ impl PolarGrid {
     /// Builds the grid for a radial mark in frames of `width × height` (both ≥ 2).
     pub fn new(mark: &RadialMark, width: u32, height: u32) -> PolarGrid {
         let [ri, ro] = mark.radius;
-        let map = disc_to_screen(mark);
         let rings = ((ro - ri).round() as usize).clamp(MIN_RINGS, MAX_RINGS);
         let dr = (ro - ri) / rings as f64;
         let radius: Vec<f64> = (0..rings).map(|k| ri + (k as f64 + 0.5) * dr).collect();
         let r_mid = 0.5 * (ri + ro);
         let bins = ((2.0 * PI * r_mid / BIN_SPACING_PX).ceil() as usize).clamp(MIN_BINS, MAX_BINS);
+        PolarGrid::build(
+            mark.pivot,
+            disc_to_screen(mark),
+            radius,
+            bins,
+            width as usize,
+            height as usize,
+        )
+    }
+
+    /// A grid over some of this grid's rings (`rings`, indices) with `bins` angular samples.
+    pub fn subgrid(&self, rings: &[usize], bins: usize) -> PolarGrid {
+        PolarGrid::build(
+            self.pivot,
+            self.map,
+            rings.iter().map(|&k| self.radius[k]).collect(),
+            bins,
+            self.width,
+            self.height,
+        )
+    }
+
+    fn build(
+        pivot: [f64; 2],
+        map: [[f64; 2]; 2],
+        radius: Vec<f64>,
+        bins: usize,
+        width: usize,
+        height: usize,
+    ) -> PolarGrid {
+        let rings = radius.len();
         let mut offset = Vec::with_capacity(rings * bins);
         for &r in &radius {
             for j in 0..bins {
@@ -80,10 +110,10 @@ impl PolarGrid {
             wts: Vec::new(),
             frac: Vec::new(),
             bbox: [0; 4],
-            pivot: mark.pivot,
+            pivot,
             map,
-            width: width as usize,
-            height: height as usize,
+            width,
+            height,
         };
         let (idx, wts) = grid
             .offset
@@ -151,19 +181,89 @@ impl PolarGrid {
     /// When `out` has the wrong length or the frame size differs from the grid's.
     pub fn sample(&self, frame: &Frame, shift: [f64; 2], out: &mut [f32]) {
         assert_eq!(out.len(), self.offset.len());
+        self.sample_range(frame, shift, 0..self.offset.len(), out);
+    }
+
+    /// Samples ring `k` only, into its place in `out` (laid out as for [`Self::sample`]).
+    pub fn sample_ring(&self, frame: &Frame, shift: [f64; 2], k: usize, out: &mut [f32]) {
+        let n = self.bins;
+        self.sample_range(
+            frame,
+            shift,
+            k * n..(k + 1) * n,
+            &mut out[k * n..(k + 1) * n],
+        );
+    }
+
+    /// Samples bins `from ..= to` of ring `k` (continuous bin numbers, wrapped around the
+    /// ring; at most the whole ring) into their places in `out` (laid out as for
+    /// [`Self::sample`]). Returns the span actually sampled, `(from, to)` unwrapped.
+    pub fn sample_span(
+        &self,
+        frame: &Frame,
+        shift: [f64; 2],
+        k: usize,
+        from: i64,
+        to: i64,
+        out: &mut [f32],
+    ) -> (i64, i64) {
+        let n = self.bins as i64;
+        if to - from + 1 >= n {
+            self.sample_ring(frame, shift, k, out);
+            return (i64::MIN / 4, i64::MAX / 4);
+        }
+        let base = k * self.bins;
+        let a = from.rem_euclid(n) as usize;
+        let b = to.rem_euclid(n) as usize;
+        if a <= b {
+            self.sample_range(
+                frame,
+                shift,
+                base + a..base + b + 1,
+                &mut out[base + a..=base + b],
+            );
+        } else {
+            let end = base + self.bins;
+            self.sample_range(frame, shift, base + a..end, &mut out[base + a..end]);
+            self.sample_range(frame, shift, base..base + b + 1, &mut out[base..=base + b]);
+        }
+        (from, to)
+    }
+
+    /// Samples the grid points `range` (flat, ring-major indices) into `out` (same length).
+    fn sample_range(
+        &self,
+        frame: &Frame,
+        shift: [f64; 2],
+        range: std::ops::Range<usize>,
+        out: &mut [f32],
+    ) {
         assert_eq!(
             (frame.width as usize, frame.height as usize),
             (self.width, self.height)
         );
         let scale = 1.0 / frame.max_value();
         match &frame.luma {
-            Luma::U8(d) => self.sample_t(d, scale, shift, out),
-            Luma::U16(d) => self.sample_t(d, scale, shift, out),
+            Luma::U8(d) => self.sample_t(d, scale, shift, range, out),
+            Luma::U16(d) => self.sample_t(d, scale, shift, range, out),
         }
     }
 
-    fn sample_t<T: Copy + Into<f32>>(&self, d: &[T], scale: f32, shift: [f64; 2], out: &mut [f32]) {
+    fn sample_t<T: Copy + Into<f32>>(
+        &self,
+        d: &[T],
+        scale: f32,
+        shift: [f64; 2],
+        range: std::ops::Range<usize>,
+        out: &mut [f32],
+    ) {
         let w = self.width;
+        let (idx, wts, frac) = (
+            &self.idx[range.clone()],
+            &self.wts[range.clone()],
+            &self.frac[range],
+        );
+        assert_eq!(out.len(), idx.len());
         let gather = |i: u32, wt: &[f32; 4]| {
             let i = i as usize;
             (wt[0] * d[i].into()
@@ -173,7 +273,7 @@ impl PolarGrid {
                 * scale
         };
         if shift == [0.0, 0.0] {
-            for ((o, &i), wt) in out.iter_mut().zip(&self.idx).zip(&self.wts) {
+            for ((o, &i), wt) in out.iter_mut().zip(idx).zip(wts) {
                 *o = gather(i, wt);
             }
         } else {
@@ -189,7 +289,7 @@ impl PolarGrid {
             let (ix, fxs) = lim(shift[0], self.bbox[0], self.bbox[1], self.width);
             let (iy, fys) = lim(shift[1], self.bbox[2], self.bbox[3], self.height);
             let base = iy * w as isize + ix;
-            for ((o, &i), f) in out.iter_mut().zip(&self.idx).zip(&self.frac) {
+            for ((o, &i), f) in out.iter_mut().zip(idx).zip(frac) {
                 let mut i = (i as isize + base) as usize;
                 let mut fx = f[0] + fxs;
                 if fx >= 1.0 {

@@ -1,9 +1,11 @@
 //! The angle of one radial stripe in one frame, from the polar samples of its annulus.
 //!
 //! Method, per frame (all buffers are owned by the tracker and reused; nothing is allocated):
-//! 1. Sample the annulus on the precomputed [`PolarGrid`] (rings × angular bins).
-//! 2. Normalise each ring by its own mean and noise level (the noise is estimated from
-//!    differences of samples 1 px apart), so a global gain or offset change (lighting flicker)
+//! 1. Sample the annulus on the coarse grid: a few of the rings (at most `COARSE_RINGS`), whole,
+//!    with angular bins about a quarter of the stripe's width apart (a [`PolarGrid`] built
+//!    once the first frame has shown the stripe).
+//! 2. Normalise each coarse ring by its own mean and noise level (the noise is estimated from
+//!    differences of neighbouring samples), so a global gain or offset change (lighting flicker)
 //!    leaves every score unchanged.
 //! 3. Coarse search over the whole circle: per ring, a box of the stripe's width against the
 //!    ring mean, signed by the stripe's polarity, clipped to a fraction of the stripe's own
@@ -14,7 +16,9 @@
 //!    tens of degrees in one frame is still followed.
 //! 4. The half-maximum points of that score give the stripe's centre and its width in this
 //!    frame; a width above the first frame's means motion blur, and the fine windows widen.
-//! 5. Fine centre per ring: the centroid of the stripe's excess over a straight baseline drawn
+//! 5. Fine centre per ring, on the full grid (every ring, bins about 0.75 px apart), sampled
+//!    only in the window that ring's centroid reads: the centroid of the stripe's excess over a
+//!    straight baseline drawn
 //!    through the two flanks, with a window re-centred on the estimate until it stops moving
 //!    (so the window is symmetric about the answer and truncation does not bias it). This is
 //!    the brightness-weighted centroid refinement of Crocker & Grier (1996), applied along a
@@ -24,10 +28,14 @@
 //!    M-estimator, c = 4.685 × scale, scale = 1.4826 × MAD), which drops rings spoilt by a
 //!    highlight, a compression block or the pivot's hub.
 //!
-//! The first frame decides the stripe's polarity (bright or dark paint, found by contrast, so
-//! its colour need not be known), its width, each ring's offset (a stripe that misses the pivot
-//! a little sits at a different angle on each ring) and the reference contrast that later
-//! frames are judged against.
+//! The first frame is sampled whole on the full grid. It decides the stripe's polarity (bright
+//! or dark paint, found by contrast, so its colour need not be known), its width, each ring's
+//! offset (a stripe that misses the pivot a little sits at a different angle on each ring), the
+//! reference contrast that later frames are judged against, and each ring's noise level
+//! relative to its nearest coarse ring (later frames scale the coarse rings' noise by it).
+//!
+//! Cost: a 1280×720 clip's mark of 32 rings × 964 bins is about 31,000 samples whole; per later
+//! frame the coarse grid and the fine windows take a few thousand (docs/performance.md).
 
 use std::f64::consts::PI;
 
@@ -51,7 +59,11 @@ const MIN_INLIER_FRACTION: f64 = 0.4;
 const PRIOR_SPAN_RAD: f64 = PI / 2.0;
 const PRIOR_WEIGHT: f64 = 0.3;
 /// Rings used by the coarse search at most.
-const COARSE_RINGS: usize = 16;
+const COARSE_RINGS: usize = 8;
+/// Coarse bins per stripe half-width on the outermost coarse ring, at least.
+const COARSE_BINS_PER_HALF_WIDTH: f64 = 2.0;
+/// Fewest coarse bins around the circle.
+const MIN_COARSE_BINS: usize = 90;
 /// Tukey biweight tuning constant (95 % efficiency at the normal distribution).
 const TUKEY_C: f64 = 4.685;
 
@@ -74,16 +86,98 @@ struct StripeModel {
     half_width_px: f64,
     /// Each ring's angular offset from the stripe's mean angle, rad.
     offset: Vec<f64>,
-    /// The same, rounded to bins, for the coarse search.
-    offset_bins: Vec<i64>,
     /// Median per-ring contrast in the first frame.
     z_ref: f64,
     /// Clip level for one ring's coarse score.
     clip: f32,
     /// Coarse score of the stripe in the first frame.
     score_ref: f64,
-    /// Half-width (bins) of the coarse score's peak at half maximum in the first frame.
+    /// Half-width (coarse bins) of the coarse score's peak at half maximum in the first frame.
     peak_half_bins: f64,
+}
+
+/// The coarse search's grid and buffers (see the module's step 1).
+struct Coarse {
+    grid: PolarGrid,
+    polar: Vec<f32>,
+    mean: Vec<f32>,
+    sigma: Vec<f32>,
+    /// Per coarse ring: the stripe's offset (coarse bins) and the box half-width (coarse bins).
+    offset_bins: Vec<i64>,
+    half_bins: Vec<usize>,
+    /// Summed box response per coarse bin.
+    score: Vec<f32>,
+}
+
+impl Coarse {
+    /// Samples the coarse rings whole and measures each one's mean and noise.
+    fn load(&mut self, frame: &Frame, shift: [f64; 2]) {
+        self.grid.sample(frame, shift, &mut self.polar);
+        let n = self.grid.bins;
+        for k in 0..self.grid.rings {
+            let (m, s) = ring_stats(
+                &self.polar[k * n..(k + 1) * n],
+                self.grid.radius[k],
+                self.grid.step(),
+            );
+            self.mean[k] = m;
+            self.sigma[k] = s;
+        }
+    }
+
+    /// The clipped, offset-aligned sum over rings of the box response (into `score`).
+    fn score(&mut self, model: &StripeModel) {
+        self.score.iter_mut().for_each(|s| *s = 0.0);
+        let n = self.grid.bins;
+        for k in 0..self.grid.rings {
+            box_pass(
+                &self.polar[k * n..(k + 1) * n],
+                self.mean[k],
+                self.sigma[k],
+                self.half_bins[k],
+                self.offset_bins[k],
+                model.clip,
+                model.polarity,
+                &mut self.score,
+                true,
+            );
+        }
+    }
+
+    /// The highest score within `reach` bins of `j`.
+    fn local_peak(&self, j: usize, reach: usize) -> usize {
+        let n = self.grid.bins;
+        let mut best = j;
+        for d in -(reach as i64)..=(reach as i64) {
+            let jj = (j as i64 + d).rem_euclid(n as i64) as usize;
+            if self.score[jj] > self.score[best] {
+                best = jj;
+            }
+        }
+        best
+    }
+
+    /// Centre and half-width (bins) of the score's peak at `j`, from its half-maximum points
+    /// (linearly interpolated), searching at most `reach` bins each way.
+    fn half_max(&self, j: usize, reach: usize) -> (f64, f64) {
+        let n = self.grid.bins as i64;
+        let at = |i: i64| f64::from(self.score[i.rem_euclid(n) as usize]);
+        let top = at(j as i64);
+        let half = 0.5 * top;
+        let mut edge = [0.0f64; 2];
+        for (side, dir) in [(0usize, -1i64), (1, 1)] {
+            let mut i = j as i64;
+            let mut steps = 0;
+            while at(i + dir) > half && steps < reach {
+                i += dir;
+                steps += 1;
+            }
+            let (a, b) = (at(i), at(i + dir));
+            let frac = if a > b { (a - half) / (a - b) } else { 0.5 };
+            edge[side] = i as f64 + dir as f64 * frac.clamp(0.0, 1.0);
+        }
+        (0.5 * (edge[0] + edge[1]), 0.5 * (edge[1] - edge[0]))
+    }
 }
 
 /// Tracks one radial mark through a clip.
@@ -92,7 +186,6 @@ pub(crate) struct RadialTracker {
     polar: Vec<f32>,
     mean: Vec<f32>,
     sigma: Vec<f32>,
-    score: Vec<f32>,
     scratch: Vec<f32>,
     ring_c: Vec<f64>,
     ring_z: Vec<f64>,
@@ -101,6 +194,14 @@ pub(crate) struct RadialTracker {
     dev_buf: Vec<(f64, f64)>,
     /// Per ring, from the last measurement: angle relative to the result (rad) and weight.
     ring_out: Vec<(f32, f32)>,
+    /// The rings the coarse search uses (indices into `grid`, increasing).
+    coarse_rings: Vec<usize>,
+    /// Per ring: the position in `coarse_rings` of the nearest coarse ring.
+    near: Vec<usize>,
+    /// Per ring: its noise level over the nearest coarse ring's, from the first frame.
+    sigma_ratio: Vec<f32>,
+    /// Built by [`Self::init`].
+    coarse: Option<Coarse>,
     model: Option<StripeModel>,
     /// Last good continuous angle, its velocity (rad/frame) and frames since it.
     last: Option<f64>,
@@ -112,11 +213,19 @@ impl RadialTracker {
     /// A tracker over `grid`; the stripe is learnt from the first frame given to [`Self::init`].
     pub fn new(grid: PolarGrid) -> RadialTracker {
         let (k, n) = (grid.rings, grid.bins);
+        // At most COARSE_RINGS rings, evenly spaced: enough to place the stripe to a bin or two.
+        let coarse_rings: Vec<usize> = (0..k).step_by(k.div_ceil(COARSE_RINGS)).collect();
+        let near = (0..k)
+            .map(|r| {
+                (0..coarse_rings.len())
+                    .min_by_key(|&i| coarse_rings[i].abs_diff(r))
+                    .expect("a grid has at least one ring")
+            })
+            .collect();
         RadialTracker {
             polar: vec![0.0; k * n],
             mean: vec![0.0; k],
             sigma: vec![0.0; k],
-            score: vec![0.0; n],
             scratch: vec![0.0; n],
             ring_c: vec![0.0; k],
             ring_z: vec![0.0; k],
@@ -124,6 +233,10 @@ impl RadialTracker {
             sort_buf: Vec::with_capacity(k.max(n)),
             dev_buf: Vec::with_capacity(k),
             ring_out: vec![(0.0, 0.0); k],
+            coarse_rings,
+            near,
+            sigma_ratio: vec![1.0; k],
+            coarse: None,
             model: None,
             last: None,
             velocity: 0.0,
@@ -149,8 +262,15 @@ impl RadialTracker {
     /// A one-line reason when the annulus shows no stripe.
     pub fn init(&mut self, frame: &Frame, shift: [f64; 2]) -> Result<Measurement, String> {
         self.grid.sample(frame, shift, &mut self.polar);
-        self.ring_stats();
-        let (k_n, n) = (self.grid.rings, self.grid.bins);
+        let n = self.grid.bins;
+        for k in 0..self.grid.rings {
+            (self.mean[k], self.sigma[k]) = ring_stats(
+                &self.polar[k * n..(k + 1) * n],
+                self.grid.radius[k],
+                self.grid.step(),
+            );
+        }
+        let k_n = self.grid.rings;
         let step = self.grid.step();
         let r_mid = self.grid.radius.iter().sum::<f64>() / k_n as f64;
 
@@ -160,25 +280,31 @@ impl RadialTracker {
         let mut best = (f64::NEG_INFINITY, 1.0f32, HALF_WIDTHS_PX[0], 0usize);
         let mut column = vec![0.0f64; k_n];
         let mut resp = [vec![0.0f32; k_n * n], vec![0.0f32; k_n * n]];
+        let mut window = std::collections::VecDeque::with_capacity(n);
         for &hw_px in HALF_WIDTHS_PX
             .iter()
             .filter(|&&h| h / r_mid <= 0.4 && h / r_mid >= 0.5 * step)
         {
             for k in 0..k_n {
-                let hb = self.box_half_bins(hw_px, k);
-                self.box_response(k, hb, 0, f32::INFINITY, 1.0);
+                let hb = box_half_bins(hw_px, self.grid.radius[k], step, n);
+                box_pass(
+                    &self.polar[k * n..(k + 1) * n],
+                    self.mean[k],
+                    self.sigma[k],
+                    hb,
+                    0,
+                    f32::INFINITY,
+                    1.0,
+                    &mut self.scratch,
+                    false,
+                );
                 let gain = ((2 * hb + 1) as f32).sqrt();
                 // Allow a stripe that misses the pivot a little: take each ring's best response
                 // within one box half-width.
                 for (p, polarity) in [1.0f32, -1.0].into_iter().enumerate() {
-                    for j in 0..n {
-                        let mut m = f32::NEG_INFINITY;
-                        for d in -(hb as i64)..=(hb as i64) {
-                            let jj = (j as i64 + d).rem_euclid(n as i64) as usize;
-                            m = m.max(polarity * self.scratch[jj]);
-                        }
-                        resp[p][k * n + j] = m * gain;
-                    }
+                    let out = &mut resp[p][k * n..(k + 1) * n];
+                    circular_window_max(&self.scratch, polarity, hb, out, &mut window);
+                    out.iter_mut().for_each(|m| *m *= gain);
                 }
             }
             for (p, polarity) in [1.0f32, -1.0].into_iter().enumerate() {
@@ -186,8 +312,7 @@ impl RadialTracker {
                     for k in 0..k_n {
                         column[k] = f64::from(resp[p][k * n + j]);
                     }
-                    column.sort_unstable_by(f64::total_cmp);
-                    let med = column[k_n / 2];
+                    let (_, &mut med, _) = column.select_nth_unstable_by(k_n / 2, f64::total_cmp);
                     if med > best.0 {
                         best = (med, polarity, hw_px, j);
                     }
@@ -201,7 +326,7 @@ impl RadialTracker {
         let c0 = j_best as f64;
         for k in 0..k_n {
             let hw_b = hw_px / (self.grid.radius[k] * step);
-            self.fine_ring(k, c0, hw_b, hw_b.max(3.0), polarity);
+            self.fine_ring(k, c0, hw_b, hw_b.max(3.0), polarity, WHOLE_RING, None);
         }
         let valid = self.ring_ok.iter().filter(|&&o| o).count();
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
@@ -240,27 +365,56 @@ impl RadialTracker {
         }
         mean_off /= k_n as f64;
         offset.iter_mut().for_each(|o| *o -= mean_off);
-        let offset_bins = offset.iter().map(|o| (o / step).round() as i64).collect();
+
+        // The coarse grid: bins a quarter of the stripe's width apart on the outermost coarse
+        // ring (never finer than the full grid).
+        let r_out = self.grid.radius[*self.coarse_rings.last().expect("at least one ring")];
+        let n_c = ((2.0 * PI * r_out * COARSE_BINS_PER_HALF_WIDTH / hw_px).ceil() as usize)
+            .clamp(MIN_COARSE_BINS.min(n), n);
+        let grid = self.grid.subgrid(&self.coarse_rings, n_c);
+        let step_c = grid.step();
+        let rc = grid.rings;
+        let mut coarse = Coarse {
+            offset_bins: self
+                .coarse_rings
+                .iter()
+                .map(|&k| (offset[k] / step_c).round() as i64)
+                .collect(),
+            half_bins: grid
+                .radius
+                .iter()
+                .map(|&r| box_half_bins(hw_px, r, step_c, n_c))
+                .collect(),
+            polar: vec![0.0; rc * n_c],
+            mean: vec![0.0; rc],
+            sigma: vec![0.0; rc],
+            score: vec![0.0; n_c],
+            grid,
+        };
+        coarse.load(frame, shift);
+        for k in 0..k_n {
+            self.sigma_ratio[k] = self.sigma[k] / coarse.sigma[self.near[k]];
+        }
 
         let clip = (0.5 * z_med).max(1.5) as f32;
         let mut model = StripeModel {
             polarity,
             half_width_px: hw_px,
             offset,
-            offset_bins,
             z_ref: z_med,
             clip,
             score_ref: 0.0,
             peak_half_bins: 0.0,
         };
-        self.coarse_score(&model);
-        let j0 = (theta_c + mean_off).div_euclid(step) as usize % n;
-        let j0 = self.local_peak(j0, 3 + (hw_px / (r_mid * step)) as usize);
-        model.score_ref = f64::from(self.score[j0]);
-        let (_, half) = self.half_max(j0, n / 4);
+        coarse.score(&model);
+        let j0 = (theta_c + mean_off).div_euclid(step_c) as usize % n_c;
+        let j0 = coarse.local_peak(j0, 3 + (hw_px / (r_mid * step_c)) as usize);
+        model.score_ref = f64::from(coarse.score[j0]);
+        let (_, half) = coarse.half_max(j0, n_c / 4);
         model.peak_half_bins = half;
         self.model = Some(model);
-        match self.measure_at(true) {
+        self.coarse = Some(coarse);
+        match self.measure_at(None) {
             Some(m) => Ok(m),
             None => Err(
                 "the stripe found in the first frame could not be measured consistently across the annulus; check pivot and radius in the rig"
@@ -270,16 +424,28 @@ impl RadialTracker {
     }
 
     /// Measures the stripe in a later frame; `None` when it cannot be found with confidence.
+    ///
+    /// Only the coarse grid is sampled whole (for the search over the whole circle and the
+    /// noise level); each ring of the full grid is sampled only in the window its fine centre
+    /// reads, and its noise level is the nearest coarse ring's, scaled by their ratio in the
+    /// first frame.
     pub fn measure(&mut self, frame: &Frame, shift: [f64; 2]) -> Option<Measurement> {
-        self.grid.sample(frame, shift, &mut self.polar);
-        self.ring_stats();
-        self.measure_at(false)
+        let coarse = self.coarse.as_mut()?;
+        coarse.load(frame, shift);
+        for k in 0..self.grid.rings {
+            self.sigma[k] = coarse.sigma[self.near[k]] * self.sigma_ratio[k];
+        }
+        self.measure_at(Some((frame, shift)))
     }
 
-    fn measure_at(&mut self, first: bool) -> Option<Measurement> {
+    /// Measures from the coarse grid's samples and the full grid's: all of those in the first
+    /// frame (`src` is None), else sampled from `src` where the fine centres need them.
+    fn measure_at(&mut self, src: Option<(&Frame, [f64; 2])>) -> Option<Measurement> {
         let model = self.model.take()?;
-        let out = self.measure_with(&model, first);
+        let mut coarse = self.coarse.take()?;
+        let out = self.measure_with(&model, &mut coarse, src);
         self.model = Some(model);
+        self.coarse = Some(coarse);
         match out {
             Some(m) => {
                 if let Some(last) = self.last {
@@ -294,10 +460,17 @@ impl RadialTracker {
         out
     }
 
-    fn measure_with(&mut self, model: &StripeModel, first: bool) -> Option<Measurement> {
+    fn measure_with(
+        &mut self,
+        model: &StripeModel,
+        coarse: &mut Coarse,
+        src: Option<(&Frame, [f64; 2])>,
+    ) -> Option<Measurement> {
+        let first = src.is_none();
         let (k_n, n) = (self.grid.rings, self.grid.bins);
         let step = self.grid.step();
-        self.coarse_score(model);
+        coarse.score(model);
+        let (n_c, step_c) = (coarse.grid.bins, coarse.grid.step());
 
         // Prediction and how far to trust it.
         let pred = self
@@ -306,44 +479,64 @@ impl RadialTracker {
         let trust = if self.since_good == 0 { 1.0 } else { 0.3 };
 
         // Local maxima, best and runner-up by prior-adjusted score.
-        let sep = (2.0 * model.peak_half_bins).max(6.0) as usize;
+        // (In coarse bins; the runner-up must lie beyond twice the peak's half-width, and at
+        // least 6 full-grid bins away.)
+        let sep = (2.0 * model.peak_half_bins)
+            .max(6.0 * step / step_c)
+            .max(2.0) as usize;
+        let score = &coarse.score;
         let mut best: Option<(f64, usize)> = None;
-        for j in 0..n {
-            let z = self.score[j];
+        for j in 0..n_c {
+            let z = score[j];
             if z <= 0.0 {
                 continue;
             }
-            let l = self.score[(j + n - 1) % n];
-            let r = self.score[(j + 1) % n];
+            let l = score[(j + n_c - 1) % n_c];
+            let r = score[(j + 1) % n_c];
             if !(z > l && z >= r) {
                 continue;
             }
-            let adj = self.adjusted(model, j, pred, trust);
+            let adj = adjusted(model, f64::from(z), j as f64 * step_c, pred, trust);
             if best.is_none_or(|b| adj > b.0) {
                 best = Some((adj, j));
             }
         }
         let (_, j_best) = best?;
         let mut second = 0.0f32;
-        for j in 0..n {
-            let d = (j as i64 - j_best as i64).rem_euclid(n as i64) as usize;
-            if d.min(n - d) > sep {
-                second = second.max(self.score[j]);
+        for (j, &z) in score.iter().enumerate() {
+            let d = (j as i64 - j_best as i64).rem_euclid(n_c as i64) as usize;
+            if d.min(n_c - d) > sep {
+                second = second.max(z);
             }
         }
-        let peak = self.score[j_best];
+        let peak = score[j_best];
         if f64::from(peak) < 0.2 * model.score_ref && !first {
             return None;
         }
-        let (centre, half) = self.half_max(j_best, n / 4);
-        let extra = (half - model.peak_half_bins).max(0.0);
+        // Centre and blur widening, converted to full-grid bins.
+        let (centre_c, half_c) = coarse.half_max(j_best, n_c / 4);
+        let centre = centre_c * step_c / step;
+        let extra = (half_c - model.peak_half_bins).max(0.0) * step_c / step;
 
         // Fine centre per ring.
         let r_mid = self.grid.radius.iter().sum::<f64>() / k_n as f64;
         for k in 0..k_n {
             let hw_b = model.half_width_px / (self.grid.radius[k] * step) + extra;
             let c0 = centre + model.offset[k] / step;
-            self.fine_ring(k, c0, hw_b, hw_b.max(3.0), model.polarity);
+            let flank = hw_b.max(3.0);
+            let span = match src {
+                Some((frame, shift)) => {
+                    // The window at c0 and a couple of bins either side; `fine_ring` samples
+                    // more if its centre moves further.
+                    let (h, f) = fine_extent(hw_b, flank, n);
+                    let from = (c0 - h - 2.5).floor() as i64 - f;
+                    let to = (c0 + h + 2.5).ceil() as i64 + f;
+                    self.grid
+                        .sample_span(frame, shift, k, from, to, &mut self.polar)
+                }
+                _ => WHOLE_RING,
+            };
+            self.fine_ring(k, c0, hw_b, flank, model.polarity, span, src);
         }
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
         if z_med < (LOST_Z_FRACTION * model.z_ref).max(RING_MIN_Z) {
@@ -431,164 +624,76 @@ impl RadialTracker {
         Some(Measurement { angle, confidence })
     }
 
-    /// Score of coarse candidate `j` after the prior.
-    fn adjusted(&self, model: &StripeModel, j: usize, pred: Option<f64>, trust: f64) -> f64 {
-        let z = f64::from(self.score[j]);
-        match pred {
-            None => z,
-            Some(p) => {
-                let d = wrap_pi(j as f64 * self.grid.step() - p).abs() / PRIOR_SPAN_RAD;
-                z - trust * PRIOR_WEIGHT * model.score_ref * d * d
-            }
-        }
-    }
-
-    /// Ring means and noise levels (mean absolute difference of samples ~1 px apart × √π/2,
-    /// which is σ for Gaussian noise: E|X − Y| = 2σ/√π for independent X, Y ~ N(μ, σ²)).
-    fn ring_stats(&mut self) {
-        let n = self.grid.bins;
-        for k in 0..self.grid.rings {
-            let ring = &self.polar[k * n..(k + 1) * n];
-            let lag =
-                ((1.0 / (self.grid.radius[k] * self.grid.step())).round() as usize).clamp(1, n - 1);
-            let s: f32 = ring.iter().sum();
-            let mut d = 0.0f32;
-            for (a, b) in ring[lag..].iter().zip(ring) {
-                d += (a - b).abs();
-            }
-            for (a, b) in ring.iter().zip(&ring[n - lag..]) {
-                d += (a - b).abs();
-            }
-            self.mean[k] = s / n as f32;
-            self.sigma[k] = ((d / n as f32) * PI.sqrt() as f32 / 2.0).max(1.0 / 1024.0);
-        }
-    }
-
-    fn box_half_bins(&self, hw_px: f64, k: usize) -> usize {
-        ((hw_px / (self.grid.radius[k] * self.grid.step())).round() as usize)
-            .clamp(1, self.grid.bins / 4)
-    }
-
-    /// Fills `scratch[j]` with `polarity × (box mean at j + shift − ring mean) / noise`, clipped
-    /// (`add`: adds to `score` instead). A sliding window sum, so O(bins) per ring.
-    fn box_response(&mut self, k: usize, hb: usize, shift: i64, clip: f32, polarity: f32) {
-        self.box_pass(k, hb, shift, clip, polarity, false);
-    }
-
-    fn box_pass(&mut self, k: usize, hb: usize, shift: i64, clip: f32, polarity: f32, add: bool) {
-        let n = self.grid.bins;
-        let ring = &self.polar[k * n..(k + 1) * n];
-        let inv = 1.0 / (2 * hb + 1) as f64;
-        let (m, sd) = (f64::from(self.mean[k]), f64::from(self.sigma[k]));
-        // Window for j = 0 covers bins shift − hb ..= shift + hb (wrapped).
-        let mut lo = (shift - hb as i64).rem_euclid(n as i64) as usize;
-        let mut hi = (shift + hb as i64).rem_euclid(n as i64) as usize;
-        let mut sum = 0.0f64;
-        let mut i = lo;
-        for _ in 0..2 * hb + 1 {
-            sum += f64::from(ring[i]);
-            i = if i + 1 == n { 0 } else { i + 1 };
-        }
-        let out = if add {
-            &mut self.score
-        } else {
-            &mut self.scratch
-        };
-        let scale = inv / sd;
-        for o in out.iter_mut() {
-            let v = (polarity * ((sum * scale - m / sd) as f32)).clamp(-clip, clip);
-            if add {
-                *o += v;
-            } else {
-                *o = v;
-            }
-            sum -= f64::from(ring[lo]);
-            lo = if lo + 1 == n { 0 } else { lo + 1 };
-            hi = if hi + 1 == n { 0 } else { hi + 1 };
-            sum += f64::from(ring[hi]);
-        }
-    }
-
-    /// The clipped, offset-aligned sum over rings of the box response (into `score`).
-    fn coarse_score(&mut self, model: &StripeModel) {
-        self.score.iter_mut().for_each(|s| *s = 0.0);
-        // At most COARSE_RINGS rings, evenly spaced: enough to place the stripe to a bin or two.
-        let stride = self.grid.rings.div_ceil(COARSE_RINGS);
-        for k in (0..self.grid.rings).step_by(stride) {
-            let hb = self.box_half_bins(model.half_width_px, k);
-            self.box_pass(
-                k,
-                hb,
-                model.offset_bins[k],
-                model.clip,
-                model.polarity,
-                true,
-            );
-        }
-    }
-
-    /// The highest score within `reach` bins of `j`.
-    fn local_peak(&self, j: usize, reach: usize) -> usize {
-        let n = self.grid.bins;
-        let mut best = j;
-        for d in -(reach as i64)..=(reach as i64) {
-            let jj = (j as i64 + d).rem_euclid(n as i64) as usize;
-            if self.score[jj] > self.score[best] {
-                best = jj;
-            }
-        }
-        best
-    }
-
-    /// Centre and half-width (bins) of the score's peak at `j`, from its half-maximum points
-    /// (linearly interpolated), searching at most `reach` bins each way.
-    fn half_max(&self, j: usize, reach: usize) -> (f64, f64) {
-        let n = self.grid.bins as i64;
-        let at = |i: i64| f64::from(self.score[i.rem_euclid(n) as usize]);
-        let top = at(j as i64);
-        let half = 0.5 * top;
-        let mut edge = [0.0f64; 2];
-        for (side, dir) in [(0usize, -1i64), (1, 1)] {
-            let mut i = j as i64;
-            let mut steps = 0;
-            while at(i + dir) > half && steps < reach {
-                i += dir;
-                steps += 1;
-            }
-            let (a, b) = (at(i), at(i + dir));
-            let frac = if a > b { (a - half) / (a - b) } else { 0.5 };
-            edge[side] = i as f64 + dir as f64 * frac.clamp(0.0, 1.0);
-        }
-        (0.5 * (edge[0] + edge[1]), 0.5 * (edge[1] - edge[0]))
-    }
-
     /// Fine centre of the stripe on ring `k` near bin `c0` (continuous). Sets `ring_c[k]`,
     /// `ring_z[k]` and `ring_ok[k]`.
-    fn fine_ring(&mut self, k: usize, c0: f64, hw_b: f64, flank: f64, polarity: f32) {
+    ///
+    /// Reads bins within `span` (unwrapped, inclusive), which the caller has sampled; when the
+    /// window moves past it, the missing bins are sampled from `src`. A window that would reach
+    /// beyond `2h` of c0 fails the ring (its centre has moved more than `h`, so it could not
+    /// count anyway).
+    #[allow(clippy::too_many_arguments)]
+    fn fine_ring(
+        &mut self,
+        k: usize,
+        c0: f64,
+        hw_b: f64,
+        flank: f64,
+        polarity: f32,
+        mut span: (i64, i64),
+        src: Option<(&Frame, [f64; 2])>,
+    ) {
         let n = self.grid.bins;
         let ni = n as i64;
-        let ring = &self.polar[k * n..(k + 1) * n];
-        // Windows are far shorter than the ring, so one conditional wrap suffices (and avoids
-        // an integer division per sample).
-        let at = |j: i64| {
-            let j = if j < 0 {
-                j + ni
-            } else if j >= ni {
-                j - ni
-            } else {
-                j
-            };
-            f64::from(ring[j.clamp(0, ni - 1) as usize])
-        };
         let s = f64::from(polarity);
-        let h = (hw_b + (0.6 * hw_b).max(3.0)).min(n as f64 / 4.0);
-        let f = flank.ceil().min(n as f64 / 8.0) as i64;
+        let (h, f) = fine_extent(hw_b, flank, n);
+        let limit = (
+            (c0 - 2.0 * h - 0.5).floor() as i64 - f,
+            (c0 + 2.0 * h + 0.5).ceil() as i64 + f,
+        );
         let mut c = c0;
         let mut amp = 0.0;
         let mut ok = false;
         for _ in 0..8 {
             let lo = (c - h - 0.5).floor() as i64;
             let hi = (c + h + 0.5).ceil() as i64;
+            if lo - f < span.0 || hi + f > span.1 {
+                let Some((frame, shift)) = src else {
+                    ok = false;
+                    break;
+                };
+                if lo - f < limit.0 || hi + f > limit.1 {
+                    ok = false;
+                    break;
+                }
+                let want = ((lo - f).min(span.0), (hi + f).max(span.1));
+                span = if want.1 - want.0 + 1 >= ni {
+                    self.grid
+                        .sample_span(frame, shift, k, want.0, want.1, &mut self.polar)
+                } else {
+                    if want.0 < span.0 {
+                        self.grid
+                            .sample_span(frame, shift, k, want.0, span.0 - 1, &mut self.polar);
+                    }
+                    if want.1 > span.1 {
+                        self.grid
+                            .sample_span(frame, shift, k, span.1 + 1, want.1, &mut self.polar);
+                    }
+                    want
+                };
+            }
+            let ring = &self.polar[k * n..(k + 1) * n];
+            // Windows are far shorter than the ring, so one conditional wrap suffices (and
+            // avoids an integer division per sample).
+            let at = |j: i64| {
+                let j = if j < 0 {
+                    j + ni
+                } else if j >= ni {
+                    j - ni
+                } else {
+                    j
+                };
+                f64::from(ring[j.clamp(0, ni - 1) as usize])
+            };
             let (mut bl, mut br) = (0.0, 0.0);
             for d in 1..=f {
                 bl += at(lo - d);
@@ -632,6 +737,126 @@ impl RadialTracker {
     }
 }
 
+/// Score `z` of a coarse candidate at angle `theta` (rad) after the prior.
+fn adjusted(model: &StripeModel, z: f64, theta: f64, pred: Option<f64>, trust: f64) -> f64 {
+    match pred {
+        None => z,
+        Some(p) => {
+            let d = wrap_pi(theta - p).abs() / PRIOR_SPAN_RAD;
+            z - trust * PRIOR_WEIGHT * model.score_ref * d * d
+        }
+    }
+}
+
+/// Mean and noise level of one ring of `n` samples on radius `radius` with angular `step`:
+/// the noise is the mean absolute difference of samples ~1 px apart × √π/2, which is σ for
+/// Gaussian noise (E|X − Y| = 2σ/√π for independent X, Y ~ N(μ, σ²)).
+fn ring_stats(ring: &[f32], radius: f64, step: f64) -> (f32, f32) {
+    let n = ring.len();
+    let lag = ((1.0 / (radius * step)).round() as usize).clamp(1, n - 1);
+    let s: f32 = ring.iter().sum();
+    let mut d = 0.0f32;
+    for (a, b) in ring[lag..].iter().zip(ring) {
+        d += (a - b).abs();
+    }
+    for (a, b) in ring.iter().zip(&ring[n - lag..]) {
+        d += (a - b).abs();
+    }
+    (
+        s / n as f32,
+        ((d / n as f32) * PI.sqrt() as f32 / 2.0).max(1.0 / 1024.0),
+    )
+}
+
+/// Box half-width, bins, of a stripe half-width `hw_px` on a ring of `radius` with angular
+/// `step` and `n` bins.
+fn box_half_bins(hw_px: f64, radius: f64, step: f64, n: usize) -> usize {
+    ((hw_px / (radius * step)).round() as usize).clamp(1, n / 4)
+}
+
+/// Fills `out[j]` with `polarity × (box mean at j + shift − ring mean) / noise`, clipped to
+/// ±`clip` (`add`: adds to `out` instead). A sliding window sum, so O(bins) per ring.
+#[allow(clippy::too_many_arguments)]
+fn box_pass(
+    ring: &[f32],
+    mean: f32,
+    sigma: f32,
+    hb: usize,
+    shift: i64,
+    clip: f32,
+    polarity: f32,
+    out: &mut [f32],
+    add: bool,
+) {
+    let n = ring.len();
+    let inv = 1.0 / (2 * hb + 1) as f64;
+    let (m, sd) = (f64::from(mean), f64::from(sigma));
+    // Window for j = 0 covers bins shift − hb ..= shift + hb (wrapped).
+    let mut lo = (shift - hb as i64).rem_euclid(n as i64) as usize;
+    let mut hi = (shift + hb as i64).rem_euclid(n as i64) as usize;
+    let mut sum = 0.0f64;
+    let mut i = lo;
+    for _ in 0..2 * hb + 1 {
+        sum += f64::from(ring[i]);
+        i = if i + 1 == n { 0 } else { i + 1 };
+    }
+    let scale = inv / sd;
+    for o in out.iter_mut() {
+        let v = (polarity * ((sum * scale - m / sd) as f32)).clamp(-clip, clip);
+        if add {
+            *o += v;
+        } else {
+            *o = v;
+        }
+        sum -= f64::from(ring[lo]);
+        lo = if lo + 1 == n { 0 } else { lo + 1 };
+        hi = if hi + 1 == n { 0 } else { hi + 1 };
+        sum += f64::from(ring[hi]);
+    }
+}
+
+/// A span that covers the whole ring, for [`RadialTracker::fine_ring`].
+const WHOLE_RING: (i64, i64) = (i64::MIN / 4, i64::MAX / 4);
+
+/// Half-length `h` of the fine centroid window and its flank length `f`, bins, for a stripe
+/// half-width of `hw_b` bins on a ring of `n` bins.
+fn fine_extent(hw_b: f64, flank: f64, n: usize) -> (f64, i64) {
+    let h = (hw_b + (0.6 * hw_b).max(3.0)).min(n as f64 / 4.0);
+    let f = flank.ceil().min(n as f64 / 8.0) as i64;
+    (h, f)
+}
+
+/// `out[j]` = the largest of `sign × src[j + d]` for |d| ≤ `hb` (indices wrapped around the
+/// ring), by the monotone-queue sliding maximum: O(n) whatever `hb` (`queue` is scratch).
+fn circular_window_max(
+    src: &[f32],
+    sign: f32,
+    hb: usize,
+    out: &mut [f32],
+    queue: &mut std::collections::VecDeque<(usize, f32)>,
+) {
+    let n = src.len();
+    let hb = hb.min(n / 2);
+    let at = |i: usize| sign * src[(i + n - hb % n) % n];
+    queue.clear();
+    // Position i of the extended sequence holds element (i − hb) mod n; out[j] is the maximum
+    // over positions j ..= j + 2 hb.
+    for i in 0..n + 2 * hb {
+        let v = at(i);
+        while queue.back().is_some_and(|&(_, b)| b <= v) {
+            queue.pop_back();
+        }
+        queue.push_back((i, v));
+        if i >= 2 * hb {
+            let j = i - 2 * hb;
+            while queue.front().is_some_and(|&(p, _)| p < j) {
+                queue.pop_front();
+            }
+            out[j] = queue.front().expect("the queue holds position i").1;
+        }
+    }
+}
+
 /// Median of `v` (using `buf` as scratch, no allocation once `buf` has capacity).
 fn median_of(v: &[f64], buf: &mut Vec<(f64, f64)>) -> f64 {
     buf.clear();
@@ -656,4 +881,32 @@ fn weighted_median(v: &mut [(f64, f64)]) -> f64 {
         }
     }
     v.last().map_or(0.0, |p| p.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        #[test]
+        fn sliding_maximum_equals_the_direct_one(
+            src in proptest::collection::vec(-10.0f32..10.0, 1..60),
+            hb in 0usize..40,
+            negative in any::<bool>(),
+        ) {
+            let sign = if negative { -1.0 } else { 1.0 };
+            let n = src.len();
+            let mut out = vec![0.0; n];
+            let mut q = std::collections::VecDeque::new();
+            circular_window_max(&src, sign, hb, &mut out, &mut q);
+            let h = hb.min(n / 2) as i64;
+            for j in 0..n {
+                let direct = (-h..=h)
+                    .map(|d| sign * src[(j as i64 + d).rem_euclid(n as i64) as usize])
+                    .fold(f32::NEG_INFINITY, f32::max);
+                prop_assert_eq!(out[j], direct, "j = {}", j);
+            }
+        }
+    }
 }

@@ -9,6 +9,12 @@
 //! its gradients and the 2×2 normal matrix are computed once, so each iteration costs one
 //! bilinear gather of the patch and a few sums. The previous frame's shift is the start point,
 //! so shake that builds up over frames is followed.
+//!
+//! The frame is smoothed (binomial kernel, σ = 1 px) before it is sampled. In later frames only
+//! the 2×2 pixel blocks the template points land on are smoothed, not the whole region: that
+//! depends on the whole-pixel part of the shift alone, so it is redone only when an iteration
+//! crosses a pixel (at most a few of the 30×30 points' blocks of 6×6 pixels per frame,
+//! against a 5-tap pass over every pixel of the region).
 
 use crate::decode::{Frame, Luma};
 use crate::rig::RadialMark;
@@ -41,6 +47,10 @@ pub(crate) struct ShakeEstimator {
     smooth: Vec<f32>,
     tmp: Vec<f32>,
     raw: Vec<f32>,
+    /// Per template point: the smoothed 2×2 block its bilinear sample reads (top-left,
+    /// top-right, bottom-left, bottom-right) at the whole-pixel shift `blk_at`.
+    blk: Vec<[f32; 4]>,
+    blk_at: Option<[i64; 2]>,
 }
 
 impl ShakeEstimator {
@@ -87,6 +97,8 @@ impl ShakeEstimator {
             smooth: vec![0.0; cells],
             tmp: vec![0.0; cells],
             raw: vec![0.0; cells],
+            blk: vec![[0.0; 4]; n],
+            blk_at: None,
         }
     }
 
@@ -146,7 +158,7 @@ impl ShakeEstimator {
     /// `MIN_CORRELATION` after the photometric fit: the fixed mark is obscured or gone); the
     /// last good shift is then kept for the next frame's start.
     pub fn estimate(&mut self, frame: &Frame) -> Option<[f64; 2]> {
-        self.load(frame);
+        self.blk_at = None;
         let mut d = self.shift;
         let n = self.pts.len() as f64;
         let mut corr = 0.0;
@@ -154,6 +166,11 @@ impl ShakeEstimator {
             // One pass: Σs, Σs·(t − t̄), Σgx·s, Σgy·s. With the photometric fit s ≈ g·t + b,
             // the residual is e = (s − s̄)/g − (t − t̄), so Σg·e needs only these sums and the
             // template's own Σgx, Σgy and Σg·(t − t̄), computed once.
+            let whole = [d[0].floor() as i64, d[1].floor() as i64];
+            if self.blk_at != Some(whole) {
+                self.load_blocks(frame, whole);
+                self.blk_at = Some(whole);
+            }
             let [ss, sst, sgx, sgy, sss] = self.gather_sums(d);
             let s_mean = ss / n;
             let gain = sst / n / self.t_var;
@@ -197,23 +214,13 @@ impl ShakeEstimator {
             Luma::U8(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
             Luma::U16(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
         }
-        // Binomial kernel [1 4 6 4 1]/16 (σ = 1 px), horizontal then vertical; the borders
-        // repeat the edge sample.
-        const K: [f32; 5] = [1.0 / 16.0, 4.0 / 16.0, 6.0 / 16.0, 4.0 / 16.0, 1.0 / 16.0];
+        // Binomial kernel, horizontal then vertical; the borders repeat the edge sample.
         let clampi = |i: i64, n: usize| i.clamp(0, n as i64 - 1) as usize;
         for y in 0..sh {
             let row = &self.raw[y * sw..(y + 1) * sw];
             let out = &mut self.tmp[y * sw..(y + 1) * sw];
-            for x in 0..sw {
-                out[x] = if x >= 2 && x + 2 < sw {
-                    K[0] * (row[x - 2] + row[x + 2])
-                        + K[1] * (row[x - 1] + row[x + 1])
-                        + K[2] * row[x]
-                } else {
-                    (0..5)
-                        .map(|i| K[i] * row[clampi(x as i64 + i as i64 - 2, sw)])
-                        .sum()
-                };
+            for (x, o) in out.iter_mut().enumerate() {
+                *o = hpass(|i| row[clampi(i, sw)], x as i64, sw);
             }
         }
         for y in 0..sh {
@@ -228,24 +235,90 @@ impl ShakeEstimator {
         }
     }
 
-    /// Bilinear samples of the smoothed region at every template point moved by `d`, reduced
-    /// to the four sums the update needs.
-    fn gather_sums(&self, d: [f64; 2]) -> [f64; 5] {
+    /// Where template point `p` moved by `d` falls in the region: the top-left pixel of its
+    /// bilinear block and the fractions (clamped to the region, as the smoothing is).
+    fn cell(&self, p: [f64; 2], d: [f64; 2]) -> ([usize; 2], [f32; 2]) {
         let [sw, sh] = self.size;
-        let (ox, oy) = (self.origin[0] as f64, self.origin[1] as f64);
-        let v = &self.smooth;
+        let x = (p[0] + d[0] - self.origin[0] as f64).clamp(0.0, (sw - 1) as f64);
+        let y = (p[1] + d[1] - self.origin[1] as f64).clamp(0.0, (sh - 1) as f64);
+        let x0 = (x as usize).min(sw - 2);
+        let y0 = (y as usize).min(sh - 2);
+        ([x0, y0], [(x - x0 as f64) as f32, (y - y0 as f64) as f32])
+    }
+
+    /// Smooths, for every template point at the whole-pixel shift `whole`, the 2×2 block its
+    /// bilinear sample reads, straight from the frame. Gives the same values as smoothing the
+    /// whole region (`load`) and reading the block from it.
+    fn load_blocks(&mut self, frame: &Frame, whole: [i64; 2]) {
+        let scale = 1.0 / frame.max_value();
+        match &frame.luma {
+            Luma::U8(v) => self.blocks_t(v, frame.width as usize, scale, whole),
+            Luma::U16(v) => self.blocks_t(v, frame.width as usize, scale, whole),
+        }
+    }
+
+    fn blocks_t<T: Copy + Into<f32>>(&mut self, v: &[T], fw: usize, scale: f32, whole: [i64; 2]) {
+        let [sw, sh] = self.size;
+        let (ox, oy) = (self.origin[0], self.origin[1]);
+        let d = [whole[0] as f64, whole[1] as f64];
+        let clampi = |i: i64, n: usize| i.clamp(0, n as i64 - 1) as usize;
+        // The region's pixel (x, y), scaled, with the region's edge repeated.
+        let raw = |x: i64, y: i64| v[(oy + clampi(y, sh)) * fw + ox + clampi(x, sw)].into() * scale;
+        for i in 0..self.pts.len() {
+            let ([x0, y0], _) = self.cell(self.pts[i], d);
+            if x0 >= 2 && x0 + 3 < sw && y0 >= 2 && y0 + 3 < sh {
+                // Inside the region: the same arithmetic as below, without the edge clamps.
+                let at = |x: usize, y: usize| v[(oy + y) * fw + ox + x].into() * scale;
+                let mut h = [[0.0f32; 2]; 6];
+                for (r, row) in h.iter_mut().enumerate() {
+                    let y = y0 - 2 + r;
+                    let p: [f32; 6] = std::array::from_fn(|c| at(x0 - 2 + c, y));
+                    for (c, out) in row.iter_mut().enumerate() {
+                        *out = K[0] * (p[c] + p[c + 4])
+                            + K[1] * (p[c + 1] + p[c + 3])
+                            + K[2] * p[c + 2];
+                    }
+                }
+                let vpass = |r: usize, c: usize| {
+                    K[0] * (h[r][c] + h[r + 4][c])
+                        + K[1] * (h[r + 1][c] + h[r + 3][c])
+                        + K[2] * h[r + 2][c]
+                };
+                self.blk[i] = [vpass(0, 0), vpass(0, 1), vpass(1, 0), vpass(1, 1)];
+                continue;
+            }
+            let (x0, y0) = (x0 as i64, y0 as i64);
+            // Horizontal pass on the 6 rows the vertical pass needs, for the block's 2 columns.
+            let mut h = [[0.0f32; 2]; 6];
+            for (r, row) in h.iter_mut().enumerate() {
+                let y = y0 - 2 + r as i64;
+                for (c, out) in row.iter_mut().enumerate() {
+                    *out = hpass(|x| raw(x, y), x0 + c as i64, sw);
+                }
+            }
+            let mut b = [0.0f32; 4];
+            for (r, pair) in [[0usize, 1], [2, 3]].into_iter().enumerate() {
+                let y = y0 + r as i64;
+                for (c, &slot) in pair.iter().enumerate() {
+                    // The vertical pass of `load`, row indices clamped to the region.
+                    let t = |dy: i64| h[(clampi(y + dy, sh) as i64 - (y0 - 2)) as usize][c];
+                    b[slot] = K[0] * (t(-2) + t(2)) + K[1] * (t(-1) + t(1)) + K[2] * t(0);
+                }
+            }
+            self.blk[i] = b;
+        }
+    }
+
+    /// Bilinear samples of the smoothed frame at every template point moved by `d` (read from
+    /// the blocks of `load_blocks`), reduced to the sums the update needs.
+    fn gather_sums(&self, d: [f64; 2]) -> [f64; 5] {
         let t_mean = self.t_mean as f32;
         let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
         for (i, p) in self.pts.iter().enumerate() {
-            let x = (p[0] + d[0] - ox).clamp(0.0, (sw - 1) as f64);
-            let y = (p[1] + d[1] - oy).clamp(0.0, (sh - 1) as f64);
-            let x0 = (x as usize).min(sw - 2);
-            let y0 = (y as usize).min(sh - 2);
-            let fx = (x - x0 as f64) as f32;
-            let fy = (y - y0 as f64) as f32;
-            let j = y0 * sw + x0;
-            let top = v[j] + fx * (v[j + 1] - v[j]);
-            let bot = v[j + sw] + fx * (v[j + sw + 1] - v[j + sw]);
+            let (_, [fx, fy]) = self.cell(*p, d);
+            let v = &self.blk[i];
+            let top = v[0] + fx * (v[1] - v[0]);
+            let bot = v[2] + fx * (v[3] - v[2]);
             let s = top + fy * (bot - top);
             ss += s;
             sst += s * (self.tmpl[i] - t_mean);
@@ -260,6 +333,20 @@ impl ShakeEstimator {
             f64::from(sgy),
             f64::from(sss),
         ]
+    }
+}
+
+/// Binomial smoothing kernel [1 4 6 4 1]/16 (σ = 1 px).
+const K: [f32; 5] = [1.0 / 16.0, 4.0 / 16.0, 6.0 / 16.0, 4.0 / 16.0, 1.0 / 16.0];
+
+/// The horizontal smoothing pass at column `x` of a row of `sw` samples read through `row`
+/// (which repeats the edge sample beyond the row). The same arithmetic inside and at the
+/// borders, so a value does not depend on where it was computed.
+fn hpass(row: impl Fn(i64) -> f32, x: i64, sw: usize) -> f32 {
+    if x >= 2 && x + 2 < sw as i64 {
+        K[0] * (row(x - 2) + row(x + 2)) + K[1] * (row(x - 1) + row(x + 1)) + K[2] * row(x)
+    } else {
+        (0..5).map(|i| K[i as usize] * row(x + i - 2)).sum()
     }
 }
 
@@ -290,6 +377,41 @@ mod tests {
     use super::*;
     use crate::rig::Mark;
     use crate::synth::{Scenario, render_frame, simulate};
+
+    #[test]
+    fn smoothed_blocks_equal_the_smoothed_region() {
+        // Seeded noise frame; the patch sits near the frame's corner so that the region's
+        // edges (where the smoothing repeats the edge sample) are exercised too.
+        use rand::{Rng, SeedableRng};
+        let (w, h) = (96u32, 80u32);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let data: Vec<u8> = (0..w * h).map(|_| rng.random()).collect();
+        let frame = Frame::from_u8(0, w, h, data);
+        let mark = RadialMark {
+            pivot: [20.0, 60.0],
+            radius: [2.0, 15.0],
+            tighten: None,
+            ellipse: None,
+        };
+        let mut est = ShakeEstimator::new(&mark, w, h);
+        est.load(&frame);
+        let sw = est.size[0];
+        for whole in [[0i64, 0], [3, -2], [-9, 7], [-30, 30], [12, -14]] {
+            est.load_blocks(&frame, whole);
+            let d = [whole[0] as f64, whole[1] as f64];
+            for (i, p) in est.pts.iter().enumerate() {
+                let ([x0, y0], _) = est.cell(*p, d);
+                let j = y0 * sw + x0;
+                let want = [
+                    est.smooth[j],
+                    est.smooth[j + 1],
+                    est.smooth[j + sw],
+                    est.smooth[j + sw + 1],
+                ];
+                assert_eq!(est.blk[i], want, "point {i} at shift {whole:?}");
+            }
+        }
+    }
 
     #[test]
     fn recovers_the_rendered_shake() {
