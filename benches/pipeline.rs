@@ -8,6 +8,7 @@
 //! cargo bench --bench pipeline -- --short     # CI: 150 / 1,500 frames
 //! cargo bench --bench pipeline -- --full      # 2,000 / 20,000 frames (long: renders and encodes)
 //! cargo bench --bench pipeline -- --frames N  # N / 10 N frames
+//! cargo bench --bench pipeline -- --full --codecs h264   # one codec only (h264, ffv1)
 //! ```
 //! `tools/bench.sh` wraps these. The scene is the project's invented bench (the `fast-tool`
 //! preset: 2,000 fps capture, about 3,300 blows/min) scaled by 3 to 960×720 and centred in a
@@ -39,6 +40,7 @@ fn main() {
     let mut short_frames = 150u64;
     let mut mode = "short";
     let mut runs = 2usize;
+    let mut only: Option<Vec<String>> = None;
     let mut it = args.iter();
     while let Some(a) = it.next() {
         match a.as_str() {
@@ -49,6 +51,11 @@ fn main() {
                 mode = "custom";
             }
             "--runs" => runs = it.next().and_then(|v| v.parse().ok()).unwrap_or(2).max(1),
+            "--codecs" => {
+                only = it
+                    .next()
+                    .map(|v| v.split(',').map(|c| c.trim().to_lowercase()).collect());
+            }
             _ => {}
         }
     }
@@ -74,6 +81,9 @@ fn main() {
     let mut clips = Vec::new();
     let mut wanted = Vec::new();
     for (name, codec, ext) in codecs {
+        if only.as_ref().is_some_and(|o| !o.iter().any(|c| c == name)) {
+            continue;
+        }
         let long = root.join(format!("fast-720p-{long_frames}-{name}.{ext}"));
         let short = root.join(format!("fast-720p-{short_frames}-{name}.{ext}"));
         wanted.push((short.clone(), short_frames, codec));

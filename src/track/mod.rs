@@ -98,8 +98,8 @@ struct MarkTrack {
     /// Continuous disc-plane angle per frame (roll removed), rad.
     angle: Vec<Option<f64>>,
     confidence: Vec<f32>,
-    /// Per frame and ring: ring angle relative to the frame's angle, rad, and weight.
-    rings: Vec<(f32, f32)>,
+    /// Per frame: the stripe line's direction less the frame's angle, rad (`refine.rs`).
+    dir_offset: Vec<Option<f64>>,
     /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
     side: Option<side::SideTracker>,
 }
@@ -142,7 +142,7 @@ impl Tracker {
                     sign: m.tighten.map_or(1.0, |t| t.sign()),
                     angle: Vec::new(),
                     confidence: Vec::new(),
-                    rings: Vec::new(),
+                    dir_offset: Vec::new(),
                     side: None,
                 }),
                 Mark::Side(m) => Ok(MarkTrack {
@@ -151,7 +151,7 @@ impl Tracker {
                     sign: 1.0,
                     angle: Vec::new(),
                     confidence: Vec::new(),
-                    rings: Vec::new(),
+                    dir_offset: Vec::new(),
                     side: Some(side::SideTracker::new(m, width, height).map_err(|reason| {
                         Error::Mark {
                             mark: role.name().into(),
@@ -239,11 +239,7 @@ impl Tracker {
             if t.side.is_some() {
                 return side::relative(t);
             }
-            let refined = refine::refine(&refine::RingData {
-                angles: &t.angle,
-                rings: &t.rings,
-                radius: &t.radial.grid().radius,
-            });
+            let refined = refine::refine(&t.angle, &t.dir_offset);
             let zero = refined.first().copied().flatten();
             let v = refined
                 .iter()
@@ -305,12 +301,9 @@ fn measure(t: &mut MarkTrack, frame: &Frame, shift: [f64; 2], first: bool) -> Re
     };
     t.angle.push(m.map(|m| m.angle));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
-    match m {
-        Some(_) => t.rings.extend_from_slice(t.radial.rings()),
-        None => t
-            .rings
-            .extend(std::iter::repeat_n((0.0, 0.0), t.radial.grid().rings)),
-    }
+    t.dir_offset.push(m.and_then(|m| {
+        refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)
+    }));
     Ok(m.map(|m| m.angle))
 }
 

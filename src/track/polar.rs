@@ -19,6 +19,8 @@ const BIN_SPACING_PX: f64 = 0.75;
 /// Bounds on the number of angular samples.
 const MIN_BINS: usize = 180;
 const MAX_BINS: usize = 4096;
+/// Samples ahead whose pixels are prefetched.
+const PREFETCH_AHEAD: usize = 32;
 /// Bounds on the number of rings (rings are 1 px apart until the cap is reached).
 const MIN_RINGS: usize = 2;
 const MAX_RINGS: usize = 32;
@@ -273,7 +275,20 @@ impl PolarGrid {
                 * scale
         };
         if shift == [0.0, 0.0] {
-            for ((o, &i), wt) in out.iter_mut().zip(idx).zip(wts) {
+            for (s, ((o, &i), wt)) in out.iter_mut().zip(idx).zip(wts).enumerate() {
+                #[cfg(target_arch = "x86_64")]
+                if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
+                    let a = ahead as usize;
+                    if a + w + 1 < d.len() {
+                        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
+                        let p = d.as_ptr();
+                        // SAFETY: prefetching is only a hint and never faults.
+                        unsafe {
+                            _mm_prefetch::<_MM_HINT_T0>(p.add(a).cast());
+                            _mm_prefetch::<_MM_HINT_T0>(p.add(a + w).cast());
+                        }
+                    }
+                }
                 *o = gather(i, wt);
             }
         } else {
@@ -289,7 +304,21 @@ impl PolarGrid {
             let (ix, fxs) = lim(shift[0], self.bbox[0], self.bbox[1], self.width);
             let (iy, fys) = lim(shift[1], self.bbox[2], self.bbox[3], self.height);
             let base = iy * w as isize + ix;
-            for ((o, &i), f) in out.iter_mut().zip(idx).zip(frac) {
+            for (s, ((o, &i), f)) in out.iter_mut().zip(idx).zip(frac).enumerate() {
+                #[cfg(target_arch = "x86_64")]
+                if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
+                    let a = (ahead as isize + base) as usize;
+                    if a + w + 1 < d.len() {
+                        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
+                        let p = d.as_ptr();
+                        // SAFETY: prefetching is only a hint and never faults; the addresses are
+                        // inside `d` anyway.
+                        unsafe {
+                            _mm_prefetch::<_MM_HINT_T0>(p.add(a).cast());
+                            _mm_prefetch::<_MM_HINT_T0>(p.add(a + w).cast());
+                        }
+                    }
+                }
                 let mut i = (i as isize + base) as usize;
                 let mut fx = f[0] + fxs;
                 if fx >= 1.0 {

@@ -59,9 +59,9 @@ const MIN_INLIER_FRACTION: f64 = 0.4;
 const PRIOR_SPAN_RAD: f64 = PI / 2.0;
 const PRIOR_WEIGHT: f64 = 0.3;
 /// Rings used by the coarse search at most.
-const COARSE_RINGS: usize = 8;
+const COARSE_RINGS: usize = 6;
 /// Coarse bins per stripe half-width on the outermost coarse ring, at least.
-const COARSE_BINS_PER_HALF_WIDTH: f64 = 2.0;
+const COARSE_BINS_PER_HALF_WIDTH: f64 = 1.5;
 /// Fewest coarse bins around the circle.
 const MIN_COARSE_BINS: usize = 90;
 /// Tukey biweight tuning constant (95 % efficiency at the normal distribution).

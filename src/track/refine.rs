@@ -19,12 +19,12 @@
 
 use super::unwrap::wrap_pi;
 
-/// Per-frame ring data of one mark: `rings[i*k + j]` is ring j's stripe angle relative to
-/// frame i's measured angle (rad) and its weight.
-pub(crate) struct RingData<'a> {
-    pub angles: &'a [Option<f64>],
-    pub rings: &'a [(f32, f32)],
-    pub radius: &'a [f64],
+/// What the refinement needs from one frame, computed as the frame is measured so that no
+/// per-ring data is kept for the clip: the direction of the straight line through the ring
+/// crossings less the measured angle `th` (rad, wrapped to ±π), or None when the line is not
+/// determined. `rings[j]` is ring j's stripe angle relative to `th` (rad) and its weight.
+pub(crate) fn direction_offset(th: f64, rings: &[(f32, f32)], radius: &[f64]) -> Option<f64> {
+    line_direction(th, rings, radius).map(|dir| wrap_pi(dir - th))
 }
 
 /// A correction that changes relative angles by less than this over the clip (0.1°) is not
@@ -41,19 +41,16 @@ const MIN_FRAMES: usize = 8;
 /// standard deviations are left out of the final fit.
 const OUTLIER_SIGMAS: f64 = 4.0;
 
-/// Refined angles, same length as the input.
-pub(crate) fn refine(d: &RingData<'_>) -> Vec<Option<f64>> {
-    let k = d.radius.len();
+/// Refined angles, same length as `angles`; `offsets[i]` is frame i's [`direction_offset`].
+pub(crate) fn refine(angles: &[Option<f64>], offsets: &[Option<f64>]) -> Vec<Option<f64>> {
     // (θ_i, direction − θ_i) for every frame with a usable line fit.
-    let mut pts: Vec<(f64, f64)> = Vec::new();
-    for (i, th) in d.angles.iter().enumerate() {
-        let Some(th) = *th else { continue };
-        if let Some(dir) = line_direction(th, &d.rings[i * k..(i + 1) * k], d.radius) {
-            pts.push((th, wrap_pi(dir - th)));
-        }
-    }
+    let pts: Vec<(f64, f64)> = angles
+        .iter()
+        .zip(offsets)
+        .filter_map(|(th, y)| Some(((*th)?, (*y)?)))
+        .collect();
     let Some(mut coef) = fit_curve(&pts, None) else {
-        return d.angles.to_vec();
+        return angles.to_vec();
     };
     // One robust pass: drop frames far from the first fit, refit.
     let resid: Vec<f64> = pts
@@ -69,15 +66,13 @@ pub(crate) fn refine(d: &RingData<'_>) -> Vec<Option<f64>> {
         coef = c;
     }
     let corr = |t: f64| coef[1] * t.sin() + coef[2] * t.cos();
-    let (lo, hi) = d
-        .angles
+    let (lo, hi) = angles
         .iter()
         .flatten()
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| {
             (lo.min(corr(t)), hi.max(corr(t)))
         });
-    let mut degs: Vec<i64> = d
-        .angles
+    let mut degs: Vec<i64> = angles
         .iter()
         .flatten()
         .map(|t| t.to_degrees().floor() as i64)
@@ -85,9 +80,9 @@ pub(crate) fn refine(d: &RingData<'_>) -> Vec<Option<f64>> {
     degs.sort_unstable();
     degs.dedup();
     if hi - lo < MIN_CORRECTION_RAD || degs.len() < MIN_DISTINCT_DEG {
-        return d.angles.to_vec();
+        return angles.to_vec();
     }
-    d.angles.iter().map(|a| a.map(|t| t + corr(t))).collect()
+    angles.iter().map(|a| a.map(|t| t + corr(t))).collect()
 }
 
 fn eval(c: [f64; 3], t: f64) -> f64 {
@@ -186,11 +181,16 @@ fn solve3(a: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
 mod tests {
     use super::*;
 
-    /// Ring data for a straight stripe through `pivot` (relative to the assumed pivot at the
-    /// origin), missing it by `miss` px, turned to each of `angles`.
-    fn rings_for(pivot: [f64; 2], miss: f64, angles: &[f64], radius: &[f64]) -> RingData<'static> {
+    /// Measured angles and direction offsets for a straight stripe through `pivot` (relative
+    /// to the assumed pivot at the origin), missing it by `miss` px, turned to each of `angles`.
+    fn rings_for(
+        pivot: [f64; 2],
+        miss: f64,
+        angles: &[f64],
+        radius: &[f64],
+    ) -> (Vec<Option<f64>>, Vec<Option<f64>>) {
         let mut meas = Vec::new();
-        let mut rings = Vec::new();
+        let mut offsets = Vec::new();
         for &a in angles {
             let u = [a.cos(), a.sin()];
             let n = [-u[1], u[0]];
@@ -205,15 +205,13 @@ mod tests {
             }
             let mean = crossing.iter().sum::<f64>() / crossing.len() as f64;
             meas.push(Some(mean));
-            for x in crossing {
-                rings.push(((x - mean) as f32, 1.0f32));
-            }
+            let rings: Vec<(f32, f32)> = crossing
+                .iter()
+                .map(|x| ((x - mean) as f32, 1.0f32))
+                .collect();
+            offsets.push(direction_offset(mean, &rings, radius));
         }
-        RingData {
-            angles: Box::leak(meas.into_boxed_slice()),
-            rings: Box::leak(rings.into_boxed_slice()),
-            radius: Box::leak(radius.to_vec().into_boxed_slice()),
-        }
+        (meas, offsets)
     }
 
     #[test]
@@ -222,9 +220,9 @@ mod tests {
         let angles: Vec<f64> = (0..50)
             .map(|i| (-72.0 + 1.0 * i as f64).to_radians())
             .collect();
-        let d = rings_for([0.8, -0.6], 0.0, &angles, &radius);
-        let out = refine(&d);
-        let raw_err = (d.angles[49].unwrap() - d.angles[0].unwrap()) - (angles[49] - angles[0]);
+        let (meas, offsets) = rings_for([0.8, -0.6], 0.0, &angles, &radius);
+        let out = refine(&meas, &offsets);
+        let raw_err = (meas[49].unwrap() - meas[0].unwrap()) - (angles[49] - angles[0]);
         assert!(raw_err.abs().to_degrees() > 0.3, "{}", raw_err.to_degrees());
         for (i, a) in angles.iter().enumerate() {
             let err = (out[i].unwrap() - out[0].unwrap()) - (a - angles[0]);
@@ -242,8 +240,8 @@ mod tests {
         let angles: Vec<f64> = (0..50)
             .map(|i| (10.0 + 1.5 * i as f64).to_radians())
             .collect();
-        let d = rings_for([0.0, 0.0], 2.5, &angles, &radius);
-        let out = refine(&d);
+        let (meas, offsets) = rings_for([0.0, 0.0], 2.5, &angles, &radius);
+        let out = refine(&meas, &offsets);
         for (i, a) in angles.iter().enumerate() {
             let err = (out[i].unwrap() - out[0].unwrap()) - (a - angles[0]);
             assert!(err.abs().to_degrees() < 0.01);

@@ -5,8 +5,12 @@
 //! "Lucas-Kanade 20 Years On: A Unifying Framework", IJCV 56 (2004) 221–255), for a pure
 //! translation, with a gain and offset fitted each iteration so lighting flicker does not read
 //! as motion. The template is the square patch around the fixed mark (its stripe, the stripe's
-//! ends and the disc around it) in the first frame, subsampled to at most `MAX_POINTS` pixels;
-//! its gradients and the 2×2 normal matrix are computed once, so each iteration costs one
+//! ends and the disc around it) in the first frame, reduced to its `MAX_POINTS` most
+//! informative pixels: the strongest gradients, taken evenly over `ORIENTATION_BINS` edge
+//! directions so that every direction of motion stays constrained (flat pixels add nothing to
+//! the normal matrix but noise; keeping the high-gradient pixels is common practice in direct
+//! image registration). Its gradients and the 2×2 normal matrix are computed once, so each
+//! iteration costs one
 //! bilinear gather of the patch and a few sums. The previous frame's shift is the start point,
 //! so shake that builds up over frames is followed.
 //!
@@ -20,7 +24,9 @@ use crate::decode::{Frame, Luma};
 use crate::rig::RadialMark;
 
 /// Largest number of template pixels used.
-const MAX_POINTS: usize = 1024;
+const MAX_POINTS: usize = 256;
+/// Edge-direction classes the template pixels are spread over (over 180°).
+const ORIENTATION_BINS: usize = 8;
 /// Iterations per frame at most.
 const MAX_ITER: usize = 8;
 /// Below this correlation with the first frame's patch the registration is not trusted.
@@ -66,11 +72,10 @@ impl ShakeEstimator {
         let y1 = ((mark.pivot[1] + half).ceil() as i64)
             .min(h as i64 - 2)
             .max(1) as usize;
-        let count = (x1.saturating_sub(x0) + 1) * (y1.saturating_sub(y0) + 1);
-        let stride = ((count as f64 / MAX_POINTS as f64).sqrt().ceil() as usize).max(1);
+        // Every pixel of the patch is a candidate; `init` keeps the most informative ones.
         let mut pts = Vec::new();
-        for y in (y0..=y1).step_by(stride) {
-            for x in (x0..=x1).step_by(stride) {
+        for y in y0..=y1 {
+            for x in x0..=x1 {
                 pts.push([x as f64, y as f64]);
             }
         }
@@ -109,13 +114,48 @@ impl ShakeEstimator {
         let (ox, oy, sw) = (self.origin[0], self.origin[1], self.size[0]);
         let sm = &self.smooth;
         let px = |x: usize, y: usize| sm[(y - oy) * sw + (x - ox)];
+        let grad = |p: &[f64; 2]| {
+            let (x, y) = (p[0] as usize, p[1] as usize);
+            (
+                0.5 * (px(x + 1, y) - px(x - 1, y)),
+                0.5 * (px(x, y + 1) - px(x, y - 1)),
+            )
+        };
+        if self.pts.len() > MAX_POINTS {
+            // Strongest gradients per edge direction, then the strongest of the rest.
+            let mut by_bin: Vec<Vec<(f32, usize)>> = vec![Vec::new(); ORIENTATION_BINS];
+            for (i, p) in self.pts.iter().enumerate() {
+                let (gx, gy) = grad(p);
+                let dir = gy.atan2(gx).rem_euclid(std::f32::consts::PI);
+                let b = ((dir / std::f32::consts::PI * ORIENTATION_BINS as f32) as usize)
+                    .min(ORIENTATION_BINS - 1);
+                by_bin[b].push((gx * gx + gy * gy, i));
+            }
+            let mut keep = Vec::with_capacity(MAX_POINTS);
+            let mut rest = Vec::new();
+            for mut bin in by_bin {
+                bin.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+                let quota = (MAX_POINTS / ORIENTATION_BINS).min(bin.len());
+                keep.extend(bin[..quota].iter().map(|c| c.1));
+                rest.extend_from_slice(&bin[quota..]);
+            }
+            rest.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+            keep.extend(rest.iter().take(MAX_POINTS - keep.len()).map(|c| c.1));
+            // Row-major order, for memory locality in every later frame.
+            keep.sort_unstable();
+            self.pts = keep.iter().map(|&i| self.pts[i]).collect();
+            let n = self.pts.len();
+            for v in [&mut self.tmpl, &mut self.gx, &mut self.gy] {
+                v.truncate(n);
+            }
+            self.blk.truncate(n);
+        }
         let (mut sxx, mut sxy, mut syy) = (0.0f64, 0.0f64, 0.0f64);
         let mut sum = 0.0f64;
         for (i, p) in self.pts.iter().enumerate() {
             let (x, y) = (p[0] as usize, p[1] as usize);
             self.tmpl[i] = px(x, y);
-            let gx = 0.5 * (px(x + 1, y) - px(x - 1, y));
-            let gy = 0.5 * (px(x, y + 1) - px(x, y - 1));
+            let (gx, gy) = grad(p);
             self.gx[i] = gx;
             self.gy[i] = gy;
             sxx += f64::from(gx * gx);

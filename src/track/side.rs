@@ -350,8 +350,7 @@ pub(super) fn measure(
     };
     t.angle.push(m.map(|m| m.0));
     t.confidence.push(m.map_or(0.0, |m| m.1));
-    t.rings
-        .extend(std::iter::repeat_n((0.0, 0.0), t.radial.grid().rings));
+    t.dir_offset.push(None);
     Ok(m.map(|m| m.0))
 }
 
