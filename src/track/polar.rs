@@ -92,11 +92,13 @@ impl PolarGrid {
         height: usize,
     ) -> PolarGrid {
         let rings = radius.len();
+        let dirs: Vec<(f64, f64)> = (0..bins)
+            .map(|j| (2.0 * PI * j as f64 / bins as f64).sin_cos())
+            .collect();
         let mut offset = Vec::with_capacity(rings * bins);
         for &r in &radius {
-            for j in 0..bins {
-                let a = 2.0 * PI * j as f64 / bins as f64;
-                let (u, v) = (r * a.cos(), r * a.sin());
+            for &(sin, cos) in &dirs {
+                let (u, v) = (r * cos, r * sin);
                 offset.push([
                     (map[0][0] * u + map[0][1] * v) as f32,
                     (map[1][0] * u + map[1][1] * v) as f32,

@@ -50,6 +50,8 @@ pub(crate) struct SideTracker {
     vel: f64,
     /// True while no stripe is measured (the next sighting is searched for over the range).
     lost: bool,
+    /// The profile buffer, reused every frame.
+    prof: Vec<f32>,
 }
 
 impl SideTracker {
@@ -110,11 +112,12 @@ impl SideTracker {
             last: None,
             vel: 0.0,
             lost: false,
+            prof: Vec::new(),
         })
     }
 
-    /// The mean luma across the bar at each profile angle.
-    fn profile(&self, frame: &Frame, shift: [f64; 2]) -> Vec<f32> {
+    /// The mean luma across the bar at each profile angle, into `out`.
+    fn profile(&self, frame: &Frame, shift: [f64; 2], out: &mut Vec<f32>) {
         let (w, h) = (frame.width, frame.height);
         let at = |x: f64, y: f64| -> f32 {
             let x = x.clamp(0.0, f64::from(w) - 1.0);
@@ -126,16 +129,14 @@ impl SideTracker {
             let b = frame.value(x0, y1) * (1.0 - fx) + frame.value(x1, y1) * fx;
             a * (1.0 - fy) + b * fy
         };
-        self.points
-            .iter()
-            .map(|pts| {
-                let s: f32 = pts
-                    .iter()
-                    .map(|q| at(q[0] + shift[0], q[1] + shift[1]))
-                    .sum();
-                s / pts.len() as f32
-            })
-            .collect()
+        out.clear();
+        out.extend(self.points.iter().map(|pts| {
+            let s: f32 = pts
+                .iter()
+                .map(|q| at(q[0] + shift[0], q[1] + shift[1]))
+                .sum();
+            s / pts.len() as f32
+        }));
     }
 
     /// Stripe centroid near `guess` (rad) in the profile, within `window` (rad); None when no
@@ -190,7 +191,8 @@ impl SideTracker {
 
     /// First frame: finds the stripe nearest to facing the camera, its polarity and width.
     pub(crate) fn init(&mut self, frame: &Frame, shift: [f64; 2]) -> Result<f64, String> {
-        let prof = self.profile(frame, shift);
+        let mut prof = Vec::new();
+        self.profile(frame, shift, &mut prof);
         // Polarity: does the most contrasting narrow feature stand above or below its
         // surroundings? Compare the largest two-sided ridge of either sign.
         let d = (4.0 / STEP_DEG) as usize * 2;
@@ -242,9 +244,16 @@ impl SideTracker {
     /// The bar angle (continuous, rad) in a later frame, or None when no stripe can be
     /// measured reliably.
     pub(crate) fn measure(&mut self, frame: &Frame, shift: [f64; 2]) -> Option<(f64, f32)> {
-        let prof = self.profile(frame, shift);
+        let mut prof = std::mem::take(&mut self.prof);
+        self.profile(frame, shift, &mut prof);
+        let out = self.measure_profile(&prof);
+        self.prof = prof;
+        out
+    }
+
+    fn measure_profile(&mut self, prof: &[f32]) -> Option<(f64, f32)> {
         if self.lost {
-            return self.reacquire(&prof);
+            return self.reacquire(prof);
         }
         // Where the bar should be now if it kept turning at its last rate.
         let last = self.last? + self.vel;
@@ -258,7 +267,7 @@ impl SideTracker {
             if front.abs() > MAX_FACING_DEG.to_radians() + window {
                 continue;
             }
-            if let Some((c, pc)) = self.centroid(&prof, front, window) {
+            if let Some((c, pc)) = self.centroid(prof, front, window) {
                 let w = c.cos();
                 // Back to a continuous bar angle near the last one.
                 let th = last + (c - front);
