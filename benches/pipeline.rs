@@ -2,7 +2,8 @@
 //! run, it measures decoding alone through twistmark's own reader (and `ffmpeg -f null` as an
 //! outside reference when the ffmpeg command is installed), the full `twistmark analyze`
 //! (release binary), and the peak RSS of `analyze` on a short clip and one ten times longer.
-//! It prints the ratios against the targets; it never fails on a timing.
+//! It prints the ratios against the targets, and the tracker's own cost per frame (frames
+//! decoded into memory first); it never fails on a timing.
 //!
 //! ```text
 //! cargo bench --bench pipeline -- --short     # CI: 150 / 1,500 frames
@@ -123,6 +124,14 @@ fn main() {
             rss_short_kb: rss_short,
             rss_long_kb: rss_long,
         });
+    }
+    if let Some((_, _, long)) = clips.first() {
+        let us = tracker_alone(long, &rig_path, 300);
+        println!(
+            "tracker alone ({}, first 300 frames decoded into memory, fastest of 5): {us:.0} us/frame",
+            long.file_name()
+                .map_or_else(String::new, |n| n.to_string_lossy().into_owned())
+        );
     }
     println!("load after: {}", load());
     println!();
@@ -302,6 +311,37 @@ fn ensure_clips(sc: &Scenario, clips: &[(PathBuf, u64, Codec)]) {
         std::fs::rename(tmp, p).expect("rename clip");
     }
     eprintln!("  done in {:.1} s", t.elapsed().as_secs_f64());
+}
+
+/// The tracker's own cost, µs per frame: `frames` frames of `clip` decoded into memory first,
+/// then pushed through a fresh `Tracker` (the first frame, which learns the stripes, is not
+/// timed); the fastest of five passes.
+fn tracker_alone(clip: &Path, rig_path: &Path, frames: usize) -> f64 {
+    let rig = twistmark::Rig::from_path(rig_path).expect("read rig");
+    let mut src = decode::open(clip).expect("open clip");
+    let mut decoded = Vec::new();
+    while decoded.len() < frames {
+        let mut f = Frame::empty();
+        if !src.read_into(&mut f).expect("decode") {
+            break;
+        }
+        decoded.push(f);
+    }
+    let Some((first, rest)) = decoded.split_first() else {
+        return f64::NAN;
+    };
+    let mut best = f64::INFINITY;
+    for _ in 0..5 {
+        let mut t = twistmark::track::Tracker::new(&rig, rig_path, first.width, first.height)
+            .expect("tracker");
+        t.push(first).expect("first frame");
+        let start = Instant::now();
+        for f in rest {
+            t.push(f).expect("track");
+        }
+        best = best.min(start.elapsed().as_secs_f64() / rest.len().max(1) as f64);
+    }
+    best * 1e6
 }
 
 /// Decodes every frame with twistmark's own reader; returns (seconds, frames).

@@ -199,9 +199,11 @@ impl PolarGrid {
         );
     }
 
-    /// Samples bins `from ..= to` of ring `k` (continuous bin numbers, wrapped around the
-    /// ring; at most the whole ring) into their places in `out` (laid out as for
-    /// [`Self::sample`]). Returns the span actually sampled, `(from, to)` unwrapped.
+    /// Samples every `stride`-th bin from `from` to `to` of ring `k` (continuous bin numbers,
+    /// wrapped around the ring) into their places in `out` (laid out as for [`Self::sample`]).
+    /// A span of a whole ring or more samples the whole ring. Returns the span sampled,
+    /// `(from, to)` unwrapped, or an unbounded span for a whole ring.
+    #[allow(clippy::too_many_arguments)]
     pub fn sample_span(
         &self,
         frame: &Frame,
@@ -209,12 +211,22 @@ impl PolarGrid {
         k: usize,
         from: i64,
         to: i64,
+        stride: usize,
         out: &mut [f32],
     ) -> (i64, i64) {
         let n = self.bins as i64;
         if to - from + 1 >= n {
             self.sample_ring(frame, shift, k, out);
             return (i64::MIN / 4, i64::MAX / 4);
+        }
+        if stride > 1 {
+            let scale = 1.0 / frame.max_value();
+            let span = (k, from, to, stride);
+            match &frame.luma {
+                Luma::U8(d) => self.sample_strided(d, scale, shift, span, out),
+                Luma::U16(d) => self.sample_strided(d, scale, shift, span, out),
+            }
+            return (from, to);
         }
         let base = k * self.bins;
         let a = from.rem_euclid(n) as usize;
@@ -253,6 +265,56 @@ impl PolarGrid {
         }
     }
 
+    /// Samples bins `from, from + stride, … ≤ to` (unwrapped) of ring `k` into their places
+    /// in `out`; `span` is `(k, from, to, stride)`.
+    fn sample_strided<T: Copy + Into<f32>>(
+        &self,
+        d: &[T],
+        scale: f32,
+        shift: [f64; 2],
+        span: (usize, i64, i64, usize),
+        out: &mut [f32],
+    ) {
+        let (k, from, to, stride) = span;
+        let (w, n) = (self.width, self.bins as i64);
+        let flat = |j: i64| k * self.bins + j.rem_euclid(n) as usize;
+        let unshifted = shift == [0.0, 0.0];
+        let (base, fxs, fys) = if unshifted {
+            (0, 0.0, 0.0)
+        } else {
+            self.shift_parts(shift)
+        };
+        let mut j = from;
+        while j <= to {
+            let i = flat(j);
+            out[i] = if unshifted {
+                let (p, wt) = (self.idx[i] as usize, &self.wts[i]);
+                (wt[0] * d[p].into()
+                    + wt[1] * d[p + 1].into()
+                    + wt[2] * d[p + w].into()
+                    + wt[3] * d[p + w + 1].into())
+                    * scale
+            } else {
+                shifted_tap(d, w, self.idx[i], self.frac[i], base, fxs, fys) * scale
+            };
+            j += stride as i64;
+        }
+    }
+
+    /// A shift as a whole-pixel index offset and the fractions left over, limited so that the
+    /// grid stays inside the frame.
+    fn shift_parts(&self, shift: [f64; 2]) -> (isize, f32, f32) {
+        let lim = |v: f64, lo: usize, hi: usize, n: usize| -> (isize, f32) {
+            let (min, max) = (-(lo as f64), (n as f64 - 3.0 - hi as f64).max(-(lo as f64)));
+            let v = v.clamp(min, max);
+            let i = v.floor();
+            (i as isize, (v - i) as f32)
+        };
+        let (ix, fxs) = lim(shift[0], self.bbox[0], self.bbox[1], self.width);
+        let (iy, fys) = lim(shift[1], self.bbox[2], self.bbox[3], self.height);
+        (iy * self.width as isize + ix, fxs, fys)
+    }
+
     fn sample_t<T: Copy + Into<f32>>(
         &self,
         d: &[T],
@@ -278,66 +340,66 @@ impl PolarGrid {
         };
         if shift == [0.0, 0.0] {
             for (s, ((o, &i), wt)) in out.iter_mut().zip(idx).zip(wts).enumerate() {
-                #[cfg(target_arch = "x86_64")]
                 if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
-                    let a = ahead as usize;
-                    if a + w + 1 < d.len() {
-                        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
-                        let p = d.as_ptr();
-                        // SAFETY: prefetching is only a hint and never faults.
-                        unsafe {
-                            _mm_prefetch::<_MM_HINT_T0>(p.add(a).cast());
-                            _mm_prefetch::<_MM_HINT_T0>(p.add(a + w).cast());
-                        }
-                    }
+                    prefetch_taps(d, ahead as usize, w);
                 }
                 *o = gather(i, wt);
             }
         } else {
-            // Shift = whole pixels + a fraction; each sample's own fraction plus the shift's
-            // fraction carries into the next pixel when it passes 1. The whole-pixel part is
-            // limited so the grid stays inside the frame.
-            let lim = |v: f64, lo: usize, hi: usize, n: usize| -> (isize, f32) {
-                let (min, max) = (-(lo as f64), (n as f64 - 3.0 - hi as f64).max(-(lo as f64)));
-                let v = v.clamp(min, max);
-                let i = v.floor();
-                (i as isize, (v - i) as f32)
-            };
-            let (ix, fxs) = lim(shift[0], self.bbox[0], self.bbox[1], self.width);
-            let (iy, fys) = lim(shift[1], self.bbox[2], self.bbox[3], self.height);
-            let base = iy * w as isize + ix;
+            let (base, fxs, fys) = self.shift_parts(shift);
             for (s, ((o, &i), f)) in out.iter_mut().zip(idx).zip(frac).enumerate() {
-                #[cfg(target_arch = "x86_64")]
                 if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
-                    let a = (ahead as isize + base) as usize;
-                    if a + w + 1 < d.len() {
-                        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
-                        let p = d.as_ptr();
-                        // SAFETY: prefetching is only a hint and never faults; the addresses are
-                        // inside `d` anyway.
-                        unsafe {
-                            _mm_prefetch::<_MM_HINT_T0>(p.add(a).cast());
-                            _mm_prefetch::<_MM_HINT_T0>(p.add(a + w).cast());
-                        }
-                    }
+                    prefetch_taps(d, (ahead as isize + base) as usize, w);
                 }
-                let mut i = (i as isize + base) as usize;
-                let mut fx = f[0] + fxs;
-                if fx >= 1.0 {
-                    fx -= 1.0;
-                    i += 1;
-                }
-                let mut fy = f[1] + fys;
-                if fy >= 1.0 {
-                    fy -= 1.0;
-                    i += w;
-                }
-                let top = d[i].into() + fx * (d[i + 1].into() - d[i].into());
-                let bot = d[i + w].into() + fx * (d[i + w + 1].into() - d[i + w].into());
-                *o = (top + fy * (bot - top)) * scale;
+                *o = shifted_tap(d, w, i, *f, base, fxs, fys) * scale;
             }
         }
     }
+}
+
+/// Asks the processor to fetch the two pixel rows of the bilinear tap at `at` (top-left
+/// neighbour) ahead of use: sampling round a ring touches a new cache line at almost every
+/// sample, and the frame was just written by the decoding thread. A hint only.
+#[inline(always)]
+fn prefetch_taps<T>(d: &[T], at: usize, w: usize) {
+    #[cfg(target_arch = "x86_64")]
+    if let (Some(a), Some(b)) = (d.get(at), d.get(at + w)) {
+        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
+        // SAFETY: both are valid references into `d`; a prefetch reads and writes nothing.
+        unsafe {
+            _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(a).cast());
+            _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(b).cast());
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (d, at, w);
+}
+
+/// Bilinear sample of the grid point whose unshifted top-left neighbour is `i` (with
+/// fractions `f`), moved by a shift split by [`PolarGrid::shift_parts`]: each sample's own
+/// fraction plus the shift's carries into the next pixel when it passes 1. Unscaled.
+#[inline(always)]
+fn shifted_tap<T: Copy + Into<f32>>(
+    d: &[T],
+    w: usize,
+    i: u32,
+    f: [f32; 2],
+    base: isize,
+    fxs: f32,
+    fys: f32,
+) -> f32 {
+    // Branch-free carries: the fractions vary from sample to sample, so a branch here would
+    // be mispredicted about half the time.
+    let fx = f[0] + fxs;
+    let fy = f[1] + fys;
+    let cx = usize::from(fx >= 1.0);
+    let cy = usize::from(fy >= 1.0);
+    let fx = fx - cx as f32;
+    let fy = fy - cy as f32;
+    let i = (i as isize + base) as usize + cx + cy * w;
+    let top = d[i].into() + fx * (d[i + 1].into() - d[i].into());
+    let bot = d[i + w].into() + fx * (d[i + w + 1].into() - d[i + w].into());
+    top + fy * (bot - top)
 }
 
 /// The disc-to-screen map `M = R(φ)·diag(1, b/a)·R(−φ)` (identity without an ellipse).

@@ -59,11 +59,14 @@ const MIN_INLIER_FRACTION: f64 = 0.4;
 const PRIOR_SPAN_RAD: f64 = PI / 2.0;
 const PRIOR_WEIGHT: f64 = 0.3;
 /// Rings used by the coarse search at most.
-const COARSE_RINGS: usize = 6;
+const COARSE_RINGS: usize = 4;
 /// Coarse bins per stripe half-width on the outermost coarse ring, at least.
 const COARSE_BINS_PER_HALF_WIDTH: f64 = 1.5;
 /// Fewest coarse bins around the circle.
 const MIN_COARSE_BINS: usize = 90;
+/// The fine centre reads every m-th bin of a ring whose bins are closer than this, px of arc
+/// (the grid's bins are equal angles, so an inner ring's are far closer than an outer one's).
+const FINE_SPACING_PX: f64 = 0.75;
 /// Tukey biweight tuning constant (95 % efficiency at the normal distribution).
 const TUKEY_C: f64 = 4.685;
 
@@ -202,6 +205,8 @@ pub(crate) struct RadialTracker {
     sigma_ratio: Vec<f32>,
     /// Built by [`Self::init`].
     coarse: Option<Coarse>,
+    /// Per ring: the fine centre reads every `stride[k]`-th bin.
+    stride: Vec<usize>,
     model: Option<StripeModel>,
     /// Last good continuous angle, its velocity (rad/frame) and frames since it.
     last: Option<f64>,
@@ -222,7 +227,13 @@ impl RadialTracker {
                     .expect("a grid has at least one ring")
             })
             .collect();
+        let stride = grid
+            .radius
+            .iter()
+            .map(|&r| ((FINE_SPACING_PX / (r * grid.step())).floor() as usize).max(1))
+            .collect();
         RadialTracker {
+            stride,
             polar: vec![0.0; k * n],
             mean: vec![0.0; k],
             sigma: vec![0.0; k],
@@ -526,13 +537,21 @@ impl RadialTracker {
             let flank = hw_b.max(3.0);
             let span = match src {
                 Some((frame, shift)) => {
-                    // The window at c0 and a couple of bins either side; `fine_ring` samples
-                    // more if its centre moves further.
+                    // The window at c0 and two samples either side; `fine_ring` samples more if
+                    // its centre moves further.
                     let (h, f) = fine_extent(hw_b, flank, n);
-                    let from = (c0 - h - 2.5).floor() as i64 - f;
-                    let to = (c0 + h + 2.5).ceil() as i64 + f;
-                    self.grid
-                        .sample_span(frame, shift, k, from, to, &mut self.polar)
+                    let lat = Lattice::new(self.stride[k], f);
+                    let from = lat.down(c0 - h - 2.5 * lat.mf) - lat.flank_bins();
+                    let to = lat.up(c0 + h + 2.5 * lat.mf) + lat.flank_bins();
+                    self.grid.sample_span(
+                        frame,
+                        shift,
+                        k,
+                        from,
+                        to,
+                        self.stride[k],
+                        &mut self.polar,
+                    )
                 }
                 _ => WHOLE_RING,
             };
@@ -646,37 +665,58 @@ impl RadialTracker {
         let ni = n as i64;
         let s = f64::from(polarity);
         let (h, f) = fine_extent(hw_b, flank, n);
+        // The bins read are the multiples of m; each stands for m bins, so a sample's weight
+        // is the part of its m bins inside the window c ± h (with m = 1: 1 bin, as in the
+        // module's step 5), and the flanks are as many samples as fill f bins.
+        let lat = Lattice::new(self.stride[k], f);
+        let (m, mf, nf) = (lat.m, lat.mf, lat.nf);
         let limit = (
-            (c0 - 2.0 * h - 0.5).floor() as i64 - f,
-            (c0 + 2.0 * h + 0.5).ceil() as i64 + f,
+            lat.down(c0 - 2.0 * h - 0.5 * mf) - lat.flank_bins(),
+            lat.up(c0 + 2.0 * h + 0.5 * mf) + lat.flank_bins(),
         );
         let mut c = c0;
         let mut amp = 0.0;
         let mut ok = false;
         for _ in 0..8 {
-            let lo = (c - h - 0.5).floor() as i64;
-            let hi = (c + h + 0.5).ceil() as i64;
-            if lo - f < span.0 || hi + f > span.1 {
+            let lo = lat.down(c - h - 0.5 * mf);
+            let hi = lat.up(c + h + 0.5 * mf);
+            let (need_lo, need_hi) = (lo - lat.flank_bins(), hi + lat.flank_bins());
+            if need_lo < span.0 || need_hi > span.1 {
                 let Some((frame, shift)) = src else {
                     ok = false;
                     break;
                 };
-                if lo - f < limit.0 || hi + f > limit.1 {
+                if need_lo < limit.0 || need_hi > limit.1 {
                     ok = false;
                     break;
                 }
-                let want = ((lo - f).min(span.0), (hi + f).max(span.1));
+                let want = (need_lo.min(span.0), need_hi.max(span.1));
+                let stride = self.stride[k];
                 span = if want.1 - want.0 + 1 >= ni {
                     self.grid
-                        .sample_span(frame, shift, k, want.0, want.1, &mut self.polar)
+                        .sample_span(frame, shift, k, want.0, want.1, stride, &mut self.polar)
                 } else {
                     if want.0 < span.0 {
-                        self.grid
-                            .sample_span(frame, shift, k, want.0, span.0 - 1, &mut self.polar);
+                        self.grid.sample_span(
+                            frame,
+                            shift,
+                            k,
+                            want.0,
+                            span.0 - m,
+                            stride,
+                            &mut self.polar,
+                        );
                     }
                     if want.1 > span.1 {
-                        self.grid
-                            .sample_span(frame, shift, k, span.1 + 1, want.1, &mut self.polar);
+                        self.grid.sample_span(
+                            frame,
+                            shift,
+                            k,
+                            span.1 + m,
+                            want.1,
+                            stride,
+                            &mut self.polar,
+                        );
                     }
                     want
                 };
@@ -695,33 +735,34 @@ impl RadialTracker {
                 f64::from(ring[j.clamp(0, ni - 1) as usize])
             };
             let (mut bl, mut br) = (0.0, 0.0);
-            for d in 1..=f {
-                bl += at(lo - d);
-                br += at(hi + d);
+            for d in 1..=nf {
+                bl += at(lo - m * d);
+                br += at(hi + m * d);
             }
-            bl /= f as f64;
-            br /= f as f64;
-            let xl = lo as f64 - (f as f64 + 1.0) / 2.0;
-            let xr = hi as f64 + (f as f64 + 1.0) / 2.0;
+            bl /= nf as f64;
+            br /= nf as f64;
+            let xl = lo as f64 - mf * (nf as f64 + 1.0) / 2.0;
+            let xr = hi as f64 + mf * (nf as f64 + 1.0) / 2.0;
             let slope = (br - bl) / (xr - xl);
             let (mut sw, mut swj) = (0.0, 0.0);
-            for j in lo..=hi {
+            let mut j = lo;
+            while j <= hi {
                 let u = j as f64 - c;
-                let w = (h + 0.5 - u.abs()).clamp(0.0, 1.0);
-                if w <= 0.0 {
-                    continue;
+                let w = ((h + 0.5 * mf - u.abs()) / mf).clamp(0.0, 1.0);
+                if w > 0.0 {
+                    let g = s * (at(j) - (bl + slope * (j as f64 - xl)));
+                    if g > 0.0 {
+                        sw += w * g;
+                        swj += w * g * j as f64;
+                    }
                 }
-                let g = s * (at(j) - (bl + slope * (j as f64 - xl)));
-                if g > 0.0 {
-                    sw += w * g;
-                    swj += w * g * j as f64;
-                }
+                j += m;
             }
             if sw <= 0.0 {
                 ok = false;
                 break;
             }
-            amp = sw / (2.0 * hw_b + 1.0);
+            amp = mf * sw / (2.0 * hw_b + 1.0);
             let next = swj / sw;
             ok = true;
             let done = (next - c).abs() < 1e-3;
@@ -815,6 +856,37 @@ fn box_pass(
     }
 }
 
+/// The bins a fine centre reads on one ring: the multiples of `m`.
+struct Lattice {
+    m: i64,
+    mf: f64,
+    /// Flank samples each side: as many as fill the flank's bins, at least one.
+    nf: i64,
+}
+
+impl Lattice {
+    fn new(stride: usize, flank_bins: i64) -> Lattice {
+        let m = stride.max(1) as i64;
+        Lattice {
+            m,
+            mf: m as f64,
+            nf: ((flank_bins as f64 / m as f64).round() as i64).max(1),
+        }
+    }
+    /// The lattice bin at or below `x`.
+    fn down(&self, x: f64) -> i64 {
+        (x / self.mf).floor() as i64 * self.m
+    }
+    /// The lattice bin at or above `x`.
+    fn up(&self, x: f64) -> i64 {
+        (x / self.mf).ceil() as i64 * self.m
+    }
+    /// Bins the flank samples reach beyond a window's edge.
+    fn flank_bins(&self) -> i64 {
+        self.m * self.nf
+    }
+}
+
 /// A span that covers the whole ring, for [`RadialTracker::fine_ring`].
 const WHOLE_RING: (i64, i64) = (i64::MIN / 4, i64::MAX / 4);
 
@@ -861,12 +933,13 @@ fn circular_window_max(
 fn median_of(v: &[f64], buf: &mut Vec<(f64, f64)>) -> f64 {
     buf.clear();
     buf.extend(v.iter().map(|&x| (x, 1.0)));
-    buf.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
     if buf.is_empty() {
-        0.0
-    } else {
-        buf[buf.len() / 2].0
+        return 0.0;
     }
+    let mid = buf.len() / 2;
+    buf.select_nth_unstable_by(mid, |a, b| a.0.total_cmp(&b.0))
+        .1
+        .0
 }
 
 /// Weighted median of `(value, weight)` pairs (sorts in place).

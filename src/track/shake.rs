@@ -305,6 +305,19 @@ impl ShakeEstimator {
         // The region's pixel (x, y), scaled, with the region's edge repeated.
         let raw = |x: i64, y: i64| v[(oy + clampi(y, sh)) * fw + ox + clampi(x, sw)].into() * scale;
         for i in 0..self.pts.len() {
+            #[cfg(target_arch = "x86_64")]
+            if let Some(&p) = self.pts.get(i + PREFETCH_AHEAD) {
+                // The six rows a later point's block reads (a hint only: it never faults).
+                let ([x, y], _) = self.cell(p, d);
+                let first = (oy + y.saturating_sub(2)) * fw + ox + x.saturating_sub(2);
+                for r in 0..6 {
+                    if let Some(px) = v.get(first + r * fw) {
+                        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
+                        // SAFETY: `px` is a valid reference; prefetching reads nothing.
+                        unsafe { _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(px).cast()) };
+                    }
+                }
+            }
             let ([x0, y0], _) = self.cell(self.pts[i], d);
             if x0 >= 2 && x0 + 3 < sw && y0 >= 2 && y0 + 3 < sh {
                 // Inside the region: the same arithmetic as below, without the edge clamps.
@@ -389,6 +402,9 @@ fn hpass(row: impl Fn(i64) -> f32, x: i64, sw: usize) -> f32 {
         (0..5).map(|i| K[i as usize] * row(x + i - 2)).sum()
     }
 }
+
+/// Template points ahead whose pixel rows are prefetched.
+const PREFETCH_AHEAD: usize = 8;
 
 /// Room around the patch for the shift, px.
 const REGION_MARGIN_PX: usize = 10;
