@@ -16,11 +16,12 @@
 //!    tens of degrees in one frame is still followed.
 //! 4. The half-maximum points of that score give the stripe's centre and its width in this
 //!    frame; a width above the first frame's means motion blur, and the fine windows widen.
-//! 5. Fine centre per ring, on the full grid (every ring, bins about 0.75 px apart), sampled
-//!    only in the window that ring's centroid reads: the centroid of the stripe's excess over a
-//!    straight baseline drawn
-//!    through the two flanks, with a window re-centred on the estimate until it stops moving
-//!    (so the window is symmetric about the answer and truncation does not bias it). This is
+//! 5. Fine centre per ring, on the full grid (every ring; equal angular bins, 0.75 px apart on
+//!    the middle ring, and every m-th bin read on inner rings where they are closer than
+//!    0.75 px), sampled only in the window that ring's centroid reads: the centroid of the
+//!    stripe's excess over a straight baseline drawn through the two flanks, with a window
+//!    re-centred on the estimate until it stops moving (so the window is symmetric about the
+//!    answer and truncation does not bias it). This is
 //!    the brightness-weighted centroid refinement of Crocker & Grier (1996), applied along a
 //!    ring (facts.md §7.3).
 //! 6. The ring centres, less each ring's offset learnt in the first frame, are combined with
