@@ -288,12 +288,7 @@ impl PolarGrid {
         while j <= to {
             let i = flat(j);
             out[i] = if unshifted {
-                let (p, wt) = (self.idx[i] as usize, &self.wts[i]);
-                (wt[0] * d[p].into()
-                    + wt[1] * d[p + 1].into()
-                    + wt[2] * d[p + w].into()
-                    + wt[3] * d[p + w + 1].into())
-                    * scale
+                tap(d, w, self.idx[i], &self.wts[i]) * scale
             } else {
                 shifted_tap(d, w, self.idx[i], self.frac[i], base, fxs, fys) * scale
             };
@@ -330,14 +325,7 @@ impl PolarGrid {
             &self.frac[range],
         );
         assert_eq!(out.len(), idx.len());
-        let gather = |i: u32, wt: &[f32; 4]| {
-            let i = i as usize;
-            (wt[0] * d[i].into()
-                + wt[1] * d[i + 1].into()
-                + wt[2] * d[i + w].into()
-                + wt[3] * d[i + w + 1].into())
-                * scale
-        };
+        let gather = |i: u32, wt: &[f32; 4]| tap(d, w, i, wt) * scale;
         if shift == [0.0, 0.0] {
             for (s, ((o, &i), wt)) in out.iter_mut().zip(idx).zip(wts).enumerate() {
                 if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
@@ -373,6 +361,17 @@ fn prefetch_taps<T>(d: &[T], at: usize, w: usize) {
     }
     #[cfg(not(target_arch = "x86_64"))]
     let _ = (d, at, w);
+}
+
+/// Bilinear sample with the precomputed taps of an unshifted grid point (top-left neighbour
+/// `i`, weights `wt`). Unscaled.
+#[inline(always)]
+fn tap<T: Copy + Into<f32>>(d: &[T], w: usize, i: u32, wt: &[f32; 4]) -> f32 {
+    let i = i as usize;
+    wt[0] * d[i].into()
+        + wt[1] * d[i + 1].into()
+        + wt[2] * d[i + w].into()
+        + wt[3] * d[i + w + 1].into()
 }
 
 /// Bilinear sample of the grid point whose unshifted top-left neighbour is `i` (with
