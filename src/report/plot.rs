@@ -11,6 +11,7 @@
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
+use plotters::chart::MeshStyle;
 use plotters::coord::Shift;
 use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
@@ -284,6 +285,62 @@ where
     Ok(())
 }
 
+/// The house style of a chart's mesh: label and axis fonts, a light grid, no bold grid lines.
+trait HouseStyle {
+    fn house_style(&mut self) -> &mut Self;
+}
+
+impl<X: Ranged, Y: Ranged, DB: DrawingBackend> HouseStyle for MeshStyle<'_, '_, X, Y, DB> {
+    fn house_style(&mut self) -> &mut Self {
+        self.label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .light_line_style(GRID_COLOR)
+            .bold_line_style(GRID_COLOR.mix(0.0))
+    }
+}
+
+/// Draws the legend of every labelled series, in the house style, at `at`.
+fn draw_legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    at: SeriesLabelPosition,
+) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    chart
+        .configure_series_labels()
+        .position(at)
+        .label_font((FONT, 18))
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK.mix(0.4))
+        .draw()?;
+    Ok(())
+}
+
+/// A thin vertical line from `y0` to `y1` at every blow onset time.
+fn onset_lines(
+    onsets: &[f64],
+    y0: f64,
+    y1: f64,
+) -> impl Iterator<Item = PathElement<(f64, f64)>> + '_ {
+    onsets
+        .iter()
+        .map(move |&t| PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1)))
+}
+
+/// The torque caution along the foot of a plot that shows torque.
+fn torque_note<DB: DrawingBackend>(foot: &DrawingArea<DB, Shift>) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    foot.draw_text(
+        TORQUE_NOTE,
+        &TextStyle::from((FONT, 16).into_font()).color(&RGBColor(90, 90, 90)),
+        (18, 4),
+    )?;
+    Ok(())
+}
+
 /// The mesh of a nut-advance-per-blow chart: whole blow numbers on x, degrees on y.
 fn nut_advance_mesh<DB: DrawingBackend>(
     chart: &mut ChartContext<'_, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>,
@@ -304,10 +361,7 @@ where
                 String::new()
             }
         })
-        .label_style((FONT, 18))
-        .axis_desc_style((FONT, 22))
-        .light_line_style(GRID_COLOR)
-        .bold_line_style(GRID_COLOR.mix(0.0))
+        .house_style()
         .draw()?;
     Ok(())
 }
@@ -339,16 +393,11 @@ impl Plot for AnglesPlot<'_> {
             .configure_mesh()
             .x_desc(d.axis.label())
             .y_desc("angle (°, tightening +)")
-            .label_style((FONT, 18))
-            .axis_desc_style((FONT, 22))
-            .light_line_style(GRID_COLOR)
-            .bold_line_style(GRID_COLOR.mix(0.0))
+            .house_style()
             .draw()?;
         if !d.onsets.is_empty() {
             chart
-                .draw_series(d.onsets.iter().map(|&t| {
-                    PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1))
-                }))?
+                .draw_series(onset_lines(&d.onsets, y0, y1))?
                 .label("blow onset")
                 .legend(|(x, y)| {
                     PathElement::new(vec![(x + 10, y - 8), (x + 10, y + 8)], ONSET_COLOR)
@@ -368,13 +417,7 @@ impl Plot for AnglesPlot<'_> {
                 .label(name)
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], style));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
-            .label_font((FONT, 18))
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK.mix(0.4))
-            .draw()?;
+        draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         if d.t.is_empty() {
             note_center(root, "no frames analysed")?;
         } else if d.drive_deg.iter().chain(&d.nut_deg).all(Option::is_none) {
@@ -424,10 +467,7 @@ impl Plot for TwistPlot<'_> {
             .configure_mesh()
             .x_desc(d.axis.label())
             .y_desc("twist = drive − nut (°)")
-            .label_style((FONT, 18))
-            .axis_desc_style((FONT, 22))
-            .light_line_style(GRID_COLOR)
-            .bold_line_style(GRID_COLOR.mix(0.0))
+            .house_style()
             .draw()?;
         if k.is_some() {
             chart
@@ -438,11 +478,7 @@ impl Plot for TwistPlot<'_> {
                 .draw()?;
         }
         if !d.onsets.is_empty() {
-            chart.draw_series(
-                d.onsets.iter().map(|&t| {
-                    PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1))
-                }),
-            )?;
+            chart.draw_series(onset_lines(&d.onsets, y0, y1))?;
         }
         let style = TWIST_COLOR.stroke_width(2);
         chart
@@ -470,19 +506,9 @@ impl Plot for TwistPlot<'_> {
                 .label(format!("rating {r:.0} N·m"))
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
-            .label_font((FONT, 18))
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK.mix(0.4))
-            .draw()?;
+        draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         if k.is_some() {
-            foot.draw_text(
-                TORQUE_NOTE,
-                &TextStyle::from((FONT, 16).into_font()).color(&RGBColor(90, 90, 90)),
-                (18, 4),
-            )?;
+            torque_note(&foot)?;
         }
         if d.twist_deg.iter().all(Option::is_none) {
             note_center(&plot_area, "no frame with both marks measured")?;
@@ -611,10 +637,7 @@ impl Plot for ComparisonPlot<'_> {
                 }
             })
             .disable_x_mesh()
-            .label_style((FONT, 18))
-            .axis_desc_style((FONT, 22))
-            .light_line_style(GRID_COLOR)
-            .bold_line_style(GRID_COLOR.mix(0.0))
+            .house_style()
             .draw()?;
         let peak_color = RGBColor(31, 119, 180);
         let last_color = RGBColor(120, 180, 230);
@@ -657,13 +680,7 @@ impl Plot for ComparisonPlot<'_> {
                 .label("bar rating")
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .label_font((FONT, 18))
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK.mix(0.4))
-            .draw()?;
+        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         if n == 0 {
             note_center(&top, "no clip was analysed")?;
         } else if clips.iter().all(|c| c.peak_torque_nm.is_none()) {
@@ -711,21 +728,11 @@ impl Plot for ComparisonPlot<'_> {
                     .map(move |&p| Circle::new(p, 4, color.filled())),
             )?;
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .label_font((FONT, 18))
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK.mix(0.4))
-            .draw()?;
+        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         if nb == 0 {
             note_center(&bottom, "no blows found in any clip")?;
         }
-        foot.draw_text(
-            TORQUE_NOTE,
-            &TextStyle::from((FONT, 16).into_font()).color(&RGBColor(90, 90, 90)),
-            (18, 4),
-        )?;
+        torque_note(&foot)?;
         Ok(())
     }
 }
