@@ -19,6 +19,8 @@ const BIN_SPACING_PX: f64 = 0.75;
 /// Bounds on the number of angular samples.
 const MIN_BINS: usize = 180;
 const MAX_BINS: usize = 4096;
+/// The span [`PolarGrid::sample_span`] returns when it sampled a whole ring: unbounded.
+pub(crate) const WHOLE_RING: (i64, i64) = (i64::MIN / 4, i64::MAX / 4);
 /// Samples ahead whose pixels are prefetched.
 const PREFETCH_AHEAD: usize = 32;
 /// Bounds on the number of rings (rings are 1 px apart until the cap is reached).
@@ -217,7 +219,7 @@ impl PolarGrid {
         let n = self.bins as i64;
         if to - from + 1 >= n {
             self.sample_ring(frame, shift, k, out);
-            return (i64::MIN / 4, i64::MAX / 4);
+            return WHOLE_RING;
         }
         if stride > 1 {
             let scale = 1.0 / frame.max_value();

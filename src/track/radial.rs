@@ -40,7 +40,7 @@
 
 use std::f64::consts::PI;
 
-use super::polar::PolarGrid;
+use super::polar::{PolarGrid, WHOLE_RING};
 use super::unwrap::{unwrap_near, wrap_pi};
 use crate::decode::Frame;
 
@@ -887,9 +887,6 @@ impl Lattice {
         self.m * self.nf
     }
 }
-
-/// A span that covers the whole ring, for [`RadialTracker::fine_ring`].
-const WHOLE_RING: (i64, i64) = (i64::MIN / 4, i64::MAX / 4);
 
 /// Half-length `h` of the fine centroid window and its flank length `f`, bins, for a stripe
 /// half-width of `hw_b` bins on a ring of `n` bins.
