@@ -33,6 +33,7 @@ use crate::rig::{Mark, Rig, Role};
 use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
 
+mod gather;
 mod polar;
 mod radial;
 mod refine;

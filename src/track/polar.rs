@@ -1,9 +1,11 @@
 //! A polar sampling grid over one mark's annulus, built once per clip.
 //!
 //! The annulus is cut into `rings` circles (in the disc's own plane) and `bins` equal angular
-//! steps. Each sample point's screen position is precomputed, with its four bilinear neighbours
-//! and weights, so sampling a frame is a gather of `rings × bins × 4` values whatever the frame
-//! size. A disc seen obliquely (rig `ellipse`) is mapped back to a circle: disc-plane point
+//! steps. Each sample point's screen position is precomputed, as its top-left bilinear
+//! neighbour and its fractions within that pixel, so sampling a frame is a gather of
+//! `rings × bins × 4` values whatever the frame size (`gather.rs`).
+//!
+//! A disc seen obliquely (rig `ellipse`) is mapped back to a circle: disc-plane point
 //! `r·(cos α, sin α)` appears on screen at `pivot + M·r·(cos α, sin α)` with
 //! `M = R(φ)·diag(1, b/a)·R(−φ)` (orthographic view of a tilted circle: the axis along `φ` keeps
 //! its length and the perpendicular one shrinks by `b/a`). Angles are therefore measured in the
@@ -11,6 +13,7 @@
 
 use std::f64::consts::PI;
 
+use super::gather::{self, Sample, Shift};
 use crate::decode::{Frame, Luma};
 use crate::rig::RadialMark;
 
@@ -21,8 +24,6 @@ const MIN_BINS: usize = 180;
 const MAX_BINS: usize = 4096;
 /// The span [`PolarGrid::sample_span`] returns when it sampled a whole ring: unbounded.
 pub(crate) const WHOLE_RING: (i64, i64) = (i64::MIN / 4, i64::MAX / 4);
-/// Samples ahead whose pixels are prefetched.
-const PREFETCH_AHEAD: usize = 32;
 /// Bounds on the number of rings (rings are 1 px apart until the cap is reached).
 const MIN_RINGS: usize = 2;
 const MAX_RINGS: usize = 32;
@@ -40,10 +41,12 @@ pub(crate) struct PolarGrid {
     offset: Vec<[f32; 2]>,
     /// Index of each sample's top-left neighbour, for the unshifted grid.
     idx: Vec<u32>,
-    /// Bilinear weights (top-left, top-right, bottom-left, bottom-right), unshifted grid.
-    wts: Vec<[f32; 4]>,
-    /// Fractional position of each sample within its top-left pixel, unshifted grid.
-    frac: Vec<[f32; 2]>,
+    /// Smallest and largest of `idx`.
+    idx_range: (u32, u32),
+    /// Fractional position of each sample within its top-left pixel (towards +x and +y),
+    /// unshifted grid.
+    fx: Vec<f32>,
+    fy: Vec<f32>,
     /// Range of the top-left neighbours' columns and rows over the grid: x0 min, x0 max,
     /// y0 min, y0 max (to keep a shifted grid inside the frame).
     bbox: [usize; 4],
@@ -113,30 +116,28 @@ impl PolarGrid {
             radius,
             offset,
             idx: Vec::new(),
-            wts: Vec::new(),
-            frac: Vec::new(),
+            idx_range: (0, 0),
+            fx: Vec::new(),
+            fy: Vec::new(),
             bbox: [0; 4],
             pivot,
             map,
             width,
             height,
         };
-        let (idx, wts) = grid
+        let taps: Vec<(u32, [f32; 2])> = grid
             .offset
             .iter()
-            .map(|o| grid.tap(f64::from(o[0]), f64::from(o[1]), [0.0, 0.0]))
-            .unzip();
-        grid.idx = idx;
-        grid.wts = wts;
-        let w = grid.width;
-        grid.frac = grid
-            .wts
-            .iter()
-            .map(|wt| {
-                // fx = weight of the right taps, fy = weight of the bottom taps.
-                [wt[1] + wt[3], wt[2] + wt[3]]
-            })
+            .map(|o| grid.tap(f64::from(o[0]), f64::from(o[1])))
             .collect();
+        grid.idx = taps.iter().map(|t| t.0).collect();
+        grid.fx = taps.iter().map(|t| t.1[0]).collect();
+        grid.fy = taps.iter().map(|t| t.1[1]).collect();
+        grid.idx_range = (
+            grid.idx.iter().copied().min().unwrap_or(0),
+            grid.idx.iter().copied().max().unwrap_or(0),
+        );
+        let w = grid.width;
         let (mut x_lo, mut x_hi, mut y_lo, mut y_hi) = (usize::MAX, 0, usize::MAX, 0);
         for &i in &grid.idx {
             let (x, y) = (i as usize % w, i as usize / w);
@@ -161,22 +162,16 @@ impl PolarGrid {
         (m[1][0] * u + m[1][1] * v).atan2(m[0][0] * u + m[0][1] * v)
     }
 
-    /// Bilinear tap for the point `pivot + (ox, oy) + shift`, clamped to the frame.
-    fn tap(&self, ox: f64, oy: f64, shift: [f64; 2]) -> (u32, [f32; 4]) {
-        let x = (self.pivot[0] + ox + shift[0]).clamp(0.0, (self.width - 1) as f64);
-        let y = (self.pivot[1] + oy + shift[1]).clamp(0.0, (self.height - 1) as f64);
+    /// Top-left neighbour (flat index) and fractions of the point `pivot + (ox, oy)`, clamped
+    /// to the frame.
+    fn tap(&self, ox: f64, oy: f64) -> (u32, [f32; 2]) {
+        let x = (self.pivot[0] + ox).clamp(0.0, (self.width - 1) as f64);
+        let y = (self.pivot[1] + oy).clamp(0.0, (self.height - 1) as f64);
         let x0 = (x.floor() as usize).min(self.width - 2);
         let y0 = (y.floor() as usize).min(self.height - 2);
-        let fx = (x - x0 as f64) as f32;
-        let fy = (y - y0 as f64) as f32;
         (
             (y0 * self.width + x0) as u32,
-            [
-                (1.0 - fx) * (1.0 - fy),
-                fx * (1.0 - fy),
-                (1.0 - fx) * fy,
-                fx * fy,
-            ],
+            [(x - x0 as f64) as f32, (y - y0 as f64) as f32],
         )
     }
 
@@ -269,7 +264,7 @@ impl PolarGrid {
 
     /// Samples bins `from, from + stride, … ≤ to` (unwrapped) of ring `k` into their places
     /// in `out`; `span` is `(k, from, to, stride)`.
-    fn sample_strided<T: Copy + Into<f32>>(
+    fn sample_strided<T: Sample>(
         &self,
         d: &[T],
         scale: f32,
@@ -280,27 +275,21 @@ impl PolarGrid {
         let (k, from, to, stride) = span;
         let (w, n) = (self.width, self.bins as i64);
         let flat = |j: i64| k * self.bins + j.rem_euclid(n) as usize;
-        let unshifted = shift == [0.0, 0.0];
-        let (base, fxs, fys) = if unshifted {
-            (0, 0.0, 0.0)
-        } else {
-            self.shift_parts(shift)
-        };
+        let sh = self.shift_parts(shift);
         let mut j = from;
         while j <= to {
             let i = flat(j);
-            out[i] = if unshifted {
-                tap(d, w, self.idx[i], &self.wts[i]) * scale
-            } else {
-                shifted_tap(d, w, self.idx[i], self.frac[i], base, fxs, fys) * scale
-            };
+            out[i] = gather::one(d, w, self.idx[i], self.fx[i], self.fy[i], sh) * scale;
             j += stride as i64;
         }
     }
 
     /// A shift as a whole-pixel index offset and the fractions left over, limited so that the
     /// grid stays inside the frame.
-    fn shift_parts(&self, shift: [f64; 2]) -> (isize, f32, f32) {
+    fn shift_parts(&self, shift: [f64; 2]) -> Shift {
+        if shift == [0.0, 0.0] {
+            return Shift::ZERO;
+        }
         let lim = |v: f64, lo: usize, hi: usize, n: usize| -> (isize, f32) {
             let (min, max) = (-(lo as f64), (n as f64 - 3.0 - hi as f64).max(-(lo as f64)));
             let v = v.clamp(min, max);
@@ -309,10 +298,14 @@ impl PolarGrid {
         };
         let (ix, fxs) = lim(shift[0], self.bbox[0], self.bbox[1], self.width);
         let (iy, fys) = lim(shift[1], self.bbox[2], self.bbox[3], self.height);
-        (iy * self.width as isize + ix, fxs, fys)
+        Shift {
+            base: iy * self.width as isize + ix,
+            fx: fxs,
+            fy: fys,
+        }
     }
 
-    fn sample_t<T: Copy + Into<f32>>(
+    fn sample_t<T: Sample>(
         &self,
         d: &[T],
         scale: f32,
@@ -320,87 +313,18 @@ impl PolarGrid {
         range: std::ops::Range<usize>,
         out: &mut [f32],
     ) {
-        let w = self.width;
-        let (idx, wts, frac) = (
+        gather::bilinear(
+            d,
+            self.width,
             &self.idx[range.clone()],
-            &self.wts[range.clone()],
-            &self.frac[range],
+            &self.fx[range.clone()],
+            &self.fy[range],
+            self.idx_range,
+            self.shift_parts(shift),
+            scale,
+            out,
         );
-        assert_eq!(out.len(), idx.len());
-        let gather = |i: u32, wt: &[f32; 4]| tap(d, w, i, wt) * scale;
-        if shift == [0.0, 0.0] {
-            for (s, ((o, &i), wt)) in out.iter_mut().zip(idx).zip(wts).enumerate() {
-                if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
-                    prefetch_taps(d, ahead as usize, w);
-                }
-                *o = gather(i, wt);
-            }
-        } else {
-            let (base, fxs, fys) = self.shift_parts(shift);
-            for (s, ((o, &i), f)) in out.iter_mut().zip(idx).zip(frac).enumerate() {
-                if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
-                    prefetch_taps(d, (ahead as isize + base) as usize, w);
-                }
-                *o = shifted_tap(d, w, i, *f, base, fxs, fys) * scale;
-            }
-        }
     }
-}
-
-/// Asks the processor to fetch the two pixel rows of the bilinear tap at `at` (top-left
-/// neighbour) ahead of use: sampling round a ring touches a new cache line at almost every
-/// sample, and the frame was just written by the decoding thread. A hint only.
-#[inline(always)]
-fn prefetch_taps<T>(d: &[T], at: usize, w: usize) {
-    #[cfg(target_arch = "x86_64")]
-    if let (Some(a), Some(b)) = (d.get(at), d.get(at + w)) {
-        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
-        // SAFETY: both are valid references into `d`; a prefetch reads and writes nothing.
-        unsafe {
-            _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(a).cast());
-            _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(b).cast());
-        }
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    let _ = (d, at, w);
-}
-
-/// Bilinear sample with the precomputed taps of an unshifted grid point (top-left neighbour
-/// `i`, weights `wt`). Unscaled.
-#[inline(always)]
-fn tap<T: Copy + Into<f32>>(d: &[T], w: usize, i: u32, wt: &[f32; 4]) -> f32 {
-    let i = i as usize;
-    wt[0] * d[i].into()
-        + wt[1] * d[i + 1].into()
-        + wt[2] * d[i + w].into()
-        + wt[3] * d[i + w + 1].into()
-}
-
-/// Bilinear sample of the grid point whose unshifted top-left neighbour is `i` (with
-/// fractions `f`), moved by a shift split by [`PolarGrid::shift_parts`]: each sample's own
-/// fraction plus the shift's carries into the next pixel when it passes 1. Unscaled.
-#[inline(always)]
-fn shifted_tap<T: Copy + Into<f32>>(
-    d: &[T],
-    w: usize,
-    i: u32,
-    f: [f32; 2],
-    base: isize,
-    fxs: f32,
-    fys: f32,
-) -> f32 {
-    // Branch-free carries: the fractions vary from sample to sample, so a branch here would
-    // be mispredicted about half the time.
-    let fx = f[0] + fxs;
-    let fy = f[1] + fys;
-    let cx = usize::from(fx >= 1.0);
-    let cy = usize::from(fy >= 1.0);
-    let fx = fx - cx as f32;
-    let fy = fy - cy as f32;
-    let i = (i as isize + base) as usize + cx + cy * w;
-    let top = d[i].into() + fx * (d[i + 1].into() - d[i].into());
-    let bot = d[i + w].into() + fx * (d[i + w + 1].into() - d[i + w].into());
-    top + fy * (bot - top)
 }
 
 /// The disc-to-screen map `M = R(φ)·diag(1, b/a)·R(−φ)` (identity without an ellipse).

@@ -191,6 +191,8 @@ pub(crate) struct RadialTracker {
     mean: Vec<f32>,
     sigma: Vec<f32>,
     scratch: Vec<f32>,
+    /// One fine window's lattice samples, flanks included (`fine_ring`).
+    lattice: Vec<f32>,
     ring_c: Vec<f64>,
     ring_z: Vec<f64>,
     ring_ok: Vec<bool>,
@@ -239,6 +241,7 @@ impl RadialTracker {
             mean: vec![0.0; k],
             sigma: vec![0.0; k],
             scratch: vec![0.0; n],
+            lattice: Vec::with_capacity(2 * n),
             ring_c: vec![0.0; k],
             ring_z: vec![0.0; k],
             ring_ok: vec![false; k],
@@ -722,49 +725,62 @@ impl RadialTracker {
                     want
                 };
             }
+            // The lattice samples from the left flank's far end to the right flank's: read
+            // in place when they are contiguous, else gathered into `lattice` (windows are
+            // far shorter than the ring, so one conditional wrap suffices).
             let ring = &self.polar[k * n..(k + 1) * n];
-            // Windows are far shorter than the ring, so one conditional wrap suffices (and
-            // avoids an integer division per sample).
-            let at = |j: i64| {
-                let j = if j < 0 {
-                    j + ni
-                } else if j >= ni {
-                    j - ni
+            let (from, to) = (lo - lat.flank_bins(), hi + lat.flank_bins());
+            let samples: &[f32] = if m == 1 && from >= 0 && to < ni {
+                &ring[from as usize..=to as usize]
+            } else {
+                let buf = &mut self.lattice;
+                buf.clear();
+                if from >= 0 && to < ni {
+                    buf.extend(ring[from as usize..=to as usize].iter().step_by(m as usize));
                 } else {
-                    j
-                };
-                f64::from(ring[j.clamp(0, ni - 1) as usize])
+                    let wrap = |j: i64| {
+                        if j < 0 {
+                            j + ni
+                        } else if j >= ni {
+                            j - ni
+                        } else {
+                            j
+                        }
+                    };
+                    let mut j = from;
+                    while j <= to {
+                        buf.push(ring[wrap(j).clamp(0, ni - 1) as usize]);
+                        j += m;
+                    }
+                }
+                buf
             };
-            let (mut bl, mut br) = (0.0, 0.0);
-            for d in 1..=nf {
-                bl += at(lo - m * d);
-                br += at(hi + m * d);
-            }
-            bl /= nf as f64;
-            br /= nf as f64;
+            let nfu = nf as usize;
+            let (left, rest) = samples.split_at(nfu);
+            let (window, right) = rest.split_at(rest.len() - nfu);
+            let mean = |v: &[f32]| v.iter().map(|&x| f64::from(x)).sum::<f64>() / nf as f64;
+            let (bl, br) = (mean(left), mean(right));
             let xl = lo as f64 - mf * (nf as f64 + 1.0) / 2.0;
             let xr = hi as f64 + mf * (nf as f64 + 1.0) / 2.0;
             let slope = (br - bl) / (xr - xl);
-            let (mut sw, mut swj) = (0.0, 0.0);
-            let mut j = lo;
-            while j <= hi {
-                let u = j as f64 - c;
-                let w = ((h + 0.5 * mf - u.abs()) / mf).clamp(0.0, 1.0);
-                if w > 0.0 {
-                    let g = s * (at(j) - (bl + slope * (j as f64 - xl)));
-                    if g > 0.0 {
-                        sw += w * g;
-                        swj += w * g * j as f64;
-                    }
-                }
-                j += m;
-            }
+            // The window's weights and baseline relative to the current centre c, in f32:
+            // offsets stay within the window, so nothing is lost to the bins' magnitude.
+            let shape = Window {
+                u0: (lo as f64 - c) as f32,
+                du: mf as f32,
+                reach: (h + 0.5 * mf) as f32,
+                polarity: s as f32,
+                base_c: (bl + slope * (c - xl)) as f32,
+                slope: slope as f32,
+            };
+            let (sw, swu) = shape.sums(window);
+            let (sw, swu) = (f64::from(sw), f64::from(swu));
             if sw <= 0.0 {
                 ok = false;
                 break;
             }
             amp = mf * sw / (2.0 * hw_b + 1.0);
-            let next = swj / sw;
+            let next = c + swu / sw;
             ok = true;
             let done = (next - c).abs() < 1e-3;
             c = next;
@@ -776,6 +792,55 @@ impl RadialTracker {
         self.ring_c[k] = c;
         self.ring_z[k] = if ok { z } else { 0.0 };
         self.ring_ok[k] = ok && z >= RING_MIN_Z && (c - c0).abs() <= h;
+    }
+}
+
+/// One fine-centre window on a ring, relative to its current centre c: the samples sit at
+/// offsets `u0, u0 + du, …` (bins) from c; the baseline through the flanks is
+/// `base_c + slope·u`; a sample's weight is the part of its `du` bins inside c ± h, i.e.
+/// `(reach − |u|)/du` held to 0..=1, with `reach = h + du/2`.
+struct Window {
+    u0: f32,
+    du: f32,
+    reach: f32,
+    polarity: f32,
+    base_c: f32,
+    slope: f32,
+}
+
+impl Window {
+    /// Σw·g and Σw·g·u over the window's samples `v`, where g is a sample's excess over the
+    /// baseline, signed by the polarity, and counted only where positive. Eight partial sums
+    /// run side by side, so the loop has no chain of dependent additions and vectorises.
+    fn sums(&self, v: &[f32]) -> (f32, f32) {
+        const L: usize = 8;
+        let inv_du = 1.0 / self.du;
+        let term = |i: usize, x: f32| {
+            let u = self.u0 + self.du * i as f32;
+            // max/min rather than clamp: clamp's NaN rule keeps the loop from vectorising
+            // (measured 15 % slower over the whole tracker); nothing here is NaN.
+            #[allow(clippy::manual_clamp)]
+            let w = ((self.reach - u.abs()) * inv_du).max(0.0).min(1.0);
+            let g = (self.polarity * (x - (self.base_c + self.slope * u))).max(0.0);
+            (w * g, w * g * u)
+        };
+        let (mut sw, mut swu) = ([0.0f32; L], [0.0f32; L]);
+        let blocks = v.chunks_exact(L);
+        let rest = blocks.remainder();
+        for (b, block) in blocks.enumerate() {
+            for l in 0..L {
+                let (a, au) = term(b * L + l, block[l]);
+                sw[l] += a;
+                swu[l] += au;
+            }
+        }
+        let done = v.len() - rest.len();
+        for (l, &x) in rest.iter().enumerate() {
+            let (a, au) = term(done + l, x);
+            sw[l] += a;
+            swu[l] += au;
+        }
+        (sw.iter().sum(), swu.iter().sum())
     }
 }
 
