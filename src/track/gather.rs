@@ -81,33 +81,30 @@ pub(crate) fn bilinear<T: Sample>(
     if let Some(bytes) = T::bytes(d)
         && std::arch::is_x86_feature_detected!("avx2")
         && gather_fits(bytes.len(), w, range, shift)
+        && out.len() >= LANES
     {
-        let full = out.len() - out.len() % LANES;
-        // SAFETY: AVX2 is present (checked above), and `gather_fits` checked that every
-        // 4-byte load of every point (its index plus the shift, with or without a carry in
-        // each direction, on its row and the next) lies inside `bytes`.
-        unsafe {
-            avx2::bilinear(
-                bytes,
-                w,
-                &idx[..full],
-                &fx[..full],
-                &fy[..full],
-                shift,
-                scale,
-                &mut out[..full],
-            );
+        // Whole blocks, then one more block ending at the last point (it overlaps the one
+        // before; the overlapped points get the same values again).
+        let n = out.len();
+        let full = n - n % LANES;
+        let blocks = [(0, full), (n - LANES, n)];
+        for &(a, b) in &blocks[..if full == n { 1 } else { 2 }] {
+            // SAFETY: AVX2 is present (checked above), and `gather_fits` checked that every
+            // 4-byte load of every point (its index plus the shift, with or without a carry in
+            // each direction, on its row and the next) lies inside `bytes`.
+            unsafe {
+                avx2::bilinear(
+                    bytes,
+                    w,
+                    &idx[a..b],
+                    &fx[a..b],
+                    &fy[a..b],
+                    shift,
+                    scale,
+                    &mut out[a..b],
+                );
+            }
         }
-        plain(
-            d,
-            w,
-            &idx[full..],
-            &fx[full..],
-            &fy[full..],
-            shift,
-            scale,
-            &mut out[full..],
-        );
         return;
     }
     plain(d, w, idx, fx, fy, shift, scale, out);

@@ -915,10 +915,10 @@ fn box_pass(
         } else {
             *o = v;
         }
-        sum -= f64::from(ring[lo]);
-        lo = if lo + 1 == n { 0 } else { lo + 1 };
+        // One dependent addition per bin: the sample entering less the one leaving.
         hi = if hi + 1 == n { 0 } else { hi + 1 };
-        sum += f64::from(ring[hi]);
+        sum += f64::from(ring[hi]) - f64::from(ring[lo]);
+        lo = if lo + 1 == n { 0 } else { lo + 1 };
     }
 }
 

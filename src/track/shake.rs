@@ -321,11 +321,11 @@ impl ShakeEstimator {
             let ([x0, y0], _) = self.cell(self.pts[i], d);
             if x0 >= 2 && x0 + 3 < sw && y0 >= 2 && y0 + 3 < sh {
                 // Inside the region: the same arithmetic as below, without the edge clamps.
-                let at = |x: usize, y: usize| v[(oy + y) * fw + ox + x].into() * scale;
                 let mut h = [[0.0f32; 2]; 6];
                 for (r, row) in h.iter_mut().enumerate() {
-                    let y = y0 - 2 + r;
-                    let p: [f32; 6] = std::array::from_fn(|c| at(x0 - 2 + c, y));
+                    let start = (oy + y0 - 2 + r) * fw + ox + x0 - 2;
+                    let pixels = &v[start..start + 6];
+                    let p: [f32; 6] = std::array::from_fn(|c| pixels[c].into() * scale);
                     for (c, out) in row.iter_mut().enumerate() {
                         *out = K[0] * (p[c] + p[c + 4])
                             + K[1] * (p[c + 1] + p[c + 3])
