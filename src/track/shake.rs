@@ -18,7 +18,8 @@
 //! the 2×2 pixel blocks the template points land on are smoothed, not the whole region: that
 //! depends on the whole-pixel part of the shift alone, so it is redone only when an iteration
 //! crosses a pixel (at most a few of the 30×30 points' blocks of 6×6 pixels per frame,
-//! against a 5-tap pass over every pixel of the region).
+//! against a 5-tap pass over every pixel of the region). The points crowd along edges, so
+//! their blocks overlap: each smoothed pixel is computed once and shared ([`Shared`]).
 
 use crate::decode::{Frame, Luma};
 use crate::rig::RadialMark;
@@ -57,6 +58,29 @@ pub(crate) struct ShakeEstimator {
     /// top-right, bottom-left, bottom-right) at the whole-pixel shift `blk_at`.
     blk: Vec<[f32; 4]>,
     blk_at: Option<[i64; 2]>,
+    /// The shared-pixel plan for the blocks (built by `init`; see [`Shared`]).
+    shared: Option<Shared>,
+}
+
+/// The template points' blocks overlap (the points crowd along edges), so each smoothed pixel
+/// any block needs is computed once: the horizontal pass at every pixel the vertical passes
+/// read, then the vertical pass at every pixel the blocks read, then each block gathered.
+/// Positions are region coordinates at a zero whole-pixel shift; a shift moves them all alike.
+/// The arithmetic is the per-point path's, so the blocks are bit-identical (a unit test checks
+/// this); it applies while every block is inside the region (else the per-point path runs).
+#[derive(Clone)]
+struct Shared {
+    /// Region coordinates (x, y) of each horizontal-pass pixel.
+    h_at: Vec<[i64; 2]>,
+    /// Per vertical-pass pixel: its five horizontal-pass inputs (indices into `h_at`), top
+    /// to bottom.
+    s_taps: Vec<[u32; 5]>,
+    /// Per template point: its block's four smoothed pixels (indices into `s_taps`).
+    blk_taps: Vec<[u32; 4]>,
+    /// Range of the points' block corners: x min, x max, y min, y max.
+    corner: [i64; 4],
+    h: Vec<f32>,
+    s: Vec<f32>,
 }
 
 impl ShakeEstimator {
@@ -104,6 +128,7 @@ impl ShakeEstimator {
             raw: vec![0.0; cells],
             blk: vec![[0.0; 4]; n],
             blk_at: None,
+            shared: None,
         }
     }
 
@@ -190,7 +215,58 @@ impl ShakeEstimator {
             return false;
         }
         self.hinv = [[d / det, -b / det], [-b / det, a / det]];
+        self.shared = Some(self.plan_shared());
         true
+    }
+
+    /// The shared-pixel plan for the current template points.
+    fn plan_shared(&self) -> Shared {
+        use std::collections::HashMap;
+        let mut corner = [i64::MAX, i64::MIN, i64::MAX, i64::MIN];
+        let mut s_index: HashMap<(i64, i64), u32> = HashMap::new();
+        let mut s_at: Vec<(i64, i64)> = Vec::new();
+        let mut blk_taps = Vec::with_capacity(self.pts.len());
+        for p in &self.pts {
+            let ([x0, y0], _) = self.cell(*p, [0.0, 0.0]);
+            let (x0, y0) = (x0 as i64, y0 as i64);
+            corner = [
+                corner[0].min(x0),
+                corner[1].max(x0),
+                corner[2].min(y0),
+                corner[3].max(y0),
+            ];
+            let mut taps = [0u32; 4];
+            for (slot, (dx, dy)) in [(0, 0), (1, 0), (0, 1), (1, 1)].into_iter().enumerate() {
+                let q = (x0 + dx, y0 + dy);
+                taps[slot] = *s_index.entry(q).or_insert_with(|| {
+                    s_at.push(q);
+                    (s_at.len() - 1) as u32
+                });
+            }
+            blk_taps.push(taps);
+        }
+        let mut h_index: HashMap<(i64, i64), u32> = HashMap::new();
+        let mut h_at = Vec::new();
+        let s_taps = s_at
+            .iter()
+            .map(|&(x, y)| {
+                std::array::from_fn(|r| {
+                    let q = (x, y + r as i64 - 2);
+                    *h_index.entry(q).or_insert_with(|| {
+                        h_at.push([q.0, q.1]);
+                        (h_at.len() - 1) as u32
+                    })
+                })
+            })
+            .collect::<Vec<[u32; 5]>>();
+        Shared {
+            h: vec![0.0; h_at.len()],
+            s: vec![0.0; s_taps.len()],
+            h_at,
+            s_taps,
+            blk_taps,
+            corner,
+        }
     }
 
     /// The translation of this frame's image relative to the first frame, px (x right, y down),
@@ -300,6 +376,33 @@ impl ShakeEstimator {
     fn blocks_t<T: Copy + Into<f32>>(&mut self, v: &[T], fw: usize, scale: f32, whole: [i64; 2]) {
         let [sw, sh] = self.size;
         let (ox, oy) = (self.origin[0], self.origin[1]);
+        if let Some(plan) = self.shared.as_mut() {
+            let c = plan.corner;
+            let [wx, wy] = whole;
+            let inside = c[0] + wx >= 2
+                && c[1] + wx + 3 < sw as i64
+                && c[2] + wy >= 2
+                && c[3] + wy + 3 < sh as i64;
+            if inside {
+                // Every read below is inside the region: each block's 6×6 pixels are.
+                let (x_base, y_base) = (ox as i64 + wx - 2, oy as i64 + wy);
+                for (o, &[x, y]) in plan.h.iter_mut().zip(&plan.h_at) {
+                    let start = (y_base + y) as usize * fw + (x_base + x) as usize;
+                    let px = &v[start..start + 5];
+                    let p: [f32; 5] = std::array::from_fn(|i| px[i].into() * scale);
+                    *o = K[0] * (p[0] + p[4]) + K[1] * (p[1] + p[3]) + K[2] * p[2];
+                }
+                let h = &plan.h;
+                for (o, t) in plan.s.iter_mut().zip(&plan.s_taps) {
+                    let at = |r: usize| h[t[r] as usize];
+                    *o = K[0] * (at(0) + at(4)) + K[1] * (at(1) + at(3)) + K[2] * at(2);
+                }
+                for (b, t) in self.blk.iter_mut().zip(&plan.blk_taps) {
+                    *b = t.map(|i| plan.s[i as usize]);
+                }
+                return;
+            }
+        }
         let d = [whole[0] as f64, whole[1] as f64];
         let clampi = |i: i64, n: usize| i.clamp(0, n as i64 - 1) as usize;
         // The region's pixel (x, y), scaled, with the region's edge repeated.
@@ -467,6 +570,39 @@ mod tests {
                 assert_eq!(est.blk[i], want, "point {i} at shift {whole:?}");
             }
         }
+    }
+
+    #[test]
+    fn shared_pixel_blocks_equal_the_per_point_blocks() {
+        // A rendered frame of the bench scene (synthetic), its template chosen by `init`.
+        let sc = Scenario::preset("fast-tool").unwrap();
+        let truth = simulate(&sc);
+        let rig = sc.rig();
+        let Some(Mark::Radial(m)) = &rig.marks.fixed else {
+            panic!("preset has a fixed mark")
+        };
+        let mut est = ShakeEstimator::new(m, sc.scene.width, sc.scene.height);
+        assert!(est.init(&render_frame(&sc, &truth, 0)));
+        let plan = est.shared.take().expect("init plans the shared pixels");
+        // The blocks share pixels: fewer smoothed pixels than four per point.
+        assert!(
+            plan.s.len() < 4 * est.pts.len(),
+            "{} for {}",
+            plan.s.len(),
+            est.pts.len()
+        );
+        let frame = render_frame(&sc, &truth, 5);
+        for whole in [[0i64, 0], [1, -1], [-3, 2], [5, 4]] {
+            est.shared = None;
+            est.load_blocks(&frame, whole);
+            let per_point = est.blk.clone();
+            est.shared = Some(plan.clone());
+            est.load_blocks(&frame, whole);
+            assert_eq!(est.blk, per_point, "shift {whole:?}");
+        }
+        // A shift that takes blocks past the region's edge falls back to the per-point path.
+        est.shared = Some(plan);
+        est.load_blocks(&frame, [-40, 0]);
     }
 
     #[test]
