@@ -941,16 +941,24 @@ impl Lattice {
     }
     /// The lattice bin at or below `x`.
     fn down(&self, x: f64) -> i64 {
-        (x / self.mf).floor() as i64 * self.m
+        floor_i64(x / self.mf) * self.m
     }
     /// The lattice bin at or above `x`.
     fn up(&self, x: f64) -> i64 {
-        (x / self.mf).ceil() as i64 * self.m
+        -floor_i64(-x / self.mf) * self.m
     }
     /// Bins the flank samples reach beyond a window's edge.
     fn flank_bins(&self) -> i64 {
         self.m * self.nf
     }
+}
+
+/// ⌊x⌋ for |x| < 2⁵³, without a call into the maths library (which `floor` is on processors
+/// without SSE4.1's rounding instruction): truncate, then step down for negative fractions.
+#[inline(always)]
+fn floor_i64(x: f64) -> i64 {
+    let t = x as i64;
+    t - i64::from((t as f64) > x)
 }
 
 /// Half-length `h` of the fine centroid window and its flank length `f`, bins, for a stripe
@@ -1025,6 +1033,13 @@ mod tests {
     use proptest::prelude::*;
 
     proptest! {
+        #[test]
+        fn floor_i64_equals_floor(x in -1e9f64..1e9) {
+            prop_assert_eq!(floor_i64(x), x.floor() as i64);
+            let whole = x.round();
+            prop_assert_eq!(floor_i64(whole), whole as i64);
+        }
+
         #[test]
         fn sliding_maximum_equals_the_direct_one(
             src in proptest::collection::vec(-10.0f32..10.0, 1..60),
