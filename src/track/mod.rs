@@ -206,30 +206,55 @@ impl Tracker {
         let first = self.frames.is_empty();
         self.frames.push(frame.index);
 
-        // Shake: translation at the fixed mark, relative to the first frame. The fixed mark's
-        // stripe is measured in the first frame only (a fixed mark without paint is an error);
-        // afterwards the registration's own correlation says whether the mark is still seen.
+        if first {
+            return self.learn(frame);
+        }
+        // Shake: translation at the fixed mark, relative to the first frame; the registration's
+        // own correlation says whether the mark is still seen.
         let mut shake_lost = false;
         if let Some(sh) = self.shake.as_mut() {
-            if first {
-                if !sh.init(frame) {
-                    self.shake = None;
-                }
-            } else {
-                match sh.estimate(frame) {
-                    Some(d) => self.shift = d,
-                    None => shake_lost = true,
-                }
+            match sh.estimate(frame) {
+                Some(d) => self.shift = d,
+                None => shake_lost = true,
             }
         }
         self.shake_lost
             .push(if shake_lost { None } else { Some(()) });
         let shift = self.shift;
-        if first && let Some(f) = self.fixed.as_mut() {
-            measure(f, frame, shift, first)?;
+        measure(&mut self.drive, frame, shift, false)?;
+        measure(&mut self.nut, frame, shift, false)?;
+        Ok(())
+    }
+
+    /// The first frame: every mark learns its stripe and the shake estimator its template. The
+    /// fixed mark's stripe is measured here only (a fixed mark without paint is an error). This
+    /// is a clip's costliest step (tens of milliseconds at 720p, while the decoder waits), and
+    /// the marks are independent, so the drive mark learns on another thread.
+    fn learn(&mut self, frame: &Frame) -> Result<()> {
+        let shift = self.shift;
+        let Tracker {
+            drive,
+            nut,
+            fixed,
+            shake,
+            ..
+        } = self;
+        let (drive_done, (fixed_done, nut_done, shake_ok)) = rayon::join(
+            || measure(drive, frame, shift, true),
+            || {
+                let shake_ok = shake.as_mut().is_none_or(|sh| sh.init(frame));
+                let fixed_done = fixed.as_mut().map(|f| measure(f, frame, shift, true));
+                (fixed_done, measure(nut, frame, shift, true), shake_ok)
+            },
+        );
+        if !shake_ok {
+            self.shake = None;
         }
-        measure(&mut self.drive, frame, shift, first)?;
-        measure(&mut self.nut, frame, shift, first)?;
+        self.shake_lost.push(Some(()));
+        // Errors in the order the marks are listed in the rig's checks: fixed, drive, nut.
+        fixed_done.transpose()?;
+        drive_done?;
+        nut_done?;
         Ok(())
     }
 
