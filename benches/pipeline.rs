@@ -102,12 +102,14 @@ fn main() {
         let (mut dec, mut ana, mut ff) = (f64::MAX, f64::MAX, f64::MAX);
         let (mut rss_short, mut rss_long) = (0u64, 0u64);
         let mut decoded = 0;
+        let mut pairs = Vec::with_capacity(runs);
         for _ in 0..runs {
             let (t, n) = decode_only(long);
             decoded = n;
             dec = dec.min(t);
-            let (t, rss) = analyze(&bin, long, &rig_path, &out_dir);
-            ana = ana.min(t);
+            let (ta, rss) = analyze(&bin, long, &rig_path, &out_dir);
+            ana = ana.min(ta);
+            pairs.push(ta / t);
             rss_long = rss_long.max(rss);
             if ffmpeg {
                 ff = ff.min(ffmpeg_null(long));
@@ -115,8 +117,10 @@ fn main() {
         }
         let (_, rss) = analyze(&bin, short, &rig_path, &out_dir);
         rss_short = rss_short.max(rss);
+        pairs.sort_by(f64::total_cmp);
         rows.push(Row {
             name,
+            pairs,
             frames: decoded,
             decode_s: dec,
             analyze_s: ana,
@@ -169,6 +173,14 @@ fn main() {
             at_20k
         );
         println!(
+            "      analyze/decode of each run's back-to-back pair: {}",
+            r.pairs
+                .iter()
+                .map(|p| format!("{p:.3}"))
+                .collect::<Vec<_>>()
+                .join(" ")
+        );
+        println!(
             "      decode {:.0} frames/s, analyze {:.0} frames/s{}",
             r.frames as f64 / r.decode_s,
             r.frames as f64 / r.analyze_s,
@@ -201,6 +213,8 @@ fn main() {
 
 struct Row<'a> {
     name: &'a str,
+    /// analyze / decode of each run's back-to-back pair, sorted.
+    pairs: Vec<f64>,
     frames: u64,
     decode_s: f64,
     analyze_s: f64,
