@@ -55,59 +55,76 @@ const PREFETCH_AHEAD: usize = 32;
 /// Points per gather (eight 32-bit lanes of an AVX2 register).
 const LANES: usize = 8;
 
-/// Writes `scale ×` the bilinear sample of every point (`idx`, `fx`, `fy`, all as long as
-/// `out`) moved by `shift` into `out`.
+/// A frame to sample: its samples, row length and the scale that maps a sample to 0..=1.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Image<'a, T> {
+    pub d: &'a [T],
+    pub w: usize,
+    pub scale: f32,
+}
+
+/// Grid points: each one's top-left neighbour (flat index into the frame) and its fractions
+/// towards +x and +y within that pixel; the three slices have one length.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Points<'a> {
+    pub idx: &'a [u32],
+    pub fx: &'a [f32],
+    pub fy: &'a [f32],
+}
+
+impl<'a> Points<'a> {
+    /// Points `a..b`.
+    pub fn range(self, a: usize, b: usize) -> Points<'a> {
+        Points {
+            idx: &self.idx[a..b],
+            fx: &self.fx[a..b],
+            fy: &self.fy[a..b],
+        }
+    }
+}
+
+/// Writes the scaled bilinear sample of every point of `pts` (as many as `out` has), moved
+/// by `shift`, into `out`.
 ///
-/// `w` is the frame's width. Every shifted point's 2×2 block must lie inside `d` (the grids
-/// keep their shifts inside the frame); `range` is the smallest and largest of `idx`, used to
-/// check that the vector path's 4-byte loads stay inside the frame too.
+/// Every shifted point's 2×2 block must lie inside the frame (the grids keep their shifts
+/// inside it); `range` is the smallest and largest of `pts.idx`, used to check that the
+/// vector path's 4-byte loads stay inside the frame too.
 ///
 /// # Panics
-/// When a block falls outside `d`, or the slices' lengths differ.
-#[allow(clippy::too_many_arguments)]
+/// When a block falls outside the frame, or the slices' lengths differ.
 pub(crate) fn bilinear<T: Sample>(
-    d: &[T],
-    w: usize,
-    idx: &[u32],
-    fx: &[f32],
-    fy: &[f32],
+    img: Image<'_, T>,
+    pts: Points<'_>,
     range: (u32, u32),
     shift: Shift,
-    scale: f32,
     out: &mut [f32],
 ) {
-    assert!(idx.len() == out.len() && fx.len() == out.len() && fy.len() == out.len());
+    let n = out.len();
+    assert!(pts.idx.len() == n && pts.fx.len() == n && pts.fy.len() == n);
     #[cfg(target_arch = "x86_64")]
-    if let Some(bytes) = T::bytes(d)
+    if let Some(bytes) = T::bytes(img.d)
         && std::arch::is_x86_feature_detected!("avx2")
-        && gather_fits(bytes.len(), w, range, shift)
-        && out.len() >= LANES
+        && gather_fits(bytes.len(), img.w, range, shift)
+        && n >= LANES
     {
+        let bytes = Image {
+            d: bytes,
+            w: img.w,
+            scale: img.scale,
+        };
         // Whole blocks, then one more block ending at the last point (it overlaps the one
         // before; the overlapped points get the same values again).
-        let n = out.len();
         let full = n - n % LANES;
         let blocks = [(0, full), (n - LANES, n)];
         for &(a, b) in &blocks[..if full == n { 1 } else { 2 }] {
             // SAFETY: AVX2 is present (checked above), and `gather_fits` checked that every
             // 4-byte load of every point (its index plus the shift, with or without a carry in
-            // each direction, on its row and the next) lies inside `bytes`.
-            unsafe {
-                avx2::bilinear(
-                    bytes,
-                    w,
-                    &idx[a..b],
-                    &fx[a..b],
-                    &fy[a..b],
-                    shift,
-                    scale,
-                    &mut out[a..b],
-                );
-            }
+            // each direction, on its row and the next) lies inside the frame.
+            unsafe { avx2::bilinear(bytes, pts.range(a, b), shift, &mut out[a..b]) };
         }
         return;
     }
-    plain(d, w, idx, fx, fy, shift, scale, out);
+    plain(img, pts, shift, out);
 }
 
 /// One point, moved by `shift`: the same arithmetic as the vector path.
@@ -131,22 +148,13 @@ pub(crate) fn one<T: Sample>(d: &[T], w: usize, i: u32, fx: f32, fy: f32, shift:
 }
 
 /// The plain loop, with prefetching.
-#[allow(clippy::too_many_arguments)]
-fn plain<T: Sample>(
-    d: &[T],
-    w: usize,
-    idx: &[u32],
-    fx: &[f32],
-    fy: &[f32],
-    shift: Shift,
-    scale: f32,
-    out: &mut [f32],
-) {
+fn plain<T: Sample>(img: Image<'_, T>, pts: Points<'_>, shift: Shift, out: &mut [f32]) {
+    let (d, w) = (img.d, img.w);
     for (s, o) in out.iter_mut().enumerate() {
-        if let Some(&ahead) = idx.get(s + PREFETCH_AHEAD) {
+        if let Some(&ahead) = pts.idx.get(s + PREFETCH_AHEAD) {
             prefetch(d, (ahead as isize + shift.base) as usize, w);
         }
-        *o = one(d, w, idx[s], fx[s], fy[s], shift) * scale;
+        *o = one(d, w, pts.idx[s], pts.fx[s], pts.fy[s], shift) * img.scale;
     }
 }
 
@@ -182,7 +190,7 @@ fn gather_fits(len: usize, w: usize, (min, max): (u32, u32), shift: Shift) -> bo
 mod avx2 {
     use std::arch::x86_64::*;
 
-    use super::{LANES, PREFETCH_AHEAD, Shift, prefetch};
+    use super::{Image, LANES, PREFETCH_AHEAD, Points, Shift, prefetch};
 
     /// [`super::plain`] for 8-bit samples, eight points at a time (`out.len()` a multiple of
     /// eight).
@@ -191,17 +199,14 @@ mod avx2 {
     /// The processor must have AVX2, and 4-byte loads at every point's index plus
     /// `shift.base`, plus one carry each way, on its row and the next, must lie inside `d`.
     #[target_feature(enable = "avx2")]
-    #[allow(clippy::too_many_arguments)]
     pub(super) unsafe fn bilinear(
-        d: &[u8],
-        w: usize,
-        idx: &[u32],
-        fx: &[f32],
-        fy: &[f32],
+        img: Image<'_, u8>,
+        pts: Points<'_>,
         shift: Shift,
-        scale: f32,
         out: &mut [f32],
     ) {
+        let (d, w, scale) = (img.d, img.w, img.scale);
+        let (idx, fx, fy) = (pts.idx, pts.fx, pts.fy);
         let one = _mm256_set1_ps(1.0);
         let one_i = _mm256_set1_epi32(1);
         let row = _mm256_set1_epi32(w as i32);
@@ -286,10 +291,12 @@ mod tests {
                 idx.iter().copied().min().unwrap_or(0),
                 idx.iter().copied().max().unwrap_or(0),
             );
+            let img = Image { d: &d[..], w, scale: 1.0 / 255.0 };
+            let pts = Points { idx: &idx, fx: &fx, fy: &fy };
             let mut fast = vec![0.0f32; n];
-            bilinear(&d, w, &idx, &fx, &fy, range, shift, 1.0 / 255.0, &mut fast);
+            bilinear(img, pts, range, shift, &mut fast);
             let mut slow = vec![0.0f32; n];
-            plain(&d, w, &idx, &fx, &fy, shift, 1.0 / 255.0, &mut slow);
+            plain(img, pts, shift, &mut slow);
             for (a, b) in fast.iter().zip(&slow) {
                 prop_assert_eq!(a.to_bits(), b.to_bits());
             }
@@ -310,17 +317,17 @@ mod tests {
             fy: 0.5,
         };
         let mut out = [0.0f32];
-        bilinear(
-            &d,
+        let img = Image {
+            d: &d[..],
             w,
-            &idx,
-            &[0.5],
-            &[0.75],
-            (idx[0], idx[0]),
-            shift,
-            1.0,
-            &mut out,
-        );
+            scale: 1.0,
+        };
+        let pts = Points {
+            idx: &idx,
+            fx: &[0.5],
+            fy: &[0.75],
+        };
+        bilinear(img, pts, (idx[0], idx[0]), shift, &mut out);
         // Point (4.5, 3.75) moved by (1.75, 1.5): (6.25, 5.25), carried in both directions.
         assert!(
             (out[0] - (2.0 * 6.25 + 3.0 * 5.25)).abs() < 1e-5,

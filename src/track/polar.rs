@@ -313,15 +313,21 @@ impl PolarGrid {
         range: std::ops::Range<usize>,
         out: &mut [f32],
     ) {
-        gather::bilinear(
+        let img = gather::Image {
             d,
-            self.width,
-            &self.idx[range.clone()],
-            &self.fx[range.clone()],
-            &self.fy[range],
+            w: self.width,
+            scale,
+        };
+        let pts = gather::Points {
+            idx: &self.idx,
+            fx: &self.fx,
+            fy: &self.fy,
+        };
+        gather::bilinear(
+            img,
+            pts.range(range.start, range.end),
             self.idx_range,
             self.shift_parts(shift),
-            scale,
             out,
         );
     }
