@@ -158,21 +158,26 @@ fn plain<T: Sample>(img: Image<'_, T>, pts: Points<'_>, shift: Shift, out: &mut 
     }
 }
 
-/// Asks the processor to fetch the two pixel rows of the block at `at` ahead of use. A hint
-/// only: it never faults and changes no value.
+/// Asks the processor to fetch the two pixel rows of the block at `at` ahead of use.
 #[inline(always)]
 fn prefetch<T>(d: &[T], at: usize, w: usize) {
+    prefetch_rows(d, at, w, 2);
+}
+
+/// Asks the processor to fetch the cache lines of `d[at]`, `d[at + w]`, … (`rows` of them,
+/// those inside `d`) ahead of use. A hint only: it never faults and changes no value.
+#[inline(always)]
+pub(crate) fn prefetch_rows<T>(d: &[T], at: usize, w: usize, rows: usize) {
     #[cfg(target_arch = "x86_64")]
-    if let (Some(a), Some(b)) = (d.get(at), d.get(at + w)) {
-        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
-        // SAFETY: both are valid references into `d`; a prefetch reads and writes nothing.
-        unsafe {
-            _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(a).cast());
-            _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(b).cast());
+    for r in 0..rows {
+        if let Some(px) = d.get(at + r * w) {
+            use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
+            // SAFETY: `px` is a valid reference into `d`; a prefetch reads and writes nothing.
+            unsafe { _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(px).cast()) };
         }
     }
     #[cfg(not(target_arch = "x86_64"))]
-    let _ = (d, at, w);
+    let _ = (d, at, w, rows);
 }
 
 /// Whether 4-byte loads at every point's block, moved by `shift` (with or without a carry

@@ -344,9 +344,7 @@ impl ShakeEstimator {
             let (m2, m1, z, p1, p2) = (r(-2), r(-1), r(0), r(1), r(2));
             for x in 0..sw {
                 let t = &self.tmp;
-                self.smooth[z + x] = K[0] * (t[m2 + x] + t[p2 + x])
-                    + K[1] * (t[m1 + x] + t[p1 + x])
-                    + K[2] * t[z + x];
+                self.smooth[z + x] = k5(t[m2 + x], t[m1 + x], t[z + x], t[p1 + x], t[p2 + x]);
             }
         }
     }
@@ -390,12 +388,12 @@ impl ShakeEstimator {
                     let start = (y_base + y) as usize * fw + (x_base + x) as usize;
                     let px = &v[start..start + 5];
                     let p: [f32; 5] = std::array::from_fn(|i| px[i].into() * scale);
-                    *o = K[0] * (p[0] + p[4]) + K[1] * (p[1] + p[3]) + K[2] * p[2];
+                    *o = k5(p[0], p[1], p[2], p[3], p[4]);
                 }
                 let h = &plan.h;
                 for (o, t) in plan.s.iter_mut().zip(&plan.s_taps) {
                     let at = |r: usize| h[t[r] as usize];
-                    *o = K[0] * (at(0) + at(4)) + K[1] * (at(1) + at(3)) + K[2] * at(2);
+                    *o = k5(at(0), at(1), at(2), at(3), at(4));
                 }
                 for (b, t) in self.blk.iter_mut().zip(&plan.blk_taps) {
                     *b = t.map(|i| plan.s[i as usize]);
@@ -408,18 +406,11 @@ impl ShakeEstimator {
         // The region's pixel (x, y), scaled, with the region's edge repeated.
         let raw = |x: i64, y: i64| v[(oy + clampi(y, sh)) * fw + ox + clampi(x, sw)].into() * scale;
         for i in 0..self.pts.len() {
-            #[cfg(target_arch = "x86_64")]
             if let Some(&p) = self.pts.get(i + PREFETCH_AHEAD) {
-                // The six rows a later point's block reads (a hint only: it never faults).
+                // The six rows a later point's block reads.
                 let ([x, y], _) = self.cell(p, d);
                 let first = (oy + y.saturating_sub(2)) * fw + ox + x.saturating_sub(2);
-                for r in 0..6 {
-                    if let Some(px) = v.get(first + r * fw) {
-                        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
-                        // SAFETY: `px` is a valid reference; prefetching reads nothing.
-                        unsafe { _mm_prefetch::<_MM_HINT_T0>(std::ptr::from_ref(px).cast()) };
-                    }
-                }
+                super::gather::prefetch_rows(v, first, fw, 6);
             }
             let ([x0, y0], _) = self.cell(self.pts[i], d);
             if x0 >= 2 && x0 + 3 < sw && y0 >= 2 && y0 + 3 < sh {
@@ -430,15 +421,11 @@ impl ShakeEstimator {
                     let pixels = &v[start..start + 6];
                     let p: [f32; 6] = std::array::from_fn(|c| pixels[c].into() * scale);
                     for (c, out) in row.iter_mut().enumerate() {
-                        *out = K[0] * (p[c] + p[c + 4])
-                            + K[1] * (p[c + 1] + p[c + 3])
-                            + K[2] * p[c + 2];
+                        *out = k5(p[c], p[c + 1], p[c + 2], p[c + 3], p[c + 4]);
                     }
                 }
                 let vpass = |r: usize, c: usize| {
-                    K[0] * (h[r][c] + h[r + 4][c])
-                        + K[1] * (h[r + 1][c] + h[r + 3][c])
-                        + K[2] * h[r + 2][c]
+                    k5(h[r][c], h[r + 1][c], h[r + 2][c], h[r + 3][c], h[r + 4][c])
                 };
                 self.blk[i] = [vpass(0, 0), vpass(0, 1), vpass(1, 0), vpass(1, 1)];
                 continue;
@@ -458,7 +445,7 @@ impl ShakeEstimator {
                 for (c, &slot) in pair.iter().enumerate() {
                     // The vertical pass of `load`, row indices clamped to the region.
                     let t = |dy: i64| h[(clampi(y + dy, sh) as i64 - (y0 - 2)) as usize][c];
-                    b[slot] = K[0] * (t(-2) + t(2)) + K[1] * (t(-1) + t(1)) + K[2] * t(0);
+                    b[slot] = k5(t(-2), t(-1), t(0), t(1), t(2));
                 }
             }
             self.blk[i] = b;
@@ -495,12 +482,19 @@ impl ShakeEstimator {
 /// Binomial smoothing kernel [1 4 6 4 1]/16 (σ = 1 px).
 const K: [f32; 5] = [1.0 / 16.0, 4.0 / 16.0, 6.0 / 16.0, 4.0 / 16.0, 1.0 / 16.0];
 
+/// The binomial kernel over five samples in a row (either direction), in the one order of
+/// operations every smoothing path uses, so their values agree to the bit.
+#[inline(always)]
+fn k5(a: f32, b: f32, c: f32, d: f32, e: f32) -> f32 {
+    K[0] * (a + e) + K[1] * (b + d) + K[2] * c
+}
+
 /// The horizontal smoothing pass at column `x` of a row of `sw` samples read through `row`
 /// (which repeats the edge sample beyond the row). The same arithmetic inside and at the
 /// borders, so a value does not depend on where it was computed.
 fn hpass(row: impl Fn(i64) -> f32, x: i64, sw: usize) -> f32 {
     if x >= 2 && x + 2 < sw as i64 {
-        K[0] * (row(x - 2) + row(x + 2)) + K[1] * (row(x - 1) + row(x + 1)) + K[2] * row(x)
+        k5(row(x - 2), row(x - 1), row(x), row(x + 1), row(x + 2))
     } else {
         (0..5).map(|i| K[i as usize] * row(x + i - 2)).sum()
     }
