@@ -1,6 +1,9 @@
 //! The one function that chains the pipeline: decode → track → segment → mechanics.
-//! Decoding runs on its own thread and hands frames to the tracker through a short queue of
-//! recycled buffers, so the two stages overlap and no frame buffer is allocated per frame.
+//! Decoding and tracking overlap, and no frame buffer is allocated per frame:
+//! - a video decoded on FFmpeg's own threads is tracked on the calling thread between frames,
+//!   reading each decoded picture in place when its rows are packed (no copy);
+//! - every other source (stills, frames in memory) decodes on a thread of its own and hands
+//!   frames to the tracker through a short queue of recycled buffers.
 
 use std::path::Path;
 use std::sync::mpsc;
@@ -131,6 +134,96 @@ pub fn analyze_source(
     let mut tracker = Tracker::new(rig, rig_path, clip.width, clip.height)?;
 
     let total = last.min(clip.frames).saturating_sub(first);
+    if source.decodes_in_background() {
+        track_inline(
+            source.as_mut(),
+            &mut tracker,
+            (first, last),
+            total,
+            progress,
+        )?;
+    } else {
+        track_pipelined(source, &mut tracker, (first, last), total, progress)?;
+    }
+
+    let (trace, track_warnings) = tracker.finish(time_base);
+    warnings.extend(track_warnings);
+    let segmentation = segment::find_blows(&trace);
+    warnings.extend(segmentation.warnings.iter().cloned());
+    let (blows, summary, mech_warnings) =
+        mechanics::blow_metrics(&trace, &segmentation, rig.bar.as_ref());
+    warnings.extend(mech_warnings);
+    let bar = rig.bar.as_ref().map(BarReport::new).transpose()?;
+    let springback = bar.as_ref().and_then(|b| {
+        let onsets: Vec<f64> = blows.iter().map(|m| m.t_s).collect();
+        let residual: Vec<_> = blows.iter().map(|m| m.residual_twist).collect();
+        let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
+        b.springback_verdict_for_blows(&onsets, &residual, &peak)
+    });
+    if let Some(b) = &bar {
+        warnings.extend(b.warnings());
+        if let Some(w) = summary
+            .peak_torque
+            .and_then(|t| b.stress_warning(t, "measured peak"))
+        {
+            warnings.push(w);
+        }
+    }
+    Ok(Analysis {
+        clip,
+        rig: rig.clone(),
+        time_base,
+        fps_source,
+        trace,
+        segmentation,
+        blows,
+        summary,
+        bar,
+        springback,
+        warnings,
+    })
+}
+
+/// Tracks on the calling thread, between the decoder's frames: for sources that decode on
+/// threads of their own (FFmpeg's), whose pictures are read in place with no copy when their
+/// rows are packed. The tracker then reads each picture soon after it was written, and no
+/// frame crosses between threads of ours.
+fn track_inline(
+    source: &mut dyn FrameSource,
+    tracker: &mut Tracker,
+    (first, last): (u64, u64),
+    total: u64,
+    progress: &(dyn Fn(u64, u64) + Sync),
+) -> Result<()> {
+    let mut scratch = Frame::empty();
+    let mut done = 0u64;
+    let mut ended = false;
+    while !ended {
+        let more = source.visit_next(&mut scratch, &mut |frame| {
+            if frame.index >= last {
+                ended = true;
+            } else if frame.index >= first {
+                tracker.push_ref(frame)?;
+                done += 1;
+                progress(done, total);
+            }
+            Ok(())
+        })?;
+        ended |= !more;
+    }
+    Ok(())
+}
+
+/// Decodes on a second thread and tracks on the calling one, through a short queue of
+/// recycled buffers: for sources that decode on the calling thread (stills, memory).
+fn track_pipelined(
+    mut source: Box<dyn FrameSource>,
+    tracker: &mut Tracker,
+    (first, last): (u64, u64),
+    total: u64,
+    progress: &(dyn Fn(u64, u64) + Sync),
+) -> Result<()> {
+    let path = source.info().path.clone();
     std::thread::scope(|scope| -> Result<()> {
         let (full_tx, full_rx) = mpsc::sync_channel::<Frame>(QUEUE_DEPTH);
         let (empty_tx, empty_rx) = mpsc::sync_channel::<Frame>(QUEUE_DEPTH + 1);
@@ -176,49 +269,12 @@ pub fn analyze_source(
         drop(empty_tx);
         let decoded = decoder.join().unwrap_or_else(|_| {
             Err(Error::Input {
-                path: clip.path.clone(),
+                path: path.clone(),
                 reason: "the decoder thread stopped unexpectedly".into(),
             })
         });
         tracked?;
         decoded
-    })?;
-
-    let (trace, track_warnings) = tracker.finish(time_base);
-    warnings.extend(track_warnings);
-    let segmentation = segment::find_blows(&trace);
-    warnings.extend(segmentation.warnings.iter().cloned());
-    let (blows, summary, mech_warnings) =
-        mechanics::blow_metrics(&trace, &segmentation, rig.bar.as_ref());
-    warnings.extend(mech_warnings);
-    let bar = rig.bar.as_ref().map(BarReport::new).transpose()?;
-    let springback = bar.as_ref().and_then(|b| {
-        let onsets: Vec<f64> = blows.iter().map(|m| m.t_s).collect();
-        let residual: Vec<_> = blows.iter().map(|m| m.residual_twist).collect();
-        let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
-        b.springback_verdict_for_blows(&onsets, &residual, &peak)
-    });
-    if let Some(b) = &bar {
-        warnings.extend(b.warnings());
-        if let Some(w) = summary
-            .peak_torque
-            .and_then(|t| b.stress_warning(t, "measured peak"))
-        {
-            warnings.push(w);
-        }
-    }
-    Ok(Analysis {
-        clip,
-        rig: rig.clone(),
-        time_base,
-        fps_source,
-        trace,
-        segmentation,
-        blows,
-        summary,
-        bar,
-        springback,
-        warnings,
     })
 }
 
@@ -292,6 +348,63 @@ mod tests {
             .unwrap();
             assert_eq!(a.trace.frames, (0..n).collect::<Vec<_>>(), "{n} frames");
             assert_eq!(a.trace.drive.len(), n as usize);
+        }
+    }
+
+    /// Tracking between a video decoder's frames (read in place) and tracking frames read
+    /// into memory first (the queue of the other path) give the same trace, whole clip and
+    /// time window alike. Synthetic fast-tool fixture (invented bench, known truth).
+    #[cfg(feature = "ffmpeg")]
+    #[test]
+    fn inline_and_queued_tracking_agree_exactly() {
+        let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/fast-tool");
+        let rig_path = dir.join("rig.json");
+        let rig = Rig::from_path(&rig_path).unwrap();
+        let windows = [
+            AnalyzeOptions::default(),
+            AnalyzeOptions {
+                start_s: Some(0.010),
+                end_s: Some(0.040),
+                ..AnalyzeOptions::default()
+            },
+        ];
+        for clip in ["clip_h264.mp4", "clip_ffv1.mkv", "clip_mjpeg.avi"] {
+            let path = dir.join(clip);
+            let mut src = decode::open(&path).unwrap();
+            let fps = src.info().container_fps_hz;
+            let mut frames = Vec::new();
+            let mut f = Frame::empty();
+            while src.read_into(&mut f).unwrap() {
+                frames.push(f.clone());
+            }
+            for opts in &windows {
+                let inline = analyze_source(
+                    decode::open(&path).unwrap(),
+                    &rig,
+                    &rig_path,
+                    opts,
+                    &|_, _| {},
+                )
+                .unwrap();
+                let memory = Box::new(MemorySource::new(frames.clone(), fps));
+                assert!(!memory.decodes_in_background());
+                let queued = analyze_source(memory, &rig, &rig_path, opts, &|_, _| {}).unwrap();
+                assert!(!inline.trace.frames.is_empty());
+                assert_eq!(inline.trace.frames, queued.trace.frames, "{clip}");
+                assert_eq!(inline.trace.drive, queued.trace.drive, "{clip}");
+                assert_eq!(inline.trace.nut, queued.trace.nut, "{clip}");
+            }
+        }
+    }
+
+    #[cfg(feature = "ffmpeg")]
+    #[test]
+    fn threaded_video_decoders_are_tracked_inline() {
+        let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/fast-tool");
+        let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
+        for clip in ["clip_h264.mp4", "clip_ffv1.mkv"] {
+            let src = decode::open(&dir.join(clip)).unwrap();
+            assert_eq!(src.decodes_in_background(), threads > 1, "{clip}");
         }
     }
 }

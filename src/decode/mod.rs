@@ -69,9 +69,23 @@ impl Frame {
         }
     }
 
+    /// The frame borrowed, as the tracker reads it.
+    pub fn view(&self) -> FrameRef<'_> {
+        FrameRef {
+            index: self.index,
+            width: self.width,
+            height: self.height,
+            bit_depth: self.bit_depth,
+            luma: match &self.luma {
+                Luma::U8(d) => LumaRef::U8(d),
+                Luma::U16(d) => LumaRef::U16(d),
+            },
+        }
+    }
+
     /// The largest possible sample value (255 for 8 bit).
     pub fn max_value(&self) -> f32 {
-        ((1u32 << self.bit_depth) - 1) as f32
+        self.view().max_value()
     }
 
     /// The sample at integer pixel (x, y), scaled to 0..=1.
@@ -79,11 +93,7 @@ impl Frame {
     /// # Panics
     /// When (x, y) is outside the frame.
     pub fn value(&self, x: u32, y: u32) -> f32 {
-        let i = y as usize * self.width as usize + x as usize;
-        match &self.luma {
-            Luma::U8(d) => d[i] as f32 / 255.0,
-            Luma::U16(d) => d[i] as f32 / self.max_value(),
-        }
+        self.view().value(x, y)
     }
 
     /// A simple checksum of the luma samples (FNV-1a over the sample values as little-endian
@@ -101,6 +111,51 @@ impl Frame {
                 .for_each(|&v| v.to_le_bytes().into_iter().for_each(&mut eat)),
         }
         h
+    }
+}
+
+/// Luma samples borrowed from a [`Frame`] or from a decoder's own picture: row-major,
+/// `width * height` values with no row padding, as in [`Luma`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum LumaRef<'a> {
+    /// 8-bit samples, 0..=255.
+    U8(&'a [u8]),
+    /// Deeper samples, 0..=max where max = 2^bit_depth − 1.
+    U16(&'a [u16]),
+}
+
+/// One frame as the tracker reads it, borrowed: a [`Frame`]'s buffer ([`Frame::view`]) or a
+/// video decoder's picture read in place ([`FrameSource::visit_next`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FrameRef<'a> {
+    /// Zero-based index of the frame in the clip.
+    pub index: u64,
+    /// Width in pixels.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+    /// Bits per luma sample (8 for `LumaRef::U8`).
+    pub bit_depth: u8,
+    /// The samples.
+    pub luma: LumaRef<'a>,
+}
+
+impl FrameRef<'_> {
+    /// The largest possible sample value (255 for 8 bit).
+    pub fn max_value(&self) -> f32 {
+        ((1u32 << self.bit_depth) - 1) as f32
+    }
+
+    /// The sample at integer pixel (x, y), scaled to 0..=1.
+    ///
+    /// # Panics
+    /// When (x, y) is outside the frame.
+    pub fn value(&self, x: u32, y: u32) -> f32 {
+        let i = y as usize * self.width as usize + x as usize;
+        match self.luma {
+            LumaRef::U8(d) => d[i] as f32 / 255.0,
+            LumaRef::U16(d) => d[i] as f32 / self.max_value(),
+        }
     }
 }
 
@@ -151,6 +206,31 @@ pub trait FrameSource: Send {
     /// [`Error::Decode`] with the frame index when a frame cannot be decoded, or
     /// [`Error::Input`] naming the file for a bad still.
     fn read_into(&mut self, frame: &mut Frame) -> Result<bool>;
+
+    /// Reads the next frame and hands it to `visit`; returns `Ok(false)` at the end (without
+    /// calling `visit`). A video decoder whose picture rows are packed lends its own picture
+    /// (no copy); every other case reads into `scratch` first, reusing its buffer.
+    ///
+    /// # Errors
+    /// As [`FrameSource::read_into`], or the first error `visit` returns.
+    fn visit_next(
+        &mut self,
+        scratch: &mut Frame,
+        visit: &mut dyn FnMut(FrameRef<'_>) -> Result<()>,
+    ) -> Result<bool> {
+        if !self.read_into(scratch)? {
+            return Ok(false);
+        }
+        visit(scratch.view())?;
+        Ok(true)
+    }
+
+    /// True when the source decodes on threads of its own (FFmpeg's frame or slice threads):
+    /// work done on the calling thread between frames then overlaps decoding, so
+    /// [`crate::analyze`] tracks there instead of on a second thread of its own.
+    fn decodes_in_background(&self) -> bool {
+        false
+    }
 }
 
 /// Opens a clip: a folder is read as numbered stills, anything else as a video file.

@@ -21,7 +21,7 @@ use ff::format::Pixel;
 use ff::packet::Ref as _;
 use ffmpeg_next as ff;
 
-use super::{ClipInfo, ClipKind, Frame, FrameSource, Luma, ffmpeg_init};
+use super::{ClipInfo, ClipKind, Frame, FrameRef, FrameSource, Luma, LumaRef, ffmpeg_init};
 use crate::error::{Error, Result};
 use crate::warning::Warning;
 
@@ -95,6 +95,8 @@ pub struct VideoSource {
     gray: ff::frame::Video,
     next_index: u64,
     eof_sent: bool,
+    /// FFmpeg decodes on threads of its own (frame or slice threading is active).
+    threaded: bool,
     done: bool,
 }
 
@@ -150,6 +152,11 @@ impl VideoSource {
                 ),
             )
         })?;
+        // SAFETY: the decoder wraps a valid, opened AVCodecContext.
+        let threaded = unsafe {
+            let c = decoder.as_ptr();
+            (*c).active_thread_type != 0 && (*c).thread_count > 1
+        };
         let (width, height) = (decoder.width(), decoder.height());
         if width == 0 || height == 0 {
             return Err(Error::input(
@@ -198,6 +205,7 @@ impl VideoSource {
             gray: ff::frame::Video::empty(),
             next_index: 0,
             eof_sent: false,
+            threaded,
             done: false,
         })
     }
@@ -214,8 +222,84 @@ impl VideoSource {
         }
     }
 
-    /// Copies the luma of `self.picture` into `frame`.
-    fn copy_out(&mut self, frame: &mut Frame) -> Result<()> {
+    /// Decodes until `self.picture` holds the next frame (`Ok(true)`; `next_index` is its
+    /// index) or the stream ends (`Ok(false)`), feeding packets as the decoder asks.
+    fn next_picture(&mut self) -> Result<bool> {
+        if self.done {
+            return Ok(false);
+        }
+        loop {
+            match self.decoder.receive_frame(&mut self.picture) {
+                Ok(()) => {
+                    // SAFETY: picture wraps a valid AVFrame just filled by the decoder.
+                    let (errors, flags) = unsafe {
+                        let p = self.picture.as_ptr();
+                        ((*p).decode_error_flags, (*p).flags)
+                    };
+                    if errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0 {
+                        self.done = true;
+                        return Err(self.decode_error(
+                            "the frame is damaged (the decoder had to conceal errors); the file \
+                             may be cut short or corrupt: re-export it, or analyse only the frames \
+                             before this one with --end-s"
+                                .into(),
+                        ));
+                    }
+                    return Ok(true);
+                }
+                Err(ff::Error::Eof) => {
+                    self.done = true;
+                    return Ok(false);
+                }
+                Err(ff::Error::Other { errno }) if errno == ff::util::error::EAGAIN => {}
+                Err(e) => {
+                    self.done = true;
+                    return Err(self.decode_error(format!("the decoder failed: {e}")));
+                }
+            }
+            if self.eof_sent {
+                // Drained but no end-of-stream marker: treat as the end.
+                self.done = true;
+                return Ok(false);
+            }
+            // Feed the next packet of the video stream.
+            loop {
+                // `Packet::read` (av_read_frame) does not release the packet's previous
+                // buffer, so without this every packet read stays allocated and memory grows
+                // with the clip (about 0.5 MB per 720p FFV1 frame).
+                // SAFETY: the packet is a valid AVPacket owned by self; unref leaves it blank.
+                unsafe { ff::ffi::av_packet_unref(ff::packet::Mut::as_mut_ptr(&mut self.packet)) };
+                match self.packet.read(&mut self.ictx) {
+                    Ok(()) if self.packet.stream() == self.stream_index => {
+                        if let Err(e) = self.decoder.send_packet(&self.packet) {
+                            self.done = true;
+                            return Err(self.decode_error(format!(
+                                "damaged data ({e}); the file may be cut short or corrupt"
+                            )));
+                        }
+                        break;
+                    }
+                    Ok(()) => continue,
+                    Err(ff::Error::Eof) => {
+                        // Any error here is about flushing; the drain above reports real ones.
+                        let _ = self.decoder.send_eof();
+                        self.eof_sent = true;
+                        break;
+                    }
+                    Err(e) => {
+                        self.done = true;
+                        return Err(self.decode_error(format!(
+                            "cannot read the file ({e}); it may be cut short or corrupt"
+                        )));
+                    }
+                }
+            }
+        }
+    }
+
+    /// How to read the luma of `self.picture`, after checking that its size and depth are
+    /// the clip's.
+    fn picture_plan(&self) -> Result<LumaPlan> {
         let (w, h) = (self.picture.width(), self.picture.height());
         if w != self.info.width || h != self.info.height {
             return Err(self.decode_error(format!(
@@ -231,6 +315,30 @@ impl VideoSource {
                 plan.bit_depth()
             )));
         }
+        Ok(plan)
+    }
+
+    /// The luma of `self.picture` in place, when its 8-bit Y rows are packed (stride = width,
+    /// one byte per sample); None when it must be copied or converted.
+    fn picture_in_place(&self, plan: LumaPlan) -> Option<FrameRef<'_>> {
+        let (w, h) = (self.info.width as usize, self.info.height as usize);
+        if plan != (LumaPlan::Direct8 { offset: 0, step: 1 }) || self.picture.stride(0) != w {
+            return None;
+        }
+        let data = self.picture.data(0);
+        Some(FrameRef {
+            index: self.next_index,
+            width: self.info.width,
+            height: self.info.height,
+            bit_depth: 8,
+            luma: LumaRef::U8(data.get(..w * h)?),
+        })
+    }
+
+    /// Copies the luma of `self.picture` into `frame`.
+    fn copy_out(&mut self, frame: &mut Frame) -> Result<()> {
+        let plan = self.picture_plan()?;
+        let (w, h) = (self.picture.width(), self.picture.height());
         frame.index = self.next_index;
         frame.width = w;
         frame.height = h;
@@ -451,81 +559,48 @@ impl FrameSource for VideoSource {
     }
 
     fn read_into(&mut self, frame: &mut Frame) -> Result<bool> {
-        if self.done {
+        if !self.next_picture()? {
             return Ok(false);
         }
-        loop {
-            match self.decoder.receive_frame(&mut self.picture) {
-                Ok(()) => {
-                    // SAFETY: picture wraps a valid AVFrame just filled by the decoder.
-                    let (errors, flags) = unsafe {
-                        let p = self.picture.as_ptr();
-                        ((*p).decode_error_flags, (*p).flags)
-                    };
-                    if errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0 {
-                        self.done = true;
-                        return Err(self.decode_error(
-                            "the frame is damaged (the decoder had to conceal errors); the file \
-                             may be cut short or corrupt: re-export it, or analyse only the frames \
-                             before this one with --end-s"
-                                .into(),
-                        ));
-                    }
-                    if let Err(e) = self.copy_out(frame) {
-                        self.done = true;
-                        return Err(e);
-                    }
-                    self.next_index += 1;
-                    return Ok(true);
-                }
-                Err(ff::Error::Eof) => {
-                    self.done = true;
-                    return Ok(false);
-                }
-                Err(ff::Error::Other { errno }) if errno == ff::util::error::EAGAIN => {}
-                Err(e) => {
-                    self.done = true;
-                    return Err(self.decode_error(format!("the decoder failed: {e}")));
-                }
-            }
-            if self.eof_sent {
-                // Drained but no end-of-stream marker: treat as the end.
-                self.done = true;
-                return Ok(false);
-            }
-            // Feed the next packet of the video stream.
-            loop {
-                // `Packet::read` (av_read_frame) does not release the packet's previous
-                // buffer, so without this every packet read stays allocated and memory grows
-                // with the clip (about 0.5 MB per 720p FFV1 frame).
-                // SAFETY: the packet is a valid AVPacket owned by self; unref leaves it blank.
-                unsafe { ff::ffi::av_packet_unref(ff::packet::Mut::as_mut_ptr(&mut self.packet)) };
-                match self.packet.read(&mut self.ictx) {
-                    Ok(()) if self.packet.stream() == self.stream_index => {
-                        if let Err(e) = self.decoder.send_packet(&self.packet) {
-                            self.done = true;
-                            return Err(self.decode_error(format!(
-                                "damaged data ({e}); the file may be cut short or corrupt"
-                            )));
-                        }
-                        break;
-                    }
-                    Ok(()) => continue,
-                    Err(ff::Error::Eof) => {
-                        // Any error here is about flushing; the drain above reports real ones.
-                        let _ = self.decoder.send_eof();
-                        self.eof_sent = true;
-                        break;
-                    }
-                    Err(e) => {
-                        self.done = true;
-                        return Err(self.decode_error(format!(
-                            "cannot read the file ({e}); it may be cut short or corrupt"
-                        )));
-                    }
-                }
-            }
+        if let Err(e) = self.copy_out(frame) {
+            self.done = true;
+            return Err(e);
         }
+        self.next_index += 1;
+        Ok(true)
+    }
+
+    fn visit_next(
+        &mut self,
+        scratch: &mut Frame,
+        visit: &mut dyn FnMut(FrameRef<'_>) -> Result<()>,
+    ) -> Result<bool> {
+        if !self.next_picture()? {
+            return Ok(false);
+        }
+        let plan = match self.picture_plan() {
+            Ok(plan) => plan,
+            Err(e) => {
+                self.done = true;
+                return Err(e);
+            }
+        };
+        let visited = match self.picture_in_place(plan) {
+            Some(view) => visit(view),
+            None => {
+                if let Err(e) = self.copy_out(scratch) {
+                    self.done = true;
+                    return Err(e);
+                }
+                visit(scratch.view())
+            }
+        };
+        self.next_index += 1;
+        visited.map(|()| true)
+    }
+
+    fn decodes_in_background(&self) -> bool {
+        self.threaded
     }
 }
 
@@ -646,6 +721,85 @@ mod tests {
         w.finish().unwrap();
         let (_, frames) = decode_all(&p);
         assert_eq!(frames, input);
+    }
+
+    /// Every frame `visit_next` lends, as owned frames, and whether `scratch` stayed unused
+    /// (every picture read in place).
+    fn visit_all(path: &Path) -> (Vec<Frame>, bool) {
+        let mut src = VideoSource::open(path).unwrap();
+        let mut scratch = Frame::empty();
+        let mut out = Vec::new();
+        while src
+            .visit_next(&mut scratch, &mut |f| {
+                let LumaRef::U8(d) = f.luma else {
+                    panic!("8-bit expected")
+                };
+                out.push(Frame::from_u8(f.index, f.width, f.height, d.to_vec()));
+                Ok(())
+            })
+            .unwrap()
+        {}
+        (out, scratch.width == 0)
+    }
+
+    #[test]
+    fn visiting_reads_packed_pictures_in_place_and_copies_the_rest() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        // 64 px rows are packed in FFmpeg's pictures; 37 px rows are padded to a larger stride.
+        for (w, h, in_place) in [(64, 12, true), (37, 11, false)] {
+            let p = dir.path().join(format!("v{w}.mkv"));
+            let mut wr = ClipWriter::create(&p, Codec::Ffv1, w, h, 30.0).unwrap();
+            let input: Vec<Frame> = (0..5).map(|i| pattern(i, w, h)).collect();
+            for f in &input {
+                wr.write(f).unwrap();
+            }
+            wr.finish().unwrap();
+            let (visited, untouched) = visit_all(&p);
+            assert_eq!(visited, input, "{w}x{h}");
+            assert_eq!(untouched, in_place, "{w}x{h}: read in place");
+            assert_eq!(decode_all(&p).1, input, "{w}x{h}: read_into");
+        }
+        // Packed RGB goes through swscale into the scratch frame.
+        let p = dir.path().join("rgb.mkv");
+        let mut wr = ClipWriter::create_rgb_for_tests(&p, 32, 8).unwrap();
+        for i in 0..3 {
+            wr.write(&pattern(i, 32, 8)).unwrap();
+        }
+        wr.finish().unwrap();
+        let (visited, untouched) = visit_all(&p);
+        assert!(!untouched);
+        assert_eq!(visited, decode_all(&p).1);
+    }
+
+    #[test]
+    fn a_visit_error_stops_the_visit_and_is_returned() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("e.mkv");
+        let mut wr = ClipWriter::create(&p, Codec::Ffv1, 16, 16, 30.0).unwrap();
+        for i in 0..3 {
+            wr.write(&pattern(i, 16, 16)).unwrap();
+        }
+        wr.finish().unwrap();
+        let mut src = VideoSource::open(&p).unwrap();
+        let mut scratch = Frame::empty();
+        let err = src
+            .visit_next(&mut scratch, &mut |_| {
+                Err(Error::input(Path::new("x"), "stop here"))
+            })
+            .unwrap_err();
+        assert!(err.to_string().contains("stop here"), "{err}");
+        // The next call goes on with the next frame.
+        let mut next = None;
+        assert!(
+            src.visit_next(&mut scratch, &mut |f| {
+                next = Some(f.index);
+                Ok(())
+            })
+            .unwrap()
+        );
+        assert_eq!(next, Some(1));
     }
 
     #[test]

@@ -27,7 +27,7 @@
 
 use std::path::Path;
 
-use crate::decode::Frame;
+use crate::decode::{Frame, FrameRef};
 use crate::error::{Error, Result};
 use crate::rig::{Mark, Rig, Role};
 use crate::units::{Angle, TimeBase};
@@ -194,6 +194,14 @@ impl Tracker {
     /// [`crate::Error::Mark`] when a mark shows no paint at all in the first frame;
     /// [`crate::Error::Input`] when the frame's size differs from the clip's.
     pub fn push(&mut self, frame: &Frame) -> Result<()> {
+        self.push_ref(frame.view())
+    }
+
+    /// As [`Tracker::push`], for a borrowed frame (a decoder's picture read in place).
+    ///
+    /// # Errors
+    /// As [`Tracker::push`].
+    pub fn push_ref(&mut self, frame: FrameRef<'_>) -> Result<()> {
         if (frame.width, frame.height) != (self.width, self.height) {
             return Err(Error::Input {
                 path: "(clip)".into(),
@@ -230,7 +238,7 @@ impl Tracker {
     /// fixed mark's stripe is measured here only (a fixed mark without paint is an error). This
     /// is a clip's costliest step (tens of milliseconds at 720p, while the decoder waits), and
     /// the marks are independent, so the drive mark learns on another thread.
-    fn learn(&mut self, frame: &Frame) -> Result<()> {
+    fn learn(&mut self, frame: FrameRef<'_>) -> Result<()> {
         let shift = self.shift;
         let Tracker {
             drive,
@@ -313,7 +321,12 @@ impl Tracker {
 }
 
 /// Measures one mark in one frame, appending to its series; returns the raw angle.
-fn measure(t: &mut MarkTrack, frame: &Frame, shift: [f64; 2], first: bool) -> Result<Option<f64>> {
+fn measure(
+    t: &mut MarkTrack,
+    frame: FrameRef<'_>,
+    shift: [f64; 2],
+    first: bool,
+) -> Result<Option<f64>> {
     if t.side.is_some() {
         return side::measure(t, frame, shift, first);
     }

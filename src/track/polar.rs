@@ -14,7 +14,7 @@
 use std::f64::consts::PI;
 
 use super::gather::{self, Sample, Shift};
-use crate::decode::{Frame, Luma};
+use crate::decode::{FrameRef, LumaRef};
 use crate::rig::RadialMark;
 
 /// Target spacing of angular samples along the mid-radius circle, px.
@@ -180,13 +180,13 @@ impl PolarGrid {
     ///
     /// # Panics
     /// When `out` has the wrong length or the frame size differs from the grid's.
-    pub fn sample(&self, frame: &Frame, shift: [f64; 2], out: &mut [f32]) {
+    pub fn sample(&self, frame: FrameRef<'_>, shift: [f64; 2], out: &mut [f32]) {
         assert_eq!(out.len(), self.offset.len());
         self.sample_range(frame, shift, 0..self.offset.len(), out);
     }
 
     /// Samples ring `k` only, into its place in `out` (laid out as for [`Self::sample`]).
-    pub fn sample_ring(&self, frame: &Frame, shift: [f64; 2], k: usize, out: &mut [f32]) {
+    pub fn sample_ring(&self, frame: FrameRef<'_>, shift: [f64; 2], k: usize, out: &mut [f32]) {
         let n = self.bins;
         self.sample_range(
             frame,
@@ -203,7 +203,7 @@ impl PolarGrid {
     #[allow(clippy::too_many_arguments)]
     pub fn sample_span(
         &self,
-        frame: &Frame,
+        frame: FrameRef<'_>,
         shift: [f64; 2],
         k: usize,
         from: i64,
@@ -219,9 +219,9 @@ impl PolarGrid {
         if stride > 1 {
             let scale = 1.0 / frame.max_value();
             let span = (k, from, to, stride);
-            match &frame.luma {
-                Luma::U8(d) => self.sample_strided(d, scale, shift, span, out),
-                Luma::U16(d) => self.sample_strided(d, scale, shift, span, out),
+            match frame.luma {
+                LumaRef::U8(d) => self.sample_strided(d, scale, shift, span, out),
+                LumaRef::U16(d) => self.sample_strided(d, scale, shift, span, out),
             }
             return (from, to);
         }
@@ -246,7 +246,7 @@ impl PolarGrid {
     /// Samples the grid points `range` (flat, ring-major indices) into `out` (same length).
     fn sample_range(
         &self,
-        frame: &Frame,
+        frame: FrameRef<'_>,
         shift: [f64; 2],
         range: std::ops::Range<usize>,
         out: &mut [f32],
@@ -256,9 +256,9 @@ impl PolarGrid {
             (self.width, self.height)
         );
         let scale = 1.0 / frame.max_value();
-        match &frame.luma {
-            Luma::U8(d) => self.sample_t(d, scale, shift, range, out),
-            Luma::U16(d) => self.sample_t(d, scale, shift, range, out),
+        match frame.luma {
+            LumaRef::U8(d) => self.sample_t(d, scale, shift, range, out),
+            LumaRef::U16(d) => self.sample_t(d, scale, shift, range, out),
         }
     }
 
@@ -351,6 +351,7 @@ fn disc_to_screen(mark: &RadialMark) -> [[f64; 2]; 2] {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::decode::Frame;
     use crate::rig::{Ellipse, Spin};
 
     fn mark(ellipse: Option<Ellipse>) -> RadialMark {
@@ -370,7 +371,7 @@ mod tests {
         let frame = Frame::from_u8(0, w, h, data);
         let g = PolarGrid::new(&mark(None), w, h);
         let mut out = vec![0.0; g.rings * g.bins];
-        g.sample(&frame, [0.0, 0.0], &mut out);
+        g.sample(frame.view(), [0.0, 0.0], &mut out);
         for k in 0..g.rings {
             for j in (0..g.bins).step_by(17) {
                 let a = g.step() * j as f64;
@@ -380,7 +381,7 @@ mod tests {
         }
         // A shift of +1.5 px in x reads 1.5 grey levels more.
         let mut shifted = vec![0.0; out.len()];
-        g.sample(&frame, [1.5, 0.0], &mut shifted);
+        g.sample(frame.view(), [1.5, 0.0], &mut shifted);
         for (a, b) in out.iter().zip(&shifted) {
             assert!((b - a - 1.5 / 255.0).abs() < 1e-4);
         }

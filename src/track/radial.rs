@@ -42,7 +42,7 @@ use std::f64::consts::PI;
 
 use super::polar::{PolarGrid, WHOLE_RING};
 use super::unwrap::{unwrap_near, wrap_pi};
-use crate::decode::Frame;
+use crate::decode::FrameRef;
 
 /// Candidate stripe half-widths tried in the first frame, px of arc.
 const HALF_WIDTHS_PX: [f64; 11] = [1.0, 1.5, 2.0, 3.0, 4.0, 5.5, 7.0, 9.0, 12.0, 16.0, 21.0];
@@ -115,7 +115,7 @@ struct Coarse {
 
 impl Coarse {
     /// Samples the coarse rings whole and measures each one's mean and noise.
-    fn load(&mut self, frame: &Frame, shift: [f64; 2]) {
+    fn load(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
         self.grid.sample(frame, shift, &mut self.polar);
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
@@ -275,7 +275,7 @@ impl RadialTracker {
     ///
     /// # Errors
     /// A one-line reason when the annulus shows no stripe.
-    pub fn init(&mut self, frame: &Frame, shift: [f64; 2]) -> Result<Measurement, String> {
+    pub fn init(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Result<Measurement, String> {
         self.grid.sample(frame, shift, &mut self.polar);
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
@@ -444,7 +444,7 @@ impl RadialTracker {
     /// noise level); each ring of the full grid is sampled only in the window its fine centre
     /// reads, and its noise level is the nearest coarse ring's, scaled by their ratio in the
     /// first frame.
-    pub fn measure(&mut self, frame: &Frame, shift: [f64; 2]) -> Option<Measurement> {
+    pub fn measure(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Option<Measurement> {
         let coarse = self.coarse.as_mut()?;
         coarse.load(frame, shift);
         for k in 0..self.grid.rings {
@@ -455,7 +455,7 @@ impl RadialTracker {
 
     /// Measures from the coarse grid's samples and the full grid's: all of those in the first
     /// frame (`src` is None), else sampled from `src` where the fine centres need them.
-    fn measure_at(&mut self, src: Option<(&Frame, [f64; 2])>) -> Option<Measurement> {
+    fn measure_at(&mut self, src: Option<(FrameRef<'_>, [f64; 2])>) -> Option<Measurement> {
         let model = self.model.take()?;
         let mut coarse = self.coarse.take()?;
         let out = self.measure_with(&model, &mut coarse, src);
@@ -479,7 +479,7 @@ impl RadialTracker {
         &mut self,
         model: &StripeModel,
         coarse: &mut Coarse,
-        src: Option<(&Frame, [f64; 2])>,
+        src: Option<(FrameRef<'_>, [f64; 2])>,
     ) -> Option<Measurement> {
         let first = src.is_none();
         let (k_n, n) = (self.grid.rings, self.grid.bins);
@@ -663,7 +663,7 @@ impl RadialTracker {
         flank: f64,
         polarity: f32,
         mut span: (i64, i64),
-        src: Option<(&Frame, [f64; 2])>,
+        src: Option<(FrameRef<'_>, [f64; 2])>,
     ) {
         let n = self.grid.bins;
         let ni = n as i64;

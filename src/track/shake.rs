@@ -21,7 +21,7 @@
 //! against a 5-tap pass over every pixel of the region). The points crowd along edges, so
 //! their blocks overlap: each smoothed pixel is computed once and shared ([`Shared`]).
 
-use crate::decode::{Frame, Luma};
+use crate::decode::{FrameRef, LumaRef};
 use crate::rig::RadialMark;
 
 /// Largest number of template pixels used.
@@ -134,7 +134,7 @@ impl ShakeEstimator {
 
     /// Takes the template from the first frame. Returns false when the patch has too little
     /// texture to register (then shake is not corrected).
-    pub fn init(&mut self, frame: &Frame) -> bool {
+    pub fn init(&mut self, frame: FrameRef<'_>) -> bool {
         self.load(frame);
         let (ox, oy, sw) = (self.origin[0], self.origin[1], self.size[0]);
         let sm = &self.smooth;
@@ -273,7 +273,7 @@ impl ShakeEstimator {
     /// or None when the patch no longer matches the first frame (correlation below
     /// `MIN_CORRELATION` after the photometric fit: the fixed mark is obscured or gone); the
     /// last good shift is then kept for the next frame's start.
-    pub fn estimate(&mut self, frame: &Frame) -> Option<[f64; 2]> {
+    pub fn estimate(&mut self, frame: FrameRef<'_>) -> Option<[f64; 2]> {
         self.blk_at = None;
         let mut d = self.shift;
         let n = self.pts.len() as f64;
@@ -321,14 +321,14 @@ impl ShakeEstimator {
     /// Smoothing makes the image locally close to linear over a pixel, which is what bilinear
     /// resampling and the gradient step assume; without it the shift locks to preferred
     /// sub-pixel phases ("peak locking", facts.md §7.3).
-    fn load(&mut self, frame: &Frame) {
+    fn load(&mut self, frame: FrameRef<'_>) {
         let scale = 1.0 / frame.max_value();
         let (ox, oy) = (self.origin[0], self.origin[1]);
         let [sw, sh] = self.size;
         let fw = frame.width as usize;
-        match &frame.luma {
-            Luma::U8(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
-            Luma::U16(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
+        match frame.luma {
+            LumaRef::U8(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
+            LumaRef::U16(v) => copy_region(v, fw, ox, oy, sw, sh, scale, &mut self.raw),
         }
         // Binomial kernel, horizontal then vertical; the borders repeat the edge sample.
         let clampi = |i: i64, n: usize| i.clamp(0, n as i64 - 1) as usize;
@@ -363,11 +363,11 @@ impl ShakeEstimator {
     /// Smooths, for every template point at the whole-pixel shift `whole`, the 2×2 block its
     /// bilinear sample reads, straight from the frame. Gives the same values as smoothing the
     /// whole region (`load`) and reading the block from it.
-    fn load_blocks(&mut self, frame: &Frame, whole: [i64; 2]) {
+    fn load_blocks(&mut self, frame: FrameRef<'_>, whole: [i64; 2]) {
         let scale = 1.0 / frame.max_value();
-        match &frame.luma {
-            Luma::U8(v) => self.blocks_t(v, frame.width as usize, scale, whole),
-            Luma::U16(v) => self.blocks_t(v, frame.width as usize, scale, whole),
+        match frame.luma {
+            LumaRef::U8(v) => self.blocks_t(v, frame.width as usize, scale, whole),
+            LumaRef::U16(v) => self.blocks_t(v, frame.width as usize, scale, whole),
         }
     }
 
@@ -528,6 +528,7 @@ fn copy_region<T: Copy + Into<f32>>(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::decode::Frame;
     use crate::rig::Mark;
     use crate::synth::{Scenario, render_frame, simulate};
 
@@ -547,10 +548,10 @@ mod tests {
             ellipse: None,
         };
         let mut est = ShakeEstimator::new(&mark, w, h);
-        est.load(&frame);
+        est.load(frame.view());
         let sw = est.size[0];
         for whole in [[0i64, 0], [3, -2], [-9, 7], [-30, 30], [12, -14]] {
-            est.load_blocks(&frame, whole);
+            est.load_blocks(frame.view(), whole);
             let d = [whole[0] as f64, whole[1] as f64];
             for (i, p) in est.pts.iter().enumerate() {
                 let ([x0, y0], _) = est.cell(*p, d);
@@ -576,7 +577,7 @@ mod tests {
             panic!("preset has a fixed mark")
         };
         let mut est = ShakeEstimator::new(m, sc.scene.width, sc.scene.height);
-        assert!(est.init(&render_frame(&sc, &truth, 0)));
+        assert!(est.init(render_frame(&sc, &truth, 0).view()));
         let plan = est.shared.take().expect("init plans the shared pixels");
         // The blocks share pixels: fewer smoothed pixels than four per point.
         assert!(
@@ -588,15 +589,15 @@ mod tests {
         let frame = render_frame(&sc, &truth, 5);
         for whole in [[0i64, 0], [1, -1], [-3, 2], [5, 4]] {
             est.shared = None;
-            est.load_blocks(&frame, whole);
+            est.load_blocks(frame.view(), whole);
             let per_point = est.blk.clone();
             est.shared = Some(plan.clone());
-            est.load_blocks(&frame, whole);
+            est.load_blocks(frame.view(), whole);
             assert_eq!(est.blk, per_point, "shift {whole:?}");
         }
         // A shift that takes blocks past the region's edge falls back to the per-point path.
         est.shared = Some(plan);
-        est.load_blocks(&frame, [-40, 0]);
+        est.load_blocks(frame.view(), [-40, 0]);
     }
 
     #[test]
@@ -615,10 +616,10 @@ mod tests {
         };
         let mut est = ShakeEstimator::new(m, sc.scene.width, sc.scene.height);
         let f0 = render_frame(&sc, &truth, 0);
-        assert!(est.init(&f0));
+        assert!(est.init(f0.view()));
         let (mut worst, mut sq) = (0.0f64, 0.0f64);
         for i in 1..40 {
-            let d = est.estimate(&render_frame(&sc, &truth, i)).unwrap();
+            let d = est.estimate(render_frame(&sc, &truth, i).view()).unwrap();
             let t = truth.shake_px[i as usize];
             let t0 = truth.shake_px[0];
             let e = (d[0] - (t[0] - t0[0])).hypot(d[1] - (t[1] - t0[1]));

@@ -22,7 +22,7 @@
 
 use std::f64::consts::{PI, TAU};
 
-use crate::decode::Frame;
+use crate::decode::FrameRef;
 use crate::rig::SideMark;
 
 /// Largest angle from facing the camera at which a stripe is measured, degrees.
@@ -117,7 +117,7 @@ impl SideTracker {
     }
 
     /// The mean luma across the bar at each profile angle, into `out`.
-    fn profile(&self, frame: &Frame, shift: [f64; 2], out: &mut Vec<f32>) {
+    fn profile(&self, frame: FrameRef<'_>, shift: [f64; 2], out: &mut Vec<f32>) {
         let (w, h) = (frame.width, frame.height);
         let at = |x: f64, y: f64| -> f32 {
             let x = x.clamp(0.0, f64::from(w) - 1.0);
@@ -190,7 +190,7 @@ impl SideTracker {
     }
 
     /// First frame: finds the stripe nearest to facing the camera, its polarity and width.
-    pub(crate) fn init(&mut self, frame: &Frame, shift: [f64; 2]) -> Result<f64, String> {
+    pub(crate) fn init(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Result<f64, String> {
         let mut prof = Vec::new();
         self.profile(frame, shift, &mut prof);
         // Polarity: does the most contrasting narrow feature stand above or below its
@@ -243,7 +243,7 @@ impl SideTracker {
 
     /// The bar angle (continuous, rad) in a later frame, or None when no stripe can be
     /// measured reliably.
-    pub(crate) fn measure(&mut self, frame: &Frame, shift: [f64; 2]) -> Option<(f64, f32)> {
+    pub(crate) fn measure(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Option<(f64, f32)> {
         let mut prof = std::mem::take(&mut self.prof);
         self.profile(frame, shift, &mut prof);
         let out = self.measure_profile(&prof);
@@ -339,7 +339,7 @@ pub(super) fn stand_in(m: &SideMark) -> crate::rig::RadialMark {
 /// Measures a side mark in one frame into its track (the side branch of `measure`).
 pub(super) fn measure(
     t: &mut super::MarkTrack,
-    frame: &Frame,
+    frame: FrameRef<'_>,
     shift: [f64; 2],
     first: bool,
 ) -> crate::error::Result<Option<f64>> {
@@ -394,9 +394,9 @@ mod tests {
         for (i, a) in angles_deg.iter().enumerate() {
             let f = sc.render(i as u64, a.to_radians());
             let v = if i == 0 {
-                Some(t.init(&f, [0.0, 0.0]).unwrap())
+                Some(t.init(f.view(), [0.0, 0.0]).unwrap())
             } else {
-                t.measure(&f, [0.0, 0.0]).map(|m| m.0)
+                t.measure(f.view(), [0.0, 0.0]).map(|m| m.0)
             };
             out.push(v.map(f64::to_degrees));
         }
