@@ -40,7 +40,7 @@ fn main() {
     }
     let mut short_frames = 150u64;
     let mut mode = "short";
-    let mut runs = 2usize;
+    let mut runs = 3usize;
     let mut only: Option<Vec<String>> = None;
     let mut it = args.iter();
     while let Some(a) = it.next() {
@@ -51,7 +51,7 @@ fn main() {
                 short_frames = it.next().and_then(|v| v.parse().ok()).unwrap_or(150);
                 mode = "custom";
             }
-            "--runs" => runs = it.next().and_then(|v| v.parse().ok()).unwrap_or(2).max(1),
+            "--runs" => runs = it.next().and_then(|v| v.parse().ok()).unwrap_or(3).max(1),
             "--codecs" => {
                 only = it
                     .next()
@@ -103,11 +103,18 @@ fn main() {
         let (mut rss_short, mut rss_long) = (0u64, 0u64);
         let mut decoded = 0;
         let mut pairs = Vec::with_capacity(runs);
-        for _ in 0..runs {
-            let (t, n) = decode_only(long);
+        for run in 0..runs {
+            // Decode first in even runs and analyze first in odd ones, so a machine that
+            // speeds up or slows down steadily does not favour either side of the pairs.
+            let ((t, n), (ta, rss)) = if run % 2 == 0 {
+                let d = decode_only(long);
+                (d, analyze(&bin, long, &rig_path, &out_dir))
+            } else {
+                let a = analyze(&bin, long, &rig_path, &out_dir);
+                (decode_only(long), a)
+            };
             decoded = n;
             dec = dec.min(t);
-            let (ta, rss) = analyze(&bin, long, &rig_path, &out_dir);
             ana = ana.min(ta);
             pairs.push(ta / t);
             rss_long = rss_long.max(rss);
@@ -152,15 +159,19 @@ fn main() {
         "long/sh",
         "RSS@20k MB"
     );
+    // The speed verdict uses the median of the back-to-back pairs: each pair is measured
+    // under the same machine conditions (decode and analyze one after the other, in
+    // alternating order), while the fastest decode and the fastest analyze may come from
+    // minutes apart on a machine whose speed drifts, which biases their ratio either way.
     let mut all_ok = true;
-    let mut pairs_ok = true;
+    let mut fastest_ok = true;
     for r in &rows {
         let ratio = r.analyze_s / r.decode_s;
         let growth = r.rss_long_kb as f64 / r.rss_short_kb.max(1) as f64;
         let at_20k = r.rss_at(short_frames, long_frames, 20_000);
-        let ok = ratio <= TIME_TARGET && growth <= RSS_GROWTH_TARGET && at_20k < RSS_TARGET_MB;
-        all_ok &= ok;
-        pairs_ok &= r.median_pair() <= TIME_TARGET;
+        all_ok &=
+            r.median_pair() <= TIME_TARGET && growth <= RSS_GROWTH_TARGET && at_20k < RSS_TARGET_MB;
+        fastest_ok &= ratio <= TIME_TARGET;
         println!(
             "{:<5} {:>7} {:>10.3} {:>10.3} {:>10} {:>8.3} {:>7.1} MB {:>7.1} MB {:>9.3} {:>11.1}",
             r.name,
@@ -205,7 +216,7 @@ fn main() {
         );
     }
     println!(
-        "verdict: {}",
+        "verdict (speed: median back-to-back pair; memory as above): {}",
         if all_ok {
             "within target"
         } else {
@@ -213,8 +224,8 @@ fn main() {
         }
     );
     println!(
-        "speed by the median back-to-back pair (stricter where the machine's speed drifts): {}",
-        if pairs_ok {
+        "for comparison, speed by the fastest decode against the fastest analyze (an/dec column): {}",
+        if fastest_ok {
             "within target"
         } else {
             "NOT within target"
@@ -390,7 +401,10 @@ fn decode_only(clip: &Path) -> (f64, u64) {
     while src.visit_next(&mut f, &mut |_| Ok(())).expect("decode") {
         n += 1;
     }
-    assert!(f.width == 0, "the bench clip's pictures were copied, not read in place");
+    assert!(
+        f.width == 0,
+        "the bench clip's pictures were copied, not read in place"
+    );
     (t.elapsed().as_secs_f64(), n)
 }
 

@@ -7,7 +7,8 @@
 #   tools/bench.sh --full     2,000 / 20,000 frames (renders and encodes about 45,000 frames
 #                             on the first run; cached in target/bench-clips/ afterwards)
 #   tools/bench.sh --frames N N / 10 N frames
-#   add --runs R              fastest of R runs per measurement (default 2)
+#   add --runs R              R alternating decode/analyze pairs per clip (default 3); the
+#                             verdict uses the median pair, the fastest of each is shown too
 #   add --codecs h264         only these clips (comma list of h264, ffv1); e.g. --full --codecs h264
 #                             measures the 20,000-frame RSS without the 5.8 GB FFV1 clip
 #
