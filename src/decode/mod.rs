@@ -227,7 +227,7 @@ pub trait FrameSource: Send {
 
     /// True when the source decodes on threads of its own (FFmpeg's frame or slice threads):
     /// work done on the calling thread between frames then overlaps decoding, so
-    /// [`crate::analyze`] tracks there instead of on a second thread of its own.
+    /// [`crate::analyze::analyze_source`] tracks there instead of on a second thread of its own.
     fn decodes_in_background(&self) -> bool {
         false
     }
