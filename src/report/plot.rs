@@ -562,20 +562,9 @@ impl Plot for AdvancePlot<'_> {
 /// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
 pub fn write_plots(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
     let d = ClipPlotData::from_analysis(analysis);
-    // The three plots are independent: drawn side by side (a few milliseconds each, which
-    // count against a short clip's analysis time).
-    let (angles, (twist, advance)) = rayon::join(
-        || render(&AnglesPlot(&d), dir, "angles", CLIP_SIZE),
-        || {
-            rayon::join(
-                || render(&TwistPlot(&d), dir, "twist_torque", CLIP_SIZE),
-                || render(&AdvancePlot(&d), dir, "nut_advance", CLIP_SIZE),
-            )
-        },
-    );
-    let mut out = angles?;
-    out.extend(twist?);
-    out.extend(advance?);
+    let mut out = render(&AnglesPlot(&d), dir, "angles", CLIP_SIZE)?;
+    out.extend(render(&TwistPlot(&d), dir, "twist_torque", CLIP_SIZE)?);
+    out.extend(render(&AdvancePlot(&d), dir, "nut_advance", CLIP_SIZE)?);
     Ok(out)
 }
 
