@@ -1,7 +1,7 @@
 //! End-to-end speed and memory benchmark (issue 6): on the same rendered 1280×720 clip, in one
 //! run, it measures decoding alone through twistmark's own reader, with no copy of the
-//! pictures (and `ffmpeg -f null` as an outside reference when the ffmpeg command is installed), the full `twistmark analyze`
-//! (release binary), and the peak RSS of `analyze` on a short clip and one ten times longer.
+//! pictures (and `ffmpeg -f null` as an outside reference when the ffmpeg command is
+//! installed), the full `twistmark analyze` (release binary), and the peak RSS of `analyze` on a short clip and one ten times longer.
 //! It prints the ratios against the targets, and the tracker's own cost per frame (frames
 //! decoded into memory first); it never fails on a timing.
 //!

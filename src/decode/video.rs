@@ -214,6 +214,14 @@ impl VideoSource {
         self.info.path.clone()
     }
 
+    /// Passes `r` on; an error ends the stream (later reads return the end).
+    fn stop_on_error<T>(&mut self, r: Result<T>) -> Result<T> {
+        if r.is_err() {
+            self.done = true;
+        }
+        r
+    }
+
     fn decode_error(&self, reason: String) -> Error {
         Error::Decode {
             path: self.path(),
@@ -335,9 +343,8 @@ impl VideoSource {
         })
     }
 
-    /// Copies the luma of `self.picture` into `frame`.
-    fn copy_out(&mut self, frame: &mut Frame) -> Result<()> {
-        let plan = self.picture_plan()?;
+    /// Copies the luma of `self.picture` into `frame` by `plan` (from [`Self::picture_plan`]).
+    fn copy_out(&mut self, plan: LumaPlan, frame: &mut Frame) -> Result<()> {
         let (w, h) = (self.picture.width(), self.picture.height());
         frame.index = self.next_index;
         frame.width = w;
@@ -562,10 +569,10 @@ impl FrameSource for VideoSource {
         if !self.next_picture()? {
             return Ok(false);
         }
-        if let Err(e) = self.copy_out(frame) {
-            self.done = true;
-            return Err(e);
-        }
+        let copied = self
+            .picture_plan()
+            .and_then(|plan| self.copy_out(plan, frame));
+        self.stop_on_error(copied)?;
         self.next_index += 1;
         Ok(true)
     }
@@ -578,20 +585,13 @@ impl FrameSource for VideoSource {
         if !self.next_picture()? {
             return Ok(false);
         }
-        let plan = match self.picture_plan() {
-            Ok(plan) => plan,
-            Err(e) => {
-                self.done = true;
-                return Err(e);
-            }
-        };
+        let plan = self.picture_plan();
+        let plan = self.stop_on_error(plan)?;
         let visited = match self.picture_in_place(plan) {
             Some(view) => visit(view),
             None => {
-                if let Err(e) = self.copy_out(scratch) {
-                    self.done = true;
-                    return Err(e);
-                }
+                let copied = self.copy_out(plan, scratch);
+                self.stop_on_error(copied)?;
                 visit(scratch.view())
             }
         };
