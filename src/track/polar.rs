@@ -243,6 +243,63 @@ impl PolarGrid {
         (from, to)
     }
 
+    /// The taps of ring `k`'s bins `0, m, 2m, …` (below `bins`), in that order: the lattice a
+    /// fine centre reads on a ring whose bins are closer than it needs (`radial.rs`). Sampling
+    /// them with [`Self::sample_lattice`] gives exactly the values [`Self::sample_span`] gives at
+    /// those bins, into consecutive places, so a window can be read in place.
+    pub fn lattice(&self, k: usize, m: usize) -> LatticeTaps {
+        let flat: Vec<usize> = (0..self.bins)
+            .step_by(m.max(1))
+            .map(|j| k * self.bins + j)
+            .collect();
+        let idx: Vec<u32> = flat.iter().map(|&i| self.idx[i]).collect();
+        LatticeTaps {
+            range: (
+                idx.iter().copied().min().unwrap_or(0),
+                idx.iter().copied().max().unwrap_or(0),
+            ),
+            fx: flat.iter().map(|&i| self.fx[i]).collect(),
+            fy: flat.iter().map(|&i| self.fy[i]).collect(),
+            idx,
+        }
+    }
+
+    /// Samples lattice points `range` (positions in `lat`, which this grid made) into `out`
+    /// (same length), moved by `shift` exactly as [`Self::sample`] moves the grid.
+    pub fn sample_lattice(
+        &self,
+        lat: &LatticeTaps,
+        frame: FrameRef<'_>,
+        shift: [f64; 2],
+        range: std::ops::Range<usize>,
+        out: &mut [f32],
+    ) {
+        assert_eq!(
+            (frame.width as usize, frame.height as usize),
+            (self.width, self.height)
+        );
+        let scale = 1.0 / frame.max_value();
+        let pts = gather::Points {
+            idx: &lat.idx,
+            fx: &lat.fx,
+            fy: &lat.fy,
+        }
+        .range(range.start, range.end);
+        let sh = self.shift_parts(shift);
+        match frame.luma {
+            LumaRef::U8(d) => gather::bilinear(self.image(d, scale), pts, lat.range, sh, out),
+            LumaRef::U16(d) => gather::bilinear(self.image(d, scale), pts, lat.range, sh, out),
+        }
+    }
+
+    fn image<'a, T>(&self, d: &'a [T], scale: f32) -> gather::Image<'a, T> {
+        gather::Image {
+            d,
+            w: self.width,
+            scale,
+        }
+    }
+
     /// Samples the grid points `range` (flat, ring-major indices) into `out` (same length).
     fn sample_range(
         &self,
@@ -313,11 +370,7 @@ impl PolarGrid {
         range: std::ops::Range<usize>,
         out: &mut [f32],
     ) {
-        let img = gather::Image {
-            d,
-            w: self.width,
-            scale,
-        };
+        let img = self.image(d, scale);
         let pts = gather::Points {
             idx: &self.idx,
             fx: &self.fx,
@@ -330,6 +383,23 @@ impl PolarGrid {
             self.shift_parts(shift),
             out,
         );
+    }
+}
+
+/// The taps of every m-th bin of one ring ([`PolarGrid::lattice`]).
+#[derive(Debug, Clone)]
+pub(crate) struct LatticeTaps {
+    idx: Vec<u32>,
+    fx: Vec<f32>,
+    fy: Vec<f32>,
+    /// Smallest and largest of `idx`.
+    range: (u32, u32),
+}
+
+impl LatticeTaps {
+    /// Number of lattice points.
+    pub fn len(&self) -> usize {
+        self.idx.len()
     }
 }
 
@@ -384,6 +454,48 @@ mod tests {
         g.sample(frame.view(), [1.5, 0.0], &mut shifted);
         for (a, b) in out.iter().zip(&shifted) {
             assert!((b - a - 1.5 / 255.0).abs() < 1e-4);
+        }
+    }
+
+    #[test]
+    fn a_lattice_samples_exactly_what_strided_spans_sample() {
+        // A textured frame (a hash of the position), so any misplaced tap changes a value.
+        let (w, h) = (80u32, 60u32);
+        let data: Vec<u8> = (0..w * h)
+            .map(|i| (i.wrapping_mul(2_654_435_761) >> 24) as u8)
+            .collect();
+        let frame = Frame::from_u8(0, w, h, data);
+        let g = PolarGrid::new(&mark(None), w, h);
+        let n = g.bins as i64;
+        for shift in [[0.0, 0.0], [1.3, -0.7], [-2.5, 3.25]] {
+            for (k, m) in [(0usize, 2usize), (3, 3), (g.rings - 1, 5)] {
+                let lat = g.lattice(k, m);
+                assert_eq!(lat.len(), g.bins.div_ceil(m));
+                // A span inside the first turn, as the fine centres sample one.
+                let (q0, q1) = (7usize, lat.len() - 3);
+                let mut along = vec![f32::NAN; lat.len()];
+                g.sample_lattice(&lat, frame.view(), shift, q0..q1 + 1, &mut along[q0..=q1]);
+                let mut ring = vec![f32::NAN; g.rings * g.bins];
+                let span = g.sample_span(
+                    frame.view(),
+                    shift,
+                    k,
+                    (q0 * m) as i64,
+                    (q1 * m) as i64,
+                    m,
+                    &mut ring,
+                );
+                assert!(span.1 - span.0 < n);
+                for q in q0..=q1 {
+                    let v = ring[k * g.bins + q * m];
+                    assert_eq!(
+                        along[q].to_bits(),
+                        v.to_bits(),
+                        "ring {k}, m {m}, bin {}",
+                        q * m
+                    );
+                }
+            }
         }
     }
 

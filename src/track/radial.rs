@@ -40,7 +40,7 @@
 
 use std::f64::consts::PI;
 
-use super::polar::{PolarGrid, WHOLE_RING};
+use super::polar::{LatticeTaps, PolarGrid, WHOLE_RING};
 use super::unwrap::{unwrap_near, wrap_pi};
 use crate::decode::FrameRef;
 
@@ -210,6 +210,10 @@ pub(crate) struct RadialTracker {
     coarse: Option<Coarse>,
     /// Per ring: the fine centre reads every `stride[k]`-th bin.
     stride: Vec<usize>,
+    /// Per ring whose stride is above 1: the taps of its lattice bins, and their samples in
+    /// consecutive places (bin `q·stride` at `q`), so a window is read in place.
+    lat_taps: Vec<Option<LatticeTaps>>,
+    lat_vals: Vec<Vec<f32>>,
     model: Option<StripeModel>,
     /// Last good continuous angle, its velocity (rad/frame) and frames since it.
     last: Option<f64>,
@@ -234,9 +238,20 @@ impl RadialTracker {
             .radius
             .iter()
             .map(|&r| ((FINE_SPACING_PX / (r * grid.step())).floor() as usize).max(1))
+            .collect::<Vec<_>>();
+        let lat_taps: Vec<Option<LatticeTaps>> = stride
+            .iter()
+            .enumerate()
+            .map(|(r, &m)| (m > 1).then(|| grid.lattice(r, m)))
+            .collect();
+        let lat_vals = lat_taps
+            .iter()
+            .map(|t| vec![0.0; t.as_ref().map_or(0, LatticeTaps::len)])
             .collect();
         RadialTracker {
             stride,
+            lat_taps,
+            lat_vals,
             polar: vec![0.0; k * n],
             mean: vec![0.0; k],
             sigma: vec![0.0; k],
@@ -341,7 +356,7 @@ impl RadialTracker {
         let c0 = j_best as f64;
         for k in 0..k_n {
             let hw_b = hw_px / (self.grid.radius[k] * step);
-            self.fine_ring(k, c0, hw_b, hw_b.max(3.0), polarity, WHOLE_RING, None);
+            self.fine_ring(k, c0, hw_b, hw_b.max(3.0), polarity, None);
         }
         let valid = self.ring_ok.iter().filter(|&&o| o).count();
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
@@ -482,7 +497,7 @@ impl RadialTracker {
         src: Option<(FrameRef<'_>, [f64; 2])>,
     ) -> Option<Measurement> {
         let first = src.is_none();
-        let (k_n, n) = (self.grid.rings, self.grid.bins);
+        let k_n = self.grid.rings;
         let step = self.grid.step();
         coarse.score(model);
         let (n_c, step_c) = (coarse.grid.bins, coarse.grid.step());
@@ -539,27 +554,7 @@ impl RadialTracker {
             let hw_b = model.half_width_px / (self.grid.radius[k] * step) + extra;
             let c0 = centre + model.offset[k] / step;
             let flank = hw_b.max(3.0);
-            let span = match src {
-                Some((frame, shift)) => {
-                    // The window at c0 and two samples either side; `fine_ring` samples more if
-                    // its centre moves further.
-                    let (h, f) = fine_extent(hw_b, flank, n);
-                    let lat = Lattice::new(self.stride[k], f);
-                    let from = lat.down(c0 - h - 2.5 * lat.mf) - lat.flank_bins();
-                    let to = lat.up(c0 + h + 2.5 * lat.mf) + lat.flank_bins();
-                    self.grid.sample_span(
-                        frame,
-                        shift,
-                        k,
-                        from,
-                        to,
-                        self.stride[k],
-                        &mut self.polar,
-                    )
-                }
-                _ => WHOLE_RING,
-            };
-            self.fine_ring(k, c0, hw_b, flank, model.polarity, span, src);
+            self.fine_ring(k, c0, hw_b, flank, model.polarity, src);
         }
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
         if z_med < (LOST_Z_FRACTION * model.z_ref).max(RING_MIN_Z) {
@@ -650,11 +645,10 @@ impl RadialTracker {
     /// Fine centre of the stripe on ring `k` near bin `c0` (continuous). Sets `ring_c[k]`,
     /// `ring_z[k]` and `ring_ok[k]`.
     ///
-    /// Reads bins within `span` (unwrapped, inclusive), which the caller has sampled; when the
-    /// window moves past it, the missing bins are sampled from `src`. A window that would reach
-    /// beyond `2h` of c0 fails the ring (its centre has moved more than `h`, so it could not
-    /// count anyway).
-    #[allow(clippy::too_many_arguments)]
+    /// With a frame (`src`), samples the window at c0 and two samples either side, and more
+    /// when the window moves past them; without one, reads the whole ring from `polar` (the
+    /// first frame). A window that would reach beyond `2h` of c0 fails the ring (its centre has
+    /// moved more than `h`, so it could not count anyway).
     fn fine_ring(
         &mut self,
         k: usize,
@@ -662,7 +656,6 @@ impl RadialTracker {
         hw_b: f64,
         flank: f64,
         polarity: f32,
-        mut span: (i64, i64),
         src: Option<(FrameRef<'_>, [f64; 2])>,
     ) {
         let n = self.grid.bins;
@@ -678,6 +671,21 @@ impl RadialTracker {
             lat.down(c0 - 2.0 * h - 0.5 * mf) - lat.flank_bins(),
             lat.up(c0 + 2.0 * h + 0.5 * mf) + lat.flank_bins(),
         );
+        let first = (
+            lat.down(c0 - h - 2.5 * mf) - lat.flank_bins(),
+            lat.up(c0 + h + 2.5 * mf) + lat.flank_bins(),
+        );
+        // A strided ring whose window cannot leave the ring's first turn (bins 0..n) is
+        // sampled into its lattice's consecutive places and read there in place; otherwise
+        // the bins are sampled into their places on the ring (`polar`) and gathered.
+        let compact = src.is_some()
+            && self.lat_taps[k].is_some()
+            && limit.0.min(first.0) >= 0
+            && limit.1.max(first.1) < ni;
+        let mut span = match src {
+            Some((frame, shift)) => self.sample_bins(k, compact, frame, shift, first),
+            None => WHOLE_RING,
+        };
         let mut c = c0;
         let mut amp = 0.0;
         let mut ok = false;
@@ -695,32 +703,14 @@ impl RadialTracker {
                     break;
                 }
                 let want = (need_lo.min(span.0), need_hi.max(span.1));
-                let stride = self.stride[k];
                 span = if want.1 - want.0 + 1 >= ni {
-                    self.grid
-                        .sample_span(frame, shift, k, want.0, want.1, stride, &mut self.polar)
+                    self.sample_bins(k, compact, frame, shift, want)
                 } else {
                     if want.0 < span.0 {
-                        self.grid.sample_span(
-                            frame,
-                            shift,
-                            k,
-                            want.0,
-                            span.0 - m,
-                            stride,
-                            &mut self.polar,
-                        );
+                        self.sample_bins(k, compact, frame, shift, (want.0, span.0 - m));
                     }
                     if want.1 > span.1 {
-                        self.grid.sample_span(
-                            frame,
-                            shift,
-                            k,
-                            span.1 + m,
-                            want.1,
-                            stride,
-                            &mut self.polar,
-                        );
+                        self.sample_bins(k, compact, frame, shift, (span.1 + m, want.1));
                     }
                     want
                 };
@@ -730,7 +720,10 @@ impl RadialTracker {
             // far shorter than the ring, so one conditional wrap suffices).
             let ring = &self.polar[k * n..(k + 1) * n];
             let (from, to) = (lo - lat.flank_bins(), hi + lat.flank_bins());
-            let samples: &[f32] = if m == 1 && from >= 0 && to < ni {
+            let samples: &[f32] = if compact {
+                // Inside `span`, which lies within 0..n here.
+                &self.lat_vals[k][(from / m) as usize..=(to / m) as usize]
+            } else if m == 1 && from >= 0 && to < ni {
                 &ring[from as usize..=to as usize]
             } else {
                 let buf = &mut self.lattice;
@@ -792,6 +785,34 @@ impl RadialTracker {
         self.ring_c[k] = c;
         self.ring_z[k] = if ok { z } else { 0.0 };
         self.ring_ok[k] = ok && z >= RING_MIN_Z && (c - c0).abs() <= h;
+    }
+}
+
+impl RadialTracker {
+    /// Samples ring `k`'s lattice bins `from..=to` (unwrapped; multiples of its stride) from
+    /// `frame`: into the lattice's consecutive places when `compact` (the bins must then lie
+    /// within 0..n), else into their places on the ring. Returns the span sampled, as
+    /// [`PolarGrid::sample_span`] does.
+    fn sample_bins(
+        &mut self,
+        k: usize,
+        compact: bool,
+        frame: FrameRef<'_>,
+        shift: [f64; 2],
+        (from, to): (i64, i64),
+    ) -> (i64, i64) {
+        let m = self.stride[k] as i64;
+        match self.lat_taps[k].as_ref() {
+            Some(taps) if compact => {
+                let (a, b) = ((from / m) as usize, (to / m) as usize + 1);
+                let out = &mut self.lat_vals[k][a..b];
+                self.grid.sample_lattice(taps, frame, shift, a..b, out);
+                (from, to)
+            }
+            _ => self
+                .grid
+                .sample_span(frame, shift, k, from, to, self.stride[k], &mut self.polar),
+        }
     }
 }
 
