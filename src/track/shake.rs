@@ -14,12 +14,13 @@
 //! bilinear gather of the patch and a few sums. The previous frame's shift is the start point,
 //! so shake that builds up over frames is followed.
 //!
-//! The frame is smoothed (binomial kernel, σ = 1 px) before it is sampled. In later frames only
-//! the 2×2 pixel blocks the template points land on are smoothed, not the whole region: that
-//! depends on the whole-pixel part of the shift alone, so it is redone only when an iteration
-//! crosses a pixel (at most a few of the 30×30 points' blocks of 6×6 pixels per frame,
-//! against a 5-tap pass over every pixel of the region). The points crowd along edges, so
-//! their blocks overlap: each smoothed pixel is computed once and shared ([`Shared`]).
+//! The frame is smoothed (binomial kernel, σ = 1 px) before it is sampled. In later frames the
+//! smoothing is not done over the region at all: the template points sit on whole pixels, so
+//! every point's sample at a shift d reads its 6×6 neighbourhood with the same weights (the
+//! binomial pass and the bilinear one folded into one 6×6 kernel, rebuilt per iteration from
+//! d's fraction; [`folded_kernel`]). Points whose neighbourhood would cross the region's edge
+//! (a shake of many pixels) take the per-point path instead: the 2×2 smoothed blocks they land
+//! on, with the region's edge repeated as the first frame's smoothing repeats it.
 
 use crate::decode::{FrameRef, LumaRef};
 use crate::rig::RadialMark;
@@ -58,29 +59,11 @@ pub(crate) struct ShakeEstimator {
     /// top-right, bottom-left, bottom-right) at the whole-pixel shift `blk_at`.
     blk: Vec<[f32; 4]>,
     blk_at: Option<[i64; 2]>,
-    /// The shared-pixel plan for the blocks (built by `init`; see [`Shared`]).
-    shared: Option<Shared>,
-}
-
-/// The template points' blocks overlap (the points crowd along edges), so each smoothed pixel
-/// any block needs is computed once: the horizontal pass at every pixel the vertical passes
-/// read, then the vertical pass at every pixel the blocks read, then each block gathered.
-/// Positions are region coordinates at a zero whole-pixel shift; a shift moves them all alike.
-/// The arithmetic is the per-point path's, so the blocks are bit-identical (a unit test checks
-/// this); it applies while every block is inside the region (else the per-point path runs).
-#[derive(Clone)]
-struct Shared {
-    /// Region coordinates (x, y) of each horizontal-pass pixel.
-    h_at: Vec<[i64; 2]>,
-    /// Per vertical-pass pixel: its five horizontal-pass inputs (indices into `h_at`), top
-    /// to bottom.
-    s_taps: Vec<[u32; 5]>,
-    /// Per template point: its block's four smoothed pixels (indices into `s_taps`).
-    blk_taps: Vec<[u32; 4]>,
-    /// Range of the points' block corners: x min, x max, y min, y max.
-    corner: [i64; 4],
-    h: Vec<f32>,
-    s: Vec<f32>,
+    /// Per template point, region coordinates (x, y) of its block's top-left pixel at a zero
+    /// shift, and their range (x min, x max, y min, y max): built by `init` for the folded
+    /// kernel's path.
+    corner_at: Vec<[u32; 2]>,
+    corners: [i64; 4],
 }
 
 impl ShakeEstimator {
@@ -128,7 +111,8 @@ impl ShakeEstimator {
             raw: vec![0.0; cells],
             blk: vec![[0.0; 4]; n],
             blk_at: None,
-            shared: None,
+            corner_at: Vec::new(),
+            corners: [0; 4],
         }
     }
 
@@ -215,58 +199,29 @@ impl ShakeEstimator {
             return false;
         }
         self.hinv = [[d / det, -b / det], [-b / det, a / det]];
-        self.shared = Some(self.plan_shared());
+        self.plan_corners();
         true
     }
 
-    /// The shared-pixel plan for the current template points.
-    fn plan_shared(&self) -> Shared {
-        use std::collections::HashMap;
-        let mut corner = [i64::MAX, i64::MIN, i64::MAX, i64::MIN];
-        let mut s_index: HashMap<(i64, i64), u32> = HashMap::new();
-        let mut s_at: Vec<(i64, i64)> = Vec::new();
-        let mut blk_taps = Vec::with_capacity(self.pts.len());
-        for p in &self.pts {
-            let ([x0, y0], _) = self.cell(*p, [0.0, 0.0]);
-            let (x0, y0) = (x0 as i64, y0 as i64);
-            corner = [
-                corner[0].min(x0),
-                corner[1].max(x0),
-                corner[2].min(y0),
-                corner[3].max(y0),
-            ];
-            let mut taps = [0u32; 4];
-            for (slot, (dx, dy)) in [(0, 0), (1, 0), (0, 1), (1, 1)].into_iter().enumerate() {
-                let q = (x0 + dx, y0 + dy);
-                taps[slot] = *s_index.entry(q).or_insert_with(|| {
-                    s_at.push(q);
-                    (s_at.len() - 1) as u32
-                });
-            }
-            blk_taps.push(taps);
-        }
-        let mut h_index: HashMap<(i64, i64), u32> = HashMap::new();
-        let mut h_at = Vec::new();
-        let s_taps = s_at
+    /// Each template point's block corner at a zero shift, and their range.
+    fn plan_corners(&mut self) {
+        let mut corners = [i64::MAX, i64::MIN, i64::MAX, i64::MIN];
+        self.corner_at = self
+            .pts
             .iter()
-            .map(|&(x, y)| {
-                std::array::from_fn(|r| {
-                    let q = (x, y + r as i64 - 2);
-                    *h_index.entry(q).or_insert_with(|| {
-                        h_at.push([q.0, q.1]);
-                        (h_at.len() - 1) as u32
-                    })
-                })
+            .map(|p| {
+                let ([x0, y0], _) = self.cell(*p, [0.0, 0.0]);
+                let (x, y) = (x0 as i64, y0 as i64);
+                corners = [
+                    corners[0].min(x),
+                    corners[1].max(x),
+                    corners[2].min(y),
+                    corners[3].max(y),
+                ];
+                [x0 as u32, y0 as u32]
             })
-            .collect::<Vec<[u32; 5]>>();
-        Shared {
-            h: vec![0.0; h_at.len()],
-            s: vec![0.0; s_taps.len()],
-            h_at,
-            s_taps,
-            blk_taps,
-            corner,
-        }
+            .collect();
+        self.corners = corners;
     }
 
     /// The translation of this frame's image relative to the first frame, px (x right, y down),
@@ -283,11 +238,17 @@ impl ShakeEstimator {
             // the residual is e = (s − s̄)/g − (t − t̄), so Σg·e needs only these sums and the
             // template's own Σgx, Σgy and Σg·(t − t̄), computed once.
             let whole = [d[0].floor() as i64, d[1].floor() as i64];
-            if self.blk_at != Some(whole) {
-                self.load_blocks(frame, whole);
-                self.blk_at = Some(whole);
-            }
-            let [ss, sst, sgx, sgy, sss] = self.gather_sums(d);
+            let sums = match self.folded_sums(frame, d) {
+                Some(sums) => sums,
+                None => {
+                    if self.blk_at != Some(whole) {
+                        self.load_blocks(frame, whole);
+                        self.blk_at = Some(whole);
+                    }
+                    self.gather_sums(d)
+                }
+            };
+            let [ss, sst, sgx, sgy, sss] = sums;
             let s_mean = ss / n;
             let gain = sst / n / self.t_var;
             let s_var = sss / n - s_mean * s_mean;
@@ -374,33 +335,6 @@ impl ShakeEstimator {
     fn blocks_t<T: Copy + Into<f32>>(&mut self, v: &[T], fw: usize, scale: f32, whole: [i64; 2]) {
         let [sw, sh] = self.size;
         let (ox, oy) = (self.origin[0], self.origin[1]);
-        if let Some(plan) = self.shared.as_mut() {
-            let c = plan.corner;
-            let [wx, wy] = whole;
-            let inside = c[0] + wx >= 2
-                && c[1] + wx + 3 < sw as i64
-                && c[2] + wy >= 2
-                && c[3] + wy + 3 < sh as i64;
-            if inside {
-                // Every read below is inside the region: each block's 6×6 pixels are.
-                let (x_base, y_base) = (ox as i64 + wx - 2, oy as i64 + wy);
-                for (o, &[x, y]) in plan.h.iter_mut().zip(&plan.h_at) {
-                    let start = (y_base + y) as usize * fw + (x_base + x) as usize;
-                    let px = &v[start..start + 5];
-                    let p: [f32; 5] = std::array::from_fn(|i| px[i].into() * scale);
-                    *o = k5(p[0], p[1], p[2], p[3], p[4]);
-                }
-                let h = &plan.h;
-                for (o, t) in plan.s.iter_mut().zip(&plan.s_taps) {
-                    let at = |r: usize| h[t[r] as usize];
-                    *o = k5(at(0), at(1), at(2), at(3), at(4));
-                }
-                for (b, t) in self.blk.iter_mut().zip(&plan.blk_taps) {
-                    *b = t.map(|i| plan.s[i as usize]);
-                }
-                return;
-            }
-        }
         let d = [whole[0] as f64, whole[1] as f64];
         let clampi = |i: i64, n: usize| i.clamp(0, n as i64 - 1) as usize;
         // The region's pixel (x, y), scaled, with the region's edge repeated.
@@ -452,6 +386,80 @@ impl ShakeEstimator {
         }
     }
 
+    /// The sums of [`Self::gather_sums`] at the shift `d`, read straight from the frame through
+    /// the folded kernel; None when some point's 6×6 neighbourhood at this shift leaves the
+    /// region (the per-point path then repeats the region's edge there, as the first frame's
+    /// smoothing did).
+    fn folded_sums(&self, frame: FrameRef<'_>, d: [f64; 2]) -> Option<[f64; 5]> {
+        let [sw, sh] = self.size;
+        let (wx, wy) = (d[0].floor(), d[1].floor());
+        let (x, y) = (wx as i64, wy as i64);
+        let c = self.corners;
+        let inside = !self.corner_at.is_empty()
+            && c[0] + x >= 2
+            && c[1] + x + 3 < sw as i64
+            && c[2] + y >= 2
+            && c[3] + y + 3 < sh as i64;
+        if !inside {
+            return None;
+        }
+        let fw = frame.width as usize;
+        // The neighbourhood of a block corner (cx, cy) starts at base + cy·fw + cx; each point
+        // reads 8 samples on each of 6 rows (the last two weighted 0), all inside the frame.
+        // (base itself may lie before the frame; every corner's start lies inside it.)
+        let base = (self.origin[1] as i64 + y - 2) * fw as i64 + self.origin[0] as i64 + x - 2;
+        let first = base + c[2] * fw as i64 + c[0];
+        let last = base + (c[3] + 5) * fw as i64 + c[1] + 8;
+        if first < 0 {
+            return None;
+        }
+        let k = folded_kernel(
+            (d[0] - wx) as f32,
+            (d[1] - wy) as f32,
+            1.0 / frame.max_value(),
+        );
+        match frame.luma {
+            LumaRef::U8(v) if last <= v.len() as i64 => Some(self.folded_t(v, fw, base, &k)),
+            LumaRef::U16(v) if last <= v.len() as i64 => Some(self.folded_t(v, fw, base, &k)),
+            _ => None,
+        }
+    }
+
+    fn folded_t<T: Copy + Into<f32>>(
+        &self,
+        v: &[T],
+        fw: usize,
+        base: i64,
+        k: &[[f32; 8]; 6],
+    ) -> [f64; 5] {
+        let t_mean = self.t_mean as f32;
+        let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
+        let start = |[cx, cy]: [u32; 2]| (base + i64::from(cy) * fw as i64 + i64::from(cx)) as usize;
+        for (i, &corner) in self.corner_at.iter().enumerate() {
+            if let Some(&later) = self.corner_at.get(i + PREFETCH_AHEAD) {
+                // The six rows a later point reads: the frame was just decoded, likely on the
+                // other core, so each row is a cache miss that is better started early.
+                super::gather::prefetch_rows(v, start(later), fw, 6);
+            }
+            let at = start(corner);
+            let mut acc = [0.0f32; 8];
+            for (r, kr) in k.iter().enumerate() {
+                let row = &v[at + r * fw..at + r * fw + 8];
+                for u in 0..8 {
+                    acc[u] += row[u].into() * kr[u];
+                }
+            }
+            let s =
+                ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]));
+            ss += s;
+            sst += s * (self.tmpl[i] - t_mean);
+            sgx += self.gx[i] * s;
+            sgy += self.gy[i] * s;
+            sss += s * s;
+        }
+        [ss, sst, sgx, sgy, sss].map(f64::from)
+    }
+
     /// Bilinear samples of the smoothed frame at every template point moved by `d` (read from
     /// the blocks of `load_blocks`), reduced to the sums the update needs.
     fn gather_sums(&self, d: [f64; 2]) -> [f64; 5] {
@@ -477,6 +485,26 @@ impl ShakeEstimator {
             f64::from(sss),
         ]
     }
+}
+
+/// The 6×6 weights (rows top to bottom, 8 columns of which the last two are 0) that give a
+/// point's bilinear sample, at fractions `fx`, `fy` within its pixel, of the frame smoothed
+/// by the binomial kernel, from the raw samples around it (times `scale`). Both passes are
+/// linear, so they fold into one: along x, the bilinear weights (1 − fx, fx) on the smoothed
+/// samples at x0 and x0 + 1 put `(1 − fx)·K[u] + fx·K[u − 1]` on raw column x0 − 2 + u
+/// (K taken as 0 outside its five taps); along y likewise.
+fn folded_kernel(fx: f32, fy: f32, scale: f32) -> [[f32; 8]; 6] {
+    let taps = |f: f32| -> [f32; 6] {
+        std::array::from_fn(|u| {
+            let here = if u < 5 { K[u] } else { 0.0 };
+            let left = if u >= 1 { K[u - 1] } else { 0.0 };
+            (1.0 - f) * here + f * left
+        })
+    };
+    let (kx, ky) = (taps(fx), taps(fy));
+    std::array::from_fn(|r| {
+        std::array::from_fn(|u| if u < 6 { ky[r] * kx[u] * scale } else { 0.0 })
+    })
 }
 
 /// Binomial smoothing kernel [1 4 6 4 1]/16 (σ = 1 px).
@@ -568,7 +596,7 @@ mod tests {
     }
 
     #[test]
-    fn shared_pixel_blocks_equal_the_per_point_blocks() {
+    fn folded_kernel_sums_equal_the_smoothed_block_sums() {
         // A rendered frame of the bench scene (synthetic), its template chosen by `init`.
         let sc = Scenario::preset("fast-tool").unwrap();
         let truth = simulate(&sc);
@@ -578,26 +606,28 @@ mod tests {
         };
         let mut est = ShakeEstimator::new(m, sc.scene.width, sc.scene.height);
         assert!(est.init(render_frame(&sc, &truth, 0).view()));
-        let plan = est.shared.take().expect("init plans the shared pixels");
-        // The blocks share pixels: fewer smoothed pixels than four per point.
-        assert!(
-            plan.s.len() < 4 * est.pts.len(),
-            "{} for {}",
-            plan.s.len(),
-            est.pts.len()
-        );
         let frame = render_frame(&sc, &truth, 5);
-        for whole in [[0i64, 0], [1, -1], [-3, 2], [5, 4]] {
-            est.shared = None;
-            est.load_blocks(frame.view(), whole);
-            let per_point = est.blk.clone();
-            est.shared = Some(plan.clone());
-            est.load_blocks(frame.view(), whole);
-            assert_eq!(est.blk, per_point, "shift {whole:?}");
+        for d in [
+            [0.0, 0.0],
+            [0.3, -0.2],
+            [1.7, -1.25],
+            [-2.6, 2.9],
+            [4.05, 3.5],
+        ] {
+            let folded = est.folded_sums(frame.view(), d).expect("inside the region");
+            est.load_blocks(frame.view(), [d[0].floor() as i64, d[1].floor() as i64]);
+            let blocks = est.gather_sums(d);
+            for (a, b) in folded.iter().zip(&blocks) {
+                assert!(
+                    (a - b).abs() <= 2e-5 * (a.abs() + b.abs()) + 1e-6,
+                    "shift {d:?}: {folded:?} against {blocks:?}"
+                );
+            }
         }
-        // A shift that takes blocks past the region's edge falls back to the per-point path.
-        est.shared = Some(plan);
-        est.load_blocks(frame.view(), [-40, 0]);
+        // A shift that takes points' neighbourhoods past the region's edge is left to the
+        // per-point path.
+        assert!(est.folded_sums(frame.view(), [-40.0, 0.0]).is_none());
+        assert!(est.folded_sums(frame.view(), [0.0, -21.5]).is_none());
     }
 
     #[test]
