@@ -434,7 +434,8 @@ impl ShakeEstimator {
     ) -> [f64; 5] {
         let t_mean = self.t_mean as f32;
         let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
-        let start = |[cx, cy]: [u32; 2]| (base + i64::from(cy) * fw as i64 + i64::from(cx)) as usize;
+        let start =
+            |[cx, cy]: [u32; 2]| (base + i64::from(cy) * fw as i64 + i64::from(cx)) as usize;
         for (i, &corner) in self.corner_at.iter().enumerate() {
             if let Some(&later) = self.corner_at.get(i + PREFETCH_AHEAD) {
                 // The six rows a later point reads: the frame was just decoded, likely on the
