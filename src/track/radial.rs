@@ -68,6 +68,9 @@ const MIN_COARSE_BINS: usize = 90;
 /// The fine centre reads every m-th bin of a ring whose bins are closer than this, px of arc
 /// (the grid's bins are equal angles, so an inner ring's are far closer than an outer one's).
 const FINE_SPACING_PX: f64 = 0.75;
+/// The fine centre's window stops following its centroid when a step is shorter than this,
+/// bins.
+const FINE_STOP_BINS: f64 = 1e-3;
 /// Tukey biweight tuning constant (95 % efficiency at the normal distribution).
 const TUKEY_C: f64 = 4.685;
 
@@ -356,7 +359,7 @@ impl RadialTracker {
         let c0 = j_best as f64;
         for k in 0..k_n {
             let hw_b = hw_px / (self.grid.radius[k] * step);
-            self.fine_ring(k, c0, hw_b, hw_b.max(3.0), polarity, None);
+            self.fine_ring(k, c0, 0.0, hw_b, hw_b.max(3.0), polarity, None);
         }
         let valid = self.ring_ok.iter().filter(|&&o| o).count();
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
@@ -550,11 +553,27 @@ impl RadialTracker {
 
         // Fine centre per ring.
         let r_mid = self.grid.radius.iter().sum::<f64>() / k_n as f64;
+        // Every ring's centre sits off its prediction c0 by nearly the same number of bins
+        // (the coarse centre's error; bins are equal angles on every ring), so each ring starts
+        // from c0 moved by the median of the last three good rings' moves, which leaves it
+        // only its own noise to converge over.
+        let mut moves = [0.0f64; 3];
+        let mut good = 0usize;
         for k in 0..k_n {
             let hw_b = model.half_width_px / (self.grid.radius[k] * step) + extra;
             let c0 = centre + model.offset[k] / step;
             let flank = hw_b.max(3.0);
-            self.fine_ring(k, c0, hw_b, flank, model.polarity, src);
+            let lead = match good {
+                0 => 0.0,
+                1 => moves[0],
+                2 => 0.5 * (moves[0] + moves[1]),
+                _ => median3(moves),
+            };
+            self.fine_ring(k, c0, lead, hw_b, flank, model.polarity, src);
+            if self.ring_ok[k] {
+                moves[good % 3] = self.ring_c[k] - c0;
+                good += 1;
+            }
         }
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
         if z_med < (LOST_Z_FRACTION * model.z_ref).max(RING_MIN_Z) {
@@ -642,17 +661,19 @@ impl RadialTracker {
         Some(Measurement { angle, confidence })
     }
 
-    /// Fine centre of the stripe on ring `k` near bin `c0` (continuous). Sets `ring_c[k]`,
-    /// `ring_z[k]` and `ring_ok[k]`.
+    /// Fine centre of the stripe on ring `k` near bin `c0` (continuous), starting from c0 moved
+    /// by `lead` bins. Sets `ring_c[k]`, `ring_z[k]` and `ring_ok[k]`.
     ///
-    /// With a frame (`src`), samples the window at c0 and two samples either side, and more
+    /// With a frame (`src`), samples the first window and two samples either side, and more
     /// when the window moves past them; without one, reads the whole ring from `polar` (the
     /// first frame). A window that would reach beyond `2h` of c0 fails the ring (its centre has
     /// moved more than `h`, so it could not count anyway).
+    #[allow(clippy::too_many_arguments)]
     fn fine_ring(
         &mut self,
         k: usize,
         c0: f64,
+        lead: f64,
         hw_b: f64,
         flank: f64,
         polarity: f32,
@@ -671,9 +692,12 @@ impl RadialTracker {
             lat.down(c0 - 2.0 * h - 0.5 * mf) - lat.flank_bins(),
             lat.up(c0 + 2.0 * h + 0.5 * mf) + lat.flank_bins(),
         );
+        // The first window: at c0 moved by `lead`, which may take it a quarter of its
+        // half-length from c0 at most.
+        let start = c0 + lead.clamp(-0.25 * h, 0.25 * h);
         let first = (
-            lat.down(c0 - h - 2.5 * mf) - lat.flank_bins(),
-            lat.up(c0 + h + 2.5 * mf) + lat.flank_bins(),
+            lat.down(start - h - 2.5 * mf) - lat.flank_bins(),
+            lat.up(start + h + 2.5 * mf) + lat.flank_bins(),
         );
         // A strided ring whose window cannot leave the ring's first turn (bins 0..n) is
         // sampled into its lattice's consecutive places and read there in place; otherwise
@@ -686,7 +710,7 @@ impl RadialTracker {
             Some((frame, shift)) => self.sample_bins(k, compact, frame, shift, first),
             None => WHOLE_RING,
         };
-        let mut c = c0;
+        let mut c = start;
         let mut amp = 0.0;
         let mut ok = false;
         for _ in 0..8 {
@@ -775,7 +799,7 @@ impl RadialTracker {
             amp = mf * sw / (2.0 * hw_b + 1.0);
             let next = c + swu / sw;
             ok = true;
-            let done = (next - c).abs() < 1e-3;
+            let done = (next - c).abs() < FINE_STOP_BINS;
             c = next;
             if done {
                 break;
@@ -863,6 +887,11 @@ impl Window {
         }
         (sw.iter().sum(), swu.iter().sum())
     }
+}
+
+/// The middle one of three values.
+fn median3([a, b, c]: [f64; 3]) -> f64 {
+    a.max(b).min(a.min(b).max(c))
 }
 
 /// Score `z` of a coarse candidate at angle `theta` (rad) after the prior.
