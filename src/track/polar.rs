@@ -274,30 +274,8 @@ impl PolarGrid {
         range: std::ops::Range<usize>,
         out: &mut [f32],
     ) {
-        assert_eq!(
-            (frame.width as usize, frame.height as usize),
-            (self.width, self.height)
-        );
-        let scale = 1.0 / frame.max_value();
-        let pts = gather::Points {
-            idx: &lat.idx,
-            fx: &lat.fx,
-            fy: &lat.fy,
-        }
-        .range(range.start, range.end);
-        let sh = self.shift_parts(shift);
-        match frame.luma {
-            LumaRef::U8(d) => gather::bilinear(self.image(d, scale), pts, lat.range, sh, out),
-            LumaRef::U16(d) => gather::bilinear(self.image(d, scale), pts, lat.range, sh, out),
-        }
-    }
-
-    fn image<'a, T>(&self, d: &'a [T], scale: f32) -> gather::Image<'a, T> {
-        gather::Image {
-            d,
-            w: self.width,
-            scale,
-        }
+        let pts = lat.points().range(range.start, range.end);
+        self.gather(pts, lat.range, frame, shift, out);
     }
 
     /// Samples the grid points `range` (flat, ring-major indices) into `out` (same length).
@@ -308,14 +286,36 @@ impl PolarGrid {
         range: std::ops::Range<usize>,
         out: &mut [f32],
     ) {
+        let pts = points(&self.idx, &self.fx, &self.fy).range(range.start, range.end);
+        self.gather(pts, self.idx_range, frame, shift, out);
+    }
+
+    /// Bilinear samples of `frame` at `pts` (taps of this grid; `idx_range` is the smallest
+    /// and largest of their indices) moved by `shift`, into `out` (same length), values 0..=1.
+    ///
+    /// # Panics
+    /// When the frame size differs from the grid's.
+    fn gather(
+        &self,
+        pts: gather::Points<'_>,
+        idx_range: (u32, u32),
+        frame: FrameRef<'_>,
+        shift: [f64; 2],
+        out: &mut [f32],
+    ) {
         assert_eq!(
             (frame.width as usize, frame.height as usize),
             (self.width, self.height)
         );
-        let scale = 1.0 / frame.max_value();
+        let (w, scale) = (self.width, 1.0 / frame.max_value());
+        let sh = self.shift_parts(shift);
         match frame.luma {
-            LumaRef::U8(d) => self.sample_t(d, scale, shift, range, out),
-            LumaRef::U16(d) => self.sample_t(d, scale, shift, range, out),
+            LumaRef::U8(d) => {
+                gather::bilinear(gather::Image { d, w, scale }, pts, idx_range, sh, out)
+            }
+            LumaRef::U16(d) => {
+                gather::bilinear(gather::Image { d, w, scale }, pts, idx_range, sh, out)
+            }
         }
     }
 
@@ -361,29 +361,6 @@ impl PolarGrid {
             fy: fys,
         }
     }
-
-    fn sample_t<T: Sample>(
-        &self,
-        d: &[T],
-        scale: f32,
-        shift: [f64; 2],
-        range: std::ops::Range<usize>,
-        out: &mut [f32],
-    ) {
-        let img = self.image(d, scale);
-        let pts = gather::Points {
-            idx: &self.idx,
-            fx: &self.fx,
-            fy: &self.fy,
-        };
-        gather::bilinear(
-            img,
-            pts.range(range.start, range.end),
-            self.idx_range,
-            self.shift_parts(shift),
-            out,
-        );
-    }
 }
 
 /// The taps of every m-th bin of one ring ([`PolarGrid::lattice`]).
@@ -401,6 +378,15 @@ impl LatticeTaps {
     pub fn len(&self) -> usize {
         self.idx.len()
     }
+
+    fn points(&self) -> gather::Points<'_> {
+        points(&self.idx, &self.fx, &self.fy)
+    }
+}
+
+/// Taps as the gather takes them.
+fn points<'a>(idx: &'a [u32], fx: &'a [f32], fy: &'a [f32]) -> gather::Points<'a> {
+    gather::Points { idx, fx, fy }
 }
 
 /// The disc-to-screen map `M = R(φ)·diag(1, b/a)·R(−φ)` (identity without an ellipse).
