@@ -432,11 +432,9 @@ impl ShakeEstimator {
         base: i64,
         k: &[[f32; 8]; 6],
     ) -> [f64; 5] {
-        let t_mean = self.t_mean as f32;
-        let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
         let start =
             |[cx, cy]: [u32; 2]| (base + i64::from(cy) * fw as i64 + i64::from(cx)) as usize;
-        for (i, &corner) in self.corner_at.iter().enumerate() {
+        self.update_sums(self.corner_at.iter().enumerate().map(|(i, &corner)| {
             if let Some(&later) = self.corner_at.get(i + PREFETCH_AHEAD) {
                 // The six rows a later point reads: the frame was just decoded, likely on the
                 // other core, so each row is a cache miss that is better started early.
@@ -450,8 +448,27 @@ impl ShakeEstimator {
                     acc[u] += row[u].into() * kr[u];
                 }
             }
-            let s =
-                ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]));
+            ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]))
+        }))
+    }
+
+    /// Bilinear samples of the smoothed frame at every template point moved by `d` (read from
+    /// the blocks of `load_blocks`), reduced to the sums the update needs.
+    fn gather_sums(&self, d: [f64; 2]) -> [f64; 5] {
+        self.update_sums(self.pts.iter().zip(&self.blk).map(|(p, v)| {
+            let (_, [fx, fy]) = self.cell(*p, d);
+            let top = v[0] + fx * (v[1] - v[0]);
+            let bot = v[2] + fx * (v[3] - v[2]);
+            top + fy * (bot - top)
+        }))
+    }
+
+    /// Σs, Σs·(t − t̄), Σgx·s, Σgy·s and Σs² over the template points' samples s (in the
+    /// points' order), the sums one update needs.
+    fn update_sums(&self, samples: impl Iterator<Item = f32>) -> [f64; 5] {
+        let t_mean = self.t_mean as f32;
+        let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
+        for (i, s) in samples.enumerate() {
             ss += s;
             sst += s * (self.tmpl[i] - t_mean);
             sgx += self.gx[i] * s;
@@ -459,32 +476,6 @@ impl ShakeEstimator {
             sss += s * s;
         }
         [ss, sst, sgx, sgy, sss].map(f64::from)
-    }
-
-    /// Bilinear samples of the smoothed frame at every template point moved by `d` (read from
-    /// the blocks of `load_blocks`), reduced to the sums the update needs.
-    fn gather_sums(&self, d: [f64; 2]) -> [f64; 5] {
-        let t_mean = self.t_mean as f32;
-        let (mut ss, mut sst, mut sgx, mut sgy, mut sss) = (0.0f32, 0.0f32, 0.0f32, 0.0f32, 0.0f32);
-        for (i, p) in self.pts.iter().enumerate() {
-            let (_, [fx, fy]) = self.cell(*p, d);
-            let v = &self.blk[i];
-            let top = v[0] + fx * (v[1] - v[0]);
-            let bot = v[2] + fx * (v[3] - v[2]);
-            let s = top + fy * (bot - top);
-            ss += s;
-            sst += s * (self.tmpl[i] - t_mean);
-            sgx += self.gx[i] * s;
-            sgy += self.gy[i] * s;
-            sss += s * s;
-        }
-        [
-            f64::from(ss),
-            f64::from(sst),
-            f64::from(sgx),
-            f64::from(sgy),
-            f64::from(sss),
-        ]
     }
 }
 
