@@ -175,36 +175,46 @@ impl PolarGrid {
         )
     }
 
-    /// Samples `frame` on the grid into `out` (`rings × bins`, ring-major, values 0..=1).
-    /// `shift` moves the whole grid on screen (camera shake); zero uses the precomputed taps.
+    /// `frame` made ready for sampling on this grid moved by `shift` (camera shake; zero uses
+    /// the precomputed taps): the scale of its samples and the shift's split into whole pixels
+    /// and fractions, worked out once for all of a frame's samples.
     ///
     /// # Panics
-    /// When `out` has the wrong length or the frame size differs from the grid's.
-    pub fn sample(&self, frame: FrameRef<'_>, shift: [f64; 2], out: &mut [f32]) {
+    /// When the frame size differs from the grid's.
+    pub fn prepare<'a>(&self, frame: FrameRef<'a>, shift: [f64; 2]) -> Prepared<'a> {
+        assert_eq!(
+            (frame.width as usize, frame.height as usize),
+            (self.width, self.height)
+        );
+        Prepared {
+            luma: frame.luma,
+            scale: 1.0 / frame.max_value(),
+            shift: self.shift_parts(shift),
+        }
+    }
+
+    /// Samples the frame on the grid into `out` (`rings × bins`, ring-major, values 0..=1).
+    ///
+    /// # Panics
+    /// When `out` has the wrong length.
+    pub fn sample(&self, frame: &Prepared<'_>, out: &mut [f32]) {
         assert_eq!(out.len(), self.offset.len());
-        self.sample_range(frame, shift, 0..self.offset.len(), out);
+        self.sample_range(frame, 0..self.offset.len(), out);
     }
 
     /// Samples ring `k` only, into its place in `out` (laid out as for [`Self::sample`]).
-    pub fn sample_ring(&self, frame: FrameRef<'_>, shift: [f64; 2], k: usize, out: &mut [f32]) {
+    pub fn sample_ring(&self, frame: &Prepared<'_>, k: usize, out: &mut [f32]) {
         let n = self.bins;
-        self.sample_range(
-            frame,
-            shift,
-            k * n..(k + 1) * n,
-            &mut out[k * n..(k + 1) * n],
-        );
+        self.sample_range(frame, k * n..(k + 1) * n, &mut out[k * n..(k + 1) * n]);
     }
 
     /// Samples every `stride`-th bin from `from` to `to` of ring `k` (continuous bin numbers,
     /// wrapped around the ring) into their places in `out` (laid out as for [`Self::sample`]).
     /// A span of a whole ring or more samples the whole ring. Returns the span sampled,
     /// `(from, to)` unwrapped, or an unbounded span for a whole ring.
-    #[allow(clippy::too_many_arguments)]
     pub fn sample_span(
         &self,
-        frame: FrameRef<'_>,
-        shift: [f64; 2],
+        frame: &Prepared<'_>,
         k: usize,
         from: i64,
         to: i64,
@@ -213,15 +223,14 @@ impl PolarGrid {
     ) -> (i64, i64) {
         let n = self.bins as i64;
         if to - from + 1 >= n {
-            self.sample_ring(frame, shift, k, out);
+            self.sample_ring(frame, k, out);
             return WHOLE_RING;
         }
         if stride > 1 {
-            let scale = 1.0 / frame.max_value();
             let span = (k, from, to, stride);
             match frame.luma {
-                LumaRef::U8(d) => self.sample_strided(d, scale, shift, span, out),
-                LumaRef::U16(d) => self.sample_strided(d, scale, shift, span, out),
+                LumaRef::U8(d) => self.sample_strided(d, frame, span, out),
+                LumaRef::U16(d) => self.sample_strided(d, frame, span, out),
             }
             return (from, to);
         }
@@ -229,16 +238,11 @@ impl PolarGrid {
         let a = from.rem_euclid(n) as usize;
         let b = to.rem_euclid(n) as usize;
         if a <= b {
-            self.sample_range(
-                frame,
-                shift,
-                base + a..base + b + 1,
-                &mut out[base + a..=base + b],
-            );
+            self.sample_range(frame, base + a..base + b + 1, &mut out[base + a..=base + b]);
         } else {
             let end = base + self.bins;
-            self.sample_range(frame, shift, base + a..end, &mut out[base + a..end]);
-            self.sample_range(frame, shift, base..base + b + 1, &mut out[base..=base + b]);
+            self.sample_range(frame, base + a..end, &mut out[base + a..end]);
+            self.sample_range(frame, base..base + b + 1, &mut out[base..=base + b]);
         }
         (from, to)
     }
@@ -269,46 +273,30 @@ impl PolarGrid {
     pub fn sample_lattice(
         &self,
         lat: &LatticeTaps,
-        frame: FrameRef<'_>,
-        shift: [f64; 2],
+        frame: &Prepared<'_>,
         range: std::ops::Range<usize>,
         out: &mut [f32],
     ) {
         let pts = lat.points().range(range.start, range.end);
-        self.gather(pts, lat.range, frame, shift, out);
+        self.gather(pts, lat.range, frame, out);
     }
 
     /// Samples the grid points `range` (flat, ring-major indices) into `out` (same length).
-    fn sample_range(
-        &self,
-        frame: FrameRef<'_>,
-        shift: [f64; 2],
-        range: std::ops::Range<usize>,
-        out: &mut [f32],
-    ) {
+    fn sample_range(&self, frame: &Prepared<'_>, range: std::ops::Range<usize>, out: &mut [f32]) {
         let pts = points(&self.idx, &self.fx, &self.fy).range(range.start, range.end);
-        self.gather(pts, self.idx_range, frame, shift, out);
+        self.gather(pts, self.idx_range, frame, out);
     }
 
-    /// Bilinear samples of `frame` at `pts` (taps of this grid; `idx_range` is the smallest
-    /// and largest of their indices) moved by `shift`, into `out` (same length), values 0..=1.
-    ///
-    /// # Panics
-    /// When the frame size differs from the grid's.
+    /// Bilinear samples of the frame at `pts` (taps of this grid; `idx_range` is the smallest
+    /// and largest of their indices), into `out` (same length), values 0..=1.
     fn gather(
         &self,
         pts: gather::Points<'_>,
         idx_range: (u32, u32),
-        frame: FrameRef<'_>,
-        shift: [f64; 2],
+        frame: &Prepared<'_>,
         out: &mut [f32],
     ) {
-        assert_eq!(
-            (frame.width as usize, frame.height as usize),
-            (self.width, self.height)
-        );
-        let (w, scale) = (self.width, 1.0 / frame.max_value());
-        let sh = self.shift_parts(shift);
+        let (w, scale, sh) = (self.width, frame.scale, frame.shift);
         match frame.luma {
             LumaRef::U8(d) => {
                 gather::bilinear(gather::Image { d, w, scale }, pts, idx_range, sh, out)
@@ -324,15 +312,14 @@ impl PolarGrid {
     fn sample_strided<T: Sample>(
         &self,
         d: &[T],
-        scale: f32,
-        shift: [f64; 2],
+        frame: &Prepared<'_>,
         span: (usize, i64, i64, usize),
         out: &mut [f32],
     ) {
         let (k, from, to, stride) = span;
         let (w, n) = (self.width, self.bins as i64);
         let flat = |j: i64| k * self.bins + j.rem_euclid(n) as usize;
-        let sh = self.shift_parts(shift);
+        let (sh, scale) = (frame.shift, frame.scale);
         let mut j = from;
         while j <= to {
             let i = flat(j);
@@ -361,6 +348,16 @@ impl PolarGrid {
             fy: fys,
         }
     }
+}
+
+/// A frame made ready for sampling one grid ([`PolarGrid::prepare`]).
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Prepared<'a> {
+    luma: LumaRef<'a>,
+    /// Maps a sample to 0..=1.
+    scale: f32,
+    /// The grid's shift, split into whole pixels and fractions.
+    shift: Shift,
 }
 
 /// The taps of every m-th bin of one ring ([`PolarGrid::lattice`]).
@@ -427,7 +424,7 @@ mod tests {
         let frame = Frame::from_u8(0, w, h, data);
         let g = PolarGrid::new(&mark(None), w, h);
         let mut out = vec![0.0; g.rings * g.bins];
-        g.sample(frame.view(), [0.0, 0.0], &mut out);
+        g.sample(&g.prepare(frame.view(), [0.0, 0.0]), &mut out);
         for k in 0..g.rings {
             for j in (0..g.bins).step_by(17) {
                 let a = g.step() * j as f64;
@@ -437,7 +434,7 @@ mod tests {
         }
         // A shift of +1.5 px in x reads 1.5 grey levels more.
         let mut shifted = vec![0.0; out.len()];
-        g.sample(frame.view(), [1.5, 0.0], &mut shifted);
+        g.sample(&g.prepare(frame.view(), [1.5, 0.0]), &mut shifted);
         for (a, b) in out.iter().zip(&shifted) {
             assert!((b - a - 1.5 / 255.0).abs() < 1e-4);
         }
@@ -460,17 +457,10 @@ mod tests {
                 // A span inside the first turn, as the fine centres sample one.
                 let (q0, q1) = (7usize, lat.len() - 3);
                 let mut along = vec![f32::NAN; lat.len()];
-                g.sample_lattice(&lat, frame.view(), shift, q0..q1 + 1, &mut along[q0..=q1]);
+                let frame = g.prepare(frame.view(), shift);
+                g.sample_lattice(&lat, &frame, q0..q1 + 1, &mut along[q0..=q1]);
                 let mut ring = vec![f32::NAN; g.rings * g.bins];
-                let span = g.sample_span(
-                    frame.view(),
-                    shift,
-                    k,
-                    (q0 * m) as i64,
-                    (q1 * m) as i64,
-                    m,
-                    &mut ring,
-                );
+                let span = g.sample_span(&frame, k, (q0 * m) as i64, (q1 * m) as i64, m, &mut ring);
                 assert!(span.1 - span.0 < n);
                 for q in q0..=q1 {
                     let v = ring[k * g.bins + q * m];

@@ -42,7 +42,7 @@
 
 use std::f64::consts::PI;
 
-use super::polar::{LatticeTaps, PolarGrid, WHOLE_RING};
+use super::polar::{LatticeTaps, PolarGrid, Prepared, WHOLE_RING};
 use super::unwrap::{unwrap_near, wrap_pi};
 use crate::decode::FrameRef;
 
@@ -121,7 +121,8 @@ struct Coarse {
 impl Coarse {
     /// Samples the coarse rings whole and measures each one's mean and noise.
     fn load(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
-        self.grid.sample(frame, shift, &mut self.polar);
+        self.grid
+            .sample(&self.grid.prepare(frame, shift), &mut self.polar);
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
             let (m, s) = ring_stats(
@@ -296,7 +297,8 @@ impl RadialTracker {
     /// # Errors
     /// A one-line reason when the annulus shows no stripe.
     pub fn init(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Result<Measurement, String> {
-        self.grid.sample(frame, shift, &mut self.polar);
+        self.grid
+            .sample(&self.grid.prepare(frame, shift), &mut self.polar);
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
             (self.mean[k], self.sigma[k]) = ring_stats(
@@ -470,12 +472,13 @@ impl RadialTracker {
         for k in 0..self.grid.rings {
             self.sigma[k] = coarse.sigma[self.near[k]] * self.sigma_ratio[k];
         }
-        self.measure_at(Some((frame, shift)))
+        let frame = self.grid.prepare(frame, shift);
+        self.measure_at(Some(frame))
     }
 
     /// Measures from the coarse grid's samples and the full grid's: all of those in the first
     /// frame (`src` is None), else sampled from `src` where the fine centres need them.
-    fn measure_at(&mut self, src: Option<(FrameRef<'_>, [f64; 2])>) -> Option<Measurement> {
+    fn measure_at(&mut self, src: Option<Prepared<'_>>) -> Option<Measurement> {
         let model = self.model.take()?;
         let mut coarse = self.coarse.take()?;
         let out = self.measure_with(&model, &mut coarse, src);
@@ -499,7 +502,7 @@ impl RadialTracker {
         &mut self,
         model: &StripeModel,
         coarse: &mut Coarse,
-        src: Option<(FrameRef<'_>, [f64; 2])>,
+        src: Option<Prepared<'_>>,
     ) -> Option<Measurement> {
         let first = src.is_none();
         let k_n = self.grid.rings;
@@ -571,7 +574,7 @@ impl RadialTracker {
                 2 => 0.5 * (moves[0] + moves[1]),
                 _ => median3(moves),
             };
-            self.fine_ring(k, c0, lead, hw_b, flank, model.polarity, src);
+            self.fine_ring(k, c0, lead, hw_b, flank, model.polarity, src.as_ref());
             if self.ring_ok[k] {
                 moves[good % 3] = self.ring_c[k] - c0;
                 good += 1;
@@ -679,7 +682,7 @@ impl RadialTracker {
         hw_b: f64,
         flank: f64,
         polarity: f32,
-        src: Option<(FrameRef<'_>, [f64; 2])>,
+        src: Option<&Prepared<'_>>,
     ) {
         let n = self.grid.bins;
         let ni = n as i64;
@@ -709,7 +712,7 @@ impl RadialTracker {
             && limit.0.min(first.0) >= 0
             && limit.1.max(first.1) < ni;
         let mut span = match src {
-            Some((frame, shift)) => self.sample_bins(k, compact, frame, shift, first),
+            Some(frame) => self.sample_bins(k, compact, frame, first),
             None => WHOLE_RING,
         };
         let mut c = start;
@@ -720,7 +723,7 @@ impl RadialTracker {
             let hi = lat.up(c + h + 0.5 * mf);
             let (need_lo, need_hi) = (lo - lat.flank_bins(), hi + lat.flank_bins());
             if need_lo < span.0 || need_hi > span.1 {
-                let Some((frame, shift)) = src else {
+                let Some(frame) = src else {
                     ok = false;
                     break;
                 };
@@ -730,13 +733,13 @@ impl RadialTracker {
                 }
                 let want = (need_lo.min(span.0), need_hi.max(span.1));
                 span = if want.1 - want.0 + 1 >= ni {
-                    self.sample_bins(k, compact, frame, shift, want)
+                    self.sample_bins(k, compact, frame, want)
                 } else {
                     if want.0 < span.0 {
-                        self.sample_bins(k, compact, frame, shift, (want.0, span.0 - m));
+                        self.sample_bins(k, compact, frame, (want.0, span.0 - m));
                     }
                     if want.1 > span.1 {
-                        self.sample_bins(k, compact, frame, shift, (span.1 + m, want.1));
+                        self.sample_bins(k, compact, frame, (span.1 + m, want.1));
                     }
                     want
                 };
@@ -823,8 +826,7 @@ impl RadialTracker {
         &mut self,
         k: usize,
         compact: bool,
-        frame: FrameRef<'_>,
-        shift: [f64; 2],
+        frame: &Prepared<'_>,
         (from, to): (i64, i64),
     ) -> (i64, i64) {
         let m = self.stride[k] as i64;
@@ -832,12 +834,12 @@ impl RadialTracker {
             Some(taps) if compact => {
                 let (a, b) = ((from / m) as usize, (to / m) as usize + 1);
                 let out = &mut self.lat_vals[k][a..b];
-                self.grid.sample_lattice(taps, frame, shift, a..b, out);
+                self.grid.sample_lattice(taps, frame, a..b, out);
                 (from, to)
             }
             _ => self
                 .grid
-                .sample_span(frame, shift, k, from, to, self.stride[k], &mut self.polar),
+                .sample_span(frame, k, from, to, self.stride[k], &mut self.polar),
         }
     }
 }
