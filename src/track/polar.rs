@@ -269,7 +269,7 @@ impl PolarGrid {
     }
 
     /// Samples lattice points `range` (positions in `lat`, which this grid made) into `out`
-    /// (same length), moved by `shift` exactly as [`Self::sample`] moves the grid.
+    /// (same length), with the frame's shift applied exactly as [`Self::sample`] applies it.
     pub fn sample_lattice(
         &self,
         lat: &LatticeTaps,
