@@ -924,7 +924,7 @@ fn ring_stats(ring: &[f32], radius: f64, step: f64) -> (f32, f32) {
     )
 }
 
-/// Σ f(a[i], b[i]) over the shorter of the two slices, in eight partial sums side by side (so
+/// Σ `f(a[i], b[i])` over the shorter of the two slices, in eight partial sums side by side (so
 /// the loop has no chain of dependent additions and vectorises), added up in a fixed order.
 #[inline(always)]
 fn lane_sum(a: &[f32], b: &[f32], f: impl Fn(f32, f32) -> f32) -> f32 {
