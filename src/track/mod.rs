@@ -41,6 +41,13 @@ mod shake;
 mod side;
 pub(crate) mod unwrap;
 
+/// The sum of eight partial sums kept side by side (vectorised loops), added in one fixed
+/// order so that every caller's result is the same to the bit.
+#[inline(always)]
+fn sum_lanes(acc: [f32; 8]) -> f32 {
+    ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]))
+}
+
 use polar::PolarGrid;
 use radial::RadialTracker;
 use shake::ShakeEstimator;

@@ -815,9 +815,7 @@ impl RadialTracker {
         self.ring_z[k] = if ok { z } else { 0.0 };
         self.ring_ok[k] = ok && z >= RING_MIN_Z && (c - c0).abs() <= h;
     }
-}
 
-impl RadialTracker {
     /// Samples ring `k`'s lattice bins `from..=to` (unwrapped; multiples of its stride) from
     /// `frame`: into the lattice's consecutive places when `compact` (the bins must then lie
     /// within 0..n), else into their places on the ring. Returns the span sampled, as
@@ -941,7 +939,7 @@ fn lane_sum(a: &[f32], b: &[f32], f: impl Fn(f32, f32) -> f32) -> f32 {
     for (l, (&x, &y)) in a[done..].iter().zip(&b[done..]).enumerate() {
         acc[l] += f(x, y);
     }
-    ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]))
+    super::sum_lanes(acc)
 }
 
 /// Box half-width, bins, of a stripe half-width `hw_px` on a ring of `radius` with angular

@@ -237,10 +237,10 @@ impl ShakeEstimator {
             // One pass: Σs, Σs·(t − t̄), Σgx·s, Σgy·s. With the photometric fit s ≈ g·t + b,
             // the residual is e = (s − s̄)/g − (t − t̄), so Σg·e needs only these sums and the
             // template's own Σgx, Σgy and Σg·(t − t̄), computed once.
-            let whole = [d[0].floor() as i64, d[1].floor() as i64];
             let sums = match self.folded_sums(frame, d) {
                 Some(sums) => sums,
                 None => {
+                    let whole = [d[0].floor() as i64, d[1].floor() as i64];
                     if self.blk_at != Some(whole) {
                         self.load_blocks(frame, whole);
                         self.blk_at = Some(whole);
@@ -448,7 +448,7 @@ impl ShakeEstimator {
                     acc[u] += row[u].into() * kr[u];
                 }
             }
-            ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]))
+            super::sum_lanes(acc)
         }))
     }
 
