@@ -20,7 +20,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
 
-use twistmark::decode::{self, Frame};
+use twistmark::decode::{self, Frame, Slot};
 use twistmark::encode::{ClipWriter, Codec};
 use twistmark::synth::{Scenario, render_frame, simulate};
 
@@ -390,21 +390,22 @@ fn tracker_alone(clip: &Path, rig_path: &Path, frames: usize) -> f64 {
     best * 1e6
 }
 
-/// Decodes every frame with twistmark's own reader and does nothing with it: `visit_next`
-/// lends each decoded picture in place (packed 8-bit rows, as in these clips), so nothing is
-/// copied and this is the FFmpeg decoder alone. Returns (seconds, frames).
+/// Decodes every frame with twistmark's own reader and does nothing with it: `read_slot`
+/// holds each decoded picture in place (packed 8-bit rows, as in these clips) and gives it
+/// back on the next call, so nothing is copied and this is the FFmpeg decoder alone.
+/// Returns (seconds, frames).
 fn decode_only(clip: &Path) -> (f64, u64) {
     let t = Instant::now();
     let mut src = decode::open(clip).expect("open clip");
-    let mut f = Frame::empty();
+    let mut slot = Slot::new();
     let mut n = 0;
-    while src.visit_next(&mut f, &mut |_| Ok(())).expect("decode") {
+    while src.read_slot(&mut slot).expect("decode") {
+        assert!(
+            slot.holds_picture(),
+            "the bench clip's pictures were copied, not read in place"
+        );
         n += 1;
     }
-    assert!(
-        f.width == 0,
-        "the bench clip's pictures were copied, not read in place"
-    );
     (t.elapsed().as_secs_f64(), n)
 }
 

@@ -1,14 +1,14 @@
 //! The one function that chains the pipeline: decode → track → segment → mechanics.
-//! Decoding and tracking overlap, and no frame buffer is allocated per frame:
-//! - a video decoded on FFmpeg's own threads is tracked on the calling thread between frames,
-//!   reading each decoded picture in place when its rows are packed (no copy);
-//! - every other source (stills, frames in memory) decodes on a thread of its own and hands
-//!   frames to the tracker through a short queue of recycled buffers.
+//! Decoding and tracking overlap, and no frame buffer is allocated per frame: the source
+//! decodes on a thread of its own and hands frames to the tracker, on the calling thread,
+//! through a short queue of recycled slots ([`decode::Slot`]). A video decoder whose picture
+//! rows are packed hands over references to its own pictures (no copy); every other source
+//! reads into the slots' buffers.
 
 use std::path::Path;
 use std::sync::mpsc;
 
-use crate::decode::{self, ClipInfo, Frame, FrameSource};
+use crate::decode::{self, ClipInfo, FrameSource, Slot};
 use crate::error::{Error, Result};
 use crate::mechanics::{self, BarReport, BlowMetrics, SpringbackVerdict, Summary};
 use crate::rig::Rig;
@@ -120,7 +120,7 @@ pub fn analyze(clip: &Path, rig: &Rig, rig_path: &Path, opts: &AnalyzeOptions) -
 /// # Errors
 /// As [`analyze`].
 pub fn analyze_source(
-    mut source: Box<dyn FrameSource>,
+    source: Box<dyn FrameSource>,
     rig: &Rig,
     rig_path: &Path,
     opts: &AnalyzeOptions,
@@ -134,17 +134,7 @@ pub fn analyze_source(
     let mut tracker = Tracker::new(rig, rig_path, clip.width, clip.height)?;
 
     let total = last.min(clip.frames).saturating_sub(first);
-    if source.decodes_in_background() {
-        track_inline(
-            source.as_mut(),
-            &mut tracker,
-            (first, last),
-            total,
-            progress,
-        )?;
-    } else {
-        track_pipelined(source, &mut tracker, (first, last), total, progress)?;
-    }
+    track_pipelined(source, &mut tracker, (first, last), total, progress)?;
 
     let (trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
@@ -184,38 +174,10 @@ pub fn analyze_source(
     })
 }
 
-/// Tracks on the calling thread, between the decoder's frames: for sources that decode on
-/// threads of their own (FFmpeg's), whose pictures are read in place with no copy when their
-/// rows are packed. The tracker then reads each picture soon after it was written, and no
-/// frame crosses between threads of ours.
-fn track_inline(
-    source: &mut dyn FrameSource,
-    tracker: &mut Tracker,
-    (first, last): (u64, u64),
-    total: u64,
-    progress: &(dyn Fn(u64, u64) + Sync),
-) -> Result<()> {
-    let mut scratch = Frame::empty();
-    let mut done = 0u64;
-    let mut ended = false;
-    while !ended {
-        let more = source.visit_next(&mut scratch, &mut |frame| {
-            if frame.index >= last {
-                ended = true;
-            } else if frame.index >= first {
-                tracker.push_ref(frame)?;
-                done += 1;
-                progress(done, total);
-            }
-            Ok(())
-        })?;
-        ended |= !more;
-    }
-    Ok(())
-}
-
 /// Decodes on a second thread and tracks on the calling one, through a short queue of
-/// recycled buffers: for sources that decode on the calling thread (stills, memory).
+/// recycled slots. For a video this keeps FFmpeg's decoding threads fed while the tracker
+/// works: tracking between decoder calls on one thread held back the next packet, and cost
+/// about 5 % more wall time (docs/performance.md, fifth pass).
 fn track_pipelined(
     mut source: Box<dyn FrameSource>,
     tracker: &mut Tracker,
@@ -225,45 +187,47 @@ fn track_pipelined(
 ) -> Result<()> {
     let path = source.info().path.clone();
     std::thread::scope(|scope| -> Result<()> {
-        let (full_tx, full_rx) = mpsc::sync_channel::<Frame>(QUEUE_DEPTH);
-        let (empty_tx, empty_rx) = mpsc::sync_channel::<Frame>(QUEUE_DEPTH + 1);
+        let (full_tx, full_rx) = mpsc::sync_channel::<Slot>(QUEUE_DEPTH);
+        let (empty_tx, empty_rx) = mpsc::sync_channel::<Slot>(QUEUE_DEPTH + 1);
         for _ in 0..QUEUE_DEPTH + 1 {
-            let _ = empty_tx.send(Frame::empty());
+            let _ = empty_tx.send(Slot::new());
         }
         let decoder = scope.spawn(move || -> Result<()> {
-            let mut spare: Option<Frame> = None;
+            let mut spare: Option<Slot> = None;
             loop {
-                let mut frame = match spare.take() {
-                    Some(f) => f,
+                let mut slot = match spare.take() {
+                    Some(s) => s,
                     None => match empty_rx.recv() {
-                        Ok(f) => f,
+                        Ok(s) => s,
                         Err(_) => return Ok(()),
                     },
                 };
-                if !source.read_into(&mut frame)? || frame.index >= last {
+                if !source.read_slot(&mut slot)? || slot.view().index >= last {
                     return Ok(());
                 }
-                if frame.index < first {
-                    spare = Some(frame);
-                } else if full_tx.send(frame).is_err() {
+                if slot.view().index < first {
+                    spare = Some(slot);
+                } else if full_tx.send(slot).is_err() {
                     return Ok(());
                 }
             }
         });
         let mut done = 0u64;
         let mut tracked: Result<()> = Ok(());
-        for frame in full_rx.iter() {
+        for mut slot in full_rx.iter() {
             if tracked.is_ok() {
-                tracked = tracker.push(&frame);
+                tracked = tracker.push_ref(slot.view());
                 done += 1;
                 progress(done, total);
             }
             if tracked.is_err() {
                 break;
             }
-            // The decoder may already have finished and dropped its end: the frames still
-            // queued must be tracked all the same, so a failed recycle is not a stop.
-            let _ = empty_tx.send(frame);
+            // The picture goes back to the decoder's pool now, not when the slot is next
+            // filled. The decoder may already have finished and dropped its end: the frames
+            // still queued must be tracked all the same, so a failed recycle is not a stop.
+            slot.release();
+            let _ = empty_tx.send(slot);
         }
         drop(full_rx);
         drop(empty_tx);
@@ -325,7 +289,7 @@ fn window(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::decode::MemorySource;
+    use crate::decode::{Frame, MemorySource};
     use crate::synth::{Scenario, render_frame, simulate};
 
     #[test]
@@ -351,12 +315,12 @@ mod tests {
         }
     }
 
-    /// Tracking between a video decoder's frames (read in place) and tracking frames read
-    /// into memory first (the queue of the other path) give the same trace, whole clip and
-    /// time window alike. Synthetic fast-tool fixture (invented bench, known truth).
+    /// Tracking a video decoder's own pictures (held in place) and tracking frames read into
+    /// memory first give the same trace, whole clip and time window alike. Synthetic
+    /// fast-tool fixture (invented bench, known truth).
     #[cfg(feature = "ffmpeg")]
     #[test]
-    fn inline_and_queued_tracking_agree_exactly() {
+    fn held_pictures_and_copied_frames_track_alike() {
         let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/fast-tool");
         let rig_path = dir.join("rig.json");
         let rig = Rig::from_path(&rig_path).unwrap();
@@ -378,7 +342,7 @@ mod tests {
                 frames.push(f.clone());
             }
             for opts in &windows {
-                let inline = analyze_source(
+                let held = analyze_source(
                     decode::open(&path).unwrap(),
                     &rig,
                     &rig_path,
@@ -387,24 +351,12 @@ mod tests {
                 )
                 .unwrap();
                 let memory = Box::new(MemorySource::new(frames.clone(), fps));
-                assert!(!memory.decodes_in_background());
-                let queued = analyze_source(memory, &rig, &rig_path, opts, &|_, _| {}).unwrap();
-                assert!(!inline.trace.frames.is_empty());
-                assert_eq!(inline.trace.frames, queued.trace.frames, "{clip}");
-                assert_eq!(inline.trace.drive, queued.trace.drive, "{clip}");
-                assert_eq!(inline.trace.nut, queued.trace.nut, "{clip}");
+                let copied = analyze_source(memory, &rig, &rig_path, opts, &|_, _| {}).unwrap();
+                assert!(!held.trace.frames.is_empty());
+                assert_eq!(held.trace.frames, copied.trace.frames, "{clip}");
+                assert_eq!(held.trace.drive, copied.trace.drive, "{clip}");
+                assert_eq!(held.trace.nut, copied.trace.nut, "{clip}");
             }
-        }
-    }
-
-    #[cfg(feature = "ffmpeg")]
-    #[test]
-    fn threaded_video_decoders_are_tracked_inline() {
-        let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/fast-tool");
-        let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
-        for clip in ["clip_h264.mp4", "clip_ffv1.mkv"] {
-            let src = decode::open(&dir.join(clip)).unwrap();
-            assert_eq!(src.decodes_in_background(), threads > 1, "{clip}");
         }
     }
 }

@@ -125,7 +125,7 @@ pub enum LumaRef<'a> {
 }
 
 /// One frame as the tracker reads it, borrowed: a [`Frame`]'s buffer ([`Frame::view`]) or a
-/// video decoder's picture read in place ([`FrameSource::visit_next`]).
+/// video decoder's picture read in place ([`Slot`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FrameRef<'a> {
     /// Zero-based index of the frame in the clip.
@@ -207,29 +207,66 @@ pub trait FrameSource: Send {
     /// [`Error::Input`] naming the file for a bad still.
     fn read_into(&mut self, frame: &mut Frame) -> Result<bool>;
 
-    /// Reads the next frame and hands it to `visit`; returns `Ok(false)` at the end (without
-    /// calling `visit`). A video decoder whose picture rows are packed lends its own picture
-    /// (no copy); every other case reads into `scratch` first, reusing its buffer.
+    /// Reads the next frame into `slot`, reusing its buffers; returns `Ok(false)` at the end.
+    /// A video decoder whose picture rows are packed hands over a reference to its own
+    /// picture (no copy; it decodes on into other buffers meanwhile); every other case reads
+    /// into the slot's frame buffer, as [`FrameSource::read_into`] does.
     ///
     /// # Errors
-    /// As [`FrameSource::read_into`], or the first error `visit` returns.
-    fn visit_next(
-        &mut self,
-        scratch: &mut Frame,
-        visit: &mut dyn FnMut(FrameRef<'_>) -> Result<()>,
-    ) -> Result<bool> {
-        if !self.read_into(scratch)? {
-            return Ok(false);
+    /// As [`FrameSource::read_into`].
+    fn read_slot(&mut self, slot: &mut Slot) -> Result<bool> {
+        slot.release();
+        self.read_into(&mut slot.frame)
+    }
+}
+
+/// One decoded frame on its way from a decoding thread to the tracker
+/// ([`FrameSource::read_slot`]): a frame buffer of its own, reused from frame to frame, or a
+/// reference to a video decoder's own picture, read in place with no copy.
+pub struct Slot {
+    frame: Frame,
+    #[cfg(feature = "ffmpeg")]
+    picture: video::HeldPicture,
+}
+
+impl Slot {
+    /// An empty slot.
+    pub fn new() -> Slot {
+        Slot {
+            frame: Frame::empty(),
+            #[cfg(feature = "ffmpeg")]
+            picture: video::HeldPicture::new(),
         }
-        visit(scratch.view())?;
-        Ok(true)
     }
 
-    /// True when the source decodes on threads of its own (FFmpeg's frame or slice threads):
-    /// work done on the calling thread between frames then overlaps decoding, so
-    /// [`crate::analyze::analyze_source`] tracks there instead of on a second thread of its own.
-    fn decodes_in_background(&self) -> bool {
+    /// The frame in the slot (empty until a source has read into it).
+    pub fn view(&self) -> FrameRef<'_> {
+        #[cfg(feature = "ffmpeg")]
+        if let Some(view) = self.picture.view() {
+            return view;
+        }
+        self.frame.view()
+    }
+
+    /// True when the slot holds a decoder's own picture rather than a copy.
+    pub fn holds_picture(&self) -> bool {
+        #[cfg(feature = "ffmpeg")]
+        return self.picture.view().is_some();
+        #[cfg(not(feature = "ffmpeg"))]
         false
+    }
+
+    /// Gives a held picture back to its decoder (its buffer returns to the decoder's pool, so
+    /// memory does not grow with the frames in flight); the slot keeps its buffers for reuse.
+    pub fn release(&mut self) {
+        #[cfg(feature = "ffmpeg")]
+        self.picture.release();
+    }
+}
+
+impl Default for Slot {
+    fn default() -> Self {
+        Slot::new()
     }
 }
 

@@ -21,7 +21,7 @@ use ff::format::Pixel;
 use ff::packet::Ref as _;
 use ffmpeg_next as ff;
 
-use super::{ClipInfo, ClipKind, Frame, FrameRef, FrameSource, Luma, LumaRef, ffmpeg_init};
+use super::{ClipInfo, ClipKind, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot, ffmpeg_init};
 use crate::error::{Error, Result};
 use crate::warning::Warning;
 
@@ -95,8 +95,6 @@ pub struct VideoSource {
     gray: ff::frame::Video,
     next_index: u64,
     eof_sent: bool,
-    /// FFmpeg decodes on threads of its own (frame or slice threading is active).
-    threaded: bool,
     done: bool,
 }
 
@@ -152,11 +150,6 @@ impl VideoSource {
                 ),
             )
         })?;
-        // SAFETY: the decoder wraps a valid, opened AVCodecContext.
-        let threaded = unsafe {
-            let c = decoder.as_ptr();
-            (*c).active_thread_type != 0 && (*c).thread_count > 1
-        };
         let (width, height) = (decoder.width(), decoder.height());
         if width == 0 || height == 0 {
             return Err(Error::input(
@@ -205,7 +198,6 @@ impl VideoSource {
             gray: ff::frame::Video::empty(),
             next_index: 0,
             eof_sent: false,
-            threaded,
             done: false,
         })
     }
@@ -326,21 +318,11 @@ impl VideoSource {
         Ok(plan)
     }
 
-    /// The luma of `self.picture` in place, when its 8-bit Y rows are packed (stride = width,
-    /// one byte per sample); None when it must be copied or converted.
-    fn picture_in_place(&self, plan: LumaPlan) -> Option<FrameRef<'_>> {
-        let (w, h) = (self.info.width as usize, self.info.height as usize);
-        if plan != (LumaPlan::Direct8 { offset: 0, step: 1 }) || self.picture.stride(0) != w {
-            return None;
-        }
-        let data = self.picture.data(0);
-        Some(FrameRef {
-            index: self.next_index,
-            width: self.info.width,
-            height: self.info.height,
-            bit_depth: 8,
-            luma: LumaRef::U8(data.get(..w * h)?),
-        })
+    /// True when `self.picture`'s 8-bit Y rows are packed (stride = width, one byte per
+    /// sample), so its luma can be read in place; otherwise it must be copied or converted.
+    fn packed(&self, plan: LumaPlan) -> bool {
+        plan == (LumaPlan::Direct8 { offset: 0, step: 1 })
+            && self.picture.stride(0) == self.info.width as usize
     }
 
     /// Copies the luma of `self.picture` into `frame` by `plan` (from [`Self::picture_plan`]).
@@ -577,30 +559,72 @@ impl FrameSource for VideoSource {
         Ok(true)
     }
 
-    fn visit_next(
-        &mut self,
-        scratch: &mut Frame,
-        visit: &mut dyn FnMut(FrameRef<'_>) -> Result<()>,
-    ) -> Result<bool> {
+    fn read_slot(&mut self, slot: &mut Slot) -> Result<bool> {
+        slot.release();
         if !self.next_picture()? {
             return Ok(false);
         }
         let plan = self.picture_plan();
         let plan = self.stop_on_error(plan)?;
-        let visited = match self.picture_in_place(plan) {
-            Some(view) => visit(view),
-            None => {
-                let copied = self.copy_out(plan, scratch);
-                self.stop_on_error(copied)?;
-                visit(scratch.view())
-            }
-        };
+        if self.packed(plan) {
+            let at = (self.next_index, self.info.width, self.info.height);
+            slot.picture.hold(&mut self.picture, at);
+        } else {
+            let copied = self.copy_out(plan, &mut slot.frame);
+            self.stop_on_error(copied)?;
+        }
         self.next_index += 1;
-        visited.map(|()| true)
+        Ok(true)
+    }
+}
+
+/// A reference to one of the decoder's pictures, held past later decoder calls: FFmpeg's
+/// pictures are reference-counted, so the decoder decodes on into other buffers of its pool
+/// meanwhile, and the buffer returns to the pool on [`HeldPicture::release`]. The frame
+/// structure itself is kept from picture to picture, so holding allocates nothing.
+pub(super) struct HeldPicture {
+    pic: ff::frame::Video,
+    /// Index, width and height of the picture held; None when none is.
+    at: Option<(u64, u32, u32)>,
+}
+
+impl HeldPicture {
+    pub(super) fn new() -> HeldPicture {
+        HeldPicture {
+            pic: ff::frame::Video::empty(),
+            at: None,
+        }
     }
 
-    fn decodes_in_background(&self) -> bool {
-        self.threaded
+    /// Takes over `from`'s picture (leaving `from` blank for the decoder's next one), whose
+    /// 8-bit luma rows must be packed.
+    fn hold(&mut self, from: &mut ff::frame::Video, at: (u64, u32, u32)) {
+        self.release();
+        // SAFETY: both wrap valid AVFrames; `self.pic` holds no reference (released above),
+        // as av_frame_move_ref requires, and `from` is left blank.
+        unsafe { ff::ffi::av_frame_move_ref(self.pic.as_mut_ptr(), from.as_mut_ptr()) };
+        self.at = Some(at);
+    }
+
+    /// The picture's luma, when one is held.
+    pub(super) fn view(&self) -> Option<FrameRef<'_>> {
+        let (index, width, height) = self.at?;
+        let n = width as usize * height as usize;
+        Some(FrameRef {
+            index,
+            width,
+            height,
+            bit_depth: 8,
+            luma: LumaRef::U8(self.pic.data(0).get(..n)?),
+        })
+    }
+
+    /// Gives the picture back (its buffer returns to the decoder's pool).
+    pub(super) fn release(&mut self) {
+        if self.at.take().is_some() {
+            // SAFETY: `self.pic` wraps a valid AVFrame; unref leaves it blank.
+            unsafe { ff::ffi::av_frame_unref(self.pic.as_mut_ptr()) };
+        }
     }
 }
 
@@ -723,83 +747,91 @@ mod tests {
         assert_eq!(frames, input);
     }
 
-    /// Every frame `visit_next` lends, as owned frames, and whether `scratch` stayed unused
-    /// (every picture read in place).
-    fn visit_all(path: &Path) -> (Vec<Frame>, bool) {
+    /// Every frame `read_slot` gives, as owned frames, and whether each one was the decoder's
+    /// own picture held in place (no copy).
+    fn read_all_slots(path: &Path) -> (Vec<Frame>, bool) {
         let mut src = VideoSource::open(path).unwrap();
-        let mut scratch = Frame::empty();
-        let mut out = Vec::new();
-        while src
-            .visit_next(&mut scratch, &mut |f| {
-                let LumaRef::U8(d) = f.luma else {
-                    panic!("8-bit expected")
-                };
-                out.push(Frame::from_u8(f.index, f.width, f.height, d.to_vec()));
-                Ok(())
-            })
-            .unwrap()
-        {}
-        (out, scratch.width == 0)
+        let mut slot = Slot::new();
+        let (mut out, mut held) = (Vec::new(), true);
+        while src.read_slot(&mut slot).unwrap() {
+            let f = slot.view();
+            let LumaRef::U8(d) = f.luma else {
+                panic!("8-bit expected")
+            };
+            out.push(Frame::from_u8(f.index, f.width, f.height, d.to_vec()));
+            held &= slot.holds_picture();
+        }
+        (out, held)
+    }
+
+    fn write_clip(p: &Path, w: u32, h: u32, frames: u64) -> Vec<Frame> {
+        use crate::encode::{ClipWriter, Codec};
+        let mut wr = ClipWriter::create(p, Codec::Ffv1, w, h, 30.0).unwrap();
+        let input: Vec<Frame> = (0..frames).map(|i| pattern(i, w, h)).collect();
+        for f in &input {
+            wr.write(f).unwrap();
+        }
+        wr.finish().unwrap();
+        input
     }
 
     #[test]
-    fn visiting_reads_packed_pictures_in_place_and_copies_the_rest() {
-        use crate::encode::{ClipWriter, Codec};
+    fn slots_hold_packed_pictures_in_place_and_copy_the_rest() {
         let dir = tempfile::tempdir().unwrap();
         // 64 px rows are packed in FFmpeg's pictures; 37 px rows are padded to a larger stride.
         for (w, h, in_place) in [(64, 12, true), (37, 11, false)] {
             let p = dir.path().join(format!("v{w}.mkv"));
-            let mut wr = ClipWriter::create(&p, Codec::Ffv1, w, h, 30.0).unwrap();
-            let input: Vec<Frame> = (0..5).map(|i| pattern(i, w, h)).collect();
-            for f in &input {
-                wr.write(f).unwrap();
-            }
-            wr.finish().unwrap();
-            let (visited, untouched) = visit_all(&p);
-            assert_eq!(visited, input, "{w}x{h}");
-            assert_eq!(untouched, in_place, "{w}x{h}: read in place");
+            let input = write_clip(&p, w, h, 5);
+            let (read, held) = read_all_slots(&p);
+            assert_eq!(read, input, "{w}x{h}");
+            assert_eq!(held, in_place, "{w}x{h}: held in place");
             assert_eq!(decode_all(&p).1, input, "{w}x{h}: read_into");
         }
-        // Packed RGB goes through swscale into the scratch frame.
+        // Packed RGB goes through swscale into the slot's own frame.
         let p = dir.path().join("rgb.mkv");
-        let mut wr = ClipWriter::create_rgb_for_tests(&p, 32, 8).unwrap();
+        let mut wr = crate::encode::ClipWriter::create_rgb_for_tests(&p, 32, 8).unwrap();
         for i in 0..3 {
             wr.write(&pattern(i, 32, 8)).unwrap();
         }
         wr.finish().unwrap();
-        let (visited, untouched) = visit_all(&p);
-        assert!(!untouched);
-        assert_eq!(visited, decode_all(&p).1);
+        let (read, held) = read_all_slots(&p);
+        assert!(!held);
+        assert_eq!(read, decode_all(&p).1);
     }
 
     #[test]
-    fn a_visit_error_stops_the_visit_and_is_returned() {
-        use crate::encode::{ClipWriter, Codec};
+    fn held_pictures_stay_intact_while_the_decoder_goes_on() {
+        // Pictures are held by reference while later ones are decoded (as the queue to the
+        // tracker holds them): each must still show its own frame, also once released and
+        // refilled in turn.
         let dir = tempfile::tempdir().unwrap();
-        let p = dir.path().join("e.mkv");
-        let mut wr = ClipWriter::create(&p, Codec::Ffv1, 16, 16, 30.0).unwrap();
-        for i in 0..3 {
-            wr.write(&pattern(i, 16, 16)).unwrap();
-        }
-        wr.finish().unwrap();
+        let p = dir.path().join("held.mkv");
+        let input = write_clip(&p, 64, 12, 12);
         let mut src = VideoSource::open(&p).unwrap();
-        let mut scratch = Frame::empty();
-        let err = src
-            .visit_next(&mut scratch, &mut |_| {
-                Err(Error::input(Path::new("x"), "stop here"))
-            })
-            .unwrap_err();
-        assert!(err.to_string().contains("stop here"), "{err}");
-        // The next call goes on with the next frame.
-        let mut next = None;
-        assert!(
-            src.visit_next(&mut scratch, &mut |f| {
-                next = Some(f.index);
-                Ok(())
-            })
-            .unwrap()
-        );
-        assert_eq!(next, Some(1));
+        let mut slots: Vec<Slot> = (0..5).map(|_| Slot::new()).collect();
+        let mut seen = 0;
+        for round in 0..3 {
+            for slot in &mut slots {
+                if src.read_slot(slot).unwrap() {
+                    assert!(slot.holds_picture());
+                    seen += 1;
+                } else {
+                    assert!(!slot.holds_picture(), "an ended read leaves the slot empty");
+                }
+            }
+            for (i, slot) in slots.iter().enumerate().filter(|(_, s)| s.holds_picture()) {
+                let f = slot.view();
+                let LumaRef::U8(d) = f.luma else {
+                    panic!("8-bit expected")
+                };
+                assert_eq!(f.index, (round * 5 + i) as u64);
+                let Luma::U8(want) = &input[f.index as usize].luma else {
+                    unreachable!()
+                };
+                assert_eq!(d, &want[..], "frame {}", f.index);
+            }
+        }
+        assert_eq!(seen, 12);
     }
 
     #[test]
