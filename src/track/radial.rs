@@ -345,14 +345,8 @@ impl RadialTracker {
                 }
             }
             for (p, polarity) in [1.0f32, -1.0].into_iter().enumerate() {
-                for j in 0..n {
-                    for k in 0..k_n {
-                        column[k] = f64::from(resp[p][k * n + j]);
-                    }
-                    let (_, &mut med, _) = column.select_nth_unstable_by(k_n / 2, f64::total_cmp);
-                    if med > best.0 {
-                        best = (med, polarity, hw_px, j);
-                    }
+                if let Some((med, j)) = best_ring_median(&resp[p], k_n, best.0, &mut column) {
+                    best = (med, polarity, hw_px, j);
                 }
             }
         }
@@ -891,6 +885,37 @@ impl Window {
     }
 }
 
+/// Over the bins of `resp` (ring-major: `rings` rows of equal length), the highest median
+/// over rings (element `rings / 2` of the sorted column) and the first bin that has it, when
+/// it beats `floor`; `column` is scratch of `rings` values. A median beats the best so far
+/// exactly when at least `rings − rings / 2` of its column do, so a bin where fewer do is
+/// passed over without the selection (the first frame's matched filter: most of its cost).
+fn best_ring_median(
+    resp: &[f32],
+    rings: usize,
+    floor: f64,
+    column: &mut [f64],
+) -> Option<(f64, usize)> {
+    let n = resp.len() / rings;
+    let need = rings - rings / 2;
+    let (mut bar, mut best) = (floor, None);
+    for j in 0..n {
+        let mut above = 0;
+        for (k, c) in column.iter_mut().enumerate() {
+            *c = f64::from(resp[k * n + j]);
+            above += usize::from(*c > bar);
+        }
+        if above < need {
+            continue;
+        }
+        let (_, &mut med, _) = column.select_nth_unstable_by(rings / 2, f64::total_cmp);
+        if med > bar {
+            (bar, best) = (med, Some((med, j)));
+        }
+    }
+    best
+}
+
 /// The middle one of three values.
 fn median3([a, b, c]: [f64; 3]) -> f64 {
     a.max(b).min(a.min(b).max(c))
@@ -1101,6 +1126,35 @@ mod tests {
 
     proptest! {
         #[test]
+        fn the_best_ring_median_is_the_one_found_by_sorting_every_bin(
+            rings in 1usize..40,
+            n in 1usize..50,
+            seed in any::<u64>(),
+            floor in prop::sample::select(vec![f64::NEG_INFINITY, -1.0, 0.0, 2.0]),
+        ) {
+            // Values from a small set, so that ties between bins and with the floor occur.
+            let mut state = seed | 1;
+            let resp: Vec<f32> = (0..rings * n)
+                .map(|_| {
+                    state ^= state << 13;
+                    state ^= state >> 7;
+                    state ^= state << 17;
+                    (state % 9) as f32 - 3.0
+                })
+                .collect();
+            let mut want: Option<(f64, usize)> = None;
+            for j in 0..n {
+                let mut col: Vec<f64> = (0..rings).map(|k| f64::from(resp[k * n + j])).collect();
+                col.sort_by(f64::total_cmp);
+                let med = col[rings / 2];
+                if med > want.map_or(floor, |w| w.0) {
+                    want = Some((med, j));
+                }
+            }
+            let mut column = vec![0.0; rings];
+            prop_assert_eq!(best_ring_median(&resp, rings, floor, &mut column), want);
+        }
+
         fn floor_i64_equals_floor(x in -1e9f64..1e9) {
             prop_assert_eq!(floor_i64(x), x.floor() as i64);
             let whole = x.round();
