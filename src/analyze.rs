@@ -1,9 +1,9 @@
 //! The one function that chains the pipeline: decode → track → segment → mechanics.
 //! Decoding and tracking overlap, and no frame buffer is allocated per frame: the source
-//! decodes on a thread of its own and hands frames to the tracker, on the calling thread,
-//! through a short queue of recycled slots ([`decode::Slot`]). A video decoder whose picture
-//! rows are packed hands over references to its own pictures (no copy); every other source
-//! reads into the slots' buffers.
+//! decodes on a thread of its own and hands frames to the tracker, on a second thread at a
+//! lower priority, through a short queue of recycled slots ([`decode::Slot`]); the calling
+//! thread waits for both. A video decoder whose picture rows are packed hands over
+//! references to its own pictures (no copy); every other source reads into the slots' buffers.
 
 use std::path::Path;
 use std::sync::mpsc;
