@@ -205,10 +205,14 @@ fn track_pipelined(
                         Err(_) => return Ok(()),
                     },
                 };
-                if !source.read_slot(&mut slot)? || slot.view().index >= last {
+                if !source.read_slot(&mut slot)? {
                     return Ok(());
                 }
-                if slot.view().index < first {
+                let index = slot.view().index;
+                if index >= last {
+                    return Ok(());
+                }
+                if index < first {
                     spare = Some(slot);
                 } else if full_tx.send(slot).is_err() {
                     return Ok(());

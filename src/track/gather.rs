@@ -258,6 +258,8 @@ mod avx2 {
 mod tests {
     use super::*;
     use proptest::prelude::*;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
 
     proptest! {
         /// The vector path (where the processor has it) and the plain loop give bit-identical
@@ -272,13 +274,8 @@ mod tests {
             base_y in 0isize..3,
         ) {
             let (w, h) = (37usize, 23usize);
-            let mut state = seed | 1;
-            let mut next = || {
-                state ^= state << 13;
-                state ^= state >> 7;
-                state ^= state << 17;
-                state
-            };
+            let mut rng = ChaCha8Rng::seed_from_u64(seed);
+            let mut next = || rng.random::<u64>();
             let d: Vec<u8> = (0..w * h).map(|_| next() as u8).collect();
             // Points whose shifted blocks (with carries) stay inside: x ≤ w − 6, y ≤ h − 6.
             let idx: Vec<u32> = (0..n)
