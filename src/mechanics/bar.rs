@@ -19,18 +19,21 @@ pub use crate::mechanics::steel::DEFAULT_SHEAR_MODULUS_GPA;
 /// the reference sheet (facts.md §2.2) calls 60–80 % reasonable when the grade is uncertain.
 pub const DEFAULT_STRESS_WARN_FRACTION: f64 = 0.7;
 
-/// Torsion constant of a square, K = β·s⁴ with β = 0.140577 (Saint-Venant series for a
-/// square; Roark-type value 2.25·a⁴ with a = s/2 as given by amesweb "Torsion in solid square
-/// sections"; facts.md §1.2).
+/// Torsion constant of a square, K = β·s⁴ with β = 0.140577: Saint-Venant's series for a
+/// rectangular bar at a side ratio of 1 (Timoshenko & Goodier, *Theory of Elasticity*, 3rd ed.,
+/// ch. 10; their table gives k₁ = 0.1406). Checked against that series and a finite-difference
+/// Prandtl solve in `bar/saint_venant_check.rs`.
 const SQUARE_J_COEFF: f64 = 0.140_577;
-/// Maximum shear stress of a square, τ = 4.808·T/s³ (= 0.601·T/a³, a = s/2), at mid-side
-/// (amesweb "Torsion in solid square sections"; piping-designer; facts.md §1.2).
+/// Maximum shear stress of a square, τ = 4.808·T/s³ = T/(0.208·s³), at mid-side (Timoshenko &
+/// Goodier, ch. 10, table for rectangular bars: k₂ = 0.208, from memory). Checked against a
+/// finite-difference Prandtl solve in `bar/saint_venant_check.rs`.
 const SQUARE_TAU_COEFF: f64 = 4.808;
-/// Torsion constant of a regular hexagon, J = 0.11505·s⁴, s across flats (finite-difference
-/// Saint-Venant solution recorded in facts.md §1.2; handbook ≈ 0.115·s⁴ from memory).
+/// Torsion constant of a regular hexagon, J = 0.11505·s⁴, s across flats: a finite-difference
+/// Saint-Venant (Prandtl stress function) solution, checked by the solve in
+/// `bar/saint_venant_check.rs`; the handbook value ≈ 0.115·s⁴ is from memory.
 const HEX_J_COEFF: f64 = 0.115_05;
 /// Maximum shear stress of a regular hexagon, τ = 5.328·T/s³ = T/(0.1877·s³), at the middle
-/// of each flat (same finite-difference solution, facts.md §1.2).
+/// of each flat (the same finite-difference solution, checked in `bar/saint_venant_check.rs`).
 const HEX_TAU_COEFF: f64 = 5.328;
 
 /// The `"bar"` object of a rig file.
@@ -662,6 +665,11 @@ impl BarSpec {
     }
 }
 
+/// Outside check of the square and hexagon constants: a finite-difference Prandtl
+/// stress-function solve (Timoshenko & Goodier, ch. 10), in `bar/saint_venant_check.rs`.
+#[cfg(test)]
+mod saint_venant_check;
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -760,8 +768,10 @@ mod tests {
 
     #[test]
     fn c3_square() {
-        // facts.md §1.3 C3 (a, computed from amesweb's square formulas): s = 12.7 mm →
-        // K = 3657.04 mm⁴, τ_max = 2.347 MPa per N·m.
+        // s = 12.7 mm → K = 0.140577·s⁴ = 3657.04 mm⁴, τ_max = 4.808/s³ = 2.347 MPa per N·m:
+        // values computed from the section formulas, so this checks units and arithmetic;
+        // the coefficients themselves are checked against Timoshenko & Goodier's series and
+        // table and a finite-difference Prandtl solve in `saint_venant_check`.
         let s = SectionSpec::square(25.0, 12.7);
         assert_relative_eq!(s.torsion_constant_m4() * 1e12, 3657.04, max_relative = TOL);
         assert_relative_eq!(s.shear_stress_per_nm(), 2.347e6, max_relative = TOL);
@@ -769,9 +779,10 @@ mod tests {
 
     #[test]
     fn c4_hexagon_is_not_its_polar_moment() {
-        // facts.md §1.3 C4 (a, computed, finite-difference Saint-Venant): s = 19 mm across
-        // flats → J = 14 993.4 mm⁴, τ_max = 0.7768 MPa per N·m. Its polar moment 0.12028·s⁴
-        // (facts.md §1.2) is about 4.5 % larger, so J must not be the polar moment.
+        // s = 19 mm across flats → J = 0.11505·s⁴ = 14 993.4 mm⁴, τ_max = 5.328/s³ = 0.7768
+        // MPa per N·m: computed from the coefficients, which `saint_venant_check` checks
+        // against a finite-difference Prandtl solve. Its polar moment (5√3/8)·a⁴ = 0.12028·s⁴
+        // (a = s/√3) is about 4.5 % larger, so J must not be the polar moment.
         let s = SectionSpec::hex(30.0, 19.0);
         let j_mm4 = s.torsion_constant_m4() * 1e12;
         assert_relative_eq!(j_mm4, 14_993.4, max_relative = TOL);
@@ -785,8 +796,8 @@ mod tests {
 
     #[test]
     fn c5_series() {
-        // facts.md §1.3 C5 (a, computed): 25 mm of C3 square + 150 mm of C1 round + 30 mm of
-        // C4 hex → segment stiffnesses 11 600.1 / 3401.43 / 39 632.6 N·m/rad,
+        // 25 mm of C3 square + 150 mm of C1 round + 30 mm of C4 hex, in series (1/k = Σ L/(GJ),
+        // Beer & Johnston ch. 3; square and hex J as in C3, C4) → segment stiffnesses 11 600.1 / 3401.43 / 39 632.6 N·m/rad,
         // k = 2466.51 N·m/rad = 43.049 N·m/deg, twist at 150 N·m = 3.4844°, and the round
         // section supplies 72.5 % of the compliance.
         let bar = c5();
