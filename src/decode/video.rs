@@ -91,16 +91,22 @@ pub struct VideoSource {
     decoder: ff::decoder::Video,
     picture: ff::frame::Video,
     packet: ff::Packet,
-    scaler: Option<(Pixel, u32, u32, ff::software::scaling::Context)>,
+    scaler: Option<(Pixel, u32, u32, Scaler)>,
     gray: ff::frame::Video,
     next_index: u64,
     eof_sent: bool,
     done: bool,
 }
 
-// SAFETY: the FFmpeg contexts inside are owned exclusively by this value and never shared;
-// moving them to another thread between calls is allowed by FFmpeg (no thread-local state).
-unsafe impl Send for VideoSource {}
+/// FFmpeg's pixel-format converter, the one part of [`VideoSource`] that ffmpeg-next does not
+/// mark `Send` (the demuxer, decoder, frames and packet are).
+struct Scaler(ff::software::scaling::Context);
+
+// SAFETY: a SwsContext holds no thread-local state and no reference to another thread's data;
+// this one is owned by exactly one `VideoSource`, used only through `&mut self`, and freed by
+// its owner, so moving it to another thread between calls is sound (FFmpeg allows a context
+// to be used from any one thread at a time).
+unsafe impl Send for Scaler {}
 
 impl VideoSource {
     /// Opens the file, checks that it holds a decodable video stream, and counts its frames.
@@ -300,6 +306,14 @@ impl VideoSource {
     /// How to read the luma of `self.picture`, after checking that its size and depth are
     /// the clip's.
     fn picture_plan(&self) -> Result<LumaPlan> {
+        if bottom_up(&self.picture) {
+            return Err(self.decode_error(
+                "the decoder gave a picture stored bottom-up (a negative line stride), which \
+                 twistmark does not read; re-encode the clip (for example to FFV1 or H.264) and \
+                 try again"
+                    .into(),
+            ));
+        }
         let (w, h) = (self.picture.width(), self.picture.height());
         if w != self.info.width || h != self.info.height {
             return Err(self.decode_error(format!(
@@ -358,12 +372,13 @@ impl VideoSource {
                             src_fmt.descriptor().map_or("?", |d| d.name())
                         ))
                     })?;
-                    self.scaler = Some((src_fmt, w, h, ctx));
+                    self.scaler = Some((src_fmt, w, h, Scaler(ctx)));
                 }
                 let Some((_, _, _, sws)) = self.scaler.as_mut() else {
                     unreachable!("scaler set above");
                 };
-                sws.run(&self.picture, &mut self.gray)
+                sws.0
+                    .run(&self.picture, &mut self.gray)
                     .map_err(|e| self.decode_error(format!("grey conversion failed: {e}")))?;
                 if deep {
                     copy_u16(&self.gray, wu, hu, frame);
@@ -374,6 +389,18 @@ impl VideoSource {
         }
         Ok(())
     }
+}
+
+/// True when any plane of `pic` has a negative line stride (stored bottom-up, as some decoders
+/// give): ffmpeg-next's plane slices assume a positive stride, so such a picture must not be
+/// read through them.
+fn bottom_up(pic: &ff::frame::Video) -> bool {
+    // SAFETY: `pic` wraps a valid AVFrame; only its plain `data` and `linesize` fields are read.
+    let f = unsafe { &*pic.as_ptr() };
+    f.linesize
+        .iter()
+        .zip(&f.data)
+        .any(|(&stride, plane)| !plane.is_null() && stride < 0)
 }
 
 /// The reason FFmpeg gives, for messages.
@@ -666,6 +693,19 @@ mod tests {
         assert_eq!(plan_for(Pixel::GRAY16BE), LumaPlan::Scale { deep: true });
         // P010 keeps its 10 bits in the high end of each word: needs conversion.
         assert_eq!(plan_for(Pixel::P010LE), LumaPlan::Scale { deep: true });
+    }
+
+    #[test]
+    fn bottom_up_pictures_are_recognised() {
+        let mut pic = ff::frame::Video::new(Pixel::GRAY8, 8, 4);
+        assert!(!bottom_up(&pic));
+        // SAFETY: flips the sign of a plain field of a valid AVFrame and flips it back before
+        // the frame is used or freed (freeing goes by its buffer references, not the stride).
+        unsafe { (*pic.as_mut_ptr()).linesize[0] *= -1 };
+        assert!(bottom_up(&pic));
+        // SAFETY: as above.
+        unsafe { (*pic.as_mut_ptr()).linesize[0] *= -1 };
+        assert!(!bottom_up(&pic));
     }
 
     #[test]

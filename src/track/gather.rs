@@ -87,12 +87,18 @@ impl<'a> Points<'a> {
 /// by `shift`, into `out`.
 ///
 /// Every shifted point's 2×2 block must lie inside the frame (the grids keep their shifts
-/// inside it); `range` is the smallest and largest of `pts.idx`, used to check that the
-/// vector path's 4-byte loads stay inside the frame too.
+/// inside it); `range` bounds `pts.idx` and is what the vector path's bounds check uses.
+///
+/// # Safety
+/// `range.0 ≤ i ≤ range.1` for every `i` in `pts.idx` (the grids pass the smallest and largest
+/// index of the taps `pts` was cut from). The vector path checks its 4-byte loads against
+/// `range` only, so a range that does not bound the indices lets it read outside the frame.
+/// (Scanning the indices here instead would cost a pass over them on every call; debug builds
+/// do scan them and panic on a false range.)
 ///
 /// # Panics
-/// When a block falls outside the frame, or the slices' lengths differ.
-pub(crate) fn bilinear<T: Sample>(
+/// When a block falls outside the frame (plain path), or the slices' lengths differ.
+pub(crate) unsafe fn bilinear<T: Sample>(
     img: Image<'_, T>,
     pts: Points<'_>,
     range: (u32, u32),
@@ -101,6 +107,10 @@ pub(crate) fn bilinear<T: Sample>(
 ) {
     let n = out.len();
     assert!(pts.idx.len() == n && pts.fx.len() == n && pts.fy.len() == n);
+    debug_assert!(
+        pts.idx.iter().all(|&i| (range.0..=range.1).contains(&i)),
+        "gather::bilinear: range {range:?} does not bound the indices"
+    );
     #[cfg(target_arch = "x86_64")]
     if let Some(bytes) = T::bytes(img.d)
         && std::arch::is_x86_feature_detected!("avx2")
@@ -119,7 +129,8 @@ pub(crate) fn bilinear<T: Sample>(
         for &(a, b) in &blocks[..if full == n { 1 } else { 2 }] {
             // SAFETY: AVX2 is present (checked above), and `gather_fits` checked that every
             // 4-byte load of every point (its index plus the shift, with or without a carry in
-            // each direction, on its row and the next) lies inside the frame.
+            // each direction, on its row and the next) lies inside the frame, given that
+            // `range` bounds the indices (this function's contract).
             unsafe { avx2::bilinear(bytes, pts.range(a, b), shift, &mut out[a..b]) };
         }
         return;
@@ -296,13 +307,35 @@ mod tests {
             let img = Image { d: &d[..], w, scale: 1.0 / 255.0 };
             let pts = Points { idx: &idx, fx: &fx, fy: &fy };
             let mut fast = vec![0.0f32; n];
-            bilinear(img, pts, range, shift, &mut fast);
+            // SAFETY: `range` is the smallest and largest of `idx`, computed just above.
+            unsafe { bilinear(img, pts, range, shift, &mut fast) };
             let mut slow = vec![0.0f32; n];
             plain(img, pts, shift, &mut slow);
             for (a, b) in fast.iter().zip(&slow) {
                 prop_assert_eq!(a.to_bits(), b.to_bits());
             }
         }
+    }
+
+    #[test]
+    #[cfg(debug_assertions)]
+    #[should_panic(expected = "does not bound the indices")]
+    fn a_false_range_is_caught_in_debug_builds() {
+        let d = vec![0u8; 32 * 32];
+        let idx = [40u32; 8];
+        let img = Image {
+            d: &d[..],
+            w: 32,
+            scale: 1.0,
+        };
+        let pts = Points {
+            idx: &idx,
+            fx: &[0.0; 8],
+            fy: &[0.0; 8],
+        };
+        let mut out = [0.0f32; 8];
+        // SAFETY: deliberately false range; the debug check panics before any sample is read.
+        unsafe { bilinear(img, pts, (0, 1), Shift::ZERO, &mut out) };
     }
 
     #[test]
@@ -329,7 +362,8 @@ mod tests {
             fx: &[0.5],
             fy: &[0.75],
         };
-        bilinear(img, pts, (idx[0], idx[0]), shift, &mut out);
+        // SAFETY: one index, so (idx[0], idx[0]) bounds it.
+        unsafe { bilinear(img, pts, (idx[0], idx[0]), shift, &mut out) };
         // Point (4.5, 3.75) moved by (1.75, 1.5): (6.25, 5.25), carried in both directions.
         assert!(
             (out[0] - (2.0 * 6.25 + 3.0 * 5.25)).abs() < 1e-5,

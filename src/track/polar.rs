@@ -289,6 +289,10 @@ impl PolarGrid {
 
     /// Bilinear samples of the frame at `pts` (taps of this grid; `idx_range` is the smallest
     /// and largest of their indices), into `out` (same length), values 0..=1.
+    ///
+    /// Its two callers pass `pts` cut from taps whose range was computed from those same taps
+    /// when they were made (`PolarGrid::new`'s `idx_range`, `LatticeTaps::range`), and the taps
+    /// never change after: that is what makes the unsafe gather below sound.
     fn gather(
         &self,
         pts: gather::Points<'_>,
@@ -298,12 +302,15 @@ impl PolarGrid {
     ) {
         let (w, scale, sh) = (self.width, frame.scale, frame.shift);
         match frame.luma {
-            LumaRef::U8(d) => {
+            // SAFETY: `idx_range` is the smallest and largest index of the taps `pts` was cut
+            // from (see above), so it bounds every index of `pts`.
+            LumaRef::U8(d) => unsafe {
                 gather::bilinear(gather::Image { d, w, scale }, pts, idx_range, sh, out)
-            }
-            LumaRef::U16(d) => {
+            },
+            // SAFETY: as above.
+            LumaRef::U16(d) => unsafe {
                 gather::bilinear(gather::Image { d, w, scale }, pts, idx_range, sh, out)
-            }
+            },
         }
     }
 
