@@ -34,6 +34,7 @@ pub mod mechanics;
 pub mod report;
 pub mod rig;
 pub mod segment;
+mod stats;
 pub mod synth;
 pub mod track;
 pub mod units;

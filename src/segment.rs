@@ -74,6 +74,7 @@
 //!    ones (or there are none that way), the rig's `tighten` is probably reversed and a
 //!    warning says so: the "blows" found would be the spring-backs.
 
+use crate::stats::{mad, median, quantile, rest_level, weighted_median};
 use crate::track::Trace;
 use crate::units::Angle;
 use crate::warning::Warning;
@@ -307,28 +308,8 @@ pub(crate) fn noise_sigma(v: &[Option<f64>]) -> Option<f64> {
             None
         };
     }
-    let med = median(&d2)?;
-    let dev: Vec<f64> = d2.iter().map(|d| (d - med).abs()).collect();
-    let mad = median(&dev)?;
+    let mad = mad(&d2)?;
     Some((1.4826 * mad / 6f64.sqrt()).max(NOISE_FLOOR_DEG))
-}
-
-/// Median of finite values (None when empty).
-pub(crate) fn median(v: &[f64]) -> Option<f64> {
-    quantile(v, 0.5)
-}
-
-/// Linear-interpolated quantile q ∈ [0, 1] of the finite values (None when there are none).
-pub(crate) fn quantile(v: &[f64], q: f64) -> Option<f64> {
-    let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
-    if s.is_empty() {
-        return None;
-    }
-    s.sort_by(f64::total_cmp);
-    let pos = q.clamp(0.0, 1.0) * (s.len() - 1) as f64;
-    let lo = pos.floor() as usize;
-    let hi = pos.ceil() as usize;
-    Some(s[lo] + (pos - lo as f64) * (s[hi] - s[lo]))
 }
 
 /// One rapid advance of the drive end.
@@ -514,7 +495,7 @@ fn rises_at(x: &[f64], s: usize, sigma: f64) -> Vec<Rise> {
     // refreshed from the survivors, three times (each pass only removes rises).
     for _ in 0..3 {
         let amps: Vec<f64> = rises.iter().map(|r| r.amp).collect();
-        let Some(typical) = amplitude_weighted_median(&amps) else {
+        let Some(typical) = weighted_median(&amps) else {
             break;
         };
         rises.retain(|r| r.amp >= MIN_FRACTION * typical);
@@ -541,27 +522,6 @@ fn rises_at(x: &[f64], s: usize, sigma: f64) -> Vec<Rise> {
         rises = kept;
     }
     rises
-}
-
-/// The amplitude-weighted median: the amplitude below which half of the total amplitude
-/// lies. Many small ringing rises carry little total amplitude, so this stays at the size
-/// of the blows even when ringing rises outnumber them.
-fn amplitude_weighted_median(amps: &[f64]) -> Option<f64> {
-    let mut a: Vec<f64> = amps
-        .iter()
-        .copied()
-        .filter(|x| x.is_finite() && *x > 0.0)
-        .collect();
-    a.sort_by(f64::total_cmp);
-    let total: f64 = a.iter().sum();
-    let mut acc = 0.0;
-    for &x in &a {
-        acc += x;
-        if acc >= 0.5 * total {
-            return Some(x);
-        }
-    }
-    a.last().copied()
 }
 
 /// First index of the largest value in `x[a..=b]`.
@@ -658,52 +618,6 @@ fn nut_onset(
     Some((from + k).max(onset))
 }
 
-/// The nut's rest level at sample `k`: the mean of the longest run of measured samples
-/// ending at `k` (and not before `lo`) that agree with their running mean within
-/// 3σ·√(1 + 1/count), starting from the median of the last three samples; one stray sample
-/// is skipped, two in a row end the run. A nut at rest between blows is averaged over its
-/// whole quiet spell; its motion within the blow ends the run, so the motion never enters
-/// the mean. None when `[lo, k]` holds no measured sample; else the level and the number of
-/// samples averaged.
-pub(crate) fn rest_level(
-    v: &[Option<f64>],
-    k: usize,
-    lo: usize,
-    sigma_deg: f64,
-) -> Option<(f64, usize)> {
-    if k >= v.len() || lo > k {
-        return None;
-    }
-    let mut samples = (lo..=k).rev().filter_map(|i| v[i]);
-    let first: Vec<f64> = samples.by_ref().take(3).collect();
-    // Start from the median of the last three samples, so one noisy sample at `k` does not
-    // set the level.
-    let mut start = first.clone();
-    start.sort_by(f64::total_cmp);
-    let center0 = *start.get(start.len() / 2)?;
-    let (mut sum, mut count, mut misses) = (0.0, 0usize, 0usize);
-    for y in first.into_iter().chain(samples) {
-        let center = if count == 0 {
-            center0
-        } else {
-            sum / count as f64
-        };
-        let tol = 3.0 * sigma_deg * (1.0 + 1.0 / count.max(1) as f64).sqrt();
-        if (y - center).abs() <= tol {
-            sum += y;
-            count += 1;
-            misses = 0;
-        } else {
-            // One stray sample is skipped; two in a row end the quiet spell.
-            misses += 1;
-            if misses == 2 {
-                break;
-            }
-        }
-    }
-    (count > 0).then(|| (sum / count as f64, count))
-}
-
 /// Samples used to estimate a rest level before a blow: a tenth of the median blow length,
 /// between 1 and 16 samples.
 pub(crate) fn rest_window(onsets: &[usize], n: usize) -> usize {
@@ -719,33 +633,6 @@ pub(crate) fn rest_window(onsets: &[usize], n: usize) -> usize {
         .collect();
     let len = median(&lengths).unwrap_or(10.0);
     ((len / 10.0).floor() as usize).clamp(1, 16)
-}
-
-/// The level at sample `k`, from a least-squares straight line through the measured samples
-/// among the `m` samples ending at `k` (a line, so that a slow spring-back or creep does not
-/// bias it). Falls back to the nearest measured sample at or before `k`; None when there is
-/// none.
-pub(crate) fn level_at(v: &[Option<f64>], k: usize, m: usize) -> Option<f64> {
-    if k >= v.len() {
-        return None;
-    }
-    let a = (k + 1).saturating_sub(m.max(1));
-    let pts: Vec<(f64, f64)> = (a..=k)
-        .filter_map(|i| v[i].map(|y| (i as f64, y)))
-        .collect();
-    match pts.len() {
-        0 => (0..a).rev().find_map(|i| v[i]),
-        1 => Some(pts[0].1),
-        len => {
-            let nf = len as f64;
-            let mx = pts.iter().map(|p| p.0).sum::<f64>() / nf;
-            let my = pts.iter().map(|p| p.1).sum::<f64>() / nf;
-            let sxx: f64 = pts.iter().map(|p| (p.0 - mx).powi(2)).sum();
-            let sxy: f64 = pts.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum();
-            let slope = if sxx > 0.0 { sxy / sxx } else { 0.0 };
-            Some(my + slope * (k as f64 - mx))
-        }
-    }
 }
 
 #[cfg(test)]
@@ -1140,15 +1027,6 @@ pub(crate) mod tests {
             "{:?}",
             seg.warnings
         );
-    }
-
-    #[test]
-    fn level_at_fits_a_line() {
-        let v: Vec<Option<f64>> = (0..10).map(|i| Some(2.0 * i as f64 + 1.0)).collect();
-        assert!((level_at(&v, 9, 5).unwrap() - 19.0).abs() < 1e-12);
-        let g = vec![None, Some(3.0), None, None];
-        assert_eq!(level_at(&g, 3, 2), Some(3.0));
-        assert_eq!(level_at(&[None, None], 1, 4), None);
     }
 
     mod props {

@@ -34,7 +34,8 @@
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
 use crate::mechanics::{BarSpec, StiffnessSource};
-use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_level, rest_window};
+use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, rest_window};
+use crate::stats::{level_at, median, rest_level};
 use crate::track::Trace;
 use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
@@ -142,7 +143,7 @@ pub fn blow_metrics(
     let onsets: Vec<usize> = blows.iter().map(|b| b.onset).collect();
     let m = rest_window(&onsets, n);
     let lengths: Vec<f64> = blows.iter().map(|b| (b.end - b.onset) as f64).collect();
-    let typical_len = crate::segment::median(&lengths).unwrap_or(0.0);
+    let typical_len = median(&lengths).unwrap_or(0.0);
     let half_width = ((typical_len / 40.0).floor() as usize).min(8);
     let twist_smooth = savitzky_golay(&twist, half_width);
 
