@@ -509,7 +509,7 @@ mod tests {
                 if matches!(codec, Codec::H264 { .. }) {
                     // libx264 through these libraries was seen to produce different bytes on
                     // some runs even with one thread (not understood yet); its decoded accuracy
-                    // is checked in tests/decode.rs instead, and the fixture check compares
+                    // is checked in tests/it/decode.rs instead, and the fixture check compares
                     // H.264 files through checksums.json.
                     continue;
                 }

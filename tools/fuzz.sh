@@ -11,7 +11,7 @@
 #
 # A crash leaves its input in fuzz/artifacts/<target>/. Reproduce with
 #   RUSTC_BOOTSTRAP=1 cargo fuzz run <target> fuzz/artifacts/<target>/crash-...
-# then keep it as a regression test in the normal test suite (tests/bad_input.rs).
+# then keep it as a regression test in the normal test suite (tests/it/bad_input.rs).
 # CI does not run this script.
 set -euo pipefail
 cd "$(dirname "$0")/.."

@@ -22,7 +22,7 @@ fuzz_target!(|data: &[u8]| {
         Err(e) => {
             // The message may hold a newline echoed from the input (a field name with "\n" in
             // it, found by this target); the binary prints every error on one line
-            // (src/main.rs), which tests/bad_input.rs checks.
+            // (src/main.rs), which tests/it/bad_input.rs checks.
             let m = e.to_string();
             assert!(
                 m.contains("fuzz.rig.json"),

@@ -263,6 +263,17 @@ pub fn fixture_set() -> Vec<Fixture> {
 /// [`Error::Io`] / [`Error::Output`] naming the file that could not be written, or
 /// [`Error::Option`] when this build has no video encoder.
 pub fn write_fixtures(root: &Path) -> Result<Vec<PathBuf>> {
+    write_fixture_files(root, true, &mut Vec::new())
+}
+
+/// Writes every fixture into `root`; with `media` false, only the text files (sidecars,
+/// `checksums.json`, README.md), skipping the stills and the video encoding, and pushes the
+/// stills' and videos' paths (relative to `root`) onto `skipped`.
+fn write_fixture_files(
+    root: &Path,
+    media: bool,
+    skipped: &mut Vec<PathBuf>,
+) -> Result<Vec<PathBuf>> {
     let set = fixture_set();
     let mut readme = readme_head();
     for fx in &set {
@@ -278,11 +289,24 @@ pub fn write_fixtures(root: &Path) -> Result<Vec<PathBuf>> {
             frame_fnv1a: frames.iter().map(Frame::checksum).collect(),
         };
         super::write::write_json(&dir.join("checksums.json"), &sums)?;
-        if let Some(fmt) = fx.stills {
-            save_stills(&frames, &dir.join("frames"), fmt)?;
-        }
-        for v in &fx.videos {
-            write_one_video(&frames, &dir.join(v.file_name()), *v)?;
+        if media {
+            if let Some(fmt) = fx.stills {
+                save_stills(&frames, &dir.join("frames"), fmt)?;
+            }
+            for v in &fx.videos {
+                write_one_video(&frames, &dir.join(v.file_name()), *v)?;
+            }
+        } else {
+            let rel = PathBuf::from(fx.dir);
+            if let Some(fmt) = fx.stills {
+                for f in &frames {
+                    let name = format!("f_{:05}.{}", f.index, fmt.extension());
+                    skipped.push(rel.join("frames").join(name));
+                }
+            }
+            for v in &fx.videos {
+                skipped.push(rel.join(v.file_name()));
+            }
         }
         readme_entry(&mut readme, fx, &truth);
     }
@@ -326,14 +350,40 @@ fn list_files(root: &Path, dir: &Path, out: &mut Vec<PathBuf>) -> Result<()> {
     Ok(())
 }
 
-/// Re-renders the fixture set into `scratch` and compares it byte for byte with `root`.
-/// Returns one line per difference (missing, extra or changed file); empty when they match.
-/// Only the fixtures' own folders and README.md are compared.
+/// The quick drift check (`make-fixtures --check`): re-renders every fixture's frames in
+/// memory and compares, byte for byte, the files that describe them: `checksums.json` (the
+/// FNV-1a checksum of every rendered frame), `truth.json`, `rig.json`, `scenario.json` and
+/// README.md; and that exactly the expected files are committed (one still per frame, each
+/// declared video, nothing extra). It does not encode: that the committed stills and videos
+/// hold those frames is checked by decoding them (`tests/it/fixtures_decode.rs`: exact
+/// checksums for PNG, TIFF and FFV1; count and size for H.264 and MJPEG). A change to the
+/// renderer or the scenes is caught here; a change to the encoders' settings only by
+/// [`check_fixtures`] (`--check --full`). Returns one line per difference; empty when they
+/// match.
 ///
 /// # Errors
 /// As [`write_fixtures`], for the scratch folder.
-pub fn check_fixtures(root: &Path, scratch: &Path) -> Result<Vec<String>> {
-    let fresh = write_fixtures(scratch)?;
+pub fn check_fixture_sums(root: &Path, scratch: &Path) -> Result<Vec<String>> {
+    let mut media = Vec::new();
+    let mut fresh = write_fixture_files(scratch, false, &mut media)?;
+    let committed = committed_files(root)?;
+    let mut diffs = compare_files(root, scratch, &fresh, &committed, |_| false)?;
+    for f in &media {
+        if !committed.contains(f) {
+            diffs.push(format!("missing: {}", f.display()));
+        }
+    }
+    fresh.extend(media);
+    for f in &committed {
+        if !fresh.contains(f) {
+            diffs.push(format!("extra: {}", f.display()));
+        }
+    }
+    Ok(diffs)
+}
+
+/// The files of the fixture set committed under `root` (relative to it), sorted.
+fn committed_files(root: &Path) -> Result<Vec<PathBuf>> {
     let mut committed = Vec::new();
     for fx in fixture_set() {
         let d = root.join(fx.dir);
@@ -345,15 +395,27 @@ pub fn check_fixtures(root: &Path, scratch: &Path) -> Result<Vec<String>> {
         committed.push(PathBuf::from("README.md"));
     }
     committed.sort();
+    Ok(committed)
+}
+
+/// One line for each file of `fresh` that is missing from `committed` or whose bytes differ
+/// (a file that `near_enough` accepts may differ when the sizes are within 10 %).
+fn compare_files(
+    root: &Path,
+    scratch: &Path,
+    fresh: &[PathBuf],
+    committed: &[PathBuf],
+    near_enough: impl Fn(&Path) -> bool,
+) -> Result<Vec<String>> {
     let mut diffs = Vec::new();
-    for f in &fresh {
+    for f in fresh {
         if !committed.contains(f) {
             diffs.push(format!("missing: {}", f.display()));
             continue;
         }
         let a = std::fs::read(root.join(f)).map_err(|e| Error::io(root.join(f), e))?;
         let b = std::fs::read(scratch.join(f)).map_err(|e| Error::io(scratch.join(f), e))?;
-        if a != b && !(is_lossy(f) && similar_size(a.len(), b.len())) {
+        if a != b && !(near_enough(f) && similar_size(a.len(), b.len())) {
             diffs.push(format!(
                 "changed: {} ({} bytes committed, {} bytes rendered)",
                 f.display(),
@@ -362,6 +424,20 @@ pub fn check_fixtures(root: &Path, scratch: &Path) -> Result<Vec<String>> {
             ));
         }
     }
+    Ok(diffs)
+}
+
+/// The full drift check (`make-fixtures --check --full`): re-renders and re-encodes the
+/// fixture set into `scratch` and compares it byte for byte with `root` (H.264 by size, see
+/// `is_lossy`). Returns one line per difference (missing, extra or changed file); empty when
+/// they match. Only the fixtures' own folders and README.md are compared.
+///
+/// # Errors
+/// As [`write_fixtures`], for the scratch folder.
+pub fn check_fixtures(root: &Path, scratch: &Path) -> Result<Vec<String>> {
+    let fresh = write_fixtures(scratch)?;
+    let committed = committed_files(root)?;
+    let mut diffs = compare_files(root, scratch, &fresh, &committed, is_lossy)?;
     for f in &committed {
         if !fresh.contains(f) {
             diffs.push(format!("extra: {}", f.display()));
@@ -396,9 +472,12 @@ before encoding: a lossless decode must reproduce them). Video containers store 
 `capture_fps_hz` in `rig.json`. Torques are the model's stiffness x twist on an invented bench,\n\
 not measurements. Angles in degrees, relative to frame 0, tightening positive; frame `f` is the\n\
 instant `f / fps`. See docs/scenes.md for the model and every knob.\n\n\
-`--check` compares PNG, TIFF, FFV1, MJPEG and JSON files byte for byte. H.264 (.mp4) files are\n\
-checked through `checksums.json` plus a size within 10 %, because the library's H.264 output was\n\
-seen to vary between runs on noisy frames.\n\n"
+`--check` re-renders every frame in memory and compares `checksums.json`, the JSON sidecars and\n\
+this file byte for byte, and the list of files; the stills and videos are tied to\n\
+`checksums.json` by decoding them (`tests/it/fixtures_decode.rs`). `--check --full` also re-encodes\n\
+and compares PNG, TIFF, FFV1, MJPEG and JSON files byte for byte, and H.264 (.mp4) files by a\n\
+size within 10 %, because the library's H.264 output was seen to vary between runs on noisy\n\
+frames.\n\n"
         .to_string()
 }
 

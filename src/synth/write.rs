@@ -22,7 +22,7 @@ pub enum StillFormat {
 }
 
 impl StillFormat {
-    fn extension(self) -> &'static str {
+    pub(crate) fn extension(self) -> &'static str {
         match self {
             StillFormat::Png => "png",
             StillFormat::Tiff16 => "tif",

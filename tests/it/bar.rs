@@ -81,13 +81,17 @@ fn bar_json_matches_c5_check_values() {
     let dir = tempfile::tempdir().unwrap();
     let rig = write(dir.path(), "rig.json", C5_RIG);
     let v = bar_json(&rig);
-    // facts.md §1.3 C5 (a, computed): k = 2466.51 N·m/rad = 43.049 N·m/deg, twist at
+    // C5, computed by hand from 1/k = Σ L/(GJ) (Beer & Johnston, Mechanics of Materials, ch. 3)
+    // with J = 0.140577·s⁴ for the square and 0.11505·s⁴ for the hexagon; those two
+    // coefficients are checked against Timoshenko & Goodier's series and a finite-difference
+    // Prandtl solve in src/mechanics/bar/saint_venant_check.rs, so this test checks the
+    // binary's wiring, units and series sum: k = 2466.51 N·m/rad = 43.049 N·m/deg, twist at
     // 150 N·m = 3.4844°.
     assert_relative_eq!(num(&v, "stiffness_nm_per_rad"), 2466.51, max_relative = TOL);
     assert_relative_eq!(num(&v, "stiffness_nm_per_deg"), 43.049, max_relative = TOL);
     assert_relative_eq!(num(&v, "twist_at_rating_deg"), 3.4844, max_relative = TOL);
-    // Largest over sections: the square, C3 τ = 2.347 MPa per N·m (amesweb formula,
-    // facts.md §1.3) → 352.05 MPa at 150 N·m.
+    // Largest over sections: the square, C3 τ = T/(0.208·s³) = 2.347 MPa per N·m (Timoshenko
+    // & Goodier, ch. 10, table for rectangular bars, k₂ = 0.208) → 352.05 MPa at 150 N·m.
     assert_relative_eq!(
         num(&v, "shear_stress_at_rating_mpa"),
         2.347 * 150.0,
@@ -97,8 +101,8 @@ fn bar_json_matches_c5_check_values() {
         v["shear_stress_at_rating_section"],
         "bar.sections[0] (square)"
     );
-    // Section stiffnesses 11 600.1 / 3401.43 / 39 632.6 N·m/rad; the round section supplies
-    // 72.5 % of the compliance (facts.md §1.3 C5).
+    // Section stiffnesses GJ/L = 11 600.1 / 3401.43 / 39 632.6 N·m/rad; the round section
+    // supplies 72.5 % of the compliance (C5, computed as above).
     let secs = v["sections"].as_array().unwrap();
     for (s, want) in secs.iter().zip([11_600.1, 3401.43, 39_632.6]) {
         assert_relative_eq!(num(s, "stiffness_nm_per_rad"), want, max_relative = TOL);

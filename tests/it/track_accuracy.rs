@@ -12,7 +12,7 @@
 //! `regenerate_accuracy_table`:
 //!
 //! ```text
-//! cargo test --release --test track_accuracy -- --ignored --nocapture
+//! cargo test --release --test it track_accuracy:: -- --ignored --nocapture
 //! ```
 
 use std::path::Path;

@@ -2,7 +2,7 @@
 //! reports the exact frame count and size for every container and for stills, and lossless
 //! media (PNG/TIFF stills, FFV1) reproduce each rendered frame's luma checksum exactly. Lossy
 //! media (H.264, MJPEG) are checked for count and size only; their accuracy is checked where it
-//! matters, in tests/analyze_fixtures.rs.
+//! matters, in tests/it/analyze_fixtures.rs.
 #![cfg(feature = "ffmpeg")]
 
 use std::path::{Path, PathBuf};

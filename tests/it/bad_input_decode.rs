@@ -86,6 +86,16 @@ fn png_named_mp4_is_refused_as_a_single_image() {
     }
 }
 
+/// Without the `ffmpeg` feature a video file is refused with one line that names it and says
+/// how to get a build that reads it: the one decode behaviour that differs between the builds
+/// (CI runs this module with `--no-default-features`).
+#[cfg(not(feature = "ffmpeg"))]
+#[test]
+fn video_without_ffmpeg_says_to_rebuild() {
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/slow-tool/clip_ffv1.mkv");
+    assert_one_line_error(&info(&p), &["clip_ffv1.mkv", "\"ffmpeg\" feature"]);
+}
+
 #[test]
 fn empty_folder_is_named() {
     let dir = tempfile::tempdir().unwrap();

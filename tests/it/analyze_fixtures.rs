@@ -4,6 +4,13 @@
 //! These are synthetic clips of the project's own invented test bench, rendered with exact known
 //! truth (see docs/scenes.md); the tolerances are issue 3's accuracy targets, loosened where a
 //! lossy codec or the realism knobs make that necessary (stated beside each).
+//!
+//! Each run's trace is also hashed and compared with `trace_hashes.json` beside this file:
+//! a regression value, not an outside check. It proves that a change made for speed alone
+//! leaves every fixture clip's `drive_deg` and `nut_deg` bit-identical. After a change meant to
+//! alter the tracker's arithmetic, regenerate it with
+//! `REGENERATE_TRACE_HASHES=1 cargo test --test it analyze_fixtures::` (and regenerate
+//! docs/accuracy.md), and say so in the commit.
 #![cfg(feature = "ffmpeg")]
 
 use std::path::{Path, PathBuf};
@@ -47,6 +54,54 @@ const COMPRESSED: Tol = Tol {
     peak_torque_rel: 0.03,
 };
 
+/// The committed trace hashes, and the lock that serialises their regeneration (the tests of
+/// this module run on parallel threads of one process).
+const HASHES: &str = "tests/it/trace_hashes.json";
+static HASHES_LOCK: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
+/// FNV-1a (64-bit) over every frame's `drive_deg` then `nut_deg`, as the bits of the f64 read
+/// back from report.json (which prints the shortest text that reads back to the same f64);
+/// a lost mark (null) hashes as u64::MAX.
+fn trace_hash(report: &Value) -> String {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    let drive = report["trace"]["drive_deg"].as_array().unwrap();
+    let nut = report["trace"]["nut_deg"].as_array().unwrap();
+    for (d, n) in drive.iter().zip(nut) {
+        for v in [d, n] {
+            let bits = v.as_f64().map_or(u64::MAX, f64::to_bits);
+            for byte in bits.to_le_bytes() {
+                h ^= u64::from(byte);
+                h = h.wrapping_mul(0x0100_0000_01b3);
+            }
+        }
+    }
+    format!("{h:016x}")
+}
+
+/// Compares this clip's trace hash with the committed one, or with
+/// `REGENERATE_TRACE_HASHES=1` writes it into the file.
+fn check_trace_hash(what: &str, report: &Value) {
+    let got = trace_hash(report);
+    let path = root().join(HASHES);
+    let _guard = HASHES_LOCK.lock().unwrap_or_else(|e| e.into_inner());
+    let mut file = read_json(&path);
+    if std::env::var_os("REGENERATE_TRACE_HASHES").is_some_and(|v| v == "1") {
+        file["hashes"][what] = Value::String(got);
+        let text = serde_json::to_string_pretty(&file).unwrap() + "\n";
+        let tmp = path.with_extension("json.tmp");
+        std::fs::write(&tmp, text).unwrap();
+        std::fs::rename(&tmp, &path).unwrap();
+        return;
+    }
+    let want = file["hashes"][what].as_str().unwrap_or("(none)");
+    assert_eq!(
+        got, want,
+        "{what}: the trace is no longer bit-identical to the committed one ({HASHES}); if the \
+         change was meant to alter the tracking, regenerate with REGENERATE_TRACE_HASHES=1 \
+         cargo test --test it analyze_fixtures::"
+    );
+}
+
 fn check(fixture: &str, clip: &str, tol: Tol) {
     let dir = root().join("fixtures").join(fixture);
     let out = tempfile::tempdir().unwrap();
@@ -71,6 +126,7 @@ fn check(fixture: &str, clip: &str, tol: Tol) {
     let truth = read_json(&dir.join("truth.json"));
     let report = read_json(&out.path().join("report.json"));
     let what = format!("{fixture}/{clip}");
+    check_trace_hash(&what, &report);
 
     // Every frame analysed, none lost.
     assert_eq!(report["frames"], truth["frames"], "{what}: frame count");
