@@ -237,7 +237,7 @@ mod avx2 {
             {
                 prefetch(d, (idx[a] as isize + shift.base) as usize, w);
             }
-            // SAFETY (all loads and stores): s + LANES ≤ out.len() = idx.len() = fx.len() =
+            // SAFETY: all loads and stores: s + LANES ≤ out.len() = idx.len() = fx.len() =
             // fy.len(); the gathers' bounds are the caller's contract.
             unsafe {
                 let x = _mm256_add_ps(_mm256_loadu_ps(fx.as_ptr().add(s)), sx);
