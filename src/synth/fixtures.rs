@@ -10,9 +10,11 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
+use rayon::prelude::*;
+
 use super::write::{save_stills, write_sidecars};
 use super::{
-    Effects, Flicker, Highlight, Paint, Scenario, Steel, StillFormat, Truth, render_clip, simulate,
+    Effects, Flicker, Highlight, Paint, Scenario, Steel, StillFormat, Truth, render_frame, simulate,
 };
 use crate::decode::Frame;
 use crate::error::{Error, Result};
@@ -282,7 +284,12 @@ fn write_fixture_files(
             std::fs::remove_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
         }
         let truth = simulate(&fx.scenario);
-        let frames = render_clip(&fx.scenario, &truth);
+        // Each frame seeds its own noise stream from its index, so frames render independently
+        // and in parallel to exactly what `render_clip` gives (the drift check compares them).
+        let frames: Vec<Frame> = (0..truth.frames)
+            .into_par_iter()
+            .map(|i| render_frame(&fx.scenario, &truth, i))
+            .collect();
         write_sidecars(&fx.scenario, &truth, &dir)?;
         let sums = Checksums {
             note: "FNV-1a checksum of each rendered frame's luma samples (Frame::checksum), before any encoding; a lossless decode must reproduce them exactly".into(),
