@@ -29,6 +29,7 @@ pub mod decode;
 #[cfg(feature = "ffmpeg")]
 pub mod encode;
 mod error;
+pub mod limits;
 pub mod locate;
 pub mod mechanics;
 pub mod report;
