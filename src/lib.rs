@@ -34,6 +34,7 @@ pub mod locate;
 pub mod mechanics;
 pub mod report;
 pub mod rig;
+pub mod sanity;
 pub mod segment;
 pub mod synth;
 pub mod track;

@@ -256,7 +256,7 @@ impl Rig {
                 other => other,
             })?;
         }
-        Ok(())
+        crate::sanity::check_rig(self, path)
     }
 
     /// Checks that every mark's pivot and annulus (or axis) lie inside a frame of this size.
