@@ -523,8 +523,10 @@ pub fn run_batch(
             reason: "must be at least 1 (or leave it out to use every core)".into(),
         });
     }
-    // The lock is held until the batch returns; every check that follows is made under it,
-    // so a second batch into this folder cannot slip in between check and write.
+    // Checked once before the lock, so a refused batch leaves the folder as it was, and
+    // again under it (held until the batch returns), so a second batch into this folder
+    // cannot slip in between check and write.
+    check_outputs(folder, rig_path, out, &clips, opts.force)?;
     let _lock = report::lock_output(out)?;
     check_outputs(folder, rig_path, out, &clips, opts.force)?;
     progress(BatchEvent::Found { clips: clips.len() });

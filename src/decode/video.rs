@@ -141,6 +141,17 @@ impl VideoSource {
         unsafe {
             (*ctx.as_mut_ptr()).thread_count = threads;
         }
+        // A damaged frame must never be measured. Most decoders flag one (checked in
+        // `next_picture`); the MJPEG decoder instead logs and outputs a garbled picture unless
+        // told to stop at the error. Its frames are independent, so stopping costs nothing a
+        // whole frame would give.
+        if codec_name == "mjpeg" {
+            // SAFETY: as above.
+            unsafe {
+                (*ctx.as_mut_ptr()).err_recognition |=
+                    ff::ffi::AV_EF_EXPLODE | ff::ffi::AV_EF_CRCCHECK | ff::ffi::AV_EF_BITSTREAM;
+            }
+        }
         let decoder = ctx.decoder().video().map_err(|e| {
             Error::input(
                 path,
