@@ -8,12 +8,14 @@
 //! | 2. every per-clip output folder is checked first | [`rule2_every_output_folder_is_checked_before_writing`] |
 //! | 3. writes are atomic and confined | [`rule3_writes_are_atomic_and_confined`] |
 //! | 4. paths reach FFmpeg as files | [`rule4_paths_reach_ffmpeg_as_files`] |
+//! | 5. damaged frames are never measured | [`rule5_damaged_frames_are_never_measured`] |
 //! | 6. physics sanity checks | [`rule6_physics_sanity`] |
 //! | 7. bounded resources | [`rule7_bounded_resources`] |
 //! | 8. strict parsing | [`rule8_strict_parsing`] |
 //! | 9. one-line reasons | [`rule9_one_line_reasons`] |
 //!
-//! Rule 5 (damaged frames) is not tested here: see the notes.
+//! Rule 5 is met by refusing the clip at the damaged frame (a one-line reason naming it), not
+//! yet by a null in the trace.
 
 use std::ffi::OsString;
 use std::path::{Path, PathBuf};
@@ -459,6 +461,55 @@ fn rule6_physics_sanity() {
     one_line_error(&r, &["--fps", "plausible"]);
 }
 
+/// The JPEG encoding of a fixture still.
+fn jpeg_of(png: &Path) -> Vec<u8> {
+    let img = image::open(png).unwrap().to_rgb8();
+    let mut jpg = Vec::new();
+    img.write_to(
+        &mut std::io::Cursor::new(&mut jpg),
+        image::ImageFormat::Jpeg,
+    )
+    .unwrap();
+    jpg
+}
+
+#[test]
+fn rule5_damaged_frames_are_never_measured() {
+    use rand::{Rng, SeedableRng};
+    let dir = tempfile::tempdir().unwrap();
+    let frames = copy_frames("fast-tool", &dir.path().join("png"), 40);
+    let mut stream = Vec::new();
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(18);
+    for (i, f) in frames.iter().enumerate() {
+        let mut jpg = jpeg_of(f);
+        if i == 20 {
+            // Scramble the middle half of the entropy-coded data (never 0xFF, so no marker
+            // is made or broken): the frame's container structure stays whole.
+            let sos = jpg.windows(2).position(|w| w == [0xFF, 0xDA]).unwrap();
+            let start = sos + 2 + usize::from(u16::from_be_bytes([jpg[sos + 2], jpg[sos + 3]]));
+            let n = jpg.len() - 2 - start;
+            for b in &mut jpg[start + n / 4..start + 3 * n / 4] {
+                *b = rng.random_range(0..0xFFu8);
+            }
+        }
+        stream.extend(jpg);
+    }
+    let clip = dir.path().join("take.mjpeg");
+    std::fs::write(&clip, stream).unwrap();
+    let out = dir.path().join("o");
+    let r = run(args(&[&"analyze", &clip, &"--rig", &rig(), &"--out", &out]));
+    // Refused with a reason naming the frame, never a report with the frame measured.
+    assert_eq!(r.code, 1, "{}{}", r.stdout, r.stderr);
+    let last = r.stderr.lines().last().unwrap_or("");
+    assert!(
+        last.contains("take.mjpeg") && last.contains("frame 20"),
+        "{}",
+        r.stderr
+    );
+    assert!(!last.contains("single still image"), "{}", r.stderr);
+    assert!(!out.join("report.json").exists());
+}
+
 /// A CRC-32 (IEEE) for patching PNG chunks.
 fn crc32(bytes: &[u8]) -> u32 {
     let mut c = 0xffff_ffffu32;
@@ -642,14 +693,7 @@ fn rule9_one_line_reasons() {
     // single still image.
     let mut stream = Vec::new();
     for f in copy_frames("fast-tool", &dir.path().join("png"), 5) {
-        let img = image::open(&f).unwrap().to_rgb8();
-        let mut jpg = Vec::new();
-        img.write_to(
-            &mut std::io::Cursor::new(&mut jpg),
-            image::ImageFormat::Jpeg,
-        )
-        .unwrap();
-        stream.extend(jpg);
+        stream.extend(jpeg_of(&f));
     }
     let mjpeg = dir.path().join("take.mjpeg");
     std::fs::write(&mjpeg, stream).unwrap();
