@@ -57,7 +57,7 @@ pub fn check_fps(fps_hz: f64, origin: &str) -> Result<()> {
 }
 
 /// Checks the rig as a whole: the capture rate, the bar's sizes, stiffness and rating
-/// against the plausible ranges, and that the drive and nut marks are two different marks.
+/// against the plausible ranges.
 ///
 /// # Errors
 /// [`Error::Rig`] naming the field.
@@ -69,14 +69,6 @@ pub fn check_rig(rig: &Rig, path: &Path) -> Result<()> {
     };
     if let Some(fps) = rig.capture_fps_hz {
         check_fps(fps, "capture_fps_hz").map_err(|e| err("capture_fps_hz", one_reason(e)))?;
-    }
-    if same_mark(&rig.marks.drive, &rig.marks.nut) {
-        return Err(err(
-            "marks.nut",
-            "is the same mark as marks.drive (same place and size); the nut mark must be the \
-             one on the nut end: run find-marks again or correct the pivot"
-                .into(),
-        ));
     }
     if let Some(bar) = &rig.bar {
         check_bar(bar).map_err(|(field, reason)| err(&field, reason))?;
@@ -167,6 +159,8 @@ fn check_bar(bar: &BarSpec) -> std::result::Result<(), (String, String)> {
 /// Checks one analysis's results against how a tightening run behaves, and withholds what
 /// cannot be right. Returns the warnings to add.
 ///
+/// - The drive and nut marks are the same mark: no torque, with a warning (a rig may give
+///   one mark twice to read angles only).
 /// - The drive end turned backwards overall: the rig's `tighten` is the wrong way round, so
 ///   every angle and torque has the wrong sign: an error ([`Error::Rig`]).
 /// - The nut end turned backwards overall: a warning (a loosening nut or swapped marks).
@@ -209,6 +203,22 @@ pub fn check_results(
         )));
     }
     let rating = rig.bar.as_ref().and_then(|b| b.rating_nm);
+    if same_mark(&rig.marks.drive, &rig.marks.nut) {
+        // One mark read twice: the twist is zero by construction, not by measurement.
+        warnings.push(Warning::Note(
+            "marks.drive and marks.nut are the same mark (same place and size), so the twist \
+             is zero by construction and no torque is reported; give the nut end its own mark \
+             (run find-marks again or correct the nut's pivot)"
+                .into(),
+        ));
+        for b in blows.iter_mut() {
+            b.peak_torque = None;
+            b.breakaway_torque = None;
+        }
+        summary.peak_torque = None;
+        summary.peak_to_rating = None;
+        return Ok(warnings);
+    }
     let mut negative = Vec::new();
     let mut beyond = Vec::new();
     for b in blows.iter_mut() {
@@ -247,10 +257,7 @@ pub fn check_results(
             .iter()
             .filter_map(|b| b.peak_torque)
             .max_by(|a, b| a.nm().total_cmp(&b.nm()));
-        summary.peak_to_rating = summary
-            .peak_torque
-            .zip(rating)
-            .map(|(t, r)| t.nm() / r);
+        summary.peak_to_rating = summary.peak_torque.zip(rating).map(|(t, r)| t.nm() / r);
     }
     Ok(warnings)
 }
@@ -282,14 +289,14 @@ mod tests {
     }
 
     #[test]
-    fn the_same_mark_twice_and_absurd_bars_are_refused() {
+    fn the_same_mark_twice_is_seen_and_absurd_bars_are_refused() {
         let p = Path::new("rig.json");
         let r = rig();
         assert!(check_rig(&r, p).is_ok(), "the preset rig is plausible");
         let mut same = r.clone();
         same.marks.nut = same.marks.drive.clone();
-        let e = check_rig(&same, p).unwrap_err().to_string();
-        assert!(e.contains("marks.nut") && e.contains("same mark"), "{e}");
+        assert!(same_mark(&same.marks.drive, &same.marks.nut));
+        assert!(!same_mark(&r.marks.drive, &r.marks.nut));
         let mut stiff = r.clone();
         if let Some(b) = stiff.bar.as_mut() {
             b.calibrated_stiffness_nm_per_deg = Some(1e308);

@@ -393,13 +393,20 @@ fn rule6_physics_sanity() {
         ],
     );
     one_line_error(&analyze(&reversed, "rev"), &["tighten"]);
-    // Identical marks: refused at once.
+    // Identical marks: angles only, with a warning; no torque of zero printed as measured.
     let same = rig_with(
         dir.path(),
         "same.json",
         &[("238.0", "82.0"), ("17.0", "10.0"), ("62.0", "68.0")],
     );
-    one_line_error(&analyze(&same, "same"), &["marks.nut", "same mark"]);
+    let r = analyze(&same, "same");
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(r.stderr.contains("same mark"), "{}", r.stderr);
+    let v = json(&dir.path().join("same/report.json"));
+    assert!(v["summary"]["peak_torque_nm"].is_null(), "{}", v["summary"]);
+    for b in v["blows"].as_array().unwrap() {
+        assert!(b["peak_torque_nm"].is_null(), "{b}");
+    }
     // Swapped drive and nut: no negative torque printed, a warning instead.
     let swapped = rig_with(
         dir.path(),

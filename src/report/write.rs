@@ -89,8 +89,8 @@ fn same_file(a: &Path, b: &Path) -> bool {
     resolve(a) == resolve(b)
 }
 
-/// Refuses an output *file* `out` (given with `flag`) that is one of `inputs` or lies inside
-/// one (a still in a stills folder).
+/// Refuses an output *file* `out` (given with `flag`) that is one of `inputs`, or an image
+/// inside an input folder (it would be a still of that clip, or replace one).
 ///
 /// # Errors
 /// [`Error::Output`] naming `out`, the input and what to do.
@@ -101,8 +101,17 @@ pub fn check_not_input(out: &Path, flag: &str, inputs: &[&Path]) -> Result<()> {
         if same_file(out, input) || o == i {
             return Err(refusal(out, flag, input, "is an input of this run"));
         }
-        if o.starts_with(&i) {
-            return Err(refusal(out, flag, input, "lies inside the input"));
+        // Inside a stills folder, an image would be read as one of the clip's frames.
+        let image = o.extension().and_then(|e| e.to_str()).is_some_and(|e| {
+            crate::batch::STILL_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str())
+        });
+        if o.starts_with(&i) && image {
+            return Err(refusal(
+                out,
+                flag,
+                input,
+                "is an image inside the stills folder",
+            ));
         }
     }
     Ok(())
@@ -313,6 +322,8 @@ mod tests {
         fs::write(&rig, b"{}").unwrap();
         let inputs = [clip.as_path(), rig.as_path()];
         assert!(check_not_input(&still, "--preview", &inputs).is_err());
+        assert!(check_not_input(&clip.join("f_9.png"), "--preview", &inputs).is_err());
+        assert!(check_not_input(&clip.join("draft.json"), "--out", &inputs).is_ok());
         assert!(check_not_input(&rig, "--out", &inputs).is_err());
         // The same file by another spelling.
         let other = dir.path().join("clip/../rig.json");
