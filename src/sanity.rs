@@ -24,6 +24,10 @@ pub const SECTION_LENGTH_RANGE_MM: (f64, f64) = (0.5, 5000.0);
 pub const STIFFNESS_RANGE_NM_PER_DEG: (f64, f64) = (1.0e-3, 1.0e6);
 /// Bar ratings accepted, N·m.
 pub const RATING_RANGE_NM: (f64, f64) = (0.1, 1.0e5);
+/// Most stripes a side mark may have: every frame searches each one, so the count is
+/// bounded (16 stripes are 22.5° apart, closer than the tracker can tell apart in a side
+/// view, *common practice*).
+pub const MAX_SIDE_STRIPES: u32 = 16;
 /// A peak torque above this multiple of the bar's rating is not reported: a torsion bar
 /// loaded that far past its rating would have yielded, so the measurement, not the bar, is
 /// wrong (a rating is set well below yield, *common practice*).
@@ -69,6 +73,20 @@ pub fn check_rig(rig: &Rig, path: &Path) -> Result<()> {
     };
     if let Some(fps) = rig.capture_fps_hz {
         check_fps(fps, "capture_fps_hz").map_err(|e| err("capture_fps_hz", one_reason(e)))?;
+    }
+    for (role, mark) in rig.marks() {
+        if let Mark::Side(m) = mark
+            && m.stripes.is_some_and(|n| n > MAX_SIDE_STRIPES)
+        {
+            return Err(err(
+                &format!("marks.{}.stripes", role.name()),
+                format!(
+                    "{} stripes is more than a side view can tell apart; give at most \
+                     {MAX_SIDE_STRIPES}",
+                    m.stripes.unwrap_or(0)
+                ),
+            ));
+        }
     }
     if let Some(bar) = &rig.bar {
         check_bar(bar).map_err(|(field, reason)| err(&field, reason))?;

@@ -585,6 +585,26 @@ fn rule7_bounded_resources() {
     );
     #[cfg(target_os = "linux")]
     one_line_error(&run(["bar", "--rig", "/dev/zero"]), &["/dev/zero", "MiB"]);
+    // A loop count from the rig (side-mark stripes searched every frame) is bounded.
+    let side = dir.path().join("side.json");
+    std::fs::write(
+        &side,
+        r#"{"rig_version": 1, "marks": {
+            "drive": {"kind": "side", "axis": [[300, 200], [400, 200]], "radius_px": 20, "tighten": "up", "stripes": 4000000000},
+            "nut": {"kind": "side", "axis": [[300, 300], [400, 300]], "radius_px": 20, "tighten": "up"}}}"#,
+    )
+    .unwrap();
+    one_line_error(
+        &run(args(&[
+            &"analyze",
+            &clip,
+            &"--rig",
+            &side,
+            &"--out",
+            &dir.path().join("s"),
+        ])),
+        &["marks.drive.stripes"],
+    );
     // --jobs far beyond the cores is clamped, with a warning.
     let clips = dir.path().join("clips");
     copy_frames("fast-tool", &clips.join("a"), 20);
