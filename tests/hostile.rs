@@ -240,26 +240,29 @@ fn rule2_every_output_folder_is_checked_before_writing() {
     drop(lock);
 
     // Clips whose folder names would collide get unique folders.
-    let vids = dir.path().join("vids");
-    std::fs::create_dir(&vids).unwrap();
-    for n in ["x.mp4", "x.mov", "x.mp4.mkv"] {
-        std::fs::copy(fixture("fast-tool/clip_ffv1.mkv"), vids.join(n)).unwrap();
-    }
-    let vout = dir.path().join("vout");
-    let r = batch(&vids, &vout, &[]);
-    assert_eq!(r.code, 0, "{}", r.stderr);
-    let s = json(&vout.join("summary.json"));
-    let mut names: Vec<String> = s["clips"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| c["clip"].as_str().unwrap().to_string())
-        .collect();
-    names.sort();
-    names.dedup();
-    assert_eq!(names.len(), 3, "{names:?}");
-    for n in &names {
-        assert!(vout.join(n).join("report.json").exists(), "{n}");
+    #[cfg(feature = "ffmpeg")]
+    {
+        let vids = dir.path().join("vids");
+        std::fs::create_dir(&vids).unwrap();
+        for n in ["x.mp4", "x.mov", "x.mp4.mkv"] {
+            std::fs::copy(fixture("fast-tool/clip_ffv1.mkv"), vids.join(n)).unwrap();
+        }
+        let vout = dir.path().join("vout");
+        let r = batch(&vids, &vout, &[]);
+        assert_eq!(r.code, 0, "{}", r.stderr);
+        let s = json(&vout.join("summary.json"));
+        let mut names: Vec<String> = s["clips"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| c["clip"].as_str().unwrap().to_string())
+            .collect();
+        names.sort();
+        names.dedup();
+        assert_eq!(names.len(), 3, "{names:?}");
+        for n in &names {
+            assert!(vout.join(n).join("report.json").exists(), "{n}");
+        }
     }
 
     // --out the parent of the input folder, where a clip's folder would be the input folder.
@@ -334,6 +337,7 @@ fn rule3_writes_are_atomic_and_confined() {
     }));
 }
 
+#[cfg(feature = "ffmpeg")]
 #[test]
 fn rule4_paths_reach_ffmpeg_as_files() {
     let dir = tempfile::tempdir().unwrap();
@@ -469,6 +473,7 @@ fn rule6_physics_sanity() {
 }
 
 /// The JPEG encoding of a fixture still.
+#[cfg(feature = "ffmpeg")]
 fn jpeg_of(png: &Path) -> Vec<u8> {
     let img = image::open(png).unwrap().to_rgb8();
     let mut jpg = Vec::new();
@@ -480,6 +485,7 @@ fn jpeg_of(png: &Path) -> Vec<u8> {
     jpg
 }
 
+#[cfg(feature = "ffmpeg")]
 #[test]
 fn rule5_damaged_frames_are_never_measured() {
     use rand::{Rng, SeedableRng};
@@ -718,14 +724,17 @@ fn rule9_one_line_reasons() {
     one_line_error(&r, &["--jobs"]);
     // A raw MJPEG stream (JPEG frames back to back) is read as a video, not refused as a
     // single still image.
-    let mut stream = Vec::new();
-    for f in copy_frames("fast-tool", &dir.path().join("png"), 5) {
-        stream.extend(jpeg_of(&f));
+    #[cfg(feature = "ffmpeg")]
+    {
+        let mut stream = Vec::new();
+        for f in copy_frames("fast-tool", &dir.path().join("png"), 5) {
+            stream.extend(jpeg_of(&f));
+        }
+        let mjpeg = dir.path().join("take.mjpeg");
+        std::fs::write(&mjpeg, stream).unwrap();
+        let r = run(args(&[&"info", &mjpeg, &"--json"]));
+        assert_eq!(r.code, 0, "{}", r.stderr);
+        let v: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        assert_eq!(v["frames"], 5, "{v}");
     }
-    let mjpeg = dir.path().join("take.mjpeg");
-    std::fs::write(&mjpeg, stream).unwrap();
-    let r = run(args(&[&"info", &mjpeg, &"--json"]));
-    assert_eq!(r.code, 0, "{}", r.stderr);
-    let v: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
-    assert_eq!(v["frames"], 5, "{v}");
 }

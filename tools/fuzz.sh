@@ -36,7 +36,7 @@ for t in "${targets[@]}"; do
 done
 status=0
 for t in "${targets[@]}"; do
-    mkdir -p "fuzz/corpus/$t"
+    mkdir -p "fuzz/corpus/$t" "fuzz/artifacts/$t"
     echo "== fuzz target $t for ${secs} s" >&2
     # One worker process (-fork=1), so one core; -ignore_crashes keeps fuzzing for the whole
     # time after a crash, and every crash input still lands in fuzz/artifacts/<target>/.

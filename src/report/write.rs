@@ -10,7 +10,7 @@
 //!   files, overlay frames) are cleared; an `overlays` symbolic link is refused, so nothing is
 //!   written outside the folder.
 //!
-//! Every file goes through [`super::write_atomic`]: a temporary file created exclusively
+//! Every file goes through [`write_file`]'s atomic write: a temporary file created exclusively
 //! (O_EXCL, never through a symbolic link) inside the output folder, then renamed into place.
 
 use std::fs;
