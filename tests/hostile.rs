@@ -6,7 +6,7 @@
 //! |---|---|
 //! | 1. no output path is an input | [`rule1_no_output_is_an_input`] |
 //! | 2. every per-clip output folder is checked first | [`rule2_every_output_folder_is_checked_before_writing`] |
-//! | 3. writes are atomic and confined | [`rule3_writes_are_atomic_and_confined`] |
+//! | 3. writes are atomic and confined | [`rule3_writes_are_atomic_and_confined`]; a link planted at a temporary name: `src/report/write.rs::a_link_planted_at_a_temporary_name_is_never_followed` |
 //! | 4. paths reach FFmpeg as files | [`rule4_paths_reach_ffmpeg_as_files`] |
 //! | 5. damaged frames are never measured | [`rule5_damaged_frames_are_never_measured`] |
 //! | 6. physics sanity checks | [`rule6_physics_sanity`] |

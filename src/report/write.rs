@@ -366,6 +366,36 @@ mod tests {
 
     #[cfg(unix)]
     #[test]
+    fn a_link_planted_at_a_temporary_name_is_never_followed() {
+        // The temporary name was once predictable (`.NAME.PID.partial`) and opened through
+        // links, so a link planted there sent the write outside the folder.
+        let dir = tempfile::tempdir().unwrap();
+        let outside = tempfile::tempdir().unwrap();
+        let victim = outside.path().join("victim.txt");
+        fs::write(&victim, b"keep").unwrap();
+        let planted = dir
+            .path()
+            .join(format!(".report.json.{}.partial", std::process::id()));
+        std::os::unix::fs::symlink(&victim, &planted).unwrap();
+        write_file(&dir.path().join("report.json"), b"new").unwrap();
+        assert_eq!(fs::read(&victim).unwrap(), b"keep");
+        assert_eq!(fs::read(dir.path().join("report.json")).unwrap(), b"new");
+        // A link at the final name is replaced, not written through.
+        std::os::unix::fs::symlink(&victim, dir.path().join("trace.csv")).unwrap();
+        write_file(&dir.path().join("trace.csv"), b"t").unwrap();
+        assert_eq!(fs::read(&victim).unwrap(), b"keep");
+        // The new file has the mode a plain create gives (the umask's, not owner-only).
+        use std::os::unix::fs::PermissionsExt;
+        let mode = |p: &Path| fs::metadata(p).unwrap().permissions().mode() & 0o777;
+        fs::write(dir.path().join("plain"), b"p").unwrap();
+        assert_eq!(
+            mode(&dir.path().join("report.json")),
+            mode(&dir.path().join("plain"))
+        );
+    }
+
+    #[cfg(unix)]
+    #[test]
     fn an_overlays_symlink_is_refused_and_leftovers_are_cleared() {
         let dir = tempfile::tempdir().unwrap();
         let elsewhere = tempfile::tempdir().unwrap();
