@@ -129,6 +129,12 @@ pub fn analyze_source(
     let clip = source.info().clone();
     let mut warnings = clip.warnings.clone();
     let (time_base, fps_source, fps_warning) = capture_rate(opts, rig, &clip)?;
+    let origin = match fps_source {
+        FpsSource::Option => "--fps",
+        FpsSource::Rig => "capture_fps_hz",
+        FpsSource::Container => "the container's frame rate (give --fps)",
+    };
+    crate::sanity::check_fps(time_base.fps_hz(), origin)?;
     warnings.extend(fps_warning);
     let (first, last) = window(opts, time_base, clip.frames, &mut warnings)?;
     let mut tracker = Tracker::new(rig, rig_path, clip.width, clip.height)?;
@@ -140,9 +146,15 @@ pub fn analyze_source(
     warnings.extend(track_warnings);
     let segmentation = segment::find_blows(&trace);
     warnings.extend(segmentation.warnings.iter().cloned());
-    let (blows, summary, mech_warnings) =
+    let (mut blows, mut summary, mech_warnings) =
         mechanics::blow_metrics(&trace, &segmentation, rig.bar.as_ref());
     warnings.extend(mech_warnings);
+    warnings.extend(crate::sanity::check_results(
+        rig,
+        rig_path,
+        &mut blows,
+        &mut summary,
+    )?);
     let bar = rig.bar.as_ref().map(BarReport::new).transpose()?;
     let springback = bar.as_ref().and_then(|b| {
         let onsets: Vec<f64> = blows.iter().map(|m| m.t_s).collect();

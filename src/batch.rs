@@ -75,8 +75,12 @@ pub struct Clip {
 pub struct BatchOptions {
     /// Options passed to every clip's analysis.
     pub analyze: AnalyzeOptions,
-    /// Clips analysed at once; `None` uses one per core.
+    /// Clips analysed at once; `None` uses one per core. More than
+    /// [`crate::limits::MAX_JOBS_PER_CORE`] per core is clamped to that.
     pub jobs: Option<usize>,
+    /// Replace earlier results (`summary.json`, or a clip folder's `report.json`) in the
+    /// output folder; without it a batch that would replace any of them stops first.
+    pub force: bool,
 }
 
 /// What happened, for a progress display. `clip` is the index into the clip list.
@@ -357,7 +361,10 @@ pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
             let mut sidecars = Vec::new();
             for base in [s.as_str(), full.as_str()] {
                 let c = folder.join(format!("{base}{SIDECAR_SUFFIX}"));
-                if c.is_file() && !sidecars.contains(&c) {
+                // Anything at that name counts (a dangling link or a folder too), so that a
+                // sidecar that cannot be read fails the clip with its reason instead of being
+                // passed over in silence.
+                if std::fs::symlink_metadata(&c).is_ok() && !sidecars.contains(&c) {
                     sidecars.push(c);
                 }
             }
@@ -369,7 +376,34 @@ pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
             }
         })
         .collect();
-    Ok(clips)
+    Ok(unique_names(clips))
+}
+
+/// Makes every clip's output folder name unique, also where the file system ignores case
+/// (`x.mp4`, `x.mov` and `x.mp4.mkv` would otherwise give two folders named `x.mp4`): a
+/// repeated name gets `_2`, `_3`, … in folder order.
+fn unique_names(mut clips: Vec<Clip>) -> Vec<Clip> {
+    let mut taken: std::collections::HashSet<String> =
+        RESERVED_NAMES.iter().map(|n| n.to_lowercase()).collect();
+    let originals: std::collections::HashSet<String> =
+        clips.iter().map(|c| c.name.to_lowercase()).collect();
+    for c in &mut clips {
+        if taken.insert(c.name.to_lowercase()) {
+            continue;
+        }
+        let base = c.name.clone();
+        let mut k = 2;
+        loop {
+            let candidate = format!("{base}_{k}");
+            let key = candidate.to_lowercase();
+            if !originals.contains(&key) && taken.insert(key) {
+                c.name = candidate;
+                break;
+            }
+            k += 1;
+        }
+    }
+    clips
 }
 
 /// Makes a path absolute and resolves `.`/`..` and symbolic links as far as it exists.
@@ -419,6 +453,36 @@ pub fn check_output(folder: &Path, out: &Path) -> Result<()> {
     Ok(())
 }
 
+/// Checks every output folder of the batch before anything is written: `summary.json` and
+/// each clip folder's `report.json` are replaced only with `force`, and no output folder or
+/// file is an input (the clips folder, a clip, the rig, a sidecar).
+///
+/// # Errors
+/// [`Error::Output`] naming the first folder that may not be written.
+fn check_outputs(
+    folder: &Path,
+    rig_path: &Path,
+    out: &Path,
+    clips: &[Clip],
+    force: bool,
+) -> Result<()> {
+    report::check_output_folder(out, "summary.json", force)?;
+    let mut inputs: Vec<&Path> = vec![folder, rig_path];
+    for c in clips {
+        inputs.push(&c.path);
+        inputs.extend(c.sidecars.iter().map(PathBuf::as_path));
+    }
+    let mut batch_names: Vec<&str> = report::write::BATCH_OUTPUTS.to_vec();
+    batch_names.extend(clips.iter().map(|c| c.name.as_str()));
+    report::check_folder_not_input(out, "--out", &inputs, &batch_names)?;
+    for c in clips {
+        let dir = out.join(&c.name);
+        report::check_output_folder(&dir, "report.json", force)?;
+        report::check_folder_not_input(&dir, "--out", &inputs, report::write::CLIP_OUTPUTS)?;
+    }
+    Ok(())
+}
+
 /// The rig for one clip: its sidecar when there is one, otherwise the batch rig.
 fn clip_rig(clip: &Clip, batch_rig: &Rig, batch_rig_path: &Path) -> Result<(Rig, PathBuf)> {
     match clip.sidecars.as_slice() {
@@ -459,11 +523,20 @@ pub fn run_batch(
             reason: "must be at least 1 (or leave it out to use every core)".into(),
         });
     }
-    std::fs::create_dir_all(out).map_err(|e| Error::io(out, e))?;
+    // Checked once before the lock, so a refused batch leaves the folder as it was, and
+    // again under it (held until the batch returns), so a second batch into this folder
+    // cannot slip in between check and write.
+    check_outputs(folder, rig_path, out, &clips, opts.force)?;
+    let _lock = report::lock_output(out)?;
+    check_outputs(folder, rig_path, out, &clips, opts.force)?;
     progress(BatchEvent::Found { clips: clips.len() });
 
+    let jobs = opts.jobs.map(|j| {
+        let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+        crate::limits::clamp_jobs(j, cores).0
+    });
     let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(opts.jobs.unwrap_or(0))
+        .num_threads(jobs.unwrap_or(0))
         .build()
         .map_err(|e| Error::Option {
             flag: "--jobs".into(),
@@ -523,8 +596,7 @@ fn run_clip(
         };
         let analysis = analyze_source(source, &rig, &rig_path, opts, &frames_cb)?;
         let dir = out.join(&clip.name);
-        let mut written = report::write_outputs(&analysis, &dir)?;
-        written.extend(report::plot::write_plots(&analysis, &dir)?);
+        let written = report::write_all(&analysis, &dir, None)?;
         let row = ok_row(clip, &rig, &rig_path, &analysis);
         Ok(ClipOutcome {
             clip: clip.clone(),

@@ -171,7 +171,7 @@ pub const OFFSET_WARN_DEG: f64 = 0.05;
 /// bad header or value, a negative torque, a second unloaded row, no reference, or no loaded
 /// row.
 pub fn read_stills_csv(csv: &Path, reference: Option<&Path>) -> Result<StillsPlan> {
-    let text = std::fs::read_to_string(csv).map_err(|e| Error::io(csv, e))?;
+    let text = crate::limits::read_text(csv, "CSV")?;
     let bad = |reason: String| Error::input(csv, reason);
     let dir = csv.parent().unwrap_or(Path::new(""));
     let (mut rdr, headers) = crate::mechanics::csv_with_headers(&text).map_err(bad)?;

@@ -29,10 +29,12 @@ pub mod decode;
 #[cfg(feature = "ffmpeg")]
 pub mod encode;
 mod error;
+pub mod limits;
 pub mod locate;
 pub mod mechanics;
 pub mod report;
 pub mod rig;
+pub mod sanity;
 pub mod segment;
 mod stats;
 pub mod synth;

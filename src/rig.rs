@@ -172,7 +172,7 @@ impl Rig {
     /// [`Error::Io`] when the file cannot be read, [`Error::Rig`] naming the field when it
     /// is malformed or out of range.
     pub fn from_path(path: &Path) -> Result<Rig> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = crate::limits::read_text(path, "rig")?;
         Rig::from_json_str(&text, path)
     }
 
@@ -181,8 +181,8 @@ impl Rig {
     /// # Errors
     /// [`Error::Rig`] naming the field when the JSON is malformed or a value is out of range.
     pub fn from_json_str(text: &str, path: &Path) -> Result<Rig> {
-        let de = &mut serde_json::Deserializer::from_str(text);
-        let rig: Rig = serde_path_to_error::deserialize(de).map_err(|e| {
+        let mut de = serde_json::Deserializer::from_str(text);
+        let rig: Rig = serde_path_to_error::deserialize(&mut de).map_err(|e| {
             let field = e.path().to_string();
             let inner = e.into_inner();
             let field = if field == "." {
@@ -195,6 +195,15 @@ impl Rig {
                 reason.push_str("; check the spelling against the rig format in the README");
             }
             rig_err(path, &field, reason)
+        })?;
+        // Trailing text (a second rig pasted after the first, a stray note) is refused, so
+        // that what is used is the whole file.
+        de.end().map_err(|e| {
+            rig_err(
+                path,
+                "(after the rig)",
+                format!("text follows the rig's closing brace ({e}); keep one rig per file"),
+            )
         })?;
         rig.validate(path)?;
         Ok(rig)
@@ -247,7 +256,7 @@ impl Rig {
                 other => other,
             })?;
         }
-        Ok(())
+        crate::sanity::check_rig(self, path)
     }
 
     /// Checks that every mark's pivot and annulus (or axis) lie inside a frame of this size.

@@ -3,6 +3,7 @@
 # after the other, each for a bounded time, on one core.
 #
 #   tools/fuzz.sh [SECONDS_PER_TARGET] [TARGET...]     default: 60 s each; rig stills segment
+#                                                      (also: csv, cli)
 #
 # cargo-fuzz builds with nightly-only -Z flags (sanitizer, coverage). The toolchain here is
 # stable, so this script sets RUSTC_BOOTSTRAP=1, which lets stable rustc accept them. That is
@@ -26,9 +27,16 @@ if ! cargo fuzz --help >/dev/null 2>&1; then
     exit 1
 fi
 export RUSTC_BOOTSTRAP=1
+# The cli target runs the real binary (default features); build it unless one is named.
+for t in "${targets[@]}"; do
+    if [ "$t" = cli ] && [ -z "${TWISTMARK_BIN:-}" ]; then
+        cargo build --bin twistmark
+        export TWISTMARK_BIN="${CARGO_TARGET_DIR:-target}/debug/twistmark"
+    fi
+done
 status=0
 for t in "${targets[@]}"; do
-    mkdir -p "fuzz/corpus/$t"
+    mkdir -p "fuzz/corpus/$t" "fuzz/artifacts/$t"
     echo "== fuzz target $t for ${secs} s" >&2
     # One worker process (-fork=1), so one core; -ignore_crashes keeps fuzzing for the whole
     # time after a crash, and every crash input still lands in fuzz/artifacts/<target>/.

@@ -21,10 +21,10 @@ pub struct AnalyzeArgs {
     #[arg(long, value_name = "DIR", default_value = "twistmark-out")]
     out: PathBuf,
     /// Start of the analysed window, seconds of capture time.
-    #[arg(long, value_name = "T")]
+    #[arg(long, value_name = "T", allow_hyphen_values = true)]
     start_s: Option<String>,
     /// End of the analysed window, seconds of capture time.
-    #[arg(long, value_name = "T")]
+    #[arg(long, value_name = "T", allow_hyphen_values = true)]
     end_s: Option<String>,
     /// Overwrite the results already in DIR (without it, a DIR holding a report.json is
     /// left untouched and the run stops).
@@ -35,8 +35,14 @@ pub struct AnalyzeArgs {
     #[arg(long)]
     overlay: bool,
     /// With --overlay, draw only every Nth blow's peak-twist frame.
-    #[arg(long, value_name = "N", default_value_t = 1, requires = "overlay")]
-    overlay_every: usize,
+    #[arg(
+        long,
+        value_name = "N",
+        default_value = "1",
+        requires = "overlay",
+        allow_hyphen_values = true
+    )]
+    overlay_every: String,
 }
 
 pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
@@ -54,11 +60,22 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
             .transpose()?,
     };
     let rig = twistmark::Rig::from_path(&a.rig)?;
-    if a.overlay_every == 0 {
-        anyhow::bail!("--overlay-every: must be at least 1 (1 draws every blow)");
+    let overlay_every = super::parse_number("--overlay-every", &a.overlay_every)?;
+    if overlay_every < 1.0 || overlay_every.fract() != 0.0 {
+        anyhow::bail!(
+            "--overlay-every: must be a whole number, at least 1 (1 draws every blow), got {}",
+            a.overlay_every
+        );
     }
+    let overlay_every = overlay_every.min(u32::MAX as f64) as usize;
     // Before the analysis, so a long clip is not analysed only to be refused at the end.
     twistmark::report::check_output_folder(&a.out, "report.json", a.force)?;
+    twistmark::report::check_folder_not_input(
+        &a.out,
+        "--out",
+        &[a.clip.as_path(), a.rig.as_path()],
+        twistmark::report::write::CLIP_OUTPUTS,
+    )?;
     let progress = super::progress::FrameProgress::new(&a.clip.display().to_string());
     let analysis = twistmark::decode::open(&a.clip).and_then(|source| {
         twistmark::analyze::analyze_source(source, &rig, &a.rig, &opts, &|done, total| {
@@ -68,24 +85,18 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
     progress.finish();
     let analysis = analysis?;
     super::print_warnings(&analysis.warnings);
-    // Plots and overlays first and report.json last: a report.json in DIR means the run
-    // finished (every file is also written under a temporary name and renamed).
-    let mut written = twistmark::report::write_plots(&analysis, &a.out)
-        .with_context(|| format!("writing plots to {}", a.out.display()))?;
-    if a.overlay {
-        let o = twistmark::report::overlay::OverlayOptions {
-            every_nth_blow: a.overlay_every,
+    // Under the folder's lock, check again (another run may have written there while this
+    // one analysed), then write everything with report.json last.
+    let _lock = twistmark::report::lock_output(&a.out)?;
+    twistmark::report::check_output_folder(&a.out, "report.json", a.force)?;
+    let overlay = a
+        .overlay
+        .then(|| twistmark::report::overlay::OverlayOptions {
+            every_nth_blow: overlay_every,
             ..Default::default()
-        };
-        written.extend(
-            twistmark::report::overlay::write_overlays(&analysis, &a.out, &o)
-                .with_context(|| format!("writing overlay frames to {}", a.out.display()))?,
-        );
-    }
-    written.extend(
-        twistmark::report::write_outputs(&analysis, &a.out)
-            .with_context(|| format!("writing results to {}", a.out.display()))?,
-    );
+        });
+    let written = twistmark::report::write_all(&analysis, &a.out, overlay.as_ref())
+        .with_context(|| format!("writing results to {}", a.out.display()))?;
     print!("{}", twistmark::report::blow_table(&analysis));
     for p in written {
         eprintln!("wrote {}", p.display());

@@ -27,9 +27,9 @@ pub struct BatchArgs {
     /// left untouched and the run stops).
     #[arg(long)]
     force: bool,
-    /// Clips analysed at once (default: number of cores).
-    #[arg(long, value_name = "N")]
-    jobs: Option<usize>,
+    /// Clips analysed at once (default: number of cores; at most 4 per core).
+    #[arg(long, value_name = "N", allow_hyphen_values = true)]
+    jobs: Option<String>,
 }
 
 pub fn run(a: BatchArgs) -> Result<ExitCode> {
@@ -38,10 +38,21 @@ pub fn run(a: BatchArgs) -> Result<ExitCode> {
             fps_hz: super::parse_fps(a.fps.as_deref())?,
             ..Default::default()
         },
-        jobs: a.jobs,
+        jobs: a.jobs.as_deref().map(parse_jobs).transpose()?,
+        force: a.force,
     };
     let rig = twistmark::Rig::from_path(&a.rig)?;
     twistmark::report::check_output_folder(&a.out, "summary.json", a.force)?;
+    if let Some(j) = opts.jobs {
+        let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+        let (used, clamped) = twistmark::limits::clamp_jobs(j, cores);
+        if clamped {
+            eprintln!(
+                "warning: --jobs {j} is more than {} per core on this {cores}-core machine; using {used}",
+                twistmark::limits::MAX_JOBS_PER_CORE
+            );
+        }
+    }
     let progress = BatchProgress::new();
     let result = run_batch(&a.folder, &rig, &a.rig, &a.out, &opts, &|ev| {
         progress.event(ev)
@@ -62,4 +73,15 @@ pub fn run(a: BatchArgs) -> Result<ExitCode> {
     } else {
         ExitCode::SUCCESS
     })
+}
+
+/// Parses `--jobs`: a whole number of clips analysed at once, at least 1.
+fn parse_jobs(text: &str) -> Result<usize> {
+    let v = super::parse_number("--jobs", text)?;
+    if v < 1.0 || v.fract() != 0.0 {
+        anyhow::bail!(
+            "--jobs: give a whole number of clips to analyse at once, 1 or more (got {text}); leave it out to use every core"
+        );
+    }
+    Ok(v.min(usize::MAX as f64) as usize)
 }

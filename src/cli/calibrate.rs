@@ -74,8 +74,15 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
     let (mut rig, mut bar) = super::bar::load_bar(&a.rig)?;
     let mut pairs: Vec<CalibrationPair> = Vec::new();
     let mut stills: Option<StillsMeasurement> = None;
+    // Every file read, so that --out is never one of them (the rig alone may be updated).
+    let mut inputs: Vec<PathBuf> = a.csv.iter().chain(&a.stills).cloned().collect();
+    inputs.extend(a.reference.iter().cloned());
     if let Some(table) = &a.stills {
         let plan = read_stills_csv(table, a.reference.as_deref())?;
+        inputs.extend(plan.rows.iter().map(|r| r.path.clone()));
+        if let twistmark::calibrate::Reference::Row(r) = &plan.reference {
+            inputs.push(r.path.clone());
+        }
         let m = measure_stills(&rig, &a.rig, &plan)?;
         super::print_warnings(&m.warnings);
         pairs = m.pairs();
@@ -134,14 +141,17 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         let text = rig.to_json_pretty() + "\n";
         // Re-read what we are about to write, so a written rig always parses.
         twistmark::Rig::from_json_str(&text, out)?;
-        std::fs::write(out, text).with_context(|| format!("{}: cannot write", out.display()))?;
+        let read: Vec<&std::path::Path> = inputs.iter().map(PathBuf::as_path).collect();
+        twistmark::report::check_not_input(out, "--out", &read)?;
+        twistmark::report::write::write_file(out, text.as_bytes())
+            .with_context(|| format!("{}: cannot write", out.display()))?;
     }
 
     if a.json {
         let v = serde_json::json!({
             "calibrated_stiffness_nm_per_deg": k.nm_per_deg(),
             "calibrated_stiffness_nm_per_rad": k.nm_per_rad(),
-            "stderr_nm_per_deg": u.nm_per_deg(),
+            "stderr_nm_per_deg": fit.stderr_known().then(|| u.nm_per_deg()),
             "computed_stiffness_nm_per_deg": computed.nm_per_deg(),
             "calibrated_vs_computed_pct": vs_pct,
             "rms_residual_deg": fit.rms_residual.deg(),
@@ -214,14 +224,24 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
             (k * *r).nm()
         );
     }
-    println!(
-        "stiffness:  {:.3} ± {:.3} N·m/deg (standard uncertainty) = {:.1} ± {:.1} N·m/rad = {:.3} lbf·ft/deg",
-        k.nm_per_deg(),
-        u.nm_per_deg(),
-        k.nm_per_rad(),
-        u.nm_per_rad(),
-        Torque::from_nm(k.nm_per_deg()).lbf_ft()
-    );
+    if fit.stderr_known() {
+        println!(
+            "stiffness:  {:.3} ± {:.3} N·m/deg (standard uncertainty) = {:.1} ± {:.1} N·m/rad = {:.3} lbf·ft/deg",
+            k.nm_per_deg(),
+            u.nm_per_deg(),
+            k.nm_per_rad(),
+            u.nm_per_rad(),
+            Torque::from_nm(k.nm_per_deg()).lbf_ft()
+        );
+    } else {
+        println!(
+            "stiffness:  {:.3} N·m/deg = {:.1} N·m/rad = {:.3} lbf·ft/deg; uncertainty: cannot be estimated \
+             (the checks repeat one point; measure at several different torques)",
+            k.nm_per_deg(),
+            k.nm_per_rad(),
+            Torque::from_nm(k.nm_per_deg()).lbf_ft()
+        );
+    }
     println!(
         "residuals:  rms {:.4} deg; computed from the sections: {:.3} N·m/deg, calibrated is {vs_pct:+.1} % from it",
         fit.rms_residual.deg(),

@@ -74,6 +74,7 @@ pub(crate) fn parse_fps(text: Option<&str>) -> Result<Option<f64>> {
             "--fps: the capture rate must be a positive number of frames per second, got {text}"
         );
     }
+    twistmark::sanity::check_fps(v, "--fps")?;
     Ok(Some(v))
 }
 

@@ -120,16 +120,31 @@ fn file_name(p: &Path) -> String {
 
 /// Opens a still's decoder, naming the file on failure.
 fn decoder_for(path: &Path) -> Result<impl ImageDecoder> {
-    let reader = ImageReader::open(path)
+    let mut reader = ImageReader::open(path)
         .map_err(|e| Error::io(path, e))?
         .with_guessed_format()
         .map_err(|e| Error::io(path, e))?;
-    reader.into_decoder().map_err(|e| {
+    // The header is checked against the frame cap before any pixel is decoded, for every
+    // still: clip frames, calibration stills and zero stills alike.
+    reader.limits(crate::limits::image_limits());
+    let dec = reader.into_decoder().map_err(|e| {
+        if matches!(e, image::ImageError::Limits(_)) {
+            return Error::input(
+                path,
+                format!(
+                    "the header claims a frame larger than twistmark reads ({e}); the file is \
+                     damaged or not a camera frame: replace or remove it"
+                ),
+            );
+        }
         Error::input(
             path,
             format!("cannot be read as an image ({e}); replace or remove this frame"),
         )
-    })
+    })?;
+    let (w, h) = dec.dimensions();
+    crate::limits::check_frame_size(path, w, h)?;
+    Ok(dec)
 }
 
 /// Lists the numbered stills in `dir`, sorted by number.

@@ -147,6 +147,17 @@ impl VideoSource {
         unsafe {
             (*ctx.as_mut_ptr()).thread_count = threads;
         }
+        // A damaged frame must never be measured. Most decoders flag one (checked in
+        // `next_picture`); the MJPEG decoder instead logs and outputs a garbled picture unless
+        // told to stop at the error. Its frames are independent, so stopping costs nothing a
+        // whole frame would give.
+        if codec_name == "mjpeg" {
+            // SAFETY: as above.
+            unsafe {
+                (*ctx.as_mut_ptr()).err_recognition |=
+                    ff::ffi::AV_EF_EXPLODE | ff::ffi::AV_EF_CRCCHECK | ff::ffi::AV_EF_BITSTREAM;
+            }
+        }
         let decoder = ctx.decoder().video().map_err(|e| {
             Error::input(
                 path,
@@ -163,6 +174,7 @@ impl VideoSource {
                 format!("the {codec_name} video stream has no frame size; the file may be damaged"),
             ));
         }
+        crate::limits::check_frame_size(path, width, height)?;
         let bit_depth = plan_for(decoder.format()).bit_depth();
         let mut warnings = Vec::new();
         if irregular {
@@ -414,8 +426,34 @@ fn ff_reason(e: &ff::Error) -> String {
     }
 }
 
+/// The address handed to FFmpeg for `path`, and a file handle to keep open while FFmpeg
+/// opens it. A path always reaches FFmpeg as a file, never as a protocol address: it is made
+/// absolute and given the `file:` prefix, so `file:x.mkv` or `12:03:44.mkv` names the file of
+/// that name. A path that is not UTF-8 (which the FFmpeg bindings cannot pass) is opened here
+/// and handed over as this process's `/proc/self/fd/N` on Linux.
+fn ff_address(path: &Path) -> Result<(String, Option<std::fs::File>)> {
+    let abs = std::path::absolute(path).map_err(|e| Error::io(path, e))?;
+    if let Some(s) = abs.to_str() {
+        return Ok((format!("file:{s}"), None));
+    }
+    #[cfg(target_os = "linux")]
+    {
+        use std::os::fd::AsRawFd;
+        let f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        let address = format!("file:/proc/self/fd/{}", f.as_raw_fd());
+        Ok((address, Some(f)))
+    }
+    #[cfg(not(target_os = "linux"))]
+    Err(Error::input(
+        path,
+        "the path is not valid UTF-8, which FFmpeg cannot open on this system; rename the file \
+         or its folder",
+    ))
+}
+
 fn open_input(path: &Path) -> Result<ff::format::context::Input> {
-    ff::format::input(&path).map_err(|e| {
+    let (address, _keep_open) = ff_address(path)?;
+    ff::format::input(&address).map_err(|e| {
         Error::input(
             path,
             format!(
@@ -438,16 +476,9 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             "looks like a text file, not a video; give a video file or a folder of stills",
         ));
     }
-    if demuxer == "image2" || demuxer.ends_with("_pipe") {
-        let kind = demuxer.trim_end_matches("_pipe");
-        return Err(Error::input(
-            path,
-            format!(
-                "is a single still image ({kind}), not a video; put numbered stills in a folder \
-                 and give the folder"
-            ),
-        ));
-    }
+    // An image demuxer holding one picture is a still; one holding several back to back (a
+    // raw MJPEG stream, read by the JPEG demuxer frame by frame) is a video.
+    let image_demuxer = demuxer == "image2" || demuxer.ends_with("_pipe");
     let mut video = None;
     let mut audio = 0usize;
     for s in ictx.streams() {
@@ -494,6 +525,16 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
         if let Some(t) = packet.pts().or(packet.dts()) {
             stamps.push(t);
         }
+    }
+    if image_demuxer && count <= 1 {
+        let kind = demuxer.trim_end_matches("_pipe");
+        return Err(Error::input(
+            path,
+            format!(
+                "is a single still image ({kind}), not a video; put numbered stills in a folder \
+                 and give the folder"
+            ),
+        ));
     }
     if count == 0 {
         return Err(Error::input(

@@ -342,7 +342,7 @@ impl SectionSpec {
         }
     }
 
-    fn dimensions(&self) -> Vec<(&'static str, f64)> {
+    pub(crate) fn dimensions(&self) -> Vec<(&'static str, f64)> {
         match *self {
             SectionSpec::Round {
                 length_mm, d_mm, ..

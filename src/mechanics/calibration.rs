@@ -104,7 +104,7 @@ pub fn fit_stiffness(pairs: &[CalibrationPair]) -> Result<CalibrationFit> {
     let u_c = s / stt.sqrt();
     Ok(CalibrationFit {
         stiffness: Stiffness::from_nm_per_rad(1.0 / c),
-        stderr: Stiffness::from_nm_per_rad(u_c / (c * c)),
+        stderr: estimable(pairs, 2, u_c / (c * c)),
         rms_residual: Angle::from_rad((ss / n).sqrt()),
         residuals,
         pairs: pairs.to_vec(),
@@ -168,7 +168,7 @@ pub fn fit_stiffness_line(pairs: &[CalibrationPair]) -> Result<CalibrationFit> {
     let u_c = s / sxx.sqrt();
     Ok(CalibrationFit {
         stiffness: Stiffness::from_nm_per_rad(1.0 / c),
-        stderr: Stiffness::from_nm_per_rad(u_c / (c * c)),
+        stderr: estimable(pairs, 3, u_c / (c * c)),
         rms_residual: Angle::from_rad((ss / n).sqrt()),
         residuals,
         pairs: pairs.to_vec(),
@@ -176,7 +176,29 @@ pub fn fit_stiffness_line(pairs: &[CalibrationPair]) -> Result<CalibrationFit> {
     })
 }
 
+/// The standard uncertainty `u_nm_per_rad`, or NaN (unknown) when the pairs hold fewer than
+/// `needed` distinct checks: repeating one check gives residuals of exactly zero, which says
+/// nothing about the scatter, so the uncertainty cannot be estimated (it is not zero).
+fn estimable(pairs: &[CalibrationPair], needed: usize, u_nm_per_rad: f64) -> Stiffness {
+    let mut distinct: Vec<(u64, u64)> = pairs
+        .iter()
+        .map(|p| (p.torque.nm().to_bits(), p.twist.rad().to_bits()))
+        .collect();
+    distinct.sort_unstable();
+    distinct.dedup();
+    if distinct.len() < needed {
+        Stiffness::from_nm_per_rad(f64::NAN)
+    } else {
+        Stiffness::from_nm_per_rad(u_nm_per_rad)
+    }
+}
+
 impl CalibrationFit {
+    /// True when [`CalibrationFit::stderr`] could be estimated (enough distinct checks).
+    pub fn stderr_known(&self) -> bool {
+        self.stderr.nm_per_rad().is_finite()
+    }
+
     /// The fitted twist at a pair's torque: offset (if any) + T/k.
     pub fn fitted_twist(&self, p: &CalibrationPair) -> Angle {
         self.offset.unwrap_or(Angle::from_rad(0.0)) + p.torque / self.stiffness
@@ -186,7 +208,7 @@ impl CalibrationFit {
     pub fn to_spec(&self, computed: Stiffness, twist_source: &str) -> CalibrationSpec {
         CalibrationSpec {
             pairs: self.pairs.len(),
-            stderr_nm_per_deg: Some(self.stderr.nm_per_deg()),
+            stderr_nm_per_deg: self.stderr_known().then(|| self.stderr.nm_per_deg()),
             rms_residual_deg: Some(self.rms_residual.deg()),
             computed_stiffness_nm_per_deg: Some(computed.nm_per_deg()),
             torque_nm: self.pairs.iter().map(|p| p.torque.nm()).collect(),
@@ -232,21 +254,28 @@ pub fn parse_pair(text: &str) -> Result<CalibrationPair> {
 /// # Errors
 /// [`Error::Io`] when unreadable; [`Error::Input`] naming the file, line and column.
 pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let text = crate::limits::read_text(path, "CSV")?;
     let bad = |reason: String| Error::input(path, reason);
     let (mut rdr, headers) = csv_with_headers(&text).map_err(bad)?;
     let (mut tcol, mut thcol) = (None, None);
     for (i, h) in headers.iter().enumerate() {
-        match h {
-            "torque_nm" => tcol = Some((i, 1.0)),
-            "torque_lbf_ft" => tcol = Some((i, NM_PER_LBF_FT)),
-            "twist_deg" => thcol = Some((i, 1f64.to_radians())),
-            "twist_rad" => thcol = Some((i, 1.0)),
+        let (slot, unit, kind) = match h {
+            "torque_nm" => (&mut tcol, 1.0, "torque"),
+            "torque_lbf_ft" => (&mut tcol, NM_PER_LBF_FT, "torque"),
+            "twist_deg" => (&mut thcol, 1f64.to_radians(), "twist"),
+            "twist_rad" => (&mut thcol, 1.0, "twist"),
             other => {
                 return Err(bad(format!(
                     "unknown column '{other}'; use torque_nm (or torque_lbf_ft) and twist_deg (or twist_rad)"
                 )));
             }
+        };
+        // Two torque (or twist) columns would leave one silently unused: refuse.
+        if let Some((j, _)) = slot.replace((i, unit)) {
+            return Err(bad(format!(
+                "columns '{}' and '{h}' are both {kind} columns; keep one",
+                &headers[j]
+            )));
         }
     }
     let ((ti, tf), (hi, hf)) = match (tcol, thcol) {

@@ -15,8 +15,10 @@ use crate::error::{Error, Result};
 
 pub mod overlay;
 pub mod plot;
+pub mod write;
 
 pub use plot::{write_comparison, write_plots};
+pub use write::{check_folder_not_input, check_not_input, lock_output, write_all};
 
 mod csv;
 mod json;
@@ -113,7 +115,11 @@ where
     write_atomic(path, &png)
 }
 
-/// Writes `bytes` to `path` through a temporary file in the same folder and a rename.
+/// Writes `bytes` to `path` through a temporary file in the same folder and a rename. The
+/// temporary file has a random name and is created exclusively (O_EXCL: an existing file or
+/// a symbolic link planted at that name is never opened), by the `tempfile` crate; it is
+/// removed if anything fails. The rename replaces a symbolic link at `path` rather than
+/// following it.
 ///
 /// # Errors
 /// [`crate::Error::Io`] naming the file.
@@ -122,22 +128,32 @@ pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".into());
-    let tmp = path.with_file_name(format!(".{name}.{}.partial", std::process::id()));
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    let mut builder = tempfile::Builder::new();
+    let prefix = format!(".{name}.");
+    builder.prefix(&prefix).suffix(".partial");
+    #[cfg(unix)]
+    {
+        // As a plain create would: rw for all, less the user's umask (tempfile's default is
+        // owner-only, which would hide results from the rest of a lab's group).
+        use std::os::unix::fs::PermissionsExt;
+        builder.permissions(fs::Permissions::from_mode(0o666));
+    }
     let io = |p: &Path| {
         let p = p.to_path_buf();
         move |cause| Error::Io { path: p, cause }
     };
-    let result = (|| {
-        let mut f = fs::File::create(&tmp).map_err(io(&tmp))?;
-        f.write_all(bytes).map_err(io(&tmp))?;
-        f.sync_all().map_err(io(&tmp))?;
-        drop(f);
-        fs::rename(&tmp, path).map_err(io(path))
-    })();
-    if result.is_err() {
-        let _ = fs::remove_file(&tmp);
-    }
-    result
+    let mut tmp = builder.tempfile_in(dir).map_err(io(path))?;
+    tmp.write_all(bytes).map_err(io(tmp.path()))?;
+    tmp.as_file().sync_all().map_err(io(tmp.path()))?;
+    tmp.persist(path).map_err(|e| Error::Io {
+        path: path.to_path_buf(),
+        cause: e.error,
+    })?;
+    Ok(())
 }
 
 /// A number for a table or CSV cell, with `decimals` places; empty when unknown or not

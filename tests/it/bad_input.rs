@@ -27,6 +27,15 @@
 //! | data: a mark never found | [`a_mark_with_no_paint_is_named`] |
 //! | data: a clip shorter than one blow | [`a_clip_shorter_than_one_blow_is_a_warning`] |
 //! | fuzz finds (`tools/fuzz.sh`) | [`fuzz_rig_field_name_with_a_newline`], [`fuzz_truncated_jpeg_still`], [`fuzz_still_header_claiming_petabytes`] |
+//! | hostile rule 1: no output path is an input | `hostile.rs::rule1_no_output_is_an_input` |
+//! | hostile rule 2: every per-clip output folder checked first (unique names, lock, --out over the input) | `hostile.rs::rule2_every_output_folder_is_checked_before_writing` |
+//! | hostile rule 3: writes atomic and confined (report.json last, leftovers cleared, no `overlays` link) | `hostile.rs::rule3_writes_are_atomic_and_confined` |
+//! | hostile rule 4: paths reach FFmpeg as files (colons, `file:`, non-UTF-8) | `hostile.rs::rule4_paths_reach_ffmpeg_as_files` |
+//! | hostile rule 5: damaged frames never measured | `hostile.rs::rule5_damaged_frames_are_never_measured` |
+//! | hostile rule 6: physics sanity | `hostile.rs::rule6_physics_sanity` |
+//! | hostile rule 7: bounded resources | `hostile.rs::rule7_bounded_resources` |
+//! | hostile rule 8: strict parsing | `hostile.rs::rule8_strict_parsing` |
+//! | hostile rule 9: one-line reasons (negative numbers, raw MJPEG) | `hostile.rs::rule9_one_line_reasons` |
 //!
 //! The output-safety checks of issue 6 (results never overwritten without `--force`, inputs
 //! never written) are at the end of this file. Clips here are the project's own rendered

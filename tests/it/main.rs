@@ -14,6 +14,7 @@ mod batch;
 mod calibrate_stills;
 mod decode;
 mod fixtures_decode;
+mod hostile;
 mod locate;
 mod segment;
 mod side;
