@@ -514,6 +514,11 @@ fn run_clip(
     let work = || -> Result<ClipOutcome> {
         let (rig, rig_path) = clip_rig(clip, batch_rig, batch_rig_path)?;
         let source = decode::open(&clip.path)?;
+        let mut opts = opts.clone();
+        if opts.zero_still.is_none() && opts.zero_frame.is_none() {
+            opts.zero_still = rest_still_beside(clip);
+        }
+        let opts = &opts;
         let frames_cb = |done: u64, total: u64| {
             progress(BatchEvent::Frames {
                 clip: i,
@@ -554,6 +559,26 @@ fn run_clip(
             )
         }
     }
+}
+
+/// Extensions of a clip's rest still, `<clip>.rest.<ext>` beside it (interface v2).
+pub const REST_STILL_EXTENSIONS: [&str; 5] = ["png", "tif", "tiff", "jpg", "jpeg"];
+
+/// The rest still beside a clip: `<stem>.rest.png` (or .tif, .tiff, .jpg, .jpeg), or the
+/// same after the clip's full file name; the first found.
+fn rest_still_beside(clip: &Clip) -> Option<PathBuf> {
+    let dir = clip.path.parent()?;
+    let full = clip.path.file_name()?.to_string_lossy().into_owned();
+    let stem = clip
+        .path
+        .file_stem()
+        .map_or(full.clone(), |s| s.to_string_lossy().into_owned());
+    [stem, full].iter().find_map(|base| {
+        REST_STILL_EXTENSIONS
+            .iter()
+            .map(|ext| dir.join(format!("{base}.rest.{ext}")))
+            .find(|p| p.is_file())
+    })
 }
 
 /// The summary row of an analysed clip.

@@ -33,6 +33,7 @@
 //!
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
+use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_level, rest_window};
 use crate::track::Trace;
@@ -112,15 +113,30 @@ pub struct Summary {
     /// Twist at the end of the clip (the last blow's residual twist; without blows, the
     /// twist at the last sample).
     pub residual_twist_end: Option<Angle>,
+    /// The twist zero every twist above is measured from.
+    pub twist_zero: TwistZero,
 }
 
-/// Computes every blow's metrics and the summary.
+/// Computes every blow's metrics and the summary, with the twist zero found from the trace
+/// itself (a quiet stretch before the first blow, else the first frame with a warning).
 ///
 /// Never panics; a trace with no blows gives an empty list and a summary of totals.
 pub fn blow_metrics(
     trace: &Trace,
     seg: &Segmentation,
     bar: Option<&BarSpec>,
+) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
+    blow_metrics_zeroed(trace, seg, bar, None)
+}
+
+/// As [`blow_metrics`], with a twist zero measured elsewhere (a rest still or rest frame);
+/// `None` finds it from the trace. Every twist and torque is the absolute wind-up
+/// `drive − nut + zero.offset`.
+pub fn blow_metrics_zeroed(
+    trace: &Trace,
+    seg: &Segmentation,
+    bar: Option<&BarSpec>,
+    zero: Option<TwistZero>,
 ) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
     let mut warnings = Vec::new();
     if bar.is_none() {
@@ -129,10 +145,23 @@ pub fn blow_metrics(
     let n = trace.len().min(trace.drive.len()).min(trace.nut.len());
     let drive = degrees(&trace.drive[..n]);
     let nut = degrees(&trace.nut[..n]);
+    let zero = zero
+        .or_else(|| quiet_start(&drive, &nut, &trace.frames, seg))
+        .unwrap_or_else(|| TwistZero {
+            source: ZeroSource::FirstFrameUnverified,
+            frame: trace.frames.first().copied(),
+            ..TwistZero::default()
+        });
+    if zero.source == ZeroSource::FirstFrameUnverified && n > 0 {
+        warnings.push(Warning::TwistZeroUnverified {
+            frame: trace.frames.first().copied().unwrap_or(0),
+        });
+    }
+    let offset_deg = zero.offset.deg();
     let twist: Vec<Option<f64>> = drive
         .iter()
         .zip(&nut)
-        .map(|(d, u)| Some((*d)? - (*u)?))
+        .map(|(d, u)| Some((*d)? - (*u)? + offset_deg))
         .collect();
     let blows: Vec<_> = seg
         .blows
@@ -252,6 +281,7 @@ pub fn blow_metrics(
             .checked_sub(1)
             .and_then(|k| level(&twist, k))
             .map(Angle::from_deg),
+        twist_zero: zero,
     };
     (out, summary, warnings)
 }
@@ -462,7 +492,10 @@ mod tests {
             ..Segmentation::default()
         };
         let (b, s, w) = blow_metrics(&trace, &seg, Some(&bar()));
-        assert!(w.is_empty());
+        // One sample before the first blow cannot show the bar at rest: the zero is the
+        // first frame, unverified, and a warning says so.
+        assert_eq!(w, vec![Warning::TwistZeroUnverified { frame: 100 }]);
+        assert_eq!(s.twist_zero.source, ZeroSource::FirstFrameUnverified);
         // Blow 1: just before = sample 0, just before next = sample 5 (window m = 1: the
         // blows are 5 samples long).
         assert_eq!(b[0].frame, 101);

@@ -11,14 +11,16 @@ mod blows;
 mod calibration;
 pub(crate) use calibration::csv_with_headers;
 mod steel;
+mod zero;
 
 pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
 pub use bar_report::{
     BarJson, BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionJson,
     SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
 };
-pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, Summary, blow_metrics};
+pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, Summary, blow_metrics, blow_metrics_zeroed};
 pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
 };
 pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};
+pub use zero::{QUIET_MIN_SAMPLES, TwistZero, ZeroSource};

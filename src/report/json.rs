@@ -141,6 +141,22 @@ pub struct SummaryJson {
     pub drive_noise_deg: Option<f64>,
     /// Estimated angle noise of the nut end (one frame, σ), degrees.
     pub nut_noise_deg: Option<f64>,
+    /// What every twist is measured from: the bar at rest (interface v2).
+    pub twist_zero: TwistZeroJson,
+}
+
+/// `summary.twist_zero`: where the twist zero came from and the twist already in the bar at
+/// the first analysed frame.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TwistZeroJson {
+    /// `still`, `frame`, `quiet_start` or `first_frame_unverified`.
+    pub source: String,
+    /// The clip frame that showed the bar at rest (null for a still).
+    pub frame: Option<u64>,
+    /// Twist in the bar at the first analysed frame, degrees (added to drive − nut).
+    pub offset_deg: f64,
+    /// Standard uncertainty (1σ) of `offset_deg`, degrees.
+    pub offset_sigma_deg: f64,
 }
 
 fn deg(a: Option<Angle>) -> Option<f64> {
@@ -175,6 +191,7 @@ pub fn report(a: &Analysis) -> Report {
     let tr = &a.trace;
     let n = tr.len();
     let stiffness = a.summary.stiffness;
+    let zero = a.summary.twist_zero;
     let trace = TraceJson {
         t_s: (0..n).map(|i| tr.t_s(i)).collect(),
         frame: tr.frames.clone(),
@@ -188,7 +205,7 @@ pub fn report(a: &Analysis) -> Report {
             .map(|i| {
                 let d = tr.drive.get(i).copied().flatten()?;
                 let u = tr.nut.get(i).copied().flatten()?;
-                deg(Some(d - u))
+                deg(Some(d - u + zero.offset))
             })
             .collect(),
         drive_confidence: (0..n)
@@ -253,6 +270,12 @@ pub fn report(a: &Analysis) -> Report {
         ),
         drive_noise_deg: deg(a.segmentation.drive_noise),
         nut_noise_deg: deg(a.segmentation.nut_noise),
+        twist_zero: TwistZeroJson {
+            source: zero.source.as_str().to_string(),
+            frame: zero.frame,
+            offset_deg: zero.offset.deg(),
+            offset_sigma_deg: zero.offset_sigma.deg(),
+        },
     };
     Report {
         report_version: REPORT_VERSION,
