@@ -33,6 +33,8 @@
 //!
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
+use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
+use crate::mechanics::uncertainty::stiffness_rel_sigma;
 use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, level_at, rest_level, rest_window};
@@ -115,6 +117,9 @@ pub struct Summary {
     pub residual_twist_end: Option<Angle>,
     /// The twist zero every twist above is measured from.
     pub twist_zero: TwistZero,
+    /// The torque the joint holds after the last blow that turned the nut (None without a
+    /// bar or a measured slip).
+    pub holding: Option<HoldingTorque>,
 }
 
 /// Computes every blow's metrics and the summary, with the twist zero found from the trace
@@ -197,6 +202,8 @@ pub fn blow_metrics_zeroed(
             .or_else(|| level(&nut, k))
     };
     let mut out = Vec::with_capacity(blows.len());
+    let mut slips: Vec<(usize, Slip)> = Vec::new();
+    let slip_tol_deg = (3.0 * nut_sigma_deg).max(NUT_STOP_MIN_DEG / 4.0);
     for (k, b) in blows.iter().enumerate() {
         let before = b.onset.saturating_sub(1);
         let last = b.end - 1;
@@ -211,9 +218,17 @@ pub fn blow_metrics_zeroed(
             .map(Angle::from_deg);
         let nut_onset = b.nut_onset.filter(|&i| i >= b.onset && i < b.end);
         let breakaway_twist = nut_onset.and_then(|i| twist_smooth[i]).map(Angle::from_deg);
-        let nut_advance = nut_rest(last, b.onset)
+        let nut_after = nut_rest(last, b.onset);
+        let nut_advance = nut_after
             .zip(nut_before)
             .map(|(a, z)| Angle::from_deg(a - z));
+        let advanced = nut_advance.is_some_and(|a| a.deg() >= threshold_deg);
+        if advanced
+            && let (Some(i), Some(rest), Some(before)) = (nut_onset, nut_after, nut_before)
+            && let Some(slip) = find_slip(&nut, i, last, (before, rest), slip_tol_deg)
+        {
+            slips.push((k + 1, slip));
+        }
         let frame = trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64);
         out.push(BlowMetrics {
             index: k + 1,
@@ -231,7 +246,7 @@ pub fn blow_metrics_zeroed(
             nut_onset_frame: nut_onset.and_then(|i| trace.frames.get(i).copied()),
             breakaway_twist,
             breakaway_torque: torque(breakaway_twist),
-            nut_advanced: nut_advance.is_some_and(|a| a.deg() >= threshold_deg),
+            nut_advanced: advanced,
         });
     }
 
@@ -251,6 +266,37 @@ pub fn blow_metrics_zeroed(
     let peak_torque = max_torque(&mut out.iter());
     let rating = bar.and_then(|b| b.rating_nm).map(Torque::from_nm);
     let last_advancing = out.iter().rposition(|b| b.nut_advanced);
+    let holding = match (bar, stiffness, last_advancing, n.checked_sub(1)) {
+        (Some(bar), Some(k), Some(la), Some(end)) => {
+            let later = &out[la + 1..];
+            let still: Vec<Torque> = later
+                .iter()
+                .filter(|b| !b.nut_advanced)
+                .filter_map(|b| b.peak_torque)
+                .collect();
+            let lo = blows.last().map_or(0, |b| b.onset);
+            nut_rest(end, lo).and_then(|nut_final_deg| {
+                holding_torque(
+                    &twist,
+                    &nut,
+                    &HoldingInputs {
+                        slips: &slips,
+                        nut_final_deg,
+                        stiffness: k,
+                        twist_sigma_deg,
+                        zero_sigma_deg: zero.offset_sigma.deg(),
+                        stiffness_rel_sigma: stiffness_rel_sigma(bar).0,
+                        later_still_peaks: &still,
+                        later_breakaway: later
+                            .iter()
+                            .filter_map(|b| b.breakaway_torque)
+                            .min_by(|a, b| a.nm().total_cmp(&b.nm())),
+                    },
+                )
+            })
+        }
+        _ => None,
+    };
     let summary = Summary {
         blow_count: out.len(),
         blow_rate_per_min: seg.rate_per_min,
@@ -282,6 +328,7 @@ pub fn blow_metrics_zeroed(
             .and_then(|k| level(&twist, k))
             .map(Angle::from_deg),
         twist_zero: zero,
+        holding,
     };
     (out, summary, warnings)
 }

@@ -10,7 +10,9 @@ mod bar_report;
 mod blows;
 mod calibration;
 pub(crate) use calibration::csv_with_headers;
+mod holding;
 mod steel;
+mod uncertainty;
 mod zero;
 
 pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
@@ -23,4 +25,9 @@ pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
 };
 pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};
+pub use holding::{HoldingTorque, MAX_SLIPS};
+pub use uncertainty::{
+    CALIBRATION_REL_SIGMA_DEFAULT, DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA,
+    stiffness_rel_sigma,
+};
 pub use zero::{QUIET_MIN_SAMPLES, TwistZero, ZeroSource};

@@ -143,6 +143,20 @@ pub struct SummaryJson {
     pub nut_noise_deg: Option<f64>,
     /// What every twist is measured from: the bar at rest (interface v2).
     pub twist_zero: TwistZeroJson,
+    /// The torque the joint holds after the last blow that turned the nut, N·m (interface
+    /// v2; null without a bar or a measured slip).
+    pub holding_torque_nm: Option<f64>,
+    /// Its 95 % interval, `[low, high]`, N·m.
+    pub holding_torque_ci95_nm: Option<[f64; 2]>,
+    /// Bounds on the torque that would restart the nut, `[low, high]`, N·m: the highest peak
+    /// of a later blow that did not move it, and the torque at which a later blow did.
+    pub holding_torque_bracket_nm: [Option<f64>; 2],
+    /// The last blow that turned the nut (the holding torque is read after it).
+    pub holding_after_blow: Option<usize>,
+    /// Slips the holding torque rests on.
+    pub holding_slip_count: usize,
+    /// The joint's rate fitted over those slips, N·m per degree of nut turn.
+    pub joint_rate_nm_per_deg: Option<f64>,
 }
 
 /// `summary.twist_zero`: where the twist zero came from and the twist already in the bar at
@@ -276,6 +290,18 @@ pub fn report(a: &Analysis) -> Report {
             offset_deg: zero.offset.deg(),
             offset_sigma_deg: zero.offset_sigma.deg(),
         },
+        holding_torque_nm: nm(s.holding.map(|h| h.torque)),
+        holding_torque_ci95_nm: s
+            .holding
+            .map(|h| [h.ci95.0.nm(), h.ci95.1.nm()])
+            .filter(|v| v.iter().all(|x| x.is_finite())),
+        holding_torque_bracket_nm: [
+            nm(s.holding.and_then(|h| h.bracket_low)),
+            nm(s.holding.and_then(|h| h.bracket_high)),
+        ],
+        holding_after_blow: s.holding.map(|h| h.after_blow),
+        holding_slip_count: s.holding.map_or(0, |h| h.slips),
+        joint_rate_nm_per_deg: finite(s.holding.and_then(|h| h.joint_rate_nm_per_deg)),
     };
     Report {
         report_version: REPORT_VERSION,
