@@ -165,6 +165,9 @@ pub fn analyze_source(
         let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
         b.springback_verdict_for_blows(&onsets, &residual, &peak)
     });
+    if let Some(spec) = rig.bar.as_ref() {
+        warnings.extend(mechanics::bar_sense_warnings(spec));
+    }
     if let Some(b) = &bar {
         warnings.extend(b.warnings());
         if let Some(w) = summary

@@ -152,7 +152,16 @@ pub struct SummaryRow {
     pub nut_total_deg: Option<f64>,
     /// Stiffness used for torque, N·m/deg.
     pub bar_stiffness_nm_per_deg: Option<f64>,
-    /// Highest peak torque over all blows, N·m.
+    /// Torque the joint holds after the last blow that turned the nut, N·m.
+    pub holding_torque_nm: Option<f64>,
+    /// Low end of its 95 % interval, N·m.
+    pub holding_torque_ci95_low_nm: Option<f64>,
+    /// High end of its 95 % interval, N·m.
+    pub holding_torque_ci95_high_nm: Option<f64>,
+    /// Where the twist zero came from (`still`, `frame`, `quiet_start`,
+    /// `first_frame_unverified`).
+    pub twist_zero_source: Option<String>,
+    /// Highest peak torque over all blows (the bar's dynamic peak), N·m.
     pub peak_torque_nm: Option<f64>,
     /// Peak torque on the last blow that still turned the nut, N·m.
     pub last_advancing_torque_nm: Option<f64>,
@@ -597,6 +606,10 @@ fn ok_row(clip: &Clip, rig: &Rig, rig_path: &Path, analysis: &crate::Analysis) -
         drive_total_deg: s.drive_total.map(|a| a.deg()),
         nut_total_deg: s.nut_total.map(|a| a.deg()),
         bar_stiffness_nm_per_deg: s.stiffness.map(|k| k.nm_per_deg()),
+        holding_torque_nm: s.holding.map(|h| h.torque.nm()),
+        holding_torque_ci95_low_nm: s.holding.map(|h| h.ci95.0.nm()),
+        holding_torque_ci95_high_nm: s.holding.map(|h| h.ci95.1.nm()),
+        twist_zero_source: Some(s.twist_zero.source.as_str().to_string()),
         peak_torque_nm: s.peak_torque.map(|t| t.nm()),
         last_advancing_torque_nm: analysis
             .blows
@@ -658,6 +671,10 @@ fn failed_row(clip: &Clip, rig: &str, error: String) -> SummaryRow {
         drive_total_deg: None,
         nut_total_deg: None,
         bar_stiffness_nm_per_deg: None,
+        holding_torque_nm: None,
+        holding_torque_ci95_low_nm: None,
+        holding_torque_ci95_high_nm: None,
+        twist_zero_source: None,
         peak_torque_nm: None,
         last_advancing_torque_nm: None,
         residual_twist_deg: None,
@@ -766,17 +783,26 @@ pub fn summary_table(report: &BatchReport) -> String {
     let mut s = String::new();
     if !ok.is_empty() {
         s.push_str(&format!(
-            "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
-            "clip", "status", "blows", "rate /min", "nut total°", "peak N·m", "last N·m", "rating",
+            "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
+            "clip",
+            "status",
+            "blows",
+            "rate /min",
+            "nut total°",
+            "hold N·m",
+            "peak N·m",
+            "last N·m",
+            "rating",
         ));
         for r in &ok {
             s.push_str(&format!(
-                "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
+                "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
                 r.clip,
                 "ok",
                 r.blow_count.map_or("-".into(), |n| n.to_string()),
                 fmt_opt(r.blow_rate_per_min, 0),
                 fmt_opt(r.nut_total_deg, 1),
+                fmt_opt(r.holding_torque_nm, 1),
                 fmt_opt(r.peak_torque_nm, 1),
                 fmt_opt(r.last_advancing_torque_nm, 1),
                 fmt_opt(r.rating_nm, 0),

@@ -34,6 +34,7 @@
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
 use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
+use crate::mechanics::sense::set_at_rest_warning;
 use crate::mechanics::uncertainty::stiffness_rel_sigma;
 use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
@@ -76,6 +77,29 @@ pub struct BlowMetrics {
     pub breakaway_torque: Option<Torque>,
     /// The nut's advance in this blow reached the summary's stop threshold.
     pub nut_advanced: bool,
+    /// 95 % interval of the peak twist (tracking noise, the twist zero, and the frame
+    /// rate's under-read when the rise is under-sampled).
+    pub peak_twist_ci95: Option<(Angle, Angle)>,
+    /// 95 % interval of the peak torque (as the twist's, plus the stiffness's uncertainty).
+    pub peak_torque_ci95: Option<(Torque, Torque)>,
+    /// Frames from the onset to the peak twist (the blow's rise as sampled).
+    pub rise_frames: Option<usize>,
+    /// Largest fraction by which the sampled peak can read low, 1 − cos(π/(4·rise)), when
+    /// the rise spans fewer than [`UNDERSAMPLED_RISE_FRAMES`] frames (else None).
+    pub peak_under_read: Option<f64>,
+}
+
+/// A blow whose twist rises to its peak in fewer frames than this is under-sampled: the top
+/// is too narrow for a parabola fit and a sampled peak can read low.
+pub const UNDERSAMPLED_RISE_FRAMES: usize = 4;
+
+/// Largest fraction by which the highest of frames spaced Δt under-reads a peak of the form
+/// P·cos(ω(t − t_p)) whose rise from zero takes a quarter period T_r = `rise_frames`·Δt:
+/// the nearest frame lies at most Δt/2 from the top, so the sampled value is at least
+/// P·cos(ω·Δt/2) = P·cos(π/(4·rise_frames)) (free vibration after an impulse,
+/// θ = θ_p·sin(ω_n·t); Rao, *Mechanical Vibrations*, §2.2).
+pub fn under_read_bound(rise_frames: usize) -> f64 {
+    1.0 - (std::f64::consts::PI / (4.0 * rise_frames.max(1) as f64)).cos()
 }
 
 /// Clip-level results.
@@ -201,6 +225,7 @@ pub fn blow_metrics_zeroed(
             .map(|(mean, _)| mean)
             .or_else(|| level(&nut, k))
     };
+    let k_rel_sigma = bar.map(|b| stiffness_rel_sigma(b).0);
     let mut out = Vec::with_capacity(blows.len());
     let mut slips: Vec<(usize, Slip)> = Vec::new();
     let slip_tol_deg = (3.0 * nut_sigma_deg).max(NUT_STOP_MIN_DEG / 4.0);
@@ -230,6 +255,20 @@ pub fn blow_metrics_zeroed(
             slips.push((k + 1, slip));
         }
         let frame = trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64);
+        let rise_frames = (b.onset..b.end)
+            .filter_map(|i| Some((i, twist_smooth[i]?)))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(i, _)| i - b.onset + 1);
+        let peak_under_read = rise_frames
+            .filter(|&r| r < UNDERSAMPLED_RISE_FRAMES)
+            .map(under_read_bound);
+        let (peak_twist_ci95, peak_torque_ci95) = peak_intervals(
+            peak_twist,
+            twist_sigma_deg,
+            zero.offset_sigma.deg(),
+            peak_under_read.unwrap_or(0.0),
+            stiffness.zip(k_rel_sigma),
+        );
         out.push(BlowMetrics {
             index: k + 1,
             frame,
@@ -247,6 +286,10 @@ pub fn blow_metrics_zeroed(
             breakaway_twist,
             breakaway_torque: torque(breakaway_twist),
             nut_advanced: advanced,
+            peak_twist_ci95,
+            peak_torque_ci95,
+            rise_frames,
+            peak_under_read,
         });
     }
 
@@ -265,6 +308,18 @@ pub fn blow_metrics_zeroed(
     };
     let peak_torque = max_torque(&mut out.iter());
     let rating = bar.and_then(|b| b.rating_nm).map(Torque::from_nm);
+    let worst_rise = out.iter().filter_map(|b| b.rise_frames).min();
+    if let Some(r) = worst_rise.filter(|&r| r < UNDERSAMPLED_RISE_FRAMES) {
+        warnings.push(Warning::Note(format!(
+            "at {fps:.0} fps a blow's twist rises to its peak in only {r} frame(s): its sampled peak can read up to {:.1} % low (the intervals' upper ends include this); film at {:.0} fps or more to resolve the rise",
+            100.0 * under_read_bound(r),
+            fps * UNDERSAMPLED_RISE_FRAMES as f64 / r as f64
+        )));
+    }
+    if zero.source != ZeroSource::FirstFrameUnverified {
+        let from = blows.last().map_or(0, |b| b.onset);
+        warnings.extend(set_at_rest_warning(&twist, from, twist_sigma_deg));
+    }
     let last_advancing = out.iter().rposition(|b| b.nut_advanced);
     let holding = match (bar, stiffness, last_advancing, n.checked_sub(1)) {
         (Some(bar), Some(k), Some(la), Some(end)) => {
@@ -331,6 +386,38 @@ pub fn blow_metrics_zeroed(
         holding,
     };
     (out, summary, warnings)
+}
+
+/// 95 % intervals of a peak twist and its torque: ±1.96σ from one sample's twist noise and
+/// the zero's uncertainty (and, for the torque, the stiffness's relative uncertainty), with
+/// the upper end raised by the under-read fraction of the peak (a sampled peak can only read
+/// low). Independent terms add in quadrature (JCGM 100:2008, §5.1.2).
+fn peak_intervals(
+    peak: Option<Angle>,
+    twist_sigma_deg: f64,
+    zero_sigma_deg: f64,
+    under_read: f64,
+    stiffness: Option<(Stiffness, f64)>,
+) -> (Option<(Angle, Angle)>, Option<(Torque, Torque)>) {
+    let Some(p) = peak.map(Angle::deg).filter(|p| p.is_finite()) else {
+        return (None, None);
+    };
+    let s_tw = twist_sigma_deg.hypot(zero_sigma_deg);
+    let up = under_read.max(0.0) * p.abs();
+    let tw = (
+        Angle::from_deg(p - 1.96 * s_tw),
+        Angle::from_deg(p + 1.96 * s_tw + up),
+    );
+    let tq = stiffness.map(|(k, rel)| {
+        let kd = k.nm_per_deg();
+        let t = kd * p;
+        let s = (kd * s_tw).hypot(t.abs() * rel);
+        (
+            Torque::from_nm(t - 1.96 * s),
+            Torque::from_nm(t + 1.96 * s + kd * up),
+        )
+    });
+    (Some(tw), tq)
 }
 
 /// Quadratic Savitzky–Golay smoothing with half-width `h` (window 2h+1), applied where the
@@ -541,7 +628,14 @@ mod tests {
         let (b, s, w) = blow_metrics(&trace, &seg, Some(&bar()));
         // One sample before the first blow cannot show the bar at rest: the zero is the
         // first frame, unverified, and a warning says so.
-        assert_eq!(w, vec![Warning::TwistZeroUnverified { frame: 100 }]);
+        assert_eq!(w[0], Warning::TwistZeroUnverified { frame: 100 });
+        // A one-frame rise is under-sampled, and the warning says by how much at most.
+        assert!(w[1].to_string().contains("only 1 frame(s)"), "{w:?}");
+        assert_eq!(w.len(), 2);
+        assert!(b.iter().all(|b| b.peak_under_read.is_some()));
+        // 1 − cos(π/8) = 0.0761 for a two-frame rise; 1 − cos(π/16) = 0.0192 for four.
+        assert!((under_read_bound(2) - 0.076_120).abs() < 1e-6);
+        assert!((under_read_bound(4) - 0.019_215).abs() < 1e-6);
         assert_eq!(s.twist_zero.source, ZeroSource::FirstFrameUnverified);
         // Blow 1: just before = sample 0, just before next = sample 5 (window m = 1: the
         // blows are 5 samples long).
@@ -635,7 +729,8 @@ mod tests {
         let (trace, _) = Scene::new(40.0).build();
         let seg = find_blows(&trace);
         let (b, s, w) = blow_metrics(&trace, &seg, None);
-        assert_eq!(w, vec![Warning::NoBar]);
+        assert_eq!(w[0], Warning::NoBar);
+        assert!(!w.contains(&Warning::TwistZeroUnverified { frame: 0 }));
         assert!(
             b.iter()
                 .all(|b| b.peak_torque.is_none() && b.peak_twist.is_some())

@@ -120,8 +120,8 @@ fn interpolated_mean(v: &[Option<f64>], a: f64, b: f64) -> Option<f64> {
 }
 
 /// Finds the slip of a blow: from the sample before the nut's onset `onset` to the first
-/// sample at which the nut has come to within `tol_deg` of its rest level `rest_deg` after
-/// the blow and stays there for two more samples (or the blow's last sample `last`).
+/// sample at which the nut has come to within `tol_deg` (or 3 % of the advance) of its rest
+/// level `rest_deg` after the blow and stays there for two more samples (or the blow's last sample `last`).
 pub(crate) fn find_slip(
     nut: &[Option<f64>],
     onset: usize,
@@ -130,6 +130,10 @@ pub(crate) fn find_slip(
     tol_deg: f64,
 ) -> Option<Slip> {
     let from = onset.checked_sub(1)?;
+    // Within 3 % of the advance counts as arrived: a compressed clip's nut can creep the
+    // last hundredths of a degree over many frames, and the sub-frame end
+    // ([`slip_bounds`]) places the stop from the samples before anyway.
+    let tol_deg = tol_deg.max(0.03 * (rest_deg - before_deg).abs());
     let near = |j: usize| nut.get(j).copied().flatten().map(|v| (v - rest_deg).abs() <= tol_deg);
     let to = (onset..=last)
         .find(|&j| (j..=(j + 2).min(last)).all(|k| near(k) != Some(false)) && near(j) == Some(true))?;

@@ -9,7 +9,8 @@
 //! (`--zero-frame`), a quiet stretch before the first blow, and only then the first analysed
 //! frame, with a warning that the zero is unverified.
 //!
-//! A quiet stretch is the samples before the first blow's onset (at least
+//! A quiet stretch is the samples before the first blow's onset, less the two just before it
+//! (at least
 //! [`QUIET_MIN_SAMPLES`]) in which neither end moves beyond its noise: a least-squares line
 //! through each end's angles changes by no more than 4 standard errors of that change over
 //! the stretch (σ·(q−1)·√(12/(q(q²−1))) for q samples of noise σ: the slope's standard error
@@ -22,7 +23,7 @@ use crate::segment::{NOISE_FLOOR_DEG, Segmentation};
 use crate::units::Angle;
 
 /// Fewest samples before the first blow that can show the bar at rest.
-pub const QUIET_MIN_SAMPLES: usize = 6;
+pub const QUIET_MIN_SAMPLES: usize = 4;
 
 /// Where the twist zero came from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -94,7 +95,13 @@ pub(crate) fn quiet_start(
     seg: &Segmentation,
 ) -> Option<TwistZero> {
     let n = drive.len().min(nut.len()).min(frames.len());
-    let end = seg.blows.first().map_or(n, |b| b.onset.min(n));
+    // The two samples just before the onset are left out: the impact falls between frames,
+    // and the frame before the onset may already show the blow beginning (blur, or a
+    // compressed clip's motion prediction).
+    let end = seg
+        .blows
+        .first()
+        .map_or(n, |b| b.onset.saturating_sub(2).min(n));
     if end < QUIET_MIN_SAMPLES {
         return None;
     }
@@ -157,7 +164,7 @@ mod tests {
             .map(|i| Some(if i % 2 == 0 { 0.0 } else { 0.01 }))
             .collect();
         let nut = vec![Some(0.0); n];
-        let z = quiet_start(&drive, &nut, &frames, &seg(12, 0.01)).unwrap();
+        let z = quiet_start(&drive, &nut, &frames, &seg(14, 0.01)).unwrap();
         assert_eq!(z.source, ZeroSource::QuietStart);
         assert_eq!(z.frame, Some(0));
         assert!((z.offset.deg() + 0.005).abs() < 1e-3, "{:?}", z.offset);
@@ -165,6 +172,6 @@ mod tests {
         let moving: Vec<Option<f64>> = (0..n).map(|i| Some(-0.05 * i as f64)).collect();
         assert!(quiet_start(&moving, &nut, &frames, &seg(12, 0.01)).is_none());
         // Too few samples before the first blow.
-        assert!(quiet_start(&drive, &nut, &frames, &seg(3, 0.01)).is_none());
+        assert!(quiet_start(&drive, &nut, &frames, &seg(5, 0.01)).is_none());
     }
 }

@@ -94,6 +94,15 @@ pub struct BlowJson {
     pub breakaway_torque_nm: Option<f64>,
     /// The nut advance reached the summary's `nut_stop_threshold_deg`.
     pub nut_advanced: bool,
+    /// 95 % interval of the peak twist, `[low, high]`, degrees (interface v2).
+    pub peak_twist_ci95_deg: Option<[f64; 2]>,
+    /// 95 % interval of the peak torque, `[low, high]`, N·m (interface v2).
+    pub peak_torque_ci95_nm: Option<[f64; 2]>,
+    /// Frames from the onset to the peak twist.
+    pub rise_frames: Option<usize>,
+    /// Largest fraction by which the sampled peak can read low (null when the rise is
+    /// sampled finely enough).
+    pub peak_under_read_ratio: Option<f64>,
 }
 
 /// `report.json`'s `summary`.
@@ -248,6 +257,16 @@ pub fn report(a: &Analysis) -> Report {
             breakaway_twist_deg: deg(b.breakaway_twist),
             breakaway_torque_nm: nm(b.breakaway_torque),
             nut_advanced: b.nut_advanced,
+            peak_twist_ci95_deg: b
+                .peak_twist_ci95
+                .map(|(l, h)| [l.deg(), h.deg()])
+                .filter(|v| v.iter().all(|x| x.is_finite())),
+            peak_torque_ci95_nm: b
+                .peak_torque_ci95
+                .map(|(l, h)| [l.nm(), h.nm()])
+                .filter(|v| v.iter().all(|x| x.is_finite())),
+            rise_frames: b.rise_frames,
+            peak_under_read_ratio: finite(b.peak_under_read),
         })
         .collect();
     let s = &a.summary;
@@ -438,6 +457,10 @@ mod tests {
             "blow_count",
             "nut_advancing_blow_count",
             "nut_stopped_after_blow",
+            "holding_after_blow",
+            "rise_frames",
+            "peak_under_read_ratio",
+            "holding_slip_count",
             "nut_onset_frame",
             "peak_torque_to_rating_ratio",
             "drive_confidence",
