@@ -516,7 +516,11 @@ mod tests {
         // Issue 17's check: a take that starts wound, with a still of the bar at rest,
         // gives the absolute twist within 0.2° RMS and every blow's torque within 3 %.
         let (sc, truth, frames) = wound_take();
-        assert!(truth.twist_offset_deg() > 3.0, "{}", truth.twist_offset_deg());
+        assert!(
+            truth.twist_offset_deg() > 3.0,
+            "{}",
+            truth.twist_offset_deg()
+        );
         let dir = tempfile::tempdir().unwrap();
         let still = dir.path().join("take.rest.png");
         crate::synth::write_rest_still(&sc, &still).unwrap();

@@ -388,6 +388,9 @@ pub fn blow_metrics_zeroed(
     (out, summary, warnings)
 }
 
+/// A peak twist's 95 % interval and its torque's.
+type PeakIntervals = (Option<(Angle, Angle)>, Option<(Torque, Torque)>);
+
 /// 95 % intervals of a peak twist and its torque: ±1.96σ from one sample's twist noise and
 /// the zero's uncertainty (and, for the torque, the stiffness's relative uncertainty), with
 /// the upper end raised by the under-read fraction of the peak (a sampled peak can only read
@@ -398,7 +401,7 @@ fn peak_intervals(
     zero_sigma_deg: f64,
     under_read: f64,
     stiffness: Option<(Stiffness, f64)>,
-) -> (Option<(Angle, Angle)>, Option<(Torque, Torque)>) {
+) -> PeakIntervals {
     let Some(p) = peak.map(Angle::deg).filter(|p| p.is_finite()) else {
         return (None, None);
     };

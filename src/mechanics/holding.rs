@@ -106,7 +106,10 @@ fn slip_bounds(nut: &[Option<f64>], s: &Slip) -> (f64, f64) {
 fn interpolated_mean(v: &[Option<f64>], a: f64, b: f64) -> Option<f64> {
     let val = |x: f64| -> Option<f64> {
         let j = (x.floor() as usize).min(v.len().checked_sub(2)?);
-        let (p, q) = (v.get(j).copied().flatten()?, v.get(j + 1).copied().flatten()?);
+        let (p, q) = (
+            v.get(j).copied().flatten()?,
+            v.get(j + 1).copied().flatten()?,
+        );
         Some(p + (q - p) * (x - j as f64))
     };
     let mut sum = 0.0;
@@ -134,9 +137,15 @@ pub(crate) fn find_slip(
     // last hundredths of a degree over many frames, and the sub-frame end
     // ([`slip_bounds`]) places the stop from the samples before anyway.
     let tol_deg = tol_deg.max(0.03 * (rest_deg - before_deg).abs());
-    let near = |j: usize| nut.get(j).copied().flatten().map(|v| (v - rest_deg).abs() <= tol_deg);
-    let to = (onset..=last)
-        .find(|&j| (j..=(j + 2).min(last)).all(|k| near(k) != Some(false)) && near(j) == Some(true))?;
+    let near = |j: usize| {
+        nut.get(j)
+            .copied()
+            .flatten()
+            .map(|v| (v - rest_deg).abs() <= tol_deg)
+    };
+    let to = (onset..=last).find(|&j| {
+        (j..=(j + 2).min(last)).all(|k| near(k) != Some(false)) && near(j) == Some(true)
+    })?;
     (to > from).then_some(Slip {
         from,
         to,
@@ -215,20 +224,31 @@ pub(crate) fn holding_torque(
         if sxx <= 0.0 {
             return None;
         }
-        let b = pts.iter().map(|p| w(p) * (p.0 - xm) * (p.1 - ym)).sum::<f64>() / sxx;
+        let b = pts
+            .iter()
+            .map(|p| w(p) * (p.0 - xm) * (p.1 - ym))
+            .sum::<f64>()
+            / sxx;
         let fit = |x: f64| ym + b * (x - xm);
         let lever = (1.0 / sw + (x - xm).powi(2) / sxx).sqrt();
         let dof = pts.len() - 2;
         // Scatter per unit weight; never below the tracking noise of one sample (σ·k).
         let resid_s = if dof > 0 {
-            (pts.iter().map(|p| w(p) * (p.1 - fit(p.0)).powi(2)).sum::<f64>() / dof as f64)
+            (pts.iter()
+                .map(|p| w(p) * (p.1 - fit(p.0)).powi(2))
+                .sum::<f64>()
+                / dof as f64)
                 .sqrt()
         } else {
             0.0
         };
         let unit_noise = noise(1);
         let s = resid_s.max(unit_noise);
-        let quantile_dof = if resid_s > unit_noise { dof } else { usize::MAX };
+        let quantile_dof = if resid_s > unit_noise {
+            dof
+        } else {
+            usize::MAX
+        };
         (fit(x), s * lever, quantile_dof, Some(b))
     } else {
         // One slip gives one point of the joint's line and not its slope: the nut's final

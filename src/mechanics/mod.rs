@@ -28,14 +28,13 @@ pub use blows::{
 pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
 };
-pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};
 pub use holding::{HoldingTorque, MAX_SLIPS};
 pub use sense::{
     BAR_LENGTH_MM, SECTION_ACROSS_MM, SECTION_LENGTH_MM, SET_MIN_DEG, STIFFNESS_NM_PER_DEG,
     bar_sense_warnings,
 };
+pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};
 pub use uncertainty::{
-    CALIBRATION_REL_SIGMA_DEFAULT, DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA,
-    stiffness_rel_sigma,
+    CALIBRATION_REL_SIGMA_DEFAULT, DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA, stiffness_rel_sigma,
 };
 pub use zero::{QUIET_MIN_SAMPLES, TwistZero, ZeroSource};

@@ -139,7 +139,10 @@ mod tests {
             .collect();
         assert!(w.iter().any(|s| s.contains("d_mm = 0.5")), "{w:?}");
         assert!(w.iter().any(|s| s.contains("stiffness")), "{w:?}");
-        assert!(w.iter().any(|s| s.contains("yield check was not made")), "{w:?}");
+        assert!(
+            w.iter().any(|s| s.contains("yield check was not made")),
+            "{w:?}"
+        );
         // The bench bar with a named yield strength passes.
         let mut ok = BarSpec::new(vec![
             SectionSpec::hex(25.0, 19.0),
@@ -147,7 +150,11 @@ mod tests {
             SectionSpec::hex(30.0, 19.0),
         ]);
         ok.yield_strength_mpa = Some(1200.0);
-        assert!(bar_sense_warnings(&ok).is_empty(), "{:?}", bar_sense_warnings(&ok));
+        assert!(
+            bar_sense_warnings(&ok).is_empty(),
+            "{:?}",
+            bar_sense_warnings(&ok)
+        );
     }
 
     #[test]

@@ -555,7 +555,10 @@ pub fn simulate(sc: &Scenario) -> Truth {
     let (model, end_s) = sc.model();
     // Model time of frame 0 (0 for a take filmed from rest; adding 0.0 changes no value).
     let t0 = sc.camera.start_s.unwrap_or(0.0);
-    assert!(t0.is_finite() && t0 >= 0.0 && t0 < end_s, "filming starts inside the take");
+    assert!(
+        t0.is_finite() && t0 >= 0.0 && t0 < end_s,
+        "filming starts inside the take"
+    );
     let end_s = end_s - t0;
     let frames = {
         // Frame instants strictly before the following blow.
