@@ -863,6 +863,19 @@ mod tests {
     }
 
     #[test]
+    fn a_rest_still_beside_a_clip_is_its_zero_and_not_a_clip() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path();
+        std::fs::write(p.join("run1.mp4"), b"x").unwrap();
+        std::fs::write(p.join("run1.rest.png"), b"x").unwrap();
+        std::fs::write(p.join("run2.mp4"), b"x").unwrap();
+        let clips = find_clips(p).unwrap();
+        assert_eq!(clips.len(), 2);
+        assert_eq!(rest_still_beside(&clips[0]), Some(p.join("run1.rest.png")));
+        assert_eq!(rest_still_beside(&clips[1]), None);
+    }
+
+    #[test]
     fn shared_stems_keep_their_extension() {
         let d = tempfile::tempdir().unwrap();
         std::fs::write(d.path().join("a.mp4"), b"x").unwrap();
