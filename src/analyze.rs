@@ -5,12 +5,14 @@
 //! thread waits for both. A video decoder whose picture rows are packed hands over
 //! references to its own pictures (no copy); every other source reads into the slots' buffers.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 
-use crate::decode::{self, ClipInfo, FrameSource, Slot};
+use crate::decode::{self, ClipInfo, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot};
 use crate::error::{Error, Result};
-use crate::mechanics::{self, BarReport, BlowMetrics, SpringbackVerdict, Summary};
+use crate::mechanics::{
+    self, BarReport, BlowMetrics, SpringbackVerdict, Summary, TwistZero, ZeroSource,
+};
 use crate::rig::Rig;
 use crate::segment::{self, Segmentation};
 use crate::track::{Trace, Tracker};
@@ -29,6 +31,10 @@ pub struct AnalyzeOptions {
     pub start_s: Option<f64>,
     /// End of the analysed window, s (capture time).
     pub end_s: Option<f64>,
+    /// A still image of the unloaded bar from the same camera position: the twist zero.
+    pub zero_still: Option<PathBuf>,
+    /// A clip frame (0-based, counted in the whole clip) that shows the bar unloaded.
+    pub zero_frame: Option<u64>,
 }
 
 /// Where the capture rate came from.
@@ -137,17 +143,26 @@ pub fn analyze_source(
     crate::sanity::check_fps(time_base.fps_hz(), origin)?;
     warnings.extend(fps_warning);
     let (first, last) = window(opts, time_base, clip.frames, &mut warnings)?;
+    let rest_still = rest_still(opts, &clip)?;
     let mut tracker = Tracker::new(rig, rig_path, clip.width, clip.height)?;
 
     let total = last.min(clip.frames).saturating_sub(first);
-    track_pipelined(source, &mut tracker, (first, last), total, progress)?;
+    let kept = track_pipelined(
+        source,
+        &mut tracker,
+        (first, last),
+        (opts.zero_still.is_some(), opts.zero_frame),
+        total,
+        progress,
+    )?;
 
     let (trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
     let segmentation = segment::find_blows(&trace);
     warnings.extend(segmentation.warnings.iter().cloned());
+    let zero = measured_zero(rig, rig_path, opts, &clip, rest_still, kept, &segmentation)?;
     let (mut blows, mut summary, mech_warnings) =
-        mechanics::blow_metrics(&trace, &segmentation, rig.bar.as_ref());
+        mechanics::blow_metrics_zeroed(&trace, &segmentation, rig.bar.as_ref(), zero);
     warnings.extend(mech_warnings);
     warnings.extend(crate::sanity::check_results(
         rig,
@@ -162,6 +177,9 @@ pub fn analyze_source(
         let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
         b.springback_verdict_for_blows(&onsets, &residual, &peak)
     });
+    if let Some(spec) = rig.bar.as_ref() {
+        warnings.extend(mechanics::bar_sense_warnings(spec));
+    }
     if let Some(b) = &bar {
         warnings.extend(b.warnings());
         if let Some(w) = summary
@@ -186,6 +204,103 @@ pub fn analyze_source(
     })
 }
 
+/// The rest still named by `--zero-still`, read before any frame is tracked so that a bad
+/// file stops the run at once.
+fn rest_still(opts: &AnalyzeOptions, clip: &ClipInfo) -> Result<Option<Frame>> {
+    if opts.zero_still.is_some() && opts.zero_frame.is_some() {
+        return Err(Error::Option {
+            flag: "--zero-frame".into(),
+            reason: "give either --zero-still or --zero-frame, not both".into(),
+        });
+    }
+    if let Some(n) = opts.zero_frame
+        && clip.frames > 0
+        && n >= clip.frames
+    {
+        return Err(Error::Option {
+            flag: "--zero-frame".into(),
+            reason: format!(
+                "frame {n} is past the clip's last frame ({} frames; frames count from 0)",
+                clip.frames
+            ),
+        });
+    }
+    opts.zero_still
+        .as_deref()
+        .map(decode::read_still)
+        .transpose()
+}
+
+/// The twist zero from a rest still or a rest frame (None when neither was given: the
+/// mechanics then look for a quiet start). Its uncertainty is one frame's twist noise at each
+/// end of the pair: σ_twist·√2.
+fn measured_zero(
+    rig: &Rig,
+    rig_path: &Path,
+    opts: &AnalyzeOptions,
+    clip: &ClipInfo,
+    rest_still: Option<Frame>,
+    kept: Kept,
+    seg: &Segmentation,
+) -> Result<Option<TwistZero>> {
+    let (source, rest, rest_path) = match (rest_still, opts.zero_frame) {
+        (Some(f), _) => (
+            ZeroSource::Still,
+            f,
+            opts.zero_still.clone().unwrap_or_default(),
+        ),
+        (None, Some(n)) => match kept.rest {
+            Some(f) => (ZeroSource::Frame, f, clip.path.clone()),
+            None => {
+                return Err(Error::Option {
+                    flag: "--zero-frame".into(),
+                    reason: format!(
+                        "the clip ended before frame {n}; give a frame inside the clip (frames count from 0)"
+                    ),
+                });
+            }
+        },
+        (None, None) => return Ok(None),
+    };
+    let Some(first) = kept.first else {
+        return Ok(None);
+    };
+    let offset = crate::track::rest_offset(rig, rig_path, &rest, &rest_path, &first)?;
+    let sigma = seg
+        .drive_noise
+        .map_or(0.0, |a| a.deg())
+        .hypot(seg.nut_noise.map_or(0.0, |a| a.deg()))
+        * 2f64.sqrt();
+    Ok(Some(TwistZero {
+        source,
+        frame: (source == ZeroSource::Frame).then_some(rest.index),
+        offset,
+        offset_sigma: crate::units::Angle::from_deg(sigma),
+    }))
+}
+
+/// Frames kept from the decoder for the twist zero: the first analysed frame and the rest
+/// frame asked for with `--zero-frame`.
+#[derive(Default)]
+struct Kept {
+    first: Option<Frame>,
+    rest: Option<Frame>,
+}
+
+/// An owned copy of a borrowed frame.
+fn owned(f: FrameRef<'_>) -> Frame {
+    Frame {
+        index: f.index,
+        width: f.width,
+        height: f.height,
+        bit_depth: f.bit_depth,
+        luma: match f.luma {
+            LumaRef::U8(d) => Luma::U8(d.to_vec()),
+            LumaRef::U16(d) => Luma::U16(d.to_vec()),
+        },
+    }
+}
+
 /// Decodes on one thread and tracks on another, through a short queue of recycled slots;
 /// the calling thread waits for both. For a video this keeps FFmpeg's decoding threads fed
 /// while the tracker works (tracking between decoder calls on one thread held back the next
@@ -197,37 +312,47 @@ fn track_pipelined(
     mut source: Box<dyn FrameSource>,
     tracker: &mut Tracker,
     (first, last): (u64, u64),
+    (keep_first, zero_frame): (bool, Option<u64>),
     total: u64,
     progress: &(dyn Fn(u64, u64) + Sync),
-) -> Result<()> {
+) -> Result<Kept> {
     let path = source.info().path.clone();
-    std::thread::scope(|scope| -> Result<()> {
+    // The decoder reads on past the window when the rest frame lies after it.
+    let stop = last.max(zero_frame.map_or(0, |n| n.saturating_add(1)));
+    std::thread::scope(|scope| -> Result<Kept> {
         let (full_tx, full_rx) = mpsc::sync_channel::<Slot>(QUEUE_DEPTH);
         let (empty_tx, empty_rx) = mpsc::sync_channel::<Slot>(QUEUE_DEPTH + 1);
         for _ in 0..QUEUE_DEPTH + 1 {
             let _ = empty_tx.send(Slot::new());
         }
-        let decoder = scope.spawn(move || -> Result<()> {
+        let decoder = scope.spawn(move || -> Result<Kept> {
+            let mut kept = Kept::default();
             let mut spare: Option<Slot> = None;
             loop {
                 let mut slot = match spare.take() {
                     Some(s) => s,
                     None => match empty_rx.recv() {
                         Ok(s) => s,
-                        Err(_) => return Ok(()),
+                        Err(_) => return Ok(kept),
                     },
                 };
                 if !source.read_slot(&mut slot)? {
-                    return Ok(());
+                    return Ok(kept);
                 }
                 let index = slot.view().index;
-                if index >= last {
-                    return Ok(());
+                if index >= stop {
+                    return Ok(kept);
                 }
-                if index < first {
+                if zero_frame == Some(index) {
+                    kept.rest = Some(owned(slot.view()));
+                }
+                if index == first && (keep_first || zero_frame.is_some()) {
+                    kept.first = Some(owned(slot.view()));
+                }
+                if index < first || index >= last {
                     spare = Some(slot);
                 } else if full_tx.send(slot).is_err() {
-                    return Ok(());
+                    return Ok(kept);
                 }
             }
         });
@@ -361,6 +486,117 @@ mod tests {
         let opts = AnalyzeOptions::default();
         analyze_source(src, &sc.rig(), Path::new("rig.json"), &opts, &|_, _| {}).unwrap();
         assert_eq!(own(), before);
+    }
+
+    /// A fast-tool take filmed from 8 ms after its fourth blow (the bar wound up and
+    /// springing back), as rendered frames with the renderer's truth (synthetic check).
+    fn wound_take() -> (Scenario, crate::synth::Truth, Vec<Frame>) {
+        let mut sc = Scenario::preset("fast-tool").unwrap();
+        sc.camera.start_s = Some(sc.tool.first_blow_s + 3.0 * 60.0 / 3300.0 + 0.008);
+        let truth = simulate(&sc);
+        let frames = crate::synth::render_clip(&sc, &truth);
+        (sc, truth, frames)
+    }
+
+    /// RMS of absolute twist against the truth, degrees, and the worst relative peak-torque
+    /// error over blows matched by onset frame (±1).
+    fn against_truth(a: &Analysis, truth: &crate::synth::Truth) -> (f64, f64) {
+        let off = a.summary.twist_zero.offset.deg();
+        let first = a.trace.frames[0] as usize;
+        let mut sq = 0.0;
+        let mut n = 0.0;
+        for (i, f) in a.trace.frames.iter().enumerate() {
+            if let Some(t) = a.trace.twist(i) {
+                sq += (t.deg() + off - truth.trace.twist_deg[*f as usize]).powi(2);
+                n += 1.0;
+            }
+        }
+        assert!(first < truth.frames as usize);
+        let mut worst: f64 = 0.0;
+        for b in &a.blows {
+            let Some(t) = truth.blows.iter().find(|t| t.frame.abs_diff(b.frame) <= 1) else {
+                continue;
+            };
+            let q = b.peak_torque.unwrap().nm();
+            worst = worst.max((q / t.peak_torque_nm - 1.0).abs());
+        }
+        ((sq / n).sqrt(), worst)
+    }
+
+    #[test]
+    fn a_wound_take_with_a_rest_still_reads_the_absolute_twist() {
+        // Issue 17's check: a take that starts wound, with a still of the bar at rest,
+        // gives the absolute twist within 0.2° RMS and every blow's torque within 3 %.
+        let (sc, truth, frames) = wound_take();
+        assert!(
+            truth.twist_offset_deg() > 3.0,
+            "{}",
+            truth.twist_offset_deg()
+        );
+        let dir = tempfile::tempdir().unwrap();
+        let still = dir.path().join("take.rest.png");
+        crate::synth::write_rest_still(&sc, &still).unwrap();
+        let opts = AnalyzeOptions {
+            zero_still: Some(still),
+            ..AnalyzeOptions::default()
+        };
+        let src = Box::new(MemorySource::new(frames.clone(), None));
+        let a = analyze_source(src, &sc.rig(), Path::new("rig.json"), &opts, &|_, _| {}).unwrap();
+        assert_eq!(a.summary.twist_zero.source, ZeroSource::Still);
+        let (rms, worst) = against_truth(&a, &truth);
+        assert!(rms < 0.2, "twist RMS {rms}°");
+        assert!(a.blows.len() >= 5);
+        assert!(worst < 0.03, "worst torque error {worst}");
+        // Without the still, the zero is unverified and a warning says so.
+        let src = Box::new(MemorySource::new(frames, None));
+        let opts = AnalyzeOptions::default();
+        let b = analyze_source(src, &sc.rig(), Path::new("rig.json"), &opts, &|_, _| {}).unwrap();
+        assert_eq!(
+            b.summary.twist_zero.source,
+            ZeroSource::FirstFrameUnverified
+        );
+        assert!(
+            b.warnings
+                .iter()
+                .any(|w| matches!(w, Warning::TwistZeroUnverified { .. }))
+        );
+    }
+
+    fn b_frames_few(sc: &Scenario, truth: &crate::synth::Truth) -> Vec<Frame> {
+        (0..3).map(|i| render_frame(sc, truth, i)).collect()
+    }
+
+    #[test]
+    fn a_late_window_is_zeroed_at_a_rest_frame_before_it() {
+        // `--start-s` after the hammering began, `--zero-frame 0` (the bench at rest):
+        // torques match the truth instead of reading low (synthetic check).
+        let sc = Scenario::preset("fast-tool").unwrap();
+        let truth = simulate(&sc);
+        let frames = crate::synth::render_clip(&sc, &truth);
+        let opts = AnalyzeOptions {
+            start_s: Some(0.05),
+            zero_frame: Some(0),
+            ..AnalyzeOptions::default()
+        };
+        let src = Box::new(MemorySource::new(frames.clone(), None));
+        let a = analyze_source(src, &sc.rig(), Path::new("rig.json"), &opts, &|_, _| {}).unwrap();
+        assert_eq!(a.summary.twist_zero.source, ZeroSource::Frame);
+        assert_eq!(a.summary.twist_zero.frame, Some(0));
+        let (rms, worst) = against_truth(&a, &truth);
+        assert!(rms < 0.2 && worst < 0.03, "{rms}° {worst}");
+        // The whole clip starts still: the quiet start is the zero, offset near 0.
+        let src = Box::new(MemorySource::new(frames, None));
+        let opts = AnalyzeOptions::default();
+        let b = analyze_source(src, &sc.rig(), Path::new("rig.json"), &opts, &|_, _| {}).unwrap();
+        assert_eq!(b.summary.twist_zero.source, ZeroSource::QuietStart);
+        assert!(b.summary.twist_zero.offset.deg().abs() < 0.05);
+        // A rest frame past the clip is refused.
+        let src = Box::new(MemorySource::new(b_frames_few(&sc, &truth), None));
+        let opts = AnalyzeOptions {
+            zero_frame: Some(10_000),
+            ..AnalyzeOptions::default()
+        };
+        assert!(analyze_source(src, &sc.rig(), Path::new("rig.json"), &opts, &|_, _| {}).is_err());
     }
 
     #[test]

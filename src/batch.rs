@@ -156,7 +156,16 @@ pub struct SummaryRow {
     pub nut_total_deg: Option<f64>,
     /// Stiffness used for torque, N·m/deg.
     pub bar_stiffness_nm_per_deg: Option<f64>,
-    /// Highest peak torque over all blows, N·m.
+    /// Torque the joint holds after the last blow that turned the nut, N·m.
+    pub holding_torque_nm: Option<f64>,
+    /// Low end of its 95 % interval, N·m.
+    pub holding_torque_ci95_low_nm: Option<f64>,
+    /// High end of its 95 % interval, N·m.
+    pub holding_torque_ci95_high_nm: Option<f64>,
+    /// Where the twist zero came from (`still`, `frame`, `quiet_start`,
+    /// `first_frame_unverified`).
+    pub twist_zero_source: Option<String>,
+    /// Highest peak torque over all blows (the bar's dynamic peak), N·m.
     pub peak_torque_nm: Option<f64>,
     /// Peak torque on the last blow that still turned the nut, N·m.
     pub last_advancing_torque_nm: Option<f64>,
@@ -587,6 +596,11 @@ fn run_clip(
     let work = || -> Result<ClipOutcome> {
         let (rig, rig_path) = clip_rig(clip, batch_rig, batch_rig_path)?;
         let source = decode::open(&clip.path)?;
+        let mut opts = opts.clone();
+        if opts.zero_still.is_none() && opts.zero_frame.is_none() {
+            opts.zero_still = rest_still_beside(clip);
+        }
+        let opts = &opts;
         let frames_cb = |done: u64, total: u64| {
             progress(BatchEvent::Frames {
                 clip: i,
@@ -628,6 +642,26 @@ fn run_clip(
     }
 }
 
+/// Extensions of a clip's rest still, `<clip>.rest.<ext>` beside it (interface v2).
+pub const REST_STILL_EXTENSIONS: [&str; 5] = ["png", "tif", "tiff", "jpg", "jpeg"];
+
+/// The rest still beside a clip: `<stem>.rest.png` (or .tif, .tiff, .jpg, .jpeg), or the
+/// same after the clip's full file name; the first found.
+fn rest_still_beside(clip: &Clip) -> Option<PathBuf> {
+    let dir = clip.path.parent()?;
+    let full = clip.path.file_name()?.to_string_lossy().into_owned();
+    let stem = clip
+        .path
+        .file_stem()
+        .map_or(full.clone(), |s| s.to_string_lossy().into_owned());
+    [stem, full].iter().find_map(|base| {
+        REST_STILL_EXTENSIONS
+            .iter()
+            .map(|ext| dir.join(format!("{base}.rest.{ext}")))
+            .find(|p| p.is_file())
+    })
+}
+
 /// The summary row of an analysed clip.
 fn ok_row(clip: &Clip, rig: &Rig, rig_path: &Path, analysis: &crate::Analysis) -> SummaryRow {
     let s = &analysis.summary;
@@ -644,6 +678,10 @@ fn ok_row(clip: &Clip, rig: &Rig, rig_path: &Path, analysis: &crate::Analysis) -
         drive_total_deg: s.drive_total.map(|a| a.deg()),
         nut_total_deg: s.nut_total.map(|a| a.deg()),
         bar_stiffness_nm_per_deg: s.stiffness.map(|k| k.nm_per_deg()),
+        holding_torque_nm: s.holding.map(|h| h.torque.nm()),
+        holding_torque_ci95_low_nm: s.holding.map(|h| h.ci95.0.nm()),
+        holding_torque_ci95_high_nm: s.holding.map(|h| h.ci95.1.nm()),
+        twist_zero_source: Some(s.twist_zero.source.as_str().to_string()),
         peak_torque_nm: s.peak_torque.map(|t| t.nm()),
         last_advancing_torque_nm: analysis
             .blows
@@ -705,6 +743,10 @@ fn failed_row(clip: &Clip, rig: &str, error: String) -> SummaryRow {
         drive_total_deg: None,
         nut_total_deg: None,
         bar_stiffness_nm_per_deg: None,
+        holding_torque_nm: None,
+        holding_torque_ci95_low_nm: None,
+        holding_torque_ci95_high_nm: None,
+        twist_zero_source: None,
         peak_torque_nm: None,
         last_advancing_torque_nm: None,
         residual_twist_deg: None,
@@ -813,17 +855,26 @@ pub fn summary_table(report: &BatchReport) -> String {
     let mut s = String::new();
     if !ok.is_empty() {
         s.push_str(&format!(
-            "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
-            "clip", "status", "blows", "rate /min", "nut total°", "peak N·m", "last N·m", "rating",
+            "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
+            "clip",
+            "status",
+            "blows",
+            "rate /min",
+            "nut total°",
+            "hold N·m",
+            "peak N·m",
+            "last N·m",
+            "rating",
         ));
         for r in &ok {
             s.push_str(&format!(
-                "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
+                "{:<width$}  {:>6}  {:>6}  {:>10}  {:>10}  {:>10}  {:>10}  {:>10}  {:>9}\n",
                 r.clip,
                 "ok",
                 r.blow_count.map_or("-".into(), |n| n.to_string()),
                 fmt_opt(r.blow_rate_per_min, 0),
                 fmt_opt(r.nut_total_deg, 1),
+                fmt_opt(r.holding_torque_nm, 1),
                 fmt_opt(r.peak_torque_nm, 1),
                 fmt_opt(r.last_advancing_torque_nm, 1),
                 fmt_opt(r.rating_nm, 0),
@@ -881,6 +932,19 @@ mod tests {
         assert_eq!(clips[2].form, ClipForm::Stills);
         assert_eq!(clips[0].sidecars, vec![p.join("run2.rig.json")]);
         assert!(clips[1].sidecars.is_empty());
+    }
+
+    #[test]
+    fn a_rest_still_beside_a_clip_is_its_zero_and_not_a_clip() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path();
+        std::fs::write(p.join("run1.mp4"), b"x").unwrap();
+        std::fs::write(p.join("run1.rest.png"), b"x").unwrap();
+        std::fs::write(p.join("run2.mp4"), b"x").unwrap();
+        let clips = find_clips(p).unwrap();
+        assert_eq!(clips.len(), 2);
+        assert_eq!(rest_still_beside(&clips[0]), Some(p.join("run1.rest.png")));
+        assert_eq!(rest_still_beside(&clips[1]), None);
     }
 
     #[test]

@@ -59,6 +59,12 @@ pub enum Warning {
         /// What was seen and what to check.
         reason: String,
     },
+    /// No rest still, rest frame or quiet stretch before the first blow: twist is zeroed at
+    /// the first analysed frame, which may already hold wind-up.
+    TwistZeroUnverified {
+        /// The first analysed frame (clip frame index).
+        frame: u64,
+    },
     /// Any other data-quality note with its own explanation.
     Note(String),
 }
@@ -108,6 +114,13 @@ impl fmt::Display for Warning {
                 100.0 * stress_mpa / shear_yield_mpa
             ),
             Warning::LocateUnsure { item, reason } => write!(f, "locate, {item}: {reason}"),
+            Warning::TwistZeroUnverified { frame } => write!(
+                f,
+                "twist zero unverified: the clip shows no still stretch before the first blow, so \
+                 twist is measured from frame {frame}, which may already hold wind-up (every \
+                 torque would then read low); give a still of the unloaded bar with --zero-still \
+                 or a frame that shows it with --zero-frame"
+            ),
             Warning::Note(s) => f.write_str(s),
         }
     }

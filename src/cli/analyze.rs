@@ -34,6 +34,14 @@ pub struct AnalyzeArgs {
     /// DIR/overlays/ to check the tracking by eye.
     #[arg(long)]
     overlay: bool,
+    /// A still image of the marks with the bar unloaded, from the same camera position: the
+    /// twist zero (without it, a still stretch before the first blow, else the first frame).
+    #[arg(long, value_name = "PATH", conflicts_with = "zero_frame")]
+    zero_still: Option<PathBuf>,
+    /// A frame of the clip (0-based, counted in the whole clip) that shows the bar unloaded:
+    /// the twist zero.
+    #[arg(long, value_name = "N")]
+    zero_frame: Option<u64>,
     /// With --overlay, draw only every Nth blow's peak-twist frame.
     #[arg(
         long,
@@ -58,6 +66,8 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
             .as_deref()
             .map(|t| super::parse_number("--end-s", t))
             .transpose()?,
+        zero_still: a.zero_still.clone(),
+        zero_frame: a.zero_frame,
     };
     let rig = twistmark::Rig::from_path(&a.rig)?;
     let overlay_every = super::parse_number("--overlay-every", &a.overlay_every)?;

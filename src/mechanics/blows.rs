@@ -33,6 +33,10 @@
 //!
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
+use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
+use crate::mechanics::sense::set_at_rest_warning;
+use crate::mechanics::uncertainty::stiffness_rel_sigma;
+use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, rest_window};
 use crate::stats::{level_at, median, rest_level};
@@ -74,6 +78,29 @@ pub struct BlowMetrics {
     pub breakaway_torque: Option<Torque>,
     /// The nut's advance in this blow reached the summary's stop threshold.
     pub nut_advanced: bool,
+    /// 95 % interval of the peak twist (tracking noise, the twist zero, and the frame
+    /// rate's under-read when the rise is under-sampled).
+    pub peak_twist_ci95: Option<(Angle, Angle)>,
+    /// 95 % interval of the peak torque (as the twist's, plus the stiffness's uncertainty).
+    pub peak_torque_ci95: Option<(Torque, Torque)>,
+    /// Frames from the onset to the peak twist (the blow's rise as sampled).
+    pub rise_frames: Option<usize>,
+    /// Largest fraction by which the sampled peak can read low, 1 − cos(π/(4·rise)), when
+    /// the rise spans fewer than [`UNDERSAMPLED_RISE_FRAMES`] frames (else None).
+    pub peak_under_read: Option<f64>,
+}
+
+/// A blow whose twist rises to its peak in fewer frames than this is under-sampled: the top
+/// is too narrow for a parabola fit and a sampled peak can read low.
+pub const UNDERSAMPLED_RISE_FRAMES: usize = 4;
+
+/// Largest fraction by which the highest of frames spaced Δt under-reads a peak of the form
+/// P·cos(ω(t − t_p)) whose rise from zero takes a quarter period T_r = `rise_frames`·Δt:
+/// the nearest frame lies at most Δt/2 from the top, so the sampled value is at least
+/// P·cos(ω·Δt/2) = P·cos(π/(4·rise_frames)) (free vibration after an impulse,
+/// θ = θ_p·sin(ω_n·t); Rao, *Mechanical Vibrations*, §2.2).
+pub fn under_read_bound(rise_frames: usize) -> f64 {
+    1.0 - (std::f64::consts::PI / (4.0 * rise_frames.max(1) as f64)).cos()
 }
 
 /// Clip-level results.
@@ -113,15 +140,33 @@ pub struct Summary {
     /// Twist at the end of the clip (the last blow's residual twist; without blows, the
     /// twist at the last sample).
     pub residual_twist_end: Option<Angle>,
+    /// The twist zero every twist above is measured from.
+    pub twist_zero: TwistZero,
+    /// The torque the joint holds after the last blow that turned the nut (None without a
+    /// bar or a measured slip).
+    pub holding: Option<HoldingTorque>,
 }
 
-/// Computes every blow's metrics and the summary.
+/// Computes every blow's metrics and the summary, with the twist zero found from the trace
+/// itself (a quiet stretch before the first blow, else the first frame with a warning).
 ///
 /// Never panics; a trace with no blows gives an empty list and a summary of totals.
 pub fn blow_metrics(
     trace: &Trace,
     seg: &Segmentation,
     bar: Option<&BarSpec>,
+) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
+    blow_metrics_zeroed(trace, seg, bar, None)
+}
+
+/// As [`blow_metrics`], with a twist zero measured elsewhere (a rest still or rest frame);
+/// `None` finds it from the trace. Every twist and torque is the absolute wind-up
+/// `drive − nut + zero.offset`.
+pub fn blow_metrics_zeroed(
+    trace: &Trace,
+    seg: &Segmentation,
+    bar: Option<&BarSpec>,
+    zero: Option<TwistZero>,
 ) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
     let mut warnings = Vec::new();
     if bar.is_none() {
@@ -130,10 +175,23 @@ pub fn blow_metrics(
     let n = trace.len().min(trace.drive.len()).min(trace.nut.len());
     let drive = degrees(&trace.drive[..n]);
     let nut = degrees(&trace.nut[..n]);
+    let zero = zero
+        .or_else(|| quiet_start(&drive, &nut, &trace.frames, seg))
+        .unwrap_or_else(|| TwistZero {
+            source: ZeroSource::FirstFrameUnverified,
+            frame: trace.frames.first().copied(),
+            ..TwistZero::default()
+        });
+    if zero.source == ZeroSource::FirstFrameUnverified && n > 0 {
+        warnings.push(Warning::TwistZeroUnverified {
+            frame: trace.frames.first().copied().unwrap_or(0),
+        });
+    }
+    let offset_deg = zero.offset.deg();
     let twist: Vec<Option<f64>> = drive
         .iter()
         .zip(&nut)
-        .map(|(d, u)| Some((*d)? - (*u)?))
+        .map(|(d, u)| Some((*d)? - (*u)? + offset_deg))
         .collect();
     let blows: Vec<_> = seg
         .blows
@@ -168,7 +226,10 @@ pub fn blow_metrics(
             .map(|(mean, _)| mean)
             .or_else(|| level(&nut, k))
     };
+    let k_rel_sigma = bar.map(|b| stiffness_rel_sigma(b).0);
     let mut out = Vec::with_capacity(blows.len());
+    let mut slips: Vec<(usize, Slip)> = Vec::new();
+    let slip_tol_deg = (3.0 * nut_sigma_deg).max(NUT_STOP_MIN_DEG / 4.0);
     for (k, b) in blows.iter().enumerate() {
         let before = b.onset.saturating_sub(1);
         let last = b.end - 1;
@@ -183,10 +244,32 @@ pub fn blow_metrics(
             .map(Angle::from_deg);
         let nut_onset = b.nut_onset.filter(|&i| i >= b.onset && i < b.end);
         let breakaway_twist = nut_onset.and_then(|i| twist_smooth[i]).map(Angle::from_deg);
-        let nut_advance = nut_rest(last, b.onset)
+        let nut_after = nut_rest(last, b.onset);
+        let nut_advance = nut_after
             .zip(nut_before)
             .map(|(a, z)| Angle::from_deg(a - z));
+        let advanced = nut_advance.is_some_and(|a| a.deg() >= threshold_deg);
+        if advanced
+            && let (Some(i), Some(rest), Some(before)) = (nut_onset, nut_after, nut_before)
+            && let Some(slip) = find_slip(&nut, i, last, (before, rest), slip_tol_deg)
+        {
+            slips.push((k + 1, slip));
+        }
         let frame = trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64);
+        let rise_frames = (b.onset..b.end)
+            .filter_map(|i| Some((i, twist_smooth[i]?)))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(i, _)| i - b.onset + 1);
+        let peak_under_read = rise_frames
+            .filter(|&r| r < UNDERSAMPLED_RISE_FRAMES)
+            .map(under_read_bound);
+        let (peak_twist_ci95, peak_torque_ci95) = peak_intervals(
+            peak_twist,
+            twist_sigma_deg,
+            zero.offset_sigma.deg(),
+            peak_under_read.unwrap_or(0.0),
+            stiffness.zip(k_rel_sigma),
+        );
         out.push(BlowMetrics {
             index: k + 1,
             frame,
@@ -203,7 +286,11 @@ pub fn blow_metrics(
             nut_onset_frame: nut_onset.and_then(|i| trace.frames.get(i).copied()),
             breakaway_twist,
             breakaway_torque: torque(breakaway_twist),
-            nut_advanced: nut_advance.is_some_and(|a| a.deg() >= threshold_deg),
+            nut_advanced: advanced,
+            peak_twist_ci95,
+            peak_torque_ci95,
+            rise_frames,
+            peak_under_read,
         });
     }
 
@@ -222,7 +309,50 @@ pub fn blow_metrics(
     };
     let peak_torque = max_torque(&mut out.iter());
     let rating = bar.and_then(|b| b.rating_nm).map(Torque::from_nm);
+    let worst_rise = out.iter().filter_map(|b| b.rise_frames).min();
+    if let Some(r) = worst_rise.filter(|&r| r < UNDERSAMPLED_RISE_FRAMES) {
+        warnings.push(Warning::Note(format!(
+            "at {fps:.0} fps a blow's twist rises to its peak in only {r} frame(s): its sampled peak can read up to {:.1} % low (the intervals' upper ends include this); film at {:.0} fps or more to resolve the rise",
+            100.0 * under_read_bound(r),
+            fps * UNDERSAMPLED_RISE_FRAMES as f64 / r as f64
+        )));
+    }
+    if zero.source != ZeroSource::FirstFrameUnverified {
+        let from = blows.last().map_or(0, |b| b.onset);
+        warnings.extend(set_at_rest_warning(&twist, from, twist_sigma_deg));
+    }
     let last_advancing = out.iter().rposition(|b| b.nut_advanced);
+    let holding = match (bar, stiffness, last_advancing, n.checked_sub(1)) {
+        (Some(bar), Some(k), Some(la), Some(end)) => {
+            let later = &out[la + 1..];
+            let still: Vec<Torque> = later
+                .iter()
+                .filter(|b| !b.nut_advanced)
+                .filter_map(|b| b.peak_torque)
+                .collect();
+            let lo = blows.last().map_or(0, |b| b.onset);
+            nut_rest(end, lo).and_then(|nut_final_deg| {
+                holding_torque(
+                    &twist,
+                    &nut,
+                    &HoldingInputs {
+                        slips: &slips,
+                        nut_final_deg,
+                        stiffness: k,
+                        twist_sigma_deg,
+                        zero_sigma_deg: zero.offset_sigma.deg(),
+                        stiffness_rel_sigma: stiffness_rel_sigma(bar).0,
+                        later_still_peaks: &still,
+                        later_breakaway: later
+                            .iter()
+                            .filter_map(|b| b.breakaway_torque)
+                            .min_by(|a, b| a.nm().total_cmp(&b.nm())),
+                    },
+                )
+            })
+        }
+        _ => None,
+    };
     let summary = Summary {
         blow_count: out.len(),
         blow_rate_per_min: seg.rate_per_min,
@@ -253,8 +383,45 @@ pub fn blow_metrics(
             .checked_sub(1)
             .and_then(|k| level(&twist, k))
             .map(Angle::from_deg),
+        twist_zero: zero,
+        holding,
     };
     (out, summary, warnings)
+}
+
+/// A peak twist's 95 % interval and its torque's.
+type PeakIntervals = (Option<(Angle, Angle)>, Option<(Torque, Torque)>);
+
+/// 95 % intervals of a peak twist and its torque: ±1.96σ from one sample's twist noise and
+/// the zero's uncertainty (and, for the torque, the stiffness's relative uncertainty), with
+/// the upper end raised by the under-read fraction of the peak (a sampled peak can only read
+/// low). Independent terms add in quadrature (JCGM 100:2008, §5.1.2).
+fn peak_intervals(
+    peak: Option<Angle>,
+    twist_sigma_deg: f64,
+    zero_sigma_deg: f64,
+    under_read: f64,
+    stiffness: Option<(Stiffness, f64)>,
+) -> PeakIntervals {
+    let Some(p) = peak.map(Angle::deg).filter(|p| p.is_finite()) else {
+        return (None, None);
+    };
+    let s_tw = twist_sigma_deg.hypot(zero_sigma_deg);
+    let up = under_read.max(0.0) * p.abs();
+    let tw = (
+        Angle::from_deg(p - 1.96 * s_tw),
+        Angle::from_deg(p + 1.96 * s_tw + up),
+    );
+    let tq = stiffness.map(|(k, rel)| {
+        let kd = k.nm_per_deg();
+        let t = kd * p;
+        let s = (kd * s_tw).hypot(t.abs() * rel);
+        (
+            Torque::from_nm(t - 1.96 * s),
+            Torque::from_nm(t + 1.96 * s + kd * up),
+        )
+    });
+    (Some(tw), tq)
 }
 
 /// Quadratic Savitzky–Golay smoothing with half-width `h` (window 2h+1), applied where the
@@ -463,7 +630,17 @@ mod tests {
             ..Segmentation::default()
         };
         let (b, s, w) = blow_metrics(&trace, &seg, Some(&bar()));
-        assert!(w.is_empty());
+        // One sample before the first blow cannot show the bar at rest: the zero is the
+        // first frame, unverified, and a warning says so.
+        assert_eq!(w[0], Warning::TwistZeroUnverified { frame: 100 });
+        // A one-frame rise is under-sampled, and the warning says by how much at most.
+        assert!(w[1].to_string().contains("only 1 frame(s)"), "{w:?}");
+        assert_eq!(w.len(), 2);
+        assert!(b.iter().all(|b| b.peak_under_read.is_some()));
+        // 1 − cos(π/8) = 0.0761 for a two-frame rise; 1 − cos(π/16) = 0.0192 for four.
+        assert!((under_read_bound(2) - 0.076_120).abs() < 1e-6);
+        assert!((under_read_bound(4) - 0.019_215).abs() < 1e-6);
+        assert_eq!(s.twist_zero.source, ZeroSource::FirstFrameUnverified);
         // Blow 1: just before = sample 0, just before next = sample 5 (window m = 1: the
         // blows are 5 samples long).
         assert_eq!(b[0].frame, 101);
@@ -556,7 +733,8 @@ mod tests {
         let (trace, _) = Scene::new(40.0).build();
         let seg = find_blows(&trace);
         let (b, s, w) = blow_metrics(&trace, &seg, None);
-        assert_eq!(w, vec![Warning::NoBar]);
+        assert_eq!(w[0], Warning::NoBar);
+        assert!(!w.contains(&Warning::TwistZeroUnverified { frame: 0 }));
         assert!(
             b.iter()
                 .all(|b| b.peak_torque.is_none() && b.peak_twist.is_some())

@@ -10,15 +10,31 @@ mod bar_report;
 mod blows;
 mod calibration;
 pub(crate) use calibration::csv_with_headers;
+mod holding;
+mod sense;
 mod steel;
+mod uncertainty;
+mod zero;
 
 pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
 pub use bar_report::{
     BarJson, BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionJson,
     SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
 };
-pub use blows::{BlowMetrics, NUT_STOP_MIN_DEG, Summary, blow_metrics};
+pub use blows::{
+    BlowMetrics, NUT_STOP_MIN_DEG, Summary, UNDERSAMPLED_RISE_FRAMES, blow_metrics,
+    blow_metrics_zeroed, under_read_bound,
+};
 pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
 };
+pub use holding::{HoldingTorque, MAX_SLIPS};
+pub use sense::{
+    BAR_LENGTH_MM, SECTION_ACROSS_MM, SECTION_LENGTH_MM, SET_MIN_DEG, STIFFNESS_NM_PER_DEG,
+    bar_sense_warnings,
+};
 pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel};
+pub use uncertainty::{
+    CALIBRATION_REL_SIGMA_DEFAULT, DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA, stiffness_rel_sigma,
+};
+pub use zero::{QUIET_MIN_SAMPLES, TwistZero, ZeroSource};

@@ -37,6 +37,8 @@ pub(crate) fn blows_csv(r: &Report) -> String {
             breakaway_twist_deg,
             breakaway_torque_nm,
             nut_advanced,
+            // The intervals and rise are in report.json.
+            ..
         } = b;
         let _ = writeln!(
             out,

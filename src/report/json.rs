@@ -94,6 +94,15 @@ pub struct BlowJson {
     pub breakaway_torque_nm: Option<f64>,
     /// The nut advance reached the summary's `nut_stop_threshold_deg`.
     pub nut_advanced: bool,
+    /// 95 % interval of the peak twist, `[low, high]`, degrees (interface v2).
+    pub peak_twist_ci95_deg: Option<[f64; 2]>,
+    /// 95 % interval of the peak torque, `[low, high]`, N·m (interface v2).
+    pub peak_torque_ci95_nm: Option<[f64; 2]>,
+    /// Frames from the onset to the peak twist.
+    pub rise_frames: Option<usize>,
+    /// Largest fraction by which the sampled peak can read low (null when the rise is
+    /// sampled finely enough).
+    pub peak_under_read_ratio: Option<f64>,
 }
 
 /// `report.json`'s `summary`.
@@ -141,6 +150,36 @@ pub struct SummaryJson {
     pub drive_noise_deg: Option<f64>,
     /// Estimated angle noise of the nut end (one frame, σ), degrees.
     pub nut_noise_deg: Option<f64>,
+    /// What every twist is measured from: the bar at rest (interface v2).
+    pub twist_zero: TwistZeroJson,
+    /// The torque the joint holds after the last blow that turned the nut, N·m (interface
+    /// v2; null without a bar or a measured slip).
+    pub holding_torque_nm: Option<f64>,
+    /// Its 95 % interval, `[low, high]`, N·m.
+    pub holding_torque_ci95_nm: Option<[f64; 2]>,
+    /// Bounds on the torque that would restart the nut, `[low, high]`, N·m: the highest peak
+    /// of a later blow that did not move it, and the torque at which a later blow did.
+    pub holding_torque_bracket_nm: [Option<f64>; 2],
+    /// The last blow that turned the nut (the holding torque is read after it).
+    pub holding_after_blow: Option<usize>,
+    /// Slips the holding torque rests on.
+    pub holding_slip_count: usize,
+    /// The joint's rate fitted over those slips, N·m per degree of nut turn.
+    pub joint_rate_nm_per_deg: Option<f64>,
+}
+
+/// `summary.twist_zero`: where the twist zero came from and the twist already in the bar at
+/// the first analysed frame.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TwistZeroJson {
+    /// `still`, `frame`, `quiet_start` or `first_frame_unverified`.
+    pub source: String,
+    /// The clip frame that showed the bar at rest (null for a still).
+    pub frame: Option<u64>,
+    /// Twist in the bar at the first analysed frame, degrees (added to drive − nut).
+    pub offset_deg: f64,
+    /// Standard uncertainty (1σ) of `offset_deg`, degrees.
+    pub offset_sigma_deg: f64,
 }
 
 fn deg(a: Option<Angle>) -> Option<f64> {
@@ -175,6 +214,7 @@ pub fn report(a: &Analysis) -> Report {
     let tr = &a.trace;
     let n = tr.len();
     let stiffness = a.summary.stiffness;
+    let zero = a.summary.twist_zero;
     let trace = TraceJson {
         t_s: (0..n).map(|i| tr.t_s(i)).collect(),
         frame: tr.frames.clone(),
@@ -188,7 +228,7 @@ pub fn report(a: &Analysis) -> Report {
             .map(|i| {
                 let d = tr.drive.get(i).copied().flatten()?;
                 let u = tr.nut.get(i).copied().flatten()?;
-                deg(Some(d - u))
+                deg(Some(d - u + zero.offset))
             })
             .collect(),
         drive_confidence: (0..n)
@@ -217,6 +257,16 @@ pub fn report(a: &Analysis) -> Report {
             breakaway_twist_deg: deg(b.breakaway_twist),
             breakaway_torque_nm: nm(b.breakaway_torque),
             nut_advanced: b.nut_advanced,
+            peak_twist_ci95_deg: b
+                .peak_twist_ci95
+                .map(|(l, h)| [l.deg(), h.deg()])
+                .filter(|v| v.iter().all(|x| x.is_finite())),
+            peak_torque_ci95_nm: b
+                .peak_torque_ci95
+                .map(|(l, h)| [l.nm(), h.nm()])
+                .filter(|v| v.iter().all(|x| x.is_finite())),
+            rise_frames: b.rise_frames,
+            peak_under_read_ratio: finite(b.peak_under_read),
         })
         .collect();
     let s = &a.summary;
@@ -253,6 +303,24 @@ pub fn report(a: &Analysis) -> Report {
         ),
         drive_noise_deg: deg(a.segmentation.drive_noise),
         nut_noise_deg: deg(a.segmentation.nut_noise),
+        twist_zero: TwistZeroJson {
+            source: zero.source.as_str().to_string(),
+            frame: zero.frame,
+            offset_deg: zero.offset.deg(),
+            offset_sigma_deg: zero.offset_sigma.deg(),
+        },
+        holding_torque_nm: nm(s.holding.map(|h| h.torque)),
+        holding_torque_ci95_nm: s
+            .holding
+            .map(|h| [h.ci95.0.nm(), h.ci95.1.nm()])
+            .filter(|v| v.iter().all(|x| x.is_finite())),
+        holding_torque_bracket_nm: [
+            nm(s.holding.and_then(|h| h.bracket_low)),
+            nm(s.holding.and_then(|h| h.bracket_high)),
+        ],
+        holding_after_blow: s.holding.map(|h| h.after_blow),
+        holding_slip_count: s.holding.map_or(0, |h| h.slips),
+        joint_rate_nm_per_deg: finite(s.holding.and_then(|h| h.joint_rate_nm_per_deg)),
     };
     Report {
         report_version: REPORT_VERSION,
@@ -389,6 +457,10 @@ mod tests {
             "blow_count",
             "nut_advancing_blow_count",
             "nut_stopped_after_blow",
+            "holding_after_blow",
+            "rise_frames",
+            "peak_under_read_ratio",
+            "holding_slip_count",
             "nut_onset_frame",
             "peak_torque_to_rating_ratio",
             "drive_confidence",

@@ -79,9 +79,41 @@ fn summary_line(a: &Analysis) -> String {
         None if s.blow_count > 0 => "nut still advancing on the last blow".to_string(),
         None => String::new(),
     });
+    match (s.holding, s.stiffness) {
+        (Some(h), Some(_)) => {
+            let mut t = format!(
+                "holding torque after blow {} {:.1} N·m ({:.1} lbf·ft), 95 % {:.1}–{:.1} N·m",
+                h.after_blow,
+                h.torque.nm(),
+                h.torque.lbf_ft(),
+                h.ci95.0.nm(),
+                h.ci95.1.nm()
+            );
+            if let Some(lo) = h.bracket_low {
+                let _ = write!(t, ", restart needs over {:.1} N·m", lo.nm());
+            }
+            if let Some(hi) = h.bracket_high {
+                let _ = write!(t, ", restarted at {:.1} N·m", hi.nm());
+            }
+            parts.push(t);
+        }
+        (None, Some(_)) if s.nut_advancing_blows > 0 => parts.push(
+            "holding torque not estimated (fewer than two measured slips of the nut)".to_string(),
+        ),
+        _ => {}
+    }
+    parts.push(format!(
+        "twist zero: {} ({:+.2}° already in the bar at the first frame)",
+        s.twist_zero.source.as_str().replace('_', " "),
+        s.twist_zero.offset.deg()
+    ));
     match (s.peak_torque, s.stiffness) {
         (Some(p), Some(k)) => {
-            let mut t = format!("peak torque {:.1} N·m ({:.1} lbf·ft)", p.nm(), p.lbf_ft());
+            let mut t = format!(
+                "bar's dynamic peak {:.1} N·m ({:.1} lbf·ft)",
+                p.nm(),
+                p.lbf_ft()
+            );
             if let (Some(r), Some(ratio)) = (s.rating, s.peak_to_rating) {
                 let _ = write!(
                     t,

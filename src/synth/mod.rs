@@ -39,7 +39,7 @@ use crate::rig::{Mark, Marks, RIG_VERSION, RadialMark, Rig, Spin};
 pub use scene::{DriveDisc, FixedMark, Highlight, NutFace, Paint, Scene, Steel, Stripe};
 #[cfg(feature = "ffmpeg")]
 pub use write::write_video;
-pub use write::{StillFormat, write_sidecars, write_stills};
+pub use write::{StillFormat, write_rest_still, write_sidecars, write_stills};
 
 use model::{Joint, Model};
 use scene::{Pose, Prepared};
@@ -63,6 +63,12 @@ pub struct Camera {
     /// follows the tool's `clip_blows`). Blows whose onset falls after the cut are dropped.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub max_frames: Option<u64>,
+    /// Start filming this long after the bench left rest, s (None: at rest, time 0). A take
+    /// that starts after the first blows starts with the bar wound up; blows that start
+    /// before the first frame are not the clip's. Frame `f` is then the instant
+    /// `start_s + f / fps` of the model, and its time in the truth is still `f / fps`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub start_s: Option<f64>,
 }
 
 /// The impact tool: blow rate, blow strength and the drive end it hits.
@@ -239,6 +245,7 @@ impl Scenario {
                 blur_samples: 1,
                 bit_depth: 8,
                 max_frames: None,
+                start_s: None,
             },
             tool: Tool {
                 blow_rate_per_min: 1200.0,
@@ -467,6 +474,26 @@ pub struct ModelTruth {
     pub drive_half_period_s: f64,
     /// Exposure time, s.
     pub exposure_s: f64,
+    /// Drive-end angle at frame 0 measured from the bench at rest, degrees (0 when filming
+    /// starts at rest; then not written).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub drive_at_frame0_deg: f64,
+    /// Nut-end angle at frame 0 measured from the bench at rest, degrees (as above).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub nut_at_frame0_deg: f64,
+}
+
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
+}
+
+impl Truth {
+    /// The twist already in the bar at frame 0, degrees: drive − nut measured from rest (the
+    /// report's `summary.twist_zero.offset_deg` when the zero is right). The truth's
+    /// `twist_deg` is `drive_deg − nut_deg` plus this.
+    pub fn twist_offset_deg(&self) -> f64 {
+        self.model.drive_at_frame0_deg - self.model.nut_at_frame0_deg
+    }
 }
 
 /// The exact truth of a simulated clip.
@@ -526,6 +553,13 @@ pub fn simulate(sc: &Scenario) -> Truth {
     assert!(sc.camera.exposure_s <= 1.0 / sc.camera.fps_hz + 1e-12);
     let fps = sc.camera.fps_hz;
     let (model, end_s) = sc.model();
+    // Model time of frame 0 (0 for a take filmed from rest; adding 0.0 changes no value).
+    let t0 = sc.camera.start_s.unwrap_or(0.0);
+    assert!(
+        t0.is_finite() && t0 >= 0.0 && t0 < end_s,
+        "filming starts inside the take"
+    );
+    let end_s = end_s - t0;
     let frames = {
         // Frame instants strictly before the following blow.
         let mut n = (end_s * fps).ceil() as u64;
@@ -541,11 +575,11 @@ pub fn simulate(sc: &Scenario) -> Truth {
     let mut times: Vec<(f64, usize)> = Vec::with_capacity(frames as usize * (ns + 1));
     for f in 0..frames as usize {
         let tf = f as f64 / fps;
-        times.push((tf, f));
+        times.push((t0 + tf, f));
         if ns > 1 {
             for j in 0..ns {
                 let tj = tf + exposure * ((j as f64 + 0.5) / ns as f64 - 0.5);
-                times.push((tj, frames as usize + f * ns + j));
+                times.push((t0 + tj, frames as usize + f * ns + j));
             }
         }
     }
@@ -568,7 +602,13 @@ pub fn simulate(sc: &Scenario) -> Truth {
         .iter()
         .map(|s| deg(s.theta_n - n0))
         .collect();
-    let twist_deg: Vec<f64> = drive_deg.iter().zip(&nut_deg).map(|(d, n)| d - n).collect();
+    // Absolute wind-up: measured from the bench at rest (d0 = n0 = 0 for a take from rest).
+    let twist_offset = deg(d0) - deg(n0);
+    let twist_deg: Vec<f64> = drive_deg
+        .iter()
+        .zip(&nut_deg)
+        .map(|(d, n)| d - n + twist_offset)
+        .collect();
 
     // Seeded shake per frame and flicker per sample.
     let mut rng = ChaCha8Rng::seed_from_u64(sc.seed);
@@ -617,8 +657,10 @@ pub fn simulate(sc: &Scenario) -> Truth {
 
     // Blows, with the report's frame-based definitions.
     let last = frames as usize - 1;
-    let onset = |tb: f64| ((tb * fps).floor() as i64 + 1).max(0) as usize;
-    let starts: Vec<f64> = model.blow_times.clone();
+    let onset = |tb: f64| (((tb - t0) * fps).floor() as i64 + 1).max(0) as usize;
+    // Blows that started before filming are not the clip's.
+    let skipped = model.blow_times.iter().take_while(|&&tb| tb < t0).count();
+    let starts: Vec<f64> = model.blow_times[skipped..].to_vec();
     let onsets: Vec<usize> = starts
         .iter()
         .map(|&t| onset(t))
@@ -632,7 +674,7 @@ pub fn simulate(sc: &Scenario) -> Truth {
             .iter()
             .copied()
             .fold(f64::NEG_INFINITY, f64::max);
-        let slip = events.nut_slip[b];
+        let slip = events.nut_slip[b + skipped];
         let nut_lag_ms = slip.and_then(|ts| {
             let nf = onset(ts);
             (nf <= end).then(|| (nf as f64 - o as f64) * 1000.0 / fps)
@@ -647,10 +689,10 @@ pub fn simulate(sc: &Scenario) -> Truth {
             peak_torque_nm: k * peak.to_radians(),
             residual_twist_deg: twist_deg[end],
             nut_lag_ms,
-            impact_t_s: tb,
-            onset_margin_frames: o as f64 - tb * fps,
-            model_peak_torque_nm: events.peak_spring_torque[b],
-            model_nut_breakaway_t_s: slip,
+            impact_t_s: tb - t0,
+            onset_margin_frames: o as f64 - (tb - t0) * fps,
+            model_peak_torque_nm: events.peak_spring_torque[b + skipped],
+            model_nut_breakaway_t_s: slip.map(|t| t - t0),
         });
     }
     let mut intervals: Vec<f64> = starts[..onsets.len()]
@@ -685,6 +727,8 @@ pub fn simulate(sc: &Scenario) -> Truth {
         nut_screen_deg_at_frame0: sc.scene.nut.stripe.start_deg + sign * deg(n0),
         drive_half_period_s: std::f64::consts::PI * (sc.tool.drive_inertia_kgm2 / k).sqrt(),
         exposure_s: exposure,
+        drive_at_frame0_deg: deg(d0),
+        nut_at_frame0_deg: deg(n0),
     };
     Truth {
         truth_version: TRUTH_VERSION,
@@ -734,17 +778,39 @@ pub fn render_frame(sc: &Scenario, truth: &Truth, index: u64) -> Frame {
             None => 1.0,
         };
         fallback = [Pose {
-            drive_rad: truth.trace.drive_deg[f].to_radians(),
-            nut_rad: truth.trace.nut_deg[f].to_radians(),
+            drive_rad: (truth.trace.drive_deg[f] + truth.model.drive_at_frame0_deg).to_radians(),
+            nut_rad: (truth.trace.nut_deg[f] + truth.model.nut_at_frame0_deg).to_radians(),
             shift: truth.shake_px.get(f).copied().unwrap_or([0.0, 0.0]),
             gain,
         }];
         &fallback
     };
-    let mut img = Prepared::new(&sc.scene).render(poses);
+    let img = Prepared::new(&sc.scene).render(poses);
+    finish_frame(sc, img, index, 1_000 + index)
+}
+
+/// Renders the bench at rest, unloaded, as a camera in the same place would see it before
+/// the take: both ends at the angles they had when the bench left rest (so the twist is
+/// zero), no shake, steady light, with sensor noise of its own (seeded). This is the still
+/// that `analyze --zero-still` takes. Its frame index is 0.
+pub fn render_rest_frame(sc: &Scenario) -> Frame {
+    let pose = [Pose {
+        drive_rad: 0.0,
+        nut_rad: 0.0,
+        shift: [0.0, 0.0],
+        gain: 1.0,
+    }];
+    let img = Prepared::new(&sc.scene).render(&pose);
+    // Stream 999: apart from the jitter (1), shake (2) and frame noise (1,000 + index).
+    finish_frame(sc, img, 0, 999)
+}
+
+/// Adds seeded sensor noise (random stream `stream`) to a rendered image and quantises it
+/// to the camera's depth.
+fn finish_frame(sc: &Scenario, mut img: Vec<f32>, index: u64, stream: u64) -> Frame {
     if sc.effects.noise_sigma > 0.0 {
         let mut rng = ChaCha8Rng::seed_from_u64(sc.seed);
-        rng.set_stream(1_000 + index);
+        rng.set_stream(stream);
         let sigma = sc.effects.noise_sigma as f32;
         for v in img.iter_mut() {
             *v += sigma * gauss(&mut rng) as f32;

@@ -88,6 +88,25 @@ pub fn write_stills(sc: &Scenario, truth: &Truth, dir: &Path, fmt: StillFormat) 
     Ok(truth.frames)
 }
 
+/// Renders the bench at rest ([`super::render_rest_frame`]) into `path`: a PNG at the
+/// camera's depth, or a 16-bit TIFF when the name ends in `.tif`/`.tiff`. This is the zero
+/// still a take is analysed against (`analyze --zero-still`, or `<clip>.rest.png` in a batch).
+///
+/// # Errors
+/// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
+pub fn write_rest_still(sc: &Scenario, path: &Path) -> Result<()> {
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
+        .unwrap_or_default();
+    let fmt = if ext == "tif" || ext == "tiff" {
+        StillFormat::Tiff16
+    } else {
+        StillFormat::Png
+    };
+    save_frame(&super::render_rest_frame(sc), path, fmt)
+}
+
 /// Saves rendered frames as `dir/f_00000.<ext>` ….
 pub(crate) fn save_stills(frames: &[Frame], dir: &Path, fmt: StillFormat) -> Result<()> {
     std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;

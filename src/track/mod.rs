@@ -327,6 +327,47 @@ impl Tracker {
     }
 }
 
+/// The twist in `frame` measured from the bar at rest in `rest` (a still of the unloaded bar
+/// from the same camera position, or a frame that shows it): both pictures are tracked as a
+/// two-frame clip that starts at rest, and the twist of the second, drive − nut tightening
+/// positive, is wrapped into ±180° (each end may have turned any amount between the two, but
+/// a bar never holds half a turn of twist). Without a fixed mark, the camera must not have
+/// moved between the two pictures. The pivot refinement of a whole clip (`refine.rs`) needs
+/// more frames, so an offset pivot's error is not removed here.
+///
+/// # Errors
+/// [`Error::Input`] naming `rest_path` when its size differs from the clip's or a mark cannot
+/// be measured in it; [`Error::Mark`] when a mark shows no paint in the rest picture.
+pub fn rest_offset(
+    rig: &Rig,
+    rig_path: &Path,
+    rest: &Frame,
+    rest_path: &Path,
+    frame: &Frame,
+) -> Result<Angle> {
+    if (rest.width, rest.height) != (frame.width, frame.height) {
+        return Err(Error::Input {
+            path: rest_path.to_path_buf(),
+            reason: format!(
+                "the rest picture is {}x{} but the clip is {}x{}; take it from the same camera at the same size",
+                rest.width, rest.height, frame.width, frame.height
+            ),
+        });
+    }
+    let mut t = Tracker::new(rig, rig_path, frame.width, frame.height)?;
+    t.push(rest)?;
+    t.push(frame)?;
+    let tb = TimeBase::from_fps(1.0, "rest")?;
+    let (tr, _) = t.finish(tb);
+    match tr.twist(1) {
+        Some(tw) => Ok(Angle::from_rad(wrap_pi(tw.rad()))),
+        None => Err(Error::Input {
+            path: rest_path.to_path_buf(),
+            reason: "the marks could not be measured in both the rest picture and the clip's first analysed frame; check that the rest picture shows the marks as the clip does".into(),
+        }),
+    }
+}
+
 /// Measures one mark in one frame, appending to its series; returns the raw angle.
 fn measure(
     t: &mut MarkTrack,
