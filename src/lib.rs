@@ -29,7 +29,7 @@ pub mod decode;
 #[cfg(feature = "ffmpeg")]
 pub mod encode;
 mod error;
-pub mod locate;
+pub mod find_marks;
 pub mod mechanics;
 pub mod report;
 pub mod rig;
