@@ -23,6 +23,7 @@
 
 #[doc(hidden)]
 pub mod fixtures;
+pub mod layout;
 mod model;
 mod scene;
 pub mod side;
