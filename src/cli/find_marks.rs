@@ -53,7 +53,12 @@ pub fn run(a: FindMarksArgs) -> Result<ExitCode> {
         a.out.display()
     );
     for m in &found.marks {
-        let role = m.role.map_or("unused", |r| r.name());
+        let role = match (m.role, &m.alternative) {
+            (Some(r), Some(alt)) => format!("{} ({alt})", r.name()),
+            (Some(r), None) => r.name().to_string(),
+            (None, Some(alt)) => format!("({alt})"),
+            (None, None) => "unused".to_string(),
+        };
         let r = &m.mark;
         let pivot = match m.pivot_from {
             PivotFrom::Lines => "from the stripe's lines",

@@ -36,6 +36,7 @@ pub(super) fn fixed_from(t: &Track) -> FoundMark {
         net_deg: 0.0,
         travel_deg: t.motion().1,
         dark: s.dark,
+        alternative: None,
     }
 }
 
@@ -44,12 +45,13 @@ pub(super) fn radial_from(
     t: &Track,
     role: Role,
     tighten: Option<Spin>,
+    pivot: Option<[f64; 2]>,
     img: &Img,
     warnings: &mut Vec<Warning>,
 ) -> FoundMark {
     let s = t.first;
     let span = t.span_deg();
-    let (pivot, from) = match t.pivot() {
+    let (pivot, from) = match pivot {
         Some(p) if span >= MIN_SPAN_DEG => (p, PivotFrom::Lines),
         _ => {
             warnings.push(unsure(
@@ -113,6 +115,7 @@ pub(super) fn radial_from(
         net_deg: net,
         travel_deg: tv,
         dark: s.dark,
+        alternative: None,
     }
 }
 

@@ -259,6 +259,7 @@ mod tests {
             ext: [-25.0, 25.0],
             length: 50.0,
             dark: false,
+            contrast: 0.3,
         };
         let e = outline_ellipse(&im, [80.0, 80.0], &stripe).expect("ellipse");
         assert!((e.axis_ratio - ratio).abs() < 0.01, "{e:?}");

@@ -10,15 +10,26 @@
 //!    (the hex nut's outline, a bracket's border) has one side equal to the centre and scores
 //!    zero, and a round highlight is rejected afterwards because its component is not elongated.
 //!    Components are grown by hysteresis and kept when long and thin (weighted second moments,
-//!    Hu 1962; facts.md §7.1).
+//!    Hu 1962, "Visual pattern recognition by moment invariants", IRE Trans. Inf. Theory).
 //! 2. **Tracks.** Each first-frame stripe is followed frame by frame inside a window around
 //!    its last position; its orientation is unwrapped modulo π.
+//!    Where nothing changed around a stripe since the first frame (a count of changed pixels
+//!    over its window, flicker scaled out), it is still there and is not searched for, so a
+//!    busy background costs little.
 //! 3. **Pivot.** A radial stripe's centre line passes through its pivot, so the pivot is the
-//!    least-squares intersection of the track's lines: minimise Σ (nₜ·(p − cₜ))² over all
-//!    frames (nₜ the line normal, cₜ the centroid). It is only defined when the stripe turned;
-//!    below [`MIN_SPAN_DEG`] the pivot is not decided and a warning says so.
-//! 4. **Roles.** A stripe that never turns is the fixed mark; of the turning stripes, the one
-//!    with the most back-and-forth travel (total variation) is the drive end, the next the nut.
+//!    point nearest the track's lines over all frames: Σ (nₜ·(p − cₜ))² minimised (nₜ the line
+//!    normal, cₜ the centroid), made robust to frames where the follower caught something
+//!    else by random sample consensus over pairs of lines and a trimmed refit (`pivot.rs`).
+//!    It is only defined when the stripe turned; below [`MIN_SPAN_DEG`] the pivot is not
+//!    decided and a warning says so.
+//! 4. **Marks by motion, roles by physics** (`roles.rs`). A stripe is a mark on a turning
+//!    part only when it turns rigidly about one fixed point: most of its lines meet there,
+//!    the point lies beyond one of its ends, and the stripe keeps its distance from it.
+//!    Anything else that moves (a follower hopping between the streaks of a brushed-steel
+//!    bench) is background. The drive end leads each blow, swings back after it and travels
+//!    more; the nut lags, moves less and stops first: three votes. Stripe length plays no
+//!    part. When the votes disagree, a warning says so and the preview labels both readings.
+//!    A stripe that does not turn is still; the one that stands out most is the fixed mark.
 //! 5. **Tightening.** The drive end's fast steps (the blows) run the tightening way: the sign
 //!    of Σ Δθ·|Δθ|² over the drive's frame steps. The nut end's net advance gives its own.
 //! 6. **Ellipse.** Rays from the pivot find the disc's outline (the strongest luma step
@@ -40,8 +51,10 @@ mod draft;
 mod ellipse;
 mod luma;
 mod outputs;
+mod pivot;
 mod preview;
 mod ridge;
+mod roles;
 mod stripes;
 
 pub use outputs::{check_outputs, write_atomic};
@@ -49,8 +62,9 @@ pub use preview::write_preview;
 pub use ridge::RIDGE_OFFSET_PX;
 
 use draft::{fixed_from, radial_from, unsure};
-use luma::Img;
+use luma::{Change, Img};
 use ridge::detect;
+use roles::{Kind, classify, votes};
 use stripes::Track;
 
 /// Below this turn over the clip a stripe's pivot is not decided from its motion, degrees.
@@ -61,6 +75,13 @@ const STILL_DEG: f64 = 2.0;
 /// A radial stripe's lines over the clip pass within this RMS distance of their
 /// intersection, px; a track whose lines do not meet is not a radial stripe.
 const MAX_LINE_RMS_PX: f64 = 1.5;
+
+/// Stripes followed at most (those that stand out most in the first frame).
+const MAX_STRIPES: usize = 400;
+/// Turning stripes whose pivots are this close belong to one part, px.
+const SAME_PIVOT_PX: f64 = 4.0;
+/// Still stripes drawn on the preview as alternatives to the fixed mark, at most.
+const MAX_ALTERNATIVES: usize = 4;
 
 /// Frames read at most (the first ones of the clip).
 pub const MAX_FRAMES: u64 = 1500;
@@ -102,6 +123,8 @@ pub struct FoundMark {
     pub travel_deg: f64,
     /// True when the paint is darker than the surface around it.
     pub dark: bool,
+    /// When the role is unsure or the stripe is not used: the other reading, for the preview.
+    pub alternative: Option<String>,
 }
 
 /// What [`find_marks`] found.
@@ -176,16 +199,22 @@ fn find_stream(
         ));
     }
     let img0 = Img::from_frame(first);
-    let mut tracks: Vec<Track> = detect(&img0, [0, img0.w, 0, img0.h])
-        .into_iter()
-        .map(|s| Track {
-            first: s,
-            last: s,
-            seen: vec![Some((s, s.theta))],
-            theta: s.theta,
-        })
-        .collect();
     let mut warnings = Vec::new();
+    let mut segs = detect(&img0, [0, img0.w, 0, img0.h]);
+    if segs.len() > MAX_STRIPES {
+        // Bounded work on a busy background: keep the stripes that stand out most.
+        warnings.push(unsure(
+            "stripes",
+            format!(
+                "{} stripe-like features in the first frame; only the {MAX_STRIPES} that stand out most were followed",
+                segs.len()
+            ),
+        ));
+        segs.sort_by(|a, b| b.contrast.total_cmp(&a.contrast));
+        segs.truncate(MAX_STRIPES);
+    }
+    let mut tracks: Vec<Track> = segs.into_iter().map(Track::start).collect();
+    let mut change = Change::new(&img0);
     let mut n = 1usize;
     while let Some(f) = next()? {
         let f = &f;
@@ -200,64 +229,96 @@ fn find_stream(
             ));
         }
         let img = Img::from_frame(f);
+        change.update(&img);
         for t in tracks.iter_mut() {
-            t.follow(&img);
+            // Nothing changed around the stripe since the first frame: it is still there.
+            if change.count(t.window(img.w, img.h)) <= 2 {
+                t.stay();
+            } else {
+                t.follow(&img);
+            }
         }
     }
-    // A stripe seen in under half the frames is not a mark we can rely on.
-    tracks.retain(|t| t.seen.iter().flatten().count() * 2 >= n);
+    let (w, h) = (img0.w, img0.h);
+    let kinds: Vec<Kind> = tracks.iter().map(|t| classify(t, w, h)).collect();
 
-    // Moving stripes, most travel first; still ones.
-    let mut moving: Vec<&Track> = Vec::new();
-    let mut still: Vec<&Track> = Vec::new();
-    for t in &tracks {
-        let span = t.span_deg();
-        if span < STILL_DEG {
-            still.push(t);
-        } else if span < MIN_SPAN_DEG || t.is_radial() {
-            moving.push(t);
+    // Turning parts: turning stripes grouped by pivot; per part, the stripe seen most often.
+    let mut parts: Vec<(usize, [f64; 2])> = Vec::new();
+    for (i, k) in kinds.iter().enumerate() {
+        let Kind::Turning { pivot } = *k else {
+            continue;
+        };
+        let near = |q: &[f64; 2]| (q[0] - pivot[0]).hypot(q[1] - pivot[1]) <= SAME_PIVOT_PX;
+        match parts.iter_mut().find(|(_, q)| near(q)) {
+            Some(part) => {
+                let (a, b) = (&tracks[i], &tracks[part.0]);
+                if (a.seen_fraction(), a.first.contrast) > (b.seen_fraction(), b.first.contrast) {
+                    *part = (i, pivot);
+                }
+            }
+            None => parts.push((i, pivot)),
         }
     }
-    // The two longest turning stripes are the drive and nut marks (painted stripes are long;
-    // a sliver between two parts that happens to turn is short); of the two, the one that
-    // swings back more is the drive end.
-    moving.sort_by(|a, b| b.first.length.total_cmp(&a.first.length));
-    if moving.len() >= 2 && moving[1].back_swing() > moving[0].back_swing() {
-        moving.swap(0, 1);
+    // Most travel first (motion, not looks, orders them).
+    parts.sort_by(|a, b| tracks[b.0].motion().1.total_cmp(&tracks[a.0].motion().1));
+    let mut cands: Vec<(usize, Option<[f64; 2]>)> =
+        parts.iter().map(|&(i, p)| (i, Some(p))).collect();
+    if cands.len() < 2 {
+        // Stripes that turned a little: their pivots cannot be placed from the motion.
+        let mut weak: Vec<usize> = (0..tracks.len())
+            .filter(|&i| kinds[i] == Kind::Weak)
+            .collect();
+        weak.sort_by(|&a, &b| tracks[b].motion().1.total_cmp(&tracks[a].motion().1));
+        cands.extend(weak.into_iter().map(|i| (i, None)).take(2 - cands.len()));
     }
-    if moving.len() < 2 {
+    if cands.len() < 2 {
+        let background = kinds.iter().filter(|k| **k == Kind::Background).count();
         return Err(Error::Mark {
-            mark: if moving.is_empty() { "drive" } else { "nut" }.into(),
+            mark: if cands.is_empty() { "drive" } else { "nut" }.into(),
             reason: format!(
-                "found {} turning stripe(s) in {} frame(s) of {}; need the drive and the nut stripe: use a clip with at least one blow, paint 3-8 px wide stripes that contrast with the surface, or write the rig by hand",
-                moving.len(),
+                "found {} turning stripe(s) in {} frame(s) of {} ({background} stripe-like feature(s) moved but did not turn about a fixed point, so were taken as background); need the drive and the nut stripe: use a clip with at least one blow, paint 3-8 px wide stripes that contrast with the surface, or write the rig by hand",
+                cands.len(),
                 n,
                 clip.display()
             ),
         });
     }
-    if moving.len() > 2 {
+    if parts.len() > 2 {
         warnings.push(unsure(
             "roles",
             format!(
-                "{} turning stripes found; the two longest were taken as drive and nut, check the preview",
-                moving.len()
+                "{} parts turn about distinct pivots; the two that travel most were taken as drive and nut, and the others are drawn on the preview as alternatives",
+                parts.len()
             ),
         ));
     }
-    let nm = moving[1].motion();
-    let (db, nb) = (moving[0].back_swing(), moving[1].back_swing());
-    if db < 2.0 * nb.max(0.25) {
+    let (ia, ib) = (cands[0].0, cands[1].0);
+    let v = votes(&tracks[ia], &tracks[ib]);
+    let (a_drive, agree, cast) = v.decide();
+    let (di, ni) = if a_drive { (0, 1) } else { (1, 0) };
+    let (dt, nt) = (&tracks[cands[di].0], &tracks[cands[ni].0]);
+    let roles_sure = cast >= 2 && agree == cast;
+    if !roles_sure {
+        let lag = v
+            .lag_frames
+            .map_or("no blow onsets paired up".to_string(), |l| {
+                let l = if a_drive { l } else { -l };
+                format!("the nut's onsets lag by {l:+.1} frame(s)")
+            });
+        let [bs, ts] =
+            [v.back_swing_deg, v.travel_deg].map(|x| if a_drive { x } else { [x[1], x[0]] });
         warnings.push(unsure(
             "drive/nut",
             format!(
-                "the two turning stripes swing back alike ({db:.1}° and {nb:.1}° over the clip); the one that swings back more was called the drive end, swap \"drive\" and \"nut\" if the preview shows otherwise"
+                "{agree} of {cast} signs call the part at [{:.0}, {:.0}] the drive end ({lag}; back-swing {:.1}° vs {:.1}°; travel {:.1}° vs {:.1}°); the preview labels both readings: swap \"drive\" and \"nut\" if the other one leads the blows",
+                dt.first.c[0], dt.first.c[1], bs[0], bs[1], ts[0], ts[1]
             ),
         ));
     }
+    let nm = nt.motion();
 
     // Tightening: the drive's fast steps.
-    let drive_steps = moving[0].sign_steps();
+    let drive_steps = dt.sign_steps();
     let drive_spin = if drive_steps >= 0.0 {
         Spin::Cw
     } else {
@@ -283,31 +344,51 @@ fn find_stream(
     }
 
     let mut marks = Vec::new();
-    let drive = radial_from(
-        moving[0],
+    let mut drive = radial_from(
+        dt,
         Role::Drive,
         Some(drive_spin),
+        cands[di].1,
         &img0,
         &mut warnings,
     );
-    let nut = radial_from(moving[1], Role::Nut, Some(nut_spin), &img0, &mut warnings);
+    let mut nut = radial_from(
+        nt,
+        Role::Nut,
+        Some(nut_spin),
+        cands[ni].1,
+        &img0,
+        &mut warnings,
+    );
+    if !roles_sure {
+        drive.alternative = Some("or nut?".into());
+        nut.alternative = Some("or drive?".into());
+    }
     marks.push(drive.clone());
     marks.push(nut.clone());
-    for t in moving.iter().skip(2) {
+    for &(i, p) in cands.iter().skip(2) {
         marks.push(FoundMark {
             role: None,
-            ..radial_from(t, Role::Nut, None, &img0, &mut Vec::new())
+            alternative: Some("turning, not used".into()),
+            ..radial_from(&tracks[i], Role::Nut, None, p, &img0, &mut Vec::new())
         });
     }
-    // The fixed mark: the longest still stripe.
-    still.sort_by(|a, b| b.first.length.total_cmp(&a.first.length));
+    // The fixed mark: of the still stripes, the one that stands out most from its surface.
+    let mut still: Vec<&Track> = tracks
+        .iter()
+        .zip(&kinds)
+        .filter(|(_, k)| **k == Kind::Still)
+        .map(|(t, _)| t)
+        .collect();
+    still.sort_by(|a, b| b.first.contrast.total_cmp(&a.first.contrast));
     let fixed = still.first().map(|t| fixed_from(t));
     if still.len() > 1 {
         warnings.push(unsure(
             "fixed",
             format!(
-                "{} still stripes found; the longest was taken as the fixed mark",
-                still.len()
+                "{} still stripes found; the one that stands out most was taken as the fixed mark, and the next {} are drawn on the preview as alternatives",
+                still.len(),
+                (still.len() - 1).min(MAX_ALTERNATIVES)
             ),
         ));
     }
@@ -320,9 +401,10 @@ fn find_stream(
     if let Some(f) = &fixed {
         marks.push(f.clone());
     }
-    for t in still.iter().skip(1) {
+    for t in still.iter().skip(1).take(MAX_ALTERNATIVES) {
         marks.push(FoundMark {
             role: None,
+            alternative: Some("still, not used".into()),
             ..fixed_from(t)
         });
     }

@@ -44,11 +44,12 @@ pub fn write_preview(found: &FoundMarks, path: &Path, force: bool) -> Result<()>
         let arm = 6.0 * s as f32;
         thick_line(&mut img, (c.0 - arm, c.1), (c.0 + arm, c.1), colour, 2);
         thick_line(&mut img, (c.0, c.1 - arm), (c.0, c.1 + arm), colour, 2);
-        let name = match m.role {
-            Some(role) => role.name().to_string(),
-            None => "unused stripe".to_string(),
+        let mut text = match (m.role, &m.alternative) {
+            (Some(role), Some(alt)) => format!("{} {alt}", role.name()),
+            (Some(role), None) => role.name().to_string(),
+            (None, Some(alt)) => alt.clone(),
+            (None, None) => "unused stripe".to_string(),
         };
-        let mut text = name;
         if let Some(t) = r.tighten {
             text.push_str(match t {
                 Spin::Cw => " (tightens cw)",

@@ -30,6 +30,8 @@ pub(super) struct Seg {
     /// Long-axis length, px.
     pub(super) length: f64,
     pub(super) dark: bool,
+    /// Mean ridge response over the stripe's core, luma: how strongly it stands out.
+    pub(super) contrast: f64,
 }
 
 impl Seg {
@@ -166,6 +168,7 @@ pub(super) fn segment(pts: &[(f64, f64, f64)], dark: bool) -> Option<Seg> {
         ext: [lo - 0.5, hi + 0.5],
         length,
         dark,
+        contrast: sw / pts.len() as f64,
     })
 }
 

@@ -1,8 +1,9 @@
 //! Stripes followed through the clip: each first-frame stripe is looked for in every frame near
 //! where it was last seen, and its orientation is unwrapped modulo π.
 
-use super::MAX_LINE_RMS_PX;
+use super::ellipse::solve3;
 use super::luma::Img;
+use super::pivot::{Line, Meeting, meet};
 use super::ridge::{Seg, detect, wrap_half};
 
 /// One stripe followed through the clip.
@@ -16,15 +17,35 @@ pub(super) struct Track {
 }
 
 impl Track {
-    /// Looks for the stripe in a new frame, near where it was last seen.
-    pub(super) fn follow(&mut self, img: &Img) {
+    /// A new track from a first-frame stripe.
+    pub(super) fn start(s: Seg) -> Track {
+        Track {
+            first: s,
+            last: s,
+            seen: vec![Some((s, s.theta))],
+            theta: s.theta,
+        }
+    }
+    /// The window `[x0, x1, y0, y1]` the stripe is looked for in, in a `w` × `h` frame.
+    pub(super) fn window(&self, w: usize, h: usize) -> [usize; 4] {
         let [a, b] = self.last.ends();
         let m = self.last.length * 0.35 + 8.0;
         let x0 = (a[0].min(b[0]) - m).floor().max(0.0) as usize;
-        let x1 = ((a[0].max(b[0]) + m).ceil() as usize + 1).min(img.w);
+        let x1 = ((a[0].max(b[0]) + m).ceil() as usize + 1).min(w);
         let y0 = (a[1].min(b[1]) - m).floor().max(0.0) as usize;
-        let y1 = ((a[1].max(b[1]) + m).ceil() as usize + 1).min(img.h);
-        let found = detect(img, [x0, x1.max(x0), y0, y1.max(y0)])
+        let y1 = ((a[1].max(b[1]) + m).ceil() as usize + 1).min(h);
+        [x0.min(w), x1.max(x0.min(w)), y0.min(h), y1.max(y0.min(h))]
+    }
+    /// The stripe's window did not change since the first frame: it is where it was then.
+    pub(super) fn stay(&mut self) {
+        let th = self.first.theta;
+        self.theta = th;
+        self.last = self.first;
+        self.seen.push(Some((self.first, th)));
+    }
+    /// Looks for the stripe in a new frame, near where it was last seen.
+    pub(super) fn follow(&mut self, img: &Img) {
+        let found = detect(img, self.window(img.w, img.h))
             .into_iter()
             .filter(|s| s.dark == self.last.dark && s.length > 0.5 * self.first.length)
             .map(|s| {
@@ -75,42 +96,21 @@ impl Track {
         let hi = a.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         (hi - lo).max(0.0).to_degrees()
     }
-    /// Least-squares intersection of the stripe's lines over the clip.
-    pub(super) fn pivot(&self) -> Option<[f64; 2]> {
-        let (mut a11, mut a12, mut a22, mut b1, mut b2) = (0.0, 0.0, 0.0, 0.0, 0.0);
-        for (s, _) in self.seen.iter().flatten() {
-            let n = [-s.theta.sin(), s.theta.cos()];
-            let d = n[0] * s.c[0] + n[1] * s.c[1];
-            a11 += n[0] * n[0];
-            a12 += n[0] * n[1];
-            a22 += n[1] * n[1];
-            b1 += n[0] * d;
-            b2 += n[1] * d;
-        }
-        let det = a11 * a22 - a12 * a12;
-        if det.abs() < 1e-12 {
-            return None;
-        }
-        Some([(a22 * b1 - a12 * b2) / det, (a11 * b2 - a12 * b1) / det])
+    /// The stripe's centre line in every frame it was seen.
+    pub(super) fn lines(&self) -> Vec<Line> {
+        self.seen
+            .iter()
+            .flatten()
+            .map(|(s, _)| Line::through(s.c, s.theta))
+            .collect()
     }
-    /// RMS distance of the track's lines from `p`, px.
-    pub(super) fn line_rms(&self, p: [f64; 2]) -> f64 {
-        let mut s2 = 0.0;
-        let mut n = 0usize;
-        for (s, _) in self.seen.iter().flatten() {
-            let nn = [-s.theta.sin(), s.theta.cos()];
-            s2 += (nn[0] * (p[0] - s.c[0]) + nn[1] * (p[1] - s.c[1])).powi(2);
-            n += 1;
-        }
-        (s2 / n.max(1) as f64).sqrt()
+    /// Where the stripe's lines meet over the clip (robust; see `pivot.rs`).
+    pub(super) fn meeting(&self) -> Option<Meeting> {
+        meet(&self.lines())
     }
-    /// True when the track looks like a radial stripe: its lines meet at one point, and that
-    /// point lies on the stripe's line beyond (or at) one of its ends, not in its middle.
-    pub(super) fn is_radial(&self) -> bool {
-        let Some(p) = self.pivot() else { return false };
-        if self.line_rms(p) > MAX_LINE_RMS_PX {
-            return false;
-        }
+    /// True when `p` lies on the first-frame stripe's line beyond (or at) one of its ends,
+    /// not in its middle, and not far beyond it: where a radial stripe's pivot can be.
+    pub(super) fn is_radial_about(&self, p: [f64; 2]) -> bool {
         let s = &self.first;
         let u = s.dir();
         let along = (p[0] - s.c[0]) * u[0] + (p[1] - s.c[1]) * u[1];
@@ -118,6 +118,59 @@ impl Track {
         let outside = along <= s.ext[0] + q || along >= s.ext[1] - q;
         let near = along >= s.ext[0] - 1.5 * s.length && along <= s.ext[1] + 1.5 * s.length;
         outside && near
+    }
+    /// Spread of the stripe's centroid distance from `p` about a centred ellipse fitted to
+    /// the centroids (90th minus 10th percentile of the radial residual), px. A stripe painted
+    /// on a part turning about `p` keeps its distance in the part's plane, so its centroid
+    /// runs on a centred ellipse on screen (a circle when the part is seen square on; the
+    /// conic `A x² + B xy + C y² = 1` by linear least squares); a follower hopping between
+    /// background streaks does not. With too little turn to fit the conic, the plain spread
+    /// of the distance is used.
+    pub(super) fn radius_spread(&self, p: [f64; 2]) -> f64 {
+        let pts: Vec<[f64; 2]> = self
+            .seen
+            .iter()
+            .flatten()
+            .map(|(s, _)| [s.c[0] - p[0], s.c[1] - p[1]])
+            .collect();
+        if pts.len() < 2 {
+            return 0.0;
+        }
+        let (mut m, mut v) = ([[0.0f64; 3]; 3], [0.0f64; 3]);
+        for q in &pts {
+            let f = [q[0] * q[0], q[0] * q[1], q[1] * q[1]];
+            for i in 0..3 {
+                for j in 0..3 {
+                    m[i][j] += f[i] * f[j];
+                }
+                v[i] += f[i];
+            }
+        }
+        let fit = solve3(m, v);
+        let mut r: Vec<f64> = pts
+            .iter()
+            .map(|q| {
+                let r = q[0].hypot(q[1]);
+                match fit {
+                    Some(sol) if r > 0.0 => {
+                        let (c, s) = (q[0] / r, q[1] / r);
+                        let qv = sol[0] * c * c + sol[1] * c * s + sol[2] * s * s;
+                        if qv > 0.0 { r - 1.0 / qv.sqrt() } else { r }
+                    }
+                    _ => r,
+                }
+            })
+            .collect();
+        r.sort_by(f64::total_cmp);
+        r[r.len() * 9 / 10] - r[r.len() / 10]
+    }
+    /// Fraction of the frames in which the stripe was seen.
+    pub(super) fn seen_fraction(&self) -> f64 {
+        self.seen.iter().flatten().count() as f64 / self.seen.len().max(1) as f64
+    }
+    /// The unwrapped orientation in every frame, radians (None where not seen).
+    pub(super) fn series(&self) -> Vec<Option<f64>> {
+        self.seen.iter().map(|s| s.map(|s| s.1)).collect()
     }
     /// The stripe's screen length at the 90th over the 10th percentile over the clip (a
     /// disc seen at an angle foreshortens the stripe as it turns).
@@ -160,6 +213,7 @@ mod tests {
                     ext: [-20.0, 20.0],
                     length: 40.0,
                     dark: false,
+                    contrast: 0.3,
                 };
                 Some((s, a))
             })
@@ -171,11 +225,14 @@ mod tests {
             seen,
             theta: 0.0,
         };
-        let q = t.pivot().unwrap();
+        let m = t.meeting().unwrap();
+        let q = m.p;
         assert!((q[0] - p[0]).hypot(q[1] - p[1]) < 1e-6);
-        assert!(t.line_rms(q) < 1e-6);
-        // The pivot lies 10 px beyond the stripe's inner end: a radial stripe.
-        assert!(t.is_radial());
+        assert!(m.rms_px < 1e-6 && m.inlier_fraction == 1.0);
+        // The pivot lies 10 px beyond the stripe's inner end: a radial stripe, whose centroid
+        // keeps its distance from it.
+        assert!(t.is_radial_about(q));
+        assert!(t.radius_spread(q) < 1e-6);
         assert!((t.span_deg() - 19.0).abs() < 1e-9);
     }
 }
