@@ -69,7 +69,7 @@ pub(super) fn radial_from(
         }
     };
     let ellipse = if from == PivotFrom::Lines {
-        outline_ellipse(img, pivot, &s)
+        outline_ellipse(img, pivot, &s).filter(|e| t.length_agrees_with(e))
     } else {
         None
     };

@@ -80,6 +80,9 @@ const MAX_LINE_RMS_PX: f64 = 1.5;
 const MAX_STRIPES: usize = 400;
 /// Turning stripes whose pivots are this close belong to one part, px.
 const SAME_PIVOT_PX: f64 = 4.0;
+/// A still stripe is taken for the fixed mark only when it stands out at least this fraction
+/// as much as the fainter of the drive and nut stripes.
+const FIXED_MIN_CONTRAST: f64 = 0.5;
 /// Still stripes drawn on the preview as alternatives to the fixed mark, at most.
 const MAX_ALTERNATIVES: usize = 4;
 
@@ -260,7 +263,7 @@ fn find_stream(
         }
     }
     // Most travel first (motion, not looks, orders them).
-    parts.sort_by(|a, b| tracks[b.0].motion().1.total_cmp(&tracks[a.0].motion().1));
+    parts.sort_by(|a, b| tracks[b.0].travel_deg().total_cmp(&tracks[a.0].travel_deg()));
     let mut cands: Vec<(usize, Option<[f64; 2]>)> =
         parts.iter().map(|&(i, p)| (i, Some(p))).collect();
     if cands.len() < 2 {
@@ -381,18 +384,37 @@ fn find_stream(
         .map(|(t, _)| t)
         .collect();
     still.sort_by(|a, b| b.first.contrast.total_cmp(&a.first.contrast));
-    let fixed = still.first().map(|t| fixed_from(t));
-    if still.len() > 1 {
+    // The fixed mark is painted like the others: a still stripe far fainter than the paint on
+    // the turning parts is texture (a streak of the bench), and tracking it would only add
+    // its noise to both ends through the shake correction.
+    let paint = dt.first.contrast.min(nt.first.contrast);
+    let faint = still
+        .iter()
+        .filter(|t| t.first.contrast < FIXED_MIN_CONTRAST * paint)
+        .count();
+    let fixed = still
+        .first()
+        .filter(|t| t.first.contrast >= FIXED_MIN_CONTRAST * paint)
+        .map(|t| fixed_from(t));
+    if fixed.is_none() && faint > 0 {
         warnings.push(unsure(
             "fixed",
             format!(
-                "{} still stripes found; the one that stands out most was taken as the fixed mark, and the next {} are drawn on the preview as alternatives",
-                still.len(),
-                (still.len() - 1).min(MAX_ALTERNATIVES)
+                "{faint} still stripe(s) found, but none stands out like the paint on the turning parts (texture, not paint), so the draft has no fixed mark and camera shake will not be corrected; paint a stripe on something that does not move"
             ),
         ));
     }
-    if fixed.is_none() {
+    let strong = still.len() - faint;
+    if fixed.is_some() && strong > 1 {
+        warnings.push(unsure(
+            "fixed",
+            format!(
+                "{strong} still stripes stand out like paint; the one that stands out most was taken as the fixed mark, and the next {} are drawn on the preview as alternatives",
+                (strong - 1).min(MAX_ALTERNATIVES)
+            ),
+        ));
+    }
+    if fixed.is_none() && faint == 0 {
         warnings.push(unsure(
             "fixed",
             "no still stripe found, so the draft has no fixed mark and camera shake will not be corrected; paint a stripe on something that does not move".to_string(),
@@ -401,7 +423,12 @@ fn find_stream(
     if let Some(f) = &fixed {
         marks.push(f.clone());
     }
-    for t in still.iter().skip(1).take(MAX_ALTERNATIVES) {
+    for t in still
+        .iter()
+        .skip(1)
+        .filter(|t| t.first.contrast >= FIXED_MIN_CONTRAST * paint)
+        .take(MAX_ALTERNATIVES)
+    {
         marks.push(FoundMark {
             role: None,
             alternative: Some("still, not used".into()),

@@ -37,7 +37,7 @@ impl Line {
 }
 
 /// The meeting point of a set of lines.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub(super) struct Meeting {
     /// The point, px.
     pub(super) p: [f64; 2],
@@ -45,6 +45,8 @@ pub(super) struct Meeting {
     pub(super) rms_px: f64,
     /// Fraction of all lines that agree with it.
     pub(super) inlier_fraction: f64,
+    /// Per line: whether it agrees.
+    pub(super) inliers: Vec<bool>,
 }
 
 /// Lines agree with a candidate point when they pass within this distance, px (at least).
@@ -127,6 +129,7 @@ pub(super) fn meet(lines: &[Line]) -> Option<Meeting> {
         p,
         rms_px,
         inlier_fraction: inl.len() as f64 / lines.len() as f64,
+        inliers: keep,
     })
 }
 

@@ -58,6 +58,21 @@ pub(super) fn classify(t: &Track, w: usize, h: usize) -> Kind {
         return Kind::Background;
     };
     let p = m.p;
+    // The turn must be carried by the lines that meet: a stripe that sits still and now and
+    // then catches something else has all its still lines through any point on its own line.
+    let th: Vec<f64> = t
+        .series()
+        .into_iter()
+        .flatten()
+        .zip(&m.inliers)
+        .filter(|(_, k)| **k)
+        .map(|(a, _)| a)
+        .collect();
+    let lo = th.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = th.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if (hi - lo).to_degrees() < MIN_SPAN_DEG {
+        return Kind::Background;
+    }
     let margin = 0.1 * w.max(h) as f64;
     let inside =
         p[0] > -margin && p[1] > -margin && p[0] < w as f64 + margin && p[1] < h as f64 + margin;
@@ -188,7 +203,7 @@ pub(super) fn votes(a: &Track, b: &Track) -> Votes {
     Votes {
         lag_frames: lag_frames(&a.series(), &b.series(), 6.0),
         back_swing_deg: [a.back_swing(), b.back_swing()],
-        travel_deg: [a.motion().1, b.motion().1],
+        travel_deg: [a.travel_deg(), b.travel_deg()],
     }
 }
 

@@ -5,6 +5,7 @@ use super::ellipse::solve3;
 use super::luma::Img;
 use super::pivot::{Line, Meeting, meet};
 use super::ridge::{Seg, detect, wrap_half};
+use crate::rig::Ellipse;
 
 /// One stripe followed through the clip.
 pub(super) struct Track {
@@ -83,6 +84,19 @@ impl Track {
         let net = (sm[sm.len() - 1] - sm[0]).abs();
         (tv - net).max(0.0).to_degrees()
     }
+    /// Total back-and-forth travel of the orientation smoothed over five frames (so that
+    /// tracking noise on a short stripe does not count as travel), degrees.
+    pub(super) fn travel_deg(&self) -> f64 {
+        let a = self.angles();
+        if a.len() < 6 {
+            return 0.0;
+        }
+        let sm: Vec<f64> = a.windows(5).map(|w| w.iter().sum::<f64>() / 5.0).collect();
+        sm.windows(2)
+            .map(|w| (w[1] - w[0]).abs())
+            .sum::<f64>()
+            .to_degrees()
+    }
     /// Net turn and total variation, degrees.
     pub(super) fn motion(&self) -> (f64, f64) {
         let a = self.angles();
@@ -101,7 +115,7 @@ impl Track {
         self.seen
             .iter()
             .flatten()
-            .map(|(s, _)| Line::through(s.c, s.theta))
+            .map(|(s, th)| Line::through(s.c, *th))
             .collect()
     }
     /// Where the stripe's lines meet over the clip (robust; see `pivot.rs`).
@@ -184,6 +198,30 @@ impl Track {
         let hi = l[l.len() * 9 / 10];
         if lo > 0.0 { hi / lo } else { 1.0 }
     }
+    /// True unless the stripe's length on screen contradicts the ellipse `e` over the turn it
+    /// made: a stripe on a disc seen at b/a foreshortens by the factor
+    /// `1 / sqrt(cos²α + sin²α / (b/a)²)` (α its screen angle from the major axis), so an
+    /// outline fitted to other edges (a textured bench, a hexagon's flats) predicts a change of
+    /// length that the stripe does not show. The predicted and measured spreads (90th over
+    /// 10th percentile) are compared; a real tilt also changes the measured length.
+    pub(super) fn length_agrees_with(&self, e: &Ellipse) -> bool {
+        let phi = e.major_deg.to_radians();
+        let mut f: Vec<f64> = self
+            .seen
+            .iter()
+            .flatten()
+            .map(|(s, _)| {
+                let a = s.theta - phi;
+                1.0 / (a.cos().powi(2) + (a.sin() / e.axis_ratio).powi(2)).sqrt()
+            })
+            .collect();
+        if f.len() < 10 {
+            return true;
+        }
+        f.sort_by(f64::total_cmp);
+        let predicted = f[f.len() * 9 / 10] / f[f.len() / 10];
+        predicted - 1.0 <= 1.5 * (self.length_ratio() - 1.0) + 0.04
+    }
     /// Σ Δθ·|Δθ|² over the frame steps: its sign is the direction of the fastest steps.
     pub(super) fn sign_steps(&self) -> f64 {
         let a = self.angles();
@@ -234,5 +272,41 @@ mod tests {
         assert!(t.is_radial_about(q));
         assert!(t.radius_spread(q) < 1e-6);
         assert!((t.span_deg() - 19.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn an_ellipse_must_agree_with_the_stripe_s_length() {
+        // A stripe turning 60° about a point; seen square on, its length stays 40 px.
+        let e = Ellipse {
+            axis_ratio: 0.6,
+            major_deg: 0.0,
+        };
+        let track = |len: &dyn Fn(f64) -> f64| {
+            let seen: Vec<_> = (0..30)
+                .map(|k| {
+                    let a = (2.0 * k as f64).to_radians();
+                    let s = Seg {
+                        c: [100.0 + 30.0 * a.cos(), 100.0 + 30.0 * a.sin()],
+                        theta: wrap_half(a),
+                        ext: [-20.0, 20.0],
+                        length: len(a),
+                        dark: false,
+                        contrast: 0.3,
+                    };
+                    Some((s, a))
+                })
+                .collect();
+            let first = seen[0].unwrap().0;
+            Track {
+                first,
+                last: first,
+                seen,
+                theta: 0.0,
+            }
+        };
+        let flat = track(&|_| 40.0);
+        assert!(!flat.length_agrees_with(&e));
+        let tilted = track(&|a: f64| 40.0 / (a.cos().powi(2) + (a.sin() / 0.6).powi(2)).sqrt());
+        assert!(tilted.length_agrees_with(&e));
     }
 }
