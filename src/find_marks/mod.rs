@@ -263,7 +263,11 @@ fn find_stream(
         }
     }
     // Most travel first (motion, not looks, orders them).
-    parts.sort_by(|a, b| tracks[b.0].travel_deg().total_cmp(&tracks[a.0].travel_deg()));
+    parts.sort_by(|a, b| {
+        tracks[b.0]
+            .travel_deg()
+            .total_cmp(&tracks[a.0].travel_deg())
+    });
     let mut cands: Vec<(usize, Option<[f64; 2]>)> =
         parts.iter().map(|&(i, p)| (i, Some(p))).collect();
     if cands.len() < 2 {

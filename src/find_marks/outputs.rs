@@ -85,15 +85,15 @@ pub fn check_outputs(clip: &Path, outputs: &[(&str, &Path)], force: bool) -> Res
         }
         if clip_dir && out.exists() {
             // A hard link to a still, made elsewhere, is the still too.
-            if let Ok(rd) = std::fs::read_dir(clip) {
-                if rd.flatten().any(|e| same_file(&e.path(), out)) {
-                    return Err(refuse(
-                        out,
-                        format!(
-                            "{flag}: refused, this is the same file as a still of the input clip (not even --force replaces an input); write it elsewhere"
-                        ),
-                    ));
-                }
+            if let Ok(rd) = std::fs::read_dir(clip)
+                && rd.flatten().any(|e| same_file(&e.path(), out))
+            {
+                return Err(refuse(
+                    out,
+                    format!(
+                        "{flag}: refused, this is the same file as a still of the input clip (not even --force replaces an input); write it elsewhere"
+                    ),
+                ));
             }
         }
         if let Some((_, other)) = seen.iter().find(|(p, _)| *p == res) {

@@ -83,7 +83,7 @@ pub(super) fn meet(lines: &[Line]) -> Option<Meeting> {
     if lines.len() < 2 {
         return None;
     }
-    let mut rng = ChaCha8Rng::seed_from_u64(0x7069_766f_74);
+    let mut rng = ChaCha8Rng::seed_from_u64(0x0070_6976_6f74);
     let mut best: Option<([f64; 2], usize)> = None;
     for _ in 0..PAIRS {
         let i = rng.random_range(0..lines.len());

@@ -178,10 +178,10 @@ impl Votes {
     /// the count of votes that agree with the choice out of those cast.
     pub(super) fn decide(&self) -> (bool, usize, usize) {
         let mut cast = Vec::new();
-        if let Some(l) = self.lag_frames {
-            if l.abs() >= 0.25 {
-                cast.push(l > 0.0);
-            }
+        if let Some(l) = self.lag_frames
+            && l.abs() >= 0.25
+        {
+            cast.push(l > 0.0);
         }
         let [ba, bb] = self.back_swing_deg;
         if (ba - bb).abs() >= 0.5 {
