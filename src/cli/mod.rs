@@ -10,8 +10,8 @@ mod analyze;
 mod bar;
 mod batch;
 mod calibrate;
-mod info;
 mod find_marks;
+mod info;
 mod progress;
 
 /// Measures impact blows on a torsion extension bar from high-speed video: per-frame angles
