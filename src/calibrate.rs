@@ -15,7 +15,7 @@
 //! direction (the rig's `tighten`). With two frames the tracker's pivot refinement does not
 //! run (it needs a clip that turns through many degrees), so an error in a rig pivot scales
 //! the measured drive angle (1 px off changed a 10° twist on the invented bench by 0.7 to
-//! 1.9 %, see the unit test): place the pivots on the reference image (`twistmark locate`).
+//! 1.9 %, see the unit test): place the pivots on the reference image (`twistmark find-marks`).
 //!
 //! Images are read with the stills decoder's own luma reduction (Rec. 601 weights for
 //! colour, ITU-R BT.601-7 §2.5.1). Every error names the CSV file, its line and the image.

@@ -29,8 +29,8 @@ pub mod decode;
 #[cfg(feature = "ffmpeg")]
 pub mod encode;
 mod error;
+pub mod find_marks;
 pub mod limits;
-pub mod locate;
 pub mod mechanics;
 pub mod report;
 pub mod rig;

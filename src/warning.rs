@@ -52,8 +52,8 @@ pub enum Warning {
         /// What torque the stress is for (`rating`, `measured peak`).
         at: String,
     },
-    /// `locate` could not decide something, or decided it with doubt.
-    LocateUnsure {
+    /// `find-marks` could not decide something, or decided it with doubt.
+    FindMarksUnsure {
         /// What was not decided (`drive pivot`, `roles`, `fixed`, ...).
         item: String,
         /// What was seen and what to check.
@@ -113,7 +113,7 @@ impl fmt::Display for Warning {
                  shear yield {shear_yield_mpa:.0} MPa; the bar may take a permanent set",
                 100.0 * stress_mpa / shear_yield_mpa
             ),
-            Warning::LocateUnsure { item, reason } => write!(f, "locate, {item}: {reason}"),
+            Warning::FindMarksUnsure { item, reason } => write!(f, "find-marks, {item}: {reason}"),
             Warning::TwistZeroUnverified { frame } => write!(
                 f,
                 "twist zero unverified: the clip shows no still stretch before the first blow, so \

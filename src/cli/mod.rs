@@ -10,8 +10,8 @@ mod analyze;
 mod bar;
 mod batch;
 mod calibrate;
+mod find_marks;
 mod info;
-mod locate;
 mod progress;
 
 /// Measures impact blows on a torsion extension bar from high-speed video: per-frame angles
@@ -33,8 +33,8 @@ enum Command {
     Batch(batch::BatchArgs),
     /// Print the bar's stiffness, twist and stress at its rating.
     Bar(bar::BarArgs),
-    /// Find the marks in a clip and write a draft rig.
-    Locate(locate::LocateArgs),
+    /// Find the painted marks in a clip by their motion and write a draft rig.
+    FindMarks(find_marks::FindMarksArgs),
     /// Fit the bar's stiffness from torque-wrench checks and write it into a rig.
     Calibrate(calibrate::CalibrateArgs),
 }
@@ -47,7 +47,7 @@ pub fn run() -> Result<ExitCode> {
         Command::Analyze(a) => analyze::run(a),
         Command::Batch(a) => batch::run(a),
         Command::Bar(a) => bar::run(a),
-        Command::Locate(a) => locate::run(a),
+        Command::FindMarks(a) => find_marks::run(a),
         Command::Calibrate(a) => calibrate::run(a),
     }
 }

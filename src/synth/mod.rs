@@ -23,9 +23,11 @@
 
 #[doc(hidden)]
 pub mod fixtures;
+pub mod layout;
 mod model;
 mod scene;
 pub mod side;
+mod texture;
 mod write;
 
 use rand::{Rng, SeedableRng};
@@ -37,6 +39,7 @@ use crate::mechanics::{BarSpec, SectionSpec};
 use crate::rig::{Mark, Marks, RIG_VERSION, RadialMark, Rig, Spin};
 
 pub use scene::{DriveDisc, FixedMark, Highlight, NutFace, Paint, Scene, Steel, Stripe};
+pub use texture::BrushedSteel;
 #[cfg(feature = "ffmpeg")]
 pub use write::write_video;
 pub use write::{StillFormat, write_rest_still, write_sidecars, write_stills};
@@ -226,6 +229,7 @@ fn bench_scene() -> Scene {
             plate_half_px: [18.0, 6.0],
         }),
         supersample: 16,
+        background_texture: None,
     }
 }
 

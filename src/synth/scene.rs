@@ -166,6 +166,9 @@ pub struct Scene {
     pub fixed: Option<FixedMark>,
     /// Supersampling per axis at edge pixels (n×n jittered samples), 1..=16.
     pub supersample: u32,
+    /// A textured bench behind the parts (None: the plain gradient alone).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub background_texture: Option<super::texture::BrushedSteel>,
 }
 
 /// The moving state of one instant, as the renderer needs it.
@@ -279,6 +282,9 @@ impl<'a> Prepared<'a> {
         // Background: a smooth vertical gradient.
         let fy = (y / f64::from(s.height.max(1))).clamp(0.0, 1.0) as f32;
         let mut v = s.background_top + (s.background_bottom - s.background_top) * fy;
+        if let Some(t) = &s.background_texture {
+            v += t.at(x, y);
+        }
 
         // Fixed bracket and stripe.
         if let Some(f) = &s.fixed {
@@ -465,6 +471,7 @@ mod tests {
             },
             fixed: None,
             supersample: 8,
+            background_texture: None,
         }
     }
 

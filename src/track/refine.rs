@@ -2,7 +2,7 @@
 //!
 //! A pivot that is off by a pixel makes the stripe's angular position about it wrong by an
 //! amount that changes as the part turns (about 0.3° RMS over a 30° turn for 1 px at 40 px
-//! radius), and a rig's pivot is read off a frame by a person or by `locate`, so it is rarely
+//! radius), and a rig's pivot is read off a frame by a person or by `find-marks`, so it is rarely
 //! exact. Camera shake in the first frame has the same effect.
 //!
 //! The stripe's *direction* does not depend on the pivot: it is a straight line fixed to the

@@ -23,7 +23,7 @@
 //! | rig: inner radius ≥ outer | [`rig_inner_radius_not_below_outer`] |
 //! | --fps 0, negative, NaN: analyze | `bad_input_decode.rs::bad_fps_on_analyze_names_the_flag` |
 //! | --fps 0, negative, NaN: batch | [`bad_fps_on_batch_names_the_flag`] |
-//! | --fps negative: locate | [`negative_fps_on_locate_is_a_value_not_a_usage_error`] |
+//! | --fps negative: find-marks | [`negative_fps_on_find_marks_is_a_value_not_a_usage_error`] |
 //! | data: a mark never found | [`a_mark_with_no_paint_is_named`] |
 //! | data: a clip shorter than one blow | [`a_clip_shorter_than_one_blow_is_a_warning`] |
 //! | fuzz finds (`tools/fuzz.sh`) | [`fuzz_rig_field_name_with_a_newline`], [`fuzz_truncated_jpeg_still`], [`fuzz_still_header_claiming_petabytes`] |
@@ -461,11 +461,11 @@ fn bad_fps_on_batch_names_the_flag() {
 }
 
 #[test]
-fn negative_fps_on_locate_is_a_value_not_a_usage_error() {
+fn negative_fps_on_find_marks_is_a_value_not_a_usage_error() {
     let dir = tempfile::tempdir().unwrap();
     copy_frames("fast-tool", &dir.path().join("clip"), Some(3));
     let out = run([
-        "locate".as_ref(),
+        "find-marks".as_ref(),
         dir.path().join("clip").as_os_str(),
         "--out".as_ref(),
         dir.path().join("draft.rig.json").as_os_str(),

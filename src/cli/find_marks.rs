@@ -1,15 +1,18 @@
-//! `twistmark locate CLIP --out RIG.json`: find the marks and write a draft rig.
+//! `twistmark find-marks CLIP --out RIG.json`: find the marks by their motion and write a
+//! draft rig. Nothing is replaced without `--force`, and the input clip never is.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use anyhow::{Context, Result};
+use anyhow::Result;
 use clap::Args;
-use twistmark::locate::{LocateOptions, PivotFrom, locate, write_preview};
+use twistmark::find_marks::{
+    FindMarksOptions, PivotFrom, check_outputs, find_marks, write_atomic, write_preview,
+};
 
-/// Arguments of `locate`.
+/// Arguments of `find-marks`.
 #[derive(Debug, Args)]
-pub struct LocateArgs {
+pub struct FindMarksArgs {
     /// A video file or a folder of numbered stills.
     clip: PathBuf,
     /// Where to write the draft rig.
@@ -21,19 +24,27 @@ pub struct LocateArgs {
     /// Write a preview of the first frame with the marks drawn.
     #[arg(long, value_name = "PNG")]
     preview: Option<PathBuf>,
+    /// Replace the rig or preview file if it exists (never the input clip or its stills).
+    #[arg(long)]
+    force: bool,
 }
 
-pub fn run(a: LocateArgs) -> Result<ExitCode> {
+pub fn run(a: FindMarksArgs) -> Result<ExitCode> {
     let fps_hz = super::parse_fps(a.fps.as_deref())?;
-    twistmark::report::check_not_input(&a.out, "--out", &[&a.clip])?;
+    let mut outputs = vec![("--out", a.out.as_path())];
     if let Some(p) = &a.preview {
-        twistmark::report::check_not_input(p, "--preview", &[&a.clip, &a.out])?;
+        outputs.push(("--preview", p.as_path()));
     }
-    let found = locate(&a.clip, &LocateOptions { fps_hz })?;
-    std::fs::write(&a.out, found.rig.to_json_pretty() + "\n")
-        .with_context(|| format!("{}: could not write the draft rig", a.out.display()))?;
+    // Before the clip is read: a refusal should not cost the user a long wait.
+    check_outputs(&a.clip, &outputs, a.force)?;
+    let found = find_marks(&a.clip, &FindMarksOptions { fps_hz })?;
+    write_atomic(
+        &a.out,
+        (found.rig.to_json_pretty() + "\n").as_bytes(),
+        a.force,
+    )?;
     if let Some(p) = &a.preview {
-        write_preview(&found, p)?;
+        write_preview(&found, p, a.force)?;
     }
     println!(
         "read {} frame(s) of {}; wrote the draft rig {}",
@@ -42,7 +53,12 @@ pub fn run(a: LocateArgs) -> Result<ExitCode> {
         a.out.display()
     );
     for m in &found.marks {
-        let role = m.role.map_or("unused", |r| r.name());
+        let role = match (m.role, &m.alternative) {
+            (Some(r), Some(alt)) => format!("{} ({alt})", r.name()),
+            (Some(r), None) => r.name().to_string(),
+            (None, Some(alt)) => format!("({alt})"),
+            (None, None) => "unused".to_string(),
+        };
         let r = &m.mark;
         let pivot = match m.pivot_from {
             PivotFrom::Lines => "from the stripe's lines",

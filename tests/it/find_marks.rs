@@ -1,7 +1,7 @@
-//! `twistmark locate` end to end, and oblique discs: the real binary drafts a rig from each
+//! `twistmark find-marks` end to end, and oblique discs: the real binary drafts a rig from each
 //! bundled fixture, the draft is compared with the exact rig the renderer wrote, and the clip
 //! is analysed with both rigs and compared with the truth. Oblique discs are rendered at
-//! several tilts in memory and measured with the exact and the located rig.
+//! several tilts in memory and measured with the exact and the drafted rig.
 //!
 //! All clips are synthetic scenes of the project's invented test bench, rendered with exact
 //! known truth (docs/scenes.md). Targets are issue 7's: pivots within 3 px of the truth; the
@@ -18,7 +18,7 @@ use std::path::{Path, PathBuf};
 use assert_cmd::Command;
 use serde_json::Value;
 use twistmark::decode::Frame;
-use twistmark::locate::{LocateOptions, locate_frames};
+use twistmark::find_marks::{FindMarksOptions, find_marks_frames};
 use twistmark::rig::{Ellipse, Mark};
 use twistmark::synth::{Scenario, Steel, render_clip, simulate};
 use twistmark::track::Tracker;
@@ -64,7 +64,7 @@ fn analyse_rms(clip: &Path, rig: &Path, fps: f64, out: &Path, truth: &Value) -> 
     r
 }
 
-/// Locates the marks of one fixture with the binary and checks the draft against the truth.
+/// Finds the marks of one fixture with the binary and checks the draft against the truth.
 fn check_fixture(name: &str, clip: &str) {
     let dir = root().join("fixtures").join(name);
     let clip = dir.join(clip);
@@ -76,7 +76,7 @@ fn check_fixture(name: &str, clip: &str) {
         .unwrap();
     let out = Command::cargo_bin("twistmark")
         .unwrap()
-        .arg("locate")
+        .arg("find-marks")
         .arg(&clip)
         .arg("--out")
         .arg(&draft)
@@ -172,17 +172,17 @@ fn check_fixture(name: &str, clip: &str) {
 }
 
 #[test]
-fn locate_slow_tool_stills() {
+fn find_marks_slow_tool_stills() {
     check_fixture("slow-tool", "frames");
 }
 
 #[test]
-fn locate_fast_tool_stills() {
+fn find_marks_fast_tool_stills() {
     check_fixture("fast-tool", "frames");
 }
 
 #[test]
-fn locate_red_paint_tightening_ccw() {
+fn find_marks_red_paint_tightening_ccw() {
     // Dark (red) paint on bare steel, tightening counter-clockwise; the fixed stripe barely
     // contrasts with its bracket, so the draft has none (with a warning).
     check_fixture("ccw-red-bare", "frames");
@@ -190,7 +190,7 @@ fn locate_red_paint_tightening_ccw() {
 
 #[cfg(feature = "ffmpeg")]
 #[test]
-fn locate_oblique_drive_disc_ffv1() {
+fn find_marks_oblique_drive_disc_ffv1() {
     // The drive disc seen at b/a = 0.8: the ellipse comes from the disc's faint outline (dark
     // steel on a dark background).
     check_fixture("oblique-drive", "clip_ffv1.mkv");
@@ -198,53 +198,199 @@ fn locate_oblique_drive_disc_ffv1() {
 
 #[cfg(feature = "ffmpeg")]
 #[test]
-fn locate_demo_with_a_static_highlight() {
+fn find_marks_demo_with_a_static_highlight() {
     // Motion blur, noise, a static highlight on the drive disc, lossy H.264.
     check_fixture("demo", "clip_h264.mp4");
 }
 
 #[cfg(feature = "ffmpeg")]
 #[test]
-fn locate_noisy_clip_with_flicker_and_shake() {
+fn find_marks_noisy_clip_with_flicker_and_shake() {
     check_fixture("fast-tool-noisy", "clip_h264.mp4");
 }
 
 #[test]
-fn locate_says_what_it_could_not_decide() {
+fn find_marks_says_what_it_could_not_decide() {
     // Without a still stripe there is no fixed mark: a typed warning names it.
     let tmp = tempfile::tempdir().unwrap();
     let out = Command::cargo_bin("twistmark")
         .unwrap()
-        .arg("locate")
+        .arg("find-marks")
         .arg(root().join("fixtures/ccw-red-bare/frames"))
         .arg("--out")
         .arg(tmp.path().join("r.json"))
         .assert()
         .success();
     let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
-    assert!(err.contains("locate, fixed"), "{err}");
+    assert!(err.contains("find-marks, fixed"), "{err}");
     let rig = twistmark::Rig::from_path(&tmp.path().join("r.json")).unwrap();
     assert!(rig.capture_fps_hz.is_none());
 }
 
 #[test]
-fn locate_refuses_a_clip_without_turning_stripes() {
+fn find_marks_refuses_a_clip_without_turning_stripes() {
     // The first frame repeated: nothing turns, so drive and nut cannot be drafted.
     let tmp = tempfile::tempdir().unwrap();
     let src = root().join("fixtures/slow-tool/frames/f_00000.png");
     for i in 0..5 {
         std::fs::copy(&src, tmp.path().join(format!("f_{i}.png"))).unwrap();
     }
+    let out = tempfile::tempdir().unwrap();
     Command::cargo_bin("twistmark")
         .unwrap()
-        .arg("locate")
+        .arg("find-marks")
         .arg(tmp.path())
         .arg("--out")
-        .arg(tmp.path().join("r.json"))
+        .arg(out.path().join("r.json"))
         .assert()
         .code(1)
         .stderr(predicates::str::contains("turning stripe"));
-    assert!(!tmp.path().join("r.json").exists());
+    assert!(!out.path().join("r.json").exists());
+}
+
+#[test]
+fn the_retired_name_locate_is_an_unknown_command() {
+    // Interface version 2: `locate` was renamed `find-marks`, with no alias.
+    Command::cargo_bin("twistmark")
+        .unwrap()
+        .args(["locate", "clip", "--out", "r.json"])
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("unrecognized subcommand"));
+}
+
+/// Runs `find-marks` on the slow-tool stills (first 60 frames, copied) with the given extra
+/// arguments; returns (exit code, stderr).
+fn find_marks_on_copy(clip: &Path, args: &[&std::ffi::OsStr]) -> (i32, String) {
+    let out = Command::cargo_bin("twistmark")
+        .unwrap()
+        .arg("find-marks")
+        .arg(clip)
+        .args(args)
+        .output()
+        .unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stderr).to_string(),
+    )
+}
+
+#[test]
+fn find_marks_never_overwrites_without_force_and_never_its_input() {
+    let tmp = tempfile::tempdir().unwrap();
+    let clip = tmp.path().join("clip");
+    std::fs::create_dir(&clip).unwrap();
+    let src = root().join("fixtures/slow-tool/frames");
+    let mut names: Vec<_> = std::fs::read_dir(&src)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    names.sort();
+    for n in names.iter().take(60) {
+        std::fs::copy(src.join(n), clip.join(n)).unwrap();
+    }
+    let still = clip.join(&names[0]);
+    let still_bytes = std::fs::read(&still).unwrap();
+    let rig = tmp.path().join("rig.json");
+    let preview = tmp.path().join("preview.png");
+    std::fs::write(&rig, "my rig, with its bar\n").unwrap();
+    std::fs::write(&preview, "my picture").unwrap();
+
+    // 1. An existing rig and preview are kept without --force: exit 1, one line naming --force.
+    for (flag, path) in [("--out", &rig), ("--preview", &preview)] {
+        let other = tmp.path().join("new.json");
+        let (out, prev) = if flag == "--out" {
+            (path.as_os_str(), other.as_os_str())
+        } else {
+            (other.as_os_str(), path.as_os_str())
+        };
+        let (code, err) =
+            find_marks_on_copy(&clip, &["--out".as_ref(), out, "--preview".as_ref(), prev]);
+        assert_eq!(code, 1, "{err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+        assert!(err.contains("--force") && err.contains(flag), "{err}");
+        assert!(
+            !other.exists(),
+            "nothing is written when one output is refused"
+        );
+    }
+    assert_eq!(
+        std::fs::read_to_string(&rig).unwrap(),
+        "my rig, with its bar\n"
+    );
+    assert_eq!(std::fs::read_to_string(&preview).unwrap(), "my picture");
+
+    // 2. Never over a still of the input clip, nor inside its folder, not even with --force.
+    for target in [still.clone(), clip.join("rig.json")] {
+        for flag in ["--out", "--preview"] {
+            let mut args: Vec<&std::ffi::OsStr> = vec!["--force".as_ref()];
+            let spare = tmp.path().join("spare.json");
+            if flag == "--out" {
+                args.extend(["--out".as_ref(), target.as_os_str()]);
+            } else {
+                args.extend([
+                    "--out".as_ref(),
+                    spare.as_os_str(),
+                    "--preview".as_ref(),
+                    target.as_os_str(),
+                ]);
+            }
+            let (code, err) = find_marks_on_copy(&clip, &args);
+            assert_eq!(code, 1, "{err}");
+            assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+            assert!(
+                err.contains("refused") && err.contains("input clip"),
+                "{err}"
+            );
+            assert!(!spare.exists());
+        }
+    }
+    assert_eq!(std::fs::read(&still).unwrap(), still_bytes);
+    assert!(!clip.join("rig.json").exists());
+
+    // 3. With --force the rig and preview are replaced.
+    let (code, err) = find_marks_on_copy(
+        &clip,
+        &[
+            "--out".as_ref(),
+            rig.as_os_str(),
+            "--preview".as_ref(),
+            preview.as_os_str(),
+            "--force".as_ref(),
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    twistmark::Rig::from_path(&rig).unwrap();
+    image::open(&preview).unwrap();
+}
+
+#[cfg(feature = "ffmpeg")]
+#[test]
+fn find_marks_never_writes_over_its_input_video_even_with_force() {
+    let clip = root().join("fixtures/demo/clip_h264.mp4");
+    let tmp = tempfile::tempdir().unwrap();
+    let video = tmp.path().join("clip.mp4");
+    std::fs::copy(&clip, &video).unwrap();
+    let before = std::fs::read(&video).unwrap();
+    for flag in ["--out", "--preview"] {
+        let spare = tmp.path().join("spare.json");
+        let mut args: Vec<&std::ffi::OsStr> = vec!["--force".as_ref()];
+        if flag == "--out" {
+            args.extend(["--out".as_ref(), video.as_os_str()]);
+        } else {
+            args.extend([
+                "--out".as_ref(),
+                spare.as_os_str(),
+                "--preview".as_ref(),
+                video.as_os_str(),
+            ]);
+        }
+        let (code, err) = find_marks_on_copy(&video, &args);
+        assert_eq!(code, 1, "{err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+        assert!(err.contains("input clip itself"), "{err}");
+    }
+    assert_eq!(std::fs::read(&video).unwrap(), before);
 }
 
 /// An oblique drive disc (bare steel, so its outline shows against the dark background),
@@ -278,7 +424,7 @@ fn drive_rms(rig: &twistmark::Rig, frames: &[Frame], truth: &[f64]) -> f64 {
 }
 
 #[test]
-fn oblique_discs_meet_the_target_and_locate_finds_the_ellipse() {
+fn oblique_discs_meet_the_target_and_find_marks_finds_the_ellipse() {
     // Tilts: b/a = cos(tilt); 0.5 is a 60° tilt (orthographic view).
     for (ratio, major) in [(0.8, 20.0), (0.6, -35.0), (0.5, 60.0)] {
         let (sc, frames, truth) = oblique(ratio, major);
@@ -288,7 +434,7 @@ fn oblique_discs_meet_the_target_and_locate_finds_the_ellipse() {
             "b/a {ratio}: {exact:.3}° RMS with the exact rig"
         );
         let found =
-            locate_frames(Path::new("oblique"), &frames, &LocateOptions::default()).unwrap();
+            find_marks_frames(Path::new("oblique"), &frames, &FindMarksOptions::default()).unwrap();
         let Mark::Radial(d) = &found.rig.marks.drive else {
             panic!("drive not radial")
         };

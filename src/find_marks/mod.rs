@@ -1,0 +1,459 @@
+//! Finds the painted marks in a clip and drafts a rig: each stripe's pivot (where its lines
+//! across frames meet), its annulus, its role from its motion, its tightening direction, and an
+//! oblique disc's ellipse from the disc's outline where the outline is visible.
+//!
+//! # Method
+//!
+//! 1. **Stripes.** A painted stripe is a *ridge*: brighter (or darker) than the surface on
+//!    *both* sides. Per pixel and for eight directions the response is
+//!    `min(I(p) − I(p + d·n), I(p) − I(p − d·n))` with `d` = [`RIDGE_OFFSET_PX`]: a step edge
+//!    (the hex nut's outline, a bracket's border) has one side equal to the centre and scores
+//!    zero, and a round highlight is rejected afterwards because its component is not elongated.
+//!    Components are grown by hysteresis and kept when long and thin (weighted second moments,
+//!    Hu 1962, "Visual pattern recognition by moment invariants", IRE Trans. Inf. Theory).
+//! 2. **Tracks.** Each first-frame stripe is followed frame by frame inside a window around
+//!    its last position; its orientation is unwrapped modulo π.
+//!    Where nothing changed around a stripe since the first frame (a count of changed pixels
+//!    over its window, flicker scaled out), it is still there and is not searched for, so a
+//!    busy background costs little.
+//! 3. **Pivot.** A radial stripe's centre line passes through its pivot, so the pivot is the
+//!    point nearest the track's lines over all frames: Σ (nₜ·(p − cₜ))² minimised (nₜ the line
+//!    normal, cₜ the centroid), made robust to frames where the follower caught something
+//!    else by random sample consensus over pairs of lines and a trimmed refit (`pivot.rs`).
+//!    It is only defined when the stripe turned; below [`MIN_SPAN_DEG`] the pivot is not
+//!    decided and a warning says so.
+//! 4. **Marks by motion, roles by physics** (`roles.rs`). A stripe is a mark on a turning
+//!    part only when it turns rigidly about one fixed point: most of its lines meet there,
+//!    the point lies beyond one of its ends, and the stripe keeps its distance from it.
+//!    Anything else that moves (a follower hopping between the streaks of a brushed-steel
+//!    bench) is background. The drive end leads each blow, swings back after it and travels
+//!    more; the nut lags, moves less and stops first: three votes. Stripe length plays no
+//!    part. When the votes disagree, a warning says so and the preview labels both readings.
+//!    A stripe that does not turn is still; the one that stands out most is the fixed mark.
+//! 5. **Tightening.** The drive end's fast steps (the blows) run the tightening way: the sign
+//!    of Σ Δθ·|Δθ|² over the drive's frame steps. The nut end's net advance gives its own.
+//! 6. **Ellipse.** Rays from the pivot find the disc's outline (the strongest luma step
+//!    beyond the stripe); a centred conic `A x² + B xy + C y² = 1` chosen by consensus over
+//!    fixed triples of those points, then fitted by trimmed least squares, gives the axes
+//!    (eigenvalues) and the major-axis direction (eigenvector). It is used only when the fit
+//!    is tight (RMS ≤ 1.2 % of the major axis); a hexagon does not fit.
+//!
+//! At most the first [`MAX_FRAMES`] frames are read.
+
+use std::path::Path;
+
+use crate::decode::{self, Frame};
+use crate::error::{Error, Result};
+use crate::rig::{Mark, Marks, RIG_VERSION, RadialMark, Rig, Role, Spin};
+use crate::warning::Warning;
+
+mod draft;
+mod ellipse;
+mod luma;
+mod outputs;
+mod pivot;
+mod preview;
+mod ridge;
+mod roles;
+mod stripes;
+
+pub use outputs::{check_outputs, write_atomic};
+pub use preview::write_preview;
+pub use ridge::RIDGE_OFFSET_PX;
+
+use draft::{fixed_from, radial_from, unsure};
+use luma::{Change, Img};
+use ridge::detect;
+use roles::{Kind, classify, votes};
+use stripes::Track;
+
+/// Below this turn over the clip a stripe's pivot is not decided from its motion, degrees.
+pub const MIN_SPAN_DEG: f64 = 4.0;
+/// A stripe that turns less than this over the clip is taken as fixed, degrees (the jitter of
+/// a short stripe's orientation under noise and flicker stays below it).
+const STILL_DEG: f64 = 2.0;
+/// A radial stripe's lines over the clip pass within this RMS distance of their
+/// intersection, px; a track whose lines do not meet is not a radial stripe.
+const MAX_LINE_RMS_PX: f64 = 1.5;
+
+/// Stripes followed at most (those that stand out most in the first frame).
+const MAX_STRIPES: usize = 400;
+/// Turning stripes whose pivots are this close belong to one part, px.
+const SAME_PIVOT_PX: f64 = 4.0;
+/// A still stripe is taken for the fixed mark only when it stands out at least this fraction
+/// as much as the fainter of the drive and nut stripes.
+const FIXED_MIN_CONTRAST: f64 = 0.5;
+/// Still stripes drawn on the preview as alternatives to the fixed mark, at most.
+const MAX_ALTERNATIVES: usize = 4;
+
+/// Frames read at most (the first ones of the clip).
+pub const MAX_FRAMES: u64 = 1500;
+/// The annulus is the stripe's span trimmed by this much at the inner and outer ends, px
+/// (as the project's exact rigs are drawn).
+/// The ridge component reaches about 1.5 px past each painted end (the 3×3 smoothing), so
+/// that is added to the trims.
+pub(crate) const TRIM_INNER_PX: f64 = 4.0 + 1.5;
+pub(crate) const TRIM_OUTER_PX: f64 = 2.0 + 1.5;
+
+/// Options of [`find_marks`].
+#[derive(Debug, Clone, Default)]
+pub struct FindMarksOptions {
+    /// The camera's capture rate, written into the draft rig as `capture_fps_hz`.
+    pub fps_hz: Option<f64>,
+}
+
+/// How a mark's pivot was decided.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PivotFrom {
+    /// Intersection of the stripe's lines over the clip.
+    Lines,
+    /// Not decided from motion: placed at the stripe's end (fixed marks, or too little turn).
+    StripeEnd,
+}
+
+/// One mark found in the clip.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FoundMark {
+    /// The role given to it (None: a stripe that was not used).
+    pub role: Option<Role>,
+    /// The drafted rig mark.
+    pub mark: RadialMark,
+    /// How the pivot was decided.
+    pub pivot_from: PivotFrom,
+    /// Net turn over the clip on screen, degrees (clockwise positive).
+    pub net_deg: f64,
+    /// Total back-and-forth travel over the clip, degrees.
+    pub travel_deg: f64,
+    /// True when the paint is darker than the surface around it.
+    pub dark: bool,
+    /// When the role is unsure or the stripe is not used: the other reading, for the preview.
+    pub alternative: Option<String>,
+}
+
+/// What [`find_marks`] found.
+#[derive(Debug, Clone)]
+pub struct FoundMarks {
+    /// The draft rig (no bar: the user fills it in).
+    pub rig: Rig,
+    /// Every stripe found, with its role.
+    pub marks: Vec<FoundMark>,
+    /// What could not be decided, or was decided with doubt.
+    pub warnings: Vec<Warning>,
+    /// The clip's first frame (for the preview).
+    pub first: Frame,
+    /// Frames read.
+    pub frames_read: u64,
+}
+
+/// Finds the marks in the clip at `clip` and drafts a rig.
+///
+/// # Errors
+/// [`Error::Input`]/[`Error::Decode`] when the clip cannot be read; [`Error::Mark`] naming the
+/// role when fewer than two turning stripes are found (the drive and nut ends cannot be drafted).
+pub fn find_marks(clip: &Path, opts: &FindMarksOptions) -> Result<FoundMarks> {
+    let mut source = decode::open(clip)?;
+    let mut frame = Frame::empty();
+    if !source.read_into(&mut frame)? {
+        return Err(Error::input(clip, "the clip has no frames"));
+    }
+    let first = frame.clone();
+    let mut count = 1u64;
+    let next = move || -> Result<Option<Frame>> {
+        if count >= MAX_FRAMES || !source.read_into(&mut frame)? {
+            return Ok(None);
+        }
+        count += 1;
+        Ok(Some(frame.clone()))
+    };
+    find_stream(clip, first, next, opts)
+}
+
+/// As [`find_marks`], on frames already in memory (first frame first).
+///
+/// # Errors
+/// As [`find_marks`].
+pub fn find_marks_frames(
+    clip: &Path,
+    frames: &[Frame],
+    opts: &FindMarksOptions,
+) -> Result<FoundMarks> {
+    let Some(first) = frames.first() else {
+        return Err(Error::input(clip, "the clip has no frames"));
+    };
+    let mut rest = frames[1..].iter().take(MAX_FRAMES as usize - 1);
+    find_stream(clip, first.clone(), || Ok(rest.next().cloned()), opts)
+}
+
+/// The work of [`find_marks`]: the first frame, then the others one at a time.
+fn find_stream(
+    clip: &Path,
+    first: Frame,
+    mut next: impl FnMut() -> Result<Option<Frame>>,
+    opts: &FindMarksOptions,
+) -> Result<FoundMarks> {
+    let first = &first;
+    if first.width < 16 || first.height < 16 {
+        return Err(Error::input(
+            clip,
+            format!(
+                "the {}x{} frame is too small to hold a mark",
+                first.width, first.height
+            ),
+        ));
+    }
+    let img0 = Img::from_frame(first);
+    let mut warnings = Vec::new();
+    let mut segs = detect(&img0, [0, img0.w, 0, img0.h]);
+    if segs.len() > MAX_STRIPES {
+        // Bounded work on a busy background: keep the stripes that stand out most.
+        warnings.push(unsure(
+            "stripes",
+            format!(
+                "{} stripe-like features in the first frame; only the {MAX_STRIPES} that stand out most were followed",
+                segs.len()
+            ),
+        ));
+        segs.sort_by(|a, b| b.contrast.total_cmp(&a.contrast));
+        segs.truncate(MAX_STRIPES);
+    }
+    let mut tracks: Vec<Track> = segs.into_iter().map(Track::start).collect();
+    let mut change = Change::new(&img0);
+    let mut n = 1usize;
+    while let Some(f) = next()? {
+        let f = &f;
+        n += 1;
+        if (f.width, f.height) != (first.width, first.height) {
+            return Err(Error::input(
+                clip,
+                format!(
+                    "frame {} is {}x{} but the clip started at {}x{}; re-encode the clip at one frame size",
+                    f.index, f.width, f.height, first.width, first.height
+                ),
+            ));
+        }
+        let img = Img::from_frame(f);
+        change.update(&img);
+        for t in tracks.iter_mut() {
+            // Nothing changed around the stripe since the first frame: it is still there.
+            if change.count(t.window(img.w, img.h)) <= 2 {
+                t.stay();
+            } else {
+                t.follow(&img);
+            }
+        }
+    }
+    let (w, h) = (img0.w, img0.h);
+    let kinds: Vec<Kind> = tracks.iter().map(|t| classify(t, w, h)).collect();
+
+    // Turning parts: turning stripes grouped by pivot; per part, the stripe seen most often.
+    let mut parts: Vec<(usize, [f64; 2])> = Vec::new();
+    for (i, k) in kinds.iter().enumerate() {
+        let Kind::Turning { pivot } = *k else {
+            continue;
+        };
+        let near = |q: &[f64; 2]| (q[0] - pivot[0]).hypot(q[1] - pivot[1]) <= SAME_PIVOT_PX;
+        match parts.iter_mut().find(|(_, q)| near(q)) {
+            Some(part) => {
+                let (a, b) = (&tracks[i], &tracks[part.0]);
+                if (a.seen_fraction(), a.first.contrast) > (b.seen_fraction(), b.first.contrast) {
+                    *part = (i, pivot);
+                }
+            }
+            None => parts.push((i, pivot)),
+        }
+    }
+    // Most travel first (motion, not looks, orders them).
+    parts.sort_by(|a, b| {
+        tracks[b.0]
+            .travel_deg()
+            .total_cmp(&tracks[a.0].travel_deg())
+    });
+    let mut cands: Vec<(usize, Option<[f64; 2]>)> =
+        parts.iter().map(|&(i, p)| (i, Some(p))).collect();
+    if cands.len() < 2 {
+        // Stripes that turned a little: their pivots cannot be placed from the motion.
+        let mut weak: Vec<usize> = (0..tracks.len())
+            .filter(|&i| kinds[i] == Kind::Weak)
+            .collect();
+        weak.sort_by(|&a, &b| tracks[b].motion().1.total_cmp(&tracks[a].motion().1));
+        cands.extend(weak.into_iter().map(|i| (i, None)).take(2 - cands.len()));
+    }
+    if cands.len() < 2 {
+        let background = kinds.iter().filter(|k| **k == Kind::Background).count();
+        return Err(Error::Mark {
+            mark: if cands.is_empty() { "drive" } else { "nut" }.into(),
+            reason: format!(
+                "found {} turning stripe(s) in {} frame(s) of {} ({background} stripe-like feature(s) moved but did not turn about a fixed point, so were taken as background); need the drive and the nut stripe: use a clip with at least one blow, paint 3-8 px wide stripes that contrast with the surface, or write the rig by hand",
+                cands.len(),
+                n,
+                clip.display()
+            ),
+        });
+    }
+    if parts.len() > 2 {
+        warnings.push(unsure(
+            "roles",
+            format!(
+                "{} parts turn about distinct pivots; the two that travel most were taken as drive and nut, and the others are drawn on the preview as alternatives",
+                parts.len()
+            ),
+        ));
+    }
+    let (ia, ib) = (cands[0].0, cands[1].0);
+    let v = votes(&tracks[ia], &tracks[ib]);
+    let (a_drive, agree, cast) = v.decide();
+    let (di, ni) = if a_drive { (0, 1) } else { (1, 0) };
+    let (dt, nt) = (&tracks[cands[di].0], &tracks[cands[ni].0]);
+    let roles_sure = cast >= 2 && agree == cast;
+    if !roles_sure {
+        let lag = v
+            .lag_frames
+            .map_or("no blow onsets paired up".to_string(), |l| {
+                let l = if a_drive { l } else { -l };
+                format!("the nut's onsets lag by {l:+.1} frame(s)")
+            });
+        let [bs, ts] =
+            [v.back_swing_deg, v.travel_deg].map(|x| if a_drive { x } else { [x[1], x[0]] });
+        warnings.push(unsure(
+            "drive/nut",
+            format!(
+                "{agree} of {cast} signs call the part at [{:.0}, {:.0}] the drive end ({lag}; back-swing {:.1}° vs {:.1}°; travel {:.1}° vs {:.1}°); the preview labels both readings: swap \"drive\" and \"nut\" if the other one leads the blows",
+                dt.first.c[0], dt.first.c[1], bs[0], bs[1], ts[0], ts[1]
+            ),
+        ));
+    }
+    let nm = nt.motion();
+
+    // Tightening: the drive's fast steps.
+    let drive_steps = dt.sign_steps();
+    let drive_spin = if drive_steps >= 0.0 {
+        Spin::Cw
+    } else {
+        Spin::Ccw
+    };
+    let nut_spin = if nm.0.abs() >= 0.5 {
+        if nm.0 > 0.0 { Spin::Cw } else { Spin::Ccw }
+    } else {
+        warnings.push(unsure(
+            "nut tighten",
+            format!(
+                "the nut stripe advanced only {:.2}° over the clip; its tightening direction was copied from the drive end",
+                nm.0
+            ),
+        ));
+        drive_spin
+    };
+    if nm.0.abs() >= 0.5 && nut_spin != drive_spin {
+        warnings.push(unsure(
+            "tighten",
+            "the drive end's blows and the nut's advance turn opposite ways on screen; check each mark's \"tighten\" against the preview".to_string(),
+        ));
+    }
+
+    let mut marks = Vec::new();
+    let mut drive = radial_from(
+        dt,
+        Role::Drive,
+        Some(drive_spin),
+        cands[di].1,
+        &img0,
+        &mut warnings,
+    );
+    let mut nut = radial_from(
+        nt,
+        Role::Nut,
+        Some(nut_spin),
+        cands[ni].1,
+        &img0,
+        &mut warnings,
+    );
+    if !roles_sure {
+        drive.alternative = Some("or nut?".into());
+        nut.alternative = Some("or drive?".into());
+    }
+    marks.push(drive.clone());
+    marks.push(nut.clone());
+    for &(i, p) in cands.iter().skip(2) {
+        marks.push(FoundMark {
+            role: None,
+            alternative: Some("turning, not used".into()),
+            ..radial_from(&tracks[i], Role::Nut, None, p, &img0, &mut Vec::new())
+        });
+    }
+    // The fixed mark: of the still stripes, the one that stands out most from its surface.
+    let mut still: Vec<&Track> = tracks
+        .iter()
+        .zip(&kinds)
+        .filter(|(_, k)| **k == Kind::Still)
+        .map(|(t, _)| t)
+        .collect();
+    still.sort_by(|a, b| b.first.contrast.total_cmp(&a.first.contrast));
+    // The fixed mark is painted like the others: a still stripe far fainter than the paint on
+    // the turning parts is texture (a streak of the bench), and tracking it would only add
+    // its noise to both ends through the shake correction.
+    let paint = dt.first.contrast.min(nt.first.contrast);
+    let faint = still
+        .iter()
+        .filter(|t| t.first.contrast < FIXED_MIN_CONTRAST * paint)
+        .count();
+    let fixed = still
+        .first()
+        .filter(|t| t.first.contrast >= FIXED_MIN_CONTRAST * paint)
+        .map(|t| fixed_from(t));
+    if fixed.is_none() && faint > 0 {
+        warnings.push(unsure(
+            "fixed",
+            format!(
+                "{faint} still stripe(s) found, but none stands out like the paint on the turning parts (texture, not paint), so the draft has no fixed mark and camera shake will not be corrected; paint a stripe on something that does not move"
+            ),
+        ));
+    }
+    let strong = still.len() - faint;
+    if fixed.is_some() && strong > 1 {
+        warnings.push(unsure(
+            "fixed",
+            format!(
+                "{strong} still stripes stand out like paint; the one that stands out most was taken as the fixed mark, and the next {} are drawn on the preview as alternatives",
+                (strong - 1).min(MAX_ALTERNATIVES)
+            ),
+        ));
+    }
+    if fixed.is_none() && faint == 0 {
+        warnings.push(unsure(
+            "fixed",
+            "no still stripe found, so the draft has no fixed mark and camera shake will not be corrected; paint a stripe on something that does not move".to_string(),
+        ));
+    }
+    if let Some(f) = &fixed {
+        marks.push(f.clone());
+    }
+    for t in still
+        .iter()
+        .skip(1)
+        .filter(|t| t.first.contrast >= FIXED_MIN_CONTRAST * paint)
+        .take(MAX_ALTERNATIVES)
+    {
+        marks.push(FoundMark {
+            role: None,
+            alternative: Some("still, not used".into()),
+            ..fixed_from(t)
+        });
+    }
+    let rig = Rig {
+        rig_version: RIG_VERSION,
+        capture_fps_hz: opts.fps_hz,
+        marks: Marks {
+            drive: Mark::Radial(drive.mark),
+            nut: Mark::Radial(nut.mark),
+            fixed: fixed.map(|f| Mark::Radial(f.mark)),
+        },
+        bar: None,
+    };
+    Ok(FoundMarks {
+        rig,
+        marks,
+        warnings,
+        first: first.clone(),
+        frames_read: n as u64,
+    })
+}
