@@ -106,6 +106,8 @@ pub struct ClipWriter {
     height: u32,
     bit_depth: u8,
     next_pts: i64,
+    /// Colour planes are written from each frame's chroma.
+    colour: bool,
 }
 
 impl ClipWriter {
@@ -135,14 +137,30 @@ impl ClipWriter {
         fps_hz: f64,
         bit_depth: u8,
     ) -> Result<Self> {
-        Self::create_inner(path, codec, width, height, fps_hz, bit_depth, false)
+        Self::create_inner(path, codec, width, height, fps_hz, bit_depth, false, false)
+    }
+
+    /// An 8-bit colour clip: 4:2:0 Y′CbCr (`yuv420p`, `yuvj420p` for MJPEG) for any codec.
+    /// Frames with [`Frame::chroma`] have their colour planes stored (averaged over 2×2
+    /// blocks when given at full size); frames without it are stored grey.
+    ///
+    /// # Errors
+    /// As [`create`](ClipWriter::create).
+    pub fn create_colour(
+        path: &Path,
+        codec: Codec,
+        width: u32,
+        height: u32,
+        fps_hz: f64,
+    ) -> Result<Self> {
+        Self::create_inner(path, codec, width, height, fps_hz, 8, false, true)
     }
 
     /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
     /// swscale path for formats without a Y plane.
     #[cfg(test)]
     pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
-        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, true)
+        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, true, false)
     }
 
     fn create_inner(
@@ -153,6 +171,7 @@ impl ClipWriter {
         fps_hz: f64,
         bit_depth: u8,
         rgb_png: bool,
+        colour: bool,
     ) -> Result<Self> {
         ffmpeg_init();
         let fail = |reason: String| Error::Output {
@@ -182,6 +201,11 @@ impl ClipWriter {
         }
         let pix = if rgb_png {
             Some(Pixel::RGB24)
+        } else if colour && bit_depth == 8 {
+            Some(match codec {
+                Codec::Mjpeg { .. } => Pixel::YUVJ420P,
+                _ => Pixel::YUV420P,
+            })
         } else {
             codec.pixel_format(bit_depth)
         };
@@ -321,6 +345,7 @@ impl ClipWriter {
             height,
             bit_depth,
             next_pts: 0,
+            colour,
         })
     }
 
@@ -380,12 +405,48 @@ impl ClipWriter {
                 }
             }
         }
+        if self.colour {
+            self.write_chroma(frame);
+        }
         self.picture.set_pts(Some(self.next_pts));
         self.next_pts += 1;
         self.encoder
             .send_frame(&self.picture)
             .map_err(|e| self.fail(format!("encoder refused frame {}: {e}", self.next_pts - 1)))?;
         self.drain()
+    }
+
+    /// Fills the 4:2:0 colour planes from `frame`'s chroma (2×2 means of full-size planes,
+    /// rounded; copied when already at half size), or with the neutral value.
+    fn write_chroma(&mut self, frame: &Frame) {
+        let (cw, ch) = (
+            self.width.div_ceil(2) as usize,
+            self.height.div_ceil(2) as usize,
+        );
+        for plane in 1..3 {
+            let stride = self.picture.stride(plane);
+            let dst = self.picture.data_mut(plane);
+            let Some(c) = &frame.chroma else {
+                dst.fill(128);
+                continue;
+            };
+            let src = if plane == 1 { &c.cb } else { &c.cr };
+            let (sw, sh) = (c.width as usize, c.height as usize);
+            for y in 0..ch {
+                for x in 0..cw {
+                    dst[y * stride + x] = if sw == cw && sh == ch {
+                        src[y * sw + x]
+                    } else {
+                        let mut acc = 0u32;
+                        for (dy, dx) in [(0, 0), (0, 1), (1, 0), (1, 1)] {
+                            let (sx, sy) = ((2 * x + dx).min(sw - 1), (2 * y + dy).min(sh - 1));
+                            acc += u32::from(src[sy * sw + sx]);
+                        }
+                        ((acc + 2) / 4) as u8
+                    };
+                }
+            }
+        }
     }
 
     /// Flushes the encoder and writes the file's trailer. Returns the number of frames written.

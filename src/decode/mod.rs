@@ -23,6 +23,73 @@ pub enum Luma {
     U16(Vec<u16>),
 }
 
+/// The two colour-difference planes of a colour frame, 8 bit (Cb and Cr of Y′CbCr, the
+/// neutral grey at 128; ITU-R BT.601-7 §2.5.2 with full-range scaling), row-major with no
+/// padding. They may be subsampled: 4:2:0 video stores half the width and height
+/// (rounded up), an RGB still the full size.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Chroma {
+    /// Plane width in samples.
+    pub width: u32,
+    /// Plane height in samples.
+    pub height: u32,
+    /// Blue-difference samples, `width * height`.
+    pub cb: Vec<u8>,
+    /// Red-difference samples, `width * height`.
+    pub cr: Vec<u8>,
+}
+
+impl Chroma {
+    /// The planes borrowed.
+    pub fn view(&self) -> ChromaRef<'_> {
+        ChromaRef {
+            width: self.width,
+            height: self.height,
+            cb: &self.cb,
+            cb_stride: self.width as usize,
+            cr: &self.cr,
+            cr_stride: self.width as usize,
+        }
+    }
+}
+
+/// Colour-difference planes borrowed from a [`Frame`] or a decoder's own picture (whose rows
+/// may be padded: `stride` samples apart).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ChromaRef<'a> {
+    /// Plane width in samples.
+    pub width: u32,
+    /// Plane height in samples.
+    pub height: u32,
+    /// Blue-difference samples.
+    pub cb: &'a [u8],
+    /// Distance between Cb rows, samples.
+    pub cb_stride: usize,
+    /// Red-difference samples.
+    pub cr: &'a [u8],
+    /// Distance between Cr rows, samples.
+    pub cr_stride: usize,
+}
+
+impl ChromaRef<'_> {
+    /// (Cb, Cr) at the chroma sample that covers luma pixel (x, y) of a `luma_w × luma_h`
+    /// frame, centred on 0 and scaled to −0.5..0.5.
+    #[inline]
+    pub fn at(&self, x: u32, y: u32, luma_w: u32, luma_h: u32) -> (f32, f32) {
+        // Plane sizes are luma sizes divided by 1 or 2 (rounded up); integer ratios.
+        let cx = if self.width == luma_w { x } else { x / 2 };
+        let cy = if self.height == luma_h { y } else { y / 2 };
+        let cx = cx.min(self.width.saturating_sub(1)) as usize;
+        let cy = cy.min(self.height.saturating_sub(1)) as usize;
+        let b = self.cb[cy * self.cb_stride + cx];
+        let r = self.cr[cy * self.cr_stride + cx];
+        (
+            (f32::from(b) - 128.0) / 255.0,
+            (f32::from(r) - 128.0) / 255.0,
+        )
+    }
+}
+
 /// One decoded frame: its index in the clip and its luma plane.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Frame {
@@ -36,6 +103,9 @@ pub struct Frame {
     pub bit_depth: u8,
     /// The samples.
     pub luma: Luma,
+    /// The colour-difference planes, when the clip has colour and its luma is 8 bit (`None`
+    /// for monochrome footage).
+    pub chroma: Option<Chroma>,
 }
 
 impl Frame {
@@ -47,6 +117,7 @@ impl Frame {
             height: 0,
             bit_depth: 8,
             luma: Luma::U8(Vec::new()),
+            chroma: None,
         }
     }
 
@@ -66,6 +137,7 @@ impl Frame {
             height,
             bit_depth: 8,
             luma: Luma::U8(data),
+            chroma: None,
         }
     }
 
@@ -80,6 +152,7 @@ impl Frame {
                 Luma::U8(d) => LumaRef::U8(d),
                 Luma::U16(d) => LumaRef::U16(d),
             },
+            chroma: self.chroma.as_ref().map(Chroma::view),
         }
     }
 
@@ -138,6 +211,8 @@ pub struct FrameRef<'a> {
     pub bit_depth: u8,
     /// The samples.
     pub luma: LumaRef<'a>,
+    /// The colour-difference planes, when the frame has them.
+    pub chroma: Option<ChromaRef<'a>>,
 }
 
 impl FrameRef<'_> {

@@ -616,6 +616,7 @@ impl HeldPicture {
             height,
             bit_depth: 8,
             luma: LumaRef::U8(self.pic.data(0).get(..n)?),
+            chroma: None,
         })
     }
 
