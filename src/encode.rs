@@ -281,6 +281,14 @@ impl ClipWriter {
         enc.set_width(width);
         enc.set_height(height);
         enc.set_format(pix);
+        if colour {
+            // The 2×2 means written by `write_chroma` sit at the centre of their block.
+            // SAFETY: enc wraps a valid, not yet opened AVCodecContext; a plain field is set.
+            unsafe {
+                (*enc.as_mut_ptr()).chroma_sample_location =
+                    ff::ffi::AVChromaLocation::AVCHROMA_LOC_CENTER;
+            }
+        }
         enc.set_time_base(encoder_tb);
         enc.set_frame_rate(Some(frame_rate));
         // set_flags replaces earlier flags, so every flag goes in this one call.

@@ -300,3 +300,18 @@ fn regenerate_held_out_table() {
         .collect();
     println!("{}", table(&scores));
 }
+
+/// CI: the first four held-out scenes, two blows each, must meet every target.
+#[test]
+fn held_out_seeds_at_small_size() {
+    let scores: Vec<Score> = seeds()
+        .into_iter()
+        .take(4)
+        .map(|seed| score(seed, Some(2)))
+        .collect();
+    let t = table(&scores);
+    println!("{t}");
+    for s in &scores {
+        assert!(s.pass(), "seed {} misses a target:\n{t}", s.seed);
+    }
+}

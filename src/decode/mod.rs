@@ -37,6 +37,20 @@ pub struct Chroma {
     pub cb: Vec<u8>,
     /// Red-difference samples, `width * height`.
     pub cr: Vec<u8>,
+    /// Where subsampled samples sit (ignored for full-size planes).
+    pub siting: ChromaSiting,
+}
+
+/// Where chroma samples sit relative to the luma grid of a subsampled plane.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ChromaSiting {
+    /// Between the two luma samples it covers, horizontally and vertically (JPEG, and the
+    /// 2×2 means this project's writer stores).
+    #[default]
+    Centre,
+    /// On the left luma sample of the pair, vertically between rows (the MPEG-2 / H.264
+    /// default, ITU-T H.264 Annex E chroma_sample_loc_type 0).
+    Left,
 }
 
 impl Chroma {
@@ -49,6 +63,7 @@ impl Chroma {
             cb_stride: self.width as usize,
             cr: &self.cr,
             cr_stride: self.width as usize,
+            siting: self.siting,
         }
     }
 }
@@ -69,23 +84,47 @@ pub struct ChromaRef<'a> {
     pub cr: &'a [u8],
     /// Distance between Cr rows, samples.
     pub cr_stride: usize,
+    /// Where subsampled samples sit (ignored for full-size planes).
+    pub siting: ChromaSiting,
 }
 
 impl ChromaRef<'_> {
-    /// (Cb, Cr) at the chroma sample that covers luma pixel (x, y) of a `luma_w × luma_h`
-    /// frame, centred on 0 and scaled to −0.5..0.5.
+    /// (Cb, Cr) at the centre of luma pixel (x, y) of a `luma_w × luma_h` frame, centred on 0
+    /// and scaled to −0.5..0.5: the sample itself for a full-size plane, bilinear between the
+    /// four nearest samples (by their siting) for a subsampled one.
     #[inline]
     pub fn at(&self, x: u32, y: u32, luma_w: u32, luma_h: u32) -> (f32, f32) {
-        // Plane sizes are luma sizes divided by 1 or 2 (rounded up); integer ratios.
-        let cx = if self.width == luma_w { x } else { x / 2 };
-        let cy = if self.height == luma_h { y } else { y / 2 };
-        let cx = cx.min(self.width.saturating_sub(1)) as usize;
-        let cy = cy.min(self.height.saturating_sub(1)) as usize;
-        let b = self.cb[cy * self.cb_stride + cx];
-        let r = self.cr[cy * self.cr_stride + cx];
+        let pos = |v: u32, full: bool, centre: bool| -> (usize, usize, f32) {
+            if full {
+                return (v as usize, v as usize, 0.0);
+            }
+            // Chroma sample i sits at luma coordinate 2i + 0.5 (centred) or 2i (left).
+            let off = if centre { 0.5 } else { 0.0 };
+            let t = ((v as f32 - off) * 0.5).max(0.0);
+            let i = t.floor();
+            (i as usize, i as usize + 1, t - i)
+        };
+        let centred = self.siting == ChromaSiting::Centre;
+        let (x0, x1, fx) = pos(x, self.width == luma_w, centred);
+        // Vertically, both sitings put 4:2:0 chroma between the two rows it covers.
+        let (y0, y1, fy) = pos(y, self.height == luma_h, true);
+        let (mx, my) = (
+            self.width.saturating_sub(1) as usize,
+            self.height.saturating_sub(1) as usize,
+        );
+        let (x0, x1, y0, y1) = (x0.min(mx), x1.min(mx), y0.min(my), y1.min(my));
+        let bil = |p: &[u8], s: usize| -> f32 {
+            let a = f32::from(p[y0 * s + x0]);
+            let b = f32::from(p[y0 * s + x1]);
+            let c = f32::from(p[y1 * s + x0]);
+            let d = f32::from(p[y1 * s + x1]);
+            let top = a + fx * (b - a);
+            let bot = c + fx * (d - c);
+            top + fy * (bot - top)
+        };
         (
-            (f32::from(b) - 128.0) / 255.0,
-            (f32::from(r) - 128.0) / 255.0,
+            (bil(self.cb, self.cb_stride) - 128.0) / 255.0,
+            (bil(self.cr, self.cr_stride) - 128.0) / 255.0,
         )
     }
 }

@@ -850,6 +850,7 @@ fn colour_frame(sc: &Scenario, index: u64, poses: &[Pose]) -> Frame {
         height: h,
         cb: img.iter().map(|v| qc(v[1])).collect(),
         cr: img.iter().map(|v| qc(v[2])).collect(),
+        siting: crate::decode::ChromaSiting::Centre,
     });
     f
 }
