@@ -79,6 +79,18 @@ impl Codec {
     }
 }
 
+/// What a clip's pictures hold.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Layout {
+    /// The codec's own format for the depth (grey, or 4:2:0 with neutral chroma).
+    Planes,
+    /// 4:2:0 with each frame's chroma.
+    Colour,
+    /// PNG-coded packed RGB (tests only).
+    #[cfg_attr(not(test), allow(dead_code))]
+    RgbPng,
+}
+
 /// Writes luma frames to a video file. Create it, [`write`](ClipWriter::write) each frame in
 /// order, then call [`finish`](ClipWriter::finish); a writer dropped without `finish` leaves
 /// an incomplete file.
@@ -137,7 +149,15 @@ impl ClipWriter {
         fps_hz: f64,
         bit_depth: u8,
     ) -> Result<Self> {
-        Self::create_inner(path, codec, width, height, fps_hz, bit_depth, false, false)
+        Self::create_inner(
+            path,
+            codec,
+            width,
+            height,
+            fps_hz,
+            bit_depth,
+            Layout::Planes,
+        )
     }
 
     /// An 8-bit colour clip: 4:2:0 Y′CbCr (`yuv420p`, `yuvj420p` for MJPEG) for any codec.
@@ -153,14 +173,14 @@ impl ClipWriter {
         height: u32,
         fps_hz: f64,
     ) -> Result<Self> {
-        Self::create_inner(path, codec, width, height, fps_hz, 8, false, true)
+        Self::create_inner(path, codec, width, height, fps_hz, 8, Layout::Colour)
     }
 
     /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
     /// swscale path for formats without a Y plane.
     #[cfg(test)]
     pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
-        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, true, false)
+        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, Layout::RgbPng)
     }
 
     fn create_inner(
@@ -170,9 +190,10 @@ impl ClipWriter {
         height: u32,
         fps_hz: f64,
         bit_depth: u8,
-        rgb_png: bool,
-        colour: bool,
+        layout: Layout,
     ) -> Result<Self> {
+        let rgb_png = layout == Layout::RgbPng;
+        let colour = layout == Layout::Colour;
         ffmpeg_init();
         let fail = |reason: String| Error::Output {
             path: path.to_path_buf(),

@@ -17,6 +17,9 @@
 //! cargo test --release --test held_out -- --ignored --nocapture
 //! ```
 
+// Without FFmpeg only the stills cases run; the scoring helpers serve the video ones too.
+#![cfg_attr(not(feature = "ffmpeg"), allow(dead_code))]
+
 use std::path::{Path, PathBuf};
 
 use twistmark::analyze::{AnalyzeOptions, analyze};
@@ -292,6 +295,7 @@ fn the_seed_list_is_long_enough_and_distinct() {
 }
 
 /// Every held-out scene, full length; prints the table for docs/accuracy.md.
+#[cfg(feature = "ffmpeg")]
 #[test]
 #[ignore = "minutes in release; regenerates the held-out table in docs/accuracy.md"]
 fn regenerate_held_out_table() {
@@ -315,6 +319,7 @@ fn regenerate_held_out_table() {
 }
 
 /// CI: the first four held-out scenes, two blows each, must meet every target.
+#[cfg(feature = "ffmpeg")]
 #[test]
 #[ignore = "not met yet (issue 15 open): seed 3303341309 (concentric wheel fixed mark, shake) reads 0.48° RMS; see docs/accuracy.md"]
 fn held_out_seeds_at_small_size() {
@@ -397,6 +402,7 @@ fn colour_only_contrast_orange_on_mottled_zinc() {
     assert_case("colour only", &s, 0.10);
 }
 
+#[cfg(feature = "ffmpeg")]
 #[test]
 fn hex_nut_face_with_washer_and_annulus_across_the_flats() {
     use twistmark::synth::Washer;
@@ -414,6 +420,7 @@ fn hex_nut_face_with_washer_and_annulus_across_the_flats() {
     assert_case("hex nut", &s, 0.10);
 }
 
+#[cfg(feature = "ffmpeg")]
 #[test]
 #[ignore = "not met yet (issue 15 open): 1.14° RMS, blow P/R 0.5 (release build, 3 December 2026): the shake registration does not hold on a wheel-face fixed mark"]
 fn fixed_mark_on_a_wheel_concentric_with_the_nut_removes_shake() {
@@ -433,6 +440,7 @@ fn fixed_mark_on_a_wheel_concentric_with_the_nut_removes_shake() {
     assert_case("concentric fixed mark", &s, 0.20);
 }
 
+#[cfg(feature = "ffmpeg")]
 #[test]
 #[ignore = "not met yet (issue 15 open): 0.237° RMS against 0.20° (release build, 3 December 2026)"]
 fn lamp_flicker_at_120_hz_on_h264() {

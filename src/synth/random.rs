@@ -505,7 +505,6 @@ pub fn random_scene(seed: u64) -> RandomScene {
     if recording == Recording::Tiff16Mono {
         sc.camera.bit_depth = 16;
     }
-    let mut tags = tags;
     tags.sort();
     tags.dedup();
     RandomScene {

@@ -22,6 +22,9 @@
 //! alone (a monochrome camera, neutral chroma, or paint that already stands out in brightness),
 //! the mark keeps the exact luma path.
 
+// 3×3 matrix algebra on (Y′, Cb, Cr) reads most plainly with indices.
+#![allow(clippy::needless_range_loop)]
+
 use crate::decode::{FrameRef, LumaRef};
 
 use super::polar::PolarGrid;
