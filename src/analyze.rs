@@ -8,7 +8,7 @@
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 
-use crate::decode::{self, ClipInfo, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot};
+use crate::decode::{self, ChromaRef, ClipInfo, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot};
 use crate::error::{Error, Result};
 use crate::mechanics::{
     self, BarReport, BlowMetrics, SpringbackVerdict, Summary, TwistZero, ZeroSource,
@@ -298,6 +298,7 @@ fn owned(f: FrameRef<'_>) -> Frame {
             LumaRef::U8(d) => Luma::U8(d.to_vec()),
             LumaRef::U16(d) => Luma::U16(d.to_vec()),
         },
+        chroma: f.chroma.as_ref().map(ChromaRef::to_owned_planes),
     }
 }
 

@@ -79,6 +79,18 @@ impl Codec {
     }
 }
 
+/// What a clip's pictures hold.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Layout {
+    /// The codec's own format for the depth (grey, or 4:2:0 with neutral chroma).
+    Planes,
+    /// 4:2:0 with each frame's chroma.
+    Colour,
+    /// PNG-coded packed RGB (tests only).
+    #[cfg_attr(not(test), allow(dead_code))]
+    RgbPng,
+}
+
 /// Writes luma frames to a video file. Create it, [`write`](ClipWriter::write) each frame in
 /// order, then call [`finish`](ClipWriter::finish); a writer dropped without `finish` leaves
 /// an incomplete file.
@@ -106,6 +118,8 @@ pub struct ClipWriter {
     height: u32,
     bit_depth: u8,
     next_pts: i64,
+    /// Colour planes are written from each frame's chroma.
+    colour: bool,
 }
 
 impl ClipWriter {
@@ -135,14 +149,38 @@ impl ClipWriter {
         fps_hz: f64,
         bit_depth: u8,
     ) -> Result<Self> {
-        Self::create_inner(path, codec, width, height, fps_hz, bit_depth, false)
+        Self::create_inner(
+            path,
+            codec,
+            width,
+            height,
+            fps_hz,
+            bit_depth,
+            Layout::Planes,
+        )
+    }
+
+    /// An 8-bit colour clip: 4:2:0 Y′CbCr (`yuv420p`, `yuvj420p` for MJPEG) for any codec.
+    /// Frames with [`Frame::chroma`] have their colour planes stored (averaged over 2×2
+    /// blocks when given at full size); frames without it are stored grey.
+    ///
+    /// # Errors
+    /// As [`create`](ClipWriter::create).
+    pub fn create_colour(
+        path: &Path,
+        codec: Codec,
+        width: u32,
+        height: u32,
+        fps_hz: f64,
+    ) -> Result<Self> {
+        Self::create_inner(path, codec, width, height, fps_hz, 8, Layout::Colour)
     }
 
     /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
     /// swscale path for formats without a Y plane.
     #[cfg(test)]
     pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
-        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, true)
+        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, Layout::RgbPng)
     }
 
     fn create_inner(
@@ -152,8 +190,10 @@ impl ClipWriter {
         height: u32,
         fps_hz: f64,
         bit_depth: u8,
-        rgb_png: bool,
+        layout: Layout,
     ) -> Result<Self> {
+        let rgb_png = layout == Layout::RgbPng;
+        let colour = layout == Layout::Colour;
         ffmpeg_init();
         let fail = |reason: String| Error::Output {
             path: path.to_path_buf(),
@@ -182,6 +222,11 @@ impl ClipWriter {
         }
         let pix = if rgb_png {
             Some(Pixel::RGB24)
+        } else if colour && bit_depth == 8 {
+            Some(match codec {
+                Codec::Mjpeg { .. } => Pixel::YUVJ420P,
+                _ => Pixel::YUV420P,
+            })
         } else {
             codec.pixel_format(bit_depth)
         };
@@ -257,6 +302,14 @@ impl ClipWriter {
         enc.set_width(width);
         enc.set_height(height);
         enc.set_format(pix);
+        if colour {
+            // The 2×2 means written by `write_chroma` sit at the centre of their block.
+            // SAFETY: enc wraps a valid, not yet opened AVCodecContext; a plain field is set.
+            unsafe {
+                (*enc.as_mut_ptr()).chroma_sample_location =
+                    ff::ffi::AVChromaLocation::AVCHROMA_LOC_CENTER;
+            }
+        }
         enc.set_time_base(encoder_tb);
         enc.set_frame_rate(Some(frame_rate));
         // set_flags replaces earlier flags, so every flag goes in this one call.
@@ -321,6 +374,7 @@ impl ClipWriter {
             height,
             bit_depth,
             next_pts: 0,
+            colour,
         })
     }
 
@@ -380,12 +434,48 @@ impl ClipWriter {
                 }
             }
         }
+        if self.colour {
+            self.write_chroma(frame);
+        }
         self.picture.set_pts(Some(self.next_pts));
         self.next_pts += 1;
         self.encoder
             .send_frame(&self.picture)
             .map_err(|e| self.fail(format!("encoder refused frame {}: {e}", self.next_pts - 1)))?;
         self.drain()
+    }
+
+    /// Fills the 4:2:0 colour planes from `frame`'s chroma (2×2 means of full-size planes,
+    /// rounded; copied when already at half size), or with the neutral value.
+    fn write_chroma(&mut self, frame: &Frame) {
+        let (cw, ch) = (
+            self.width.div_ceil(2) as usize,
+            self.height.div_ceil(2) as usize,
+        );
+        for plane in 1..3 {
+            let stride = self.picture.stride(plane);
+            let dst = self.picture.data_mut(plane);
+            let Some(c) = &frame.chroma else {
+                dst.fill(128);
+                continue;
+            };
+            let src = if plane == 1 { &c.cb } else { &c.cr };
+            let (sw, sh) = (c.width as usize, c.height as usize);
+            for y in 0..ch {
+                for x in 0..cw {
+                    dst[y * stride + x] = if sw == cw && sh == ch {
+                        src[y * sw + x]
+                    } else {
+                        let mut acc = 0u32;
+                        for (dy, dx) in [(0, 0), (0, 1), (1, 0), (1, 1)] {
+                            let (sx, sy) = ((2 * x + dx).min(sw - 1), (2 * y + dy).min(sh - 1));
+                            acc += u32::from(src[sy * sw + sx]);
+                        }
+                        ((acc + 2) / 4) as u8
+                    };
+                }
+            }
+        }
     }
 
     /// Flushes the encoder and writes the file's trailer. Returns the number of frames written.

@@ -23,6 +23,127 @@ pub enum Luma {
     U16(Vec<u16>),
 }
 
+/// The two colour-difference planes of a colour frame, 8 bit (Cb and Cr of Y′CbCr, the
+/// neutral grey at 128; ITU-R BT.601-7 §2.5.2 with full-range scaling), row-major with no
+/// padding. They may be subsampled: 4:2:0 video stores half the width and height
+/// (rounded up), an RGB still the full size.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Chroma {
+    /// Plane width in samples.
+    pub width: u32,
+    /// Plane height in samples.
+    pub height: u32,
+    /// Blue-difference samples, `width * height`.
+    pub cb: Vec<u8>,
+    /// Red-difference samples, `width * height`.
+    pub cr: Vec<u8>,
+    /// Where subsampled samples sit (ignored for full-size planes).
+    pub siting: ChromaSiting,
+}
+
+/// Where chroma samples sit relative to the luma grid of a subsampled plane.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ChromaSiting {
+    /// Between the two luma samples it covers, horizontally and vertically (JPEG, and the
+    /// 2×2 means this project's writer stores).
+    #[default]
+    Centre,
+    /// On the left luma sample of the pair, vertically between rows (the MPEG-2 / H.264
+    /// default, ITU-T H.264 Annex E chroma_sample_loc_type 0).
+    Left,
+}
+
+impl Chroma {
+    /// The planes borrowed.
+    pub fn view(&self) -> ChromaRef<'_> {
+        ChromaRef {
+            width: self.width,
+            height: self.height,
+            cb: &self.cb,
+            cb_stride: self.width as usize,
+            cr: &self.cr,
+            cr_stride: self.width as usize,
+            siting: self.siting,
+        }
+    }
+}
+
+/// Colour-difference planes borrowed from a [`Frame`] or a decoder's own picture (whose rows
+/// may be padded: `stride` samples apart).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ChromaRef<'a> {
+    /// Plane width in samples.
+    pub width: u32,
+    /// Plane height in samples.
+    pub height: u32,
+    /// Blue-difference samples.
+    pub cb: &'a [u8],
+    /// Distance between Cb rows, samples.
+    pub cb_stride: usize,
+    /// Red-difference samples.
+    pub cr: &'a [u8],
+    /// Distance between Cr rows, samples.
+    pub cr_stride: usize,
+    /// Where subsampled samples sit (ignored for full-size planes).
+    pub siting: ChromaSiting,
+}
+
+impl ChromaRef<'_> {
+    /// An owned copy, rows packed (stride = width).
+    pub fn to_owned_planes(&self) -> Chroma {
+        let (w, h) = (self.width as usize, self.height as usize);
+        let pack = |p: &[u8], s: usize| -> Vec<u8> {
+            (0..h).flat_map(|y| p[y * s..y * s + w].iter().copied()).collect()
+        };
+        Chroma {
+            width: self.width,
+            height: self.height,
+            cb: pack(self.cb, self.cb_stride),
+            cr: pack(self.cr, self.cr_stride),
+            siting: self.siting,
+        }
+    }
+
+    /// (Cb, Cr) at the centre of luma pixel (x, y) of a `luma_w × luma_h` frame, centred on 0
+    /// and scaled to −0.5..0.5: the sample itself for a full-size plane, bilinear between the
+    /// four nearest samples (by their siting) for a subsampled one.
+    #[inline]
+    pub fn at(&self, x: u32, y: u32, luma_w: u32, luma_h: u32) -> (f32, f32) {
+        let pos = |v: u32, full: bool, centre: bool| -> (usize, usize, f32) {
+            if full {
+                return (v as usize, v as usize, 0.0);
+            }
+            // Chroma sample i sits at luma coordinate 2i + 0.5 (centred) or 2i (left).
+            let off = if centre { 0.5 } else { 0.0 };
+            let t = ((v as f32 - off) * 0.5).max(0.0);
+            let i = t.floor();
+            (i as usize, i as usize + 1, t - i)
+        };
+        let centred = self.siting == ChromaSiting::Centre;
+        let (x0, x1, fx) = pos(x, self.width == luma_w, centred);
+        // Vertically, both sitings put 4:2:0 chroma between the two rows it covers.
+        let (y0, y1, fy) = pos(y, self.height == luma_h, true);
+        let (mx, my) = (
+            self.width.saturating_sub(1) as usize,
+            self.height.saturating_sub(1) as usize,
+        );
+        let (x0, x1, y0, y1) = (x0.min(mx), x1.min(mx), y0.min(my), y1.min(my));
+        let bil = |p: &[u8], s: usize| -> f32 {
+            let a = f32::from(p[y0 * s + x0]);
+            let b = f32::from(p[y0 * s + x1]);
+            let c = f32::from(p[y1 * s + x0]);
+            let d = f32::from(p[y1 * s + x1]);
+            let top = a + fx * (b - a);
+            let bot = c + fx * (d - c);
+            top + fy * (bot - top)
+        };
+        (
+            (bil(self.cb, self.cb_stride) - 128.0) / 255.0,
+            (bil(self.cr, self.cr_stride) - 128.0) / 255.0,
+        )
+    }
+}
+
 /// One decoded frame: its index in the clip and its luma plane.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Frame {
@@ -36,6 +157,9 @@ pub struct Frame {
     pub bit_depth: u8,
     /// The samples.
     pub luma: Luma,
+    /// The colour-difference planes, when the clip has colour and its luma is 8 bit (`None`
+    /// for monochrome footage).
+    pub chroma: Option<Chroma>,
 }
 
 impl Frame {
@@ -47,6 +171,7 @@ impl Frame {
             height: 0,
             bit_depth: 8,
             luma: Luma::U8(Vec::new()),
+            chroma: None,
         }
     }
 
@@ -66,6 +191,7 @@ impl Frame {
             height,
             bit_depth: 8,
             luma: Luma::U8(data),
+            chroma: None,
         }
     }
 
@@ -80,6 +206,7 @@ impl Frame {
                 Luma::U8(d) => LumaRef::U8(d),
                 Luma::U16(d) => LumaRef::U16(d),
             },
+            chroma: self.chroma.as_ref().map(Chroma::view),
         }
     }
 
@@ -138,6 +265,8 @@ pub struct FrameRef<'a> {
     pub bit_depth: u8,
     /// The samples.
     pub luma: LumaRef<'a>,
+    /// The colour-difference planes, when the frame has them.
+    pub chroma: Option<ChromaRef<'a>>,
 }
 
 impl FrameRef<'_> {

@@ -396,6 +396,35 @@ fn fill_luma(raw: &[u8], color: ColorType, n: usize, frame: &mut Frame) {
     }
 }
 
+/// Fills `frame`'s colour planes (full size) from 8-bit RGB(A) samples, or clears them for any
+/// other colour type: Cb = 128 − 0.168736 R − 0.331264 G + 0.5 B and
+/// Cr = 128 + 0.5 R − 0.418688 G − 0.081312 B, rounded (full-range Y′CbCr of ITU-T T.871,
+/// JFIF, §7, which uses the BT.601 weights).
+fn fill_chroma(raw: &[u8], color: ColorType, w: u32, h: u32, frame: &mut Frame) {
+    let channels = usize::from(color.channel_count());
+    if !(Samples::of(color) == Some(Samples::Eight) && channels >= 3) {
+        frame.chroma = None;
+        return;
+    }
+    let c = frame.chroma.get_or_insert_with(|| crate::decode::Chroma {
+        width: 0,
+        height: 0,
+        cb: Vec::new(),
+        cr: Vec::new(),
+        siting: crate::decode::ChromaSiting::Centre,
+    });
+    c.width = w;
+    c.height = h;
+    c.cb.clear();
+    c.cr.clear();
+    let q = |v: f32| (128.0 + v).round().clamp(0.0, 255.0) as u8;
+    for p in raw.chunks_exact(channels).take(w as usize * h as usize) {
+        let (r, g, b) = (f32::from(p[0]), f32::from(p[1]), f32::from(p[2]));
+        c.cb.push(q(-0.168_736 * r - 0.331_264 * g + 0.5 * b));
+        c.cr.push(q(0.5 * r - 0.418_688 * g - 0.081_312 * b));
+    }
+}
+
 /// Reads one still image into a luma [`Frame`] (index 0), with the same decoding and Rec. 601
 /// luma reduction as a stills folder. Used by `calibrate` for single images of a loaded bar.
 ///
@@ -482,6 +511,7 @@ impl FrameSource for StillsSource {
         })?;
         let n = w as usize * h as usize;
         fill_luma(&self.raw, color, n, frame);
+        fill_chroma(&self.raw, color, w, h, frame);
         frame.index = self.next as u64;
         frame.width = w;
         frame.height = h;

@@ -362,8 +362,12 @@ impl VideoSource {
         match plan {
             LumaPlan::Direct8 { offset, step } => {
                 copy_u8(&self.picture, offset, step, wu, hu, frame);
+                copy_chroma(&self.picture, w, h, frame);
             }
-            LumaPlan::Direct16 { .. } => copy_u16(&self.picture, wu, hu, frame),
+            LumaPlan::Direct16 { .. } => {
+                copy_u16(&self.picture, wu, hu, frame);
+                frame.chroma = None;
+            }
             LumaPlan::Scale { deep } => {
                 let src_fmt = self.picture.format();
                 let dst_fmt = if deep { Pixel::GRAY16LE } else { Pixel::GRAY8 };
@@ -389,6 +393,7 @@ impl VideoSource {
                 let Some((_, _, _, sws)) = self.scaler.as_mut() else {
                     unreachable!("scaler set above");
                 };
+                frame.chroma = None;
                 sws.0
                     .run(&self.picture, &mut self.gray)
                     .map_err(|e| self.decode_error(format!("grey conversion failed: {e}")))?;
@@ -413,6 +418,44 @@ fn bottom_up(pic: &ff::frame::Video) -> bool {
         .iter()
         .zip(&f.data)
         .any(|(&stride, plane)| !plane.is_null() && stride < 0)
+}
+
+/// The colour planes of an 8-bit planar 4:2:0 picture, borrowed in place (None for any other
+/// format: grey, deeper or packed pictures are tracked on luma).
+fn chroma_of(
+    pic: &ff::frame::Video,
+    width: u32,
+    height: u32,
+) -> Option<crate::decode::ChromaRef<'_>> {
+    let jpeg = match pic.format() {
+        Pixel::YUV420P => false,
+        Pixel::YUVJ420P => true,
+        _ => return None,
+    };
+    let (cw, ch) = (width.div_ceil(2), height.div_ceil(2));
+    let (s1, s2) = (pic.stride(1), pic.stride(2));
+    let need = |s: usize| (ch as usize - 1) * s + cw as usize;
+    let cb = pic.data(1).get(..need(s1))?;
+    let cr = pic.data(2).get(..need(s2))?;
+    // SAFETY: `pic` wraps a valid AVFrame; only a plain field is read.
+    let loc = unsafe { (*pic.as_ptr()).chroma_location };
+    use ff::ffi::AVChromaLocation as L;
+    let siting = match loc {
+        L::AVCHROMA_LOC_CENTER => crate::decode::ChromaSiting::Centre,
+        L::AVCHROMA_LOC_LEFT | L::AVCHROMA_LOC_TOPLEFT => crate::decode::ChromaSiting::Left,
+        // Unspecified: JPEG centres chroma, MPEG and H.264 put it on the left.
+        _ if jpeg => crate::decode::ChromaSiting::Centre,
+        _ => crate::decode::ChromaSiting::Left,
+    };
+    Some(crate::decode::ChromaRef {
+        width: cw,
+        height: ch,
+        cb,
+        cb_stride: s1,
+        cr,
+        cr_stride: s2,
+        siting,
+    })
 }
 
 /// The reason FFmpeg gives, for messages.
@@ -590,6 +633,35 @@ fn copy_u8(
     }
 }
 
+/// Copies the colour planes of an 8-bit planar 4:2:0 picture into `frame` (reusing its
+/// buffers), or clears them for any other format.
+fn copy_chroma(pic: &ff::frame::Video, w: u32, h: u32, frame: &mut Frame) {
+    let Some(c) = chroma_of(pic, w, h) else {
+        frame.chroma = None;
+        return;
+    };
+    let out = frame.chroma.get_or_insert_with(|| crate::decode::Chroma {
+        width: 0,
+        height: 0,
+        cb: Vec::new(),
+        cr: Vec::new(),
+        siting: c.siting,
+    });
+    out.width = c.width;
+    out.height = c.height;
+    out.siting = c.siting;
+    let (cw, ch) = (c.width as usize, c.height as usize);
+    for (dst, src, stride) in [
+        (&mut out.cb, c.cb, c.cb_stride),
+        (&mut out.cr, c.cr, c.cr_stride),
+    ] {
+        dst.clear();
+        for row in 0..ch {
+            dst.extend_from_slice(&src[row * stride..row * stride + cw]);
+        }
+    }
+}
+
 fn copy_u16(pic: &ff::frame::Video, w: usize, h: usize, frame: &mut Frame) {
     let buf = match &mut frame.luma {
         Luma::U16(v) => v,
@@ -684,6 +756,7 @@ impl HeldPicture {
             height,
             bit_depth: 8,
             luma: LumaRef::U8(self.pic.data(0).get(..n)?),
+            chroma: chroma_of(&self.pic, width, height),
         })
     }
 

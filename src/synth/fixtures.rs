@@ -166,6 +166,7 @@ pub fn fixture_set() -> Vec<Fixture> {
             phase_deg: 30.0,
         }),
         shake_sigma_px: 0.35,
+        shake_roll_sigma_deg: 0.0,
     };
     v.push(Fixture {
         dir: "fast-tool-noisy",

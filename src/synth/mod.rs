@@ -24,7 +24,9 @@
 #[doc(hidden)]
 pub mod fixtures;
 pub mod layout;
+mod look;
 mod model;
+pub mod random;
 mod scene;
 pub mod side;
 mod texture;
@@ -38,6 +40,7 @@ use crate::decode::{Frame, Luma};
 use crate::mechanics::{BarSpec, SectionSpec};
 use crate::rig::{Mark, Marks, RIG_VERSION, RadialMark, Rig, Spin};
 
+pub use look::{Finish, Look, Washer, Wheel};
 pub use scene::{DriveDisc, FixedMark, Highlight, NutFace, Paint, Scene, Steel, Stripe};
 pub use texture::BrushedSteel;
 #[cfg(feature = "ffmpeg")]
@@ -137,6 +140,14 @@ pub struct Effects {
     pub flicker: Option<Flicker>,
     /// Camera shake: standard deviation of the whole-scene translation per frame, px (seeded).
     pub shake_sigma_px: f64,
+    /// Camera roll: standard deviation of the whole-scene rotation about the frame centre per
+    /// frame, degrees (seeded; 0 = none).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub shake_roll_sigma_deg: f64,
+}
+
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
 }
 
 /// Everything needed to simulate and render one clip of the invented test bench.
@@ -230,6 +241,7 @@ fn bench_scene() -> Scene {
         }),
         supersample: 16,
         background_texture: None,
+        look: None,
     }
 }
 
@@ -487,10 +499,6 @@ pub struct ModelTruth {
     pub nut_at_frame0_deg: f64,
 }
 
-fn is_zero(v: &f64) -> bool {
-    *v == 0.0
-}
-
 impl Truth {
     /// The twist already in the bar at frame 0, degrees: drive − nut measured from rest (the
     /// report's `summary.twist_zero.offset_deg` when the zero is right). The truth's
@@ -523,6 +531,10 @@ pub struct Truth {
     pub model: ModelTruth,
     /// Camera shake per frame, px (empty when there is none).
     pub shake_px: Vec<[f64; 2]>,
+    /// Camera roll per frame about the frame centre, degrees, clockwise on screen positive
+    /// (empty when there is none).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub shake_roll_deg: Vec<f64>,
     /// Sub-frame poses (frames × blur samples) for rendering; not serialised and ignored by
     /// `==`, so a truth read back from JSON equals the simulated one.
     #[serde(skip)]
@@ -627,6 +639,15 @@ pub fn simulate(sc: &Scenario) -> Truth {
     } else {
         Vec::new()
     };
+    let shake_roll_deg: Vec<f64> = if sc.effects.shake_roll_sigma_deg > 0.0 {
+        let mut rng = ChaCha8Rng::seed_from_u64(sc.seed);
+        rng.set_stream(3);
+        (0..frames)
+            .map(|_| sc.effects.shake_roll_sigma_deg * gauss(&mut rng))
+            .collect()
+    } else {
+        Vec::new()
+    };
     let gain = |t: f64| -> f32 {
         match sc.effects.flicker {
             Some(fl) => {
@@ -640,6 +661,7 @@ pub fn simulate(sc: &Scenario) -> Truth {
     let mut poses = Vec::with_capacity(frames as usize * ns);
     for f in 0..frames as usize {
         let shift = shake_px.get(f).copied().unwrap_or([0.0, 0.0]);
+        let roll_rad = shake_roll_deg.get(f).copied().unwrap_or(0.0).to_radians();
         let tf = f as f64 / fps;
         for j in 0..ns {
             let (s, t) = if ns > 1 {
@@ -655,6 +677,7 @@ pub fn simulate(sc: &Scenario) -> Truth {
                 nut_rad: s.theta_n,
                 shift,
                 gain: gain(t),
+                roll_rad,
             });
         }
     }
@@ -750,6 +773,7 @@ pub fn simulate(sc: &Scenario) -> Truth {
         summary,
         model: model_truth,
         shake_px,
+        shake_roll_deg,
         poses: SubPoses(poses),
     }
 }
@@ -786,9 +810,18 @@ pub fn render_frame(sc: &Scenario, truth: &Truth, index: u64) -> Frame {
             nut_rad: (truth.trace.nut_deg[f] + truth.model.nut_at_frame0_deg).to_radians(),
             shift: truth.shake_px.get(f).copied().unwrap_or([0.0, 0.0]),
             gain,
+            roll_rad: truth
+                .shake_roll_deg
+                .get(f)
+                .copied()
+                .unwrap_or(0.0)
+                .to_radians(),
         }];
         &fallback
     };
+    if sc.scene.look.is_some() {
+        return colour_frame(sc, index, poses);
+    }
     let img = Prepared::new(&sc.scene).render(poses);
     finish_frame(sc, img, index, 1_000 + index)
 }
@@ -796,13 +829,15 @@ pub fn render_frame(sc: &Scenario, truth: &Truth, index: u64) -> Frame {
 /// Renders the bench at rest, unloaded, as a camera in the same place would see it before
 /// the take: both ends at the angles they had when the bench left rest (so the twist is
 /// zero), no shake, steady light, with sensor noise of its own (seeded). This is the still
-/// that `analyze --zero-still` takes. Its frame index is 0.
+/// that `analyze --zero-still` takes. Its frame index is 0. A scene with a colour
+/// [`Look`] is rendered here in luma only.
 pub fn render_rest_frame(sc: &Scenario) -> Frame {
     let pose = [Pose {
         drive_rad: 0.0,
         nut_rad: 0.0,
         shift: [0.0, 0.0],
         gain: 1.0,
+        roll_rad: 0.0,
     }];
     let img = Prepared::new(&sc.scene).render(&pose);
     // Stream 999: apart from the jitter (1), shake (2) and frame noise (1,000 + index).
@@ -832,6 +867,7 @@ fn finish_frame(sc: &Scenario, mut img: Vec<f32>, index: u64, stream: u64) -> Fr
             height: h,
             bit_depth: 16,
             luma: Luma::U16(data),
+            chroma: None,
         }
     } else {
         let data = img
@@ -840,6 +876,51 @@ fn finish_frame(sc: &Scenario, mut img: Vec<f32>, index: u64, stream: u64) -> Fr
             .collect();
         Frame::from_u8(index, w, h, data)
     }
+}
+
+/// A frame of a scene with a [`Look`]: Y′ as [`render_frame`] quantises it (noise, depth),
+/// and, for 8-bit cameras, full-size Cb and Cr planes (sensor noise on them too, at half the
+/// luma's deviation, from its own seeded stream).
+fn colour_frame(sc: &Scenario, index: u64, poses: &[Pose]) -> Frame {
+    let mut img = Prepared::new(&sc.scene).render_colour(poses);
+    if sc.effects.noise_sigma > 0.0 {
+        let mut rng = ChaCha8Rng::seed_from_u64(sc.seed);
+        rng.set_stream(1_000 + index);
+        let mut crng = ChaCha8Rng::seed_from_u64(sc.seed ^ 0xC0_10_0E);
+        crng.set_stream(1_000 + index);
+        let sigma = sc.effects.noise_sigma as f32;
+        for v in img.iter_mut() {
+            v[0] += sigma * gauss(&mut rng) as f32;
+            v[1] += 0.5 * sigma * gauss(&mut crng) as f32;
+            v[2] += 0.5 * sigma * gauss(&mut crng) as f32;
+        }
+    }
+    let (w, h) = (sc.scene.width, sc.scene.height);
+    if sc.camera.bit_depth > 8 {
+        let data = img
+            .iter()
+            .map(|v| (v[0].clamp(0.0, 1.0) * 65535.0).round() as u16)
+            .collect();
+        return Frame {
+            index,
+            width: w,
+            height: h,
+            bit_depth: 16,
+            luma: Luma::U16(data),
+            chroma: None,
+        };
+    }
+    let q = |v: f32| (v.clamp(0.0, 1.0) * 255.0).round() as u8;
+    let qc = |v: f32| (128.0 + v * 255.0).round().clamp(0.0, 255.0) as u8;
+    let mut f = Frame::from_u8(index, w, h, img.iter().map(|v| q(v[0])).collect());
+    f.chroma = Some(crate::decode::Chroma {
+        width: w,
+        height: h,
+        cb: img.iter().map(|v| qc(v[1])).collect(),
+        cr: img.iter().map(|v| qc(v[2])).collect(),
+        siting: crate::decode::ChromaSiting::Centre,
+    });
+    f
 }
 
 /// Renders every frame of a simulated clip, in order (for in-memory pipelines:
@@ -883,6 +964,7 @@ mod tests {
                 phase_deg: 10.0,
             }),
             shake_sigma_px: 0.5,
+            shake_roll_sigma_deg: 0.0,
         };
         let t = simulate(&sc);
         let back: Truth = serde_json::from_str(&serde_json::to_string(&t).unwrap()).unwrap();
@@ -915,6 +997,7 @@ mod tests {
                 phase_deg: 0.0,
             }),
             shake_sigma_px: 0.3,
+            shake_roll_sigma_deg: 0.0,
         };
         sc.camera.exposure_s = 2.0e-4;
         sc.camera.blur_samples = 4;

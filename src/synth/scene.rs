@@ -14,6 +14,8 @@ use serde::{Deserialize, Serialize};
 
 use crate::rig::Ellipse;
 
+use super::look::{Look, Ycc, mix, rgb_to_ycc, scale};
+
 /// Paint colours and their luma (ITU-R BT.601 weights 0.299 R + 0.587 G + 0.114 B applied to
 /// nominal paint colours; the colours themselves are common practice for marking paint).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
@@ -28,17 +30,42 @@ pub enum Paint {
     Orange,
     /// Red, RGB ≈ (0.85, 0.1, 0.1): luma 0.32 (darker than bare steel).
     Red,
+    /// Green, RGB ≈ (0.15, 0.65, 0.25): luma 0.46.
+    Green,
+    /// Blue, RGB ≈ (0.12, 0.30, 0.85): luma 0.31.
+    Blue,
+    /// Fluorescent pink, RGB ≈ (1.0, 0.25, 0.65): luma 0.52.
+    Pink,
 }
 
 impl Paint {
+    /// Every paint, in a fixed order.
+    pub const ALL: [Paint; 7] = [
+        Paint::White,
+        Paint::Yellow,
+        Paint::Orange,
+        Paint::Red,
+        Paint::Green,
+        Paint::Blue,
+        Paint::Pink,
+    ];
+
+    /// Nominal R′G′B′ colour, 0..1.
+    pub fn rgb(self) -> [f32; 3] {
+        match self {
+            Paint::Yellow => [1.0, 0.9, 0.05],
+            Paint::White => [0.93, 0.93, 0.93],
+            Paint::Orange => [1.0, 0.5, 0.0],
+            Paint::Red => [0.85, 0.1, 0.1],
+            Paint::Green => [0.15, 0.65, 0.25],
+            Paint::Blue => [0.12, 0.30, 0.85],
+            Paint::Pink => [1.0, 0.25, 0.65],
+        }
+    }
+
     /// Linear luma of the paint, 0..1.
     pub fn luma(self) -> f32 {
-        let (r, g, b) = match self {
-            Paint::Yellow => (1.0, 0.9, 0.05),
-            Paint::White => (0.93, 0.93, 0.93),
-            Paint::Orange => (1.0, 0.5, 0.0),
-            Paint::Red => (0.85, 0.1, 0.1),
-        };
+        let [r, g, b] = self.rgb();
         0.299 * r + 0.587 * g + 0.114 * b
     }
 }
@@ -169,6 +196,10 @@ pub struct Scene {
     /// A textured bench behind the parts (None: the plain gradient alone).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub background_texture: Option<super::texture::BrushedSteel>,
+    /// Colour and surface detail (randomised scenes); `None` renders the plain luma scene of
+    /// the named presets, unchanged.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub look: Option<Look>,
 }
 
 /// The moving state of one instant, as the renderer needs it.
@@ -182,11 +213,16 @@ pub(crate) struct Pose {
     pub shift: [f64; 2],
     /// Light level multiplier (flicker), 1 = nominal.
     pub gain: f32,
+    /// Whole-scene rotation on screen about the frame centre (camera roll), rad, clockwise on
+    /// screen positive.
+    pub roll_rad: f64,
 }
 
 /// Per-instant geometry, precomputed once per sub-frame.
 struct Geo {
     shift: [f64; 2],
+    /// cos and sin of the camera roll; None when there is none.
+    roll: Option<(f64, f64)>,
     gain: f32,
     drive_dir: [f64; 2],
     nut_dir: [f64; 2],
@@ -207,7 +243,7 @@ const EDGE_MARGIN_PX: f64 = 0.75;
 
 /// SplitMix64 finaliser (Steele, Lea & Flood 2014): a fixed, well-mixed hash for sample
 /// placement, so renders are deterministic and independent of the thread count.
-fn splitmix64(mut z: u64) -> u64 {
+pub(crate) fn splitmix64(mut z: u64) -> u64 {
     z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
     z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
@@ -253,6 +289,7 @@ impl<'a> Prepared<'a> {
         let h = self.scene.nut.corner_start_deg.to_radians() + sign * pose.nut_rad;
         Geo {
             shift: pose.shift,
+            roll: (pose.roll_rad != 0.0).then(|| (pose.roll_rad.cos(), pose.roll_rad.sin())),
             gain: pose.gain,
             drive_dir: [d.cos(), d.sin()],
             nut_dir: [n.cos(), n.sin()],
@@ -272,12 +309,28 @@ impl<'a> Prepared<'a> {
         }
     }
 
+    /// Screen point (x, y) to the scene point seen there: undo the camera's translation, then
+    /// its roll about the frame centre.
+    #[inline]
+    fn to_scene(&self, g: &Geo, x: f64, y: f64) -> (f64, f64) {
+        let x = x - g.shift[0];
+        let y = y - g.shift[1];
+        match g.roll {
+            None => (x, y),
+            Some((c, sn)) => {
+                let cx = 0.5 * f64::from(self.scene.width);
+                let cy = 0.5 * f64::from(self.scene.height);
+                let (dx, dy) = (x - cx, y - cy);
+                (cx + c * dx + sn * dy, cy - sn * dx + c * dy)
+            }
+        }
+    }
+
     /// Scene luma (before the light gain) at scene point (x, y), and the lower bound of the
     /// distance from (x, y) to the nearest edge, px.
     fn eval(&self, g: &Geo, x: f64, y: f64) -> (f32, f64) {
         let s = self.scene;
-        let x = x - g.shift[0];
-        let y = y - g.shift[1];
+        let (x, y) = self.to_scene(g, x, y);
         let mut margin = f64::INFINITY;
         // Background: a smooth vertical gradient.
         let fy = (y / f64::from(s.height.max(1))).clamp(0.0, 1.0) as f32;
@@ -427,6 +480,241 @@ impl<'a> Prepared<'a> {
             });
         out
     }
+
+    /// Scene colour (before any light gain) at screen point (x, y) of a scene with a [`Look`],
+    /// and the lower bound of the distance to the nearest edge, px. The same geometry as
+    /// [`Prepared::eval`], with finishes, wear, recess, pits, rim, glints, washer and wheel.
+    fn eval_look(&self, lk: &Look, g: &Geo, x: f64, y: f64) -> (Ycc, f64) {
+        let s = self.scene;
+        let seed = lk.texture_seed;
+        let (x, y) = self.to_scene(g, x, y);
+        let mut margin = f64::INFINITY;
+        let fy = (y / f64::from(s.height.max(1))).clamp(0.0, 1.0) as f32;
+        let mut c: Ycc = [
+            s.background_top + (s.background_bottom - s.background_top) * fy,
+            0.0,
+            0.0,
+        ];
+        let paint = rgb_to_ycc(lk.paint_rgb);
+
+        // Wheel face behind the nut.
+        let mut on_wheel = false;
+        if let Some(wh) = &lk.wheel {
+            let (dx, dy) = (x - wh.centre[0], y - wh.centre[1]);
+            let sd = (dx * dx + dy * dy).sqrt() - wh.radius_px;
+            margin = margin.min(sd.abs());
+            if sd < 0.0 {
+                on_wheel = true;
+                c = wh.finish.at(seed ^ 0x3, dx, dy);
+            }
+        }
+        // Fixed mark: on the wheel, or on a bracket plate.
+        if let Some(f) = &s.fixed {
+            let dx = x - f.pivot[0];
+            let dy = y - f.pivot[1];
+            if lk.wheel.is_none() {
+                let cm = 0.5 * (f.stripe.r_inner_px + f.stripe.r_outer_px);
+                let (cx, cy) = (cm * self.fixed_dir[0], cm * self.fixed_dir[1]);
+                let pd = ((dx - cx).abs() - f.plate_half_px[0])
+                    .max((dy - cy).abs() - f.plate_half_px[1]);
+                margin = margin.min(pd.abs());
+                if pd < 0.0 {
+                    c = lk.bracket_finish.at(seed ^ 0x4, dx, dy);
+                }
+            }
+            let u = dx * self.fixed_dir[0] + dy * self.fixed_dir[1];
+            let w = -dx * self.fixed_dir[1] + dy * self.fixed_dir[0];
+            let sd = rect_sd(u, w, &f.stripe);
+            margin = margin.min(sd.abs());
+            if sd < 0.0 {
+                c = mix(c, paint, lk.coverage(0xF1, u, w));
+            }
+        }
+        // Bolt holes go through whatever is painted on the wheel.
+        if let (Some(wh), true) = (&lk.wheel, on_wheel) {
+            for k in 0..wh.holes {
+                let a = (wh.hole_phase_deg + 360.0 * f64::from(k) / f64::from(wh.holes.max(1)))
+                    .to_radians();
+                let hx = wh.centre[0] + wh.hole_circle_px * a.cos();
+                let hy = wh.centre[1] + wh.hole_circle_px * a.sin();
+                let d = ((x - hx).powi(2) + (y - hy).powi(2)).sqrt() - wh.hole_radius_px;
+                margin = margin.min(d.abs());
+                if d < 0.0 {
+                    c = [0.03, 0.0, 0.0];
+                }
+            }
+        }
+
+        // Drive flag disc.
+        let d = &s.drive;
+        let dx = x - d.pivot[0];
+        let dy = y - d.pivot[1];
+        let p = self.to_disc(dx, dy);
+        let sc = self.ellipse.map_or(1.0, |e| e.1);
+        let rr = (p[0] * p[0] + p[1] * p[1]).sqrt();
+        let disc_sd = rr - d.radius_px;
+        margin = margin.min(disc_sd.abs() * sc);
+        if disc_sd < 0.0 {
+            let u = p[0] * g.drive_dir[0] + p[1] * g.drive_dir[1];
+            let w = -p[0] * g.drive_dir[1] + p[1] * g.drive_dir[0];
+            let mut base = lk.drive_finish.at(seed ^ 0x1, u, w);
+            if lk.rim_px > 0.0 {
+                let rim_sd = rr - (d.radius_px - lk.rim_px);
+                margin = margin.min(rim_sd.abs() * sc);
+                if rim_sd > 0.0 {
+                    // A bevel facing outwards: lit where it faces the lamp, static on screen.
+                    let phi = dy.atan2(dx) - lk.light_deg.to_radians();
+                    base = scale(base, (0.5 + 0.9 * phi.cos().max(0.0)) as f32);
+                }
+            }
+            if lk.recess_half_px > 0.0 {
+                let sd = u.abs().max(w.abs()) - lk.recess_half_px;
+                margin = margin.min(sd.abs() * sc);
+                if sd < 0.0 {
+                    base = [0.035, 0.0, 0.0];
+                }
+            }
+            for pit in &lk.pits {
+                let sd = ((u - pit[0]).powi(2) + (w - pit[1]).powi(2)).sqrt() - pit[2];
+                margin = margin.min(sd.abs() * sc);
+                if sd < 0.0 {
+                    base = scale(base, 0.4);
+                }
+            }
+            let sd = rect_sd(u, w, &d.stripe);
+            margin = margin.min(sd.abs() * sc);
+            if sd < 0.0 {
+                base = mix(base, paint, lk.coverage(0xD1, u, w));
+            }
+            if let Some(h) = &d.highlight {
+                let hx = dx - h.offset_px[0];
+                let hy = dy - h.offset_px[1];
+                base[0] +=
+                    h.peak * (-(hx * hx + hy * hy) / (2.0 * h.sigma_px * h.sigma_px)).exp() as f32;
+            }
+            c = base;
+        }
+
+        // Washer (static) and nut face.
+        let n = &s.nut;
+        let dx = x - n.pivot[0];
+        let dy = y - n.pivot[1];
+        let rn = (dx * dx + dy * dy).sqrt();
+        if let Some(wa) = &lk.washer {
+            let sd = rn - wa.r_outer_px;
+            margin = margin.min(sd.abs());
+            if sd < 0.0 {
+                c = scale(
+                    rgb_to_ycc(wa.rgb),
+                    1.0 + 0.06 * super::look::value_noise(seed ^ 0x5, dx / 3.0, dy / 3.0),
+                );
+            }
+        }
+        let apothem = 0.5 * n.across_flats_px;
+        let mut hex_sd = f64::NEG_INFINITY;
+        let c30 = 3f64.sqrt() / 2.0;
+        let base = [
+            g.hex_dir[0] * c30 - g.hex_dir[1] * 0.5,
+            g.hex_dir[1] * c30 + g.hex_dir[0] * 0.5,
+        ];
+        let normals = [
+            base,
+            [base[0] * 0.5 - base[1] * c30, base[1] * 0.5 + base[0] * c30],
+            [
+                -base[0] * 0.5 - base[1] * c30,
+                -base[1] * 0.5 + base[0] * c30,
+            ],
+        ];
+        for nn in normals {
+            hex_sd = hex_sd.max((dx * nn[0] + dy * nn[1]).abs() - apothem);
+        }
+        margin = margin.min(hex_sd.abs());
+        if hex_sd < 0.0 {
+            let u = dx * g.nut_dir[0] + dy * g.nut_dir[1];
+            let w = -dx * g.nut_dir[1] + dy * g.nut_dir[0];
+            let mut face = lk.nut_finish.at(seed ^ 0x2, u, w);
+            let stud_sd = rn - n.stud_radius_px;
+            margin = margin.min(stud_sd.abs());
+            if stud_sd < 0.0 {
+                face = [0.06, 0.0, 0.0];
+            }
+            let sd = rect_sd(u, w, &n.stripe);
+            margin = margin.min(sd.abs());
+            if sd < 0.0 {
+                face = mix(face, paint, lk.coverage(0xE1, u, w));
+            }
+            if let Some(h) = &lk.nut_glint {
+                let hx = dx - h.offset_px[0];
+                let hy = dy - h.offset_px[1];
+                face[0] +=
+                    h.peak * (-(hx * hx + hy * hy) / (2.0 * h.sigma_px * h.sigma_px)).exp() as f32;
+            }
+            c = face;
+        }
+        (c, margin)
+    }
+
+    /// Mean colour over the pixel square at (x, y), averaged over the poses, with the static
+    /// lighting of the look: as [`Prepared::pixel`] for a scene with a [`Look`].
+    fn pixel_look(&self, lk: &Look, geos: &[Geo], x: u32, y: u32, n: u32) -> Ycc {
+        let (px, py) = (f64::from(x), f64::from(y));
+        let mut acc = [0.0f32; 3];
+        for (gi, g) in geos.iter().enumerate() {
+            let (v, margin) = self.eval_look(lk, g, px, py);
+            let mean = if margin > EDGE_MARGIN_PX {
+                v
+            } else {
+                let base = (u64::from(x) << 32) ^ u64::from(y) ^ ((gi as u64) << 56);
+                let inv = 1.0 / f64::from(n);
+                let mut s = [0.0f32; 3];
+                for j in 0..n {
+                    for i in 0..n {
+                        let h = splitmix64(base ^ (u64::from(j * n + i) << 40));
+                        let u = (h >> 11) as f64 * (1.0 / (1u64 << 53) as f64);
+                        let w = (splitmix64(h) >> 11) as f64 * (1.0 / (1u64 << 53) as f64);
+                        let ox = (f64::from(i) + u) * inv - 0.5;
+                        let oy = (f64::from(j) + w) * inv - 0.5;
+                        let e = self.eval_look(lk, g, px + ox, py + oy).0;
+                        for k in 0..3 {
+                            s[k] += e[k];
+                        }
+                    }
+                }
+                scale(s, 1.0 / (n * n) as f32)
+            };
+            for k in 0..3 {
+                acc[k] += mean[k] * g.gain;
+            }
+        }
+        let light = lk.light(
+            px,
+            py,
+            f64::from(self.scene.width),
+            f64::from(self.scene.height),
+        );
+        scale(acc, light / geos.len() as f32)
+    }
+
+    /// Renders a scene with a [`Look`] averaged over `poses` into Y′CbCr, row-major.
+    ///
+    /// # Panics
+    /// When the scene has no look.
+    pub fn render_colour(&self, poses: &[Pose]) -> Vec<Ycc> {
+        let s = self.scene;
+        let lk = s.look.as_ref().expect("a scene with a look");
+        let n = s.supersample.clamp(1, 16);
+        let geos: Vec<Geo> = poses.iter().map(|p| self.geo(p)).collect();
+        let w = s.width as usize;
+        let mut out = vec![[0.0f32; 3]; w * s.height as usize];
+        out.par_chunks_mut(w.max(1))
+            .enumerate()
+            .for_each(|(y, row)| {
+                for (x, o) in row.iter_mut().enumerate() {
+                    *o = self.pixel_look(lk, &geos, x as u32, y as u32, n);
+                }
+            });
+        out
+    }
 }
 
 #[cfg(test)]
@@ -472,6 +760,7 @@ mod tests {
             fixed: None,
             supersample: 8,
             background_texture: None,
+            look: None,
         }
     }
 
@@ -522,6 +811,7 @@ mod tests {
                 nut_rad: 0.0,
                 shift: [0.0, 0.0],
                 gain: 1.0,
+                roll_rad: 0.0,
             }]);
             let got = moment_angle(&img, scene.width as usize, floor);
             assert!(
@@ -545,6 +835,7 @@ mod tests {
                 nut_rad: 0.0,
                 shift: [0.0, 0.0],
                 gain: 1.0,
+                roll_rad: 0.0,
             }]);
             let got = moment_angle(&img, 200, floor);
             assert!((got - (10.0 + sign * 7.5)).abs() < 0.005, "{spin:?}: {got}");
@@ -565,6 +856,7 @@ mod tests {
                 nut_rad: 0.0,
                 shift: [0.0, 0.0],
                 gain: 1.0,
+                roll_rad: 0.0,
             }]);
             let area: f64 = img
                 .iter()
@@ -593,6 +885,7 @@ mod tests {
                 nut_rad: 0.0,
                 shift: [0.0, 0.0],
                 gain: 1.0,
+                roll_rad: 0.0,
             }]);
             let got = moment_angle(&img, 200, Steel::Dark.luma());
             let err = (got - deg + 90.0).rem_euclid(180.0) - 90.0;

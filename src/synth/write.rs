@@ -6,7 +6,7 @@
 use std::io::Write;
 use std::path::Path;
 
-use image::{ImageBuffer, Luma as PixLuma};
+use image::{ImageBuffer, Luma as PixLuma, Rgb};
 
 use super::{Scenario, Truth, render_clip};
 use crate::decode::{Frame, Luma};
@@ -56,9 +56,37 @@ pub fn write_sidecars(sc: &Scenario, truth: &Truth, dir: &Path) -> Result<()> {
     write_json(&dir.join("scenario.json"), sc)
 }
 
+/// 8-bit R′G′B′ of a colour frame (full-size chroma), from full-range Y′CbCr by the inverse
+/// of the ITU-R BT.601-7 §2.5.2 matrix.
+fn frame_rgb(frame: &Frame, luma: &[u8]) -> Vec<u8> {
+    let Some(c) = &frame.chroma else {
+        return luma.iter().flat_map(|&v| [v, v, v]).collect();
+    };
+    let w = frame.width as usize;
+    let mut out = Vec::with_capacity(luma.len() * 3);
+    for (i, &y) in luma.iter().enumerate() {
+        let (x, row) = (i % w, i / w);
+        let cx = (x * c.width as usize / w).min(c.width as usize - 1);
+        let cy = (row * c.height as usize / frame.height as usize).min(c.height as usize - 1);
+        let j = cy * c.width as usize + cx;
+        let ycc = [
+            f32::from(y) / 255.0,
+            (f32::from(c.cb[j]) - 128.0) / 255.0,
+            (f32::from(c.cr[j]) - 128.0) / 255.0,
+        ];
+        let rgb = super::look::ycc_to_rgb(ycc);
+        out.extend(rgb.map(|v| (v.clamp(0.0, 1.0) * 255.0).round() as u8));
+    }
+    out
+}
+
 fn save_frame(frame: &Frame, path: &Path, fmt: StillFormat) -> Result<()> {
     let (w, h) = (frame.width, frame.height);
     let result = match (&frame.luma, fmt) {
+        (Luma::U8(d), StillFormat::Png) if frame.chroma.is_some() => {
+            let rgb = frame_rgb(frame, d);
+            ImageBuffer::<Rgb<u8>, _>::from_raw(w, h, rgb).map(|img| img.save(path))
+        }
         (Luma::U8(d), StillFormat::Png) => {
             ImageBuffer::<PixLuma<u8>, _>::from_raw(w, h, d.clone()).map(|img| img.save(path))
         }
@@ -150,14 +178,24 @@ pub(crate) fn save_video(
     if let Some(parent) = path.parent() {
         std::fs::create_dir_all(parent).map_err(|e| Error::io(parent, e))?;
     }
-    let mut w = crate::encode::ClipWriter::create_with_depth(
-        path,
-        codec,
-        first.width,
-        first.height,
-        container_fps_hz,
-        first.bit_depth,
-    )?;
+    let mut w = if first.chroma.is_some() {
+        crate::encode::ClipWriter::create_colour(
+            path,
+            codec,
+            first.width,
+            first.height,
+            container_fps_hz,
+        )?
+    } else {
+        crate::encode::ClipWriter::create_with_depth(
+            path,
+            codec,
+            first.width,
+            first.height,
+            container_fps_hz,
+            first.bit_depth,
+        )?
+    };
     for f in frames {
         w.write(f)?;
     }

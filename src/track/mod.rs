@@ -33,6 +33,7 @@ use crate::rig::{Mark, Rig, Role};
 use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
 
+mod colour;
 mod gather;
 mod polar;
 mod radial;
@@ -110,6 +111,9 @@ struct MarkTrack {
     dir_offset: Vec<Option<f64>>,
     /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
     side: Option<side::SideTracker>,
+    /// The colour projection this mark is tracked on, when colour separates its paint from
+    /// its metal better than luma (`colour.rs`); None keeps the luma path.
+    colour: Option<colour::ColourPlane>,
 }
 
 /// Measures the rig's marks frame by frame.
@@ -152,6 +156,7 @@ impl Tracker {
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
                     side: None,
+                    colour: None,
                 }),
                 Mark::Side(m) => Ok(MarkTrack {
                     role,
@@ -166,6 +171,7 @@ impl Tracker {
                             reason,
                         }
                     })?),
+                    colour: None,
                 }),
             }
         };
@@ -296,6 +302,14 @@ impl Tracker {
             (v, screen)
         };
         for t in [&self.drive, &self.nut] {
+            if let Some(c) = &t.colour {
+                warnings.push(Warning::Note(format!(
+                    "{} mark tracked on colour: its paint differs from the metal more in colour than in brightness (Fisher separation {:.0} with colour, {:.0} on luma alone)",
+                    t.role.name(),
+                    c.separation.0,
+                    c.separation.1
+                )));
+            }
             for (first_frame, last_frame) in unwrap::lost_runs(&t.angle, &self.frames) {
                 warnings.push(Warning::MarkLost {
                     mark: t.role.name().into(),
@@ -378,13 +392,37 @@ fn measure(
     if t.side.is_some() {
         return side::measure(t, frame, shift, first);
     }
+    if first && frame.chroma.is_some() {
+        t.colour = colour::ColourPlane::learn(frame, t.radial.grid(), shift);
+    }
+    let MarkTrack { radial, colour, .. } = t;
     let m = if first {
-        Some(t.radial.init(frame, shift).map_err(|reason| Error::Mark {
-            mark: t.role.name().into(),
-            reason: format!("frame {}: {reason}", frame.index),
-        })?)
+        let on_colour = match colour.as_mut() {
+            Some(c) => {
+                c.fill(frame, shift);
+                radial.init(c.view(frame.index), shift).ok()
+            }
+            None => None,
+        };
+        match on_colour {
+            Some(m) => Some(m),
+            None => {
+                // No colour, or the projection did not show a stripe: the luma path.
+                *colour = None;
+                Some(radial.init(frame, shift).map_err(|reason| Error::Mark {
+                    mark: t.role.name().into(),
+                    reason: format!("frame {}: {reason}", frame.index),
+                })?)
+            }
+        }
     } else {
-        t.radial.measure(frame, shift)
+        match colour.as_mut() {
+            Some(c) => {
+                c.fill(frame, shift);
+                radial.measure(c.view(frame.index), shift)
+            }
+            None => radial.measure(frame, shift),
+        }
     };
     t.angle.push(m.map(|m| m.angle));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));

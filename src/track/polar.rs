@@ -150,6 +150,13 @@ impl PolarGrid {
         grid
     }
 
+    /// The pivot, the disc-to-screen map and the pixels the unshifted grid reads:
+    /// `[x_lo, x_hi, y_lo, y_hi]`, inclusive, covering every sample's four bilinear taps.
+    pub fn geometry(&self) -> ([f64; 2], [[f64; 2]; 2], [usize; 4]) {
+        let [x0, x1, y0, y1] = self.bbox;
+        (self.pivot, self.map, [x0, x1 + 1, y0, y1 + 1])
+    }
+
     /// Angular step between bins, rad.
     pub fn step(&self) -> f64 {
         2.0 * PI / self.bins as f64

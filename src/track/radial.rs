@@ -1147,6 +1147,7 @@ mod tests {
             prop_assert_eq!(best_ring_median(&resp, rings, floor, &mut column), want);
         }
 
+        #[test]
         fn floor_i64_equals_floor(x in -1e9f64..1e9) {
             prop_assert_eq!(floor_i64(x), x.floor() as i64);
             let whole = x.round();

@@ -43,6 +43,7 @@ fn frame_deep(i: u64, depth: u8) -> Frame {
         height: H,
         bit_depth: depth,
         luma: Luma::U16(data),
+        chroma: None,
     }
 }
 

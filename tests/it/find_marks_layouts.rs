@@ -12,7 +12,7 @@
 //!   passes (it does not yet: docs/accuracy.md).
 //! - `held_out_layouts_table` (ignored) runs all of them at full size and prints the table in
 //!   docs/accuracy.md:
-//!   `cargo test --release --test find_marks_layouts -- --ignored --nocapture`
+//!   `cargo test --release --test it find_marks_layouts:: -- --ignored --nocapture`
 
 use std::path::Path;
 

@@ -17,6 +17,7 @@ mod find_marks;
 mod find_marks_layouts;
 mod fixtures_decode;
 mod holding;
+mod held_out;
 mod hostile;
 mod segment;
 mod side;

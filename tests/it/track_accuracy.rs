@@ -452,6 +452,90 @@ fn fast_jumps_at_1000_fps_are_followed() {
     assert!(s.drive_rms <= 0.10 && s.nut_rms <= 0.10, "{s:?}");
 }
 
+// Small-size versions of table rows that had no quick test (issue 15): CI runs these.
+
+#[test]
+fn white_and_orange_paint_within_target() {
+    for (paint, steel) in [(Paint::White, Steel::Dark), (Paint::Orange, Steel::Bare)] {
+        check(Case {
+            name: "paint",
+            sc: with("slow-tool", |s| {
+                s.scene.paint = paint;
+                s.scene.drive.steel = steel;
+            }),
+            medium: Medium::Stills,
+            limit: Some(50),
+            pivots_from_first_frame: false,
+        });
+    }
+}
+
+#[test]
+fn four_thousand_fps_within_target() {
+    check(Case {
+        name: "fast tool, 4,000 fps",
+        sc: with("fast-tool", |s| s.camera.fps_hz = 4000.0),
+        medium: Medium::Stills,
+        limit: Some(90),
+        pivots_from_first_frame: false,
+    });
+}
+
+#[test]
+fn motion_blur_within_target() {
+    check(Case {
+        name: "motion blur (exposure ½ frame)",
+        sc: with("fast-tool", blur),
+        medium: Medium::Stills,
+        limit: Some(50),
+        pivots_from_first_frame: false,
+    });
+}
+
+#[test]
+fn sixteen_bit_stills_with_noise_within_target() {
+    check(Case {
+        name: "16-bit stills, noise 1 %",
+        sc: with("slow-tool", |s| {
+            s.camera.bit_depth = 16;
+            s.effects.noise_sigma = 0.01;
+        }),
+        medium: Medium::Stills,
+        limit: Some(50),
+        pivots_from_first_frame: false,
+    });
+}
+
+#[cfg(feature = "ffmpeg")]
+#[test]
+fn h264_with_flicker_at_120_hz_within_target() {
+    use twistmark::encode::Codec;
+    check(Case {
+        name: "H.264 + flicker 120 Hz",
+        sc: with("fast-tool", |s| flicker(s, 120.0)),
+        medium: Medium::Video(Codec::H264 { crf: 23 }),
+        limit: Some(80),
+        pivots_from_first_frame: false,
+    });
+}
+
+#[cfg(feature = "ffmpeg")]
+#[test]
+fn mjpeg_with_noise_flicker_and_highlight_within_target() {
+    use twistmark::encode::Codec;
+    check(Case {
+        name: "MJPEG + noise 1 % + flicker + highlight",
+        sc: with("slow-tool", |s| {
+            s.effects.noise_sigma = 0.01;
+            flicker(s, 100.0);
+            highlight(s);
+        }),
+        medium: Medium::Video(Codec::Mjpeg { quality: 4 }),
+        limit: Some(60),
+        pivots_from_first_frame: false,
+    });
+}
+
 #[test]
 fn dark_red_stripe_on_bare_steel_and_ccw() {
     check(Case {

@@ -1,0 +1,428 @@
+//! Colour marks: where a clip has colour, a mark whose paint differs from its metal more in
+//! colour than in brightness is tracked on the projection of (Y′, Cb, Cr) that best separates
+//! the two, learnt from the first frame: Fisher's linear discriminant, w = S_w⁻¹ (μ_paint −
+//! μ_metal) with S_w the pooled within-class scatter (R. A. Fisher, "The use of multiple
+//! measurements in taxonomic problems", Annals of Eugenics 7 (1936) 179–188; Duda, Hart &
+//! Stork, Pattern Classification, 2nd ed., §3.8.2).
+//!
+//! The radial tracker is left as it is: per frame, the projection is written into a plane of
+//! the frame's size, but only over the pixels the mark's grid can read (its sample box, grown
+//! by the camera shift), and the tracker reads that plane as if it were luma. Chroma is read
+//! only inside those boxes. Paint is mapped to 0.75 and metal to 0.25 of full scale; the
+//! tracker normalises each ring by its own mean and noise, so lighting flicker (a common gain
+//! on Y′, Cb and Cr, which scales the projection) does not matter.
+//!
+//! Labels come from the first frame without knowing the paint's colour: the annulus is cut
+//! into angular sectors; the metal is the sectors' median colour, and the stripe is the run of
+//! sectors around the one farthest from it (per-channel robust z, MAD scale). Everything else
+//! in the annulus (recesses, pits, glints, holes) lands in the metal class, so its scatter
+//! makes the discriminant give those directions of colour little weight.
+//!
+//! When the projection does not at least double Fisher's separation J = Δᵀ S_w⁻¹ Δ over luma
+//! alone (a monochrome camera, neutral chroma, or paint that already stands out in brightness),
+//! the mark keeps the exact luma path.
+
+// 3×3 matrix algebra on (Y′, Cb, Cr) reads most plainly with indices.
+#![allow(clippy::needless_range_loop)]
+
+use crate::decode::{FrameRef, LumaRef};
+
+use super::polar::PolarGrid;
+
+/// Chroma must multiply the luma-only separation by this much to be used.
+const MIN_GAIN_OVER_LUMA: f64 = 2.0;
+/// Sample noise floor added to the scatter's diagonal: 8-bit quantisation, (1/255)²/12 per
+/// channel, times four for sensor noise (common practice).
+const RIDGE: f64 = 4.0 * (1.0 / 255.0) * (1.0 / 255.0) / 12.0;
+/// Pixels kept around the grid's box beyond the camera shift, px.
+const BOX_MARGIN_PX: usize = 2;
+
+/// A mark's learnt projection and the plane it is written into.
+#[derive(Debug, Clone)]
+pub(crate) struct ColourPlane {
+    /// Weights on (Y′, Cb, Cr), scaled so that metal maps to 0.25 and paint to 0.75.
+    w: [f32; 3],
+    /// Offset of the mapping.
+    offset: f32,
+    /// The plane, frame-sized; only the box of the last frame holds current values.
+    buf: Vec<u16>,
+    width: u32,
+    height: u32,
+    /// The grid's pixel box, inclusive: x_lo, x_hi, y_lo, y_hi.
+    grid_box: [usize; 4],
+    /// Fisher's separation with colour and with luma alone (for tests and notes).
+    pub separation: (f64, f64),
+}
+
+/// Y′ (0..1) of 8-bit luma.
+#[inline]
+fn luma_at(d: &[u8], w: u32, x: usize, y: usize) -> f32 {
+    f32::from(d[y * w as usize + x]) / 255.0
+}
+
+fn inv3(m: [[f64; 3]; 3]) -> Option<[[f64; 3]; 3]> {
+    let det = m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+        - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+        + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0]);
+    if det.abs() < 1e-300 || !det.is_finite() {
+        return None;
+    }
+    let c = |a: usize, b: usize, c: usize, d: usize| m[a][b] * m[c][d];
+    let r = [
+        [
+            c(1, 1, 2, 2) - c(1, 2, 2, 1),
+            c(0, 2, 2, 1) - c(0, 1, 2, 2),
+            c(0, 1, 1, 2) - c(0, 2, 1, 1),
+        ],
+        [
+            c(1, 2, 2, 0) - c(1, 0, 2, 2),
+            c(0, 0, 2, 2) - c(0, 2, 2, 0),
+            c(0, 2, 1, 0) - c(0, 0, 1, 2),
+        ],
+        [
+            c(1, 0, 2, 1) - c(1, 1, 2, 0),
+            c(0, 1, 2, 0) - c(0, 0, 2, 1),
+            c(0, 0, 1, 1) - c(0, 1, 1, 0),
+        ],
+    ];
+    Some(r.map(|row| row.map(|v| v / det)))
+}
+
+/// Mean and scatter (covariance) of colour samples.
+fn moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
+    let n = px.len().max(1) as f64;
+    let mut mu = [0.0; 3];
+    for p in px {
+        for k in 0..3 {
+            mu[k] += f64::from(p[k]);
+        }
+    }
+    mu = mu.map(|v| v / n);
+    let mut s = [[0.0; 3]; 3];
+    for p in px {
+        let d = [0, 1, 2].map(|k| f64::from(p[k]) - mu[k]);
+        for a in 0..3 {
+            for b in 0..3 {
+                s[a][b] += d[a] * d[b];
+            }
+        }
+    }
+    (mu, s.map(|r| r.map(|v| v / n)))
+}
+
+fn median(v: &mut [f64]) -> f64 {
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    if n == 0 {
+        return 0.0;
+    }
+    if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    }
+}
+
+impl ColourPlane {
+    /// Learns the projection for the mark sampled by `grid` from the first frame (moved by
+    /// `shift`). None when the frame has no colour, its luma is deeper than 8 bit, no stripe
+    /// stands out, or colour adds too little over luma.
+    pub fn learn(frame: FrameRef<'_>, grid: &PolarGrid, shift: [f64; 2]) -> Option<ColourPlane> {
+        let chroma = frame.chroma?;
+        let LumaRef::U8(luma) = frame.luma else {
+            return None;
+        };
+        let (pivot, map, grid_box) = grid.geometry();
+        let (r_lo, r_hi) = {
+            let r = &grid.radius;
+            let half = if r.len() > 1 {
+                0.5 * (r[1] - r[0])
+            } else {
+                0.5
+            };
+            (r[0] - half, r[r.len() - 1] + half)
+        };
+        // Screen → disc plane: the inverse of the 2×2 map.
+        let det = map[0][0] * map[1][1] - map[0][1] * map[1][0];
+        if det.abs() < 1e-9 {
+            return None;
+        }
+        let inv = [
+            [map[1][1] / det, -map[0][1] / det],
+            [-map[1][0] / det, map[0][0] / det],
+        ];
+        let r_mid = 0.5 * (r_lo + r_hi);
+        let sectors = ((std::f64::consts::TAU * r_mid / 3.0).round() as usize).clamp(36, 240);
+        let mut px: Vec<(usize, [f32; 3])> = Vec::new();
+        let (w, h) = (frame.width, frame.height);
+        let [x0, x1, y0, y1] = shifted_box(grid_box, shift, w, h);
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                let dx = x as f64 - pivot[0] - shift[0];
+                let dy = y as f64 - pivot[1] - shift[1];
+                let u = inv[0][0] * dx + inv[0][1] * dy;
+                let v = inv[1][0] * dx + inv[1][1] * dy;
+                let r = (u * u + v * v).sqrt();
+                if r < r_lo || r > r_hi {
+                    continue;
+                }
+                let a = v.atan2(u) + std::f64::consts::PI;
+                let s = ((a / std::f64::consts::TAU * sectors as f64) as usize).min(sectors - 1);
+                let (cb, cr) = chroma.at(x as u32, y as u32, w, h);
+                px.push((s, [luma_at(luma, w, x, y), cb, cr]));
+            }
+        }
+        if px.len() < 50 {
+            return None;
+        }
+        // Sector means.
+        let mut sum = vec![[0.0f64; 3]; sectors];
+        let mut cnt = vec![0usize; sectors];
+        for (s, c) in &px {
+            cnt[*s] += 1;
+            for k in 0..3 {
+                sum[*s][k] += f64::from(c[k]);
+            }
+        }
+        let means: Vec<Option<[f64; 3]>> = (0..sectors)
+            .map(|s| (cnt[s] >= 2).then(|| sum[s].map(|v| v / cnt[s] as f64)))
+            .collect();
+        let filled: Vec<[f64; 3]> = means.iter().flatten().copied().collect();
+        if filled.len() < sectors / 2 {
+            return None;
+        }
+        let mut centre = [0.0; 3];
+        let mut spread = [0.0; 3];
+        for k in 0..3 {
+            let mut v: Vec<f64> = filled.iter().map(|m| m[k]).collect();
+            centre[k] = median(&mut v);
+            let mut dev: Vec<f64> = filled.iter().map(|m| (m[k] - centre[k]).abs()).collect();
+            spread[k] = (1.4826 * median(&mut dev)).max(1.0 / 255.0);
+        }
+        let score: Vec<f64> = means
+            .iter()
+            .map(|m| {
+                m.map_or(0.0, |m| {
+                    (0..3)
+                        .map(|k| ((m[k] - centre[k]) / spread[k]).powi(2))
+                        .sum()
+                })
+            })
+            .collect();
+        let (peak, &best) = score.iter().enumerate().max_by(|a, b| a.1.total_cmp(b.1))?;
+        if best < 9.0 {
+            return None;
+        }
+        // The stripe: the run of sectors around the peak scoring at least half of it.
+        let mut stripe = vec![false; sectors];
+        stripe[peak] = true;
+        let limit = sectors / 6;
+        for dir in [1isize, -1] {
+            for step in 1..=limit as isize {
+                let s = (peak as isize + dir * step).rem_euclid(sectors as isize) as usize;
+                if score[s] < 0.5 * best {
+                    break;
+                }
+                stripe[s] = true;
+            }
+        }
+        let width = stripe.iter().filter(|&&b| b).count();
+        let guard = (2 * width).max(sectors / 24) as isize;
+        let far = |s: usize| {
+            let d = (s as isize - peak as isize).rem_euclid(sectors as isize);
+            d.min(sectors as isize - d) > guard
+        };
+        let paint: Vec<[f32; 3]> = px.iter().filter(|p| stripe[p.0]).map(|p| p.1).collect();
+        let metal: Vec<[f32; 3]> = px.iter().filter(|p| far(p.0)).map(|p| p.1).collect();
+        if paint.len() < 8 || metal.len() < 50 {
+            return None;
+        }
+        let (mp, sp) = moments(&paint);
+        let (mm, sm) = moments(&metal);
+        let mut sw = [[0.0; 3]; 3];
+        for a in 0..3 {
+            for b in 0..3 {
+                sw[a][b] = sm[a][b] + sp[a][b] + if a == b { RIDGE } else { 0.0 };
+            }
+        }
+        let delta = [0, 1, 2].map(|k| mp[k] - mm[k]);
+        let si = inv3(sw)?;
+        let wv = [0, 1, 2].map(|a| (0..3).map(|b| si[a][b] * delta[b]).sum::<f64>());
+        let j_colour: f64 = (0..3).map(|k| wv[k] * delta[k]).sum();
+        let j_luma = delta[0] * delta[0] / sw[0][0];
+        if !(j_colour.is_finite() && j_colour > MIN_GAIN_OVER_LUMA * j_luma) {
+            return None;
+        }
+        // Map metal to 0.25 and paint to 0.75: v = 0.25 + 0.5 (w·c − w·μm) / (w·Δ).
+        let pm: f64 = (0..3).map(|k| wv[k] * mm[k]).sum();
+        let g = 0.5 / j_colour;
+        let wf = wv.map(|v| (v * g) as f32);
+        let offset = (0.25 - pm * g) as f32;
+        Some(ColourPlane {
+            w: wf,
+            offset,
+            buf: vec![0; w as usize * h as usize],
+            width: w,
+            height: h,
+            grid_box,
+            separation: (j_colour, j_luma),
+        })
+    }
+
+    /// Writes the projection of `frame` over the grid's box moved by `shift`.
+    pub fn fill(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
+        let (Some(chroma), LumaRef::U8(luma)) = (frame.chroma, frame.luma) else {
+            // A frame without colour in a colour clip: project its luma alone.
+            self.fill_luma_only(frame, shift);
+            return;
+        };
+        let (w, h) = (self.width, self.height);
+        let [x0, x1, y0, y1] = shifted_box(self.grid_box, shift, w, h);
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                let (cb, cr) = chroma.at(x as u32, y as u32, w, h);
+                self.buf[y * w as usize + x] = self.project(luma_at(luma, w, x, y), cb, cr);
+            }
+        }
+    }
+
+    fn fill_luma_only(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
+        let (w, h) = (self.width, self.height);
+        let [x0, x1, y0, y1] = shifted_box(self.grid_box, shift, w, h);
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                let v = frame.value(x as u32, y as u32);
+                self.buf[y * w as usize + x] = self.project(v, 0.0, 0.0);
+            }
+        }
+    }
+
+    #[inline]
+    fn project(&self, y: f32, cb: f32, cr: f32) -> u16 {
+        let v = self.offset + self.w[0] * y + self.w[1] * cb + self.w[2] * cr;
+        (v.clamp(0.0, 1.0) * 65535.0) as u16
+    }
+
+    /// The plane as a 16-bit frame for the radial tracker.
+    pub fn view(&self, index: u64) -> FrameRef<'_> {
+        FrameRef {
+            index,
+            width: self.width,
+            height: self.height,
+            bit_depth: 16,
+            luma: LumaRef::U16(&self.buf),
+            chroma: None,
+        }
+    }
+}
+
+/// The grid's box moved by `shift` and grown by the shift's size and a margin, inside a
+/// `w × h` frame: [x_lo, x_hi, y_lo, y_hi], inclusive.
+fn shifted_box(b: [usize; 4], shift: [f64; 2], w: u32, h: u32) -> [usize; 4] {
+    let grow = |lo: usize, hi: usize, s: f64, n: u32| -> (usize, usize) {
+        let m = BOX_MARGIN_PX as f64 + 1.0;
+        let lo = (lo as f64 + s.min(0.0) - m).floor().max(0.0) as usize;
+        let hi = ((hi as f64 + s.max(0.0) + m).ceil() as usize).min(n as usize - 1);
+        (lo, hi)
+    };
+    let (x0, x1) = grow(b[0], b[1], shift[0], w);
+    let (y0, y1) = grow(b[2], b[3], shift[1], h);
+    [x0, x1, y0, y1]
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::decode::{Chroma, ChromaSiting, Frame};
+    use crate::rig::{RadialMark, Spin};
+
+    /// A 96×96 colour frame: metal (Y 0.6, neutral), an orange-ish stripe at `deg` with the
+    /// same luma, on a ring around (48, 48).
+    fn frame(deg: f64, chroma: bool) -> Frame {
+        let (w, h) = (96u32, 96u32);
+        let (s, c) = deg.to_radians().sin_cos();
+        let mut y = Vec::new();
+        let (mut cb, mut cr) = (Vec::new(), Vec::new());
+        for j in 0..h {
+            for i in 0..w {
+                let (dx, dy) = (f64::from(i) - 48.0, f64::from(j) - 48.0);
+                let along = dx * c + dy * s;
+                let across = -dx * s + dy * c;
+                let paint = along > 0.0 && across.abs() < 3.0;
+                let tex = ((i * 7 + j * 13) % 5) as f64 * 0.01;
+                y.push(((0.6 + tex) * 255.0).round() as u8);
+                cb.push(if paint { 90 } else { 128 });
+                cr.push(if paint { 175 } else { 128 });
+            }
+        }
+        let mut f = Frame::from_u8(0, w, h, y);
+        if chroma {
+            f.chroma = Some(Chroma {
+                width: w,
+                height: h,
+                cb,
+                cr,
+                siting: ChromaSiting::Centre,
+            });
+        }
+        f
+    }
+
+    fn grid() -> PolarGrid {
+        PolarGrid::new(
+            &RadialMark {
+                pivot: [48.0, 48.0],
+                radius: [10.0, 40.0],
+                tighten: Some(Spin::Cw),
+                ellipse: None,
+            },
+            96,
+            96,
+        )
+    }
+
+    #[test]
+    fn a_stripe_seen_only_in_colour_is_projected_bright_on_dull_metal() {
+        let f = frame(30.0, true);
+        let g = grid();
+        let mut p = ColourPlane::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
+        assert!(p.separation.0 > 2.0 * p.separation.1, "{:?}", p.separation);
+        p.fill(f.view(), [0.0, 0.0]);
+        let v = p.view(0);
+        // On the stripe (20 px out at 30°) and on metal (20 px out at 120°).
+        let at = |deg: f64| {
+            let (s, c) = deg.to_radians().sin_cos();
+            v.value(
+                (48.0 + 20.0 * c).round() as u32,
+                (48.0 + 20.0 * s).round() as u32,
+            )
+        };
+        assert!((at(30.0) - 0.75).abs() < 0.1, "{}", at(30.0));
+        assert!((at(120.0) - 0.25).abs() < 0.1, "{}", at(120.0));
+    }
+
+    #[test]
+    fn monochrome_frames_keep_the_luma_path() {
+        let g = grid();
+        assert!(ColourPlane::learn(frame(30.0, false).view(), &g, [0.0, 0.0]).is_none());
+        // Neutral chroma (a monochrome camera in a colour container) adds nothing either.
+        let mut f = frame(30.0, true);
+        if let Some(c) = f.chroma.as_mut() {
+            c.cb.fill(128);
+            c.cr.fill(128);
+        }
+        assert!(ColourPlane::learn(f.view(), &g, [0.0, 0.0]).is_none());
+    }
+
+    #[test]
+    fn inverse_of_a_symmetric_matrix() {
+        let m = [[4.0, 1.0, 0.5], [1.0, 3.0, 0.2], [0.5, 0.2, 2.0]];
+        let i = inv3(m).unwrap();
+        for a in 0..3 {
+            for b in 0..3 {
+                let p: f64 = (0..3).map(|k| m[a][k] * i[k][b]).sum();
+                assert!((p - if a == b { 1.0 } else { 0.0 }).abs() < 1e-12);
+            }
+        }
+    }
+}
