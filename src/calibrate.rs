@@ -209,9 +209,7 @@ pub fn read_stills_csv(csv: &Path, reference: Option<&Path>) -> Result<StillsPla
         let rec = rec.map_err(|e| bad(format!("{e}")))?;
         let line = rec.position().map_or(0, |p| file_line(&text, p.byte()));
         let ts = rec.get(ti).unwrap_or("");
-        let t = ts
-            .parse::<f64>()
-            .ok()
+        let t = crate::mechanics::parse_decimal(ts)
             .filter(|v| v.is_finite())
             .ok_or_else(|| {
                 bad(format!(

@@ -30,6 +30,7 @@ pub mod decode;
 pub mod encode;
 mod error;
 pub mod locate;
+pub mod manifest;
 pub mod mechanics;
 pub mod report;
 pub mod rig;

@@ -34,9 +34,13 @@ pub struct AnalyzeArgs {
     /// DIR/overlays/ to check the tracking by eye.
     #[arg(long)]
     overlay: bool,
-    /// With --overlay, draw only every Nth blow's peak-twist frame.
-    #[arg(long, value_name = "N", default_value_t = 1, requires = "overlay")]
-    overlay_every: usize,
+    /// Draw only every Nth blow's peak-twist frame into DIR/overlays/ (turns --overlay on).
+    #[arg(long, value_name = "N")]
+    overlay_every: Option<usize>,
+    /// Torque unit for the table, plots and report.html: nm or lbf-ft (JSON and CSV keep SI
+    /// keys, with _lbf_ft columns beside them).
+    #[arg(long, value_name = "UNIT", default_value = "nm")]
+    units: String,
 }
 
 pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
@@ -53,10 +57,14 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
             .map(|t| super::parse_number("--end-s", t))
             .transpose()?,
     };
-    let rig = twistmark::Rig::from_path(&a.rig)?;
-    if a.overlay_every == 0 {
+    let report_opts = twistmark::report::ReportOptions {
+        units: twistmark::report::TorqueUnit::parse(&a.units).map_err(anyhow::Error::msg)?,
+    };
+    if a.overlay_every == Some(0) {
         anyhow::bail!("--overlay-every: must be at least 1 (1 draws every blow)");
     }
+    let overlay = a.overlay || a.overlay_every.is_some();
+    let rig = twistmark::Rig::from_path(&a.rig)?;
     // Before the analysis, so a long clip is not analysed only to be refused at the end.
     twistmark::report::check_output_folder(&a.out, "report.json", a.force)?;
     let progress = super::progress::FrameProgress::new(&a.clip.display().to_string());
@@ -70,11 +78,11 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
     super::print_warnings(&analysis.warnings);
     // Plots and overlays first and report.json last: a report.json in DIR means the run
     // finished (every file is also written under a temporary name and renamed).
-    let mut written = twistmark::report::write_plots(&analysis, &a.out)
+    let mut written = twistmark::report::plot::write_plots_with(&analysis, &a.out, &report_opts)
         .with_context(|| format!("writing plots to {}", a.out.display()))?;
-    if a.overlay {
+    if overlay {
         let o = twistmark::report::overlay::OverlayOptions {
-            every_nth_blow: a.overlay_every,
+            every_nth_blow: a.overlay_every.unwrap_or(1),
             ..Default::default()
         };
         written.extend(
@@ -83,10 +91,13 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
         );
     }
     written.extend(
-        twistmark::report::write_outputs(&analysis, &a.out)
+        twistmark::report::write_outputs_with(&analysis, &a.out, &report_opts)
             .with_context(|| format!("writing results to {}", a.out.display()))?,
     );
-    print!("{}", twistmark::report::blow_table(&analysis));
+    print!(
+        "{}",
+        twistmark::report::blow_table_with(&analysis, &report_opts)
+    );
     for p in written {
         eprintln!("wrote {}", p.display());
     }

@@ -191,6 +191,13 @@ pub struct CalibrationSpec {
     /// Where the twists came from (`"given"` for typed-in or CSV values).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub twist_source: Option<String>,
+    /// The day the checks were made, ISO 8601 (`YYYY-MM-DD`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub date: Option<String>,
+    /// The torque reference used: maker, model, serial number and its own calibration
+    /// certificate, as free text.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reference_wrench: Option<String>,
 }
 
 /// The material a section ends up with, and where each value came from.

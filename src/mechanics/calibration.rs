@@ -192,6 +192,8 @@ impl CalibrationFit {
             torque_nm: self.pairs.iter().map(|p| p.torque.nm()).collect(),
             twist_deg: self.pairs.iter().map(|p| p.twist.deg()).collect(),
             twist_source: Some(twist_source.to_string()),
+            date: None,
+            reference_wrench: None,
         }
     }
 }
@@ -264,15 +266,12 @@ pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
         let line = rec.position().map_or(0, |p| p.line());
         let num = |col: usize| -> Result<f64> {
             let s = rec.get(col).unwrap_or("");
-            s.parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .ok_or_else(|| {
-                    bad(format!(
-                        "line {line}, column {}: '{s}' is not a number",
-                        &headers[col]
-                    ))
-                })
+            parse_decimal(s).filter(|v| v.is_finite()).ok_or_else(|| {
+                bad(format!(
+                    "line {line}, column {}: '{s}' is not a number",
+                    &headers[col]
+                ))
+            })
         };
         pairs.push(CalibrationPair {
             torque: Torque::from_nm(num(ti)? * tf),
@@ -285,14 +284,40 @@ pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
     Ok(pairs)
 }
 
-/// A CSV reader over `text` (cells trimmed, `#` lines are comments) and its header row; the
-/// error is the reason, for the caller to attach the file name.
+/// A number as a spreadsheet may write it: `4.3`, or `4,3` with a decimal comma (as
+/// spreadsheets set to many European locales save CSV files). A comma is read as the
+/// decimal sign only when it is the one separator in the cell, so `1,234.5` is refused
+/// rather than guessed.
+pub(crate) fn parse_decimal(s: &str) -> Option<f64> {
+    let s = s.trim();
+    s.parse::<f64>().ok().or_else(|| {
+        (s.matches(',').count() == 1 && !s.contains('.'))
+            .then(|| s.replace(',', "."))
+            .and_then(|t| t.parse::<f64>().ok())
+    })
+}
+
+/// The field separator of a CSV text: `;` when the header row holds a semicolon (what a
+/// spreadsheet with a decimal comma writes), otherwise `,`.
+pub(crate) fn csv_delimiter(text: &str) -> u8 {
+    let header = text
+        .lines()
+        .map(str::trim)
+        .find(|l| !l.is_empty() && !l.starts_with('#'))
+        .unwrap_or("");
+    if header.contains(';') { b';' } else { b',' }
+}
+
+/// A CSV reader over `text` (cells trimmed, `#` lines are comments, `,` or `;` between
+/// fields, see [`csv_delimiter`]) and its header row; the error is the reason, for the caller
+/// to attach the file name.
 pub(crate) fn csv_with_headers(
     text: &str,
 ) -> std::result::Result<(csv::Reader<&[u8]>, csv::StringRecord), String> {
     let mut rdr = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
+        .delimiter(csv_delimiter(text))
         .from_reader(text.as_bytes());
     let headers = rdr
         .headers()

@@ -17,6 +17,7 @@ use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 use plotters::style::FontStyle;
 
+use super::display::{ReportOptions, TorqueUnit, tick, tick_sig};
 use crate::analyze::Analysis;
 use crate::error::{Error, Result};
 
@@ -29,7 +30,7 @@ const FONT: &str = "sans-serif";
 /// Size of a per-clip plot, pixels.
 const CLIP_SIZE: (u32, u32) = (1200, 650);
 /// Size of the batch comparison plot, pixels.
-const COMPARISON_SIZE: (u32, u32) = (1200, 1000);
+const COMPARISON_SIZE: (u32, u32) = (1200, 1450);
 
 const DRIVE_COLOR: RGBColor = RGBColor(31, 119, 180);
 const NUT_COLOR: RGBColor = RGBColor(230, 110, 0);
@@ -90,12 +91,7 @@ fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<
         reason: format!("could not draw the plot: {e}"),
     };
 
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
-        plot.draw(&root).map_err(|e| failed(&svg_path, e))?;
-        root.present().map_err(|e| failed(&svg_path, Box::new(e)))?;
-    }
+    let svg = svg_string(plot, size, &svg_path)?;
     super::write_atomic(&svg_path, svg.as_bytes())?;
 
     let mut buf = vec![255u8; size.0 as usize * size.1 as usize * 3];
@@ -110,6 +106,60 @@ fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<
     })?;
     super::save_png_atomic(&img, &png_path)?;
     Ok(vec![svg_path, png_path])
+}
+
+/// Draws `plot` into an SVG document in memory; `path` names it in errors.
+fn svg_string(plot: &impl Plot, size: (u32, u32), path: &Path) -> Result<String> {
+    register_font()?;
+    let failed = |e: Box<dyn std::error::Error>| Error::Output {
+        path: path.to_path_buf(),
+        reason: format!("could not draw the plot: {e}"),
+    };
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        plot.draw(&root).map_err(failed)?;
+        root.present().map_err(|e| failed(Box::new(e)))?;
+    }
+    Ok(svg)
+}
+
+/// The per-clip plots as SVG documents in memory, with their titles, for `report.html`.
+///
+/// # Errors
+/// [`Error::Output`] when a plot cannot be drawn.
+pub(crate) fn clip_svgs(
+    analysis: &Analysis,
+    opts: &ReportOptions,
+) -> Result<Vec<(&'static str, String)>> {
+    let d = ClipPlotData::from_analysis(analysis, opts.units);
+    let at = |stem: &str| PathBuf::from(format!("report.html ({stem} plot)"));
+    Ok(vec![
+        (
+            "Drive and nut angle",
+            svg_string(&AnglesPlot(&d), CLIP_SIZE, &at("angles"))?,
+        ),
+        (
+            "Twist and torque",
+            svg_string(&TwistPlot(&d), CLIP_SIZE, &at("twist_torque"))?,
+        ),
+        (
+            "Nut advance per blow",
+            svg_string(&AdvancePlot(&d), CLIP_SIZE, &at("nut_advance"))?,
+        ),
+    ])
+}
+
+/// The batch comparison plot as an SVG document in memory, for `summary.html`.
+///
+/// # Errors
+/// [`Error::Output`] when the plot cannot be drawn.
+pub(crate) fn comparison_svg(clips: &[ComparisonClip], opts: &ReportOptions) -> Result<String> {
+    svg_string(
+        &ComparisonPlot(clips, opts.units),
+        COMPARISON_SIZE,
+        Path::new("summary.html (comparison plot)"),
+    )
 }
 
 /// Time axis: seconds for long clips, milliseconds for short ones.
@@ -156,10 +206,12 @@ struct ClipPlotData {
     nut_advance_deg: Vec<(usize, Option<f64>)>,
     stiffness_nm_per_deg: Option<f64>,
     rating_nm: Option<f64>,
+    /// The unit torques are shown in.
+    unit: TorqueUnit,
 }
 
 impl ClipPlotData {
-    fn from_analysis(a: &Analysis) -> Self {
+    fn from_analysis(a: &Analysis, unit: TorqueUnit) -> Self {
         let tr = &a.trace;
         let n = tr.len();
         let t_s: Vec<f64> = (0..n).map(|i| tr.t_s(i)).collect();
@@ -211,6 +263,7 @@ impl ClipPlotData {
                 .collect(),
             stiffness_nm_per_deg: stiffness,
             rating_nm: a.rig.bar.as_ref().and_then(|b| b.rating_nm),
+            unit,
         }
     }
 }
@@ -353,6 +406,7 @@ where
         .configure_mesh()
         .x_desc("blow number")
         .y_desc("nut advance (°)")
+        .y_label_formatter(&|v| tick(*v))
         .x_labels(blows.clamp(1, 20) + 1)
         .x_label_formatter(&|x| {
             if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
@@ -393,6 +447,8 @@ impl Plot for AnglesPlot<'_> {
             .configure_mesh()
             .x_desc(d.axis.label())
             .y_desc("angle (°, tightening +)")
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| tick(*v))
             .house_style()
             .draw()?;
         if !d.onsets.is_empty() {
@@ -462,17 +518,23 @@ impl Plot for TwistPlot<'_> {
             .y_label_area_size(90)
             .right_y_label_area_size(if k.is_some() { 100 } else { 0 })
             .build_cartesian_2d(x0..x1, y0..y1)?
-            .set_secondary_coord(x0..x1, y0 * k.unwrap_or(1.0)..y1 * k.unwrap_or(1.0));
+            // The torque axis shares the twist axis's coordinates and ticks, labelled with
+            // stiffness × twist, so each torque label sits on a twist grid line.
+            .set_secondary_coord(x0..x1, y0..y1);
         chart
             .configure_mesh()
             .x_desc(d.axis.label())
             .y_desc("twist = drive − nut (°)")
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| tick(*v))
             .house_style()
             .draw()?;
-        if k.is_some() {
+        if let Some(k) = k {
+            let k_unit = d.unit.of_nm(k);
             chart
                 .configure_secondary_axes()
-                .y_desc("torque (N·m, model)")
+                .y_desc(format!("torque ({}, model)", d.unit.label()))
+                .y_label_formatter(&|v| tick_sig(*v * k_unit, 3))
                 .label_style((FONT, 18))
                 .axis_desc_style((FONT, 22))
                 .draw()?;
@@ -499,11 +561,16 @@ impl Plot for TwistPlot<'_> {
                 .label("peak twist of a blow")
                 .legend(|(x, y)| Circle::new((x + 11, y), 5, TWIST_COLOR.filled()));
         }
-        if let (Some(r), Some(_)) = (d.rating_nm, k) {
+        if let (Some(r), Some(k)) = (d.rating_nm, k) {
             let rs = RATING_COLOR.stroke_width(2);
+            let r_deg = r / k;
             chart
-                .draw_secondary_series(LineSeries::new(vec![(x0, r), (x1, r)], rs))?
-                .label(format!("rating {r:.0} N·m"))
+                .draw_series(LineSeries::new(vec![(x0, r_deg), (x1, r_deg)], rs))?
+                .label(format!(
+                    "rating {} {}",
+                    tick_sig(d.unit.of_nm(r), 3),
+                    d.unit.label()
+                ))
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
         }
         draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
@@ -561,7 +628,19 @@ impl Plot for AdvancePlot<'_> {
 /// # Errors
 /// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
 pub fn write_plots(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
-    let d = ClipPlotData::from_analysis(analysis);
+    write_plots_with(analysis, dir, &ReportOptions::default())
+}
+
+/// As [`write_plots`], with torques in `opts.units`.
+///
+/// # Errors
+/// As [`write_plots`].
+pub fn write_plots_with(
+    analysis: &Analysis,
+    dir: &Path,
+    opts: &ReportOptions,
+) -> Result<Vec<PathBuf>> {
+    let d = ClipPlotData::from_analysis(analysis, opts.units);
     let mut out = render(&AnglesPlot(&d), dir, "angles", CLIP_SIZE)?;
     out.extend(render(&TwistPlot(&d), dir, "twist_torque", CLIP_SIZE)?);
     out.extend(render(&AdvancePlot(&d), dir, "nut_advance", CLIP_SIZE)?);
@@ -569,7 +648,7 @@ pub fn write_plots(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
 }
 
 /// One analysed clip as the batch comparison plot shows it.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct ComparisonClip {
     /// Clip name.
     pub name: String,
@@ -581,9 +660,15 @@ pub struct ComparisonClip {
     pub rating_nm: Option<f64>,
     /// Nut advance of each blow in order, degrees.
     pub nut_advance_deg: Vec<Option<f64>>,
+    /// Blow rate, blows per minute.
+    pub blow_rate_per_min: Option<f64>,
+    /// The torque the joint holds after the last blow that turned the nut, N·m (the
+    /// summary's `holding_torque_nm`; `None` until the mechanics stage provides it, and then
+    /// plotted beside the peak torque against the blow rate).
+    pub holding_torque_nm: Option<f64>,
 }
 
-struct ComparisonPlot<'a>(&'a [ComparisonClip]);
+struct ComparisonPlot<'a>(&'a [ComparisonClip], TorqueUnit);
 
 fn short(name: &str, max: usize) -> String {
     if name.chars().count() <= max {
@@ -599,10 +684,12 @@ impl Plot for ComparisonPlot<'_> {
     where
         DB::ErrorType: 'static,
     {
-        let clips = self.0;
+        let (clips, unit) = (self.0, self.1);
+        let u = |v: Option<f64>| v.map(|x| unit.of_nm(x));
         root.fill(&WHITE)?;
         let h = root.dim_in_pixel().1;
-        let (top, rest) = root.split_vertically(h / 2);
+        let (top, rest) = root.split_vertically(h / 3);
+        let (middle, rest) = rest.split_vertically(h / 3);
         let (bottom, foot) = rest.split_vertically(rest.dim_in_pixel().1 - 30);
         let n = clips.len();
 
@@ -611,7 +698,7 @@ impl Plot for ComparisonPlot<'_> {
             clips.iter().flat_map(|c| {
                 [c.peak_torque_nm, c.last_advancing_torque_nm, c.rating_nm]
                     .into_iter()
-                    .flatten()
+                    .flat_map(u)
             }),
             true,
         );
@@ -624,9 +711,11 @@ impl Plot for ComparisonPlot<'_> {
             .x_label_area_size(50)
             .y_label_area_size(90)
             .build_cartesian_2d(-0.5..(n.max(1) as f64 - 0.5), 0.0..t1)?;
+        let torque_desc = format!("torque ({}, model)", unit.label());
         chart
             .configure_mesh()
-            .y_desc("torque (N·m, model)")
+            .y_desc(torque_desc.as_str())
+            .y_label_formatter(&|v| tick(*v))
             .x_labels(n.max(1) + 1)
             .x_label_formatter(&|x| {
                 let i = x.round();
@@ -645,7 +734,7 @@ impl Plot for ComparisonPlot<'_> {
         if clips.iter().any(|c| c.peak_torque_nm.is_some()) {
             chart
                 .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                    c.peak_torque_nm.map(|v| {
+                    u(c.peak_torque_nm).map(|v| {
                         let x = i as f64;
                         Rectangle::new([(x - 0.38, 0.0), (x - 0.02, v)], peak_color.filled())
                     })
@@ -658,7 +747,7 @@ impl Plot for ComparisonPlot<'_> {
         if clips.iter().any(|c| c.last_advancing_torque_nm.is_some()) {
             chart
                 .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                    c.last_advancing_torque_nm.map(|v| {
+                    u(c.last_advancing_torque_nm).map(|v| {
                         let x = i as f64;
                         Rectangle::new([(x + 0.02, 0.0), (x + 0.38, v)], last_color.filled())
                     })
@@ -672,7 +761,7 @@ impl Plot for ComparisonPlot<'_> {
         if clips.iter().any(|c| c.rating_nm.is_some()) {
             chart
                 .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                    c.rating_nm.map(|r| {
+                    u(c.rating_nm).map(|r| {
                         let x = i as f64;
                         PathElement::new(vec![(x - 0.45, r), (x + 0.45, r)], rs)
                     })
@@ -689,6 +778,8 @@ impl Plot for ComparisonPlot<'_> {
                 "no torque: no clip's rig has a bar, or no blows were found",
             )?;
         }
+
+        rate_chart(&middle, clips, unit)?;
 
         // Bottom: nut advance per blow, one line per clip.
         let nb = clips
@@ -737,12 +828,126 @@ impl Plot for ComparisonPlot<'_> {
     }
 }
 
+/// The comparison's middle panel: peak torque (and holding torque, when the summary carries
+/// it) against blow rate, one labelled point per clip, the ratings as dashed lines. The blow
+/// rate is what separates tools: a faster tool leaves the bar less time to spring back.
+fn rate_chart<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    clips: &[ComparisonClip],
+    unit: TorqueUnit,
+) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    let u = |v: Option<f64>| v.map(|x| unit.of_nm(x));
+    let with_rate: Vec<(&ComparisonClip, f64)> = clips
+        .iter()
+        .filter_map(|c| {
+            c.blow_rate_per_min
+                .filter(|r| r.is_finite())
+                .map(|r| (c, r))
+        })
+        .collect();
+    let (r0, r1) = span(with_rate.iter().map(|(_, r)| *r), false);
+    let (_, t1) = span(
+        with_rate.iter().flat_map(|(c, _)| {
+            [c.peak_torque_nm, c.holding_torque_nm, c.rating_nm]
+                .into_iter()
+                .flat_map(u)
+        }),
+        true,
+    );
+    let mut chart = ChartBuilder::on(area)
+        .caption("Peak and holding torque against blow rate", (FONT, 28))
+        .margin(18)
+        .x_label_area_size(60)
+        .y_label_area_size(90)
+        .build_cartesian_2d(r0..r1, 0.0..t1 * 1.25)?;
+    let torque_desc = format!("torque ({}, model)", unit.label());
+    chart
+        .configure_mesh()
+        .x_desc("blow rate (blows/min)")
+        .y_desc(torque_desc.as_str())
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .house_style()
+        .draw()?;
+    let peak_color = RGBColor(31, 119, 180);
+    let hold_color = RGBColor(44, 160, 44);
+    let mut ratings: Vec<f64> = with_rate
+        .iter()
+        .filter_map(|(c, _)| u(c.rating_nm))
+        .collect();
+    ratings.sort_by(f64::total_cmp);
+    ratings.dedup_by(|a, b| (*a - *b).abs() < 1e-9);
+    if !ratings.is_empty() {
+        let rs = RATING_COLOR.stroke_width(2);
+        chart
+            .draw_series(
+                ratings
+                    .iter()
+                    .map(move |&r| PathElement::new(vec![(r0, r), (r1, r)], rs)),
+            )?
+            .label("bar rating")
+            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
+    }
+    if with_rate.iter().any(|(c, _)| c.peak_torque_nm.is_some()) {
+        chart
+            .draw_series(with_rate.iter().filter_map(|&(c, r)| {
+                u(c.peak_torque_nm).map(|t| Circle::new((r, t), 7, peak_color.filled()))
+            }))?
+            .label("peak torque")
+            .legend(move |(x, y)| Circle::new((x + 11, y), 6, peak_color.filled()));
+        chart.draw_series(with_rate.iter().filter_map(|&(c, r)| {
+            u(c.peak_torque_nm).map(|t| {
+                Text::new(
+                    short(&c.name, 18),
+                    (r, t),
+                    TextStyle::from((FONT, 16).into_font()).color(&RGBColor(60, 60, 60)),
+                )
+            })
+        }))?;
+    }
+    if with_rate.iter().any(|(c, _)| c.holding_torque_nm.is_some()) {
+        chart
+            .draw_series(with_rate.iter().filter_map(|&(c, r)| {
+                u(c.holding_torque_nm).map(|t| TriangleMarker::new((r, t), 8, hold_color.filled()))
+            }))?
+            .label("holding torque")
+            .legend(move |(x, y)| TriangleMarker::new((x + 11, y), 7, hold_color.filled()));
+    }
+    draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+    if with_rate.is_empty() {
+        note_center(area, "no clip has a blow rate (fewer than two blows)")?;
+    } else if with_rate.iter().all(|(c, _)| c.peak_torque_nm.is_none()) {
+        note_center(area, "no torque: no clip's rig has a bar")?;
+    }
+    Ok(())
+}
+
 /// Writes the batch comparison plot (`comparison.svg`, `comparison.png`) into `dir`.
 ///
 /// # Errors
 /// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
 pub fn write_comparison(clips: &[ComparisonClip], dir: &Path) -> Result<Vec<PathBuf>> {
-    render(&ComparisonPlot(clips), dir, "comparison", COMPARISON_SIZE)
+    write_comparison_with(clips, dir, &ReportOptions::default())
+}
+
+/// As [`write_comparison`], with torques in `opts.units`.
+///
+/// # Errors
+/// As [`write_comparison`].
+pub fn write_comparison_with(
+    clips: &[ComparisonClip],
+    dir: &Path,
+    opts: &ReportOptions,
+) -> Result<Vec<PathBuf>> {
+    render(
+        &ComparisonPlot(clips, opts.units),
+        dir,
+        "comparison",
+        COMPARISON_SIZE,
+    )
 }
 
 #[cfg(test)]
@@ -973,6 +1178,8 @@ pub(crate) mod tests {
                 last_advancing_torque_nm: Some(122.0),
                 rating_nm: Some(136.0),
                 nut_advance_deg: vec![Some(30.0), Some(12.0), Some(4.0), Some(1.0)],
+                blow_rate_per_min: Some(1400.0),
+                ..Default::default()
             },
             ComparisonClip {
                 name: "fast_electric_tool".into(),
@@ -980,6 +1187,8 @@ pub(crate) mod tests {
                 last_advancing_torque_nm: Some(141.0),
                 rating_nm: Some(136.0),
                 nut_advance_deg: vec![Some(40.0), None, Some(8.0), Some(3.0), Some(2.0), Some(1.5)],
+                blow_rate_per_min: Some(3100.0),
+                holding_torque_nm: Some(120.0),
             },
         ];
         let files = write_comparison(&clips, dir.path()).unwrap();
