@@ -1132,6 +1132,7 @@ pub fn write_preview(found: &Located, path: &Path) -> Result<()> {
             &text,
         );
     }
+    crate::report::rulers::draw_pixel_rulers(&mut img, s, &font);
     img.save(path).map_err(|e| Error::Output {
         path: path.to_path_buf(),
         reason: format!(

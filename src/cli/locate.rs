@@ -25,6 +25,10 @@ pub struct LocateArgs {
 
 pub fn run(a: LocateArgs) -> Result<ExitCode> {
     let fps_hz = super::parse_fps(a.fps.as_deref())?;
+    super::check_parent_folder("--out", &a.out)?;
+    if let Some(p) = &a.preview {
+        super::check_parent_folder("--preview", p)?;
+    }
     let found = locate(&a.clip, &LocateOptions { fps_hz })?;
     std::fs::write(&a.out, found.rig.to_json_pretty() + "\n")
         .with_context(|| format!("{}: could not write the draft rig", a.out.display()))?;

@@ -16,6 +16,7 @@ use crate::error::{Error, Result};
 
 pub mod overlay;
 pub mod plot;
+pub(crate) mod rulers;
 
 pub use plot::{write_comparison, write_plots};
 

@@ -21,6 +21,8 @@ use super::display::{ReportOptions, TorqueUnit, tick, tick_sig};
 use crate::analyze::Analysis;
 use crate::error::{Error, Result};
 
+mod aligned;
+
 /// DejaVu Sans (Debian's fonts-dejavu-core; licence in `assets/DejaVuSans-LICENSE.txt`).
 pub(crate) const FONT_TTF: &[u8] = include_bytes!("../../assets/DejaVuSans.ttf");
 
@@ -38,6 +40,10 @@ const TWIST_COLOR: RGBColor = RGBColor(90, 60, 160);
 const RATING_COLOR: RGBColor = RGBColor(200, 30, 30);
 const ONSET_COLOR: RGBColor = RGBColor(170, 170, 170);
 const GRID_COLOR: RGBColor = RGBColor(232, 232, 232);
+/// Blow numbers on the onset lines.
+const ONSET_TEXT_COLOR: RGBColor = RGBColor(90, 90, 90);
+/// Bars of blows in which the nut did not advance.
+const STALLED_COLOR: RGBColor = RGBColor(185, 185, 185);
 /// Distinct, readable line colours for clips in the comparison plot (cycled).
 const SERIES_COLORS: [RGBColor; 10] = [
     RGBColor(31, 119, 180),
@@ -147,6 +153,10 @@ pub(crate) fn clip_svgs(
             "Nut advance per blow",
             svg_string(&AdvancePlot(&d), CLIP_SIZE, &at("nut_advance"))?,
         ),
+        (
+            "Every blow lined up at its onset",
+            svg_string(&aligned::AlignedPlot(&d), CLIP_SIZE, &at("blows_aligned"))?,
+        ),
     ])
 }
 
@@ -208,6 +218,13 @@ struct ClipPlotData {
     rating_nm: Option<f64>,
     /// The unit torques are shown in.
     unit: TorqueUnit,
+    /// Whether the nut advanced in each blow (by blow number - 1).
+    nut_advanced: Vec<bool>,
+    /// Each blow's twist against time since its onset: (blow number, nut advanced,
+    /// (ms since onset, twist deg)).
+    aligned: Vec<(usize, bool, Vec<(f64, f64)>)>,
+    /// Sample interval, ms (to place blows on a common clock).
+    dt_ms: f64,
 }
 
 impl ClipPlotData {
@@ -253,7 +270,7 @@ impl ClipPlotData {
             t: t_s.iter().map(|t| t * axis.scale).collect(),
             drive_deg: deg(&tr.drive),
             nut_deg: deg(&tr.nut),
-            twist_deg,
+            twist_deg: twist_deg.clone(),
             onsets,
             peaks,
             nut_advance_deg: a
@@ -264,6 +281,22 @@ impl ClipPlotData {
             stiffness_nm_per_deg: stiffness,
             rating_nm: a.rig.bar.as_ref().and_then(|b| b.rating_nm),
             unit,
+            nut_advanced: a.blows.iter().map(|b| b.nut_advanced).collect(),
+            aligned: a
+                .segmentation
+                .blows
+                .iter()
+                .enumerate()
+                .map(|(k, b)| {
+                    let t0 = t_s.get(b.onset).copied().unwrap_or(0.0);
+                    let pts = (b.onset..b.end.min(n))
+                        .filter_map(|i| twist_deg[i].map(|tw| ((t_s[i] - t0) * 1e3, tw)))
+                        .collect();
+                    let advanced = a.blows.get(k).is_some_and(|m| m.nut_advanced);
+                    (k + 1, advanced, pts)
+                })
+                .collect(),
+            dt_ms: 1e3 / a.time_base.fps_hz(),
         }
     }
 }
@@ -381,6 +414,32 @@ fn onset_lines(
         .map(move |&t| PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1)))
 }
 
+/// The blow number at the top of every onset line (every k-th when there are many, so the
+/// numbers never overlap), in red where the nut did not advance.
+fn onset_numbers<'a>(
+    onsets: &'a [f64],
+    advanced: &'a [bool],
+    y: f64,
+) -> impl Iterator<Item = Text<'a, (f64, f64), String>> + 'a {
+    let every = onsets.len().div_ceil(30).max(1);
+    onsets
+        .iter()
+        .enumerate()
+        .filter(move |(k, _)| k % every == 0)
+        .map(move |(k, &t)| {
+            let colour: &'static RGBColor = if advanced.get(k).copied().unwrap_or(true) {
+                &ONSET_TEXT_COLOR
+            } else {
+                &RATING_COLOR
+            };
+            Text::new(
+                format!("{}", k + 1),
+                (t, y),
+                TextStyle::from((FONT, 15).into_font()).color(colour),
+            )
+        })
+}
+
 /// The torque caution along the foot of a plot that shows torque.
 fn torque_note<DB: DrawingBackend>(foot: &DrawingArea<DB, Shift>) -> PlotResult
 where
@@ -458,6 +517,11 @@ impl Plot for AnglesPlot<'_> {
                 .legend(|(x, y)| {
                     PathElement::new(vec![(x + 10, y - 8), (x + 10, y + 8)], ONSET_COLOR)
                 });
+            chart.draw_series(onset_numbers(
+                &d.onsets,
+                &d.nut_advanced,
+                y1 - 0.015 * (y1 - y0),
+            ))?;
         }
         for (name, values, color) in [
             ("drive end", &d.drive_deg, DRIVE_COLOR),
@@ -541,6 +605,11 @@ impl Plot for TwistPlot<'_> {
         }
         if !d.onsets.is_empty() {
             chart.draw_series(onset_lines(&d.onsets, y0, y1))?;
+            chart.draw_series(onset_numbers(
+                &d.onsets,
+                &d.nut_advanced,
+                y1 - 0.015 * (y1 - y0),
+            ))?;
         }
         let style = TWIST_COLOR.stroke_width(2);
         chart
@@ -605,12 +674,38 @@ impl Plot for AdvancePlot<'_> {
             .y_label_area_size(90)
             .build_cartesian_2d(0.5..(n.max(1) as f64 + 0.5), y0..y1)?;
         nut_advance_mesh(&mut chart, n)?;
+        let advanced = |i: usize| {
+            d.nut_advanced
+                .get(i.wrapping_sub(1))
+                .copied()
+                .unwrap_or(true)
+        };
         chart.draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
-            v.map(|v| {
+            v.filter(|_| advanced(i)).map(|v| {
                 let x = i as f64;
                 Rectangle::new([(x - 0.35, 0.0), (x + 0.35, v)], NUT_COLOR.filled())
             })
         }))?;
+        // Blows in which the nut did not advance: a grey bar and a cross at its foot.
+        if d.nut_advance_deg
+            .iter()
+            .any(|&(i, v)| v.is_some() && !advanced(i))
+        {
+            chart
+                .draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
+                    v.filter(|_| !advanced(i)).map(|v| {
+                        let x = i as f64;
+                        Rectangle::new([(x - 0.35, 0.0), (x + 0.35, v)], STALLED_COLOR.filled())
+                    })
+                }))?
+                .label("nut did not advance")
+                .legend(|(x, y)| Cross::new((x + 10, y), 7, RATING_COLOR.stroke_width(3)));
+            chart.draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
+                v.filter(|_| !advanced(i))
+                    .map(|_| Cross::new((i as f64, 0.0), 9, RATING_COLOR.stroke_width(3)))
+            }))?;
+            draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        }
         chart.draw_series(std::iter::once(PathElement::new(
             vec![(0.5, 0.0), (n.max(1) as f64 + 0.5, 0.0)],
             BLACK.stroke_width(1),
@@ -644,6 +739,12 @@ pub fn write_plots_with(
     let mut out = render(&AnglesPlot(&d), dir, "angles", CLIP_SIZE)?;
     out.extend(render(&TwistPlot(&d), dir, "twist_torque", CLIP_SIZE)?);
     out.extend(render(&AdvancePlot(&d), dir, "nut_advance", CLIP_SIZE)?);
+    out.extend(render(
+        &aligned::AlignedPlot(&d),
+        dir,
+        "blows_aligned",
+        CLIP_SIZE,
+    )?);
     Ok(out)
 }
 
@@ -1030,6 +1131,7 @@ pub(crate) mod tests {
                     peak_torque: Some(k * peak),
                     residual_twist: Some(Angle::from_deg(3.0)),
                     nut_lag_s: Some(0.0025),
+                    nut_advanced: i != 3,
                     ..Default::default()
                 }
             })
@@ -1112,7 +1214,9 @@ pub(crate) mod tests {
                 "twist_torque.svg",
                 "twist_torque.png",
                 "nut_advance.svg",
-                "nut_advance.png"
+                "nut_advance.png",
+                "blows_aligned.svg",
+                "blows_aligned.png"
             ]
         );
         let svg = |n: &str| std::fs::read_to_string(dir.path().join(n)).unwrap();
@@ -1129,9 +1233,28 @@ pub(crate) mod tests {
         assert!(tt.contains("not a calibrated measurement"));
         let adv = svg("nut_advance.svg");
         assert!(adv.contains("nut advance (°)") && adv.contains("blow number"));
-        // Five bars: one filled rectangle per blow in the nut colour.
-        assert_eq!(adv.matches("fill=\"#E66E00\"").count(), 5, "{adv}");
-        for n in ["angles.png", "twist_torque.png", "nut_advance.png"] {
+        // Five bars: four in the nut colour, and blow 4 (the nut did not advance) in grey
+        // with a legend entry.
+        assert_eq!(adv.matches("fill=\"#E66E00\"").count(), 4, "{adv}");
+        assert_eq!(adv.matches("fill=\"#B9B9B9\"").count(), 1, "{adv}");
+        assert!(adv.contains("nut did not advance"));
+        // Blow numbers on the onset lines; the stalled blow's in red.
+        assert!(
+            angles.contains("fill=\"#5A5A5A\">\n5\n</text>")
+                && angles.contains("fill=\"#C81E1E\">\n4\n</text>"),
+            "onset numbers"
+        );
+        // Tick labels without a spurious ".0".
+        assert!(!angles.contains(".0\n</text>"), "tick labels");
+        let aligned = svg("blows_aligned.svg");
+        assert!(aligned.contains("time since blow onset (ms)"));
+        assert!(aligned.contains("torque (N·m, model)"));
+        for n in [
+            "angles.png",
+            "twist_torque.png",
+            "nut_advance.png",
+            "blows_aligned.png",
+        ] {
             check_png(&dir.path().join(n), CLIP_SIZE);
         }
     }
@@ -1160,7 +1283,7 @@ pub(crate) mod tests {
         a.rig.bar = None;
         a.summary = Summary::default();
         let files = write_plots(&a, dir.path()).unwrap();
-        assert_eq!(files.len(), 6);
+        assert_eq!(files.len(), 8);
         let tt = std::fs::read_to_string(dir.path().join("twist_torque.svg")).unwrap();
         assert!(tt.contains("no bar in the rig"));
         assert!(!tt.contains("N·m"));
