@@ -377,3 +377,99 @@ fn units_lbf_ft_change_what_people_read_not_the_file_keys() {
         "plot axis in lbf·ft"
     );
 }
+
+/// Every clip under `dir` as `batch` should find it: video files, and folders of stills.
+fn clips_under(dir: &Path, out: &mut Vec<PathBuf>) {
+    for e in std::fs::read_dir(dir).unwrap() {
+        let p = e.unwrap().path();
+        if p.is_dir() {
+            let stills = std::fs::read_dir(&p).unwrap().any(|f| {
+                f.unwrap()
+                    .path()
+                    .extension()
+                    .is_some_and(|x| x == "png" || x == "tif")
+            });
+            if stills {
+                out.push(p);
+            } else {
+                clips_under(&p, out);
+            }
+        } else if p
+            .extension()
+            .is_some_and(|x| ["mp4", "mkv", "avi"].contains(&x.to_str().unwrap_or("")))
+        {
+            out.push(p);
+        }
+    }
+}
+
+#[test]
+fn batch_over_fixtures_finds_every_clip_and_groups_by_manifest_tags() {
+    // fixtures/ as laid out: one folder per scene with its rig.json inside, no --rig.
+    let mut want = Vec::new();
+    clips_under(&root().join("fixtures"), &mut want);
+    assert!(want.len() >= 10, "{want:?}");
+    let work = tempfile::tempdir().unwrap();
+    // Tags by scene speed; absolute clip paths are allowed in a manifest.
+    let mut manifest = String::from("clip,tool,codec\n");
+    for p in &want {
+        let scene = p
+            .strip_prefix(root().join("fixtures"))
+            .unwrap()
+            .components()
+            .next()
+            .unwrap()
+            .as_os_str()
+            .to_string_lossy()
+            .into_owned();
+        let tool = if scene.starts_with("slow") {
+            "slow"
+        } else {
+            "fast"
+        };
+        let codec = p
+            .extension()
+            .map_or("stills".into(), |x| x.to_string_lossy().into_owned());
+        manifest.push_str(&format!("{},{tool},{codec}\n", p.display()));
+    }
+    let mpath = work.path().join("manifest.csv");
+    std::fs::write(&mpath, manifest).unwrap();
+    let out = work.path().join("out");
+    twistmark()
+        .arg("batch")
+        .arg(root().join("fixtures"))
+        .arg("--manifest")
+        .arg(&mpath)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .success();
+    let summary: Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let rows = summary["clips"].as_array().unwrap();
+    assert_eq!(rows.len(), want.len(), "every clip found once");
+    assert!(rows.iter().all(|r| r["status"] == "ok"), "{rows:?}");
+    assert!(rows.iter().all(|r| r["tags"]["tool"].is_string()));
+    let csv = std::fs::read_to_string(out.join("summary.csv")).unwrap();
+    assert!(csv.starts_with("clip,tool,codec,status,"), "{csv}");
+    for col in [
+        "springback_verdict",
+        "blow_rate_spread_per_min",
+        "stiffness_source",
+    ] {
+        assert!(
+            csv.lines().next().unwrap().contains(col),
+            "summary.csv lacks {col}"
+        );
+    }
+    let html = std::fs::read_to_string(out.join("summary.html")).unwrap();
+    assert_self_contained(&html);
+    assert!(
+        html.contains("By tool, codec"),
+        "grouped by the manifest's tags"
+    );
+    assert!(html.contains("<td class=\"text\">slow</td>"));
+    // Each clip's page is in its own folder, named after its folder below fixtures/.
+    assert!(out.join("fast-tool/clip_h264/report.html").is_file());
+    assert!(out.join("slow-tool/frames/report.html").is_file());
+}

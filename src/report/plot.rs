@@ -220,9 +220,8 @@ struct ClipPlotData {
     unit: TorqueUnit,
     /// Whether the nut advanced in each blow (by blow number - 1).
     nut_advanced: Vec<bool>,
-    /// Each blow's twist against time since its onset: (blow number, nut advanced,
-    /// (ms since onset, twist deg)).
-    aligned: Vec<(usize, bool, Vec<(f64, f64)>)>,
+    /// Each blow's twist against time since its onset.
+    aligned: Vec<AlignedBlow>,
     /// Sample interval, ms (to place blows on a common clock).
     dt_ms: f64,
 }
@@ -292,13 +291,27 @@ impl ClipPlotData {
                     let pts = (b.onset..b.end.min(n))
                         .filter_map(|i| twist_deg[i].map(|tw| ((t_s[i] - t0) * 1e3, tw)))
                         .collect();
-                    let advanced = a.blows.get(k).is_some_and(|m| m.nut_advanced);
-                    (k + 1, advanced, pts)
+                    AlignedBlow {
+                        index: k + 1,
+                        advanced: a.blows.get(k).is_some_and(|m| m.nut_advanced),
+                        points: pts,
+                    }
                 })
                 .collect(),
             dt_ms: 1e3 / a.time_base.fps_hz(),
         }
     }
+}
+
+/// One blow's twist against the time since its onset, for the `blows_aligned` plot.
+#[derive(Debug, Clone)]
+struct AlignedBlow {
+    /// Blow number (1-based).
+    index: usize,
+    /// Whether the nut advanced in this blow.
+    advanced: bool,
+    /// (ms since onset, twist deg).
+    points: Vec<(f64, f64)>,
 }
 
 fn clip_name(a: &Analysis) -> String {

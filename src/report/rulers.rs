@@ -29,9 +29,9 @@ fn label_step(s: u32) -> u32 {
 
 /// Tick length, image pixels: longest at numbered ticks, then every 50 frame pixels.
 fn tick_len(v: u32, step: u32) -> f32 {
-    if v % step == 0 {
+    if v.is_multiple_of(step) {
         12.0
-    } else if v % 50 == 0 {
+    } else if v.is_multiple_of(50) {
         8.0
     } else {
         4.0
@@ -64,7 +64,7 @@ pub(crate) fn draw_pixel_rulers(img: &mut RgbImage, s: u32, font: &FontRef<'_>) 
     while x * s < w {
         let len = tick_len(x, step);
         draw_line_segment_mut(img, (pos(x), edge - len), (pos(x), edge), ink);
-        if x % step == 0 && pos(x) as u32 > m {
+        if x.is_multiple_of(step) && pos(x) as u32 > m {
             let t = x.to_string();
             let (tw, _) = text_size(scale, font, &t);
             let tx = (pos(x) as i32 - tw as i32 / 2).min(w as i32 - tw as i32 - 1);
@@ -77,7 +77,7 @@ pub(crate) fn draw_pixel_rulers(img: &mut RgbImage, s: u32, font: &FontRef<'_>) 
     while y * s < h {
         let len = tick_len(y, step);
         draw_line_segment_mut(img, (edge - len, pos(y)), (edge, pos(y)), ink);
-        if y % step == 0 && pos(y) as u32 > m {
+        if y.is_multiple_of(step) && pos(y) as u32 > m {
             let t = y.to_string();
             let (_, th) = text_size(scale, font, &t);
             let ty = pos(y) as i32 - th as i32 - 2;

@@ -41,9 +41,12 @@ impl Plot for AlignedPlot<'_> {
         let x1 = d
             .aligned
             .iter()
-            .flat_map(|b| b.2.last().map(|p| p.0))
+            .flat_map(|b| b.points.last().map(|p| p.0))
             .fold(d.dt_ms.max(1e-3), f64::max);
-        let (y0, y1) = span(d.aligned.iter().flat_map(|b| b.2.iter().map(|p| p.1)), true);
+        let (y0, y1) = span(
+            d.aligned.iter().flat_map(|b| b.points.iter().map(|p| p.1)),
+            true,
+        );
         let mut chart = ChartBuilder::on(&plot_area)
             .caption(
                 format!("{}: every blow lined up at its onset", d.name),
@@ -74,11 +77,12 @@ impl Plot for AlignedPlot<'_> {
                 .draw()?;
         }
         let n = d.aligned.len();
-        for (j, (index, advanced, pts)) in d.aligned.iter().enumerate() {
+        for (j, b) in d.aligned.iter().enumerate() {
+            let (index, pts) = (b.index, &b.points);
             if pts.is_empty() {
                 continue;
             }
-            if *advanced {
+            if b.advanced {
                 let style = shade(j, n).stroke_width(2);
                 let series = chart.draw_series(LineSeries::new(pts.clone(), style))?;
                 if j == 0 || j + 1 == n {
@@ -89,7 +93,7 @@ impl Plot for AlignedPlot<'_> {
             } else {
                 let style = STALLED_COLOR.stroke_width(2);
                 let series = chart.draw_series(DashedLineSeries::new(pts.clone(), 6, 4, style))?;
-                if d.aligned[..j].iter().all(|b| b.1) {
+                if d.aligned[..j].iter().all(|b| b.advanced) {
                     series
                         .label("nut did not advance")
                         .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], style));
@@ -100,7 +104,7 @@ impl Plot for AlignedPlot<'_> {
         if k.is_some() {
             torque_note(&foot)?;
         }
-        if d.aligned.iter().all(|b| b.2.is_empty()) {
+        if d.aligned.iter().all(|b| b.points.is_empty()) {
             note_center(&plot_area, "no blows with both marks measured")?;
         }
         Ok(())
