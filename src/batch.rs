@@ -1137,7 +1137,8 @@ mod tests {
         assert!((r.drive_total_deg.unwrap() - 60.0).abs() < 1e-9);
         assert_eq!(r.peak_torque_nm, Some(150.0));
         assert_eq!(r.rating_nm, Some(136.0));
-        // facts.md C1: d = 16 mm, L = 200 mm, G = 79.3 GPa gives 44.525 N·m/deg.
+        // Check value C1 (θ = T·L/(G·J), Beer & Johnston ch. 3): d = 16 mm, L = 200 mm,
+        // G = 79.3 GPa gives 44.525 N·m/deg.
         assert!((r.bar_stiffness_nm_per_deg.unwrap() - 44.525).abs() < 1e-3);
         assert_eq!(r.fps_hz, Some(2000.0));
         assert_eq!(r.frames, Some(520));

@@ -10,7 +10,7 @@
 //!    (the hex nut's outline, a bracket's border) has one side equal to the centre and scores
 //!    zero, and a round highlight is rejected afterwards because its component is not elongated.
 //!    Components are grown by hysteresis and kept when long and thin (weighted second moments,
-//!    Hu 1962; facts.md §7.1).
+//!    Hu, IRE Trans. Information Theory, 1962).
 //! 2. **Tracks.** Each first-frame stripe is followed frame by frame inside a window around
 //!    its last position; its orientation is unwrapped modulo π.
 //! 3. **Pivot.** A radial stripe's centre line passes through its pivot, so the pivot is the

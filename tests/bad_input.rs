@@ -1,4 +1,4 @@
-//! The bad-input catalogue (issue 6), through the real binary. Every case ends in exit 1 with
+//! The bad-input catalogue, through the real binary. Every case ends in exit 1 with
 //! one stderr line that names the file, field or flag, or, where the analysis can go on, in
 //! exit 0 with a typed warning; and no output ever contains "panicked". Each case is tested
 //! once: the cases already covered elsewhere are listed here with the test that covers them.
@@ -28,7 +28,7 @@
 //! | data: a clip shorter than one blow | [`a_clip_shorter_than_one_blow_is_a_warning`] |
 //! | fuzz finds (`tools/fuzz.sh`) | [`fuzz_rig_field_name_with_a_newline`], [`fuzz_truncated_jpeg_still`], [`fuzz_still_header_claiming_petabytes`] |
 //!
-//! The output-safety checks of issue 6 (results never overwritten without `--force`, inputs
+//! The output-safety checks (results never overwritten without `--force`, inputs
 //! never written) are at the end of this file. Clips here are the project's own rendered
 //! fixtures (`fixtures/`, invented scenes with known truth) or frames made in the test.
 

@@ -1,5 +1,5 @@
 //! `twistmark bar` and `twistmark calibrate` run as the real binary: numbers against the
-//! reference check values (facts.md §1.3, §3, §6, each source named beside its value), the
+//! reference check values (each source named beside its value), the
 //! interface keys, calibration written into a rig, and one-line errors for bad input.
 
 use std::path::{Path, PathBuf};
@@ -11,7 +11,7 @@ use serde_json::Value;
 /// 0.1 %: the tolerance the reference checks ask for.
 const TOL: f64 = 1e-3;
 
-/// The interface's example bar replaced by the reference bar C5 (facts.md §1.3): 25 mm of
+/// The interface's example bar replaced by the reference bar C5 (θ = T·L/(G·J) in series, Beer & Johnston, *Mechanics of Materials*, ch. 3): 25 mm of
 /// ½-in square, 150 mm of 16 mm round, 30 mm of 19 mm hex; G = 79.3 GPa.
 const C5_RIG: &str = r#"{
   "rig_version": 1,
@@ -81,13 +81,13 @@ fn bar_json_matches_c5_check_values() {
     let dir = tempfile::tempdir().unwrap();
     let rig = write(dir.path(), "rig.json", C5_RIG);
     let v = bar_json(&rig);
-    // facts.md §1.3 C5 (a, computed): k = 2466.51 N·m/rad = 43.049 N·m/deg, twist at
+    // Check value C5 (computed; 1/k = Σ L/(G·J)): k = 2466.51 N·m/rad = 43.049 N·m/deg, twist at
     // 150 N·m = 3.4844°.
     assert_relative_eq!(num(&v, "stiffness_nm_per_rad"), 2466.51, max_relative = TOL);
     assert_relative_eq!(num(&v, "stiffness_nm_per_deg"), 43.049, max_relative = TOL);
     assert_relative_eq!(num(&v, "twist_at_rating_deg"), 3.4844, max_relative = TOL);
     // Largest over sections: the square, C3 τ = 2.347 MPa per N·m (amesweb formula,
-    // facts.md §1.3) → 352.05 MPa at 150 N·m.
+    // computed) → 352.05 MPa at 150 N·m.
     assert_relative_eq!(
         num(&v, "shear_stress_at_rating_mpa"),
         2.347 * 150.0,
@@ -98,14 +98,14 @@ fn bar_json_matches_c5_check_values() {
         "bar.sections[0] (square)"
     );
     // Section stiffnesses 11 600.1 / 3401.43 / 39 632.6 N·m/rad; the round section supplies
-    // 72.5 % of the compliance (facts.md §1.3 C5).
+    // 72.5 % of the compliance (computed, C5).
     let secs = v["sections"].as_array().unwrap();
     for (s, want) in secs.iter().zip([11_600.1, 3401.43, 39_632.6]) {
         assert_relative_eq!(num(s, "stiffness_nm_per_rad"), want, max_relative = TOL);
     }
     assert!((num(&secs[1], "compliance_share") - 0.725).abs() < 5e-4);
     // 150 N·m in lbf·ft from the exact foot and pound-force: 1 N·m = 0.737 562 149 277 265
-    // lbf·ft (NIST SP 811, facts.md §3).
+    // lbf·ft (NIST SP 811, 2008, Appendix B.9).
     assert_relative_eq!(
         num(&v, "rating_lbf_ft"),
         150.0 * 0.737_562_149_277_265,
@@ -151,7 +151,7 @@ fn interface_example_rig_still_parses() {
 
 #[test]
 fn springback_from_drive_parts() {
-    // facts.md §6 (a, computed): a disk of 0.5 kg, r = 20 mm has I = 1.000e-4 kg·m²; on C1's
+    // Computed (I = ½·m·r², f_n = (1/2π)·√(k/I), theory-of-machines texts): a disk of 0.5 kg, r = 20 mm has I = 1.000e-4 kg·m²; on C1's
     // k = 2551.07 N·m/rad (d = 16 mm, L = 200 mm) f_n = 803.86 Hz, period 1.244 ms.
     let rig = C5_RIG.replace(
         r#""sections": [ {"shape": "square", "length_mm": 25,  "side_mm": 12.7},
@@ -385,7 +385,7 @@ fn calibrate_writes_k_that_bar_then_uses() {
 fn calibrate_reads_csv_and_reports_residuals() {
     let dir = tempfile::tempdir().unwrap();
     let rig = write(dir.path(), "rig.json", C5_RIG);
-    // 100 lbf·ft = 135.5818 N·m (NIST SP 811, facts.md §3); twists made with k = 45 N·m/deg
+    // 100 lbf·ft = 135.5818 N·m (NIST SP 811, 2008, Appendix B.9); twists made with k = 45 N·m/deg
     // plus ±0.01° of invented noise.
     let csv = write(
         dir.path(),

@@ -16,21 +16,21 @@ use crate::units::Stiffness;
 pub use crate::mechanics::steel::DEFAULT_SHEAR_MODULUS_GPA;
 
 /// Default fraction of shear yield at which a stress warning is raised. Common practice:
-/// the reference sheet (facts.md §2.2) calls 60–80 % reasonable when the grade is uncertain.
+/// 60–80 % is reasonable (engineering judgement) when the grade is uncertain.
 pub const DEFAULT_STRESS_WARN_FRACTION: f64 = 0.7;
 
 /// Torsion constant of a square, K = β·s⁴ with β = 0.140577 (Saint-Venant series for a
 /// square; Roark-type value 2.25·a⁴ with a = s/2 as given by amesweb "Torsion in solid square
-/// sections"; facts.md §1.2).
+/// sections").
 const SQUARE_J_COEFF: f64 = 0.140_577;
 /// Maximum shear stress of a square, τ = 4.808·T/s³ (= 0.601·T/a³, a = s/2), at mid-side
-/// (amesweb "Torsion in solid square sections"; piping-designer; facts.md §1.2).
+/// (amesweb "Torsion in solid square sections"; piping-designer).
 const SQUARE_TAU_COEFF: f64 = 4.808;
 /// Torsion constant of a regular hexagon, J = 0.11505·s⁴, s across flats (finite-difference
-/// Saint-Venant solution recorded in facts.md §1.2; handbook ≈ 0.115·s⁴ from memory).
+/// Saint-Venant solution computed for this project; handbook ≈ 0.115·s⁴ from memory).
 const HEX_J_COEFF: f64 = 0.115_05;
 /// Maximum shear stress of a regular hexagon, τ = 5.328·T/s³ = T/(0.1877·s³), at the middle
-/// of each flat (same finite-difference solution, facts.md §1.2).
+/// of each flat (same finite-difference solution).
 const HEX_TAU_COEFF: f64 = 5.328;
 
 /// The `"bar"` object of a rig file.
@@ -141,8 +141,8 @@ pub enum SectionSpec {
 }
 
 /// A part turning with the drive end, modelled as a hollow cylinder about its own axis:
-/// I = ½·m·(rₒ² + rᵢ²) (standard tables, e.g. Beer & Johnston, *Vector Mechanics*;
-/// facts.md §6). A solid part has no `bore_mm`.
+/// I = ½·m·(rₒ² + rᵢ²) (standard tables, e.g. Beer & Johnston, *Vector Mechanics*,
+/// table number from memory). A solid part has no `bore_mm`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct InertiaPart {
@@ -303,7 +303,7 @@ impl SectionSpec {
     ///
     /// Round πd⁴/32 and tube π(D⁴−d⁴)/32 (Beer & Johnston, *Mechanics of Materials*, ch. 3).
     /// Square 0.140577·s⁴ (Saint-Venant series; amesweb, as 2.25·a⁴ with a = s/2). Hexagon
-    /// 0.11505·s⁴ across flats (finite-difference Saint-Venant solution, facts.md §1.2). For
+    /// 0.11505·s⁴ across flats (finite-difference Saint-Venant solution computed for this project). For
     /// the non-round shapes J is below the polar moment because the section warps
     /// (Wikipedia "Torsion constant").
     pub fn torsion_constant_m4(&self) -> f64 {
@@ -323,7 +323,7 @@ impl SectionSpec {
     ///
     /// Round 16/(πd³) and tube 16·D/(π(D⁴−d⁴)) (Beer & Johnston ch. 3, τ = T·r/J at the
     /// outer radius). Square 4.808/s³ at mid-side (amesweb, piping-designer). Hexagon
-    /// 5.328/s³ at mid-flat (finite-difference solution, facts.md §1.2).
+    /// 5.328/s³ at mid-flat (finite-difference solution computed for this project).
     pub fn shear_stress_per_nm(&self) -> f64 {
         match *self {
             SectionSpec::Round { d_mm, .. } => 16.0 / (PI * (d_mm * 1e-3).powi(3)),
@@ -709,7 +709,7 @@ mod tests {
     fn beer_johnston_solid_shaft() {
         // Solutions page for Beer & Johnston 7th ed. ch. 3 (weak source): solid d = 75 mm,
         // L = 2.5 m, G = 77 GPa, T = 4000 N·m → J = 3.106e-6 m⁴, θ = 0.0418 rad;
-        // τ_max = 48.29 MPa (facts.md §1.3, a computed).
+        // τ_max = 48.29 MPa (computed from 16T/(πd³)).
         let bar = BarSpec {
             shear_modulus_gpa: Some(77.0),
             ..BarSpec::new(vec![SectionSpec::round(2500.0, 75.0)])
@@ -728,7 +728,7 @@ mod tests {
 
     #[test]
     fn c1_solid_round() {
-        // facts.md §1.3 C1 (a, computed; θ = TL/(GJ), Beer & Johnston ch. 3): d = 16 mm,
+        // Check value C1 (computed; θ = TL/(GJ), Beer & Johnston ch. 3): d = 16 mm,
         // L = 200 mm, G = 79.3 GPa, T = 150 N·m → J = 6433.98 mm⁴, θ = 0.058799 rad = 3.3689°,
         // k = 2551.07 N·m/rad = 44.525 N·m/deg, τ_max = 186.51 MPa.
         let bar = BarSpec::new(vec![SectionSpec::round(200.0, 16.0)]);
@@ -752,7 +752,7 @@ mod tests {
 
     #[test]
     fn c2_tube() {
-        // facts.md §1.3 C2 (a, computed): D = 20, d = 12 mm, L = 200 mm → J = 13 672.2 mm⁴,
+        // Check value C2 (computed; J = π(D⁴ − d⁴)/32, Beer & Johnston ch. 3): D = 20, d = 12 mm, L = 200 mm → J = 13 672.2 mm⁴,
         // k = 5421.0 N·m/rad, τ_max at 150 N·m = 109.71 MPa.
         let bar = BarSpec::new(vec![SectionSpec::tube(200.0, 20.0, 12.0)]);
         let s = &bar.sections[0];
@@ -767,7 +767,7 @@ mod tests {
 
     #[test]
     fn c3_square() {
-        // facts.md §1.3 C3 (a, computed from amesweb's square formulas): s = 12.7 mm →
+        // Check value C3 (computed from amesweb's square formulas): s = 12.7 mm →
         // K = 3657.04 mm⁴, τ_max = 2.347 MPa per N·m.
         let s = SectionSpec::square(25.0, 12.7);
         assert_relative_eq!(s.torsion_constant_m4() * 1e12, 3657.04, max_relative = TOL);
@@ -776,23 +776,23 @@ mod tests {
 
     #[test]
     fn c4_hexagon_is_not_its_polar_moment() {
-        // facts.md §1.3 C4 (a, computed, finite-difference Saint-Venant): s = 19 mm across
+        // Check value C4 (computed, finite-difference Saint-Venant): s = 19 mm across
         // flats → J = 14 993.4 mm⁴, τ_max = 0.7768 MPa per N·m. Its polar moment 0.12028·s⁴
-        // (facts.md §1.2) is about 4.5 % larger, so J must not be the polar moment.
+        // (I_p = (5√3/8)·a⁴, a = s/√3) is about 4.5 % larger, so J must not be the polar moment.
         let s = SectionSpec::hex(30.0, 19.0);
         let j_mm4 = s.torsion_constant_m4() * 1e12;
         assert_relative_eq!(j_mm4, 14_993.4, max_relative = TOL);
         assert_relative_eq!(s.shear_stress_per_nm(), 0.7768e6, max_relative = TOL);
         let polar_mm4 = 0.12028 * 19f64.powi(4);
         assert!(polar_mm4 / j_mm4 > 1.04 && polar_mm4 / j_mm4 < 1.05);
-        // A round bar of d = 19 mm has 12 794.2 mm⁴ (facts.md §1.3 C4).
+        // A round bar of d = 19 mm has 12 794.2 mm⁴ (πd⁴/32).
         let r = SectionSpec::round(30.0, 19.0);
         assert_relative_eq!(r.torsion_constant_m4() * 1e12, 12_794.2, max_relative = TOL);
     }
 
     #[test]
     fn c5_series() {
-        // facts.md §1.3 C5 (a, computed): 25 mm of C3 square + 150 mm of C1 round + 30 mm of
+        // Check value C5 (computed; 1/k = Σ L/(G·J) in series): 25 mm of C3 square + 150 mm of C1 round + 30 mm of
         // C4 hex → segment stiffnesses 11 600.1 / 3401.43 / 39 632.6 N·m/rad,
         // k = 2466.51 N·m/rad = 43.049 N·m/deg, twist at 150 N·m = 3.4844°, and the round
         // section supplies 72.5 % of the compliance.
@@ -815,7 +815,7 @@ mod tests {
 
     #[test]
     fn inertia_check_values() {
-        // facts.md §6 (a, computed; I = ½·m·(rₒ² + rᵢ²), Beer & Johnston Vector Mechanics
+        // Computed (I = ½·m·(rₒ² + rᵢ²), Beer & Johnston Vector Mechanics
         // tables): disk m = 0.5 kg, r = 20 mm → 1.000e-4 kg·m²; hollow cylinder m = 0.3 kg,
         // rₒ = 15 mm, rᵢ = 10 mm → 4.875e-5 kg·m².
         let disk = InertiaPart {

@@ -340,7 +340,7 @@ mod tests {
         (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
     }
 
-    /// Synthetic check (known truth): bar C5's k = 43.049 N·m/deg (facts.md §1.3), ten
+    /// Synthetic check (known truth): bar C5's k = 43.049 N·m/deg (θ = T·L/(G·J), Beer & Johnston ch. 3), ten
     /// torques 15..150 N·m, twist noise σ = 0.03°.
     fn synthetic(seed: u64) -> Vec<CalibrationPair> {
         let k = Stiffness::from_nm_per_deg(43.049);
@@ -359,7 +359,7 @@ mod tests {
 
     #[test]
     fn exact_pairs_give_exact_k() {
-        // C1: 150 N·m ↔ 3.3689° (facts.md §1.3) and proportional pairs.
+        // C1: 150 N·m ↔ 3.3689° (θ = T·L/(G·J), Beer & Johnston ch. 3) and proportional pairs.
         let k = Stiffness::from_nm_per_rad(2551.07);
         let pairs: Vec<_> = [50.0, 100.0, 150.0]
             .iter()
@@ -496,7 +496,7 @@ mod tests {
         .unwrap();
         let pairs = read_pairs_csv(&p).unwrap();
         assert_eq!(pairs.len(), 2);
-        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, facts.md §3).
+        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, 2008, Appendix B.9).
         assert_relative_eq!(pairs[0].torque.nm(), 135.5818, max_relative = 1e-6);
         assert_relative_eq!(pairs[1].twist.rad(), 0.04);
         std::fs::write(&p, "torque_nm,twist_degs\n100,2\n").unwrap();

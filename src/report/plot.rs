@@ -1074,7 +1074,7 @@ pub(crate) mod tests {
     use crate::track::Trace;
     use crate::units::{Angle, TimeBase, Torque};
 
-    /// A rig with a 44.525 N·m/deg round bar (facts.md C1: d = 16 mm, L = 200 mm,
+    /// A rig with a 44.525 N·m/deg round bar (check value C1, θ = T·L/(G·J), Beer & Johnston ch. 3: d = 16 mm, L = 200 mm,
     /// G = 79.3 GPa) rated 136 N·m.
     pub(crate) const RIG_JSON: &str = r#"{
       "rig_version": 1, "capture_fps_hz": 2000,
