@@ -855,6 +855,14 @@ fn comparison(outcomes: &[ClipOutcome]) -> Vec<report::plot::ComparisonClip> {
             blow_rate_per_min: o.row.blow_rate_per_min,
             // Hook: the summary's holding torque, once the mechanics stage writes it.
             holding_torque_nm: None,
+            group: (!o.clip.tags.is_empty()).then(|| {
+                o.clip
+                    .tags
+                    .iter()
+                    .map(|(_, v)| v.as_str())
+                    .collect::<Vec<_>>()
+                    .join(" / ")
+            }),
             rating_nm: o.row.rating_nm,
             nut_advance_deg: o
                 .blows

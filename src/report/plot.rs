@@ -780,6 +780,9 @@ pub struct ComparisonClip {
     /// summary's `holding_torque_nm`; `None` until the mechanics stage provides it, and then
     /// plotted beside the peak torque against the blow rate).
     pub holding_torque_nm: Option<f64>,
+    /// The clip's group: its manifest tag values joined (`air / 6 bar`); clips of one group
+    /// share a colour in the torque-against-blow-rate panel.
+    pub group: Option<String>,
 }
 
 struct ComparisonPlot<'a>(&'a [ComparisonClip], TorqueUnit);
@@ -1005,13 +1008,41 @@ where
             .label("bar rating")
             .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
     }
-    if with_rate.iter().any(|(c, _)| c.peak_torque_nm.is_some()) {
+    // Clips grouped by a manifest's tags get one colour per group; otherwise one colour.
+    let mut groups: Vec<Option<&str>> = Vec::new();
+    for (c, _) in &with_rate {
+        if !groups.contains(&c.group.as_deref()) {
+            groups.push(c.group.as_deref());
+        }
+    }
+    for (g, group) in groups.iter().enumerate() {
+        let colour = if group.is_some() {
+            SERIES_COLORS[g % SERIES_COLORS.len()]
+        } else {
+            peak_color
+        };
+        let members: Vec<(f64, f64)> = with_rate
+            .iter()
+            .filter(|(c, _)| c.group.as_deref() == *group)
+            .filter_map(|&(c, r)| u(c.peak_torque_nm).map(|t| (r, t)))
+            .collect();
+        if members.is_empty() {
+            continue;
+        }
+        let label = match group {
+            Some(name) => format!("peak torque, {}", short(name, 28)),
+            None => "peak torque".to_string(),
+        };
         chart
-            .draw_series(with_rate.iter().filter_map(|&(c, r)| {
-                u(c.peak_torque_nm).map(|t| Circle::new((r, t), 7, peak_color.filled()))
-            }))?
-            .label("peak torque")
-            .legend(move |(x, y)| Circle::new((x + 11, y), 6, peak_color.filled()));
+            .draw_series(
+                members
+                    .into_iter()
+                    .map(move |p| Circle::new(p, 7, colour.filled())),
+            )?
+            .label(label)
+            .legend(move |(x, y)| Circle::new((x + 11, y), 6, colour.filled()));
+    }
+    if with_rate.iter().any(|(c, _)| c.peak_torque_nm.is_some()) {
         chart.draw_series(with_rate.iter().filter_map(|&(c, r)| {
             u(c.peak_torque_nm).map(|t| {
                 Text::new(
@@ -1325,6 +1356,7 @@ pub(crate) mod tests {
                 nut_advance_deg: vec![Some(40.0), None, Some(8.0), Some(3.0), Some(2.0), Some(1.5)],
                 blow_rate_per_min: Some(3100.0),
                 holding_torque_nm: Some(120.0),
+                group: Some("electric".into()),
             },
         ];
         let files = write_comparison(&clips, dir.path()).unwrap();
@@ -1338,6 +1370,9 @@ pub(crate) mod tests {
             "fast_electric_tool",
             "bar rating",
             "torque on the last advancing blow",
+            "Peak and holding torque against blow rate",
+            "peak torque, electric",
+            "holding torque",
         ] {
             assert!(svg.contains(s), "missing {s}");
         }
