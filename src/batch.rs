@@ -11,6 +11,7 @@
 //! from the outcomes sorted as the folder is (numbers in names compared by value).
 
 use std::cmp::Ordering;
+use std::collections::BTreeMap;
 use std::ffi::OsStr;
 use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::path::{Component, Path, PathBuf};
@@ -44,6 +45,7 @@ const RESERVED_NAMES: &[&str] = &[
     "summary.json",
     "comparison.svg",
     "comparison.png",
+    "summary.html",
 ];
 
 /// How a clip is stored.
@@ -66,8 +68,12 @@ pub struct Clip {
     pub path: PathBuf,
     /// Video file or stills folder.
     pub form: ClipForm,
-    /// Sidecar rig files found beside the clip (`<stem>.rig.json`, `<file name>.rig.json`).
+    /// The clip's own rig files: sidecars beside it (`<stem>.rig.json`, `<file name>.rig.json`),
+    /// or failing those the nearest `rig.json` in its folder or a folder above it below the
+    /// batch folder (one folder per test, with the rig inside), or a manifest's `rig`.
     pub sidecars: Vec<PathBuf>,
+    /// Tags from a manifest (tool, bar, pressure, ...), in the manifest's column order.
+    pub tags: Vec<(String, String)>,
 }
 
 /// Options for a batch run.
@@ -81,6 +87,11 @@ pub struct BatchOptions {
     /// Replace earlier results (`summary.json`, or a clip folder's `report.json`) in the
     /// output folder; without it a batch that would replace any of them stops first.
     pub force: bool,
+    /// How reports show numbers (torque unit).
+    pub report: report::ReportOptions,
+    /// A manifest CSV (`clip,rig,tags...`, see [`crate::manifest`]) giving clips their tags
+    /// and, optionally, their rigs.
+    pub manifest: Option<PathBuf>,
 }
 
 /// What happened, for a progress display. `clip` is the index into the clip list.
@@ -178,6 +189,28 @@ pub struct SummaryRow {
     pub stress_margin_pct: Option<f64>,
     /// Number of warnings (listed in the clip's report.json).
     pub warning_count: Option<usize>,
+    /// Standard deviation of the per-interval blow rates, blows per minute.
+    #[serde(default)]
+    pub blow_rate_spread_per_min: Option<f64>,
+    /// Where the stiffness came from: `computed` (sections) or `calibrated`.
+    #[serde(default)]
+    pub stiffness_source: Option<String>,
+    /// Measured spring-back: `sprang_back`, `partial` or `still_wound` (null without a bar or
+    /// with fewer than two blows).
+    #[serde(default)]
+    pub springback_verdict: Option<String>,
+    /// Whether the spring-back model agrees with the measurement.
+    #[serde(default)]
+    pub springback_model_agrees: Option<bool>,
+    /// Highest peak torque, lbf·ft.
+    #[serde(default)]
+    pub peak_torque_lbf_ft: Option<f64>,
+    /// Peak torque on the last blow that still turned the nut, lbf·ft.
+    #[serde(default)]
+    pub last_advancing_torque_lbf_ft: Option<f64>,
+    /// The manifest's tags for this clip (columns of their own in summary.csv).
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub tags: BTreeMap<String, String>,
 }
 
 /// One clip's result.
@@ -320,31 +353,37 @@ pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
         ));
     }
     let mut found: Vec<(PathBuf, ClipForm)> = Vec::new();
-    for p in visible {
-        if p.is_dir() {
-            if is_stills_folder(p) {
-                found.push((p.clone(), ClipForm::Stills));
-            }
-        } else if lower_ext(p).is_some_and(|x| VIDEO_EXTENSIONS.contains(&x.as_str())) {
-            found.push((p.clone(), ClipForm::Video));
-        }
-    }
+    gather(folder, 0, &mut found)?;
     if found.is_empty() {
         return Err(Error::input(
             folder,
             format!(
-                "holds no clips: expected video files ({}) or subfolders of numbered stills ({})",
+                "holds no clips, in it or in its sub-folders (up to {MAX_DEPTH} levels): expected video files ({}) or folders of numbered stills ({})",
                 VIDEO_EXTENSIONS[..6].join(", "),
                 STILL_EXTENSIONS.join(", ")
             ),
         ));
     }
     let file_name = |p: &Path| p.file_name().map(|n| n.to_string_lossy().into_owned());
+    // The clip's folder relative to the batch folder, `/`-separated ("" at the top).
+    let rel_dir = |p: &Path| -> String {
+        p.parent()
+            .and_then(|d| d.strip_prefix(folder).ok())
+            .map(|r| {
+                r.components()
+                    .map(|c| c.as_os_str().to_string_lossy().into_owned())
+                    .collect::<Vec<_>>()
+                    .join("/")
+            })
+            .unwrap_or_default()
+    };
     found.sort_by(|a, b| {
-        natural_cmp(
-            &file_name(&a.0).unwrap_or_default(),
-            &file_name(&b.0).unwrap_or_default(),
-        )
+        natural_cmp(&rel_dir(&a.0), &rel_dir(&b.0)).then_with(|| {
+            natural_cmp(
+                &file_name(&a.0).unwrap_or_default(),
+                &file_name(&b.0).unwrap_or_default(),
+            )
+        })
     });
     let stem = |p: &Path, form: ClipForm| -> String {
         match form {
@@ -355,21 +394,29 @@ pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
                 .unwrap_or_default(),
         }
     };
-    let stems: Vec<String> = found.iter().map(|(p, f)| stem(p, *f)).collect();
+    let keyed: Vec<(String, String)> = found
+        .iter()
+        .map(|(p, f)| (rel_dir(p), stem(p, *f)))
+        .collect();
     let clips = found
         .iter()
-        .zip(&stems)
-        .map(|((path, form), s)| {
-            let shared = stems.iter().filter(|t| *t == s).count() > 1;
+        .zip(&keyed)
+        .map(|((path, form), (dir, s))| {
+            // Stems shared within one folder keep their extension.
+            let shared = keyed.iter().filter(|k| k.0 == *dir && k.1 == *s).count() > 1;
             let full = file_name(path).unwrap_or_default();
             let mut name = if shared { full.clone() } else { s.clone() };
             // Never let a clip folder take the name of a batch-level file.
-            if RESERVED_NAMES.contains(&name.as_str()) {
+            if dir.is_empty() && RESERVED_NAMES.contains(&name.as_str()) {
                 name.push_str("_clip");
             }
+            if !dir.is_empty() {
+                name = format!("{dir}/{name}");
+            }
+            let here = path.parent().unwrap_or(folder);
             let mut sidecars = Vec::new();
             for base in [s.as_str(), full.as_str()] {
-                let c = folder.join(format!("{base}{SIDECAR_SUFFIX}"));
+                let c = here.join(format!("{base}{SIDECAR_SUFFIX}"));
                 // Anything at that name counts (a dangling link or a folder too), so that a
                 // sidecar that cannot be read fails the clip with its reason instead of being
                 // passed over in silence.
@@ -377,11 +424,15 @@ pub fn find_clips(folder: &Path) -> Result<Vec<Clip>> {
                     sidecars.push(c);
                 }
             }
+            if sidecars.is_empty() {
+                sidecars.extend(folder_rig(folder, here));
+            }
             Clip {
                 name,
                 path: path.clone(),
                 form: *form,
                 sidecars,
+                tags: Vec::new(),
             }
         })
         .collect();
@@ -413,6 +464,78 @@ fn unique_names(mut clips: Vec<Clip>) -> Vec<Clip> {
         }
     }
     clips
+}
+
+/// Deepest sub-folder level searched for clips below the batch folder.
+pub const MAX_DEPTH: usize = 8;
+
+/// The name of a folder's own rig: one folder per test, with the rig inside.
+pub const FOLDER_RIG: &str = "rig.json";
+
+/// The nearest `rig.json` in `dir` or a folder above it, below `root` (a `rig.json` in the
+/// batch folder itself stands for `--rig`, which beats it; see the CLI).
+fn folder_rig(root: &Path, dir: &Path) -> Option<PathBuf> {
+    let mut d = dir;
+    while d != root && d.starts_with(root) {
+        let c = d.join(FOLDER_RIG);
+        if c.is_file() {
+            return Some(c);
+        }
+        d = d.parent()?;
+    }
+    None
+}
+
+/// Adds the clips in `dir` and, for folders that are not stills clips, below it (at most
+/// [`MAX_DEPTH`] levels; hidden entries skipped; a linked folder is read only when it is
+/// itself a stills clip, so a link cannot make the walk loop).
+fn gather(dir: &Path, depth: usize, found: &mut Vec<(PathBuf, ClipForm)>) -> Result<()> {
+    let rd = std::fs::read_dir(dir).map_err(|e| Error::io(dir, e))?;
+    for e in rd {
+        let e = e.map_err(|e| Error::io(dir, e))?;
+        let p = e.path();
+        if is_hidden(&p) {
+            continue;
+        }
+        if p.is_dir() {
+            if is_stills_folder(&p) {
+                found.push((p, ClipForm::Stills));
+            } else if depth < MAX_DEPTH && !e.file_type().is_ok_and(|t| t.is_symlink()) {
+                gather(&p, depth + 1, found)?;
+            }
+        } else if lower_ext(&p).is_some_and(|x| VIDEO_EXTENSIONS.contains(&x.as_str())) {
+            found.push((p, ClipForm::Video));
+        }
+    }
+    Ok(())
+}
+
+/// Gives the clips the manifest lists their tags and rigs (a manifest rig beats every other).
+///
+/// # Errors
+/// [`Error::Input`] naming the manifest and line of a clip that is not among those found.
+fn apply_manifest(clips: &mut [Clip], m: &crate::manifest::Manifest, folder: &Path) -> Result<()> {
+    let canon = |p: &Path| std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf());
+    let found: Vec<PathBuf> = clips.iter().map(|c| canon(&c.path)).collect();
+    for row in &m.rows {
+        let want = canon(&row.clip);
+        let Some(i) = found.iter().position(|f| *f == want) else {
+            return Err(Error::input(
+                &m.path,
+                format!(
+                    "line {}: {} is not one of the clips found in {}; give its path relative to the manifest's folder",
+                    row.line,
+                    row.clip.display(),
+                    folder.display()
+                ),
+            ));
+        };
+        clips[i].tags = row.tags.clone();
+        if let Some(r) = &row.rig {
+            clips[i].sidecars = vec![r.clone()];
+        }
+    }
+    Ok(())
 }
 
 /// Makes a path absolute and resolves `.`/`..` and symbolic links as far as it exists.
@@ -470,13 +593,14 @@ pub fn check_output(folder: &Path, out: &Path) -> Result<()> {
 /// [`Error::Output`] naming the first folder that may not be written.
 fn check_outputs(
     folder: &Path,
-    rig_path: &Path,
+    inputs_besides: &[&Path],
     out: &Path,
     clips: &[Clip],
     force: bool,
 ) -> Result<()> {
     report::check_output_folder(out, "summary.json", force)?;
-    let mut inputs: Vec<&Path> = vec![folder, rig_path];
+    let mut inputs: Vec<&Path> = vec![folder];
+    inputs.extend_from_slice(inputs_besides);
     for c in clips {
         inputs.push(&c.path);
         inputs.extend(c.sidecars.iter().map(PathBuf::as_path));
@@ -493,9 +617,15 @@ fn check_outputs(
 }
 
 /// The rig for one clip: its sidecar when there is one, otherwise the batch rig.
-fn clip_rig(clip: &Clip, batch_rig: &Rig, batch_rig_path: &Path) -> Result<(Rig, PathBuf)> {
+fn clip_rig(clip: &Clip, batch: Option<(&Rig, &Path)>) -> Result<(Rig, PathBuf)> {
     match clip.sidecars.as_slice() {
-        [] => Ok((batch_rig.clone(), batch_rig_path.to_path_buf())),
+        [] => match batch {
+            Some((rig, path)) => Ok((rig.clone(), path.to_path_buf())),
+            None => Err(Error::input(
+                &clip.path,
+                "has no rig: put a rig.json in its folder or a <clip>.rig.json beside it, name one in the manifest's rig column, or pass --rig",
+            )),
+        },
         [one] => Ok((Rig::from_path(one)?, one.clone())),
         [a, b, ..] => Err(Error::Input {
             path: clip.path.clone(),
@@ -524,8 +654,27 @@ pub fn run_batch(
     opts: &BatchOptions,
     progress: &(dyn Fn(BatchEvent<'_>) + Sync),
 ) -> Result<BatchReport> {
+    run_batch_with(folder, Some((rig, rig_path)), out, opts, progress)
+}
+
+/// As [`run_batch`], where the batch rig is optional: a clip with no rig of its own (see
+/// [`Clip::sidecars`]) and no batch rig fails with a message saying where to put one.
+///
+/// # Errors
+/// As [`run_batch`]; also [`Error::Input`] for a manifest (`opts.manifest`) that cannot be
+/// read or names a clip that is not in the folder.
+pub fn run_batch_with(
+    folder: &Path,
+    batch_rig: Option<(&Rig, &Path)>,
+    out: &Path,
+    opts: &BatchOptions,
+    progress: &(dyn Fn(BatchEvent<'_>) + Sync),
+) -> Result<BatchReport> {
     check_output(folder, out)?;
-    let clips = find_clips(folder)?;
+    let mut clips = find_clips(folder)?;
+    if let Some(m) = &opts.manifest {
+        apply_manifest(&mut clips, &crate::manifest::read_manifest(m)?, folder)?;
+    }
     if opts.jobs == Some(0) {
         return Err(Error::Option {
             flag: "--jobs".into(),
@@ -535,9 +684,14 @@ pub fn run_batch(
     // Checked once before the lock, so a refused batch leaves the folder as it was, and
     // again under it (held until the batch returns), so a second batch into this folder
     // cannot slip in between check and write.
-    check_outputs(folder, rig_path, out, &clips, opts.force)?;
+    let besides: Vec<&Path> = batch_rig
+        .map(|r| r.1)
+        .into_iter()
+        .chain(opts.manifest.as_deref())
+        .collect();
+    check_outputs(folder, &besides, out, &clips, opts.force)?;
     let _lock = report::lock_output(out)?;
-    check_outputs(folder, rig_path, out, &clips, opts.force)?;
+    check_outputs(folder, &besides, out, &clips, opts.force)?;
     progress(BatchEvent::Found { clips: clips.len() });
 
     let jobs = opts.jobs.map(|j| {
@@ -563,7 +717,7 @@ pub fn run_batch(
                     clip: i,
                     name: &clip.name,
                 });
-                let o = run_clip(i, clip, rig, rig_path, out, &opts.analyze, progress);
+                let o = run_clip(i, clip, batch_rig, out, opts, progress);
                 progress(BatchEvent::Finished {
                     clip: i,
                     name: &clip.name,
@@ -575,30 +729,44 @@ pub fn run_batch(
     });
 
     let mut written = write_summary(&outcomes, out)?;
-    written.extend(report::plot::write_comparison(&comparison(&outcomes), out)?);
+    written.extend(report::plot::write_comparison_with(
+        &comparison(&outcomes),
+        out,
+        &opts.report,
+    )?);
+    let rows: Vec<serde_json::Value> = outcomes
+        .iter()
+        .filter_map(|o| serde_json::to_value(&o.row).ok())
+        .collect();
+    written.push(report::write_summary_html(
+        &rows,
+        &tag_names(&outcomes),
+        &comparison(&outcomes),
+        out,
+        &opts.report,
+    )?);
     Ok(BatchReport { outcomes, written })
 }
 
 fn run_clip(
     i: usize,
     clip: &Clip,
-    batch_rig: &Rig,
-    batch_rig_path: &Path,
+    batch_rig: Option<(&Rig, &Path)>,
     out: &Path,
-    opts: &AnalyzeOptions,
+    opts: &BatchOptions,
     progress: &(dyn Fn(BatchEvent<'_>) + Sync),
 ) -> ClipOutcome {
     // The rig named in the row, even when it fails to load.
     let rig_label = match clip.sidecars.as_slice() {
         [one] => one.display().to_string(),
-        _ => batch_rig_path.display().to_string(),
+        _ => batch_rig.map_or(String::new(), |r| r.1.display().to_string()),
     };
     let work = || -> Result<ClipOutcome> {
-        let (rig, rig_path) = clip_rig(clip, batch_rig, batch_rig_path)?;
+        let (rig, rig_path) = clip_rig(clip, batch_rig)?;
         let source = decode::open(&clip.path)?;
         let mut opts = opts.clone();
-        if opts.zero_still.is_none() && opts.zero_frame.is_none() {
-            opts.zero_still = rest_still_beside(clip);
+        if opts.analyze.zero_still.is_none() && opts.analyze.zero_frame.is_none() {
+            opts.analyze.zero_still = rest_still_beside(clip);
         }
         let opts = &opts;
         let frames_cb = |done: u64, total: u64| {
@@ -608,9 +776,9 @@ fn run_clip(
                 total,
             })
         };
-        let analysis = analyze_source(source, &rig, &rig_path, opts, &frames_cb)?;
+        let analysis = analyze_source(source, &rig, &rig_path, &opts.analyze, &frames_cb)?;
         let dir = out.join(&clip.name);
-        let written = report::write_all(&analysis, &dir, None)?;
+        let written = report::write_all(&analysis, &dir, None, &opts.report)?;
         let row = ok_row(clip, &rig, &rig_path, &analysis);
         Ok(ClipOutcome {
             clip: clip.clone(),
@@ -699,6 +867,23 @@ fn ok_row(clip: &Clip, rig: &Rig, rig_path: &Path, analysis: &crate::Analysis) -
             .map(|(_, ratio)| 100.0 * (1.0 - ratio)),
         rating_nm: rig.bar.as_ref().and_then(|b| b.rating_nm),
         warning_count: Some(analysis.warnings.len()),
+        blow_rate_spread_per_min: s.blow_rate_spread_per_min.filter(|x| x.is_finite()),
+        stiffness_source: s.stiffness_source.map(|x| x.as_str().to_string()),
+        springback_verdict: analysis.springback.as_ref().and_then(|v| {
+            v.measured
+                .and_then(|m| serde_json::to_value(m).ok())
+                .and_then(|m| m.as_str().map(str::to_string))
+        }),
+        springback_model_agrees: analysis.springback.as_ref().and_then(|v| v.agrees),
+        peak_torque_lbf_ft: s.peak_torque.map(|t| t.lbf_ft()),
+        last_advancing_torque_lbf_ft: analysis
+            .blows
+            .iter()
+            .rev()
+            .find(|b| b.nut_advanced)
+            .and_then(|b| b.peak_torque)
+            .map(|t| t.lbf_ft()),
+        tags: clip.tags.iter().cloned().collect(),
     }
 }
 
@@ -753,6 +938,13 @@ fn failed_row(clip: &Clip, rig: &str, error: String) -> SummaryRow {
         rating_nm: None,
         stress_margin_pct: None,
         warning_count: None,
+        blow_rate_spread_per_min: None,
+        stiffness_source: None,
+        springback_verdict: None,
+        springback_model_agrees: None,
+        peak_torque_lbf_ft: None,
+        last_advancing_torque_lbf_ft: None,
+        tags: clip.tags.iter().cloned().collect(),
     }
 }
 
@@ -776,6 +968,17 @@ fn comparison(outcomes: &[ClipOutcome]) -> Vec<report::plot::ComparisonClip> {
             name: o.row.clip.clone(),
             peak_torque_nm: o.row.peak_torque_nm,
             last_advancing_torque_nm: o.row.last_advancing_torque_nm,
+            blow_rate_per_min: o.row.blow_rate_per_min,
+            // Hook: the summary's holding torque, once the mechanics stage writes it.
+            holding_torque_nm: None,
+            group: (!o.clip.tags.is_empty()).then(|| {
+                o.clip
+                    .tags
+                    .iter()
+                    .map(|(_, v)| v.as_str())
+                    .collect::<Vec<_>>()
+                    .join(" / ")
+            }),
             rating_nm: o.row.rating_nm,
             nut_advance_deg: o
                 .blows
@@ -792,14 +995,7 @@ fn comparison(outcomes: &[ClipOutcome]) -> Vec<report::plot::ComparisonClip> {
 /// [`Error::Io`] naming the file.
 pub fn write_summary(outcomes: &[ClipOutcome], out: &Path) -> Result<Vec<PathBuf>> {
     let csv_path = out.join("summary.csv");
-    let io_err = |p: &Path, e: std::io::Error| Error::io(p, e);
-    let mut w = csv::Writer::from_writer(Vec::new());
-    for o in outcomes {
-        w.serialize(&o.row).map_err(|e| csv_err(&csv_path, e))?;
-    }
-    let bytes = w
-        .into_inner()
-        .map_err(|e| io_err(&csv_path, std::io::Error::other(e.to_string())))?;
+    let bytes = summary_csv(outcomes).map_err(|e| csv_err(&csv_path, e))?;
     report::write_atomic(&csv_path, &bytes)?;
 
     let json_path = out.join("summary.json");
@@ -814,6 +1010,53 @@ pub fn write_summary(outcomes: &[ClipOutcome], out: &Path) -> Result<Vec<PathBuf
     })?;
     report::write_atomic(&json_path, (text + "\n").as_bytes())?;
     Ok(vec![csv_path, json_path])
+}
+
+/// The tag names of a batch, in the manifest's column order (first clip that has each).
+pub fn tag_names(outcomes: &[ClipOutcome]) -> Vec<String> {
+    let mut names: Vec<String> = Vec::new();
+    for o in outcomes {
+        for (k, _) in &o.clip.tags {
+            if !names.contains(k) {
+                names.push(k.clone());
+            }
+        }
+    }
+    names
+}
+
+/// The text of `summary.csv`: the row fields as serde names them, with each manifest tag as
+/// a column of its own after `clip`.
+fn summary_csv(outcomes: &[ClipOutcome]) -> std::result::Result<Vec<u8>, csv::Error> {
+    let tags = tag_names(outcomes);
+    let mut w = csv::Writer::from_writer(Vec::new());
+    for (i, o) in outcomes.iter().enumerate() {
+        // One row through serde (tags left out: csv cannot write a map), read back as fields.
+        let mut row = o.row.clone();
+        row.tags.clear();
+        let mut one = csv::Writer::from_writer(Vec::new());
+        one.serialize(&row)?;
+        let text = one.into_inner().map_err(|e| e.into_error())?;
+        let mut rd = csv::Reader::from_reader(text.as_slice());
+        let header = rd.headers()?.clone();
+        let record = rd.records().next().transpose()?.unwrap_or_default();
+        let splice = |r: &csv::StringRecord, extra: Vec<&str>| -> csv::StringRecord {
+            let mut out = csv::StringRecord::new();
+            out.push_field(r.get(0).unwrap_or(""));
+            extra.iter().for_each(|x| out.push_field(x));
+            r.iter().skip(1).for_each(|x| out.push_field(x));
+            out
+        };
+        if i == 0 {
+            w.write_record(&splice(&header, tags.iter().map(String::as_str).collect()))?;
+        }
+        let values = tags
+            .iter()
+            .map(|t| o.row.tags.get(t).map_or("", String::as_str))
+            .collect();
+        w.write_record(&splice(&record, values))?;
+    }
+    w.into_inner().map_err(|e| e.into_error().into())
 }
 
 fn csv_err(path: &Path, e: csv::Error) -> Error {
@@ -1008,12 +1251,14 @@ mod tests {
             path: "in/air_tool.mkv".into(),
             form: ClipForm::Video,
             sidecars: Vec::new(),
+            tags: Vec::new(),
         };
         let bad = Clip {
             name: "broken".into(),
             path: "in/broken.mp4".into(),
             form: ClipForm::Video,
             sidecars: Vec::new(),
+            tags: Vec::new(),
         };
         vec![
             fail(&bad, "rig.json", "in/broken.mp4: not a video".into()),
@@ -1038,7 +1283,8 @@ mod tests {
         assert!((r.drive_total_deg.unwrap() - 60.0).abs() < 1e-9);
         assert_eq!(r.peak_torque_nm, Some(150.0));
         assert_eq!(r.rating_nm, Some(136.0));
-        // facts.md C1: d = 16 mm, L = 200 mm, G = 79.3 GPa gives 44.525 N·m/deg.
+        // Check value C1 (θ = T·L/(G·J), Beer & Johnston ch. 3): d = 16 mm, L = 200 mm,
+        // G = 79.3 GPa gives 44.525 N·m/deg.
         assert!((r.bar_stiffness_nm_per_deg.unwrap() - 44.525).abs() < 1e-3);
         assert_eq!(r.fps_hz, Some(2000.0));
         assert_eq!(r.frames, Some(520));

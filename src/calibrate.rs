@@ -209,9 +209,7 @@ pub fn read_stills_csv(csv: &Path, reference: Option<&Path>) -> Result<StillsPla
         let rec = rec.map_err(|e| bad(format!("{e}")))?;
         let line = rec.position().map_or(0, |p| file_line(&text, p.byte()));
         let ts = rec.get(ti).unwrap_or("");
-        let t = ts
-            .parse::<f64>()
-            .ok()
+        let t = crate::mechanics::parse_decimal(ts)
             .filter(|v| v.is_finite())
             .ok_or_else(|| {
                 bad(format!(
@@ -438,7 +436,7 @@ mod tests {
             other => panic!("{other:?}"),
         }
         assert_eq!(plan.rows.len(), 2);
-        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, facts.md §3).
+        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, 2008, Appendix B.9).
         assert_relative_eq!(plan.rows[0].torque.nm(), 135.5818, max_relative = 1e-6);
         assert_eq!(plan.rows[0].path, dir.path().join("sub/a.png"));
         assert_eq!(plan.rows[1].line, 5);

@@ -31,6 +31,7 @@ pub mod encode;
 mod error;
 pub mod find_marks;
 pub mod limits;
+pub mod manifest;
 pub mod mechanics;
 pub mod report;
 pub mod rig;

@@ -172,6 +172,15 @@ impl Rig {
     /// [`Error::Io`] when the file cannot be read, [`Error::Rig`] naming the field when it
     /// is malformed or out of range.
     pub fn from_path(path: &Path) -> Result<Rig> {
+        if let Err(e) = std::fs::metadata(path)
+            && e.kind() == std::io::ErrorKind::NotFound
+        {
+            return Err(Error::input(
+                path,
+                "no such rig file; check the --rig path, or draft a rig from the clip with \
+                 `twistmark find-marks CLIP --out rig.json`",
+            ));
+        }
         let text = crate::limits::read_text(path, "rig")?;
         Rig::from_json_str(&text, path)
     }
@@ -191,6 +200,19 @@ impl Rig {
                 field
             };
             let mut reason = inner.to_string();
+            match inner.classify() {
+                serde_json::error::Category::Eof => {
+                    reason = format!(
+                        "the file ends in the middle of the JSON (line {}): it looks cut short; \
+                         restore the whole rig (the README shows the rig format)",
+                        inner.line()
+                    );
+                }
+                serde_json::error::Category::Syntax => reason.push_str(
+                    "; the file is not valid JSON there: check the commas, quotes and brackets",
+                ),
+                _ => {}
+            }
             if reason.contains("missing field") || reason.contains("unknown field") {
                 reason.push_str("; check the spelling against the rig format in the README");
             }

@@ -181,16 +181,17 @@ mod tests {
     #[test]
     fn lbf_ft_factor_matches_nist_sp811() {
         // NIST SP 811 App. B.9 tabulates 1 lbf·ft = 1.355 818 N·m (rounded); exact product
-        // 0.3048 × 4.448 221 615 260 5 = 1.355 817 948 331 400 4 (facts.md §3, a computed).
+        // 0.3048 × 4.448 221 615 260 5 = 1.355 817 948 331 400 4 (computed from SP 811's exact foot
+        // and pound-force).
         assert_relative_eq!(NM_PER_LBF_FT, 1.355_817_948_331_400_4, max_relative = 1e-15);
         assert_relative_eq!(N_PER_LBF, 4.448_221_615_260_5, max_relative = 1e-15);
-        // 100 lbf·ft = 135.5818 N·m (facts.md §3 check values).
+        // 100 lbf·ft = 135.5818 N·m (computed from the same factor).
         assert_relative_eq!(
             Torque::from_lbf_ft(100.0).nm(),
             135.5818,
             max_relative = 1e-6
         );
-        // 1 N·m = 0.737 562 149 277 265 lbf·ft (facts.md §3, a computed).
+        // 1 N·m = 0.737 562 149 277 265 lbf·ft (computed from the same factor).
         assert_relative_eq!(
             Torque::from_nm(1.0).lbf_ft(),
             0.737_562_149_277_265,
@@ -200,7 +201,7 @@ mod tests {
 
     #[test]
     fn stiffness_times_angle_is_torque() {
-        // C1 solid round bar: k = 2551.07 N·m/rad = 44.525 N·m/deg (facts.md §1.3, a computed).
+        // C1 solid round bar: k = 2551.07 N·m/rad = 44.525 N·m/deg (θ = T·L/(G·J), Beer & Johnston ch. 3).
         let k = Stiffness::from_nm_per_rad(2551.07);
         assert_relative_eq!(k.nm_per_deg(), 44.525, max_relative = 1e-4);
         let t = k * Angle::from_deg(3.3689);

@@ -1,10 +1,19 @@
 #!/usr/bin/env bash
 # Installs what twistmark needs to build on Debian, only when it is missing:
-# the FFmpeg development libraries, libclang (for bindgen) and pkg-config.
+# the FFmpeg development libraries, libclang (for bindgen) and pkg-config; with --browser,
+# also headless Chromium for the browser test of the HTML reports.
 # Uses sudo when not run as root. Safe to run again.
 set -euo pipefail
 
 pkgs=(libavcodec-dev libavformat-dev libavutil-dev libswscale-dev libclang-dev pkg-config)
+# --browser: also Debian's chromium (large), which tests/html_report.rs uses to render
+# report.html and summary.html headless. Only the test command asks for it.
+for arg in "$@"; do
+  case "$arg" in
+    --browser) pkgs+=(chromium) ;;
+    *) echo "setup: unknown option $arg (the only option is --browser)" >&2; exit 2 ;;
+  esac
+done
 missing=()
 for p in "${pkgs[@]}"; do
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")

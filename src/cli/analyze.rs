@@ -42,15 +42,13 @@ pub struct AnalyzeArgs {
     /// the twist zero.
     #[arg(long, value_name = "N")]
     zero_frame: Option<u64>,
-    /// With --overlay, draw only every Nth blow's peak-twist frame.
-    #[arg(
-        long,
-        value_name = "N",
-        default_value = "1",
-        requires = "overlay",
-        allow_hyphen_values = true
-    )]
-    overlay_every: String,
+    /// Draw only every Nth blow's peak-twist frame into DIR/overlays/ (turns --overlay on).
+    #[arg(long, value_name = "N", allow_hyphen_values = true)]
+    overlay_every: Option<String>,
+    /// Torque unit for the table, plots and report.html: nm or lbf-ft (JSON and CSV keep SI
+    /// keys, with _lbf_ft columns beside them).
+    #[arg(long, value_name = "UNIT", default_value = "nm")]
+    units: String,
 }
 
 pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
@@ -69,15 +67,22 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
         zero_still: a.zero_still.clone(),
         zero_frame: a.zero_frame,
     };
+    let report_opts = twistmark::report::ReportOptions {
+        units: twistmark::report::TorqueUnit::parse(&a.units).map_err(anyhow::Error::msg)?,
+    };
     let rig = twistmark::Rig::from_path(&a.rig)?;
-    let overlay_every = super::parse_number("--overlay-every", &a.overlay_every)?;
+    let overlay_every = match a.overlay_every.as_deref() {
+        None => 1.0,
+        Some(t) => super::parse_number("--overlay-every", t)?,
+    };
     if overlay_every < 1.0 || overlay_every.fract() != 0.0 {
         anyhow::bail!(
             "--overlay-every: must be a whole number, at least 1 (1 draws every blow), got {}",
-            a.overlay_every
+            a.overlay_every.as_deref().unwrap_or("1")
         );
     }
     let overlay_every = overlay_every.min(u32::MAX as f64) as usize;
+    let overlay = a.overlay || a.overlay_every.is_some();
     // Before the analysis, so a long clip is not analysed only to be refused at the end.
     twistmark::report::check_output_folder(&a.out, "report.json", a.force)?;
     twistmark::report::check_folder_not_input(
@@ -99,15 +104,16 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
     // one analysed), then write everything with report.json last.
     let _lock = twistmark::report::lock_output(&a.out)?;
     twistmark::report::check_output_folder(&a.out, "report.json", a.force)?;
-    let overlay = a
-        .overlay
-        .then(|| twistmark::report::overlay::OverlayOptions {
-            every_nth_blow: overlay_every,
-            ..Default::default()
-        });
-    let written = twistmark::report::write_all(&analysis, &a.out, overlay.as_ref())
+    let overlay = overlay.then(|| twistmark::report::overlay::OverlayOptions {
+        every_nth_blow: overlay_every,
+        ..Default::default()
+    });
+    let written = twistmark::report::write_all(&analysis, &a.out, overlay.as_ref(), &report_opts)
         .with_context(|| format!("writing results to {}", a.out.display()))?;
-    print!("{}", twistmark::report::blow_table(&analysis));
+    print!(
+        "{}",
+        twistmark::report::blow_table_with(&analysis, &report_opts)
+    );
     for p in written {
         eprintln!("wrote {}", p.display());
     }

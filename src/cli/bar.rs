@@ -33,8 +33,48 @@ pub(crate) fn load_bar(path: &Path) -> Result<(Rig, BarSpec)> {
     Ok((rig, bar))
 }
 
+/// The bar for `twistmark bar`: from a whole rig, or from a file that holds only a bar (a
+/// rig with `"bar"` and no `"marks"`, or the bar's object itself, `{"sections": ...}`), since
+/// checking a bar needs no marks.
+fn load_bar_only(path: &Path) -> Result<BarSpec> {
+    let rig_error = match load_bar(path) {
+        Ok((_, bar)) => return Ok(bar),
+        Err(e) => e,
+    };
+    let Ok(text) = std::fs::read_to_string(path) else {
+        return Err(rig_error);
+    };
+    let Ok(serde_json::Value::Object(doc)) = serde_json::from_str::<serde_json::Value>(&text)
+    else {
+        return Err(rig_error);
+    };
+    let (value, prefix) = match (doc.get("bar"), doc.contains_key("marks")) {
+        (Some(bar), false) => (bar.clone(), "bar"),
+        (None, false) if doc.contains_key("sections") => {
+            (serde_json::Value::Object(doc.clone()), "")
+        }
+        _ => return Err(rig_error),
+    };
+    let bar: BarSpec = serde_path_to_error::deserialize(value).map_err(|e| {
+        let at = e.path().to_string();
+        let field = match (prefix, at.as_str()) {
+            ("", f) => f.to_string(),
+            (p, ".") => p.to_string(),
+            (p, f) => format!("{p}.{f}"),
+        };
+        anyhow::anyhow!(
+            "{}: {field}: {}; check it against the bar format in the README",
+            path.display(),
+            e.into_inner()
+        )
+    })?;
+    bar.validate()
+        .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
+    Ok(bar)
+}
+
 pub fn run(a: BarArgs) -> Result<ExitCode> {
-    let (_, bar) = load_bar(&a.rig)?;
+    let bar = load_bar_only(&a.rig)?;
     let report = BarReport::new(&bar)?;
     let json = report.to_json();
     if a.json {

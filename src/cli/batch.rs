@@ -5,7 +5,7 @@ use std::process::ExitCode;
 
 use anyhow::Result;
 use clap::Args;
-use twistmark::batch::{BatchOptions, run_batch, summary_table};
+use twistmark::batch::{BatchOptions, run_batch_with, summary_table};
 
 use super::progress::BatchProgress;
 
@@ -14,9 +14,15 @@ use super::progress::BatchProgress;
 pub struct BatchArgs {
     /// Folder holding video files and stills folders.
     folder: PathBuf,
-    /// The rig used for every clip without a `<clip>.rig.json` beside it.
+    /// The rig for every clip without one of its own (a `<clip>.rig.json` beside it, a
+    /// rig.json in its folder, or the manifest's rig column). Default: FOLDER/rig.json.
     #[arg(long)]
-    rig: PathBuf,
+    rig: Option<PathBuf>,
+    /// A CSV with a header row clip,rig,<tag>,...: each clip's path (relative to the CSV's
+    /// folder), an optional rig, and tags (tool, bar, pressure, ...) carried into
+    /// summary.csv and used to group summary.html.
+    #[arg(long, value_name = "FILE.csv")]
+    manifest: Option<PathBuf>,
     /// Output folder; each clip gets `DIR/<clip name>/`.
     #[arg(long, value_name = "DIR")]
     out: PathBuf,
@@ -30,6 +36,10 @@ pub struct BatchArgs {
     /// Clips analysed at once (default: number of cores; at most 4 per core).
     #[arg(long, value_name = "N", allow_hyphen_values = true)]
     jobs: Option<String>,
+    /// Torque unit for the plots and HTML pages: nm or lbf-ft (JSON and CSV keep SI keys,
+    /// with _lbf_ft columns beside them).
+    #[arg(long, value_name = "UNIT", default_value = "nm")]
+    units: String,
 }
 
 pub fn run(a: BatchArgs) -> Result<ExitCode> {
@@ -40,8 +50,19 @@ pub fn run(a: BatchArgs) -> Result<ExitCode> {
         },
         jobs: a.jobs.as_deref().map(parse_jobs).transpose()?,
         force: a.force,
+        manifest: a.manifest.clone(),
+        report: twistmark::report::ReportOptions {
+            units: twistmark::report::TorqueUnit::parse(&a.units).map_err(anyhow::Error::msg)?,
+        },
     };
-    let rig = twistmark::Rig::from_path(&a.rig)?;
+    let rig_path = a.rig.clone().or_else(|| {
+        let p = a.folder.join(twistmark::batch::FOLDER_RIG);
+        p.is_file().then_some(p)
+    });
+    let rig = rig_path
+        .as_deref()
+        .map(twistmark::Rig::from_path)
+        .transpose()?;
     twistmark::report::check_output_folder(&a.out, "summary.json", a.force)?;
     if let Some(j) = opts.jobs {
         let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
@@ -54,7 +75,8 @@ pub fn run(a: BatchArgs) -> Result<ExitCode> {
         }
     }
     let progress = BatchProgress::new();
-    let result = run_batch(&a.folder, &rig, &a.rig, &a.out, &opts, &|ev| {
+    let batch_rig = rig.as_ref().zip(rig_path.as_deref());
+    let result = run_batch_with(&a.folder, batch_rig, &a.out, &opts, &|ev| {
         progress.event(ev)
     });
     progress.finish();

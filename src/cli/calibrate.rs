@@ -62,6 +62,14 @@ pub struct CalibrateArgs {
     /// The image of the bar at rest, when the --stills CSV has no row with torque 0.
     #[arg(long, value_name = "IMAGE", requires = "stills", conflicts_with_all = ["pairs", "csv"])]
     reference: Option<PathBuf>,
+    /// The day the checks were made, YYYY-MM-DD (default: today, UTC); written into the
+    /// rig's calibration record.
+    #[arg(long, value_name = "YYYY-MM-DD")]
+    date: Option<String>,
+    /// The torque reference used (maker, model, serial number, its calibration certificate),
+    /// written into the rig's calibration record so a report can name it.
+    #[arg(long, value_name = "TEXT")]
+    reference_wrench: Option<String>,
     /// Write the rig with the calibrated stiffness to this file (may be the --rig file).
     #[arg(long, value_name = "RIG.json")]
     out: Option<PathBuf>,
@@ -71,6 +79,10 @@ pub struct CalibrateArgs {
 }
 
 pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
+    let date = match &a.date {
+        Some(d) => check_date(d)?,
+        None => twistmark::report::ToolJson::today_utc(),
+    };
     let (mut rig, mut bar) = super::bar::load_bar(&a.rig)?;
     let mut pairs: Vec<CalibrationPair> = Vec::new();
     let mut stills: Option<StillsMeasurement> = None;
@@ -135,7 +147,15 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
     let vs_pct = 100.0 * (k.nm_per_rad() / computed.nm_per_rad() - 1.0);
 
     bar.calibrated_stiffness_nm_per_deg = Some(k.nm_per_deg());
-    bar.calibration = Some(fit.to_spec(computed, source));
+    let mut record = fit.to_spec(computed, source);
+    record.date = Some(date);
+    record.reference_wrench = a
+        .reference_wrench
+        .as_deref()
+        .map(str::trim)
+        .filter(|t| !t.is_empty())
+        .map(str::to_string);
+    bar.calibration = Some(record);
     rig.bar = Some(bar);
     if let Some(out) = &a.out {
         let text = rig.to_json_pretty() + "\n";
@@ -263,4 +283,22 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
     }
     println!("caution: {TORQUE_CAUTION}");
     Ok(ExitCode::SUCCESS)
+}
+
+/// Checks `--date`: a calendar day written YYYY-MM-DD (ISO 8601).
+fn check_date(text: &str) -> Result<String> {
+    let t = text.trim();
+    let ok = t.len() == 10
+        && t.bytes().enumerate().all(|(i, b)| {
+            if i == 4 || i == 7 {
+                b == b'-'
+            } else {
+                b.is_ascii_digit()
+            }
+        })
+        && humantime::parse_rfc3339(&format!("{t}T00:00:00Z")).is_ok();
+    if !ok {
+        anyhow::bail!("--date: '{text}' is not a day written YYYY-MM-DD (for example 2026-03-14)");
+    }
+    Ok(t.to_string())
 }

@@ -31,8 +31,10 @@ pub struct FindMarksArgs {
 
 pub fn run(a: FindMarksArgs) -> Result<ExitCode> {
     let fps_hz = super::parse_fps(a.fps.as_deref())?;
+    super::check_parent_folder("--out", &a.out)?;
     let mut outputs = vec![("--out", a.out.as_path())];
     if let Some(p) = &a.preview {
+        super::check_parent_folder("--preview", p)?;
         outputs.push(("--preview", p.as_path()));
     }
     // Before the clip is read: a refusal should not cost the user a long wait.

@@ -78,6 +78,21 @@ pub(crate) fn parse_fps(text: Option<&str>) -> Result<Option<f64>> {
     Ok(Some(v))
 }
 
+/// Checks, before any long work, that the folder a file is to be written into exists, so the
+/// message says what to do instead of "No such file or directory" at the end.
+pub(crate) fn check_parent_folder(flag: &str, path: &std::path::Path) -> Result<()> {
+    if let Some(parent) = path.parent().filter(|p| !p.as_os_str().is_empty())
+        && !parent.is_dir()
+    {
+        anyhow::bail!(
+            "{flag}: the folder {} does not exist; create it first (mkdir -p {}) or give a path in an existing folder",
+            parent.display(),
+            parent.display()
+        );
+    }
+    Ok(())
+}
+
 /// Prints library warnings on stderr, one line each.
 pub(crate) fn print_warnings(warnings: &[twistmark::Warning]) {
     for w in warnings {

@@ -93,7 +93,9 @@ impl ChromaRef<'_> {
     pub fn to_owned_planes(&self) -> Chroma {
         let (w, h) = (self.width as usize, self.height as usize);
         let pack = |p: &[u8], s: usize| -> Vec<u8> {
-            (0..h).flat_map(|y| p[y * s..y * s + w].iter().copied()).collect()
+            (0..h)
+                .flat_map(|y| p[y * s..y * s + w].iter().copied())
+                .collect()
         };
         Chroma {
             width: self.width,

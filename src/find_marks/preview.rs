@@ -73,6 +73,7 @@ pub fn write_preview(found: &FoundMarks, path: &Path, force: bool) -> Result<()>
             &text,
         );
     }
+    crate::report::rulers::draw_pixel_rulers(&mut img, s, &font);
     let mut png = std::io::Cursor::new(Vec::new());
     img.write_to(&mut png, image::ImageFormat::Png)
         .map_err(|e| Error::Output {

@@ -16,7 +16,7 @@ use crate::units::Stiffness;
 pub use crate::mechanics::steel::DEFAULT_SHEAR_MODULUS_GPA;
 
 /// Default fraction of shear yield at which a stress warning is raised. Common practice:
-/// the reference sheet (facts.md §2.2) calls 60–80 % reasonable when the grade is uncertain.
+/// 60–80 % is reasonable (engineering judgement) when the grade is uncertain.
 pub const DEFAULT_STRESS_WARN_FRACTION: f64 = 0.7;
 
 /// Torsion constant of a square, K = β·s⁴ with β = 0.140577: Saint-Venant's series for a
@@ -144,8 +144,8 @@ pub enum SectionSpec {
 }
 
 /// A part turning with the drive end, modelled as a hollow cylinder about its own axis:
-/// I = ½·m·(rₒ² + rᵢ²) (standard tables, e.g. Beer & Johnston, *Vector Mechanics*;
-/// facts.md §6). A solid part has no `bore_mm`.
+/// I = ½·m·(rₒ² + rᵢ²) (standard tables, e.g. Beer & Johnston, *Vector Mechanics*,
+/// table number from memory). A solid part has no `bore_mm`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct InertiaPart {
@@ -194,6 +194,13 @@ pub struct CalibrationSpec {
     /// Where the twists came from (`"given"` for typed-in or CSV values).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub twist_source: Option<String>,
+    /// The day the checks were made, ISO 8601 (`YYYY-MM-DD`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub date: Option<String>,
+    /// The torque reference used: maker, model, serial number and its own calibration
+    /// certificate, as free text.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reference_wrench: Option<String>,
 }
 
 /// The material a section ends up with, and where each value came from.
@@ -299,7 +306,7 @@ impl SectionSpec {
     ///
     /// Round πd⁴/32 and tube π(D⁴−d⁴)/32 (Beer & Johnston, *Mechanics of Materials*, ch. 3).
     /// Square 0.140577·s⁴ (Saint-Venant series; amesweb, as 2.25·a⁴ with a = s/2). Hexagon
-    /// 0.11505·s⁴ across flats (finite-difference Saint-Venant solution, facts.md §1.2). For
+    /// 0.11505·s⁴ across flats (finite-difference Saint-Venant solution computed for this project). For
     /// the non-round shapes J is below the polar moment because the section warps
     /// (Wikipedia "Torsion constant").
     pub fn torsion_constant_m4(&self) -> f64 {
@@ -319,7 +326,7 @@ impl SectionSpec {
     ///
     /// Round 16/(πd³) and tube 16·D/(π(D⁴−d⁴)) (Beer & Johnston ch. 3, τ = T·r/J at the
     /// outer radius). Square 4.808/s³ at mid-side (amesweb, piping-designer). Hexagon
-    /// 5.328/s³ at mid-flat (finite-difference solution, facts.md §1.2).
+    /// 5.328/s³ at mid-flat (finite-difference solution computed for this project).
     pub fn shear_stress_per_nm(&self) -> f64 {
         match *self {
             SectionSpec::Round { d_mm, .. } => 16.0 / (PI * (d_mm * 1e-3).powi(3)),
@@ -710,7 +717,7 @@ mod tests {
     fn beer_johnston_solid_shaft() {
         // Solutions page for Beer & Johnston 7th ed. ch. 3 (weak source): solid d = 75 mm,
         // L = 2.5 m, G = 77 GPa, T = 4000 N·m → J = 3.106e-6 m⁴, θ = 0.0418 rad;
-        // τ_max = 48.29 MPa (facts.md §1.3, a computed).
+        // τ_max = 48.29 MPa (computed from 16T/(πd³)).
         let bar = BarSpec {
             shear_modulus_gpa: Some(77.0),
             ..BarSpec::new(vec![SectionSpec::round(2500.0, 75.0)])
@@ -729,7 +736,7 @@ mod tests {
 
     #[test]
     fn c1_solid_round() {
-        // facts.md §1.3 C1 (a, computed; θ = TL/(GJ), Beer & Johnston ch. 3): d = 16 mm,
+        // Check value C1 (computed; θ = TL/(GJ), Beer & Johnston ch. 3): d = 16 mm,
         // L = 200 mm, G = 79.3 GPa, T = 150 N·m → J = 6433.98 mm⁴, θ = 0.058799 rad = 3.3689°,
         // k = 2551.07 N·m/rad = 44.525 N·m/deg, τ_max = 186.51 MPa.
         let bar = BarSpec::new(vec![SectionSpec::round(200.0, 16.0)]);
@@ -753,7 +760,7 @@ mod tests {
 
     #[test]
     fn c2_tube() {
-        // facts.md §1.3 C2 (a, computed): D = 20, d = 12 mm, L = 200 mm → J = 13 672.2 mm⁴,
+        // Check value C2 (computed; J = π(D⁴ − d⁴)/32, Beer & Johnston ch. 3): D = 20, d = 12 mm, L = 200 mm → J = 13 672.2 mm⁴,
         // k = 5421.0 N·m/rad, τ_max at 150 N·m = 109.71 MPa.
         let bar = BarSpec::new(vec![SectionSpec::tube(200.0, 20.0, 12.0)]);
         let s = &bar.sections[0];
@@ -789,7 +796,7 @@ mod tests {
         assert_relative_eq!(s.shear_stress_per_nm(), 0.7768e6, max_relative = TOL);
         let polar_mm4 = 0.12028 * 19f64.powi(4);
         assert!(polar_mm4 / j_mm4 > 1.04 && polar_mm4 / j_mm4 < 1.05);
-        // A round bar of d = 19 mm has 12 794.2 mm⁴ (facts.md §1.3 C4).
+        // A round bar of d = 19 mm has 12 794.2 mm⁴ (πd⁴/32).
         let r = SectionSpec::round(30.0, 19.0);
         assert_relative_eq!(r.torsion_constant_m4() * 1e12, 12_794.2, max_relative = TOL);
     }
@@ -819,7 +826,7 @@ mod tests {
 
     #[test]
     fn inertia_check_values() {
-        // facts.md §6 (a, computed; I = ½·m·(rₒ² + rᵢ²), Beer & Johnston Vector Mechanics
+        // Computed (I = ½·m·(rₒ² + rᵢ²), Beer & Johnston Vector Mechanics
         // tables): disk m = 0.5 kg, r = 20 mm → 1.000e-4 kg·m²; hollow cylinder m = 0.3 kg,
         // rₒ = 15 mm, rᵢ = 10 mm → 4.875e-5 kg·m².
         let disk = InertiaPart {

@@ -7,7 +7,8 @@
 //! [`BarJson`] (unit-suffixed keys), used by `twistmark bar` and available to the analysis
 //! report.
 //!
-//! Spring-back model (facts.md §6): the bar is a massless torsion spring of stiffness k with
+//! Spring-back model (free torsional vibration of a disc on a massless shaft, any
+//! theory-of-machines text): the bar is a massless torsion spring of stiffness k with
 //! the drive-end inertia I on it, so I·θ̈ + k·θ = 0 and f_n = (1/2π)·√(k/I). A blow throws
 //! the drive end forward and the twist rises to its peak in a quarter period, (π/2)·√(I/k)
 //! (forward damping neglected). The bar then unwinds from rest at the peak against the tool's
@@ -131,7 +132,7 @@ pub struct PeakStress {
 /// ```
 /// use twistmark::mechanics::{BarReport, BarSpec, SectionSpec};
 /// use twistmark::Angle;
-/// // facts.md §1.3 C1: d = 16 mm, L = 200 mm round bar, k = 44.525 N·m/deg.
+/// // Check value C1 (θ = T·L/(G·J), Beer & Johnston ch. 3): d = 16 mm, L = 200 mm round bar, k = 44.525 N·m/deg.
 /// let bar = BarSpec::new(vec![SectionSpec::round(200.0, 16.0)]);
 /// let report = BarReport::new(&bar).unwrap();
 /// let t = report.torque(Angle::from_deg(3.3689));
@@ -412,7 +413,7 @@ impl BarReport {
         self.inertia_kg_m2
     }
 
-    /// Natural frequency of the drive end on the bar, f_n = (1/2π)·√(k/I), Hz (facts.md §6).
+    /// Natural frequency of the drive end on the bar, f_n = (1/2π)·√(k/I), Hz (theory-of-machines texts).
     pub fn natural_frequency_hz(&self) -> Option<f64> {
         self.inertia_kg_m2
             .map(|i| (self.stiffness.nm_per_rad() / i).sqrt() / (2.0 * PI))
@@ -816,7 +817,7 @@ mod tests {
 
     #[test]
     fn natural_frequency_matches_reference() {
-        // facts.md §6 (a, computed; f_n = (1/2π)√(k/I), theory-of-machines texts): disk
+        // Computed (f_n = (1/2π)√(k/I), theory-of-machines texts): disk
         // I = 1.000e-4 kg·m² on C1's k = 2551.07 N·m/rad → f_n = 803.86 Hz, period 1.244 ms.
         let bar = BarSpec {
             drive_inertia_kg_m2: Some(1.0e-4),
@@ -836,7 +837,7 @@ mod tests {
         );
         assert_eq!(r.damping_ratio(), Some(0.0));
         assert!(r.predicted_residual_fraction(0.02).is_none());
-        // Same inertia from a solid disk m = 0.5 kg, r = 20 mm (facts.md §6).
+        // Same inertia from a solid disk m = 0.5 kg, r = 20 mm (I = ½·m·r²).
         let parts = BarSpec {
             drive_parts: Some(vec![InertiaPart {
                 part: Some("anvil".into()),
@@ -1159,7 +1160,7 @@ mod tests {
 
     #[test]
     fn ratings_in_lbf_ft_match_nist_check_values() {
-        // facts.md §3 (a, computed from NIST SP 811's exact foot and pound-force):
+        // Computed from NIST SP 811's (2008, Appendix B) exact foot and pound-force:
         // 100 / 80 / 450 / 475 / 500 lbf·ft = 135.5818 / 108.4654 / 610.118 / 644.014 /
         // 677.909 N·m.
         for (lbf_ft, nm) in [

@@ -45,7 +45,7 @@ use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
 
 /// Smallest per-blow nut advance that counts as the nut still turning, degrees: the
-/// project's accuracy target for a per-blow nut advance (issue 3), so anything smaller
+/// project's accuracy target for a per-blow nut advance, so anything smaller
 /// cannot be told from zero.
 pub const NUT_STOP_MIN_DEG: f64 = 0.10;
 

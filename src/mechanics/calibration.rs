@@ -214,6 +214,8 @@ impl CalibrationFit {
             torque_nm: self.pairs.iter().map(|p| p.torque.nm()).collect(),
             twist_deg: self.pairs.iter().map(|p| p.twist.deg()).collect(),
             twist_source: Some(twist_source.to_string()),
+            date: None,
+            reference_wrench: None,
         }
     }
 }
@@ -293,15 +295,12 @@ pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
         let line = rec.position().map_or(0, |p| p.line());
         let num = |col: usize| -> Result<f64> {
             let s = rec.get(col).unwrap_or("");
-            s.parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .ok_or_else(|| {
-                    bad(format!(
-                        "line {line}, column {}: '{s}' is not a number",
-                        &headers[col]
-                    ))
-                })
+            parse_decimal(s).filter(|v| v.is_finite()).ok_or_else(|| {
+                bad(format!(
+                    "line {line}, column {}: '{s}' is not a number",
+                    &headers[col]
+                ))
+            })
         };
         pairs.push(CalibrationPair {
             torque: Torque::from_nm(num(ti)? * tf),
@@ -314,14 +313,40 @@ pub fn read_pairs_csv(path: &Path) -> Result<Vec<CalibrationPair>> {
     Ok(pairs)
 }
 
-/// A CSV reader over `text` (cells trimmed, `#` lines are comments) and its header row; the
-/// error is the reason, for the caller to attach the file name.
+/// A number as a spreadsheet may write it: `4.3`, or `4,3` with a decimal comma (as
+/// spreadsheets set to many European locales save CSV files). A comma is read as the
+/// decimal sign only when it is the one separator in the cell, so `1,234.5` is refused
+/// rather than guessed.
+pub(crate) fn parse_decimal(s: &str) -> Option<f64> {
+    let s = s.trim();
+    s.parse::<f64>().ok().or_else(|| {
+        (s.matches(',').count() == 1 && !s.contains('.'))
+            .then(|| s.replace(',', "."))
+            .and_then(|t| t.parse::<f64>().ok())
+    })
+}
+
+/// The field separator of a CSV text: `;` when the header row holds a semicolon (what a
+/// spreadsheet with a decimal comma writes), otherwise `,`.
+pub(crate) fn csv_delimiter(text: &str) -> u8 {
+    let header = text
+        .lines()
+        .map(str::trim)
+        .find(|l| !l.is_empty() && !l.starts_with('#'))
+        .unwrap_or("");
+    if header.contains(';') { b';' } else { b',' }
+}
+
+/// A CSV reader over `text` (cells trimmed, `#` lines are comments, `,` or `;` between
+/// fields, see [`csv_delimiter`]) and its header row; the error is the reason, for the caller
+/// to attach the file name.
 pub(crate) fn csv_with_headers(
     text: &str,
 ) -> std::result::Result<(csv::Reader<&[u8]>, csv::StringRecord), String> {
     let mut rdr = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
+        .delimiter(csv_delimiter(text))
         .from_reader(text.as_bytes());
     let headers = rdr
         .headers()
@@ -344,7 +369,7 @@ mod tests {
         (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
     }
 
-    /// Synthetic check (known truth): bar C5's k = 43.049 N·m/deg (facts.md §1.3), ten
+    /// Synthetic check (known truth): bar C5's k = 43.049 N·m/deg (θ = T·L/(G·J), Beer & Johnston ch. 3), ten
     /// torques 15..150 N·m, twist noise σ = 0.03°.
     fn synthetic(seed: u64) -> Vec<CalibrationPair> {
         let k = Stiffness::from_nm_per_deg(43.049);
@@ -363,7 +388,7 @@ mod tests {
 
     #[test]
     fn exact_pairs_give_exact_k() {
-        // C1: 150 N·m ↔ 3.3689° (facts.md §1.3) and proportional pairs.
+        // C1: 150 N·m ↔ 3.3689° (θ = T·L/(G·J), Beer & Johnston ch. 3) and proportional pairs.
         let k = Stiffness::from_nm_per_rad(2551.07);
         let pairs: Vec<_> = [50.0, 100.0, 150.0]
             .iter()
@@ -500,7 +525,7 @@ mod tests {
         .unwrap();
         let pairs = read_pairs_csv(&p).unwrap();
         assert_eq!(pairs.len(), 2);
-        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, facts.md §3).
+        // 100 lbf·ft = 135.5818 N·m (NIST SP 811, 2008, Appendix B.9).
         assert_relative_eq!(pairs[0].torque.nm(), 135.5818, max_relative = 1e-6);
         assert_relative_eq!(pairs[1].twist.rad(), 0.04);
         std::fs::write(&p, "torque_nm,twist_degs\n100,2\n").unwrap();

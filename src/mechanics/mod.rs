@@ -9,7 +9,7 @@ mod bar;
 mod bar_report;
 mod blows;
 mod calibration;
-pub(crate) use calibration::csv_with_headers;
+pub(crate) use calibration::{csv_with_headers, parse_decimal};
 mod holding;
 mod sense;
 mod steel;

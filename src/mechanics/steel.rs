@@ -1,8 +1,7 @@
 //! Named steels (shear modulus and tensile yield, each with its source) and the yield
 //! criterion that turns tensile yield into shear yield.
 //!
-//! Values are those of the project's reference sheet (facts.md §2), which names the
-//! published source beside each; the same source is named here beside each value.
+//! Each value comes from the published datasheet or handbook named beside it.
 
 use serde::{Deserialize, Serialize};
 
@@ -11,7 +10,7 @@ use serde::{Deserialize, Serialize};
 /// rigidity").
 pub const DEFAULT_SHEAR_MODULUS_GPA: f64 = 79.3;
 
-/// Accepted range for any shear modulus, GPa. Steels are 73–82 GPa (facts.md §2.1); the wide
+/// Accepted range for any shear modulus, GPa. Steels are 73–82 GPa (the datasheets in [`STEELS`]); the wide
 /// range lets other metals through while catching a value typed in MPa or psi.
 pub const SHEAR_MODULUS_RANGE_GPA: (f64, f64) = (20.0, 250.0);
 
@@ -32,7 +31,7 @@ pub struct Steel {
     pub yield_source: &'static str,
 }
 
-/// Every steel a rig may name. G and Sy as listed in facts.md §2.1 and §2.2.
+/// Every steel a rig may name. G and Sy from the source named beside each.
 pub const STEELS: &[Steel] = &[
     Steel {
         name: "carbon",
@@ -156,7 +155,7 @@ mod tests {
 
     #[test]
     fn shear_yield_matches_reference_table() {
-        // facts.md §2.2 shear-yield columns (a, computed from Sy of eFunda / AZoM / MatWeb):
+        // Shear yield computed from Sy of eFunda / AZoM / MatWeb (von Mises 0.577·Sy, Tresca 0.5·Sy; Shigley, failure theories):
         // (name, 0.577·Sy, 0.5·Sy) in whole MPa; the table's rounding is not uniform
         // (6145: Sy/√3 = 672.6 is listed as 672), so allow 1 MPa.
         let table = [
@@ -183,7 +182,7 @@ mod tests {
         for (i, s) in STEELS.iter().enumerate() {
             let (lo, hi) = SHEAR_MODULUS_RANGE_GPA;
             assert!((lo..=hi).contains(&s.shear_modulus_gpa), "{}", s.name);
-            // Steels sit at 73-82 GPa (facts.md §2.1).
+            // Steels sit at 73-82 GPa (the datasheets above).
             assert!((73.0..=82.0).contains(&s.shear_modulus_gpa), "{}", s.name);
             assert!(STEELS[i + 1..].iter().all(|o| o.name != s.name));
         }

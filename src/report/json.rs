@@ -4,6 +4,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::provenance::{ClipJson, ToolJson, WindowJson};
 use crate::analyze::{Analysis, FpsSource};
 use crate::units::{Angle, Torque};
 
@@ -23,8 +24,10 @@ pub struct Report {
     pub warnings: Vec<String>,
     /// That a torque from video is a model, and what to finish wheel nuts with.
     pub caution: String,
-    /// The clip analysed.
-    pub clip: String,
+    /// The clip analysed: path, size and SHA-256 (interface v2, "Provenance"). Reports from
+    /// earlier versions, where this was the path alone, still read.
+    #[serde(deserialize_with = "super::provenance::clip_from_either")]
+    pub clip: ClipJson,
     /// Frames in the whole clip.
     pub clip_frames: u64,
     /// Where the capture rate came from: `option` (--fps), `rig` or `container`.
@@ -40,6 +43,18 @@ pub struct Report {
     pub bar: Option<serde_json::Value>,
     /// Could the bar spring back between blows? Model against measurement, in one sentence.
     pub springback: Option<serde_json::Value>,
+    /// The program and version that wrote this report.
+    #[serde(default = "ToolJson::this")]
+    pub tool: ToolJson,
+    /// When this report was written, ISO 8601 in UTC.
+    #[serde(default)]
+    pub created_utc: String,
+    /// The rig as read (after defaults were filled in), so the report stands on its own.
+    #[serde(default)]
+    pub rig: serde_json::Value,
+    /// The analysed frames.
+    #[serde(default)]
+    pub window: WindowJson,
 }
 
 /// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
@@ -328,7 +343,7 @@ pub fn report(a: &Analysis) -> Report {
         frames: n,
         warnings: a.warnings.iter().map(ToString::to_string).collect(),
         caution: super::CAUTION.to_string(),
-        clip: a.clip.path.display().to_string(),
+        clip: ClipJson::of(&a.clip.path),
         clip_frames: a.clip.frames,
         fps_source: match a.fps_source {
             FpsSource::Option => "option",
@@ -347,6 +362,10 @@ pub fn report(a: &Analysis) -> Report {
             .springback
             .as_ref()
             .and_then(|v| serde_json::to_value(v).ok()),
+        tool: ToolJson::this(),
+        created_utc: super::provenance::now_utc(),
+        rig: serde_json::to_value(&a.rig).unwrap_or(serde_json::Value::Null),
+        window: WindowJson::of(a),
     }
 }
 
@@ -466,6 +485,9 @@ mod tests {
             "drive_confidence",
             "nut_confidence",
             "fps",
+            "bytes",
+            "first_frame",
+            "last_frame",
         ];
         let units = [
             "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad",
@@ -473,6 +495,10 @@ mod tests {
         fn walk(v: &Value, f: &mut dyn FnMut(&str, &Value)) {
             if let Value::Object(m) = v {
                 for (k, x) in m {
+                    // The rig as read keeps the rig file's own keys (interface, "Rig file").
+                    if k == "rig" {
+                        continue;
+                    }
                     f(k, x);
                     walk(x, f);
                 }
@@ -492,6 +518,25 @@ mod tests {
                 );
             }
         });
+    }
+
+    #[test]
+    fn report_json_carries_its_provenance() {
+        // Interface v2, "Provenance": tool, created_utc, clip {path, bytes, sha256}, the rig
+        // as read and the analysed window.
+        let v = written(true);
+        assert_eq!(v["tool"]["name"], "twistmark");
+        assert_eq!(v["tool"]["version"], env!("CARGO_PKG_VERSION"));
+        let t = v["created_utc"].as_str().unwrap();
+        assert!(t.len() == 20 && t.ends_with('Z'), "{t}");
+        // The test analysis is held in memory: its path cannot be read, so no size or hash.
+        assert_eq!(v["clip"]["path"], "bench/fast-tool");
+        assert!(v["clip"]["bytes"].is_null() && v["clip"]["sha256"].is_null());
+        assert_eq!(v["rig"]["marks"]["drive"]["kind"], "radial");
+        assert!(v["rig"]["bar"]["sections"].is_array());
+        let n = v["frames"].as_u64().unwrap();
+        assert_eq!(v["window"]["first_frame"].as_u64(), Some(0));
+        assert_eq!(v["window"]["last_frame"].as_u64(), Some(n - 1));
     }
 
     #[test]

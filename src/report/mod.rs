@@ -1,5 +1,6 @@
-//! Stage 5, report: writes `report.json`, `blows.csv` and `trace.csv` (report format v1, every
-//! number with its unit in the key) and formats the per-blow table for the terminal.
+//! Stage 5, report: writes `report.json`, `blows.csv`, `trace.csv` (report format v1, every
+//! number with its unit in the key) and `report.html` (the page a lab files), and formats the
+//! per-blow table for the terminal.
 //!
 //! In: an [`Analysis`]. Out: files in an output folder, and text. Each file is written under a
 //! temporary name in the same folder and renamed into place when complete, so an interrupted
@@ -15,17 +16,26 @@ use crate::error::{Error, Result};
 
 pub mod overlay;
 pub mod plot;
+pub(crate) mod rulers;
 pub mod write;
 
 pub use plot::{write_comparison, write_plots};
 pub use write::{check_folder_not_input, check_not_input, lock_output, write_all};
 
 mod csv;
+mod display;
+mod html;
+mod html_summary;
 mod json;
+mod provenance;
 mod table;
+mod thumbnail;
+
+pub use display::{ReportOptions, TorqueUnit};
+pub use provenance::{ClipJson, ToolJson, WindowJson};
 
 pub use json::{BlowJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report};
-pub use table::blow_table;
+pub use table::{blow_table, blow_table_with};
 
 /// The caution printed and written wherever a torque is shown.
 pub use crate::mechanics::TORQUE_CAUTION as CAUTION;
@@ -37,6 +47,19 @@ pub use crate::mechanics::TORQUE_CAUTION as CAUTION;
 /// [`crate::Error::Output`] when `dir` cannot be created, [`crate::Error::Io`] naming the file
 /// that could not be written.
 pub fn write_outputs(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
+    write_outputs_with(analysis, dir, &ReportOptions::default())
+}
+
+/// As [`write_outputs`], showing torques in `opts.units` in `report.html` (the JSON and
+/// CSV files keep SI keys whatever the option).
+///
+/// # Errors
+/// As [`write_outputs`].
+pub fn write_outputs_with(
+    analysis: &Analysis,
+    dir: &Path,
+    opts: &ReportOptions,
+) -> Result<Vec<PathBuf>> {
     if dir.exists() && !dir.is_dir() {
         return Err(Error::Output {
             path: dir.to_path_buf(),
@@ -56,17 +79,45 @@ pub fn write_outputs(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
     // report.json goes last, so its presence means the CSVs beside it are complete too.
     let blows = csv::blows_csv(&report);
     let trace = csv::trace_csv(&report);
+    let page = html::report_page(
+        analysis,
+        &report,
+        &plot::clip_svgs(analysis, opts)?,
+        thumbnail::first_frame_data_uri(analysis),
+        opts,
+    );
     for (name, bytes) in [
         ("blows.csv", blows.as_bytes()),
         ("trace.csv", trace.as_bytes()),
+        ("report.html", page.as_bytes()),
         ("report.json", text.as_bytes()),
     ] {
         write_atomic(&dir.join(name), bytes)?;
     }
-    Ok(["report.json", "blows.csv", "trace.csv"]
+    Ok(["report.json", "blows.csv", "trace.csv", "report.html"]
         .iter()
         .map(|n| dir.join(n))
         .collect())
+}
+
+/// Writes a batch's `summary.html` into `out`: the summary rows (the objects of
+/// `summary.json`'s `clips`, each with an optional `tags` object), grouped by `tags` when any
+/// are given, and the comparison plot.
+///
+/// # Errors
+/// [`Error::Output`] when the plot cannot be drawn, [`Error::Io`] naming the file.
+pub fn write_summary_html(
+    rows: &[serde_json::Value],
+    tags: &[String],
+    comparison: &[plot::ComparisonClip],
+    out: &Path,
+    opts: &ReportOptions,
+) -> Result<PathBuf> {
+    let svg = plot::comparison_svg(comparison, opts)?;
+    let page = html_summary::summary_page(rows, tags, Some(&svg), opts);
+    let path = out.join("summary.html");
+    write_atomic(&path, page.as_bytes())?;
+    Ok(path)
 }
 
 /// Refuses to reuse an output folder that already holds twistmark results, unless `force`.
@@ -247,7 +298,7 @@ pub(crate) mod tests {
     }
 
     #[test]
-    fn writes_three_files_into_a_new_folder_and_leaves_no_partials() {
+    fn writes_four_files_into_a_new_folder_and_leaves_no_partials() {
         let a = analysis(true);
         let dir = tempfile::tempdir().unwrap();
         let out = dir.path().join("nested/out");
@@ -256,15 +307,18 @@ pub(crate) mod tests {
             .iter()
             .map(|p| p.file_name().unwrap().to_string_lossy().into_owned())
             .collect();
-        assert_eq!(names, ["report.json", "blows.csv", "trace.csv"]);
+        assert_eq!(
+            names,
+            ["report.json", "blows.csv", "trace.csv", "report.html"]
+        );
         let all: Vec<String> = fs::read_dir(&out)
             .unwrap()
             .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
             .collect();
-        assert_eq!(all.len(), 3, "{all:?}");
+        assert_eq!(all.len(), 4, "{all:?}");
         // Writing again replaces the files.
         write_outputs(&a, &out).unwrap();
-        assert_eq!(fs::read_dir(&out).unwrap().count(), 3);
+        assert_eq!(fs::read_dir(&out).unwrap().count(), 4);
     }
 
     #[test]

@@ -274,7 +274,12 @@ pub(crate) fn label(img: &mut RgbImage, font: &FontRef<'_>, x: i32, y: i32, size
     draw_text_mut(img, TEXT, x + pad, y + pad, scale, font, text);
 }
 
-fn draw_overlay(frame: &Frame, a: &Analysis, m: &Moment, font: &FontRef<'_>) -> RgbImage {
+pub(crate) fn draw_overlay(
+    frame: &Frame,
+    a: &Analysis,
+    m: &Moment,
+    font: &FontRef<'_>,
+) -> RgbImage {
     let s = scale_for(frame.width);
     let mut img = to_rgb(frame, s);
     let view = View { s: s as f32 };

@@ -17,8 +17,11 @@ use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 use plotters::style::FontStyle;
 
+use super::display::{ReportOptions, TorqueUnit, tick, tick_sig};
 use crate::analyze::Analysis;
 use crate::error::{Error, Result};
+
+mod aligned;
 
 /// DejaVu Sans (Debian's fonts-dejavu-core; licence in `assets/DejaVuSans-LICENSE.txt`).
 pub(crate) const FONT_TTF: &[u8] = include_bytes!("../../assets/DejaVuSans.ttf");
@@ -29,7 +32,7 @@ const FONT: &str = "sans-serif";
 /// Size of a per-clip plot, pixels.
 const CLIP_SIZE: (u32, u32) = (1200, 650);
 /// Size of the batch comparison plot, pixels.
-const COMPARISON_SIZE: (u32, u32) = (1200, 1000);
+const COMPARISON_SIZE: (u32, u32) = (1200, 1450);
 
 const DRIVE_COLOR: RGBColor = RGBColor(31, 119, 180);
 const NUT_COLOR: RGBColor = RGBColor(230, 110, 0);
@@ -37,6 +40,10 @@ const TWIST_COLOR: RGBColor = RGBColor(90, 60, 160);
 const RATING_COLOR: RGBColor = RGBColor(200, 30, 30);
 const ONSET_COLOR: RGBColor = RGBColor(170, 170, 170);
 const GRID_COLOR: RGBColor = RGBColor(232, 232, 232);
+/// Blow numbers on the onset lines.
+const ONSET_TEXT_COLOR: RGBColor = RGBColor(90, 90, 90);
+/// Bars of blows in which the nut did not advance.
+const STALLED_COLOR: RGBColor = RGBColor(185, 185, 185);
 /// Distinct, readable line colours for clips in the comparison plot (cycled).
 const SERIES_COLORS: [RGBColor; 10] = [
     RGBColor(31, 119, 180),
@@ -90,12 +97,7 @@ fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<
         reason: format!("could not draw the plot: {e}"),
     };
 
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
-        plot.draw(&root).map_err(|e| failed(&svg_path, e))?;
-        root.present().map_err(|e| failed(&svg_path, Box::new(e)))?;
-    }
+    let svg = svg_string(plot, size, &svg_path)?;
     super::write_atomic(&svg_path, svg.as_bytes())?;
 
     let mut buf = vec![255u8; size.0 as usize * size.1 as usize * 3];
@@ -110,6 +112,64 @@ fn render(plot: &impl Plot, dir: &Path, stem: &str, size: (u32, u32)) -> Result<
     })?;
     super::save_png_atomic(&img, &png_path)?;
     Ok(vec![svg_path, png_path])
+}
+
+/// Draws `plot` into an SVG document in memory; `path` names it in errors.
+fn svg_string(plot: &impl Plot, size: (u32, u32), path: &Path) -> Result<String> {
+    register_font()?;
+    let failed = |e: Box<dyn std::error::Error>| Error::Output {
+        path: path.to_path_buf(),
+        reason: format!("could not draw the plot: {e}"),
+    };
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        plot.draw(&root).map_err(failed)?;
+        root.present().map_err(|e| failed(Box::new(e)))?;
+    }
+    Ok(svg)
+}
+
+/// The per-clip plots as SVG documents in memory, with their titles, for `report.html`.
+///
+/// # Errors
+/// [`Error::Output`] when a plot cannot be drawn.
+pub(crate) fn clip_svgs(
+    analysis: &Analysis,
+    opts: &ReportOptions,
+) -> Result<Vec<(&'static str, String)>> {
+    let d = ClipPlotData::from_analysis(analysis, opts.units);
+    let at = |stem: &str| PathBuf::from(format!("report.html ({stem} plot)"));
+    Ok(vec![
+        (
+            "Drive and nut angle",
+            svg_string(&AnglesPlot(&d), CLIP_SIZE, &at("angles"))?,
+        ),
+        (
+            "Twist and torque",
+            svg_string(&TwistPlot(&d), CLIP_SIZE, &at("twist_torque"))?,
+        ),
+        (
+            "Nut advance per blow",
+            svg_string(&AdvancePlot(&d), CLIP_SIZE, &at("nut_advance"))?,
+        ),
+        (
+            "Every blow lined up at its onset",
+            svg_string(&aligned::AlignedPlot(&d), CLIP_SIZE, &at("blows_aligned"))?,
+        ),
+    ])
+}
+
+/// The batch comparison plot as an SVG document in memory, for `summary.html`.
+///
+/// # Errors
+/// [`Error::Output`] when the plot cannot be drawn.
+pub(crate) fn comparison_svg(clips: &[ComparisonClip], opts: &ReportOptions) -> Result<String> {
+    svg_string(
+        &ComparisonPlot(clips, opts.units),
+        COMPARISON_SIZE,
+        Path::new("summary.html (comparison plot)"),
+    )
 }
 
 /// Time axis: seconds for long clips, milliseconds for short ones.
@@ -156,10 +216,18 @@ struct ClipPlotData {
     nut_advance_deg: Vec<(usize, Option<f64>)>,
     stiffness_nm_per_deg: Option<f64>,
     rating_nm: Option<f64>,
+    /// The unit torques are shown in.
+    unit: TorqueUnit,
+    /// Whether the nut advanced in each blow (by blow number - 1).
+    nut_advanced: Vec<bool>,
+    /// Each blow's twist against time since its onset.
+    aligned: Vec<AlignedBlow>,
+    /// Sample interval, ms (to place blows on a common clock).
+    dt_ms: f64,
 }
 
 impl ClipPlotData {
-    fn from_analysis(a: &Analysis) -> Self {
+    fn from_analysis(a: &Analysis, unit: TorqueUnit) -> Self {
         let tr = &a.trace;
         let n = tr.len();
         let t_s: Vec<f64> = (0..n).map(|i| tr.t_s(i)).collect();
@@ -201,7 +269,7 @@ impl ClipPlotData {
             t: t_s.iter().map(|t| t * axis.scale).collect(),
             drive_deg: deg(&tr.drive),
             nut_deg: deg(&tr.nut),
-            twist_deg,
+            twist_deg: twist_deg.clone(),
             onsets,
             peaks,
             nut_advance_deg: a
@@ -211,8 +279,39 @@ impl ClipPlotData {
                 .collect(),
             stiffness_nm_per_deg: stiffness,
             rating_nm: a.rig.bar.as_ref().and_then(|b| b.rating_nm),
+            unit,
+            nut_advanced: a.blows.iter().map(|b| b.nut_advanced).collect(),
+            aligned: a
+                .segmentation
+                .blows
+                .iter()
+                .enumerate()
+                .map(|(k, b)| {
+                    let t0 = t_s.get(b.onset).copied().unwrap_or(0.0);
+                    let pts = (b.onset..b.end.min(n))
+                        .filter_map(|i| twist_deg[i].map(|tw| ((t_s[i] - t0) * 1e3, tw)))
+                        .collect();
+                    AlignedBlow {
+                        index: k + 1,
+                        advanced: a.blows.get(k).is_some_and(|m| m.nut_advanced),
+                        points: pts,
+                    }
+                })
+                .collect(),
+            dt_ms: 1e3 / a.time_base.fps_hz(),
         }
     }
+}
+
+/// One blow's twist against the time since its onset, for the `blows_aligned` plot.
+#[derive(Debug, Clone)]
+struct AlignedBlow {
+    /// Blow number (1-based).
+    index: usize,
+    /// Whether the nut advanced in this blow.
+    advanced: bool,
+    /// (ms since onset, twist deg).
+    points: Vec<(f64, f64)>,
 }
 
 fn clip_name(a: &Analysis) -> String {
@@ -328,6 +427,32 @@ fn onset_lines(
         .map(move |&t| PathElement::new(vec![(t, y0), (t, y1)], ONSET_COLOR.stroke_width(1)))
 }
 
+/// The blow number at the top of every onset line (every k-th when there are many, so the
+/// numbers never overlap), in red where the nut did not advance.
+fn onset_numbers<'a>(
+    onsets: &'a [f64],
+    advanced: &'a [bool],
+    y: f64,
+) -> impl Iterator<Item = Text<'a, (f64, f64), String>> + 'a {
+    let every = onsets.len().div_ceil(30).max(1);
+    onsets
+        .iter()
+        .enumerate()
+        .filter(move |(k, _)| k % every == 0)
+        .map(move |(k, &t)| {
+            let colour: &'static RGBColor = if advanced.get(k).copied().unwrap_or(true) {
+                &ONSET_TEXT_COLOR
+            } else {
+                &RATING_COLOR
+            };
+            Text::new(
+                format!("{}", k + 1),
+                (t, y),
+                TextStyle::from((FONT, 15).into_font()).color(colour),
+            )
+        })
+}
+
 /// The torque caution along the foot of a plot that shows torque.
 fn torque_note<DB: DrawingBackend>(foot: &DrawingArea<DB, Shift>) -> PlotResult
 where
@@ -353,6 +478,7 @@ where
         .configure_mesh()
         .x_desc("blow number")
         .y_desc("nut advance (°)")
+        .y_label_formatter(&|v| tick(*v))
         .x_labels(blows.clamp(1, 20) + 1)
         .x_label_formatter(&|x| {
             if (x - x.round()).abs() < 1e-6 && *x >= 1.0 {
@@ -393,6 +519,8 @@ impl Plot for AnglesPlot<'_> {
             .configure_mesh()
             .x_desc(d.axis.label())
             .y_desc("angle (°, tightening +)")
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| tick(*v))
             .house_style()
             .draw()?;
         if !d.onsets.is_empty() {
@@ -402,6 +530,11 @@ impl Plot for AnglesPlot<'_> {
                 .legend(|(x, y)| {
                     PathElement::new(vec![(x + 10, y - 8), (x + 10, y + 8)], ONSET_COLOR)
                 });
+            chart.draw_series(onset_numbers(
+                &d.onsets,
+                &d.nut_advanced,
+                y1 - 0.015 * (y1 - y0),
+            ))?;
         }
         for (name, values, color) in [
             ("drive end", &d.drive_deg, DRIVE_COLOR),
@@ -462,23 +595,34 @@ impl Plot for TwistPlot<'_> {
             .y_label_area_size(90)
             .right_y_label_area_size(if k.is_some() { 100 } else { 0 })
             .build_cartesian_2d(x0..x1, y0..y1)?
-            .set_secondary_coord(x0..x1, y0 * k.unwrap_or(1.0)..y1 * k.unwrap_or(1.0));
+            // The torque axis shares the twist axis's coordinates and ticks, labelled with
+            // stiffness × twist, so each torque label sits on a twist grid line.
+            .set_secondary_coord(x0..x1, y0..y1);
         chart
             .configure_mesh()
             .x_desc(d.axis.label())
             .y_desc("twist = drive − nut (°)")
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| tick(*v))
             .house_style()
             .draw()?;
-        if k.is_some() {
+        if let Some(k) = k {
+            let k_unit = d.unit.of_nm(k);
             chart
                 .configure_secondary_axes()
-                .y_desc("torque (N·m, model)")
+                .y_desc(format!("torque ({}, model)", d.unit.label()))
+                .y_label_formatter(&|v| tick_sig(*v * k_unit, 3))
                 .label_style((FONT, 18))
                 .axis_desc_style((FONT, 22))
                 .draw()?;
         }
         if !d.onsets.is_empty() {
             chart.draw_series(onset_lines(&d.onsets, y0, y1))?;
+            chart.draw_series(onset_numbers(
+                &d.onsets,
+                &d.nut_advanced,
+                y1 - 0.015 * (y1 - y0),
+            ))?;
         }
         let style = TWIST_COLOR.stroke_width(2);
         chart
@@ -499,11 +643,16 @@ impl Plot for TwistPlot<'_> {
                 .label("peak twist of a blow")
                 .legend(|(x, y)| Circle::new((x + 11, y), 5, TWIST_COLOR.filled()));
         }
-        if let (Some(r), Some(_)) = (d.rating_nm, k) {
+        if let (Some(r), Some(k)) = (d.rating_nm, k) {
             let rs = RATING_COLOR.stroke_width(2);
+            let r_deg = r / k;
             chart
-                .draw_secondary_series(LineSeries::new(vec![(x0, r), (x1, r)], rs))?
-                .label(format!("rating {r:.0} N·m"))
+                .draw_series(LineSeries::new(vec![(x0, r_deg), (x1, r_deg)], rs))?
+                .label(format!(
+                    "rating {} {}",
+                    tick_sig(d.unit.of_nm(r), 3),
+                    d.unit.label()
+                ))
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
         }
         draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
@@ -538,12 +687,38 @@ impl Plot for AdvancePlot<'_> {
             .y_label_area_size(90)
             .build_cartesian_2d(0.5..(n.max(1) as f64 + 0.5), y0..y1)?;
         nut_advance_mesh(&mut chart, n)?;
+        let advanced = |i: usize| {
+            d.nut_advanced
+                .get(i.wrapping_sub(1))
+                .copied()
+                .unwrap_or(true)
+        };
         chart.draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
-            v.map(|v| {
+            v.filter(|_| advanced(i)).map(|v| {
                 let x = i as f64;
                 Rectangle::new([(x - 0.35, 0.0), (x + 0.35, v)], NUT_COLOR.filled())
             })
         }))?;
+        // Blows in which the nut did not advance: a grey bar and a cross at its foot.
+        if d.nut_advance_deg
+            .iter()
+            .any(|&(i, v)| v.is_some() && !advanced(i))
+        {
+            chart
+                .draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
+                    v.filter(|_| !advanced(i)).map(|v| {
+                        let x = i as f64;
+                        Rectangle::new([(x - 0.35, 0.0), (x + 0.35, v)], STALLED_COLOR.filled())
+                    })
+                }))?
+                .label("nut did not advance")
+                .legend(|(x, y)| Cross::new((x + 10, y), 7, RATING_COLOR.stroke_width(3)));
+            chart.draw_series(d.nut_advance_deg.iter().filter_map(|&(i, v)| {
+                v.filter(|_| !advanced(i))
+                    .map(|_| Cross::new((i as f64, 0.0), 9, RATING_COLOR.stroke_width(3)))
+            }))?;
+            draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        }
         chart.draw_series(std::iter::once(PathElement::new(
             vec![(0.5, 0.0), (n.max(1) as f64 + 0.5, 0.0)],
             BLACK.stroke_width(1),
@@ -561,15 +736,33 @@ impl Plot for AdvancePlot<'_> {
 /// # Errors
 /// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
 pub fn write_plots(analysis: &Analysis, dir: &Path) -> Result<Vec<PathBuf>> {
-    let d = ClipPlotData::from_analysis(analysis);
+    write_plots_with(analysis, dir, &ReportOptions::default())
+}
+
+/// As [`write_plots`], with torques in `opts.units`.
+///
+/// # Errors
+/// As [`write_plots`].
+pub fn write_plots_with(
+    analysis: &Analysis,
+    dir: &Path,
+    opts: &ReportOptions,
+) -> Result<Vec<PathBuf>> {
+    let d = ClipPlotData::from_analysis(analysis, opts.units);
     let mut out = render(&AnglesPlot(&d), dir, "angles", CLIP_SIZE)?;
     out.extend(render(&TwistPlot(&d), dir, "twist_torque", CLIP_SIZE)?);
     out.extend(render(&AdvancePlot(&d), dir, "nut_advance", CLIP_SIZE)?);
+    out.extend(render(
+        &aligned::AlignedPlot(&d),
+        dir,
+        "blows_aligned",
+        CLIP_SIZE,
+    )?);
     Ok(out)
 }
 
 /// One analysed clip as the batch comparison plot shows it.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct ComparisonClip {
     /// Clip name.
     pub name: String,
@@ -581,9 +774,18 @@ pub struct ComparisonClip {
     pub rating_nm: Option<f64>,
     /// Nut advance of each blow in order, degrees.
     pub nut_advance_deg: Vec<Option<f64>>,
+    /// Blow rate, blows per minute.
+    pub blow_rate_per_min: Option<f64>,
+    /// The torque the joint holds after the last blow that turned the nut, N·m (the
+    /// summary's `holding_torque_nm`; `None` until the mechanics stage provides it, and then
+    /// plotted beside the peak torque against the blow rate).
+    pub holding_torque_nm: Option<f64>,
+    /// The clip's group: its manifest tag values joined (`air / 6 bar`); clips of one group
+    /// share a colour in the torque-against-blow-rate panel.
+    pub group: Option<String>,
 }
 
-struct ComparisonPlot<'a>(&'a [ComparisonClip]);
+struct ComparisonPlot<'a>(&'a [ComparisonClip], TorqueUnit);
 
 fn short(name: &str, max: usize) -> String {
     if name.chars().count() <= max {
@@ -599,10 +801,12 @@ impl Plot for ComparisonPlot<'_> {
     where
         DB::ErrorType: 'static,
     {
-        let clips = self.0;
+        let (clips, unit) = (self.0, self.1);
+        let u = |v: Option<f64>| v.map(|x| unit.of_nm(x));
         root.fill(&WHITE)?;
         let h = root.dim_in_pixel().1;
-        let (top, rest) = root.split_vertically(h / 2);
+        let (top, rest) = root.split_vertically(h / 3);
+        let (middle, rest) = rest.split_vertically(h / 3);
         let (bottom, foot) = rest.split_vertically(rest.dim_in_pixel().1 - 30);
         let n = clips.len();
 
@@ -611,7 +815,7 @@ impl Plot for ComparisonPlot<'_> {
             clips.iter().flat_map(|c| {
                 [c.peak_torque_nm, c.last_advancing_torque_nm, c.rating_nm]
                     .into_iter()
-                    .flatten()
+                    .flat_map(u)
             }),
             true,
         );
@@ -624,9 +828,11 @@ impl Plot for ComparisonPlot<'_> {
             .x_label_area_size(50)
             .y_label_area_size(90)
             .build_cartesian_2d(-0.5..(n.max(1) as f64 - 0.5), 0.0..t1)?;
+        let torque_desc = format!("torque ({}, model)", unit.label());
         chart
             .configure_mesh()
-            .y_desc("torque (N·m, model)")
+            .y_desc(torque_desc.as_str())
+            .y_label_formatter(&|v| tick(*v))
             .x_labels(n.max(1) + 1)
             .x_label_formatter(&|x| {
                 let i = x.round();
@@ -645,7 +851,7 @@ impl Plot for ComparisonPlot<'_> {
         if clips.iter().any(|c| c.peak_torque_nm.is_some()) {
             chart
                 .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                    c.peak_torque_nm.map(|v| {
+                    u(c.peak_torque_nm).map(|v| {
                         let x = i as f64;
                         Rectangle::new([(x - 0.38, 0.0), (x - 0.02, v)], peak_color.filled())
                     })
@@ -658,7 +864,7 @@ impl Plot for ComparisonPlot<'_> {
         if clips.iter().any(|c| c.last_advancing_torque_nm.is_some()) {
             chart
                 .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                    c.last_advancing_torque_nm.map(|v| {
+                    u(c.last_advancing_torque_nm).map(|v| {
                         let x = i as f64;
                         Rectangle::new([(x + 0.02, 0.0), (x + 0.38, v)], last_color.filled())
                     })
@@ -672,7 +878,7 @@ impl Plot for ComparisonPlot<'_> {
         if clips.iter().any(|c| c.rating_nm.is_some()) {
             chart
                 .draw_series(clips.iter().enumerate().filter_map(|(i, c)| {
-                    c.rating_nm.map(|r| {
+                    u(c.rating_nm).map(|r| {
                         let x = i as f64;
                         PathElement::new(vec![(x - 0.45, r), (x + 0.45, r)], rs)
                     })
@@ -689,6 +895,8 @@ impl Plot for ComparisonPlot<'_> {
                 "no torque: no clip's rig has a bar, or no blows were found",
             )?;
         }
+
+        rate_chart(&middle, clips, unit)?;
 
         // Bottom: nut advance per blow, one line per clip.
         let nb = clips
@@ -737,12 +945,154 @@ impl Plot for ComparisonPlot<'_> {
     }
 }
 
+/// The comparison's middle panel: peak torque (and holding torque, when the summary carries
+/// it) against blow rate, one labelled point per clip, the ratings as dashed lines. The blow
+/// rate is what separates tools: a faster tool leaves the bar less time to spring back.
+fn rate_chart<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    clips: &[ComparisonClip],
+    unit: TorqueUnit,
+) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    let u = |v: Option<f64>| v.map(|x| unit.of_nm(x));
+    let with_rate: Vec<(&ComparisonClip, f64)> = clips
+        .iter()
+        .filter_map(|c| {
+            c.blow_rate_per_min
+                .filter(|r| r.is_finite())
+                .map(|r| (c, r))
+        })
+        .collect();
+    let (r0, r1) = span(with_rate.iter().map(|(_, r)| *r), false);
+    let (_, t1) = span(
+        with_rate.iter().flat_map(|(c, _)| {
+            [c.peak_torque_nm, c.holding_torque_nm, c.rating_nm]
+                .into_iter()
+                .flat_map(u)
+        }),
+        true,
+    );
+    let mut chart = ChartBuilder::on(area)
+        .caption("Peak and holding torque against blow rate", (FONT, 28))
+        .margin(18)
+        .x_label_area_size(60)
+        .y_label_area_size(90)
+        .build_cartesian_2d(r0..r1, 0.0..t1 * 1.25)?;
+    let torque_desc = format!("torque ({}, model)", unit.label());
+    chart
+        .configure_mesh()
+        .x_desc("blow rate (blows/min)")
+        .y_desc(torque_desc.as_str())
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .house_style()
+        .draw()?;
+    let peak_color = RGBColor(31, 119, 180);
+    let hold_color = RGBColor(44, 160, 44);
+    let mut ratings: Vec<f64> = with_rate
+        .iter()
+        .filter_map(|(c, _)| u(c.rating_nm))
+        .collect();
+    ratings.sort_by(f64::total_cmp);
+    ratings.dedup_by(|a, b| (*a - *b).abs() < 1e-9);
+    if !ratings.is_empty() {
+        let rs = RATING_COLOR.stroke_width(2);
+        chart
+            .draw_series(
+                ratings
+                    .iter()
+                    .map(move |&r| PathElement::new(vec![(r0, r), (r1, r)], rs)),
+            )?
+            .label("bar rating")
+            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 22, y)], rs));
+    }
+    // Clips grouped by a manifest's tags get one colour per group; otherwise one colour.
+    let mut groups: Vec<Option<&str>> = Vec::new();
+    for (c, _) in &with_rate {
+        if !groups.contains(&c.group.as_deref()) {
+            groups.push(c.group.as_deref());
+        }
+    }
+    for (g, group) in groups.iter().enumerate() {
+        let colour = if group.is_some() {
+            SERIES_COLORS[g % SERIES_COLORS.len()]
+        } else {
+            peak_color
+        };
+        let members: Vec<(f64, f64)> = with_rate
+            .iter()
+            .filter(|(c, _)| c.group.as_deref() == *group)
+            .filter_map(|&(c, r)| u(c.peak_torque_nm).map(|t| (r, t)))
+            .collect();
+        if members.is_empty() {
+            continue;
+        }
+        let label = match group {
+            Some(name) => format!("peak torque, {}", short(name, 28)),
+            None => "peak torque".to_string(),
+        };
+        chart
+            .draw_series(
+                members
+                    .into_iter()
+                    .map(move |p| Circle::new(p, 7, colour.filled())),
+            )?
+            .label(label)
+            .legend(move |(x, y)| Circle::new((x + 11, y), 6, colour.filled()));
+    }
+    if with_rate.iter().any(|(c, _)| c.peak_torque_nm.is_some()) {
+        chart.draw_series(with_rate.iter().filter_map(|&(c, r)| {
+            u(c.peak_torque_nm).map(|t| {
+                Text::new(
+                    short(&c.name, 18),
+                    (r, t),
+                    TextStyle::from((FONT, 16).into_font()).color(&RGBColor(60, 60, 60)),
+                )
+            })
+        }))?;
+    }
+    if with_rate.iter().any(|(c, _)| c.holding_torque_nm.is_some()) {
+        chart
+            .draw_series(with_rate.iter().filter_map(|&(c, r)| {
+                u(c.holding_torque_nm).map(|t| TriangleMarker::new((r, t), 8, hold_color.filled()))
+            }))?
+            .label("holding torque")
+            .legend(move |(x, y)| TriangleMarker::new((x + 11, y), 7, hold_color.filled()));
+    }
+    draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+    if with_rate.is_empty() {
+        note_center(area, "no clip has a blow rate (fewer than two blows)")?;
+    } else if with_rate.iter().all(|(c, _)| c.peak_torque_nm.is_none()) {
+        note_center(area, "no torque: no clip's rig has a bar")?;
+    }
+    Ok(())
+}
+
 /// Writes the batch comparison plot (`comparison.svg`, `comparison.png`) into `dir`.
 ///
 /// # Errors
 /// [`Error::Io`] or [`Error::Output`] naming the file that could not be written.
 pub fn write_comparison(clips: &[ComparisonClip], dir: &Path) -> Result<Vec<PathBuf>> {
-    render(&ComparisonPlot(clips), dir, "comparison", COMPARISON_SIZE)
+    write_comparison_with(clips, dir, &ReportOptions::default())
+}
+
+/// As [`write_comparison`], with torques in `opts.units`.
+///
+/// # Errors
+/// As [`write_comparison`].
+pub fn write_comparison_with(
+    clips: &[ComparisonClip],
+    dir: &Path,
+    opts: &ReportOptions,
+) -> Result<Vec<PathBuf>> {
+    render(
+        &ComparisonPlot(clips, opts.units),
+        dir,
+        "comparison",
+        COMPARISON_SIZE,
+    )
 }
 
 #[cfg(test)]
@@ -755,7 +1105,7 @@ pub(crate) mod tests {
     use crate::track::Trace;
     use crate::units::{Angle, TimeBase, Torque};
 
-    /// A rig with a 44.525 N·m/deg round bar (facts.md C1: d = 16 mm, L = 200 mm,
+    /// A rig with a 44.525 N·m/deg round bar (check value C1, θ = T·L/(G·J), Beer & Johnston ch. 3: d = 16 mm, L = 200 mm,
     /// G = 79.3 GPa) rated 136 N·m.
     pub(crate) const RIG_JSON: &str = r#"{
       "rig_version": 1, "capture_fps_hz": 2000,
@@ -825,6 +1175,7 @@ pub(crate) mod tests {
                     peak_torque: Some(k * peak),
                     residual_twist: Some(Angle::from_deg(3.0)),
                     nut_lag_s: Some(0.0025),
+                    nut_advanced: i != 3,
                     ..Default::default()
                 }
             })
@@ -907,7 +1258,9 @@ pub(crate) mod tests {
                 "twist_torque.svg",
                 "twist_torque.png",
                 "nut_advance.svg",
-                "nut_advance.png"
+                "nut_advance.png",
+                "blows_aligned.svg",
+                "blows_aligned.png"
             ]
         );
         let svg = |n: &str| std::fs::read_to_string(dir.path().join(n)).unwrap();
@@ -924,9 +1277,28 @@ pub(crate) mod tests {
         assert!(tt.contains("not a calibrated measurement"));
         let adv = svg("nut_advance.svg");
         assert!(adv.contains("nut advance (°)") && adv.contains("blow number"));
-        // Five bars: one filled rectangle per blow in the nut colour.
-        assert_eq!(adv.matches("fill=\"#E66E00\"").count(), 5, "{adv}");
-        for n in ["angles.png", "twist_torque.png", "nut_advance.png"] {
+        // Five bars: four in the nut colour, and blow 4 (the nut did not advance) in grey
+        // with a legend entry.
+        assert_eq!(adv.matches("fill=\"#E66E00\"").count(), 4, "{adv}");
+        assert_eq!(adv.matches("fill=\"#B9B9B9\"").count(), 1, "{adv}");
+        assert!(adv.contains("nut did not advance"));
+        // Blow numbers on the onset lines; the stalled blow's in red.
+        assert!(
+            angles.contains("fill=\"#5A5A5A\">\n5\n</text>")
+                && angles.contains("fill=\"#C81E1E\">\n4\n</text>"),
+            "onset numbers"
+        );
+        // Tick labels without a spurious ".0".
+        assert!(!angles.contains(".0\n</text>"), "tick labels");
+        let aligned = svg("blows_aligned.svg");
+        assert!(aligned.contains("time since blow onset (ms)"));
+        assert!(aligned.contains("torque (N·m, model)"));
+        for n in [
+            "angles.png",
+            "twist_torque.png",
+            "nut_advance.png",
+            "blows_aligned.png",
+        ] {
             check_png(&dir.path().join(n), CLIP_SIZE);
         }
     }
@@ -955,7 +1327,7 @@ pub(crate) mod tests {
         a.rig.bar = None;
         a.summary = Summary::default();
         let files = write_plots(&a, dir.path()).unwrap();
-        assert_eq!(files.len(), 6);
+        assert_eq!(files.len(), 8);
         let tt = std::fs::read_to_string(dir.path().join("twist_torque.svg")).unwrap();
         assert!(tt.contains("no bar in the rig"));
         assert!(!tt.contains("N·m"));
@@ -973,6 +1345,8 @@ pub(crate) mod tests {
                 last_advancing_torque_nm: Some(122.0),
                 rating_nm: Some(136.0),
                 nut_advance_deg: vec![Some(30.0), Some(12.0), Some(4.0), Some(1.0)],
+                blow_rate_per_min: Some(1400.0),
+                ..Default::default()
             },
             ComparisonClip {
                 name: "fast_electric_tool".into(),
@@ -980,6 +1354,9 @@ pub(crate) mod tests {
                 last_advancing_torque_nm: Some(141.0),
                 rating_nm: Some(136.0),
                 nut_advance_deg: vec![Some(40.0), None, Some(8.0), Some(3.0), Some(2.0), Some(1.5)],
+                blow_rate_per_min: Some(3100.0),
+                holding_torque_nm: Some(120.0),
+                group: Some("electric".into()),
             },
         ];
         let files = write_comparison(&clips, dir.path()).unwrap();
@@ -993,6 +1370,9 @@ pub(crate) mod tests {
             "fast_electric_tool",
             "bar rating",
             "torque on the last advancing blow",
+            "Peak and holding torque against blow rate",
+            "peak torque, electric",
+            "holding torque",
         ] {
             assert!(svg.contains(s), "missing {s}");
         }

@@ -4,11 +4,32 @@
 use std::fmt::Write;
 
 use super::CAUTION;
+use super::display::{ReportOptions, TorqueUnit};
 use crate::analyze::Analysis;
-use crate::units::Angle;
+use crate::units::{Angle, Torque};
 
-/// The per-blow table, summary line and cautions, as text for a terminal.
+/// The per-blow table, summary line and cautions, as text for a terminal (torques in N·m,
+/// then lbf·ft).
 pub fn blow_table(a: &Analysis) -> String {
+    blow_table_with(a, &ReportOptions::default())
+}
+
+/// A torque in the first and second unit shown (`--units` first).
+fn both(unit: TorqueUnit, t: Torque) -> (f64, f64) {
+    match unit {
+        TorqueUnit::Nm => (t.nm(), t.lbf_ft()),
+        TorqueUnit::LbfFt => (t.lbf_ft(), t.nm()),
+    }
+}
+
+/// As [`blow_table`], with the torque unit chosen by `opts.units` first in the table and the
+/// summary line, and the other beside it.
+pub fn blow_table_with(a: &Analysis, opts: &ReportOptions) -> String {
+    let unit = opts.units;
+    let other = match unit {
+        TorqueUnit::Nm => TorqueUnit::LbfFt,
+        TorqueUnit::LbfFt => TorqueUnit::Nm,
+    };
     let mut out = String::new();
     let fmt = |v: Option<f64>, d: usize| match v {
         Some(x) if x.is_finite() => format!("{x:.d$}"),
@@ -23,7 +44,15 @@ pub fn blow_table(a: &Analysis) -> String {
     let _ = writeln!(
         out,
         "{:>5} {:>8} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9} {:>8}",
-        "", "s", "adv °", "adv °", "twist °", "N·m", "lbf·ft", "twist °", "ms"
+        "",
+        "s",
+        "adv °",
+        "adv °",
+        "twist °",
+        unit.label(),
+        other.label(),
+        "twist °",
+        "ms"
     );
     for b in &a.blows {
         let _ = writeln!(
@@ -34,8 +63,8 @@ pub fn blow_table(a: &Analysis) -> String {
             deg(b.drive_advance, 2),
             deg(b.nut_advance, 2),
             deg(b.peak_twist, 2),
-            fmt(b.peak_torque.map(|t| t.nm()), 1),
-            fmt(b.peak_torque.map(|t| t.lbf_ft()), 1),
+            fmt(b.peak_torque.map(|t| both(unit, t).0), 1),
+            fmt(b.peak_torque.map(|t| both(unit, t).1), 1),
             deg(b.residual_twist, 2),
             fmt(b.nut_lag_s.map(|s| s * 1e3), 2),
         );
@@ -43,7 +72,7 @@ pub fn blow_table(a: &Analysis) -> String {
     if a.blows.is_empty() {
         let _ = writeln!(out, "{:>5} (no blows found)", "-");
     }
-    out.push_str(&summary_line(a));
+    out.push_str(&summary_line(a, unit));
     out.push('\n');
     if let Some(v) = &a.springback {
         let _ = writeln!(out, "Spring-back: {}", v.sentence);
@@ -54,7 +83,12 @@ pub fn blow_table(a: &Analysis) -> String {
 
 /// One line: blows and rate, rotations, when the nut stopped, peak torque against the rating,
 /// and the stiffness used.
-fn summary_line(a: &Analysis) -> String {
+fn summary_line(a: &Analysis, unit: TorqueUnit) -> String {
+    let other = match unit {
+        TorqueUnit::Nm => TorqueUnit::LbfFt,
+        TorqueUnit::LbfFt => TorqueUnit::Nm,
+    };
+    let (u1, u2) = (unit.label(), other.label());
     let s = &a.summary;
     let mut parts = Vec::new();
     parts.push(match (s.blow_rate_per_min, s.blow_rate_spread_per_min) {
@@ -109,30 +143,26 @@ fn summary_line(a: &Analysis) -> String {
     ));
     match (s.peak_torque, s.stiffness) {
         (Some(p), Some(k)) => {
-            let mut t = format!(
-                "bar's dynamic peak {:.1} N·m ({:.1} lbf·ft)",
-                p.nm(),
-                p.lbf_ft()
-            );
+            let (p1, p2) = both(unit, p);
+            let mut t = format!("bar's dynamic peak {p1:.1} {u1} ({p2:.1} {u2})");
             if let (Some(r), Some(ratio)) = (s.rating, s.peak_to_rating) {
                 let _ = write!(
                     t,
-                    " = {:.0} % of the {:.0} N·m rating",
+                    " = {:.0} % of the {:.0} {u1} rating",
                     100.0 * ratio,
-                    r.nm()
+                    both(unit, r).0
                 );
             }
             parts.push(t);
             if let Some(q) = s.peak_torque_nut_advancing {
+                let (q1, q2) = both(unit, q);
                 parts.push(format!(
-                    "highest while the nut still turned {:.1} N·m ({:.1} lbf·ft)",
-                    q.nm(),
-                    q.lbf_ft()
+                    "highest while the nut still turned {q1:.1} {u1} ({q2:.1} {u2})"
                 ));
             }
             parts.push(format!(
-                "stiffness {:.2} N·m/deg ({})",
-                k.nm_per_deg(),
+                "stiffness {:.2} {u1}/deg ({})",
+                unit.of_nm(k.nm_per_deg()),
                 s.stiffness_source.map_or("computed", |x| x.as_str())
             ));
         }
@@ -165,6 +195,29 @@ mod tests {
         assert!(summary.contains("rating") && summary.contains("computed"));
         assert!(lines.last().unwrap().contains("calibrated torque wrench"));
         assert!(lines.last().unwrap().contains("vehicle maker"));
+    }
+
+    #[test]
+    fn lbf_ft_comes_first_when_chosen() {
+        let a = analysis(true);
+        let opts = ReportOptions {
+            units: TorqueUnit::LbfFt,
+        };
+        let t = blow_table_with(&a, &opts);
+        let lines: Vec<&str> = t.lines().collect();
+        assert!(
+            lines[1].find("lbf·ft") < lines[1].find("N·m"),
+            "{}",
+            lines[1]
+        );
+        // 1 lbf·ft = 1.355818 N·m (NIST SP 811, 2008, Appendix B.9).
+        let q = a.blows[0].peak_torque.unwrap();
+        assert!(lines[2].contains(&format!("{:.1}", q.nm() / 1.355_818)));
+        let summary = lines[lines.len() - 2];
+        assert!(
+            summary.contains("lbf·ft/deg") && summary.contains("lbf·ft rating"),
+            "{summary}"
+        );
     }
 
     #[test]

@@ -286,6 +286,7 @@ pub fn write_all(
     analysis: &Analysis,
     dir: &Path,
     overlay: Option<&OverlayOptions>,
+    opts: &super::ReportOptions,
 ) -> Result<Vec<PathBuf>> {
     ensure_folder(dir)?;
     // The old report goes first: from here until the new one is in place, the folder holds
@@ -297,12 +298,12 @@ pub fn write_all(
         Err(e) => return Err(Error::io(&report, e)),
     }
     clear_leftovers(dir)?;
-    let mut written = super::write_plots(analysis, dir)?;
+    let mut written = super::plot::write_plots_with(analysis, dir, opts)?;
     if let Some(o) = overlay {
         written.extend(write_overlays(analysis, dir, o)?);
     }
-    // write_outputs writes the CSVs, then report.json.
-    let mut outputs = super::write_outputs(analysis, dir)?;
+    // write_outputs_with writes the CSVs and report.html, then report.json.
+    let mut outputs = super::write_outputs_with(analysis, dir, opts)?;
     outputs.append(&mut written);
     Ok(outputs)
 }

@@ -486,7 +486,7 @@ pub struct ModelTruth {
     pub drive_screen_deg_at_frame0: f64,
     /// Screen angle of the nut stripe at frame 0, degrees.
     pub nut_screen_deg_at_frame0: f64,
-    /// Half period of the drive end against a held nut, π·√(I_d/k), s (facts.md §6).
+    /// Half period of the drive end against a held nut, π·√(I_d/k), s (free torsional vibration of a disc on a shaft).
     pub drive_half_period_s: f64,
     /// Exposure time, s.
     pub exposure_s: f64,
@@ -1015,7 +1015,7 @@ mod tests {
     }
 
     /// Screen angle of the stripe inside a radial mark's annulus by second central moments
-    /// (Hu 1962; facts.md §7.1), weighting each pixel by how much brighter than `floor` it is.
+    /// (Hu, IRE Trans. Information Theory, 1962), weighting each pixel by how much brighter than `floor` it is.
     fn annulus_angle_deg(frame: &Frame, mark: &Mark, floor: f32) -> f64 {
         let Mark::Radial(m) = mark else {
             panic!("radial")

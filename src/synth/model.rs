@@ -19,7 +19,7 @@
 //! hands to the anvil (∫P dt = H). A pulse much shorter than the bar's period acts as an impulse:
 //! then the drive end's undamped response against a held nut is θ(t) = (H/√(k·I_d))·sin(√(k/I_d)·t),
 //! which peaks a quarter period after the blow and is back at zero after half a period,
-//! π·√(I_d/k) (free torsional vibration of a disc on a massless shaft, facts.md §6).
+//! π·√(I_d/k) (free torsional vibration of a disc on a massless shaft, any theory-of-machines text).
 
 use std::f64::consts::PI;
 
@@ -279,7 +279,7 @@ mod tests {
 
     #[test]
     fn held_nut_springs_back_after_half_a_period() {
-        // facts.md §6: a disc on a massless torsion shaft has period 2π·√(I/k). After an
+        // Free torsional vibration (any theory-of-machines text): a disc on a massless torsion shaft has period 2π·√(I/k). After an
         // impulse H the drive end follows θ = (H/√(kI))·sin(√(k/I)·t): the peak twist is
         // H/√(kI) at a quarter period, and the bar is back at zero twist after π·√(I/k).
         let mut m = base();

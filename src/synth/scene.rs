@@ -765,7 +765,7 @@ mod tests {
     }
 
     /// Principal-axis angle from second central moments, θ = ½·atan2(2μ11, μ20 − μ02)
-    /// (Hu 1962; facts.md §7.1), of the luma above `floor`, in degrees.
+    /// (Hu, IRE Trans. Information Theory, 1962), of the luma above `floor`, in degrees.
     pub(crate) fn moment_angle(img: &[f32], w: usize, floor: f32) -> f64 {
         let (mut m00, mut m10, mut m01) = (0.0f64, 0.0, 0.0);
         for (i, &v) in img.iter().enumerate() {
@@ -789,7 +789,7 @@ mod tests {
 
     #[test]
     fn stripe_orientation_is_recovered_by_second_moments() {
-        // Synthetic check against facts.md §7.1 (a, computed): a 100 × 6 px bar, centre at
+        // Synthetic check against reference values computed for this project: a 100 × 6 px bar, centre at
         // fractional position (.3, .6), 8×8 supersampling, measured by the Hu (1962)
         // principal-axis angle θ = ½·atan2(2μ11, μ20 − μ02). With a regular 8×8 grid the
         // reference recovers 0 / 30.0003 / 30.0501 / 45.0001 / 89.8944 / −60.0002°. Our

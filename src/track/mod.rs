@@ -21,8 +21,8 @@
 //! of the error a pivot that is off by a pixel (or shake in the first frame) would leave.
 //!
 //! Unwrapping: each frame's angle is taken as the turn nearest the prediction from recent
-//! velocity, so the true turn between two measured frames must stay under 180° (facts.md
-//! §7.2). After a run of lost frames the prediction extrapolates the last velocity; if the
+//! velocity, so the true turn between two measured frames must stay under 180° (as in
+//! numpy.unwrap). After a run of lost frames the prediction extrapolates the last velocity; if the
 //! part turned more than half a turn further than that while lost, whole turns are missed.
 
 use std::path::Path;

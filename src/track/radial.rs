@@ -23,7 +23,7 @@
 //!    re-centred on the estimate until it stops moving (so the window is symmetric about the
 //!    answer and truncation does not bias it). This is
 //!    the brightness-weighted centroid refinement of Crocker & Grier (1996), applied along a
-//!    ring (facts.md §7.3). Each ring's window starts at the coarse prediction moved by the
+//!    ring (J. Colloid Interface Sci. 179, 1996). Each ring's window starts at the coarse prediction moved by the
 //!    median of the last three good rings' moves: the coarse centre's error is common to all
 //!    rings, so the window starts near its answer and re-centres fewer times.
 //! 6. The ring centres, less each ring's offset learnt in the first frame, are combined with

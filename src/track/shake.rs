@@ -281,7 +281,7 @@ impl ShakeEstimator {
     /// Copies the region around the patch and smooths it with a binomial kernel (σ = 1 px).
     /// Smoothing makes the image locally close to linear over a pixel, which is what bilinear
     /// resampling and the gradient step assume; without it the shift locks to preferred
-    /// sub-pixel phases ("peak locking", facts.md §7.3).
+    /// sub-pixel phases ("peak locking": Nobach & Honkanen, Exp. Fluids 38 (2005) 511–515).
     fn load(&mut self, frame: FrameRef<'_>) {
         let scale = 1.0 / frame.max_value();
         let (ox, oy) = (self.origin[0], self.origin[1]);

@@ -3,7 +3,7 @@
 //! Unwrapping adds whole periods so that each angle is the representative nearest to a
 //! reference (the previous angle, or a prediction from recent velocity). This is the
 //! definition used by NumPy's `numpy.unwrap` (consecutive differences kept within half a
-//! period, with the period as a parameter; facts.md §7.2). A painted stripe on one side of the
+//! period, with the period as a parameter). A painted stripe on one side of the
 //! pivot is a directed mark, so the period is 2π and the true turn between two measured frames
 //! must stay under 180°.
 

@@ -2,7 +2,7 @@
 //! report compared number by number with the truth the renderer wrote.
 //!
 //! These are synthetic clips of the project's own invented test bench, rendered with exact known
-//! truth (see docs/scenes.md); the tolerances are issue 3's accuracy targets, loosened where a
+//! truth (see docs/scenes.md); the tolerances are the project's accuracy targets, loosened where a
 //! lossy codec or the realism knobs make that necessary (stated beside each).
 //!
 //! Each run's trace is also hashed and compared with `trace_hashes.json` beside this file:

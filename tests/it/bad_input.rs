@@ -1,4 +1,4 @@
-//! The bad-input catalogue (issue 6), through the real binary. Every case ends in exit 1 with
+//! The bad-input catalogue, through the real binary. Every case ends in exit 1 with
 //! one stderr line that names the file, field or flag, or, where the analysis can go on, in
 //! exit 0 with a typed warning; and no output ever contains "panicked". Each case is tested
 //! once: the cases already covered elsewhere are listed here with the test that covers them.
@@ -37,7 +37,7 @@
 //! | hostile rule 8: strict parsing | `hostile.rs::rule8_strict_parsing` |
 //! | hostile rule 9: one-line reasons (negative numbers, raw MJPEG) | `hostile.rs::rule9_one_line_reasons` |
 //!
-//! The output-safety checks of issue 6 (results never overwritten without `--force`, inputs
+//! The output-safety checks (results never overwritten without `--force`, inputs
 //! never written) are at the end of this file. Clips here are the project's own rendered
 //! fixtures (`fixtures/`, invented scenes with known truth) or frames made in the test.
 

@@ -1,5 +1,5 @@
 //! `twistmark bar` and `twistmark calibrate` run as the real binary: numbers against the
-//! reference check values (facts.md §1.3, §3, §6, each source named beside its value), the
+//! reference check values (each source named beside its value), the
 //! interface keys, calibration written into a rig, and one-line errors for bad input.
 
 use std::path::{Path, PathBuf};
@@ -11,7 +11,7 @@ use serde_json::Value;
 /// 0.1 %: the tolerance the reference checks ask for.
 const TOL: f64 = 1e-3;
 
-/// The interface's example bar replaced by the reference bar C5 (facts.md §1.3): 25 mm of
+/// The interface's example bar replaced by the reference bar C5 (θ = T·L/(G·J) in series, Beer & Johnston, *Mechanics of Materials*, ch. 3): 25 mm of
 /// ½-in square, 150 mm of 16 mm round, 30 mm of 19 mm hex; G = 79.3 GPa.
 const C5_RIG: &str = r#"{
   "rig_version": 1,
@@ -109,7 +109,7 @@ fn bar_json_matches_c5_check_values() {
     }
     assert!((num(&secs[1], "compliance_share") - 0.725).abs() < 5e-4);
     // 150 N·m in lbf·ft from the exact foot and pound-force: 1 N·m = 0.737 562 149 277 265
-    // lbf·ft (NIST SP 811, facts.md §3).
+    // lbf·ft (NIST SP 811, 2008, Appendix B.9).
     assert_relative_eq!(
         num(&v, "rating_lbf_ft"),
         150.0 * 0.737_562_149_277_265,
@@ -155,7 +155,7 @@ fn interface_example_rig_still_parses() {
 
 #[test]
 fn springback_from_drive_parts() {
-    // facts.md §6 (a, computed): a disk of 0.5 kg, r = 20 mm has I = 1.000e-4 kg·m²; on C1's
+    // Computed (I = ½·m·r², f_n = (1/2π)·√(k/I), theory-of-machines texts): a disk of 0.5 kg, r = 20 mm has I = 1.000e-4 kg·m²; on C1's
     // k = 2551.07 N·m/rad (d = 16 mm, L = 200 mm) f_n = 803.86 Hz, period 1.244 ms.
     let rig = C5_RIG.replace(
         r#""sections": [ {"shape": "square", "length_mm": 25,  "side_mm": 12.7},
@@ -389,7 +389,7 @@ fn calibrate_writes_k_that_bar_then_uses() {
 fn calibrate_reads_csv_and_reports_residuals() {
     let dir = tempfile::tempdir().unwrap();
     let rig = write(dir.path(), "rig.json", C5_RIG);
-    // 100 lbf·ft = 135.5818 N·m (NIST SP 811, facts.md §3); twists made with k = 45 N·m/deg
+    // 100 lbf·ft = 135.5818 N·m (NIST SP 811, 2008, Appendix B.9); twists made with k = 45 N·m/deg
     // plus ±0.01° of invented noise.
     let csv = write(
         dir.path(),

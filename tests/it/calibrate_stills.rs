@@ -173,7 +173,7 @@ fn stills_recover_the_bench_stiffness_and_bar_uses_it() {
     let lbf = dir.path().join("lbf.csv");
     let mut text = String::from("image,torque_lbf_ft\n");
     for t in &TORQUES_NM[1..] {
-        // 1 lbf·ft = 1.3558179483314004 N·m (NIST SP 811, facts.md §3).
+        // 1 lbf·ft = 1.3558179483314004 N·m (NIST SP 811, 2008, Appendix B.9).
         text.push_str(&format!(
             "photos/t{:03}.png,{}\n",
             *t as u32,

@@ -4,14 +4,14 @@
 //! several tilts in memory and measured with the exact and the drafted rig.
 //!
 //! All clips are synthetic scenes of the project's invented test bench, rendered with exact
-//! known truth (docs/scenes.md). Targets are issue 7's: pivots within 3 px of the truth; the
+//! known truth (docs/scenes.md). The project's set-up targets: pivots within 3 px of the truth; the
 //! angle RMS with the drafted rig within 1.5 × that with the true rig; oblique discs up to a
 //! 60° tilt (b/a = 0.5) at ≤ 0.3° RMS on lossless clips.
 //!
 //! Stated loosening: the RMS comparison allows 1.5 × (true-rig RMS) + 0.015°. On these clips
 //! the true rig's RMS is 0.002–0.05°, and a ratio of such small numbers swings by tens of per
 //! cent with a 0.01 px change of pivot (measured while building); 0.015° is well below the
-//! 0.1° lossless accuracy target of issue 3.
+//! 0.1° lossless accuracy target of the project.
 
 use std::path::{Path, PathBuf};
 

@@ -2,7 +2,7 @@
 //! (`twistmark::synth`, the project's own invented test bench: a check with known truth).
 //! The truth uses exactly the report interface's definitions, so fields compare one to one.
 //!
-//! Targets from issue 3: no missed and no extra blows; per-blow nut advance mean absolute
+//! The project's accuracy targets: no missed and no extra blows; per-blow nut advance mean absolute
 //! error ≤ 0.10°; peak torque within 3 % of the truth for the rig's stiffness.
 
 use rand::{Rng, SeedableRng};
