@@ -63,7 +63,8 @@ pub fn read_manifest(path: &Path) -> Result<Manifest> {
             meta.len()
         )));
     }
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    // Through the text cap too: a device or pipe reports no length above.
+    let text = crate::limits::read_text(path, "manifest")?;
     let text = text.strip_prefix('\u{feff}').unwrap_or(&text);
     let (mut rdr, headers) = crate::mechanics::csv_with_headers(text).map_err(bad)?;
     let mut clip_col = None;

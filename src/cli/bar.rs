@@ -41,7 +41,7 @@ fn load_bar_only(path: &Path) -> Result<BarSpec> {
         Ok((_, bar)) => return Ok(bar),
         Err(e) => e,
     };
-    let Ok(text) = std::fs::read_to_string(path) else {
+    let Ok(text) = twistmark::limits::read_text(path, "rig") else {
         return Err(rig_error);
     };
     let Ok(serde_json::Value::Object(doc)) = serde_json::from_str::<serde_json::Value>(&text)

@@ -147,13 +147,13 @@ fn rule1_no_output_is_an_input() {
     std::fs::write(&csv, "torque_nm,twist_deg\n50,1.0\n100,2.1\n150,3.0\n").unwrap();
     let before = snapshot(dir.path());
 
-    // locate --out pointed at a still of the clip.
-    let r = run(args(&[&"locate", &clip, &"--out", &frames[0]]));
+    // find-marks --out pointed at a still of the clip.
+    let r = run(args(&[&"find-marks", &clip, &"--out", &frames[0]]));
     one_line_error(&r, &["--out", "f_00000.png"]);
     // --preview pointed at the clip's first frame.
     let new_rig = dir.path().join("draft.json");
     let r = run(args(&[
-        &"locate",
+        &"find-marks",
         &clip,
         &"--out",
         &new_rig,
