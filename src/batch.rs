@@ -969,8 +969,7 @@ fn comparison(outcomes: &[ClipOutcome]) -> Vec<report::plot::ComparisonClip> {
             peak_torque_nm: o.row.peak_torque_nm,
             last_advancing_torque_nm: o.row.last_advancing_torque_nm,
             blow_rate_per_min: o.row.blow_rate_per_min,
-            // Hook: the summary's holding torque, once the mechanics stage writes it.
-            holding_torque_nm: None,
+            holding_torque_nm: o.row.holding_torque_nm,
             group: (!o.clip.tags.is_empty()).then(|| {
                 o.clip
                     .tags

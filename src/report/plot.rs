@@ -777,8 +777,8 @@ pub struct ComparisonClip {
     /// Blow rate, blows per minute.
     pub blow_rate_per_min: Option<f64>,
     /// The torque the joint holds after the last blow that turned the nut, N·m (the
-    /// summary's `holding_torque_nm`; `None` until the mechanics stage provides it, and then
-    /// plotted beside the peak torque against the blow rate).
+    /// summary's `holding_torque_nm`; `None` when it could not be estimated), plotted beside
+    /// the peak torque against the blow rate.
     pub holding_torque_nm: Option<f64>,
     /// The clip's group: its manifest tag values joined (`air / 6 bar`); clips of one group
     /// share a colour in the torque-against-blow-rate panel.

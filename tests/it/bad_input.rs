@@ -43,59 +43,7 @@
 
 use std::path::{Path, PathBuf};
 
-use assert_cmd::Command;
-
-/// What one run of the binary gave.
-struct Out {
-    code: i32,
-    stdout: String,
-    stderr: String,
-}
-
-/// Runs `twistmark` with `args`; fails the test if any output mentions a panic.
-fn run<I, S>(args: I) -> Out
-where
-    I: IntoIterator<Item = S>,
-    S: AsRef<std::ffi::OsStr>,
-{
-    let o = Command::cargo_bin("twistmark")
-        .unwrap()
-        .args(args)
-        .output()
-        .unwrap();
-    let out = Out {
-        code: o.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&o.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&o.stderr).into_owned(),
-    };
-    assert!(
-        !out.stdout.contains("panicked") && !out.stderr.contains("panicked"),
-        "panic: {}{}",
-        out.stdout,
-        out.stderr
-    );
-    out
-}
-
-/// Exit 1 with exactly one stderr line holding every needle.
-fn one_line_error(out: &Out, needles: &[&str]) {
-    assert_eq!(out.code, 1, "exit code; stderr: {}", out.stderr);
-    let lines: Vec<&str> = out
-        .stderr
-        .lines()
-        .filter(|l| !l.trim().is_empty())
-        .collect();
-    assert_eq!(lines.len(), 1, "one line expected, got: {}", out.stderr);
-    for n in needles {
-        assert!(lines[0].contains(n), "'{n}' missing from: {}", lines[0]);
-    }
-}
-
-fn fixture(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("fixtures")
-        .join(name)
-}
+use super::common::{Out, fixture, one_line_error, run};
 
 /// Copies the first `n` stills of a fixture into `dir` (all of them when `n` is None).
 fn copy_frames(name: &str, dir: &Path, n: Option<usize>) -> Vec<PathBuf> {

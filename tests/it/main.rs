@@ -12,6 +12,7 @@ mod bad_input_decode;
 mod bar;
 mod batch;
 mod calibrate_stills;
+mod common;
 mod decode;
 mod find_marks;
 mod find_marks_layouts;
