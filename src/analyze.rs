@@ -526,7 +526,7 @@ mod tests {
 
     #[test]
     fn a_wound_take_with_a_rest_still_reads_the_absolute_twist() {
-        // Issue 17's check: a take that starts wound, with a still of the bar at rest,
+        // The twist-zero check: a take that starts wound, with a still of the bar at rest,
         // gives the absolute twist within 0.2° RMS and every blow's torque within 3 %.
         let (sc, truth, frames) = wound_take();
         assert!(

@@ -1,5 +1,6 @@
-//! Bounds on every resource a user's input controls: frame area, text file size, worker
-//! threads. One place, so that every reader applies the same caps (issue 18, rule 7).
+//! Bounds on every resource a user's input controls: frame area, text file size, worker threads.
+//! One place, so that every reader applies the same caps (docs/conventions.md, "Plausible ranges
+//! and limits").
 //!
 //! The caps are far above anything a camera, a rig or a calibration table needs, and far
 //! below what would exhaust a workstation's memory. They are *common practice* sizes, not

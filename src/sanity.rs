@@ -1,6 +1,6 @@
-//! Physics sanity checks (issue 18, rule 6): inputs outside the range any real bar, camera
-//! or run could have are refused, and results that contradict how an impact wrench tightens
-//! a nut are withheld with a warning instead of printed as numbers.
+//! Physics sanity checks (docs/conventions.md, "Plausible ranges and limits"): inputs outside the
+//! range any real bar, camera or run could have are refused, and results that contradict how an
+//! impact wrench tightens a nut are withheld with a warning instead of printed as numbers.
 //!
 //! The ranges are stated in docs/conventions.md ("Plausible ranges"). They are wide on
 //! purpose: they catch a unit slip or a typo (a diameter of 1e-300 mm, a stiffness of

@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Batch benchmark (issue 5): analyses every bundled fixture clip (rendered scenes of the invented
+# Batch benchmark: analyses every bundled fixture clip (rendered scenes of the invented
 # test bench) once one by one and once as one `twistmark batch` run, in the same run of this
 # script, and prints the wall times and their ratio. Never fails on timing; it only reports.
 #

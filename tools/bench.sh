@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Speed and memory benchmark of issue 6 (benches/pipeline.rs): decode alone vs the full
+# Speed and memory benchmark (benches/pipeline.rs): decode alone vs the full
 # `twistmark analyze` on the same rendered 1280x720 H.264 and FFV1 clips, and peak RSS for a
 # short clip and one ten times longer. Prints the ratios and the targets; never fails on timing.
 #

@@ -722,7 +722,7 @@ mod tests {
                 let q = y.peak_torque.unwrap().nm();
                 assert!((p - q).abs() < 0.03 * q, "{period}: peak {p} vs {q}");
             }
-            // Issue 3's target: nut advance mean absolute error ≤ 0.10°.
+            // The project's target: nut advance mean absolute error ≤ 0.10°.
             let mae = abs_err.iter().sum::<f64>() / abs_err.len() as f64;
             assert!(mae <= 0.10, "{period}: nut advance MAE {mae}");
         }

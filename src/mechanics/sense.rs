@@ -1,4 +1,5 @@
-//! Sense checks on the bar and on the twist at rest (issue 17, step 6).
+//! Sense checks on the bar and on the twist at rest (ranges: *common practice*, below; the
+//! shoulder note: docs/mechanics.md, "The shank-to-hex shoulder").
 //!
 //! In: the rig's bar, the absolute twist series and the blows. Out: warnings.
 //!

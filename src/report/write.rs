@@ -1,4 +1,4 @@
-//! Safe output: the one way results reach the disk (issue 18, rules 1–3).
+//! Safe output: the one way results reach the disk (docs/conventions.md, "Output safety").
 //!
 //! - [`check_not_input`] and [`check_folder_not_input`]: no output path is an input (a clip,
 //!   any still in a stills folder, a rig, a CSV), whichever command writes it.

@@ -40,14 +40,14 @@ struct Tol {
     peak_torque_rel: f64,
 }
 
-/// Issue 3: ≤ 0.10° RMS on lossless clips and stills, ≤ 0.10° nut-advance MAE, peak torque
+/// Target: ≤ 0.10° RMS on lossless clips and stills, ≤ 0.10° nut-advance MAE, peak torque
 /// within 3 %.
 const LOSSLESS: Tol = Tol {
     angle_rms_deg: 0.10,
     nut_advance_mae_deg: 0.10,
     peak_torque_rel: 0.03,
 };
-/// Issue 3: ≤ 0.20° RMS on compressed clips with noise, flicker or shake; torque within 3 %.
+/// Target: ≤ 0.20° RMS on compressed clips with noise, flicker or shake; torque within 3 %.
 const COMPRESSED: Tol = Tol {
     angle_rms_deg: 0.20,
     nut_advance_mae_deg: 0.10,

@@ -3,7 +3,7 @@
 //! look like short stripes (src/synth/layout.rs). These are rendered scenes of the project's
 //! invented bench with exact known truth, not real footage.
 //!
-//! Done means (issue 16): on every held-out layout the drive and nut pivots are drafted within
+//! Done means: on every held-out layout the drive and nut pivots are drafted within
 //! 3 px with the right roles, and the angle RMS with the drafted rig is within 1.5 × the true
 //! rig's RMS + 0.02°.
 //!

@@ -4,7 +4,7 @@
 //! with the scene's exact rig) and scored against the renderer's truth. These are rendered
 //! clips with known truth, not real footage; they are checks on scenes nobody tuned on.
 //!
-//! Targets (issue 15): per-frame RMS ≤ 0.10° on clean lossless scenes, ≤ 0.20° on compressed,
+//! Targets: per-frame RMS ≤ 0.10° on clean lossless scenes, ≤ 0.20° on compressed,
 //! noisy, flickering, blurred or shaking ones; blows found with precision = recall = 1; peak
 //! torque within ±3 %. A scene whose marks cannot be measured must fail with a reason (or
 //! report null), never print a wrong torque: a refusal counts against the scene, a confident
@@ -321,7 +321,7 @@ fn regenerate_held_out_table() {
 /// CI: the first four held-out scenes, two blows each, must meet every target.
 #[cfg(feature = "ffmpeg")]
 #[test]
-#[ignore = "not met yet (issue 15 open): seed 3303341309 (concentric wheel fixed mark, shake) reads 0.48° RMS; see docs/accuracy.md"]
+#[ignore = "not met yet: seed 3303341309 (concentric wheel fixed mark, shake) reads 0.48° RMS; see docs/accuracy.md"]
 fn held_out_seeds_at_small_size() {
     let scores: Vec<Score> = seeds()
         .into_iter()
@@ -422,7 +422,7 @@ fn hex_nut_face_with_washer_and_annulus_across_the_flats() {
 
 #[cfg(feature = "ffmpeg")]
 #[test]
-#[ignore = "not met yet (issue 15 open): 1.14° RMS, blow P/R 0.5 (release build, 3 December 2026): the shake registration does not hold on a wheel-face fixed mark"]
+#[ignore = "not met yet: 1.14° RMS, blow P/R 0.5 (release build, 3 December 2026): the shake registration does not hold on a wheel-face fixed mark"]
 fn fixed_mark_on_a_wheel_concentric_with_the_nut_removes_shake() {
     // The randomiser's draw 0 for the fixed mark is the concentric wheel; find a seed with it.
     let seed = (900_100..900_300)
@@ -442,7 +442,7 @@ fn fixed_mark_on_a_wheel_concentric_with_the_nut_removes_shake() {
 
 #[cfg(feature = "ffmpeg")]
 #[test]
-#[ignore = "not met yet (issue 15 open): 0.237° RMS against 0.20° (release build, 3 December 2026)"]
+#[ignore = "not met yet: 0.237° RMS against 0.20° (release build, 3 December 2026)"]
 fn lamp_flicker_at_120_hz_on_h264() {
     let mut r = bare(900_003);
     r.scenario.effects.flicker = Some(twistmark::synth::Flicker {

@@ -1,4 +1,4 @@
-//! The torque the joint got (issue 17): the real `twistmark analyze` binary on the bundled
+//! The torque the joint got: the real `twistmark analyze` binary on the bundled
 //! fixtures, its holding torque compared with the joint torque the renderer held at the end
 //! of the clip (`truth.json` `model.joint_torque_end_nm`). These are synthetic clips of the
 //! project's invented bench with exact known truth (docs/scenes.md), a check of the method,
@@ -36,7 +36,7 @@ fn run(fixture: &str, clip: &str) -> (Value, Value, String) {
     )
 }
 
-/// Issue 17: within 3 % of the joint's true holding torque, and the 95 % interval holds it.
+/// Target: within 3 % of the joint's true holding torque, and the 95 % interval holds it.
 #[test]
 fn holding_torque_is_within_three_percent_on_the_fixtures() {
     for (fixture, clip) in [

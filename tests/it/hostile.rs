@@ -1,6 +1,7 @@
-//! The hostile-user rules (issue 18), through the real binary: one test per rule, each with
-//! the cases a hostile pass found for that rule. Clips are the project's own rendered
-//! fixtures (`fixtures/`, invented scenes) or files made in the test.
+//! The hostile-user rules (docs/conventions.md, "Plausible ranges and limits" and "Output safety"),
+//! through the real binary: one test per rule, each with the cases a hostile pass found for that
+//! rule. Clips are the project's own rendered fixtures (`fixtures/`, invented scenes) or files made
+//! in the test.
 //!
 //! | rule | test |
 //! |---|---|

@@ -1,6 +1,6 @@
 //! Side-view marks (`"kind": "side"`): a bar with stripes painted along it, seen from the side,
 //! rendered with exact truth by the project's own side-view renderer (synthetic clips of our
-//! invented bench) and measured by the tracker. Issue 7's target: angle RMS ≤ 0.5° within
+//! invented bench) and measured by the tracker. The side-view target: angle RMS ≤ 0.5° within
 //! ±60° of facing the camera, with one and with several stripes; near the silhouette a loss
 //! (None and a warning), never a wrong value.
 

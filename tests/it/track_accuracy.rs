@@ -423,7 +423,7 @@ fn check(case: Case) {
     );
 }
 
-// Quick checks: short clips, the issue-3 bounds.
+// Quick checks: short clips, the first tracker's bounds.
 
 #[test]
 fn clean_slow_tool_stills_within_target() {
@@ -452,7 +452,7 @@ fn fast_jumps_at_1000_fps_are_followed() {
     assert!(s.drive_rms <= 0.10 && s.nut_rms <= 0.10, "{s:?}");
 }
 
-// Small-size versions of table rows that had no quick test (issue 15): CI runs these.
+// Small-size versions of table rows that had no quick test: CI runs these.
 
 #[test]
 fn white_and_orange_paint_within_target() {
