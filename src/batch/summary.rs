@@ -71,21 +71,11 @@ pub(super) fn ok_row(
 pub(super) fn median_residual_deg(analysis: &crate::Analysis) -> Option<f64> {
     let n = analysis.blows.len();
     let take = if n > 1 { n - 1 } else { n };
-    let mut v: Vec<f64> = analysis.blows[..take]
+    let v: Vec<f64> = analysis.blows[..take]
         .iter()
         .filter_map(|b| b.residual_twist.map(|a| a.deg()))
-        .filter(|x| x.is_finite())
         .collect();
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let m = v.len() / 2;
-    Some(if v.len() % 2 == 1 {
-        v[m]
-    } else {
-        0.5 * (v[m - 1] + v[m])
-    })
+    crate::stats::median(&v)
 }
 
 pub(super) fn one_line(s: &str) -> String {

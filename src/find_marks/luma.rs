@@ -11,6 +11,16 @@ pub(super) struct Img {
 }
 
 impl Img {
+    /// An image whose value at pixel (x, y) is `f(x, y)`: test pictures drawn from formulas.
+    #[cfg(test)]
+    pub(super) fn from_fn(w: usize, h: usize, f: impl Fn(f64, f64) -> f32) -> Img {
+        let v = (0..h)
+            .flat_map(|y| (0..w).map(move |x| (x, y)))
+            .map(|(x, y)| f(x as f64, y as f64))
+            .collect();
+        Img { w, h, v }
+    }
+
     /// The frame, smoothed by a 3×3 box (noise down by 3 before the ridge test).
     pub(super) fn from_frame(f: &Frame) -> Img {
         let (w, h) = (f.width as usize, f.height as usize);

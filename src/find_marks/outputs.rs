@@ -119,48 +119,22 @@ pub fn check_outputs(clip: &Path, outputs: &[(&str, &Path)], force: bool) -> Res
     Ok(())
 }
 
-/// Writes `bytes` to `path` atomically: a temporary file in the same folder, then a rename
-/// (with `force`) or a hard link that fails when `path` appeared meanwhile (without it).
+/// Writes `bytes` to `path` atomically: a temporary file created exclusively in the same
+/// folder, then a rename (with `force`) or a link that fails when `path` exists, even when it
+/// appeared meanwhile (without it). The one atomic writer is `report::write`'s.
 ///
 /// # Errors
-/// [`Error::Output`] naming `path` when the file cannot be written, or exists and `force` is
-/// false.
+/// [`Error::Output`] naming `path` when it exists and `force` is false; [`Error::Io`] when
+/// the file cannot be written.
 pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<()> {
-    let name = path
-        .file_name()
-        .ok_or_else(|| refuse(path, "not a file name; give a file name"))?;
-    let dir = match path.parent() {
-        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let tmp = dir.join(format!(
-        ".{}.{}.tmp",
-        name.to_string_lossy(),
-        std::process::id()
-    ));
-    let io = |e: std::io::Error| refuse(path, format!("could not write: {e}"));
-    std::fs::write(&tmp, bytes).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        io(e)
-    })?;
-    let done = if force {
-        std::fs::rename(&tmp, path)
+    if path.file_name().is_none() {
+        return Err(refuse(path, "not a file name; give a file name"));
+    }
+    if force {
+        crate::report::write_file(path, bytes)
     } else {
-        let r = std::fs::hard_link(&tmp, path);
-        let _ = std::fs::remove_file(&tmp);
-        r
-    };
-    done.map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        if e.kind() == std::io::ErrorKind::AlreadyExists {
-            refuse(
-                path,
-                "the file appeared while finding marks; pass --force to replace it",
-            )
-        } else {
-            io(e)
-        }
-    })
+        crate::report::write_new_atomic(path, bytes)
+    }
 }
 
 #[cfg(test)]

@@ -247,13 +247,7 @@ mod tests {
     use super::*;
 
     fn img(w: usize, h: usize, f: impl Fn(f64, f64) -> f32) -> Img {
-        let mut v = Vec::with_capacity(w * h);
-        for y in 0..h {
-            for x in 0..w {
-                v.push(f(x as f64, y as f64));
-            }
-        }
-        Img { w, h, v }
+        Img::from_fn(w, h, f)
     }
 
     #[test]

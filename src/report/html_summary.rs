@@ -35,21 +35,6 @@ fn tag<'a>(row: &'a Value, name: &str) -> &'a str {
     row["tags"][name].as_str().unwrap_or("")
 }
 
-/// Median of the known values.
-fn median(mut v: Vec<f64>) -> Option<f64> {
-    v.retain(|x| x.is_finite());
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let m = v.len() / 2;
-    Some(if v.len() % 2 == 1 {
-        v[m]
-    } else {
-        0.5 * (v[m - 1] + v[m])
-    })
-}
-
 /// Plain words for the measured spring-back verdict.
 fn verdict_words(v: &Value) -> &'static str {
     match v.as_str() {
@@ -133,7 +118,10 @@ fn groups_table(rows: &[Value], tags: &[String], units: TorqueUnit) -> Markup {
             None => groups.push((key, vec![r])),
         }
     }
-    let med = |g: &[&Value], k: &str| median(g.iter().filter_map(|r| r[k].as_f64()).collect());
+    let med = |g: &[&Value], k: &str| {
+        let v: Vec<f64> = g.iter().filter_map(|r| r[k].as_f64()).collect();
+        crate::stats::median(&v)
+    };
     html! {
         table.groups {
             thead {

@@ -7,12 +7,11 @@
 //! run never leaves a half-written file under a final name (a rename within one folder is
 //! atomic on POSIX file systems and replaces the target on Windows).
 
-use std::fs;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use crate::analyze::Analysis;
 use crate::error::{Error, Result};
+pub(crate) use write::write_atomic;
 
 pub mod overlay;
 pub mod plot;
@@ -20,7 +19,9 @@ pub(crate) mod rulers;
 pub mod write;
 
 pub use plot::{write_comparison, write_plots};
-pub use write::{check_folder_not_input, check_not_input, lock_output, write_all};
+pub use write::{
+    check_folder_not_input, check_not_input, lock_output, write_all, write_file, write_new_atomic,
+};
 
 mod csv;
 mod display;
@@ -60,16 +61,7 @@ pub fn write_outputs_with(
     dir: &Path,
     opts: &ReportOptions,
 ) -> Result<Vec<PathBuf>> {
-    if dir.exists() && !dir.is_dir() {
-        return Err(Error::Output {
-            path: dir.to_path_buf(),
-            reason: "is a file, not a folder: give --out a folder name".into(),
-        });
-    }
-    fs::create_dir_all(dir).map_err(|e| Error::Output {
-        path: dir.to_path_buf(),
-        reason: format!("cannot create the output folder ({e}): choose another --out"),
-    })?;
+    write::ensure_folder(dir)?;
     let report = json::report(analysis);
     let mut text = serde_json::to_string_pretty(&report).map_err(|e| Error::Output {
         path: dir.join("report.json"),
@@ -147,7 +139,7 @@ pub fn check_output_folder(dir: &Path, marker: &str, force: bool) -> Result<()> 
     Ok(())
 }
 
-/// Encodes `img` as PNG in memory and writes it with [`write_atomic`].
+/// Encodes `img` as PNG in memory and writes it with [`write::write_atomic`].
 ///
 /// # Errors
 /// [`crate::Error::Output`] when encoding fails, [`crate::Error::Io`] naming the file.
@@ -164,47 +156,6 @@ where
             reason: format!("could not encode the PNG: {e}"),
         })?;
     write_atomic(path, &png)
-}
-
-/// Writes `bytes` to `path` through a temporary file in the same folder and a rename. The
-/// temporary file has a random name and is created exclusively (O_EXCL: an existing file or
-/// a symbolic link planted at that name is never opened), by the `tempfile` crate; it is
-/// removed if anything fails. The rename replaces a symbolic link at `path` rather than
-/// following it.
-///
-/// # Errors
-/// [`crate::Error::Io`] naming the file.
-pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "output".into());
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p,
-        _ => Path::new("."),
-    };
-    let mut builder = tempfile::Builder::new();
-    let prefix = format!(".{name}.");
-    builder.prefix(&prefix).suffix(".partial");
-    #[cfg(unix)]
-    {
-        // As a plain create would: rw for all, less the user's umask (tempfile's default is
-        // owner-only, which would hide results from the rest of a lab's group).
-        use std::os::unix::fs::PermissionsExt;
-        builder.permissions(fs::Permissions::from_mode(0o666));
-    }
-    let io = |p: &Path| {
-        let p = p.to_path_buf();
-        move |cause| Error::Io { path: p, cause }
-    };
-    let mut tmp = builder.tempfile_in(dir).map_err(io(path))?;
-    tmp.write_all(bytes).map_err(io(tmp.path()))?;
-    tmp.as_file().sync_all().map_err(io(tmp.path()))?;
-    tmp.persist(path).map_err(|e| Error::Io {
-        path: path.to_path_buf(),
-        cause: e.error,
-    })?;
-    Ok(())
 }
 
 /// A number for a table or CSV cell, with `decimals` places; empty when unknown or not
@@ -226,6 +177,7 @@ pub(crate) mod tests {
     use crate::synth::{Scenario, simulate};
     use crate::track::Trace;
     use crate::units::{Angle, TimeBase};
+    use std::fs;
 
     /// An analysis of the `fast-tool` synthetic scene's exact angles (the project's invented
     /// bench), with the drive lost on a few frames and, optionally, without a bar.

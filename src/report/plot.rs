@@ -11,7 +11,7 @@
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
-use plotters::chart::MeshStyle;
+use plotters::chart::{DualCoordChartContext, MeshStyle};
 use plotters::coord::Shift;
 use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
@@ -388,6 +388,42 @@ where
     Ok(())
 }
 
+/// A twist chart's axes in the house style: time along the bottom (`x_desc`), twist on the
+/// left and, with a stiffness `k` (N·m/deg), torque = k × twist on the right, labelled in
+/// `unit` on the twist axis's own grid lines.
+fn twist_torque_axes<DB: DrawingBackend>(
+    chart: &mut DualCoordChartContext<'_, DB, TwistCoord, TwistCoord>,
+    x_desc: &str,
+    k: Option<f64>,
+    unit: TorqueUnit,
+) -> PlotResult
+where
+    DB::ErrorType: 'static,
+{
+    chart
+        .configure_mesh()
+        .x_desc(x_desc)
+        .y_desc("twist = drive − nut (°)")
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .house_style()
+        .draw()?;
+    if let Some(k) = k {
+        let k_unit = unit.of_nm(k);
+        chart
+            .configure_secondary_axes()
+            .y_desc(format!("torque ({}, model)", unit.label()))
+            .y_label_formatter(&|v| tick_sig(*v * k_unit, 3))
+            .label_style((FONT, 18))
+            .axis_desc_style((FONT, 22))
+            .draw()?;
+    }
+    Ok(())
+}
+
+/// The coordinates of a twist chart: f64 time against f64 twist (or torque on the right).
+type TwistCoord = Cartesian2d<RangedCoordf64, RangedCoordf64>;
+
 /// The house style of a chart's mesh: label and axis fonts, a light grid, no bold grid lines.
 trait HouseStyle {
     fn house_style(&mut self) -> &mut Self;
@@ -602,24 +638,7 @@ impl Plot for TwistPlot<'_> {
             // The torque axis shares the twist axis's coordinates and ticks, labelled with
             // stiffness × twist, so each torque label sits on a twist grid line.
             .set_secondary_coord(x0..x1, y0..y1);
-        chart
-            .configure_mesh()
-            .x_desc(d.axis.label())
-            .y_desc("twist = drive − nut (°)")
-            .x_label_formatter(&|v| tick(*v))
-            .y_label_formatter(&|v| tick(*v))
-            .house_style()
-            .draw()?;
-        if let Some(k) = k {
-            let k_unit = d.unit.of_nm(k);
-            chart
-                .configure_secondary_axes()
-                .y_desc(format!("torque ({}, model)", d.unit.label()))
-                .y_label_formatter(&|v| tick_sig(*v * k_unit, 3))
-                .label_style((FONT, 18))
-                .axis_desc_style((FONT, 22))
-                .draw()?;
-        }
+        twist_torque_axes(&mut chart, &d.axis.label(), k, d.unit)?;
         if !d.onsets.is_empty() {
             chart.draw_series(onset_lines(&d.onsets, y0, y1))?;
             chart.draw_series(onset_numbers(

@@ -14,6 +14,7 @@
 //! (O_EXCL, never through a symbolic link) inside the output folder, then renamed into place.
 
 use std::fs;
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use crate::analyze::Analysis;
@@ -176,7 +177,82 @@ fn refusal(out: &Path, flag: &str, input: &Path, how: &str) -> Error {
 /// # Errors
 /// [`Error::Io`] naming the file.
 pub fn write_file(path: &Path, bytes: &[u8]) -> Result<()> {
-    super::write_atomic(path, bytes)
+    write_atomic(path, bytes)
+}
+
+/// Writes `bytes` to `path` through a temporary file in the same folder and a rename. The
+/// temporary file has a random name and is created exclusively (O_EXCL: an existing file or
+/// a symbolic link planted at that name is never opened), by the `tempfile` crate; it is
+/// removed if anything fails. The rename replaces a symbolic link at `path` rather than
+/// following it.
+///
+/// # Errors
+/// [`crate::Error::Io`] naming the file.
+pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let tmp = filled_temp(path, bytes)?;
+    tmp.persist(path).map_err(|e| Error::Io {
+        path: path.to_path_buf(),
+        cause: e.error,
+    })?;
+    Ok(())
+}
+
+/// As [`write_atomic`], but never replaces anything: the finished temporary file is linked to
+/// `path` with a call that fails when `path` exists, even when it appeared while the bytes
+/// were written.
+///
+/// # Errors
+/// [`Error::Output`] naming `path` when it exists (saying to pass `--force`);
+/// [`crate::Error::Io`] when the file cannot be written.
+pub fn write_new_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let tmp = filled_temp(path, bytes)?;
+    tmp.persist_noclobber(path).map_err(|e| {
+        if e.error.kind() == std::io::ErrorKind::AlreadyExists {
+            Error::Output {
+                path: path.to_path_buf(),
+                reason: "the file exists (it may have appeared meanwhile); pass --force to \
+                         replace it, or write elsewhere"
+                    .into(),
+            }
+        } else {
+            Error::Io {
+                path: path.to_path_buf(),
+                cause: e.error,
+            }
+        }
+    })?;
+    Ok(())
+}
+
+/// A temporary file beside `path`, created exclusively with a random name, holding `bytes`
+/// and synced to the disk; removed when dropped unless persisted.
+fn filled_temp(path: &Path, bytes: &[u8]) -> Result<tempfile::NamedTempFile> {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "output".into());
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    let mut builder = tempfile::Builder::new();
+    let prefix = format!(".{name}.");
+    builder.prefix(&prefix).suffix(".partial");
+    #[cfg(unix)]
+    {
+        // As a plain create would: rw for all, less the user's umask (tempfile's default is
+        // owner-only, which would hide results from the rest of a lab's group).
+        use std::os::unix::fs::PermissionsExt;
+        builder.permissions(fs::Permissions::from_mode(0o666));
+    }
+    let io = |p: &Path| {
+        let p = p.to_path_buf();
+        move |cause| Error::Io { path: p, cause }
+    };
+    let mut tmp = builder.tempfile_in(dir).map_err(io(path))?;
+    tmp.write_all(bytes).map_err(io(tmp.path()))?;
+    tmp.as_file().sync_all().map_err(io(tmp.path()))?;
+    Ok(tmp)
 }
 
 /// An advisory lock on an output folder, held until dropped.
@@ -216,7 +292,7 @@ pub fn lock_output(dir: &Path) -> Result<OutputLock> {
 }
 
 /// Creates `dir` (and its parents) unless it exists; refuses a file in its place.
-fn ensure_folder(dir: &Path) -> Result<()> {
+pub(crate) fn ensure_folder(dir: &Path) -> Result<()> {
     if dir.exists() && !dir.is_dir() {
         return Err(Error::Output {
             path: dir.to_path_buf(),

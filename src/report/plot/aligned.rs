@@ -8,8 +8,8 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use super::{
-    ClipPlotData, FONT, HouseStyle, Plot, PlotResult, STALLED_COLOR, TWIST_COLOR, draw_legend,
-    note_center, span, tick, tick_sig, torque_note,
+    ClipPlotData, FONT, Plot, PlotResult, STALLED_COLOR, TWIST_COLOR, draw_legend, note_center,
+    span, torque_note, twist_torque_axes,
 };
 
 pub(super) struct AlignedPlot<'a>(pub(super) &'a ClipPlotData);
@@ -58,24 +58,7 @@ impl Plot for AlignedPlot<'_> {
             .right_y_label_area_size(if k.is_some() { 100 } else { 0 })
             .build_cartesian_2d(0.0..x1, y0..y1)?
             .set_secondary_coord(0.0..x1, y0..y1);
-        chart
-            .configure_mesh()
-            .x_desc("time since blow onset (ms)")
-            .y_desc("twist = drive − nut (°)")
-            .x_label_formatter(&|v| tick(*v))
-            .y_label_formatter(&|v| tick(*v))
-            .house_style()
-            .draw()?;
-        if let Some(k) = k {
-            let k_unit = d.unit.of_nm(k);
-            chart
-                .configure_secondary_axes()
-                .y_desc(format!("torque ({}, model)", d.unit.label()))
-                .y_label_formatter(&|v| tick_sig(*v * k_unit, 3))
-                .label_style((FONT, 18))
-                .axis_desc_style((FONT, 22))
-                .draw()?;
-        }
+        twist_torque_axes(&mut chart, "time since blow onset (ms)", k, d.unit)?;
         let n = d.aligned.len();
         for (j, b) in d.aligned.iter().enumerate() {
             let (index, pts) = (b.index, &b.points);
