@@ -64,7 +64,13 @@ pub fn image_limits() -> image::Limits {
 /// [`Error::Io`] when it cannot be read; [`Error::Input`] when it is not a regular file, is
 /// too large, or is not UTF-8 text.
 pub fn read_text(path: &Path, what: &str) -> Result<String> {
-    let meta = std::fs::metadata(path).map_err(|e| Error::io(path, e))?;
+    let meta = std::fs::metadata(path).map_err(|e| {
+        if e.kind() == std::io::ErrorKind::NotFound {
+            Error::input(path, format!("no such {what} file; check the path"))
+        } else {
+            Error::io(path, e)
+        }
+    })?;
     if meta.is_dir() {
         return Err(Error::input(
             path,

@@ -33,12 +33,46 @@ pub(crate) fn load_bar(path: &Path) -> Result<(Rig, BarSpec)> {
     Ok((rig, bar))
 }
 
-/// The bar for `twistmark bar`: from a whole rig, or from a file that holds only a bar (a
-/// rig with `"bar"` and no `"marks"`, or the bar's object itself, `{"sections": ...}`), since
-/// checking a bar needs no marks.
-fn load_bar_only(path: &Path) -> Result<BarSpec> {
+/// A file that holds a bar: a whole rig, or a file with only a bar (a rig with `"bar"` and no
+/// `"marks"`, or the bar's object itself, `{"sections": ...}`), since checking or
+/// calibrating a bar needs no marks.
+pub(crate) enum BarFile {
+    /// A whole rig.
+    Rig(Box<Rig>),
+    /// A JSON object holding the bar under `"bar"` (`wrapped`) or being the bar itself.
+    BarOnly {
+        doc: serde_json::Map<String, serde_json::Value>,
+        wrapped: bool,
+    },
+}
+
+impl BarFile {
+    /// The file's text with `bar` in place of its bar, in the file's own shape.
+    pub(crate) fn with_bar(self, bar: BarSpec) -> Result<String> {
+        let text = match self {
+            BarFile::Rig(mut rig) => {
+                rig.bar = Some(bar);
+                rig.to_json_pretty()
+            }
+            BarFile::BarOnly { mut doc, wrapped } => {
+                let v = serde_json::to_value(&bar)?;
+                let doc = if wrapped {
+                    doc.insert("bar".into(), v);
+                    serde_json::Value::Object(doc)
+                } else {
+                    v
+                };
+                serde_json::to_string_pretty(&doc)?
+            }
+        };
+        Ok(text + "\n")
+    }
+}
+
+/// Reads a [`BarFile`] and its bar, or a one-line error naming the file and field.
+pub(crate) fn load_bar_file(path: &Path) -> Result<(BarFile, BarSpec)> {
     let rig_error = match load_bar(path) {
-        Ok((_, bar)) => return Ok(bar),
+        Ok((rig, bar)) => return Ok((BarFile::Rig(Box::new(rig)), bar)),
         Err(e) => e,
     };
     let Ok(text) = twistmark::limits::read_text(path, "rig") else {
@@ -70,11 +104,12 @@ fn load_bar_only(path: &Path) -> Result<BarSpec> {
     })?;
     bar.validate()
         .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
-    Ok(bar)
+    let wrapped = !prefix.is_empty();
+    Ok((BarFile::BarOnly { doc, wrapped }, bar))
 }
 
 pub fn run(a: BarArgs) -> Result<ExitCode> {
-    let bar = load_bar_only(&a.rig)?;
+    let (_, bar) = load_bar_file(&a.rig)?;
     let report = BarReport::new(&bar)?;
     let json = report.to_json();
     if a.json {

@@ -83,19 +83,26 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         Some(d) => check_date(d)?,
         None => twistmark::report::ToolJson::today_utc(),
     };
-    let (mut rig, mut bar) = super::bar::load_bar(&a.rig)?;
+    let (file, mut bar) = super::bar::load_bar_file(&a.rig)?;
     let mut pairs: Vec<CalibrationPair> = Vec::new();
     let mut stills: Option<StillsMeasurement> = None;
     // Every file read, so that --out is never one of them (the rig alone may be updated).
     let mut inputs: Vec<PathBuf> = a.csv.iter().chain(&a.stills).cloned().collect();
     inputs.extend(a.reference.iter().cloned());
     if let Some(table) = &a.stills {
+        let super::bar::BarFile::Rig(rig) = &file else {
+            anyhow::bail!(
+                "{}: --stills measures the twist with the rig's drive and nut marks, and this file \
+                 holds only a bar; give a whole rig (with \"marks\") to --rig",
+                a.rig.display()
+            );
+        };
         let plan = read_stills_csv(table, a.reference.as_deref())?;
         inputs.extend(plan.rows.iter().map(|r| r.path.clone()));
         if let twistmark::calibrate::Reference::Row(r) = &plan.reference {
             inputs.push(r.path.clone());
         }
-        let m = measure_stills(&rig, &a.rig, &plan)?;
+        let m = measure_stills(rig, &a.rig, &plan)?;
         super::print_warnings(&m.warnings);
         pairs = m.pairs();
         if m.twists.iter().all(|t| t.twist().rad() <= 0.0) {
@@ -156,11 +163,17 @@ pub fn run(a: CalibrateArgs) -> Result<ExitCode> {
         .filter(|t| !t.is_empty())
         .map(str::to_string);
     bar.calibration = Some(record);
-    rig.bar = Some(bar);
+    let is_rig = matches!(file, super::bar::BarFile::Rig(_));
+    let text = file.with_bar(bar)?;
     if let Some(out) = &a.out {
-        let text = rig.to_json_pretty() + "\n";
         // Re-read what we are about to write, so a written rig always parses.
-        twistmark::Rig::from_json_str(&text, out)?;
+        if is_rig {
+            twistmark::Rig::from_json_str(&text, out)?;
+        } else {
+            let doc: serde_json::Value = serde_json::from_str(&text)?;
+            let bar = doc.get("bar").unwrap_or(&doc);
+            serde_json::from_value::<twistmark::mechanics::BarSpec>(bar.clone())?.validate()?;
+        }
         let read: Vec<&std::path::Path> = inputs.iter().map(PathBuf::as_path).collect();
         twistmark::report::check_not_input(out, "--out", &read)?;
         twistmark::report::write::write_file(out, text.as_bytes())

@@ -9,6 +9,7 @@
 //! | a missing `--rig` file | [`a_missing_rig_file_says_to_check_the_path_or_draft_one`] |
 //! | a truncated rig | [`a_truncated_rig_says_it_is_cut_short`] |
 //! | `bar` on a bar-only rig | [`bar_reads_a_bar_only_rig`] |
+//! | `calibrate` on a bar-only rig, and a missing `--csv` | [`calibrate_updates_a_bar_only_file_in_its_own_shape`] |
 //! | semicolon-separated and decimal-comma CSV | [`semicolon_and_decimal_comma_csv_give_the_same_fit`] |
 //! | the set-up command's `--out` into a missing folder | [`set_up_out_into_a_missing_folder_names_it`] |
 //! | `--overlay-every` without `--overlay` | [`overlay_every_turns_overlays_on`] |
@@ -16,30 +17,15 @@
 //! | a manifest naming a clip that is not there | [`a_manifest_line_naming_a_missing_clip_is_named`] |
 //! | a batch clip with no rig anywhere | [`a_batch_clip_without_any_rig_says_where_to_put_one`] |
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
-use assert_cmd::Command;
+use crate::common::fixture;
 
-fn root() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
-
-fn fixture(rel: &str) -> PathBuf {
-    root().join("fixtures").join(rel)
-}
-
-/// Runs the binary; returns (exit code, stdout, stderr).
+/// Runs the binary (through `common::run`: a time limit, no panic); returns (exit code,
+/// stdout, stderr).
 fn run(args: &[&std::ffi::OsStr]) -> (i32, String, String) {
-    let out = Command::cargo_bin("twistmark")
-        .unwrap()
-        .args(args)
-        .output()
-        .unwrap();
-    (
-        out.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
+    let o = crate::common::run(args);
+    (o.code, o.stdout, o.stderr)
 }
 
 fn os<S: AsRef<std::ffi::OsStr> + ?Sized>(s: &S) -> &std::ffi::OsStr {
@@ -291,5 +277,74 @@ fn a_batch_clip_without_any_rig_says_where_to_put_one() {
     assert!(
         summary.contains("run-a/frames") && summary.contains("rig.json in its folder"),
         "{summary}"
+    );
+}
+
+#[test]
+fn calibrate_updates_a_bar_only_file_in_its_own_shape() {
+    // The fast-tool rig's bar alone, as the bar object itself: calibrate writes it back as a
+    // bar object with the calibrated stiffness, which `bar` then reads.
+    let full: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(fixture("fast-tool/rig.json")).unwrap())
+            .unwrap();
+    let d = tempfile::tempdir().unwrap();
+    let bare = d.path().join("bare.json");
+    std::fs::write(&bare, full["bar"].to_string()).unwrap();
+    // Twist 4° per 100 N·m: 25 N·m/deg.
+    let (code, _, err) = run(&[
+        os("calibrate"),
+        os("--rig"),
+        bare.as_os_str(),
+        os("--pair"),
+        os("100:4"),
+        os("--pair"),
+        os("200:8"),
+        os("--pair"),
+        os("300:12"),
+        os("--out"),
+        bare.as_os_str(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let written: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&bare).unwrap()).unwrap();
+    assert!(written.get("marks").is_none() && written.get("bar").is_none());
+    let k = written["calibrated_stiffness_nm_per_deg"].as_f64().unwrap();
+    assert!((k - 25.0).abs() < 1e-9, "{k}");
+    let (code, out, err) = run(&[os("bar"), os("--rig"), bare.as_os_str(), os("--json")]);
+    assert_eq!(code, 0, "{err}");
+    let got: serde_json::Value = serde_json::from_str(&out).unwrap();
+    assert!(
+        (got["stiffness_nm_per_deg"].as_f64().unwrap() - 25.0).abs() < 1e-9,
+        "{got}"
+    );
+    // Photos need the marks: a bar-only file is refused for --stills, saying why.
+    let table = d.path().join("photos.csv");
+    std::fs::write(&table, "torque_nm,image\n0,a.png\n").unwrap();
+    let (code, _, err) = run(&[
+        os("calibrate"),
+        os("--rig"),
+        bare.as_os_str(),
+        os("--stills"),
+        table.as_os_str(),
+    ]);
+    assert_eq!(code, 1, "{err}");
+    assert_one_line(&err);
+    assert!(
+        err.contains("holds only a bar") && err.contains("marks"),
+        "{err}"
+    );
+    // A missing --csv names the file and says to check the path, not "os error 2".
+    let (code, _, err) = run(&[
+        os("calibrate"),
+        os("--rig"),
+        bare.as_os_str(),
+        os("--csv"),
+        d.path().join("nope.csv").as_os_str(),
+    ]);
+    assert_eq!(code, 1, "{err}");
+    assert_one_line(&err);
+    assert!(
+        err.contains("nope.csv") && err.contains("no such CSV file") && !err.contains("os error"),
+        "{err}"
     );
 }
