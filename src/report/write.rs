@@ -197,7 +197,7 @@ pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     Ok(())
 }
 
-/// As [`write_atomic`], but never replaces anything: the finished temporary file is linked to
+/// As `write_atomic` (the replacing writer), but never replaces anything: the finished temporary file is linked to
 /// `path` with a call that fails when `path` exists, even when it appeared while the bytes
 /// were written.
 ///

@@ -20,9 +20,6 @@
 
 use std::ffi::OsString;
 use std::path::{Path, PathBuf};
-use std::time::Duration;
-
-use assert_cmd::Command;
 
 use super::common::{fixture, one_line_error, run};
 
@@ -310,11 +307,11 @@ fn rule4_paths_reach_ffmpeg_as_files() {
         assert_eq!(info(&p), frames, "{}", p.display());
     }
     // Relative, with a colon: still the file of that name.
-    let r = Command::cargo_bin("twistmark")
+    let r = assert_cmd::Command::cargo_bin("twistmark")
         .unwrap()
         .current_dir(dir.path())
         .args(["info", "12:03:44.mkv", "--json"])
-        .timeout(Duration::from_secs(60))
+        .timeout(std::time::Duration::from_secs(60))
         .output()
         .unwrap();
     assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
