@@ -299,6 +299,7 @@ fn owned(f: FrameRef<'_>) -> Frame {
             LumaRef::U16(d) => Luma::U16(d.to_vec()),
         },
         chroma: f.chroma.as_ref().map(ChromaRef::to_owned_planes),
+        damaged: f.damaged,
     }
 }
 

@@ -65,6 +65,15 @@ pub enum Warning {
         /// The first analysed frame (clip frame index).
         frame: u64,
     },
+    /// The decoder flagged frames as damaged; they are null in the trace, never measured.
+    DamagedFrames {
+        /// How many frames were damaged.
+        count: u64,
+        /// The first damaged frame (clip frame index).
+        first_frame: u64,
+        /// The last damaged frame (clip frame index).
+        last_frame: u64,
+    },
     /// Any other data-quality note with its own explanation.
     Note(String),
 }
@@ -121,6 +130,23 @@ impl fmt::Display for Warning {
                  torque would then read low); give a still of the unloaded bar with --zero-still \
                  or a frame that shows it with --zero-frame"
             ),
+            Warning::DamagedFrames {
+                count,
+                first_frame,
+                last_frame,
+            } => {
+                let which = if count == &1 {
+                    format!("frame {first_frame} is")
+                } else {
+                    format!("{count} frames between {first_frame} and {last_frame} are")
+                };
+                write!(
+                    f,
+                    "{which} damaged in the file (flagged by the decoder): they are null in the \
+                     trace and were not measured; re-export the clip from the camera for a \
+                     complete trace"
+                )
+            }
             Warning::Note(s) => f.write_str(s),
         }
     }

@@ -162,6 +162,10 @@ pub struct Frame {
     /// The colour-difference planes, when the clip has colour and its luma is 8 bit (`None`
     /// for monochrome footage).
     pub chroma: Option<Chroma>,
+    /// True when the decoder flagged this frame as damaged (it concealed errors, or the
+    /// frame's data could not be decoded at all): its samples must not be measured, and the
+    /// tracker records the frame as lost.
+    pub damaged: bool,
 }
 
 impl Frame {
@@ -174,6 +178,7 @@ impl Frame {
             bit_depth: 8,
             luma: Luma::U8(Vec::new()),
             chroma: None,
+            damaged: false,
         }
     }
 
@@ -194,6 +199,7 @@ impl Frame {
             bit_depth: 8,
             luma: Luma::U8(data),
             chroma: None,
+            damaged: false,
         }
     }
 
@@ -209,6 +215,7 @@ impl Frame {
                 Luma::U16(d) => LumaRef::U16(d),
             },
             chroma: self.chroma.as_ref().map(Chroma::view),
+            damaged: self.damaged,
         }
     }
 
@@ -269,6 +276,8 @@ pub struct FrameRef<'a> {
     pub luma: LumaRef<'a>,
     /// The colour-difference planes, when the frame has them.
     pub chroma: Option<ChromaRef<'a>>,
+    /// As [`Frame::damaged`]: flagged by the decoder, never measured.
+    pub damaged: bool,
 }
 
 impl FrameRef<'_> {

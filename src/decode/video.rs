@@ -96,6 +96,14 @@ pub struct VideoSource {
     next_index: u64,
     eof_sent: bool,
     done: bool,
+    /// The decoder flagged `picture` as damaged (it concealed errors in it).
+    picture_damaged: bool,
+    /// A packet of an intra-only stream could not be decoded: the next frame handed out is a
+    /// placeholder marked damaged (one packet is one frame, so the frame count stays right).
+    lost_frame: bool,
+    /// Frames are independent (every frame a key frame), so one damaged packet costs exactly
+    /// one frame and decoding can go on after it.
+    intra_only: bool,
 }
 
 /// FFmpeg's pixel-format converter, the one part of [`VideoSource`] that ffmpeg-next does not
@@ -131,6 +139,7 @@ impl VideoSource {
             .ok_or_else(|| Error::input(path, "the video stream vanished on reopening"))?;
         let params = stream.parameters();
         let codec_name = params.id().name().to_string();
+        let intra_only = intra_only(params.id());
         let container_fps_hz = [stream.avg_frame_rate(), stream.rate()]
             .into_iter()
             .find(|r| r.numerator() > 0 && r.denominator() > 0)
@@ -149,13 +158,16 @@ impl VideoSource {
         }
         // A damaged frame must never be measured. Most decoders flag one (checked in
         // `next_picture`); the MJPEG decoder instead logs and outputs a garbled picture unless
-        // told to stop at the error. Its frames are independent, so stopping costs nothing a
-        // whole frame would give.
+        // told to stop at the error. Its frames are independent, so the damaged packet is
+        // handed out as one frame marked damaged and decoding goes on. One decoding thread
+        // keeps frames in packet order around such a loss (MJPEG decodes one frame per
+        // packet, so no parallelism is lost).
         if codec_name == "mjpeg" {
             // SAFETY: as above.
             unsafe {
                 (*ctx.as_mut_ptr()).err_recognition |=
                     ff::ffi::AV_EF_EXPLODE | ff::ffi::AV_EF_CRCCHECK | ff::ffi::AV_EF_BITSTREAM;
+                (*ctx.as_mut_ptr()).thread_count = 1;
             }
         }
         let decoder = ctx.decoder().video().map_err(|e| {
@@ -217,6 +229,9 @@ impl VideoSource {
             next_index: 0,
             eof_sent: false,
             done: false,
+            picture_damaged: false,
+            lost_frame: false,
+            intra_only,
         })
     }
 
@@ -241,8 +256,12 @@ impl VideoSource {
     }
 
     /// Decodes until `self.picture` holds the next frame (`Ok(true)`; `next_index` is its
-    /// index) or the stream ends (`Ok(false)`), feeding packets as the decoder asks.
+    /// index) or the stream ends (`Ok(false)`), feeding packets as the decoder asks. A frame
+    /// the decoder flags as damaged sets `picture_damaged`; a packet of an intra-only stream
+    /// that cannot be decoded at all sets `lost_frame` (its frame is handed out as a
+    /// placeholder). Either way the frame is marked damaged and never measured.
     fn next_picture(&mut self) -> Result<bool> {
+        self.lost_frame = false;
         if self.done {
             return Ok(false);
         }
@@ -254,15 +273,8 @@ impl VideoSource {
                         let p = self.picture.as_ptr();
                         ((*p).decode_error_flags, (*p).flags)
                     };
-                    if errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0 {
-                        self.done = true;
-                        return Err(self.decode_error(
-                            "the frame is damaged (the decoder had to conceal errors); the file \
-                             may be cut short or corrupt: re-export it, or analyse only the frames \
-                             before this one with --end-s"
-                                .into(),
-                        ));
-                    }
+                    self.picture_damaged =
+                        errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0;
                     return Ok(true);
                 }
                 Err(ff::Error::Eof) => {
@@ -290,6 +302,10 @@ impl VideoSource {
                 match self.packet.read(&mut self.ictx) {
                     Ok(()) if self.packet.stream() == self.stream_index => {
                         if let Err(e) = self.decoder.send_packet(&self.packet) {
+                            if self.intra_only && !is_fatal(&e) {
+                                self.lost_frame = true;
+                                return Ok(true);
+                            }
                             self.done = true;
                             return Err(self.decode_error(format!(
                                 "damaged data ({e}); the file may be cut short or corrupt"
@@ -351,10 +367,35 @@ impl VideoSource {
             && self.picture.stride(0) == self.info.width as usize
     }
 
+    /// Fills `frame` as the stand-in for a frame whose data could not be decoded: the clip's
+    /// size, black, marked damaged (the tracker never reads a damaged frame's samples).
+    fn placeholder(&self, frame: &mut Frame) {
+        let n = self.info.width as usize * self.info.height as usize;
+        frame.index = self.next_index;
+        frame.width = self.info.width;
+        frame.height = self.info.height;
+        frame.bit_depth = self.info.bit_depth;
+        match &mut frame.luma {
+            Luma::U8(v) if self.info.bit_depth <= 8 => {
+                v.clear();
+                v.resize(n, 0);
+            }
+            Luma::U16(v) if self.info.bit_depth > 8 => {
+                v.clear();
+                v.resize(n, 0);
+            }
+            other if self.info.bit_depth <= 8 => *other = Luma::U8(vec![0; n]),
+            other => *other = Luma::U16(vec![0; n]),
+        }
+        frame.chroma = None;
+        frame.damaged = true;
+    }
+
     /// Copies the luma of `self.picture` into `frame` by `plan` (from [`Self::picture_plan`]).
     fn copy_out(&mut self, plan: LumaPlan, frame: &mut Frame) -> Result<()> {
         let (w, h) = (self.picture.width(), self.picture.height());
         frame.index = self.next_index;
+        frame.damaged = self.picture_damaged;
         frame.width = w;
         frame.height = h;
         frame.bit_depth = plan.bit_depth();
@@ -406,6 +447,27 @@ impl VideoSource {
         }
         Ok(())
     }
+}
+
+/// True when every frame of a stream of codec `id` is a key frame (FFmpeg's codec descriptor
+/// says intra-only), so a packet that cannot be decoded costs that frame alone.
+fn intra_only(id: ff::codec::Id) -> bool {
+    // SAFETY: avcodec_descriptor_get returns a pointer to a static descriptor, or null.
+    let d = unsafe { ff::ffi::avcodec_descriptor_get(id.into()) };
+    // SAFETY: non-null descriptors point to FFmpeg's static, immutable table.
+    !d.is_null() && unsafe { (*d).props } & ff::ffi::AV_CODEC_PROP_INTRA_ONLY as i32 != 0
+}
+
+/// True for a decoder error that no later packet can recover from (out of memory, an
+/// unsupported feature, or a broken decoder), as opposed to damaged data in one packet.
+fn is_fatal(e: &ff::Error) -> bool {
+    matches!(
+        e,
+        ff::Error::Other { errno } if *errno == ff::util::error::ENOMEM
+    ) || matches!(
+        e,
+        ff::Error::PatchWelcome | ff::Error::Bug | ff::Error::Bug2
+    )
 }
 
 /// True when any plane of `pic` has a negative line stride (stored bottom-up, as some decoders
@@ -691,10 +753,14 @@ impl FrameSource for VideoSource {
         if !self.next_picture()? {
             return Ok(false);
         }
-        let copied = self
-            .picture_plan()
-            .and_then(|plan| self.copy_out(plan, frame));
-        self.stop_on_error(copied)?;
+        if self.lost_frame {
+            self.placeholder(frame);
+        } else {
+            let copied = self
+                .picture_plan()
+                .and_then(|plan| self.copy_out(plan, frame));
+            self.stop_on_error(copied)?;
+        }
         self.next_index += 1;
         Ok(true)
     }
@@ -704,11 +770,17 @@ impl FrameSource for VideoSource {
         if !self.next_picture()? {
             return Ok(false);
         }
+        if self.lost_frame {
+            self.placeholder(&mut slot.frame);
+            self.next_index += 1;
+            return Ok(true);
+        }
         let plan = self.picture_plan();
         let plan = self.stop_on_error(plan)?;
         if self.packed(plan) {
             let at = (self.next_index, self.info.width, self.info.height);
-            slot.picture.hold(&mut self.picture, at);
+            slot.picture
+                .hold(&mut self.picture, at, self.picture_damaged);
         } else {
             let copied = self.copy_out(plan, &mut slot.frame);
             self.stop_on_error(copied)?;
@@ -726,6 +798,8 @@ pub(super) struct HeldPicture {
     pic: ff::frame::Video,
     /// Index, width and height of the picture held; None when none is.
     at: Option<(u64, u32, u32)>,
+    /// The decoder flagged the picture held as damaged.
+    damaged: bool,
 }
 
 impl HeldPicture {
@@ -733,17 +807,19 @@ impl HeldPicture {
         HeldPicture {
             pic: ff::frame::Video::empty(),
             at: None,
+            damaged: false,
         }
     }
 
     /// Takes over `from`'s picture (leaving `from` blank for the decoder's next one), whose
     /// 8-bit luma rows must be packed.
-    fn hold(&mut self, from: &mut ff::frame::Video, at: (u64, u32, u32)) {
+    fn hold(&mut self, from: &mut ff::frame::Video, at: (u64, u32, u32), damaged: bool) {
         self.release();
         // SAFETY: both wrap valid AVFrames; `self.pic` holds no reference (released above),
         // as av_frame_move_ref requires, and `from` is left blank.
         unsafe { ff::ffi::av_frame_move_ref(self.pic.as_mut_ptr(), from.as_mut_ptr()) };
         self.at = Some(at);
+        self.damaged = damaged;
     }
 
     /// The picture's luma, when one is held.
@@ -757,6 +833,7 @@ impl HeldPicture {
             bit_depth: 8,
             luma: LumaRef::U8(self.pic.data(0).get(..n)?),
             chroma: chroma_of(&self.pic, width, height),
+            damaged: self.damaged,
         })
     }
 

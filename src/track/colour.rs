@@ -312,6 +312,7 @@ impl ColourPlane {
             bit_depth: 16,
             luma: LumaRef::U16(&self.buf),
             chroma: None,
+            damaged: false,
         }
     }
 }

@@ -129,6 +129,8 @@ pub struct Tracker {
     shift: [f64; 2],
     /// Per frame: `None` where the fixed mark could not be registered.
     shake_lost: Vec<Option<()>>,
+    /// Clip indices of the frames the decoder flagged as damaged (not measured).
+    damaged: Vec<u64>,
 }
 
 impl Tracker {
@@ -198,6 +200,7 @@ impl Tracker {
             shake,
             shift: [0.0, 0.0],
             shake_lost: Vec::new(),
+            damaged: Vec::new(),
         })
     }
 
@@ -225,6 +228,29 @@ impl Tracker {
             });
         }
         let first = self.frames.is_empty();
+        if frame.damaged {
+            if first {
+                return Err(Error::Input {
+                    path: "(clip)".into(),
+                    reason: format!(
+                        "frame {} is damaged (flagged by the decoder), and the first analysed \
+                         frame must be whole to learn the marks: start after it with --start-s, \
+                         or re-export the clip",
+                        frame.index
+                    ),
+                });
+            }
+            // Never measured: every mark is lost in this frame, and the camera shift holds.
+            self.frames.push(frame.index);
+            self.damaged.push(frame.index);
+            self.shake_lost.push(Some(()));
+            for t in [&mut self.drive, &mut self.nut] {
+                t.angle.push(None);
+                t.confidence.push(0.0);
+                t.dir_offset.push(None);
+            }
+            return Ok(());
+        }
         self.frames.push(frame.index);
 
         if first {
@@ -317,6 +343,14 @@ impl Tracker {
                     last_frame,
                 });
             }
+        }
+        if let (Some(&first_frame), Some(&last_frame)) = (self.damaged.first(), self.damaged.last())
+        {
+            warnings.push(Warning::DamagedFrames {
+                count: self.damaged.len() as u64,
+                first_frame,
+                last_frame,
+            });
         }
         for (a, b) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
             warnings.push(Warning::Note(format!(
@@ -468,6 +502,42 @@ mod tests {
         // Without refinement this costs 0.28° RMS on the drive end (measured while developing).
         let (d, n) = rms_with_pivot_error(1.0);
         assert!(d < 0.08 && n < 0.08, "drive {d:.3}°, nut {n:.3}°");
+    }
+
+    #[test]
+    fn a_damaged_frame_is_null_for_every_mark_and_named_in_a_warning() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let rig = sc.rig();
+        let mut t = Tracker::new(&rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        for i in 0..30 {
+            let mut f = render_frame(&sc, &truth, i);
+            f.damaged = i == 12;
+            t.push(&f).unwrap();
+        }
+        let (tr, w) = t.finish(TimeBase::from_fps(1000.0, "t").unwrap());
+        assert!(tr.drive[12].is_none() && tr.nut[12].is_none());
+        assert!(tr.drive[11].is_some() && tr.nut[13].is_some());
+        assert!(w.contains(&Warning::DamagedFrames {
+            count: 1,
+            first_frame: 12,
+            last_frame: 12
+        }));
+    }
+
+    #[test]
+    fn a_damaged_first_frame_refuses_the_clip_saying_to_start_after_it() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let mut t =
+            Tracker::new(&sc.rig(), Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        let mut f = render_frame(&sc, &truth, 0);
+        f.damaged = true;
+        let e = t.push(&f).unwrap_err().to_string();
+        assert!(
+            e.contains("frame 0 is damaged") && e.contains("--start-s"),
+            "{e}"
+        );
     }
 
     #[test]
