@@ -455,7 +455,7 @@ fn intra_only(id: ff::codec::Id) -> bool {
     // SAFETY: avcodec_descriptor_get returns a pointer to a static descriptor, or null.
     let d = unsafe { ff::ffi::avcodec_descriptor_get(id.into()) };
     // SAFETY: non-null descriptors point to FFmpeg's static, immutable table.
-    !d.is_null() && unsafe { (*d).props } & ff::ffi::AV_CODEC_PROP_INTRA_ONLY as i32 != 0
+    !d.is_null() && unsafe { (*d).props } & ff::ffi::AV_CODEC_PROP_INTRA_ONLY != 0
 }
 
 /// True for a decoder error that no later packet can recover from (out of memory, an
