@@ -57,6 +57,32 @@ pub fn image_limits() -> image::Limits {
     l
 }
 
+/// Refuses a named pipe or a socket given as an input file: opening one waits, without end,
+/// for a writer that may never come. (Devices such as `/dev/zero` are read through the size
+/// caps instead; a missing path is left for the caller to report.)
+///
+/// # Errors
+/// [`Error::Input`] naming `path` when it is a pipe or socket.
+pub fn refuse_pipe(path: &Path) -> Result<()> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileTypeExt;
+        if let Ok(meta) = std::fs::metadata(path) {
+            let t = meta.file_type();
+            if t.is_fifo() || t.is_socket() {
+                return Err(Error::input(
+                    path,
+                    "is a named pipe or socket, not a file (reading it would wait for a writer); \
+                     save the data to a file and give that",
+                ));
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    let _ = path;
+    Ok(())
+}
+
 /// Reads a text file of at most [`MAX_TEXT_BYTES`] through `take`, so a device such as
 /// `/dev/zero` or a huge file ends in a message rather than exhausting memory.
 ///
@@ -64,6 +90,7 @@ pub fn image_limits() -> image::Limits {
 /// [`Error::Io`] when it cannot be read; [`Error::Input`] when it is not a regular file, is
 /// too large, or is not UTF-8 text.
 pub fn read_text(path: &Path, what: &str) -> Result<String> {
+    refuse_pipe(path)?;
     let meta = std::fs::metadata(path).map_err(|e| {
         if e.kind() == std::io::ErrorKind::NotFound {
             Error::input(path, format!("no such {what} file; check the path"))

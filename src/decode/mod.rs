@@ -421,6 +421,7 @@ pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
     if !path.exists() {
         return Err(Error::input(path, "no such file or folder; check the path"));
     }
+    crate::limits::refuse_pipe(path)?;
     open_video(path)
 }
 

@@ -565,6 +565,41 @@ fn rule7_bounded_resources() {
     );
     #[cfg(target_os = "linux")]
     one_line_error(&run(["bar", "--rig", "/dev/zero"]), &["/dev/zero", "MiB"]);
+    // A named pipe with no writer is refused at once instead of waiting for ever: as the rig,
+    // as a zero still, as the clip.
+    #[cfg(unix)]
+    {
+        let fifo = dir.path().join("pipe.json");
+        let made = std::process::Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap();
+        assert!(made.success());
+        let out = dir.path().join("p");
+        let good = dir.path().join("good");
+        copy_frames("fast-tool", &good, 20);
+        one_line_error(
+            &run(args(&[&"bar", &"--rig", &fifo])),
+            &["pipe.json", "pipe"],
+        );
+        one_line_error(
+            &run(args(&[
+                &"analyze",
+                &good,
+                &"--rig",
+                &rig(),
+                &"--zero-still",
+                &fifo,
+                &"--out",
+                &out,
+            ])),
+            &["pipe.json", "pipe"],
+        );
+        one_line_error(
+            &run(args(&[&"analyze", &fifo, &"--rig", &rig(), &"--out", &out])),
+            &["pipe.json", "pipe"],
+        );
+    }
     // A loop count from the rig (side-mark stripes searched every frame) is bounded.
     let side = dir.path().join("side.json");
     std::fs::write(
