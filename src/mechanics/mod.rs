@@ -16,10 +16,11 @@ mod steel;
 mod uncertainty;
 mod zero;
 
+pub use crate::report::bar_json::{BarJson, SectionJson};
 pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
 pub use bar_report::{
-    BarJson, BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionJson,
-    SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
+    BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionReport,
+    SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
 };
 pub use blows::{
     BlowMetrics, NUT_STOP_MIN_DEG, Summary, UNDERSAMPLED_RISE_FRAMES, blow_metrics,
