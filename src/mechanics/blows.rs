@@ -36,6 +36,7 @@
 use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
 use crate::mechanics::sense::set_at_rest_warning;
 use crate::mechanics::uncertainty::stiffness_rel_sigma;
+use crate::mechanics::unwind::{self, BlowUnwind, UnwindBlow, UnwindMeasurement};
 use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, rest_window};
@@ -88,6 +89,10 @@ pub struct BlowMetrics {
     /// Largest fraction by which the sampled peak can read low, 1 − cos(π/(4·rise)), when
     /// the rise spans fewer than [`UNDERSAMPLED_RISE_FRAMES`] frames (else None).
     pub peak_under_read: Option<f64>,
+    /// Spring-back measured from the clip for this blow: the wind-up it struck, the torque
+    /// gain that wind-up caused, the energy it put in and its unwind's decay
+    /// ([`crate::mechanics::unwind`]).
+    pub unwind: BlowUnwind,
 }
 
 /// A blow whose twist rises to its peak in fewer frames than this is under-sampled: the top
@@ -145,6 +150,8 @@ pub struct Summary {
     /// The torque the joint holds after the last blow that turned the nut (None without a
     /// bar or a measured slip).
     pub holding: Option<HoldingTorque>,
+    /// Spring-back measured from the clip (decay between blows, torque gain over held blows).
+    pub unwind: UnwindMeasurement,
 }
 
 /// Computes every blow's metrics and the summary, with the twist zero found from the trace
@@ -291,6 +298,7 @@ pub fn blow_metrics_zeroed(
             peak_torque_ci95,
             rise_frames,
             peak_under_read,
+            unwind: BlowUnwind::default(),
         });
     }
 
@@ -353,6 +361,29 @@ pub fn blow_metrics_zeroed(
         }
         _ => None,
     };
+    let unwind_blows: Vec<UnwindBlow> = blows
+        .iter()
+        .zip(&out)
+        .map(|(b, m)| UnwindBlow {
+            onset: b.onset,
+            end: b.end,
+            peak_deg: m.peak_twist.map(Angle::deg),
+            pre_strike_deg: b.onset.checked_sub(1).and_then(|i| level(&twist, i)),
+            held: !m.nut_advanced,
+        })
+        .collect();
+    let unwind = unwind::measure(
+        &twist,
+        &nut,
+        fps,
+        &unwind_blows,
+        (twist_sigma_deg, nut_sigma_deg),
+        stiffness,
+        bar.and_then(BarSpec::drive_inertia_kg_m2),
+    );
+    for (m, u) in out.iter_mut().zip(&unwind.blows) {
+        m.unwind = *u;
+    }
     let summary = Summary {
         blow_count: out.len(),
         blow_rate_per_min: seg.rate_per_min,
@@ -385,6 +416,7 @@ pub fn blow_metrics_zeroed(
             .map(Angle::from_deg),
         twist_zero: zero,
         holding,
+        unwind,
     };
     (out, summary, warnings)
 }

@@ -24,4 +24,5 @@ mod html_report;
 mod messages;
 mod segment;
 mod side;
+mod springback;
 mod track_accuracy;

@@ -40,7 +40,10 @@ use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
 
 mod springback;
-pub use springback::{MeasuredRecovery, ModelRecovery, SpringbackVerdict};
+pub use springback::{
+    GAIN_SPRANG_BACK_MAX, GAIN_STILL_WOUND_MIN, MeasuredRecovery, ModelRecovery, SpringbackVerdict,
+    recovery_from_gain,
+};
 
 /// The caution printed and written wherever a torque is shown (two full sentences).
 pub const TORQUE_CAUTION: &str = "A torque estimated from video is a model (bar stiffness × \

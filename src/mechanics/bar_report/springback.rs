@@ -7,6 +7,7 @@ use std::f64::consts::PI;
 use serde::Serialize;
 
 use super::BarReport;
+use crate::mechanics::unwind::{DecayMethod, UnwindMeasurement};
 use crate::units::Angle;
 
 /// How much of the peak twist is still there when the next blow lands, as measured.
@@ -55,12 +56,74 @@ pub struct SpringbackVerdict {
     pub agrees: Option<bool>,
     /// One plain sentence for the report.
     pub sentence: String,
+    /// What the measured verdict rests on: `"torque_gain"` (held blows, from the clip) or
+    /// `"residual_fraction"` (the residual over the peak, when no gain was measured).
+    pub measured_from: Option<&'static str>,
+    /// Blows in which the nut was held (the only ones the gain is measured on).
+    pub held_blows: usize,
+    /// Median over held blows of θp/√(θp² − θr²): how much the wind-up left by the blow
+    /// before raised the peak torque.
+    pub torque_gain_median_ratio: Option<f64>,
+    /// Largest such gain.
+    pub torque_gain_max_ratio: Option<f64>,
+    /// Median over held blows of the energy a blow put into the bar, ½k(θp² − θr²), J.
+    pub blow_energy_median_j: Option<f64>,
+    /// How the unwinds' decay was measured.
+    pub decay_method: Option<DecayMethod>,
+    /// Unwinds whose decay was fitted.
+    pub decay_fits: usize,
+    /// Median time constant of the unwinds' decay, ms.
+    pub decay_time_constant_ms: Option<f64>,
+    /// Back-drive damping measured from the decay, N·m·s/rad.
+    pub measured_back_damping_nms_per_rad: Option<f64>,
+    /// Damping ratio from the measurement (with the rig's inertia when the decay alone does
+    /// not fix it).
+    pub measured_damping_ratio: Option<f64>,
+    /// Natural frequency measured from an underdamped unwind, Hz.
+    pub measured_natural_frequency_hz: Option<f64>,
+    /// The rig's `drive_back_damping_nms_per_rad`, if given (the model's prediction).
+    pub rig_back_damping_nms_per_rad: Option<f64>,
+    /// How far the rig's damping is from the measured one, %.
+    pub damping_rig_vs_measured_pct: Option<f64>,
 }
 
-/// Residual fraction at or below which the bar counts as sprung back (engineering judgement).
+/// Residual fraction at or below which the bar counts as sprung back, used only when no
+/// torque gain was measured. A residual fraction f raises a held blow's peak by
+/// 1/√(1 − f²) (docs/mechanics.md, "Spring-back measured from the clip"): 0.25 is a gain of
+/// 3.3 %, within [`GAIN_SPRANG_BACK_MAX`].
 pub const SPRANG_BACK_MAX: f64 = 0.25;
-/// Residual fraction above which the bar counts as still wound up (engineering judgement).
+/// Residual fraction above which the bar counts as still wound up (no gain measured): 0.4 is
+/// a gain of 9.1 %, just under [`GAIN_STILL_WOUND_MIN`].
 pub const STILL_WOUND_MIN: f64 = 0.4;
+/// Torque gain at or below which the bar counts as sprung back: the wind-up raises the peak
+/// by no more than 5 %, within what a hand torque wrench may deviate (ISO 6789-1:2017,
+/// permissible deviation ±4 % or ±6 % by type and class, *from memory*), so not worth acting
+/// on.
+pub const GAIN_SPRANG_BACK_MAX: f64 = 1.05;
+/// Torque gain above which the bar counts as still wound up: twice that margin.
+pub const GAIN_STILL_WOUND_MIN: f64 = 1.10;
+
+/// The measured verdict from a torque gain.
+pub fn recovery_from_gain(gain: f64) -> MeasuredRecovery {
+    if gain <= GAIN_SPRANG_BACK_MAX {
+        MeasuredRecovery::SprangBack
+    } else if gain <= GAIN_STILL_WOUND_MIN {
+        MeasuredRecovery::Partial
+    } else {
+        MeasuredRecovery::StillWound
+    }
+}
+
+fn agreement(model: Option<ModelRecovery>, measured: Option<MeasuredRecovery>) -> Option<bool> {
+    match (model, measured) {
+        (Some(m), Some(x)) => Some(match m {
+            ModelRecovery::WellWithin => x == MeasuredRecovery::SprangBack,
+            ModelRecovery::Within => x != MeasuredRecovery::StillWound,
+            ModelRecovery::TooSlow => x != MeasuredRecovery::SprangBack,
+        }),
+        _ => None,
+    }
+}
 
 /// Twist over peak twist at time `t_s` after release from rest at the peak, for
 /// I·θ̈ + c·θ̇ + k·θ = 0 with natural angular frequency `wn` and damping ratio `zeta`.
@@ -221,14 +284,7 @@ impl BarReport {
                 MeasuredRecovery::StillWound
             }
         });
-        let agrees = match (model, measured) {
-            (Some(m), Some(x)) => Some(match m {
-                ModelRecovery::WellWithin => x == MeasuredRecovery::SprangBack,
-                ModelRecovery::Within => x != MeasuredRecovery::StillWound,
-                ModelRecovery::TooSlow => x != MeasuredRecovery::SprangBack,
-            }),
-            _ => None,
-        };
+        let agrees = agreement(model, measured);
         let predicted = self.predicted_residual_fraction(blow_interval_s);
         let sentence = springback_sentence(
             blow_interval_s,
@@ -248,8 +304,132 @@ impl BarReport {
             measured,
             agrees,
             sentence,
+            measured_from: residual_fraction.map(|_| "residual_fraction"),
+            held_blows: 0,
+            torque_gain_median_ratio: None,
+            torque_gain_max_ratio: None,
+            blow_energy_median_j: None,
+            decay_method: None,
+            decay_fits: 0,
+            decay_time_constant_ms: None,
+            measured_back_damping_nms_per_rad: None,
+            measured_damping_ratio: None,
+            measured_natural_frequency_hz: None,
+            rig_back_damping_nms_per_rad: self.back_damping_nms_per_rad,
+            damping_rig_vs_measured_pct: None,
         }
     }
+
+    /// The spring-back verdict from what the clip measured ([`UnwindMeasurement`]): the
+    /// median torque gain over blows where the nut was held decides (else, with no held blow,
+    /// the residual over the peak over held blows; else none), and the rig's inertia and
+    /// damping, when given, are a prediction compared with it. `None` with fewer than two
+    /// onsets or a non-increasing onset time.
+    pub fn springback_verdict_measured(
+        &self,
+        onsets_s: &[f64],
+        m: &UnwindMeasurement,
+    ) -> Option<SpringbackVerdict> {
+        if onsets_s.len() < 2 {
+            return None;
+        }
+        let intervals: Vec<f64> = onsets_s.windows(2).map(|w| w[1] - w[0]).collect();
+        if intervals.iter().any(|d| !(d.is_finite() && *d > 0.0)) {
+            return None;
+        }
+        let mut v = self.verdict_from_fraction(median(intervals)?, m.residual_fraction_held);
+        if let Some(g) = m.torque_gain_median {
+            v.measured = Some(recovery_from_gain(g));
+            v.measured_from = Some("torque_gain");
+        }
+        v.agrees = agreement(v.model, v.measured);
+        v.held_blows = m.held_blows;
+        v.torque_gain_median_ratio = m.torque_gain_median;
+        v.torque_gain_max_ratio = m.torque_gain_max;
+        v.blow_energy_median_j = m.energy_median_j;
+        v.decay_method = m.decay_method;
+        v.decay_fits = m.decay_fits;
+        v.decay_time_constant_ms = m.decay_rate_per_s.map(|l| 1e3 / l);
+        v.measured_back_damping_nms_per_rad = m.back_damping_nms_per_rad;
+        v.measured_damping_ratio = m.damping_ratio;
+        v.measured_natural_frequency_hz = m.natural_frequency_hz;
+        v.damping_rig_vs_measured_pct =
+            match (v.rig_back_damping_nms_per_rad, m.back_damping_nms_per_rad) {
+                (Some(r), Some(c)) if c > 0.0 => Some(100.0 * (r / c - 1.0)),
+                _ => None,
+            };
+        v.sentence = measured_sentence(&v, m.damping_includes_inertia);
+        Some(v)
+    }
+}
+
+fn pct(gain: f64) -> String {
+    format!("{:.1} %", 100.0 * (gain - 1.0))
+}
+
+/// The verdict's sentence when it rests on the clip's own measurement.
+fn measured_sentence(v: &SpringbackVerdict, with_inertia: bool) -> String {
+    let interval = ms(v.blow_interval_s);
+    let mut out = match (v.torque_gain_median_ratio, v.measured) {
+        (Some(g), Some(x)) => {
+            let state = match x {
+                MeasuredRecovery::SprangBack => "the bar springs back between blows",
+                MeasuredRecovery::Partial => "the bar springs back only partly between blows",
+                MeasuredRecovery::StillWound => {
+                    "the next blow lands while the bar is still wound up"
+                }
+            };
+            format!(
+                "Over {} blow(s) with the nut held, the wind-up left from the blow before raised the peak torque by {} (median; at most {}), so {state} ({interval} apart).",
+                v.held_blows,
+                pct(g),
+                pct(v.torque_gain_max_ratio.unwrap_or(g))
+            )
+        }
+        (None, Some(x)) => format!(
+            "No held blow's gain could be measured; the residual twist is {:.0} % of the peak, so the bar {} ({interval} between blows).",
+            100.0 * v.residual_fraction.unwrap_or(f64::NAN),
+            match x {
+                MeasuredRecovery::SprangBack => "springs back",
+                MeasuredRecovery::Partial => "springs back only partly",
+                MeasuredRecovery::StillWound => "is still wound up when the next blow lands",
+            }
+        ),
+        _ => format!(
+            "No blow held the nut, so the torque gain from residual wind-up was not measured (it needs blows where the nut did not turn; {interval} between blows)."
+        ),
+    };
+    if let Some(tau) = v.decay_time_constant_ms {
+        out.push_str(&format!(
+            " The unwind decays with a time constant of {tau:.1} ms"
+        ));
+        if let Some(c) = v.measured_back_damping_nms_per_rad {
+            out.push_str(&format!(
+                " (back-drive damping {c:.1} N·m·s/rad{})",
+                if with_inertia {
+                    ""
+                } else {
+                    ", without the inertia term"
+                }
+            ));
+        }
+        out.push('.');
+    }
+    match (v.model, v.springback_s, v.agrees) {
+        (Some(_), Some(t), Some(a)) => out.push_str(&format!(
+            " The rig's model springs back in {}, which {} the measurement{}.",
+            ms(t),
+            if a { "agrees with" } else { "disagrees with" },
+            v.damping_rig_vs_measured_pct
+                .map(|p| format!("; its damping is {p:+.0} % off the measured one"))
+                .unwrap_or_default()
+        )),
+        (Some(_), Some(t), None) => {
+            out.push_str(&format!(" The rig's model springs back in {}.", ms(t)))
+        }
+        _ => {}
+    }
+    out
 }
 
 /// Median of finite values; `None` when empty.
