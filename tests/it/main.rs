@@ -13,6 +13,7 @@ mod bar;
 mod batch;
 mod calibrate_stills;
 mod common;
+mod coverage;
 mod decode;
 mod find_marks;
 mod find_marks_layouts;
