@@ -13,6 +13,7 @@ pub(crate) use calibration::{csv_with_headers, parse_decimal};
 mod holding;
 mod sense;
 mod steel;
+pub mod subframe;
 mod uncertainty;
 pub mod unwind;
 mod zero;

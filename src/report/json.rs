@@ -142,6 +142,25 @@ pub struct BlowJson {
     /// Natural frequency of that unwind, Hz (log decrement only).
     #[serde(default)]
     pub unwind_natural_frequency_hz: Option<f64>,
+    /// Drive onset interpolated within the frame, s of capture time.
+    #[serde(default)]
+    pub onset_subframe_t_s: Option<f64>,
+    /// Nut onset interpolated within the frame, s.
+    #[serde(default)]
+    pub nut_onset_subframe_t_s: Option<f64>,
+    /// Nut lag from the interpolated onsets, ms.
+    #[serde(default)]
+    pub nut_lag_subframe_ms: Option<f64>,
+    /// ±1.96 standard uncertainties of that lag from the angle noise alone, ms (the form of the
+    /// motion adds more: docs/mechanics.md, "Sub-frame timing").
+    #[serde(default)]
+    pub nut_lag_noise_ci95_ms: Option<f64>,
+    /// Twist at the interpolated nut onset, degrees.
+    #[serde(default)]
+    pub breakaway_subframe_twist_deg: Option<f64>,
+    /// Stiffness × that twist, N·m.
+    #[serde(default)]
+    pub breakaway_subframe_torque_nm: Option<f64>,
 }
 
 /// `report.json`'s `summary`.
@@ -322,6 +341,12 @@ pub fn report(a: &Analysis) -> Report {
             unwind_natural_frequency_hz: finite(
                 b.unwind.decay.and_then(|d| d.natural_frequency_hz),
             ),
+            onset_subframe_t_s: finite(b.onset_subframe_s),
+            nut_onset_subframe_t_s: finite(b.nut_onset_subframe_s),
+            nut_lag_subframe_ms: finite(b.nut_lag_subframe_s.map(|s| s * 1e3)),
+            nut_lag_noise_ci95_ms: finite(b.nut_lag_subframe_sigma_s.map(|s| 1.96e3 * s)),
+            breakaway_subframe_twist_deg: deg(b.breakaway_subframe_twist),
+            breakaway_subframe_torque_nm: nm(b.breakaway_subframe_torque),
         })
         .collect();
     let s = &a.summary;
