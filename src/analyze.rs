@@ -173,9 +173,7 @@ pub fn analyze_source(
     let bar = rig.bar.as_ref().map(BarReport::new).transpose()?;
     let springback = bar.as_ref().and_then(|b| {
         let onsets: Vec<f64> = blows.iter().map(|m| m.t_s).collect();
-        let residual: Vec<_> = blows.iter().map(|m| m.residual_twist).collect();
-        let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
-        b.springback_verdict_for_blows(&onsets, &residual, &peak)
+        b.springback_verdict_measured(&onsets, &summary.unwind)
     });
     if let Some(spec) = rig.bar.as_ref() {
         warnings.extend(mechanics::bar_sense_warnings(spec));

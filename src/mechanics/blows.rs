@@ -35,7 +35,9 @@
 
 use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
 use crate::mechanics::sense::set_at_rest_warning;
+use crate::mechanics::subframe::{Start, motion_start, value_at};
 use crate::mechanics::uncertainty::stiffness_rel_sigma;
+use crate::mechanics::unwind::{self, BlowUnwind, UnwindBlow, UnwindMeasurement};
 use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, rest_window};
@@ -88,6 +90,23 @@ pub struct BlowMetrics {
     /// Largest fraction by which the sampled peak can read low, 1 − cos(π/(4·rise)), when
     /// the rise spans fewer than [`UNDERSAMPLED_RISE_FRAMES`] frames (else None).
     pub peak_under_read: Option<f64>,
+    /// Spring-back measured from the clip for this blow: the wind-up it struck, the torque
+    /// gain that wind-up caused, the energy it put in and its unwind's decay
+    /// ([`crate::mechanics::unwind`]).
+    pub unwind: BlowUnwind,
+    /// Drive onset within the frame, s: the first two moving samples' line carried back to
+    /// the rest level ([`crate::mechanics::subframe`]).
+    pub onset_subframe_s: Option<f64>,
+    /// Nut onset within the frame, s: its start from rest (parabola) carried back.
+    pub nut_onset_subframe_s: Option<f64>,
+    /// Nut lag from the sub-frame onsets, s.
+    pub nut_lag_subframe_s: Option<f64>,
+    /// Standard uncertainty of that lag from the angle noise, s.
+    pub nut_lag_subframe_sigma_s: Option<f64>,
+    /// Twist at the sub-frame nut onset (interpolated between frames).
+    pub breakaway_subframe_twist: Option<Angle>,
+    /// Stiffness × that twist.
+    pub breakaway_subframe_torque: Option<Torque>,
 }
 
 /// A blow whose twist rises to its peak in fewer frames than this is under-sampled: the top
@@ -145,6 +164,8 @@ pub struct Summary {
     /// The torque the joint holds after the last blow that turned the nut (None without a
     /// bar or a measured slip).
     pub holding: Option<HoldingTorque>,
+    /// Spring-back measured from the clip (decay between blows, torque gain over held blows).
+    pub unwind: UnwindMeasurement,
 }
 
 /// Computes every blow's metrics and the summary, with the twist zero found from the trace
@@ -270,7 +291,34 @@ pub fn blow_metrics_zeroed(
             peak_under_read.unwrap_or(0.0),
             stiffness.zip(k_rel_sigma),
         );
+        let drive_start = b
+            .onset
+            .checked_sub(1)
+            .and_then(|i| level(&drive, i))
+            .and_then(|base| {
+                let sd = drive_sigma_deg.max(NOISE_FLOOR_DEG);
+                motion_start(&drive, b.onset, base, sd, Start::Impulsive)
+            });
+        let nut_start = nut_onset.zip(nut_before).and_then(|(i, base)| {
+            let sn = nut_sigma_deg.max(NOISE_FLOOR_DEG);
+            motion_start(&nut, i, base, sn, Start::FromRest)
+        });
+        // Samples are consecutive frames within the analysed window.
+        let at_s = |t: f64| (frame as f64 + (t - b.onset as f64)) / fps;
+        let breakaway_subframe_twist = nut_start
+            .and_then(|(t, _)| value_at(&twist_smooth, t))
+            .map(Angle::from_deg);
         out.push(BlowMetrics {
+            onset_subframe_s: drive_start.map(|(t, _)| at_s(t)),
+            nut_onset_subframe_s: nut_start.map(|(t, _)| at_s(t)),
+            nut_lag_subframe_s: drive_start
+                .zip(nut_start)
+                .map(|((d, _), (n, _))| ((n - d) / fps).max(0.0)),
+            nut_lag_subframe_sigma_s: drive_start
+                .zip(nut_start)
+                .map(|((_, ud), (_, un))| ud.hypot(un) / fps),
+            breakaway_subframe_twist,
+            breakaway_subframe_torque: torque(breakaway_subframe_twist),
             index: k + 1,
             frame,
             t_s: trace.time_base.seconds(frame as f64),
@@ -291,6 +339,7 @@ pub fn blow_metrics_zeroed(
             peak_torque_ci95,
             rise_frames,
             peak_under_read,
+            unwind: BlowUnwind::default(),
         });
     }
 
@@ -353,6 +402,29 @@ pub fn blow_metrics_zeroed(
         }
         _ => None,
     };
+    let unwind_blows: Vec<UnwindBlow> = blows
+        .iter()
+        .zip(&out)
+        .map(|(b, m)| UnwindBlow {
+            onset: b.onset,
+            end: b.end,
+            peak_deg: m.peak_twist.map(Angle::deg),
+            pre_strike_deg: b.onset.checked_sub(1).and_then(|i| level(&twist, i)),
+            held: !m.nut_advanced,
+        })
+        .collect();
+    let unwind = unwind::measure(
+        &twist,
+        &nut,
+        fps,
+        &unwind_blows,
+        (twist_sigma_deg, nut_sigma_deg),
+        stiffness,
+        bar.and_then(BarSpec::drive_inertia_kg_m2),
+    );
+    for (m, u) in out.iter_mut().zip(&unwind.blows) {
+        m.unwind = *u;
+    }
     let summary = Summary {
         blow_count: out.len(),
         blow_rate_per_min: seg.rate_per_min,
@@ -385,6 +457,7 @@ pub fn blow_metrics_zeroed(
             .map(Angle::from_deg),
         twist_zero: zero,
         holding,
+        unwind,
     };
     (out, summary, warnings)
 }

@@ -118,6 +118,49 @@ pub struct BlowJson {
     /// Largest fraction by which the sampled peak can read low (null when the rise is
     /// sampled finely enough).
     pub peak_under_read_ratio: Option<f64>,
+    /// The nut did not advance in this blow (the blows the spring-back gain is measured on).
+    #[serde(default)]
+    pub nut_held: bool,
+    /// Twist just before this blow: the wind-up it struck, degrees.
+    #[serde(default)]
+    pub pre_strike_twist_deg: Option<f64>,
+    /// θp/√(θp² − θr²): how much that wind-up raised this blow's peak (held blows only).
+    #[serde(default)]
+    pub springback_torque_gain_ratio: Option<f64>,
+    /// Energy the blow put into the bar, ½k(θp² − θr²), J (held blows only).
+    #[serde(default)]
+    pub blow_energy_j: Option<f64>,
+    /// Time constant of the unwind after this blow's peak, ms (null when not resolved).
+    #[serde(default)]
+    pub unwind_time_constant_ms: Option<f64>,
+    /// `exponential` or `log_decrement`.
+    #[serde(default)]
+    pub unwind_decay_method: Option<String>,
+    /// Damping ratio of that unwind (log decrement only).
+    #[serde(default)]
+    pub unwind_damping_ratio: Option<f64>,
+    /// Natural frequency of that unwind, Hz (log decrement only).
+    #[serde(default)]
+    pub unwind_natural_frequency_hz: Option<f64>,
+    /// Drive onset interpolated within the frame, s of capture time.
+    #[serde(default)]
+    pub onset_subframe_t_s: Option<f64>,
+    /// Nut onset interpolated within the frame, s.
+    #[serde(default)]
+    pub nut_onset_subframe_t_s: Option<f64>,
+    /// Nut lag from the interpolated onsets, ms.
+    #[serde(default)]
+    pub nut_lag_subframe_ms: Option<f64>,
+    /// ±1.96 standard uncertainties of that lag from the angle noise alone, ms (the form of the
+    /// motion adds more: docs/mechanics.md, "Sub-frame timing").
+    #[serde(default)]
+    pub nut_lag_noise_ci95_ms: Option<f64>,
+    /// Twist at the interpolated nut onset, degrees.
+    #[serde(default)]
+    pub breakaway_subframe_twist_deg: Option<f64>,
+    /// Stiffness × that twist, N·m.
+    #[serde(default)]
+    pub breakaway_subframe_torque_nm: Option<f64>,
 }
 
 /// `report.json`'s `summary`.
@@ -282,6 +325,28 @@ pub fn report(a: &Analysis) -> Report {
                 .filter(|v| v.iter().all(|x| x.is_finite())),
             rise_frames: b.rise_frames,
             peak_under_read_ratio: finite(b.peak_under_read),
+            nut_held: b.unwind.held,
+            pre_strike_twist_deg: deg(b.unwind.pre_strike_twist),
+            springback_torque_gain_ratio: finite(b.unwind.torque_gain),
+            blow_energy_j: finite(b.unwind.energy_j),
+            unwind_time_constant_ms: finite(b.unwind.decay.map(|d| 1e3 * d.time_constant_s())),
+            unwind_decay_method: b.unwind.decay.map(|d| {
+                match d.method {
+                    crate::mechanics::DecayMethod::Exponential => "exponential",
+                    crate::mechanics::DecayMethod::LogDecrement => "log_decrement",
+                }
+                .to_string()
+            }),
+            unwind_damping_ratio: finite(b.unwind.decay.and_then(|d| d.damping_ratio)),
+            unwind_natural_frequency_hz: finite(
+                b.unwind.decay.and_then(|d| d.natural_frequency_hz),
+            ),
+            onset_subframe_t_s: finite(b.onset_subframe_s),
+            nut_onset_subframe_t_s: finite(b.nut_onset_subframe_s),
+            nut_lag_subframe_ms: finite(b.nut_lag_subframe_s.map(|s| s * 1e3)),
+            nut_lag_noise_ci95_ms: finite(b.nut_lag_subframe_sigma_s.map(|s| 1.96e3 * s)),
+            breakaway_subframe_twist_deg: deg(b.breakaway_subframe_twist),
+            breakaway_subframe_torque_nm: nm(b.breakaway_subframe_torque),
         })
         .collect();
     let s = &a.summary;
@@ -488,9 +553,12 @@ mod tests {
             "bytes",
             "first_frame",
             "last_frame",
+            "held_blows",
+            "decay_fits",
         ];
         let units = [
-            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad",
+            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad", "_ratio",
+            "_j", "_hz",
         ];
         fn walk(v: &Value, f: &mut dyn FnMut(&str, &Value)) {
             if let Value::Object(m) = v {

@@ -23,6 +23,7 @@ pub use write::{
     check_folder_not_input, check_not_input, lock_output, write_all, write_file, write_new_atomic,
 };
 
+pub(crate) mod bar_json;
 mod csv;
 mod display;
 mod html;
