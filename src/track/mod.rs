@@ -280,8 +280,9 @@ impl Tracker {
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
-    pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
-        let mut warnings = Vec::new();
+    pub fn finish(mut self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
+        let mut warnings = side::settle(&mut self.drive);
+        warnings.extend(side::settle(&mut self.nut));
         let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
             if t.side.is_some() {
                 return side::relative(t);
