@@ -29,6 +29,7 @@ mod model;
 pub mod random;
 mod scene;
 pub mod side;
+pub mod side_random;
 mod texture;
 mod write;
 

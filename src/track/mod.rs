@@ -245,9 +245,11 @@ impl Tracker {
             self.damaged.push(frame.index);
             self.shake_lost.push(Some(()));
             for t in [&mut self.drive, &mut self.nut] {
-                t.angle.push(None);
-                t.confidence.push(0.0);
-                t.dir_offset.push(None);
+                if t.side.is_none() {
+                    t.angle.push(None);
+                    t.confidence.push(0.0);
+                    t.dir_offset.push(None);
+                }
             }
             return Ok(());
         }
@@ -306,8 +308,15 @@ impl Tracker {
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
-    pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
-        let mut warnings = Vec::new();
+    pub fn finish(mut self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
+        let mut warnings = side::settle(&mut self.drive);
+        warnings.extend(side::settle(&mut self.nut));
+        // A side mark's clip reading covers the frames it kept; damaged frames are null.
+        for t in [&mut self.drive, &mut self.nut] {
+            if t.side.is_some() && !self.damaged.is_empty() {
+                reinsert_damaged(t, &self.frames, &self.damaged);
+            }
+        }
         let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
             if t.side.is_some() {
                 return side::relative(t);
@@ -414,6 +423,27 @@ pub fn rest_offset(
             reason: "the marks could not be measured in both the rest picture and the clip's first analysed frame; check that the rest picture shows the marks as the clip does".into(),
         }),
     }
+}
+
+/// Spreads a side mark's series, read over the frames it kept, back over the whole clip with
+/// a null (confidence 0) at every damaged frame.
+fn reinsert_damaged(t: &mut MarkTrack, frames: &[u64], damaged: &[u64]) {
+    let (mut angle, mut confidence) = (t.angle.drain(..), t.confidence.drain(..));
+    let mut a = Vec::with_capacity(frames.len());
+    let mut c = Vec::with_capacity(frames.len());
+    for f in frames {
+        if damaged.binary_search(f).is_ok() {
+            a.push(None);
+            c.push(0.0);
+        } else {
+            a.push(angle.next().flatten());
+            c.push(confidence.next().unwrap_or(0.0));
+        }
+    }
+    drop((angle, confidence));
+    t.angle = a;
+    t.confidence = c;
+    t.dir_offset = vec![None; frames.len()];
 }
 
 /// Measures one mark in one frame, appending to its series; returns the raw angle.
