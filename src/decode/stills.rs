@@ -317,6 +317,7 @@ impl StillsSource {
             codec,
             duration_s: None,
             warnings,
+            frame_times: None,
         };
         Ok(StillsSource {
             info,

@@ -23,7 +23,6 @@ use ffmpeg_next as ff;
 
 use super::{ClipInfo, ClipKind, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot, ffmpeg_init};
 use crate::error::{Error, Result};
-use crate::warning::Warning;
 
 /// How the luma samples are taken out of a decoded picture.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -124,7 +123,7 @@ impl VideoSource {
                 "the file is empty (0 bytes); give a video file or a folder of stills",
             ));
         }
-        let (stream_index, counted, irregular) = scan(path)?;
+        let (stream_index, counted, frame_times) = scan(path)?;
         let mut ictx = open_input(path)?;
         let stream = ictx
             .stream(stream_index)
@@ -176,14 +175,9 @@ impl VideoSource {
         }
         crate::limits::check_frame_size(path, width, height)?;
         let bit_depth = plan_for(decoder.format()).bit_depth();
-        let mut warnings = Vec::new();
-        if irregular {
-            warnings.push(Warning::Note(
-                "the container's timestamps are irregular (variable frame rate); twistmark \
-                 ignores them and times every frame as frame index / capture rate"
-                    .into(),
-            ));
-        }
+        // Whether uneven timestamps matter depends on the timing the analysis chooses
+        // (docs/conventions.md, "Time"): it notes them there.
+        let warnings = Vec::new();
         // Keep the packet reader at the video stream only.
         for (i, mut s) in ictx.streams_mut().enumerate() {
             if i != stream_index {
@@ -204,6 +198,7 @@ impl VideoSource {
             codec: codec_name,
             duration_s: container_fps_hz.map(|fps| counted as f64 / fps),
             warnings,
+            frame_times,
         };
         Ok(VideoSource {
             info,
@@ -509,8 +504,9 @@ fn open_input(path: &Path) -> Result<ff::format::context::Input> {
 }
 
 /// Opens the file once to pick the video stream and count its frames by demuxing (no
-/// decoding). Returns (stream index, frame count, timestamps irregular).
-fn scan(path: &Path) -> Result<(usize, u64, bool)> {
+/// decoding). Returns (stream index, frame count, each frame's presentation time when every
+/// packet carries a timestamp).
+fn scan(path: &Path) -> Result<(usize, u64, Option<crate::decode::FrameTimes>)> {
     let mut ictx = open_input(path)?;
     let demuxer = ictx.format().name().to_string();
     if demuxer == "tty" {
@@ -543,6 +539,11 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
         };
         return Err(Error::input(path, reason));
     };
+    let tick_s = ictx
+        .stream(index)
+        .map(|s| s.time_base())
+        .filter(|r| r.numerator() > 0 && r.denominator() > 0)
+        .map_or(0.0, f64::from);
     let mut count = 0u64;
     let mut stamps: Vec<i64> = Vec::new();
     let mut packet = ff::Packet::empty();
@@ -565,7 +566,11 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             continue;
         }
         count += 1;
-        if let Some(t) = packet.pts().or(packet.dts()) {
+        // Presentation timestamps only: a decoding timestamp is in decoding order, and a
+        // frame without a pts leaves the whole clip to be timed by its rate.
+        if let Some(t) = packet.pts()
+            && stamps.len() < crate::limits::MAX_FRAMES_TIMED
+        {
             stamps.push(t);
         }
     }
@@ -585,21 +590,12 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             "has a video stream but no frames in it; the recording may have failed",
         ));
     }
-    Ok((index, count, timestamps_irregular(&mut stamps)))
-}
-
-/// True when frame timestamps (in stream ticks) vary by more than rounding explains: the
-/// spread of successive differences is over 2 ticks and over 10 % of the median interval.
-fn timestamps_irregular(stamps: &mut [i64]) -> bool {
-    if stamps.len() < 3 {
-        return false;
-    }
-    stamps.sort_unstable();
-    let mut diffs: Vec<i64> = stamps.windows(2).map(|p| p[1] - p[0]).collect();
-    diffs.sort_unstable();
-    let median = diffs[diffs.len() / 2];
-    let spread = diffs[diffs.len() - 1] - diffs[0];
-    spread > 2 && spread as f64 > 0.1 * median as f64
+    let times = if stamps.len() as u64 == count {
+        crate::decode::FrameTimes::from_ticks(&mut stamps, tick_s)
+    } else {
+        None
+    };
+    Ok((index, count, times))
 }
 
 fn copy_u8(
@@ -822,24 +818,6 @@ mod tests {
         assert!(!bottom_up(&pic));
     }
 
-    #[test]
-    fn timestamp_regularity() {
-        // Matroska at 240 fps: 1 ms rounding gives 4 or 5 ms steps; still regular.
-        let mut mkv: Vec<i64> = (0..50)
-            .map(|i| (i as f64 * 1000.0 / 240.0).round() as i64)
-            .collect();
-        assert!(!timestamps_irregular(&mut mkv));
-        // 2000 fps in 1 ms ticks: steps of 0 or 1.
-        let mut fast: Vec<i64> = (0..50).map(|i| i / 2).collect();
-        assert!(!timestamps_irregular(&mut fast));
-        // A 30 fps clip with a dropped stretch.
-        let mut vfr: Vec<i64> = (0..20)
-            .map(|i| i * 33)
-            .chain((20..40).map(|i| i * 33 + 200))
-            .collect();
-        assert!(timestamps_irregular(&mut vfr));
-    }
-
     fn pattern(i: u64, w: u32, h: u32) -> Frame {
         let data = (0..w * h)
             .map(|p| (((p % w) * 5 + (p / w) * 3 + i as u32 * 11) % 251) as u8)
@@ -989,7 +967,7 @@ mod tests {
     }
 
     #[test]
-    fn variable_frame_rate_is_noted_and_frames_still_count() {
+    fn variable_frame_rate_keeps_each_frames_time_and_frames_still_count() {
         use crate::encode::{ClipWriter, Codec};
         let dir = tempfile::tempdir().unwrap();
         for ext in ["mkv", "mov"] {
@@ -1004,13 +982,18 @@ mod tests {
             w.finish().unwrap();
             let (info, frames) = decode_all(&p);
             assert_eq!((info.frames, frames.len()), (20, 20), ".{ext}");
-            assert!(
-                info.warnings
-                    .iter()
-                    .any(|w| matches!(w, Warning::Note(s) if s.contains("variable frame rate"))),
-                ".{ext}: {:?}",
-                info.warnings
-            );
+            // Presentation times carry the hole: frame 10 is at 40 ticks of 1/30 s.
+            let t = info
+                .frame_times
+                .as_ref()
+                .expect("timestamps")
+                .times_s
+                .clone();
+            assert_eq!(t.len(), 20, ".{ext}");
+            assert!((t[9] - 9.0 / 30.0).abs() < 2e-3, ".{ext}: {t:?}");
+            assert!((t[10] - 40.0 / 30.0).abs() < 2e-3, ".{ext}: {t:?}");
+            let e = info.frame_times.as_ref().unwrap().evenness().unwrap();
+            assert!(e.uneven() && e.worst_at == 10, ".{ext}: {e:?}");
             // Indices still count decoded frames, whatever the timestamps say.
             assert_eq!(frames[10].index, 10);
             assert_eq!(frames[10], pattern(10, 16, 16));
