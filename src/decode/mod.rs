@@ -13,6 +13,7 @@ use crate::warning::Warning;
 
 mod stills;
 pub(crate) use stills::read_still;
+mod rotate;
 pub mod timing;
 pub use timing::FrameTimes;
 #[cfg(feature = "ffmpeg")]
@@ -331,6 +332,9 @@ pub struct ClipInfo {
     /// Each frame's presentation time from the container (None for stills, frames in memory
     /// without times, or a stream whose packets carry no timestamps).
     pub frame_times: Option<FrameTimes>,
+    /// The container's display rotation, degrees clockwise (0, 90, 180 or 270). Frames are
+    /// already turned by it: `width` and `height` are the displayed picture's.
+    pub display_rotation_deg: u32,
 }
 
 /// A stream of frames from one clip.
@@ -479,6 +483,7 @@ impl MemorySource {
             duration_s: None,
             warnings: Vec::new(),
             frame_times: None,
+            display_rotation_deg: 0,
         };
         MemorySource {
             info,

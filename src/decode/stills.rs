@@ -318,6 +318,7 @@ impl StillsSource {
             duration_s: None,
             warnings,
             frame_times: None,
+            display_rotation_deg: 0,
         };
         Ok(StillsSource {
             info,

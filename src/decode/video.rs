@@ -95,6 +95,10 @@ pub struct VideoSource {
     next_index: u64,
     eof_sent: bool,
     done: bool,
+    /// The stored (coded) picture size, before the display rotation.
+    coded: (u32, u32),
+    /// Display rotation, degrees clockwise: each frame is turned by it.
+    rotation_cw: u32,
 }
 
 /// FFmpeg's pixel-format converter, the one part of [`VideoSource`] that ffmpeg-next does not
@@ -128,6 +132,7 @@ impl VideoSource {
         let stream = ictx
             .stream(stream_index)
             .ok_or_else(|| Error::input(path, "the video stream vanished on reopening"))?;
+        let rotation_cw = display_rotation(&stream);
         let params = stream.parameters();
         let codec_name = params.id().name().to_string();
         let container_fps_hz = [stream.avg_frame_rate(), stream.rate()]
@@ -187,18 +192,24 @@ impl VideoSource {
                 }
             }
         }
+        let (shown_w, shown_h) = if rotation_cw % 180 == 90 {
+            (height, width)
+        } else {
+            (width, height)
+        };
         let info = ClipInfo {
             path: path.to_path_buf(),
             kind: ClipKind::Video,
             frames: counted,
-            width,
-            height,
+            width: shown_w,
+            height: shown_h,
             bit_depth,
             container_fps_hz,
             codec: codec_name,
             duration_s: container_fps_hz.map(|fps| counted as f64 / fps),
             warnings,
             frame_times,
+            display_rotation_deg: rotation_cw,
         };
         Ok(VideoSource {
             info,
@@ -212,6 +223,8 @@ impl VideoSource {
             next_index: 0,
             eof_sent: false,
             done: false,
+            coded: (width, height),
+            rotation_cw,
         })
     }
 
@@ -322,10 +335,10 @@ impl VideoSource {
             ));
         }
         let (w, h) = (self.picture.width(), self.picture.height());
-        if w != self.info.width || h != self.info.height {
+        if (w, h) != self.coded {
             return Err(self.decode_error(format!(
                 "the frame size changed from {}x{} to {w}x{h}; twistmark needs one size per clip",
-                self.info.width, self.info.height
+                self.coded.0, self.coded.1
             )));
         }
         let plan = plan_for(self.picture.format());
@@ -343,6 +356,7 @@ impl VideoSource {
     /// sample), so its luma can be read in place; otherwise it must be copied or converted.
     fn packed(&self, plan: LumaPlan) -> bool {
         plan == (LumaPlan::Direct8 { offset: 0, step: 1 })
+            && self.rotation_cw == 0
             && self.picture.stride(0) == self.info.width as usize
     }
 
@@ -400,6 +414,25 @@ impl VideoSource {
             }
         }
         Ok(())
+    }
+}
+
+/// The stream's display rotation, degrees clockwise (0 without a display matrix).
+fn display_rotation(stream: &ff::format::stream::Stream) -> u32 {
+    let mut size: usize = 0;
+    // SAFETY: the stream pointer is valid for the lifetime of `stream`; the side data, when
+    // present, is at least `size` bytes owned by the stream, and a display matrix is nine
+    // 32-bit integers, checked before it is read.
+    unsafe {
+        let p = ff::ffi::av_stream_get_side_data(
+            stream.as_ptr(),
+            ff::ffi::AVPacketSideDataType::AV_PKT_DATA_DISPLAYMATRIX,
+            &mut size,
+        );
+        if p.is_null() || size < 9 * std::mem::size_of::<i32>() {
+            return 0;
+        }
+        super::rotate::clockwise_quarter_turns(ff::ffi::av_display_rotation_get(p as *const i32))
     }
 }
 
@@ -691,6 +724,7 @@ impl FrameSource for VideoSource {
             .picture_plan()
             .and_then(|plan| self.copy_out(plan, frame));
         self.stop_on_error(copied)?;
+        super::rotate::rotate_frame(frame, self.rotation_cw);
         self.next_index += 1;
         Ok(true)
     }
@@ -708,6 +742,7 @@ impl FrameSource for VideoSource {
         } else {
             let copied = self.copy_out(plan, &mut slot.frame);
             self.stop_on_error(copied)?;
+            super::rotate::rotate_frame(&mut slot.frame, self.rotation_cw);
         }
         self.next_index += 1;
         Ok(true)
@@ -997,6 +1032,27 @@ mod tests {
             // Indices still count decoded frames, whatever the timestamps say.
             assert_eq!(frames[10].index, 10);
             assert_eq!(frames[10], pattern(10, 16, 16));
+        }
+    }
+
+    #[test]
+    fn a_display_rotation_turns_frames_to_the_displayed_picture() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        for rot in [90u32, 180, 270] {
+            let p = dir.path().join(format!("turned{rot}.mov"));
+            // Stored 16 × 8, one bright pixel at stored (1, 0).
+            let mut d = vec![0u8; 16 * 8];
+            d[1] = 255;
+            let mut w = ClipWriter::create_rotated(&p, Codec::Ffv1, 16, 8, 30.0, rot).unwrap();
+            w.write(&Frame::from_u8(0, 16, 8, d.clone())).unwrap();
+            w.finish().unwrap();
+            let (info, frames) = decode_all(&p);
+            assert_eq!(info.display_rotation_deg, rot);
+            let want = crate::decode::rotate::rotate_plane(&d, 16, 8, rot);
+            let (ww, wh) = if rot == 180 { (16, 8) } else { (8, 16) };
+            assert_eq!((info.width, info.height), (ww, wh));
+            assert_eq!(frames[0].luma, Luma::U8(want), "{rot}");
         }
     }
 }

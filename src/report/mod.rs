@@ -238,6 +238,7 @@ pub(crate) mod tests {
                 duration_s: None,
                 warnings: Vec::new(),
                 frame_times: None,
+                display_rotation_deg: 0,
             },
             rig,
             time_base: tb,
