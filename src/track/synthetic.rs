@@ -295,7 +295,14 @@ pub fn captured_only(trace: &Trace) -> (Trace, Vec<usize>) {
     let keep: Vec<usize> = (0..n).filter(|&i| !trace.is_synthetic(i)).collect();
     let pick = |v: &[Option<crate::units::Angle>]| keep.iter().map(|&i| v[i]).collect();
     let pickf = |v: &[f32]| keep.iter().map(|&i| v[i]).collect();
-    let rate = trace.time_base.fps_hz() * keep.len() as f64 / n as f64;
+    // The captured rate: one over the median interval between captured frames (repeats may
+    // sit between frames rather than replace one, so the kept share alone can mislead).
+    let kept_t: Vec<f64> = keep.iter().map(|&i| trace.t_s(i)).collect();
+    let gaps: Vec<f64> = kept_t.windows(2).map(|w| w[1] - w[0]).collect();
+    let rate = match crate::stats::median(&gaps) {
+        Some(g) if g > 0.0 => 1.0 / g,
+        _ => trace.time_base.fps_hz() * keep.len() as f64 / n as f64,
+    };
     let out = Trace {
         time_base: TimeBase::from_fps(rate, "captured rate").unwrap_or(trace.time_base),
         times_s: keep.iter().map(|&i| trace.t_s(i)).collect(),
