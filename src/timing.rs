@@ -134,14 +134,6 @@ pub fn apply(
             at_frame: trace.frames[e.worst_at],
             tolerance: UNEVEN_TOLERANCE,
         }),
-        (TimingSource::CaptureRate, Some(e)) => Some(Warning::Note(format!(
-            "the container's timestamps are uneven (one interval is {:.3} ms against a median \
-             of {:.3} ms, at frame {}); twistmark times every frame as frame index / capture \
-             rate as asked; give --timing timestamps to use them",
-            e.worst_interval_s * 1e3,
-            e.median_interval_s * 1e3,
-            trace.frames[e.worst_at]
-        ))),
         _ => None,
     };
     if source == TimingSource::Timestamps {

@@ -180,9 +180,21 @@ impl VideoSource {
         }
         crate::limits::check_frame_size(path, width, height)?;
         let bit_depth = plan_for(decoder.format()).bit_depth();
-        // Whether uneven timestamps matter depends on the timing the analysis chooses
-        // (docs/conventions.md, "Time"): it notes them there.
-        let warnings = Vec::new();
+        let mut warnings = Vec::new();
+        if let Some(e) = frame_times
+            .as_ref()
+            .and_then(crate::decode::FrameTimes::evenness)
+            .filter(crate::decode::timing::Evenness::uneven)
+        {
+            warnings.push(crate::warning::Warning::Note(format!(
+                "the container's timestamps are uneven (variable frame rate; one interval is \
+                 {:.3} ms against a median of {:.3} ms): with --fps or the rig's capture_fps_hz \
+                 frames are timed as frame index / capture rate, without them by these \
+                 timestamps (summary.timing says which)",
+                e.worst_interval_s * 1e3,
+                e.median_interval_s * 1e3
+            )));
+        }
         // Keep the packet reader at the video stream only.
         for (i, mut s) in ictx.streams_mut().enumerate() {
             if i != stream_index {
