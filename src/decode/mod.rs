@@ -13,6 +13,7 @@ use crate::warning::Warning;
 
 mod stills;
 pub(crate) use stills::read_still;
+#[cfg(feature = "ffmpeg")]
 mod rotate;
 pub mod timing;
 pub use timing::FrameTimes;
