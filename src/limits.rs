@@ -22,6 +22,10 @@ pub const MAX_FRAME_SIDE: u32 = 1 << 15;
 /// a few hundred lines).
 pub const MAX_TEXT_BYTES: u64 = 16 << 20;
 
+/// Most frames whose presentation timestamps are kept (8 bytes each: 128 MiB at the cap, 19
+/// hours at 240 fps). A longer clip is timed by its rate.
+pub const MAX_FRAMES_TIMED: usize = 1 << 24;
+
 /// Most worker threads per core a batch may start (`--jobs` above this is clamped).
 pub const MAX_JOBS_PER_CORE: usize = 4;
 

@@ -74,6 +74,39 @@ pub enum Warning {
         /// The last damaged frame (clip frame index).
         last_frame: u64,
     },
+    /// The frames' timestamps are uneven beyond the tolerance (the clip is timed by them).
+    UnevenTiming {
+        /// Median interval between frames, ms.
+        median_interval_ms: f64,
+        /// The interval that departs most from the median, ms.
+        worst_interval_ms: f64,
+        /// The clip frame that ends that interval.
+        at_frame: u64,
+        /// Departure allowed, as a fraction of the median interval.
+        tolerance: f64,
+    },
+    /// Many frames were repeated or synthesised rather than captured: the real capture rate
+    /// is lower than the file says.
+    SyntheticFrames {
+        /// Frames that repeat the one before.
+        duplicated: usize,
+        /// Frames that blend or interpolate their neighbours.
+        interpolated: usize,
+        /// Analysed frames.
+        frames: usize,
+        /// The rate the file's timing says, Hz.
+        nominal_fps_hz: f64,
+        /// Nominal rate × the captured share, Hz.
+        captured_fps_estimate_hz: f64,
+    },
+    /// A rolling shutter's row skew may exceed the tracking accuracy, and its readout time is
+    /// unknown.
+    RollingShutterUnknown {
+        /// Largest angle change over one frame interval seen in the clip, degrees.
+        max_step_deg: f64,
+        /// Skew that change would give at a readout of a whole frame interval, degrees.
+        skew_bound_deg: f64,
+    },
     /// Any other data-quality note with its own explanation.
     Note(String),
 }
@@ -147,6 +180,43 @@ impl fmt::Display for Warning {
                      complete trace"
                 )
             }
+            Warning::UnevenTiming {
+                median_interval_ms,
+                worst_interval_ms,
+                at_frame,
+                tolerance,
+            } => write!(
+                f,
+                "the frames' timestamps are uneven: the interval ending at frame {at_frame} is \
+                 {worst_interval_ms:.3} ms against a median of {median_interval_ms:.3} ms (more \
+                 than {:.0} % off); every time uses the real timestamps, but a camera that drops \
+                 or repeats frames may have missed part of a blow",
+                tolerance * 100.0
+            ),
+            Warning::SyntheticFrames {
+                duplicated,
+                interpolated,
+                frames,
+                nominal_fps_hz,
+                captured_fps_estimate_hz,
+            } => write!(
+                f,
+                "{duplicated} repeated and {interpolated} synthesised (blended or interpolated) \
+                 frames out of {frames}: the camera really captured about \
+                 {captured_fps_estimate_hz:.0} fps, not the {nominal_fps_hz:.0} fps the file \
+                 says; those frames are left out of peaks, onsets and timing, so peaks are \
+                 sampled at the lower rate"
+            ),
+            Warning::RollingShutterUnknown {
+                max_step_deg,
+                skew_bound_deg,
+            } => write!(
+                f,
+                "a mark turns up to {max_step_deg:.2}° between frames: a rolling shutter could \
+                 skew its angle by up to {skew_bound_deg:.2}° across the stripe; if the camera \
+                 has one (phones do), give its readout time as \"camera\": \
+                 {{\"rolling_shutter_ms\": t}} in the rig"
+            ),
             Warning::Note(s) => f.write_str(s),
         }
     }

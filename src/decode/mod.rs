@@ -1,8 +1,10 @@
 //! Stage 1, decode: turns a clip (a video file or a folder of numbered stills) into a stream of
 //! luma frames, one at a time, so memory does not grow with clip length.
 //!
-//! Frame indices count from 0 at the clip's first frame. Time is never taken from container
-//! timestamps: it is frame index / capture rate (see [`crate::TimeBase`]).
+//! Frame indices count from 0 at the clip's first frame. A video also reports each frame's
+//! presentation time ([`ClipInfo::frame_times`]); the analysis decides whether time is frame
+//! index / capture rate (see [`crate::TimeBase`]) or those timestamps (docs/conventions.md,
+//! "Time").
 
 use std::path::{Path, PathBuf};
 
@@ -11,6 +13,10 @@ use crate::warning::Warning;
 
 mod stills;
 pub(crate) use stills::read_still;
+#[cfg(feature = "ffmpeg")]
+mod rotate;
+pub mod timing;
+pub use timing::FrameTimes;
 #[cfg(feature = "ffmpeg")]
 mod video;
 
@@ -333,6 +339,12 @@ pub struct ClipInfo {
     pub duration_s: Option<f64>,
     /// Problems noticed while opening (gaps in numbering, ...).
     pub warnings: Vec<Warning>,
+    /// Each frame's presentation time from the container (None for stills, frames in memory
+    /// without times, or a stream whose packets carry no timestamps).
+    pub frame_times: Option<FrameTimes>,
+    /// The container's display rotation, degrees clockwise (0, 90, 180 or 270). Frames are
+    /// already turned by it: `width` and `height` are the displayed picture's.
+    pub display_rotation_deg: u32,
 }
 
 /// A stream of frames from one clip.
@@ -481,11 +493,32 @@ impl MemorySource {
             codec: "raw".into(),
             duration_s: None,
             warnings: Vec::new(),
+            frame_times: None,
+            display_rotation_deg: 0,
         };
         MemorySource {
             info,
             frames: frames.into_iter(),
         }
+    }
+}
+
+impl MemorySource {
+    /// A source over `frames` whose container times each frame: `times_s[i]` is frame i's
+    /// presentation time, s, on a timestamp tick of `tick_s` (as a phone's file would).
+    ///
+    /// # Panics
+    /// As [`MemorySource::new`], and when the lengths differ.
+    pub fn with_times(
+        frames: Vec<Frame>,
+        container_fps_hz: Option<f64>,
+        times_s: Vec<f64>,
+        tick_s: f64,
+    ) -> Self {
+        assert_eq!(frames.len(), times_s.len(), "one time per frame");
+        let mut s = MemorySource::new(frames, container_fps_hz);
+        s.info.frame_times = Some(FrameTimes { times_s, tick_s });
+        s
     }
 }
 

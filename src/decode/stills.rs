@@ -318,6 +318,8 @@ impl StillsSource {
             codec,
             duration_s: None,
             warnings,
+            frame_times: None,
+            display_rotation_deg: 0,
         };
         Ok(StillsSource {
             info,

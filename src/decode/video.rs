@@ -23,7 +23,6 @@ use ffmpeg_next as ff;
 
 use super::{ClipInfo, ClipKind, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot, ffmpeg_init};
 use crate::error::{Error, Result};
-use crate::warning::Warning;
 
 /// How the luma samples are taken out of a decoded picture.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -104,6 +103,10 @@ pub struct VideoSource {
     /// Frames are independent (every frame a key frame), so one damaged packet costs exactly
     /// one frame and decoding can go on after it.
     intra_only: bool,
+    /// The stored (coded) picture size, before the display rotation.
+    coded: (u32, u32),
+    /// Display rotation, degrees clockwise: each frame is turned by it.
+    rotation_cw: u32,
 }
 
 /// FFmpeg's pixel-format converter, the one part of [`VideoSource`] that ffmpeg-next does not
@@ -132,11 +135,12 @@ impl VideoSource {
                 "the file is empty (0 bytes); give a video file or a folder of stills",
             ));
         }
-        let (stream_index, counted, irregular) = scan(path)?;
+        let (stream_index, counted, frame_times) = scan(path)?;
         let mut ictx = open_input(path)?;
         let stream = ictx
             .stream(stream_index)
             .ok_or_else(|| Error::input(path, "the video stream vanished on reopening"))?;
+        let rotation_cw = display_rotation(&stream);
         let params = stream.parameters();
         let codec_name = params.id().name().to_string();
         let intra_only = intra_only(params.id());
@@ -189,12 +193,19 @@ impl VideoSource {
         crate::limits::check_frame_size(path, width, height)?;
         let bit_depth = plan_for(decoder.format()).bit_depth();
         let mut warnings = Vec::new();
-        if irregular {
-            warnings.push(Warning::Note(
-                "the container's timestamps are irregular (variable frame rate); twistmark \
-                 ignores them and times every frame as frame index / capture rate"
-                    .into(),
-            ));
+        if let Some(e) = frame_times
+            .as_ref()
+            .and_then(crate::decode::FrameTimes::evenness)
+            .filter(crate::decode::timing::Evenness::uneven)
+        {
+            warnings.push(crate::warning::Warning::Note(format!(
+                "the container's timestamps are uneven (variable frame rate; one interval is \
+                 {:.3} ms against a median of {:.3} ms): with --fps or the rig's capture_fps_hz \
+                 frames are timed as frame index / capture rate, without them by these \
+                 timestamps (summary.timing says which)",
+                e.worst_interval_s * 1e3,
+                e.median_interval_s * 1e3
+            )));
         }
         // Keep the packet reader at the video stream only.
         for (i, mut s) in ictx.streams_mut().enumerate() {
@@ -205,17 +216,24 @@ impl VideoSource {
                 }
             }
         }
+        let (shown_w, shown_h) = if rotation_cw % 180 == 90 {
+            (height, width)
+        } else {
+            (width, height)
+        };
         let info = ClipInfo {
             path: path.to_path_buf(),
             kind: ClipKind::Video,
             frames: counted,
-            width,
-            height,
+            width: shown_w,
+            height: shown_h,
             bit_depth,
             container_fps_hz,
             codec: codec_name,
             duration_s: container_fps_hz.map(|fps| counted as f64 / fps),
             warnings,
+            frame_times,
+            display_rotation_deg: rotation_cw,
         };
         Ok(VideoSource {
             info,
@@ -232,6 +250,8 @@ impl VideoSource {
             picture_damaged: false,
             lost_frame: false,
             intra_only,
+            coded: (width, height),
+            rotation_cw,
         })
     }
 
@@ -343,10 +363,10 @@ impl VideoSource {
             ));
         }
         let (w, h) = (self.picture.width(), self.picture.height());
-        if w != self.info.width || h != self.info.height {
+        if (w, h) != self.coded {
             return Err(self.decode_error(format!(
                 "the frame size changed from {}x{} to {w}x{h}; twistmark needs one size per clip",
-                self.info.width, self.info.height
+                self.coded.0, self.coded.1
             )));
         }
         let plan = plan_for(self.picture.format());
@@ -364,6 +384,7 @@ impl VideoSource {
     /// sample), so its luma can be read in place; otherwise it must be copied or converted.
     fn packed(&self, plan: LumaPlan) -> bool {
         plan == (LumaPlan::Direct8 { offset: 0, step: 1 })
+            && self.rotation_cw == 0
             && self.picture.stride(0) == self.info.width as usize
     }
 
@@ -470,6 +491,25 @@ fn is_fatal(e: &ff::Error) -> bool {
     )
 }
 
+/// The stream's display rotation, degrees clockwise (0 without a display matrix).
+fn display_rotation(stream: &ff::format::stream::Stream) -> u32 {
+    let mut size: usize = 0;
+    // SAFETY: the stream pointer is valid for the lifetime of `stream`; the side data, when
+    // present, is at least `size` bytes owned by the stream, and a display matrix is nine
+    // 32-bit integers, checked before it is read.
+    unsafe {
+        let p = ff::ffi::av_stream_get_side_data(
+            stream.as_ptr(),
+            ff::ffi::AVPacketSideDataType::AV_PKT_DATA_DISPLAYMATRIX,
+            &mut size,
+        );
+        if p.is_null() || size < 9 * std::mem::size_of::<i32>() {
+            return 0;
+        }
+        super::rotate::clockwise_quarter_turns(ff::ffi::av_display_rotation_get(p as *const i32))
+    }
+}
+
 /// True when any plane of `pic` has a negative line stride (stored bottom-up, as some decoders
 /// give): ffmpeg-next's plane slices assume a positive stride, so such a picture must not be
 /// read through them.
@@ -571,8 +611,9 @@ fn open_input(path: &Path) -> Result<ff::format::context::Input> {
 }
 
 /// Opens the file once to pick the video stream and count its frames by demuxing (no
-/// decoding). Returns (stream index, frame count, timestamps irregular).
-fn scan(path: &Path) -> Result<(usize, u64, bool)> {
+/// decoding). Returns (stream index, frame count, each frame's presentation time when every
+/// packet carries a timestamp).
+fn scan(path: &Path) -> Result<(usize, u64, Option<crate::decode::FrameTimes>)> {
     let mut ictx = open_input(path)?;
     let demuxer = ictx.format().name().to_string();
     if demuxer == "tty" {
@@ -605,6 +646,11 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
         };
         return Err(Error::input(path, reason));
     };
+    let tick_s = ictx
+        .stream(index)
+        .map(|s| s.time_base())
+        .filter(|r| r.numerator() > 0 && r.denominator() > 0)
+        .map_or(0.0, f64::from);
     let mut count = 0u64;
     let mut stamps: Vec<i64> = Vec::new();
     let mut packet = ff::Packet::empty();
@@ -627,7 +673,11 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             continue;
         }
         count += 1;
-        if let Some(t) = packet.pts().or(packet.dts()) {
+        // Presentation timestamps only: a decoding timestamp is in decoding order, and a
+        // frame without a pts leaves the whole clip to be timed by its rate.
+        if let Some(t) = packet.pts()
+            && stamps.len() < crate::limits::MAX_FRAMES_TIMED
+        {
             stamps.push(t);
         }
     }
@@ -647,21 +697,12 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             "has a video stream but no frames in it; the recording may have failed",
         ));
     }
-    Ok((index, count, timestamps_irregular(&mut stamps)))
-}
-
-/// True when frame timestamps (in stream ticks) vary by more than rounding explains: the
-/// spread of successive differences is over 2 ticks and over 10 % of the median interval.
-fn timestamps_irregular(stamps: &mut [i64]) -> bool {
-    if stamps.len() < 3 {
-        return false;
-    }
-    stamps.sort_unstable();
-    let mut diffs: Vec<i64> = stamps.windows(2).map(|p| p[1] - p[0]).collect();
-    diffs.sort_unstable();
-    let median = diffs[diffs.len() / 2];
-    let spread = diffs[diffs.len() - 1] - diffs[0];
-    spread > 2 && spread as f64 > 0.1 * median as f64
+    let times = if stamps.len() as u64 == count {
+        crate::decode::FrameTimes::from_ticks(&mut stamps, tick_s)
+    } else {
+        None
+    };
+    Ok((index, count, times))
 }
 
 fn copy_u8(
@@ -754,12 +795,14 @@ impl FrameSource for VideoSource {
             return Ok(false);
         }
         if self.lost_frame {
+            // The placeholder is made at the displayed size already.
             self.placeholder(frame);
         } else {
             let copied = self
                 .picture_plan()
                 .and_then(|plan| self.copy_out(plan, frame));
             self.stop_on_error(copied)?;
+            super::rotate::rotate_frame(frame, self.rotation_cw);
         }
         self.next_index += 1;
         Ok(true)
@@ -784,6 +827,7 @@ impl FrameSource for VideoSource {
         } else {
             let copied = self.copy_out(plan, &mut slot.frame);
             self.stop_on_error(copied)?;
+            super::rotate::rotate_frame(&mut slot.frame, self.rotation_cw);
         }
         self.next_index += 1;
         Ok(true)
@@ -897,24 +941,6 @@ mod tests {
         // SAFETY: as above.
         unsafe { (*pic.as_mut_ptr()).linesize[0] *= -1 };
         assert!(!bottom_up(&pic));
-    }
-
-    #[test]
-    fn timestamp_regularity() {
-        // Matroska at 240 fps: 1 ms rounding gives 4 or 5 ms steps; still regular.
-        let mut mkv: Vec<i64> = (0..50)
-            .map(|i| (i as f64 * 1000.0 / 240.0).round() as i64)
-            .collect();
-        assert!(!timestamps_irregular(&mut mkv));
-        // 2000 fps in 1 ms ticks: steps of 0 or 1.
-        let mut fast: Vec<i64> = (0..50).map(|i| i / 2).collect();
-        assert!(!timestamps_irregular(&mut fast));
-        // A 30 fps clip with a dropped stretch.
-        let mut vfr: Vec<i64> = (0..20)
-            .map(|i| i * 33)
-            .chain((20..40).map(|i| i * 33 + 200))
-            .collect();
-        assert!(timestamps_irregular(&mut vfr));
     }
 
     fn pattern(i: u64, w: u32, h: u32) -> Frame {
@@ -1066,7 +1092,7 @@ mod tests {
     }
 
     #[test]
-    fn variable_frame_rate_is_noted_and_frames_still_count() {
+    fn variable_frame_rate_keeps_each_frames_time_and_frames_still_count() {
         use crate::encode::{ClipWriter, Codec};
         let dir = tempfile::tempdir().unwrap();
         for ext in ["mkv", "mov"] {
@@ -1081,16 +1107,42 @@ mod tests {
             w.finish().unwrap();
             let (info, frames) = decode_all(&p);
             assert_eq!((info.frames, frames.len()), (20, 20), ".{ext}");
-            assert!(
-                info.warnings
-                    .iter()
-                    .any(|w| matches!(w, Warning::Note(s) if s.contains("variable frame rate"))),
-                ".{ext}: {:?}",
-                info.warnings
-            );
+            // Presentation times carry the hole: frame 10 is at 40 ticks of 1/30 s.
+            let t = info
+                .frame_times
+                .as_ref()
+                .expect("timestamps")
+                .times_s
+                .clone();
+            assert_eq!(t.len(), 20, ".{ext}");
+            assert!((t[9] - 9.0 / 30.0).abs() < 2e-3, ".{ext}: {t:?}");
+            assert!((t[10] - 40.0 / 30.0).abs() < 2e-3, ".{ext}: {t:?}");
+            let e = info.frame_times.as_ref().unwrap().evenness().unwrap();
+            assert!(e.uneven() && e.worst_at == 10, ".{ext}: {e:?}");
             // Indices still count decoded frames, whatever the timestamps say.
             assert_eq!(frames[10].index, 10);
             assert_eq!(frames[10], pattern(10, 16, 16));
+        }
+    }
+
+    #[test]
+    fn a_display_rotation_turns_frames_to_the_displayed_picture() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        for rot in [90u32, 180, 270] {
+            let p = dir.path().join(format!("turned{rot}.mov"));
+            // Stored 16 × 8, one bright pixel at stored (1, 0).
+            let mut d = vec![0u8; 16 * 8];
+            d[1] = 255;
+            let mut w = ClipWriter::create_rotated(&p, Codec::Ffv1, 16, 8, 30.0, rot).unwrap();
+            w.write(&Frame::from_u8(0, 16, 8, d.clone())).unwrap();
+            w.finish().unwrap();
+            let (info, frames) = decode_all(&p);
+            assert_eq!(info.display_rotation_deg, rot);
+            let want = crate::decode::rotate::rotate_plane(&d, 16, 8, rot);
+            let (ww, wh) = if rot == 180 { (16, 8) } else { (8, 16) };
+            assert_eq!((info.width, info.height), (ww, wh));
+            assert_eq!(frames[0].luma, Luma::U8(want), "{rot}");
         }
     }
 }

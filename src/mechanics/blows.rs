@@ -321,16 +321,15 @@ pub fn blow_metrics_zeroed(
             breakaway_subframe_torque: torque(breakaway_subframe_twist),
             index: k + 1,
             frame,
-            t_s: trace.time_base.seconds(frame as f64),
+            t_s: trace.t_s(b.onset),
             drive_advance: adv(&drive).map(Angle::from_deg),
             nut_advance,
             peak_twist,
             peak_torque: torque(peak_twist),
             residual_twist: level(&twist, last).map(Angle::from_deg),
-            nut_lag_s: nut_onset.and_then(|i| {
-                let f = trace.frames.get(i)?;
-                Some(f.saturating_sub(frame) as f64 / fps)
-            }),
+            nut_lag_s: nut_onset
+                .filter(|&i| i < trace.len())
+                .map(|i| (trace.t_s(i) - trace.t_s(b.onset)).max(0.0)),
             nut_onset_frame: nut_onset.and_then(|i| trace.frames.get(i).copied()),
             breakaway_twist,
             breakaway_torque: torque(breakaway_twist),
@@ -658,6 +657,8 @@ mod tests {
         let n = drive.len();
         Trace {
             time_base: TimeBase::from_fps(1000.0, "t").unwrap(),
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (100..100 + n as u64).collect(),
             drive: drive.iter().map(|&d| Some(Angle::from_deg(d))).collect(),
             nut: nut.iter().map(|&d| Some(Angle::from_deg(d))).collect(),
@@ -846,6 +847,8 @@ mod tests {
                 let n = v.len();
                 let trace = Trace {
                     time_base: TimeBase::from_fps(3000.0, "t").unwrap(),
+                    times_s: Vec::new(),
+                    synthetic: Vec::new(),
                     frames: (0..n as u64).collect(),
                     drive: v.iter().map(|p| p.0.map(Angle::from_deg)).collect(),
                     nut: v.iter().map(|p| p.1.map(Angle::from_deg)).collect(),

@@ -60,7 +60,8 @@ pub struct Report {
 /// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TraceJson {
-    /// Time, s (clip frame index / capture rate).
+    /// Time, s: clip frame index / capture rate, or the frame's timestamp when
+    /// `summary.timing.source` is `timestamps`.
     pub t_s: Vec<f64>,
     /// Clip frame index.
     pub frame: Vec<u64>,
@@ -74,6 +75,10 @@ pub struct TraceJson {
     pub drive_confidence: Vec<f64>,
     /// Tracker confidence of each nut angle, 0 to 1.
     pub nut_confidence: Vec<f64>,
+    /// True where the frame was repeated or synthesised, not captured: its angles are shown
+    /// but not used for peaks, onsets or timing (empty in reports that predate it).
+    #[serde(default)]
+    pub synthetic: Vec<bool>,
 }
 
 /// One entry of `report.json`'s `blows`.
@@ -83,7 +88,7 @@ pub struct BlowJson {
     pub index: usize,
     /// Clip frame index of the drive end's onset.
     pub frame: u64,
-    /// `frame / fps`, s.
+    /// The onset frame's time, s (`frame / fps`, or its timestamp; see the trace's `t_s`).
     pub t_s: f64,
     /// Drive-end advance from just before this blow to just before the next, degrees.
     pub drive_advance_deg: Option<f64>,
@@ -224,6 +229,43 @@ pub struct SummaryJson {
     pub holding_slip_count: usize,
     /// The joint's rate fitted over those slips, N·m per degree of nut turn.
     pub joint_rate_nm_per_deg: Option<f64>,
+    /// The clock that timed the frames, and the frames that were not captured (interface v2,
+    /// "Footage from phones and consumer cameras").
+    #[serde(default)]
+    pub timing: TimingJson,
+}
+
+/// `summary.timing`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TimingJson {
+    /// `capture_rate` (frame index / capture rate) or `timestamps` (each frame's own).
+    pub source: String,
+    /// Frames that repeat the frame before them.
+    pub duplicated_frames: usize,
+    /// Frames that blend or interpolate their neighbours.
+    pub interpolated_frames: usize,
+    /// Median interval between the analysed frames' timestamps, ms (null without them).
+    #[serde(default)]
+    pub median_interval_ms: Option<f64>,
+    /// The timestamp interval furthest from the median, ms.
+    #[serde(default)]
+    pub worst_interval_ms: Option<f64>,
+    /// The rate at which the frames were really captured, when many were not, Hz.
+    #[serde(default)]
+    pub captured_fps_estimate_hz: Option<f64>,
+}
+
+impl Default for TimingJson {
+    fn default() -> Self {
+        TimingJson {
+            source: "capture_rate".into(),
+            duplicated_frames: 0,
+            interpolated_frames: 0,
+            median_interval_ms: None,
+            worst_interval_ms: None,
+            captured_fps_estimate_hz: None,
+        }
+    }
 }
 
 /// `summary.twist_zero`: where the twist zero came from and the twist already in the bar at
@@ -295,6 +337,7 @@ pub fn report(a: &Analysis) -> Report {
         nut_confidence: (0..n)
             .map(|i| confidence(tr.nut_confidence.get(i).copied()))
             .collect(),
+        synthetic: (0..n).map(|i| tr.is_synthetic(i)).collect(),
     };
     let blows = a
         .blows
@@ -401,6 +444,14 @@ pub fn report(a: &Analysis) -> Report {
         holding_after_blow: s.holding.map(|h| h.after_blow),
         holding_slip_count: s.holding.map_or(0, |h| h.slips),
         joint_rate_nm_per_deg: finite(s.holding.and_then(|h| h.joint_rate_nm_per_deg)),
+        timing: TimingJson {
+            source: a.timing.source.as_str().into(),
+            duplicated_frames: a.timing.duplicated_frames,
+            interpolated_frames: a.timing.interpolated_frames,
+            median_interval_ms: finite(a.timing.median_interval_s.map(|t| t * 1e3)),
+            worst_interval_ms: finite(a.timing.worst_interval_s.map(|t| t * 1e3)),
+            captured_fps_estimate_hz: finite(a.timing.captured_fps_estimate_hz),
+        },
     };
     Report {
         report_version: REPORT_VERSION,
@@ -549,6 +600,8 @@ mod tests {
             "peak_torque_to_rating_ratio",
             "drive_confidence",
             "nut_confidence",
+            "duplicated_frames",
+            "interpolated_frames",
             "fps",
             "bytes",
             "first_frame",

@@ -197,6 +197,8 @@ pub(crate) mod tests {
         drive[4] = None;
         let trace = Trace {
             time_base: tb,
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (0..n as u64).collect(),
             drive,
             nut: truth
@@ -236,10 +238,20 @@ pub(crate) mod tests {
                 codec: "raw".into(),
                 duration_s: None,
                 warnings: Vec::new(),
+                frame_times: None,
+                display_rotation_deg: 0,
             },
             rig,
             time_base: tb,
             fps_source: FpsSource::Rig,
+            timing: crate::timing::Timing {
+                source: crate::timing::TimingSource::CaptureRate,
+                duplicated_frames: 0,
+                interpolated_frames: 0,
+                median_interval_s: None,
+                worst_interval_s: None,
+                captured_fps_estimate_hz: None,
+            },
             trace,
             segmentation,
             blows,
@@ -281,6 +293,8 @@ pub(crate) mod tests {
         let still = vec![Some(Angle::ZERO); n];
         let trace = Trace {
             time_base: TimeBase::from_fps(1000.0, "test").unwrap(),
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (0..n as u64).collect(),
             drive: still.clone(),
             nut: still,

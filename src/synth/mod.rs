@@ -26,6 +26,7 @@ pub mod fixtures;
 pub mod layout;
 mod look;
 mod model;
+pub mod phone;
 pub mod random;
 mod scene;
 pub mod side;

@@ -40,6 +40,7 @@ mod radial;
 mod refine;
 mod shake;
 mod side;
+pub mod synthetic;
 pub(crate) mod unwrap;
 
 /// The sum of eight partial sums kept side by side (vectorised loops), added in one fixed
@@ -57,8 +58,15 @@ use unwrap::wrap_pi;
 /// Per-frame angles of the drive and nut ends.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Trace {
-    /// Turns frame indices into seconds.
+    /// Turns frame indices into seconds (when `times_s` is empty) and gives the nominal rate.
     pub time_base: TimeBase,
+    /// Each sample's time, s, when the frames are timed by their presentation timestamps
+    /// (docs/conventions.md, "Time"); empty when time is clip frame index / capture rate.
+    pub times_s: Vec<f64>,
+    /// True for a sample whose frame was not captured but repeated or synthesised by the
+    /// camera or encoder (a blend or an interpolation of its neighbours; `track::synthetic`).
+    /// Its angles are reported but never used for peaks, onsets or timing. Empty: none.
+    pub synthetic: Vec<bool>,
     /// The clip frame index of each sample (consecutive, starting at the first analysed frame).
     pub frames: Vec<u64>,
     /// Drive-end angle, relative to the first analysed frame, tightening positive.
@@ -88,9 +96,17 @@ impl Trace {
     pub fn is_empty(&self) -> bool {
         self.frames.is_empty()
     }
-    /// Time of sample `i` in seconds: clip frame index / capture rate.
+    /// Time of sample `i` in seconds: its timestamp when the trace has them, else clip frame
+    /// index / capture rate.
     pub fn t_s(&self, i: usize) -> f64 {
-        self.time_base.seconds(self.frames[i] as f64)
+        match self.times_s.get(i) {
+            Some(&t) => t,
+            None => self.time_base.seconds(self.frames[i] as f64),
+        }
+    }
+    /// True when sample `i`'s frame was repeated or synthesised rather than captured.
+    pub fn is_synthetic(&self, i: usize) -> bool {
+        self.synthetic.get(i).copied().unwrap_or(false)
     }
     /// Twist at sample `i`: drive − nut, when both are known.
     pub fn twist(&self, i: usize) -> Option<Angle> {
@@ -371,6 +387,8 @@ impl Tracker {
         (
             Trace {
                 time_base,
+                times_s: Vec::new(),
+                synthetic: Vec::new(),
                 frames: self.frames,
                 drive,
                 nut,

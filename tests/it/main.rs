@@ -23,6 +23,7 @@ mod holding;
 mod hostile;
 mod html_report;
 mod messages;
+mod phone;
 mod segment;
 mod side;
 mod springback;
