@@ -29,6 +29,12 @@ pub const MAX_FRAMES_TIMED: usize = 1 << 24;
 /// Most worker threads per core a batch may start (`--jobs` above this is clamped).
 pub const MAX_JOBS_PER_CORE: usize = 4;
 
+/// Frames of one analysis that side-view marks may hold: a side mark keeps one profile across
+/// the bar per frame (about 2.9 kB) until the clip ends, so this bounds that store at about
+/// 290 MB a mark (over 80 s at 1,000 fps). Radial marks keep a few numbers a frame and have
+/// no such bound.
+pub const MAX_SIDE_VIEW_FRAMES: usize = 100_000;
+
 /// Checks a frame size read from a header before any pixel is decoded.
 ///
 /// # Errors

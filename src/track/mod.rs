@@ -244,6 +244,17 @@ impl Tracker {
             });
         }
         let first = self.frames.is_empty();
+        let side_view = self.drive.side.is_some() || self.nut.side.is_some();
+        if side_view && self.frames.len() >= crate::limits::MAX_SIDE_VIEW_FRAMES {
+            return Err(Error::Input {
+                path: "(clip)".into(),
+                reason: format!(
+                    "side-view marks are read over the whole clip, which may hold at most {} \
+                     frames; analyse a shorter window with --start-s and --end-s",
+                    crate::limits::MAX_SIDE_VIEW_FRAMES
+                ),
+            });
+        }
         if frame.damaged {
             if first {
                 return Err(Error::Input {
