@@ -421,7 +421,11 @@ fn measured_sentence(v: &SpringbackVerdict, with_inertia: bool) -> String {
             ms(t),
             if a { "agrees with" } else { "disagrees with" },
             v.damping_rig_vs_measured_pct
-                .map(|p| format!("; its damping is {p:+.0} % off the measured one"))
+                .map(|p| if p.abs() < 0.5 {
+                    "; its damping matches the measured one to within 0.5 %".to_string()
+                } else {
+                    format!("; its damping is {p:+.0} % off the measured one")
+                })
                 .unwrap_or_default()
         )),
         (Some(_), Some(t), None) => {
