@@ -89,7 +89,7 @@ fn inv3(m: [[f64; 3]; 3]) -> Option<[[f64; 3]; 3]> {
 }
 
 /// Mean and scatter (covariance) of colour samples.
-fn moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
+pub(super) fn moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
     let n = px.len().max(1) as f64;
     let mut mu = [0.0; 3];
     for p in px {
@@ -110,7 +110,8 @@ fn moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
     (mu, s.map(|r| r.map(|v| v / n)))
 }
 
-fn median(v: &mut [f64]) -> f64 {
+/// The median of `v` (sorted in place); 0 when empty.
+pub(super) fn median(v: &mut [f64]) -> f64 {
     v.sort_by(f64::total_cmp);
     let n = v.len();
     if n == 0 {

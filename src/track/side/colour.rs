@@ -13,6 +13,7 @@
 //! steel class with the shading, and its scatter gives brightness little weight.
 
 use crate::decode::{FrameRef, LumaRef};
+use crate::track::colour::{median, moments};
 
 /// Colour must multiply the luma-only separation by this much to be used.
 const MIN_GAIN_OVER_LUMA: f64 = 2.0;
@@ -49,35 +50,6 @@ fn solve3(m: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
         *xc = det3(a) / d;
     }
     Some(x)
-}
-
-fn moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
-    let n = px.len().max(1) as f64;
-    let mut mu = [0.0; 3];
-    for p in px {
-        for (m, v) in mu.iter_mut().zip(p) {
-            *m += f64::from(*v) / n;
-        }
-    }
-    let mut s = [[0.0; 3]; 3];
-    for p in px {
-        let d = [0, 1, 2].map(|k| f64::from(p[k]) - mu[k]);
-        for (a, row) in s.iter_mut().enumerate() {
-            for (b, v) in row.iter_mut().enumerate() {
-                *v += d[a] * d[b] / n;
-            }
-        }
-    }
-    (mu, s)
-}
-
-fn median(v: &mut [f64]) -> f64 {
-    v.sort_by(f64::total_cmp);
-    match v.len() {
-        0 => 0.0,
-        n if n % 2 == 1 => v[n / 2],
-        n => 0.5 * (v[n / 2 - 1] + v[n / 2]),
-    }
 }
 
 /// (Y′, Cb, Cr) at pixel (x, y) of a colour frame with 8-bit luma.
