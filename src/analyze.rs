@@ -158,6 +158,8 @@ pub fn analyze_source(
 
     let (trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
+    // A mark lost in most frames cannot be measured: refuse, and write no torque.
+    crate::track::check_measured(&trace)?;
     let segmentation = segment::find_blows(&trace);
     warnings.extend(segmentation.warnings.iter().cloned());
     let zero = measured_zero(rig, rig_path, opts, &clip, rest_still, kept, &segmentation)?;

@@ -3,6 +3,9 @@
 
 use std::f64::consts::PI;
 
+/// Fewest background bins the significance is judged from.
+const MIN_BACKGROUND_BINS: usize = 16;
+
 use super::{PRIOR_SPAN_RAD, PRIOR_WEIGHT, StripeModel};
 use crate::decode::FrameRef;
 use crate::track::polar::PolarGrid;
@@ -55,6 +58,34 @@ impl Coarse {
                 true,
             );
         }
+    }
+
+    /// How far the score's peak at `j` stands above the score elsewhere on the circle:
+    /// (peak − median) / (1.4826 × MAD), the median and the median absolute deviation taken
+    /// over the bins more than `sep` from `j` (1.4826 × MAD estimates σ for Gaussian data;
+    /// Rousseeuw & Croux, "Alternatives to the median absolute deviation", JASA 88, 1993).
+    /// The pixel noise that scales each ring's score is measured between neighbouring samples,
+    /// so it misses texture as wide as the stripe (mottle, scratches, a nut's flats); this
+    /// measures the stripe against that texture. Infinite when too few bins remain to judge.
+    pub(super) fn significance(&self, j: usize, sep: usize, buf: &mut Vec<f32>) -> f64 {
+        let n = self.grid.bins;
+        buf.clear();
+        for (i, &z) in self.score.iter().enumerate() {
+            let d = (i as i64 - j as i64).rem_euclid(n as i64) as usize;
+            if d.min(n - d) > sep {
+                buf.push(z);
+            }
+        }
+        if buf.len() < MIN_BACKGROUND_BINS {
+            return f64::INFINITY;
+        }
+        let mid = buf.len() / 2;
+        let med = *buf.select_nth_unstable_by(mid, f32::total_cmp).1;
+        buf.iter_mut().for_each(|z| *z = (*z - med).abs());
+        let mad = *buf.select_nth_unstable_by(mid, f32::total_cmp).1;
+        let peak = self.score[j] - med;
+        let spread = (1.4826 * mad).max(1e-3 * peak.abs()).max(1e-6);
+        f64::from(peak / spread)
     }
 
     /// The highest score within `reach` bins of `j`.

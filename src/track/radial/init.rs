@@ -168,7 +168,15 @@ impl RadialTracker {
         model.peak_half_bins = half;
         self.model = Some(model);
         self.coarse = Some(coarse);
-        match self.measure_at(None) {
+        let measured = self.measure_at(None);
+        self.sig_ref = self.sig_last;
+        if self.sig_ref < self.init_min_sig {
+            return Err(format!(
+                "the stripe does not stand out from the metal's own texture around the annulus (significance {:.1}, need {}); paint that differs from the metal only in colour cannot be seen in monochrome footage: film in colour, or use a paint much brighter or darker than the metal",
+                self.sig_ref, self.init_min_sig
+            ));
+        }
+        match measured {
             Some(m) => Ok(m),
             None => Err(
                 "the stripe found in the first frame could not be measured consistently across the annulus; check pivot and radius in the rig"

@@ -82,6 +82,21 @@ const FINE_SPACING_PX: f64 = 0.75;
 const FINE_STOP_BINS: f64 = 1e-3;
 /// Tukey biweight tuning constant (95 % efficiency at the normal distribution).
 const TUKEY_C: f64 = 4.685;
+/// The first frame's stripe must stand this far above the annulus's own texture: its coarse
+/// score's peak over the score elsewhere on the circle, in robust standard deviations
+/// ([`Coarse::significance`]). Below it the "stripe" is one bump of the metal's texture among
+/// many (paint that differs from the metal only in colour, filmed in monochrome, looks so).
+/// Set by the false-alarm rate, not tuned to scenes: the coarse circle holds at most a few
+/// hundred bins, about a hundred of them independent at the stripe's width, and the largest
+/// of 100 standard normal values passes 4.5 with probability about 100 × 3.4·10⁻⁶ = 3·10⁻⁴
+/// (the normal upper tail Q(4.5); Abramowitz & Stegun, Handbook of Mathematical Functions,
+/// table 26.1).
+const INIT_MIN_SIG: f64 = 4.5;
+/// A later frame's significance must reach this fraction of the first frame's, and at least
+/// [`LOST_MIN_SIG`] (Q(3.5) ≈ 2.3·10⁻⁴ per independent bin), else the stripe has faded into
+/// the background and the frame is null.
+const LOST_SIG_FRACTION: f64 = 0.25;
+const LOST_MIN_SIG: f64 = 3.5;
 
 /// One measurement of a mark in one frame.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -147,6 +162,14 @@ pub(crate) struct RadialTracker {
     last: Option<f64>,
     velocity: f64,
     since_good: u32,
+    /// The stripe's significance against the annulus's texture: in the first frame, and in
+    /// the last frame measured (see [`Coarse::significance`]).
+    sig_ref: f64,
+    sig_last: f64,
+    /// Scratch for the significance's medians (coarse bins).
+    sig_buf: Vec<f32>,
+    /// [`INIT_MIN_SIG`], but for tuning aids that need to see what a lower one would track.
+    init_min_sig: f64,
 }
 
 impl RadialTracker {
@@ -199,6 +222,10 @@ impl RadialTracker {
             last: None,
             velocity: 0.0,
             since_good: 0,
+            sig_ref: 0.0,
+            sig_last: 0.0,
+            sig_buf: Vec::with_capacity(n),
+            init_min_sig: INIT_MIN_SIG,
             grid,
         }
     }
@@ -206,6 +233,19 @@ impl RadialTracker {
     /// The sampling grid.
     pub fn grid(&self) -> &PolarGrid {
         &self.grid
+    }
+
+    /// Lowers (or raises) the first frame's significance bar, for tuning aids.
+    #[cfg(test)]
+    pub fn set_init_min_sig(&mut self, v: f64) {
+        self.init_min_sig = v;
+    }
+
+    /// The stripe's significance against the annulus's texture in the last frame searched,
+    /// and in the first frame (see [`Coarse::significance`]).
+    #[cfg(test)]
+    pub fn significance(&self) -> (f64, f64) {
+        (self.sig_last, self.sig_ref)
     }
 
     /// Per ring, from the last successful measurement: the ring's stripe angle minus the
