@@ -170,6 +170,8 @@ pub fn analyze_source(
 
     let (mut trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
+    // A mark lost in most frames cannot be measured: refuse, and write no torque.
+    crate::track::check_measured(&trace)?;
     let (evenness, timing_warning) = crate::timing::apply(timing_source, &clip, &mut trace);
     warnings.extend(timing_warning);
     let flags = detector.finish();

@@ -107,6 +107,22 @@ pub enum Warning {
         /// Skew that change would give at a readout of a whole frame interval, degrees.
         skew_bound_deg: f64,
     },
+    /// A self-check found the marks' angles impossible for the rig in a run of frames; both
+    /// marks are null there, and no torque is computed from them.
+    SelfCheck {
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+        /// What was impossible.
+        check: String,
+    },
+    /// A blow's peak twist fell on or next to frames where a mark was lost, so its peak was
+    /// not measured: its peak twist and torque are null.
+    BlowPeakLost {
+        /// The blow's onset (clip frame index).
+        frame: u64,
+    },
     /// Any other data-quality note with its own explanation.
     Note(String),
 }
@@ -216,6 +232,20 @@ impl fmt::Display for Warning {
                  skew its angle by up to {skew_bound_deg:.2}° across the stripe; if the camera \
                  has one (phones do), give its readout time as \"camera\": \
                  {{\"rolling_shutter_ms\": t}} in the rig"
+            ),
+            Warning::SelfCheck {
+                first_frame,
+                last_frame,
+                check,
+            } => write!(
+                f,
+                "self-check, frames {first_frame}..={last_frame}: {check}; both marks are null \
+                 there (check that each annulus holds its own mark's paint and nothing else)"
+            ),
+            Warning::BlowPeakLost { frame } => write!(
+                f,
+                "the blow at frame {frame} peaks on frames where a mark was lost, so its peak \
+                 twist and torque are null (check the warnings on lost marks)"
             ),
             Warning::Note(s) => f.write_str(s),
         }

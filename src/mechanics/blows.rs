@@ -261,7 +261,15 @@ pub fn blow_metrics_zeroed(
         } else {
             nut_rest(before, prev_onset)
         };
+        // A peak on or next to a lost frame was not measured: null, with a warning.
+        let peak_lost = peak_on_lost(&twist, b.onset, b.end);
+        if peak_lost {
+            warnings.push(Warning::BlowPeakLost {
+                frame: trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64),
+            });
+        }
         let peak_twist = peak_twist_deg(&twist, &twist_smooth, b.onset, b.end, twist_sigma_deg)
+            .filter(|_| !peak_lost)
             .map(Angle::from_deg);
         let nut_onset = b.nut_onset.filter(|&i| i >= b.onset && i < b.end);
         let breakaway_twist = nut_onset.and_then(|i| twist_smooth[i]).map(Angle::from_deg);
@@ -541,6 +549,20 @@ fn sg_at(v: &[Option<f64>], i: usize, c: &[f64]) -> Option<f64> {
 /// parabola); otherwise the top 10 %, then 5 %, is tried, and finally the lightly smoothed
 /// maximum is used, or the raw maximum when that stands more than 2σ above it (a top too
 /// sharp for the smoothing).
+/// True when a lost frame (a null twist) lies between the blow's onset `a` and one frame
+/// past its highest measured twist (within `a..b`): the true peak may sit on that frame, so
+/// the peak read from the others could be low. Also true when no twist in the blow is measured.
+fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
+    let top = (a..b)
+        .filter_map(|i| Some((i, twist[i]?)))
+        .max_by(|x, y| x.1.total_cmp(&y.1))
+        .map(|(i, _)| i);
+    match top {
+        None => true,
+        Some(top) => (a..=(top + 1).min(b - 1)).any(|i| twist[i].is_none()),
+    }
+}
+
 fn peak_twist_deg(
     raw: &[Option<f64>],
     smooth: &[Option<f64>],

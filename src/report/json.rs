@@ -55,6 +55,38 @@ pub struct Report {
     /// The analysed frames.
     #[serde(default)]
     pub window: WindowJson,
+    /// Per mark, how much of it was measured: the share of frames lost and a confidence
+    /// (docs/outputs.md, "Mark quality"). Absent in reports written before it existed.
+    #[serde(default)]
+    pub mark_quality: MarkQualityJson,
+}
+
+/// `report.json`'s `mark_quality`: the drive and nut marks' self-check results.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct MarkQualityJson {
+    /// The drive mark.
+    pub drive: MarkJson,
+    /// The nut mark.
+    pub nut: MarkJson,
+}
+
+/// One mark's quality over the analysed frames.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct MarkJson {
+    /// Share of the analysed frames where the mark is null (lost, faded into the background,
+    /// or refused by a physics self-check), 0..=1.
+    pub lost_fraction: f64,
+    /// The mean of the per-frame confidences, 0 for each lost frame, 0..=1.
+    pub confidence: f64,
+}
+
+impl MarkJson {
+    fn of(angles: &[Option<Angle>], confidence: &[f32]) -> MarkJson {
+        MarkJson {
+            lost_fraction: crate::track::lost_share(angles),
+            confidence: crate::track::clip_confidence(angles, confidence),
+        }
+    }
 }
 
 /// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
@@ -482,6 +514,10 @@ pub fn report(a: &Analysis) -> Report {
         created_utc: super::provenance::now_utc(),
         rig: serde_json::to_value(&a.rig).unwrap_or(serde_json::Value::Null),
         window: WindowJson::of(a),
+        mark_quality: MarkQualityJson {
+            drive: MarkJson::of(&a.trace.drive, &a.trace.drive_confidence),
+            nut: MarkJson::of(&a.trace.nut, &a.trace.nut_confidence),
+        },
     }
 }
 
@@ -602,6 +638,8 @@ mod tests {
             "nut_confidence",
             "duplicated_frames",
             "interpolated_frames",
+            "lost_fraction",
+            "confidence",
             "fps",
             "bytes",
             "first_frame",

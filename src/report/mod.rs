@@ -36,7 +36,9 @@ mod thumbnail;
 pub use display::{ReportOptions, TorqueUnit};
 pub use provenance::{ClipJson, ToolJson, WindowJson};
 
-pub use json::{BlowJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report};
+pub use json::{
+    BlowJson, MarkJson, MarkQualityJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report,
+};
 pub use table::{blow_table, blow_table_with};
 
 /// The caution printed and written wherever a torque is shown.

@@ -38,6 +38,7 @@ mod gather;
 mod polar;
 mod radial;
 mod refine;
+mod selfcheck;
 mod shake;
 mod side;
 pub mod synthetic;
@@ -49,6 +50,8 @@ pub(crate) mod unwrap;
 fn sum_lanes(acc: [f32; 8]) -> f32 {
     ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]))
 }
+
+pub use selfcheck::{check_measured, clip_confidence, lost_share};
 
 use polar::PolarGrid;
 use radial::RadialTracker;
@@ -393,8 +396,21 @@ impl Tracker {
                 "fixed mark not matched in frames {a}..={b} (obscured or moved); camera shake correction held its last value there"
             )));
         }
-        let (drive, drive_zero_screen) = rel(&self.drive);
-        let (nut, nut_zero_screen) = rel(&self.nut);
+        let (mut drive, drive_zero_screen) = rel(&self.drive);
+        let (mut nut, nut_zero_screen) = rel(&self.nut);
+        // Self-checks: frames whose angles break the rig's physics are null (`selfcheck.rs`).
+        warnings.extend(selfcheck::physics(&mut drive, &mut nut, &self.frames));
+        let (mut drive_confidence, mut nut_confidence) =
+            (self.drive.confidence, self.nut.confidence);
+        for (a, c) in drive
+            .iter()
+            .zip(drive_confidence.iter_mut())
+            .chain(nut.iter().zip(nut_confidence.iter_mut()))
+        {
+            if a.is_none() {
+                *c = 0.0;
+            }
+        }
         (
             Trace {
                 time_base,
@@ -403,8 +419,8 @@ impl Tracker {
                 frames: self.frames,
                 drive,
                 nut,
-                drive_confidence: self.drive.confidence,
-                nut_confidence: self.nut.confidence,
+                drive_confidence,
+                nut_confidence,
                 drive_zero_screen,
                 nut_zero_screen,
             },
