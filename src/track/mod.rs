@@ -319,11 +319,19 @@ impl Tracker {
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
     pub fn finish(mut self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
         let mut warnings = Vec::new();
-        let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
+        let rel = |t: &MarkTrack,
+                   notes: &mut Vec<Warning>|
+         -> (Vec<Option<Angle>>, Option<Angle>) {
             if t.side.is_some() {
                 return side::relative(t);
             }
-            let refined = refine::refine(&t.angle, &t.dir_offset);
+            let (refined, outcome) = refine::refine(&t.angle, &t.dir_offset);
+            if outcome == refine::Outcome::NotSignificant {
+                notes.push(Warning::Note(format!(
+                    "the {} mark's pivot could not be refined from its stripe (the stripe's direction is too scattered over this clip to tell a pivot error from noise, recesses, glints or rims); the rig's pivot is kept, so check it is exact",
+                    t.role.name()
+                )));
+            }
             let zero = refined.first().copied().flatten();
             let v = refined
                 .iter()
@@ -362,8 +370,8 @@ impl Tracker {
                 last_frame,
             });
         }
-        let (drive, drive_zero_screen) = rel(&self.drive);
-        let (nut, nut_zero_screen) = rel(&self.nut);
+        let (drive, drive_zero_screen) = rel(&self.drive, &mut warnings);
+        let (nut, nut_zero_screen) = rel(&self.nut, &mut warnings);
         (
             Trace {
                 time_base,
