@@ -541,6 +541,25 @@ fn sg_at(v: &[Option<f64>], i: usize, c: &[f64]) -> Option<f64> {
         .try_fold(0.0, |acc, (j, cj)| Some(acc + cj * v[i + j - h]?))
 }
 
+/// True when a lost frame (a null twist) lies next to the blow's highest measured twist (one
+/// frame either side, within `a..b`), or when no twist in the blow is measured. A blow's
+/// twist pulse has one maximum (it rises while the blow drives the bar, then rings back), so
+/// the true peak lies within a frame of the highest sample; only a lost frame there could
+/// hold a higher value, and then the peak read from the others could be low. A lost frame
+/// further down the rise or the fall cannot.
+fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
+    let top = (a..b)
+        .filter_map(|i| Some((i, twist[i]?)))
+        .max_by(|x, y| x.1.total_cmp(&y.1))
+        .map(|(i, _)| i);
+    match top {
+        None => true,
+        Some(top) => {
+            (top.saturating_sub(1).max(a)..=(top + 1).min(b - 1)).any(|i| twist[i].is_none())
+        }
+    }
+}
+
 /// The peak twist of one blow `[a, b)`, degrees. The top of the twist peak (the samples,
 /// around the highest lightly smoothed one, within 20 % of the blow's twist range below
 /// it) is fitted by a least-squares parabola and its highest value taken, so that every
@@ -549,20 +568,6 @@ fn sg_at(v: &[Option<f64>], i: usize, c: &[f64]) -> Option<f64> {
 /// parabola); otherwise the top 10 %, then 5 %, is tried, and finally the lightly smoothed
 /// maximum is used, or the raw maximum when that stands more than 2σ above it (a top too
 /// sharp for the smoothing).
-/// True when a lost frame (a null twist) lies between the blow's onset `a` and one frame
-/// past its highest measured twist (within `a..b`): the true peak may sit on that frame, so
-/// the peak read from the others could be low. Also true when no twist in the blow is measured.
-fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
-    let top = (a..b)
-        .filter_map(|i| Some((i, twist[i]?)))
-        .max_by(|x, y| x.1.total_cmp(&y.1))
-        .map(|(i, _)| i);
-    match top {
-        None => true,
-        Some(top) => (a..=(top + 1).min(b - 1)).any(|i| twist[i].is_none()),
-    }
-}
-
 fn peak_twist_deg(
     raw: &[Option<f64>],
     smooth: &[Option<f64>],

@@ -11,6 +11,12 @@
 //!   twist, drive − nut, never falls below −(the highest twist seen so far) − [`TWIST_BACK_DEG`].
 //!   A lower twist is an angle jump no blow explains.
 //!
+//! Both model a tightening run, so they apply only when one of the marks spends clearly more
+//! frames ahead of where it started than behind it ([`tightening_run`]). A swing back and
+//! forth, a loosening run or a rig whose tightening direction is set the wrong way is left to
+//! the direction check that follows segmentation (`sanity`), which names the cause; so are
+//! two advancing marks where the "nut" leads (the rig's roles swapped).
+//!
 //! The margins are measurement tolerance (a few times the worst per-frame noise the
 //! accuracy targets allow, 0.2°), not physics; they were set without looking at held-out
 //! scenes.
@@ -35,6 +41,20 @@ pub(crate) fn physics(
     frames: &[u64],
 ) -> Vec<Warning> {
     let n = drive.len().min(nut.len()).min(frames.len());
+    let (drive_on, nut_on) = (tightening_run(&drive[..n]), tightening_run(&nut[..n]));
+    if !drive_on && !nut_on {
+        return Vec::new();
+    }
+    // Both ends advance but the "nut" leads: the marks' roles are swapped in the rig, which
+    // the direction check after segmentation names; the angles themselves are sound.
+    let lead: Vec<Option<Angle>> = drive[..n]
+        .iter()
+        .zip(&nut[..n])
+        .map(|(d, u)| Some(Angle::from_deg(u.as_ref()?.deg() - d.as_ref()?.deg())))
+        .collect();
+    if drive_on && nut_on && tightening_run(&lead) {
+        return Vec::new();
+    }
     let mut bad_nut = vec![false; n];
     let mut bad_twist = vec![false; n];
     // Highest nut angle so far, as the median of three consecutive measured values.
@@ -108,6 +128,23 @@ pub(crate) fn physics(
         }
     }
     warnings
+}
+
+/// True when the measured angles of one mark spend at least 5 % of the frames more than
+/// [`NUT_BACK_DEG`] ahead of the start (tightening) and at least four times as many frames there as
+/// that far behind it: the signature of a tightening run, which a swing (about as long on
+/// each side) or a loosening run (behind) does not have.
+fn tightening_run(v: &[Option<Angle>]) -> bool {
+    let (mut ahead, mut behind, mut n) = (0usize, 0usize, 0usize);
+    for a in v.iter().flatten() {
+        n += 1;
+        if a.deg() > NUT_BACK_DEG {
+            ahead += 1;
+        } else if a.deg() < -NUT_BACK_DEG {
+            behind += 1;
+        }
+    }
+    n > 0 && ahead as f64 >= 0.05 * n as f64 && ahead >= 4 * behind
 }
 
 /// Refuses a clip whose drive or nut mark was lost in more than [`MAX_LOST_SHARE`] of its
@@ -188,15 +225,37 @@ mod tests {
 
     #[test]
     fn ring_back_within_the_twist_is_kept_and_beyond_it_is_nulled() {
-        // Twist rises to 6°, rings back to −5° (kept: within −6° − margin), then a frame
+        // Twist rises to 6° and holds, rings back to −5° (kept: within −6° − margin), then a frame
         // reads −15° (no blow explains it).
-        let mut d = deg(&[0.0, 6.0, 6.0, 6.0, -5.0, 0.0, -15.0, 0.0]);
-        let mut u = deg(&[0.0; 8]);
-        let frames: Vec<u64> = (100..108).collect();
+        let mut d = deg(&[
+            0.0, 6.0, 6.0, 6.0, 6.0, 6.0, 6.0, 6.0, 6.0, 6.0, -5.0, 0.0, -15.0, 0.0,
+        ]);
+        let mut u = deg(&[0.0; 14]);
+        let frames: Vec<u64> = (100..114).collect();
         let w = physics(&mut d, &mut u, &frames);
-        assert!(d[4].is_some());
-        assert_eq!(d[6], None);
+        assert!(d[10].is_some());
+        assert_eq!(d[12], None);
         assert_eq!(w.len(), 1, "{w:?}");
+    }
+
+    #[test]
+    fn a_swing_or_a_loosening_run_is_not_checked_as_a_tightening_one() {
+        let frames: Vec<u64> = (0..8).collect();
+        // A swing across the start: as many frames behind as ahead.
+        let swing = [0.0, 20.0, 40.0, 20.0, 0.0, -20.0, -40.0, -20.0];
+        let (mut d, mut u) = (deg(&swing), deg(&swing));
+        assert!(physics(&mut d, &mut u, &frames).is_empty());
+        assert!(u.iter().all(Option::is_some));
+        // A loosening run (the nut turns back all the way) is left to the direction check.
+        let loosen = [0.0, -5.0, -10.0, -15.0, -20.0, -25.0, -30.0, -35.0];
+        let (mut d, mut u) = (deg(&loosen), deg(&loosen));
+        assert!(physics(&mut d, &mut u, &frames).is_empty());
+        assert!(d.iter().chain(&u).all(Option::is_some));
+        // Roles swapped: both advance, the "nut" leads and the "drive" (the real nut) lags.
+        let lead = [0.0, 8.0, 6.0, 10.0, 12.0, 11.0, 14.0, 16.0];
+        let lag = [0.0, 0.0, 4.0, 4.0, 8.0, 8.0, 8.0, 12.0];
+        let (mut d, mut u) = (deg(&lag), deg(&lead));
+        assert!(physics(&mut d, &mut u, &frames).is_empty());
     }
 
     #[test]

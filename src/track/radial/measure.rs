@@ -6,8 +6,8 @@ use std::f64::consts::PI;
 use super::coarse::{Coarse, adjusted};
 use super::robust::{median_of, median3, weighted_median};
 use super::{
-    LOST_MIN_SIG, LOST_SIG_FRACTION, LOST_Z_FRACTION, MIN_INLIER_FRACTION, Measurement, RING_MIN_Z,
-    RadialTracker, StripeModel, TUKEY_C,
+    LOST_MIN_SIG, LOST_SIG_CAP, LOST_SIG_FRACTION, LOST_Z_FRACTION, MIN_INLIER_FRACTION,
+    Measurement, RING_MIN_Z, RadialTracker, StripeModel, TUKEY_C,
 };
 use crate::track::polar::Prepared;
 use crate::track::unwrap::{unwrap_near, wrap_pi};
@@ -66,7 +66,8 @@ impl RadialTracker {
         // The peak against the score elsewhere on the circle: a stripe that has faded into
         // the metal's texture (or was never more than a bump of it) is not measured.
         self.sig_last = coarse.significance(j_best, sep, &mut self.sig_buf);
-        if !first && self.sig_last < (LOST_SIG_FRACTION * self.sig_ref).max(LOST_MIN_SIG) {
+        let bar = (LOST_SIG_FRACTION * self.sig_ref).clamp(LOST_MIN_SIG, LOST_SIG_CAP);
+        if !first && self.sig_last < bar {
             return None;
         }
         if f64::from(peak) < 0.2 * model.score_ref && !first {

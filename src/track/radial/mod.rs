@@ -94,9 +94,14 @@ const TUKEY_C: f64 = 4.685;
 const INIT_MIN_SIG: f64 = 4.5;
 /// A later frame's significance must reach this fraction of the first frame's, and at least
 /// [`LOST_MIN_SIG`] (Q(3.5) ≈ 2.3·10⁻⁴ per independent bin), else the stripe has faded into
-/// the background and the frame is null.
+/// the background and the frame is null. The fraction asks at most [`LOST_SIG_CAP`]: a peak
+/// that many robust standard deviations above the texture is no bump of it (Q(10) ≈ 7.6·10⁻²⁴),
+/// and a clean first frame whose background is nearly flat (a compressed, noiseless picture)
+/// has a significance in the hundreds that blur or flicker later divide without the stripe
+/// ever fading.
 const LOST_SIG_FRACTION: f64 = 0.25;
 const LOST_MIN_SIG: f64 = 3.5;
+const LOST_SIG_CAP: f64 = 10.0;
 
 /// One measurement of a mark in one frame.
 #[derive(Debug, Clone, Copy, PartialEq)]

@@ -123,6 +123,12 @@ pub(crate) struct RigidEstimator {
     state: [f64; 3],
     /// Running sums over the registered frames: count, Σθ², Σ var(θ) (for the roll's shrinkage).
     roll_sums: [f64; 3],
+    /// The last frame's measured roll and the running sums of successive differences: count,
+    /// Σ(Δθ)² (the roll noise as the data show it, for the shrinkage).
+    roll_prev: Option<f64>,
+    /// Σθ over the registered frames (the rolls' mean, for their spread about it).
+    roll_sum: f64,
+    roll_diff_sums: [f64; 2],
     /// Scratch: samples, residuals, weights.
     s: Vec<f64>,
     r: Vec<f64>,
@@ -192,6 +198,9 @@ impl RigidEstimator {
             roll_ok: false,
             state: [0.0; 3],
             roll_sums: [0.0; 3],
+            roll_prev: None,
+            roll_sum: 0.0,
+            roll_diff_sums: [0.0; 2],
             s: Vec::new(),
             r: Vec::new(),
             w: Vec::new(),
@@ -338,10 +347,42 @@ impl RigidEstimator {
         self.roll_sums[0] += 1.0;
         self.roll_sums[1] += theta * theta;
         self.roll_sums[2] += var;
+        if let Some(prev) = self.roll_prev {
+            self.roll_diff_sums[0] += 1.0;
+            self.roll_diff_sums[1] += (theta - prev).powi(2);
+        }
+        self.roll_prev = Some(theta);
         let n = self.roll_sums[0];
-        let signal = (self.roll_sums[1] / n - self.roll_sums[2] / n).max(0.0);
-        if signal + var > 0.0 {
-            theta * signal / (signal + var)
+        // The noise is the larger of the fit's own variance and half the mean squared successive
+        // difference (von Neumann, "Distribution of the ratio of the mean square successive
+        // difference to the variance", Ann. Math. Statist. 12, 1941): a camera's roll changes
+        // little between frames, so successive differences measure the noise even where the
+        // fit's covariance understates it (pixel noise correlated by resampling, texture that
+        // is not paint).
+        let diff_var = if self.roll_diff_sums[0] > 0.0 {
+            0.5 * self.roll_diff_sums[1] / self.roll_diff_sums[0]
+        } else {
+            f64::INFINITY
+        };
+        let noise = (self.roll_sums[2] / n).max(diff_var);
+        let v = var.max(diff_var);
+        // Shake is motion: the signal is the rolls' spread about their mean, not about zero. A
+        // constant offset is what registering noisy frames to one noisy template gives (the
+        // template's own noise tilts it a little, the same for every frame), not a camera that
+        // turned. The roll is applied only once that spread rejects "noise alone" at three
+        // standard deviations (under it, spread/noise has mean about 1 and standard deviation
+        // √(2/n), the χ²ₙ₋₁/(n−1) law); below that the positive-part estimate would still
+        // apply noise.
+        self.roll_sum += theta;
+        let mean = self.roll_sum / n;
+        let spread = (self.roll_sums[1] / n - mean * mean).max(0.0);
+        let signal = if n >= 2.0 && spread > noise * (1.0 + 3.0 * (2.0 / n).sqrt()) {
+            spread - noise
+        } else {
+            0.0
+        };
+        if signal + v > 0.0 && v.is_finite() {
+            theta * signal / (signal + v)
         } else {
             0.0
         }
