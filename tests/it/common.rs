@@ -85,3 +85,14 @@ pub fn analyze_fixture(name: &str, clip: &str) -> (PathBuf, Out, tempfile::TempD
 pub fn read_json(path: &Path) -> serde_json::Value {
     serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
 }
+
+/// Saves an 8-bit frame's luma as a greyscale PNG (the form a monochrome camera's stills take).
+pub fn save_mono_png(f: &twistmark::decode::Frame, path: &Path) {
+    let twistmark::decode::Luma::U8(d) = &f.luma else {
+        panic!("an 8-bit frame")
+    };
+    image::GrayImage::from_raw(f.width, f.height, d.clone())
+        .unwrap()
+        .save(path)
+        .unwrap();
+}

@@ -81,15 +81,8 @@ fn write_clip(r: &RandomScene, truth: &Truth, dir: &Path) -> PathBuf {
                 let frames = dir.join("frames");
                 std::fs::create_dir_all(&frames).unwrap();
                 for i in 0..truth.frames {
-                    let mut f = twistmark::synth::render_frame(sc, truth, i);
-                    f.chroma = None;
-                    let twistmark::decode::Luma::U8(d) = &f.luma else {
-                        panic!("8-bit")
-                    };
-                    image::GrayImage::from_raw(f.width, f.height, d.clone())
-                        .unwrap()
-                        .save(frames.join(format!("f_{i:05}.png")))
-                        .unwrap();
+                    let f = twistmark::synth::render_frame(sc, truth, i);
+                    crate::common::save_mono_png(&f, &frames.join(format!("f_{i:05}.png")));
                 }
             } else {
                 write_stills(sc, truth, dir, fmt).unwrap();
@@ -503,13 +496,7 @@ fn write_grey_stills(
             &r.scenario
         };
         let f = twistmark::synth::render_frame(sc, truth, i);
-        let twistmark::decode::Luma::U8(d) = &f.luma else {
-            panic!("8-bit")
-        };
-        image::GrayImage::from_raw(f.width, f.height, d.clone())
-            .unwrap()
-            .save(frames.join(format!("f_{i:05}.png")))
-            .unwrap();
+        crate::common::save_mono_png(&f, &frames.join(format!("f_{i:05}.png")));
     }
     frames
 }
