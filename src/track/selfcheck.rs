@@ -147,7 +147,7 @@ fn tightening_run(v: &[Option<Angle>]) -> bool {
     n > 0 && ahead as f64 >= 0.05 * n as f64 && ahead >= 4 * behind
 }
 
-/// Refuses a clip whose drive or nut mark was lost in more than [`MAX_LOST_SHARE`] of its
+/// Refuses a clip whose drive or nut mark was lost in more than half (`MAX_LOST_SHARE`) of its
 /// frames: what is left is too little to be trusted, so no torque is written.
 ///
 /// # Errors
