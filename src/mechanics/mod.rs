@@ -11,6 +11,9 @@ mod blows;
 mod calibration;
 pub(crate) use calibration::{csv_with_headers, parse_decimal};
 mod holding;
+/// The lumped torsional model of a blow (drive inertia, bar, nut, joint): the shipped tool's
+/// `predict` fits and runs it, and src/synth renders test clips with the same code.
+pub(crate) mod model;
 mod sense;
 mod steel;
 mod uncertainty;
