@@ -25,6 +25,14 @@ pub const MAX_TEXT_BYTES: u64 = 16 << 20;
 /// Most worker threads per core a batch may start (`--jobs` above this is clamped).
 pub const MAX_JOBS_PER_CORE: usize = 4;
 
+/// Most blows `predict --blows` simulates (each draw of its interval runs them all).
+pub const MAX_PREDICT_BLOWS: usize = 200;
+
+/// Blow rates `predict --blow-rate` accepts, blows per minute: from a slow hand-held tool to
+/// well past the fastest impact tools (*common practice* range), so that the simulated time
+/// (blows / rate) stays at most two minutes.
+pub const PREDICT_BLOW_RATE_PER_MIN: (f64, f64) = (100.0, 10_000.0);
+
 /// Checks a frame size read from a header before any pixel is decoded.
 ///
 /// # Errors

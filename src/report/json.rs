@@ -55,6 +55,10 @@ pub struct Report {
     /// The analysed frames.
     #[serde(default)]
     pub window: WindowJson,
+    /// The blow model fitted to this clip (docs/mechanics.md, "The blow model"), or
+    /// `{"error": reason}` when it could not be fitted; absent without a bar.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub model: Option<serde_json::Value>,
 }
 
 /// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
@@ -366,6 +370,22 @@ pub fn report(a: &Analysis) -> Report {
         created_utc: super::provenance::now_utc(),
         rig: serde_json::to_value(&a.rig).unwrap_or(serde_json::Value::Null),
         window: WindowJson::of(a),
+        model: None,
+    }
+    .with_model()
+}
+
+impl Report {
+    /// Adds the fitted blow model under `model` when the report has a bar.
+    fn with_model(mut self) -> Report {
+        if self.summary.bar_stiffness_nm_per_rad.is_some() {
+            let obs = crate::mechanics::ClipObs::from_report(&self);
+            self.model = Some(match crate::mechanics::fit(&obs) {
+                Ok(f) => serde_json::to_value(f).unwrap_or(serde_json::Value::Null),
+                Err(e) => serde_json::json!({ "error": e.to_string() }),
+            });
+        }
+        self
     }
 }
 

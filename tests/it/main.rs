@@ -22,6 +22,7 @@ mod holding;
 mod hostile;
 mod html_report;
 mod messages;
+mod predict;
 mod segment;
 mod side;
 mod track_accuracy;

@@ -1,0 +1,214 @@
+//! Checks of the blow model's fit and prediction against clips simulated by the renderer's
+//! physics (src/synth) with known truth: a check of the method on our invented bench, not of
+//! the world. The fit sees only what a report holds (frame-sampled angles with seeded noise,
+//! onset frames, the bar's stiffness); the truth is the renderer's own constants.
+
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+
+use super::*;
+use crate::mechanics::{PredictInput, SectionSpec, predict};
+use crate::synth::{Scenario, Truth, simulate};
+
+/// One-frame angle noise added to the exact truth, degrees (about what the tracker reaches on
+/// the bundled fixtures).
+const NOISE_DEG: f64 = 0.05;
+
+pub(crate) fn obs_of(truth: &Truth, seed: u64) -> ClipObs {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut noisy = |v: f64| {
+        use rand::Rng;
+        let u1: f64 = 1.0 - rng.random::<f64>();
+        let u2: f64 = rng.random::<f64>();
+        v + NOISE_DEG * (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+    };
+    let tr = &truth.trace;
+    ClipObs {
+        fps: truth.fps,
+        t_s: tr.t_s.clone(),
+        drive_deg: tr.drive_deg.iter().map(|&v| Some(noisy(v))).collect(),
+        nut_deg: tr.nut_deg.iter().map(|&v| Some(noisy(v))).collect(),
+        twist_offset_deg: truth.twist_offset_deg(),
+        blow_t_s: truth.blows.iter().map(|b| b.t_s).collect(),
+        stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
+        noise_deg: NOISE_DEG * 2f64.sqrt(),
+    }
+}
+
+/// The slow-tool preset with its round section's diameter set to `d_mm`.
+pub(crate) fn with_round(mut sc: Scenario, d_mm: f64) -> Scenario {
+    for s in &mut sc.bar.sections {
+        if s.shape_name() == "round" {
+            *s = SectionSpec::round(s.length_m() * 1e3, d_mm);
+        }
+    }
+    sc
+}
+
+fn rel(a: f64, b: f64) -> f64 {
+    a / b - 1.0
+}
+
+/// The fit reproduces the clip it was fitted to: RMS of twist and nut angle, per-blow peak
+/// twist and nut advance, measured on the slow-tool preset (seed 1; tuning, not held out).
+#[test]
+fn fit_reproduces_its_own_clip() {
+    let sc = Scenario::preset("slow-tool").unwrap();
+    let f = fit(&obs_of(&simulate(&sc), 7)).unwrap();
+    let q = &f.quality;
+    eprintln!("{}", serde_json::to_string_pretty(q).unwrap());
+    // Measured 0.55 deg RMS twist on peaks of about 12 deg, peaks within 7 %; bounds with
+    // margin.
+    assert!(q.rms_twist_deg < 1.5, "{q:?}");
+    assert!(q.rms_nut_deg < 1.5, "{q:?}");
+    assert!(q.max_peak_twist_rel_error < 0.2, "{q:?}");
+    assert!(q.rms_nut_advance_deg < 1.5, "{q:?}");
+    // Every stated uncertainty is a finite, non-negative number.
+    let v = serde_json::to_value(&f.parameters).unwrap();
+    for (name, e) in v.as_object().unwrap() {
+        let s = e["sigma"].as_f64().unwrap();
+        assert!(s.is_finite() && s >= 0.0, "{name}: {e}");
+    }
+}
+
+fn recovery() -> Vec<(&'static str, f64, f64, f64)> {
+    let sc = Scenario::preset("slow-tool").unwrap();
+    let f = fit(&obs_of(&simulate(&sc), 7)).unwrap();
+    let p = &f.parameters;
+    let (t, j) = (&sc.tool, &sc.joint);
+    vec![
+        (
+            "drive inertia",
+            p.drive_inertia_kg_m2.value,
+            p.drive_inertia_kg_m2.sigma,
+            t.drive_inertia_kgm2,
+        ),
+        (
+            "blow momentum",
+            p.blow_momentum_nms.value,
+            p.blow_momentum_nms.sigma,
+            t.blow_momentum_nms,
+        ),
+        (
+            "back damping",
+            p.back_damping_nms_per_rad.value,
+            p.back_damping_nms_per_rad.sigma,
+            t.back_damping_nms_per_rad,
+        ),
+        (
+            "joint start",
+            p.joint_start_torque_nm.value,
+            p.joint_start_torque_nm.sigma,
+            j.snug_torque_nm,
+        ),
+        (
+            "joint rate",
+            p.joint_rate_nm_per_rad.value,
+            p.joint_rate_nm_per_rad.sigma,
+            j.rate_nm_per_deg.to_degrees(),
+        ),
+        (
+            "breakaway",
+            p.breakaway_ratio.value,
+            p.breakaway_ratio.sigma,
+            j.breakaway_ratio,
+        ),
+    ]
+}
+
+/// Target: each fitted constant within 10 % of the renderer's. Not met: the fit settles in a
+/// neighbouring optimum where inertia, momentum and the joint trade off against each other.
+#[test]
+#[ignore = "not met yet: slow-tool seed 1 gives drive inertia +40 %, blow momentum +13 %, back damping -5 %, joint start -19 %, joint rate +15 %, breakaway -11 %"]
+fn fit_recovers_the_renderers_constants() {
+    for (name, got, sigma, want) in recovery() {
+        eprintln!(
+            "{name}: {got:.5} ± {sigma:.5} vs {want:.5} ({:+.1} %)",
+            100.0 * rel(got, want)
+        );
+        assert!(rel(got, want).abs() <= 0.10, "{name}");
+    }
+}
+
+/// The three pairs of the prediction checks: a softer bar, a stiffer bar, another blow rate.
+fn pairs() -> Vec<(&'static str, Scenario)> {
+    let a = Scenario::preset("slow-tool").unwrap();
+    vec![
+        ("softer", with_round(a.clone(), 10.5)),
+        ("stiffer", with_round(a.clone(), 14.0)),
+        ("rate", {
+            let mut s = a.clone();
+            s.tool.blow_rate_per_min = 1500.0;
+            s
+        }),
+    ]
+}
+
+/// Fits bar A's clip and predicts each pair; returns (name, prediction, B's truth).
+fn predictions() -> Vec<(&'static str, crate::mechanics::Prediction, Truth)> {
+    let a = Scenario::preset("slow-tool").unwrap();
+    let f = fit(&obs_of(&simulate(&a), 7)).unwrap();
+    pairs()
+        .into_iter()
+        .map(|(name, sc)| {
+            let truth = simulate(&sc);
+            let input = PredictInput {
+                stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
+                stiffness_rel_sigma: 0.0,
+                rating_nm: sc.bar.rating_nm,
+                blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
+                blows: Some(truth.blows.len()),
+            };
+            (name, predict(&f, &input).unwrap(), truth)
+        })
+        .collect()
+}
+
+/// Each prediction's 95 % interval holds the other bar's (or rate's) simulated truth: the
+/// holding torque and every blow's peak torque.
+#[test]
+fn prediction_intervals_hold_the_truth() {
+    for (name, p, truth) in predictions() {
+        let want = truth.model.joint_torque_end_nm;
+        let [lo, hi] = p.holding_torque_ci95_nm;
+        eprintln!(
+            "{name}: holding {:.2} [{lo:.2}, {hi:.2}] vs {want:.2} ({:+.2} %)",
+            p.holding_torque_nm,
+            100.0 * rel(p.holding_torque_nm, want)
+        );
+        assert!(lo <= want && want <= hi, "{name}: holding");
+        assert_eq!(p.blows.len(), truth.blows.len());
+        for (b, t) in p.blows.iter().zip(&truth.blows) {
+            let [lo, hi] = b.peak_torque_ci95_nm;
+            let w = t.model_peak_torque_nm;
+            eprintln!(
+                "  blow {}: peak {:.2} [{lo:.2}, {hi:.2}] vs {w:.2} ({:+.2} %)",
+                b.index,
+                b.peak_torque_nm,
+                100.0 * rel(b.peak_torque_nm, w)
+            );
+            assert!(lo <= w && w <= hi, "{name}: blow {}", b.index);
+        }
+        assert!(!p.extrapolation.is_empty(), "{name}: says it extrapolates");
+    }
+}
+
+/// Target: holding torque and every peak within 5 % of the truth.
+#[test]
+#[ignore = "not met yet: holding +8.7 % (softer), +2.6 % (stiffer), +3.8 % (rate); first-blow peaks -12 %, -8 %, -7 %"]
+fn predictions_within_five_percent() {
+    for (name, p, truth) in predictions() {
+        let want = truth.model.joint_torque_end_nm;
+        assert!(
+            rel(p.holding_torque_nm, want).abs() <= 0.05,
+            "{name}: holding"
+        );
+        for (b, t) in p.blows.iter().zip(&truth.blows) {
+            assert!(
+                rel(b.peak_torque_nm, t.model_peak_torque_nm).abs() <= 0.05,
+                "{name}: {}",
+                b.index
+            );
+        }
+    }
+}
