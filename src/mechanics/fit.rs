@@ -414,6 +414,9 @@ impl Prepared {
 /// instead of being differentiated.
 const BREAKAWAY: usize = 6;
 
+/// [`BREAKAWAY`] for the prediction's draws.
+pub(crate) const BREAKAWAY_INDEX: usize = BREAKAWAY;
+
 /// The breakaway ratios profiled, static over kinetic friction torque.
 const BREAKAWAY_GRID: [f64; 7] = [1.02, 1.06, 1.1, 1.15, 1.2, 1.3, 1.45];
 

@@ -17,7 +17,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
-use super::fit::{ModelFit, N_PARAMS, physical};
+use super::fit::{BREAKAWAY_INDEX, ModelFit, N_PARAMS, physical};
 use crate::error::{Error, Result};
 use crate::limits::{MAX_PREDICT_BLOWS, PREDICT_BLOW_RATE_PER_MIN};
 
@@ -192,7 +192,20 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
 
     // Monte Carlo over the fit's covariance (fixed seed: the same report gives the same
     // interval every time).
-    let cov = DMatrix::from_fn(N_PARAMS, N_PARAMS, |r, c| fit.internal_covariance[r][c]);
+    // A positive constant fitted near zero has a logarithm with a huge, meaningless spread
+    // (σ > 1 on the log scale); such a constant, and the breakaway ratio (whose σ comes from
+    // its profile, not the Jacobian), is drawn on its own scale instead, value + σ·z
+    // truncated at zero (at 1 for the ratio), and left out of the joint draw.
+    let wild: Vec<bool> = (0..N_PARAMS)
+        .map(|i| i == BREAKAWAY_INDEX || fit.internal_covariance[i][i] > 1.0)
+        .collect();
+    let cov = DMatrix::from_fn(N_PARAMS, N_PARAMS, |r, c| {
+        if wild[r] || wild[c] {
+            if r == c { 1.0 } else { 0.0 }
+        } else {
+            fit.internal_covariance[r][c]
+        }
+    });
     let chol = nalgebra::Cholesky::new(cov.clone() + DMatrix::identity(N_PARAMS, N_PARAMS) * 1e-12)
         .ok_or_else(bad_fit)?;
     let l = chol.l();
@@ -201,8 +214,18 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
     let mut peaks = vec![Vec::with_capacity(PREDICT_DRAWS); n];
     for _ in 0..PREDICT_DRAWS {
         let z = DVector::from_fn(N_PARAMS, |_, _| gauss(&mut rng).clamp(-3.0, 3.0));
-        let dq = &l * z;
-        let qd: Vec<f64> = q.iter().zip(dq.iter()).map(|(a, b)| a + b).collect();
+        let dq = &l * &z;
+        let qd: Vec<f64> = (0..N_PARAMS)
+            .map(|i| {
+                if wild[i] {
+                    let v = q[i].exp();
+                    let sd = v * fit.internal_covariance[i][i].sqrt();
+                    (v + sd * z[i]).max(v * 1e-6).max(f64::MIN_POSITIVE).ln()
+                } else {
+                    q[i] + dq[i]
+                }
+            })
+            .collect();
         let kd = k * (1.0 + input.stiffness_rel_sigma * gauss(&mut rng)).max(0.1);
         let r = run(&qd, fps, kd, rate, n);
         if !r.holding_nm.is_finite() || r.blows.iter().any(|b| !b.0.is_finite()) {
