@@ -22,8 +22,10 @@ use crate::error::{Error, Result};
 /// Fewest blows a fit needs: one to see the spring-back, more to see the joint's line.
 pub const FIT_MIN_BLOWS: usize = 3;
 
-/// Longest stretch of clip the fit simulates, s (a longer clip is fitted on its start).
-pub const FIT_MAX_CLIP_S: f64 = 10.0;
+/// Longest stretch of clip the fit simulates, s (a longer clip is fitted on its start): it
+/// bounds the fit's time, which `analyze` spends on every clip with a bar (tens of blows of
+/// any tool fit in it).
+pub const FIT_MAX_CLIP_S: f64 = 2.0;
 
 /// Nut-end (socket and nut) inertia over the drive end's: fixed, because a clip at a few
 /// thousand frames a second cannot resolve it (the nut turns against friction far slower than

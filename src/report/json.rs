@@ -508,9 +508,20 @@ mod tests {
             "bytes",
             "first_frame",
             "last_frame",
+            // The fitted blow model (`model`): an estimate's value and sigma carry the unit of
+            // the key above them; ratios, counts and the internal (log-scale) vector.
+            "value",
+            "sigma",
+            "nut_to_drive_inertia_ratio",
+            "bar_damping_ratio",
+            "pulse_to_half_period_ratio",
+            "max_peak_twist_rel_error",
+            "frames_used",
+            "evaluations",
+            "internal",
         ];
         let units = [
-            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad",
+            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad", "_hz",
         ];
         fn walk(v: &Value, f: &mut dyn FnMut(&str, &Value)) {
             if let Value::Object(m) = v {
