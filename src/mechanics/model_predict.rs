@@ -206,9 +206,19 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
             fit.internal_covariance[r][c]
         }
     });
-    let chol = nalgebra::Cholesky::new(cov.clone() + DMatrix::identity(N_PARAMS, N_PARAMS) * 1e-12)
-        .ok_or_else(bad_fit)?;
-    let l = chol.l();
+    // A covariance that is not positive definite (a pseudo-inverse of a nearly singular
+    // JᵀJ, rounding) falls back to its diagonal: independent draws, each with its own σ.
+    let l = nalgebra::Cholesky::new(cov.clone() + DMatrix::identity(N_PARAMS, N_PARAMS) * 1e-12)
+        .map(|c| c.l())
+        .unwrap_or_else(|| {
+            DMatrix::from_fn(N_PARAMS, N_PARAMS, |r, c| {
+                if r == c {
+                    cov[(r, r)].max(0.0).sqrt()
+                } else {
+                    0.0
+                }
+            })
+        });
     let mut rng = ChaCha8Rng::seed_from_u64(22);
     let mut holding = Vec::with_capacity(PREDICT_DRAWS);
     let mut peaks = vec![Vec::with_capacity(PREDICT_DRAWS); n];
@@ -253,7 +263,14 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
     let peak = blows.iter().map(|b| b.peak_torque_nm).fold(0.0, f64::max);
     let hold = centre.holding_nm;
     if holding.len() < PREDICT_DRAWS / 2 {
-        return Err(bad_fit());
+        return Err(Error::Input {
+            path: "report.json".into(),
+            reason: format!(
+                "model: only {} of {PREDICT_DRAWS} parameter draws gave a finite result, so \
+                 the prediction has no honest interval; film a longer run with the nut turning",
+                holding.len()
+            ),
+        });
     }
     let holding_ci = interval(&mut holding, hold, misfit);
     let nut_total: f64 = blows.iter().map(|b| b.nut_advance_deg).sum();
