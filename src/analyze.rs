@@ -15,6 +15,7 @@ use crate::mechanics::{
 };
 use crate::rig::Rig;
 use crate::segment::{self, Segmentation};
+use crate::track::synthetic::{self, SyntheticDetector};
 use crate::track::{Trace, Tracker};
 use crate::units::TimeBase;
 use crate::warning::Warning;
@@ -35,6 +36,8 @@ pub struct AnalyzeOptions {
     pub zero_still: Option<PathBuf>,
     /// A clip frame (0-based, counted in the whole clip) that shows the bar unloaded.
     pub zero_frame: Option<u64>,
+    /// Which clock times the frames (`--timing`).
+    pub timing: crate::timing::TimingChoice,
 }
 
 /// Where the capture rate came from.
@@ -59,6 +62,8 @@ pub struct Analysis {
     pub time_base: TimeBase,
     /// Where the capture rate came from.
     pub fps_source: FpsSource,
+    /// The clock that timed the frames, and the frames that were not captured.
+    pub timing: crate::timing::Timing,
     /// Per-frame angles.
     pub trace: Trace,
     /// Blows and blow rate.
@@ -142,27 +147,54 @@ pub fn analyze_source(
     };
     crate::sanity::check_fps(time_base.fps_hz(), origin)?;
     warnings.extend(fps_warning);
-    let (first, last) = window(opts, time_base, clip.frames, &mut warnings)?;
+    let timing_source = crate::timing::choose(opts.timing, fps_source, &clip)?;
+    let stamps = clip
+        .frame_times
+        .as_ref()
+        .filter(|_| timing_source == crate::timing::TimingSource::Timestamps)
+        .map(|t| t.times_s.as_slice());
+    let (first, last) = window(opts, time_base, stamps, clip.frames, &mut warnings)?;
     let rest_still = rest_still(opts, &clip)?;
     let mut tracker = Tracker::new(rig, rig_path, clip.width, clip.height)?;
+    let mut detector = SyntheticDetector::new(rig, clip.width, clip.height);
 
     let total = last.min(clip.frames).saturating_sub(first);
     let kept = track_pipelined(
         source,
-        &mut tracker,
+        (&mut tracker, &mut detector),
         (first, last),
         (opts.zero_still.is_some(), opts.zero_frame),
         total,
         progress,
     )?;
 
-    let (trace, track_warnings) = tracker.finish(time_base);
+    let (mut trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
-    let segmentation = segment::find_blows(&trace);
+    // A mark lost in most frames cannot be measured: refuse, and write no torque.
+    crate::track::check_measured(&trace)?;
+    let (evenness, timing_warning) = crate::timing::apply(timing_source, &clip, &mut trace);
+    warnings.extend(timing_warning);
+    let flags = detector.finish();
+    if flags.synthetic.len() == trace.len() {
+        trace.synthetic = flags.synthetic;
+    }
+    let (timing, synthetic_warning) = crate::timing::summary(
+        timing_source,
+        evenness,
+        &trace,
+        flags.duplicated,
+        flags.interpolated,
+    );
+    warnings.extend(synthetic_warning);
+    // Onsets, peaks and every time come from the captured frames only; the blows found on
+    // them are then indexed into the whole trace for the report.
+    let (captured, kept_samples) = synthetic::captured_only(&trace);
+    let mut segmentation = segment::find_blows(&captured);
     warnings.extend(segmentation.warnings.iter().cloned());
     let zero = measured_zero(rig, rig_path, opts, &clip, rest_still, kept, &segmentation)?;
     let (mut blows, mut summary, mech_warnings) =
-        mechanics::blow_metrics_zeroed(&trace, &segmentation, rig.bar.as_ref(), zero);
+        mechanics::blow_metrics_zeroed(&captured, &segmentation, rig.bar.as_ref(), zero);
+    synthetic::reindex_blows(&mut segmentation.blows, &kept_samples, trace.len());
     warnings.extend(mech_warnings);
     warnings.extend(crate::sanity::check_results(
         rig,
@@ -173,9 +205,7 @@ pub fn analyze_source(
     let bar = rig.bar.as_ref().map(BarReport::new).transpose()?;
     let springback = bar.as_ref().and_then(|b| {
         let onsets: Vec<f64> = blows.iter().map(|m| m.t_s).collect();
-        let residual: Vec<_> = blows.iter().map(|m| m.residual_twist).collect();
-        let peak: Vec<_> = blows.iter().map(|m| m.peak_twist).collect();
-        b.springback_verdict_for_blows(&onsets, &residual, &peak)
+        b.springback_verdict_measured(&onsets, &summary.unwind)
     });
     if let Some(spec) = rig.bar.as_ref() {
         warnings.extend(mechanics::bar_sense_warnings(spec));
@@ -194,6 +224,7 @@ pub fn analyze_source(
         rig: rig.clone(),
         time_base,
         fps_source,
+        timing,
         trace,
         segmentation,
         blows,
@@ -299,6 +330,7 @@ fn owned(f: FrameRef<'_>) -> Frame {
             LumaRef::U16(d) => Luma::U16(d.to_vec()),
         },
         chroma: f.chroma.as_ref().map(ChromaRef::to_owned_planes),
+        damaged: f.damaged,
     }
 }
 
@@ -311,7 +343,7 @@ fn owned(f: FrameRef<'_>) -> Frame {
 /// fifth pass).
 fn track_pipelined(
     mut source: Box<dyn FrameSource>,
-    tracker: &mut Tracker,
+    (tracker, detector): (&mut Tracker, &mut SyntheticDetector),
     (first, last): (u64, u64),
     (keep_first, zero_frame): (bool, Option<u64>),
     total: u64,
@@ -364,6 +396,7 @@ fn track_pipelined(
             let mut done = 0u64;
             for mut slot in full_rx.iter() {
                 tracker.push_ref(slot.view())?;
+                detector.push(slot.view());
                 done += 1;
                 progress(done, total);
                 // The picture goes back to the decoder's pool now, not when the slot is next
@@ -416,10 +449,12 @@ fn yield_to_decoding() {
     }
 }
 
-/// The analysed frame range `[first, last)` from the time window.
+/// The analysed frame range `[first, last)` from the time window: by the frames' timestamps
+/// when they time the clip (`stamps`), else by frame index / capture rate.
 fn window(
     opts: &AnalyzeOptions,
     tb: TimeBase,
+    stamps: Option<&[f64]>,
     frames: u64,
     warnings: &mut Vec<Warning>,
 ) -> Result<(u64, u64)> {
@@ -434,12 +469,20 @@ fn window(
     };
     check(opts.start_s, "--start-s")?;
     check(opts.end_s, "--end-s")?;
-    let first = opts.start_s.map_or(0, |t| tb.frame_at(t).ceil() as u64);
-    // Without --end-s, read to the end of the stream whatever the container claims.
-    let mut last = opts
-        .end_s
-        .map_or(u64::MAX, |t| tb.frame_at(t).floor() as u64 + 1);
-    if opts.end_s.is_some() && last > frames {
+    let (first, mut last) = match stamps {
+        Some(t) => crate::timing::window_by_times(t, opts.start_s, opts.end_s),
+        None => (
+            opts.start_s.map_or(0, |t| tb.frame_at(t).ceil() as u64),
+            // Without --end-s, read to the end of the stream whatever the container claims.
+            opts.end_s
+                .map_or(u64::MAX, |t| tb.frame_at(t).floor() as u64 + 1),
+        ),
+    };
+    let last_is_past = |t: f64| match stamps {
+        Some(s) => s.last().is_some_and(|&e| t > e),
+        None => last > frames,
+    };
+    if opts.end_s.is_some_and(last_is_past) {
         warnings.push(Warning::WindowClipped {
             detail: format!(
                 "--end-s is past the clip's last frame ({frames} frames); analysing to the end"

@@ -157,6 +157,34 @@ impl ClipWriter {
             fps_hz,
             bit_depth,
             Layout::Planes,
+            0,
+        )
+    }
+
+    /// Like [`create`](ClipWriter::create), with a display-rotation matrix in the container
+    /// saying that a player turns the stored `width × height` picture `rotation_cw_deg`
+    /// (90, 180 or 270) clockwise, as phones store portrait video. The container must keep
+    /// it (MP4 and QuickTime do).
+    ///
+    /// # Errors
+    /// As [`create`](ClipWriter::create).
+    pub fn create_rotated(
+        path: &Path,
+        codec: Codec,
+        width: u32,
+        height: u32,
+        fps_hz: f64,
+        rotation_cw_deg: u32,
+    ) -> Result<Self> {
+        Self::create_inner(
+            path,
+            codec,
+            width,
+            height,
+            fps_hz,
+            8,
+            Layout::Planes,
+            rotation_cw_deg,
         )
     }
 
@@ -173,16 +201,17 @@ impl ClipWriter {
         height: u32,
         fps_hz: f64,
     ) -> Result<Self> {
-        Self::create_inner(path, codec, width, height, fps_hz, 8, Layout::Colour)
+        Self::create_inner(path, codec, width, height, fps_hz, 8, Layout::Colour, 0)
     }
 
     /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
     /// swscale path for formats without a Y plane.
     #[cfg(test)]
     pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
-        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, Layout::RgbPng)
+        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, Layout::RgbPng, 0)
     }
 
+    #[allow(clippy::too_many_arguments)] // one private constructor behind the public ones
     fn create_inner(
         path: &Path,
         codec: Codec,
@@ -191,6 +220,7 @@ impl ClipWriter {
         fps_hz: f64,
         bit_depth: u8,
         layout: Layout,
+        rotation_cw_deg: u32,
     ) -> Result<Self> {
         let rgb_png = layout == Layout::RgbPng;
         let colour = layout == Layout::Colour;
@@ -350,6 +380,25 @@ impl ClipWriter {
             st.set_time_base(encoder_tb);
             st.set_rate(frame_rate);
             st.set_avg_frame_rate(frame_rate);
+            if !rotation_cw_deg.is_multiple_of(360) {
+                // SAFETY: the stream is valid and owned by octx; av_stream_new_side_data
+                // returns 36 writable bytes (nine i32) or null, checked before writing.
+                unsafe {
+                    let p = ff::ffi::av_stream_new_side_data(
+                        st.as_mut_ptr(),
+                        ff::ffi::AVPacketSideDataType::AV_PKT_DATA_DISPLAYMATRIX,
+                        9 * std::mem::size_of::<i32>(),
+                    );
+                    if p.is_null() {
+                        return Err(fail("cannot store the display rotation".into()));
+                    }
+                    // Sign found by round trip through the MP4/QuickTime muxer and demuxer: the
+                    // decoder (src/decode/video.rs) reads a clockwise display turn as minus
+                    // av_display_rotation_get, as FFmpeg's own command-line player turns
+                    // pictures (*from memory*), and this angle reads back with that sign.
+                    ff::ffi::av_display_rotation_set(p.cast::<i32>(), f64::from(rotation_cw_deg));
+                }
+            }
         }
         octx.write_header()
             .map_err(|e| ff_err("cannot write the header", e))?;

@@ -39,6 +39,7 @@ pub mod sanity;
 pub mod segment;
 mod stats;
 pub mod synth;
+pub mod timing;
 pub mod track;
 pub mod units;
 mod warning;

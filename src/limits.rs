@@ -22,6 +22,10 @@ pub const MAX_FRAME_SIDE: u32 = 1 << 15;
 /// a few hundred lines).
 pub const MAX_TEXT_BYTES: u64 = 16 << 20;
 
+/// Most frames whose presentation timestamps are kept (8 bytes each: 128 MiB at the cap, 19
+/// hours at 240 fps). A longer clip is timed by its rate.
+pub const MAX_FRAMES_TIMED: usize = 1 << 24;
+
 /// Most worker threads per core a batch may start (`--jobs` above this is clamped).
 pub const MAX_JOBS_PER_CORE: usize = 4;
 
@@ -32,6 +36,12 @@ pub const MAX_PREDICT_BLOWS: usize = 200;
 /// well past the fastest impact tools (*common practice* range), so that the simulated time
 /// (blows / rate) stays at most two minutes.
 pub const PREDICT_BLOW_RATE_PER_MIN: (f64, f64) = (100.0, 10_000.0);
+
+/// Frames of one analysis that side-view marks may hold: a side mark keeps one profile across
+/// the bar per frame (about 2.9 kB) until the clip ends, so this bounds that store at about
+/// 290 MB a mark (over 80 s at 1,000 fps). Radial marks keep a few numbers a frame and have
+/// no such bound.
+pub const MAX_SIDE_VIEW_FRAMES: usize = 100_000;
 
 /// Checks a frame size read from a header before any pixel is decoded.
 ///
@@ -65,6 +75,32 @@ pub fn image_limits() -> image::Limits {
     l
 }
 
+/// Refuses a named pipe or a socket given as an input file: opening one waits, without end,
+/// for a writer that may never come. (Devices such as `/dev/zero` are read through the size
+/// caps instead; a missing path is left for the caller to report.)
+///
+/// # Errors
+/// [`Error::Input`] naming `path` when it is a pipe or socket.
+pub fn refuse_pipe(path: &Path) -> Result<()> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileTypeExt;
+        if let Ok(meta) = std::fs::metadata(path) {
+            let t = meta.file_type();
+            if t.is_fifo() || t.is_socket() {
+                return Err(Error::input(
+                    path,
+                    "is a named pipe or socket, not a file (reading it would wait for a writer); \
+                     save the data to a file and give that",
+                ));
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    let _ = path;
+    Ok(())
+}
+
 /// Reads a text file of at most [`MAX_TEXT_BYTES`] through `take`, so a device such as
 /// `/dev/zero` or a huge file ends in a message rather than exhausting memory.
 ///
@@ -72,6 +108,7 @@ pub fn image_limits() -> image::Limits {
 /// [`Error::Io`] when it cannot be read; [`Error::Input`] when it is not a regular file, is
 /// too large, or is not UTF-8 text.
 pub fn read_text(path: &Path, what: &str) -> Result<String> {
+    refuse_pipe(path)?;
     let meta = std::fs::metadata(path).map_err(|e| {
         if e.kind() == std::io::ErrorKind::NotFound {
             Error::input(path, format!("no such {what} file; check the path"))

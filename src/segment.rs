@@ -155,6 +155,8 @@ pub const NUT_MIN_MOVE_DEG: f64 = 0.05;
 /// let angles = |v: &[f64]| v.iter().map(|&d| Some(Angle::from_deg(d))).collect();
 /// let trace = Trace {
 ///     time_base: TimeBase::from_fps(truth.fps, "fps").unwrap(),
+///     times_s: Vec::new(),
+///     synthetic: Vec::new(),
 ///     frames: (0..n as u64).collect(),
 ///     drive: angles(&truth.trace.drive_deg),
 ///     nut: angles(&truth.trace.nut_deg),
@@ -215,13 +217,13 @@ pub fn find_blows(trace: &Trace) -> Segmentation {
             });
         }
     }
-    let onset_frames: Vec<u64> = seg
+    let onset_times: Vec<f64> = seg
         .blows
         .iter()
-        .filter_map(|b| trace.frames.get(b.onset).copied())
+        .filter(|b| b.onset < trace.len())
+        .map(|b| trace.t_s(b.onset))
         .collect();
-    (seg.rate_per_min, seg.rate_spread_per_min) =
-        blow_rate(&onset_frames, trace.time_base.fps_hz());
+    (seg.rate_per_min, seg.rate_spread_per_min) = blow_rate(&onset_times);
     if seg.blows.len() < 2 {
         seg.warnings.push(Warning::FewBlows {
             count: seg.blows.len(),
@@ -230,13 +232,14 @@ pub fn find_blows(trace: &Trace) -> Segmentation {
     seg
 }
 
-/// Blow rate and its spread, blows per minute, from onset frame numbers (step 8 of the
-/// module doc). None with fewer than two blows.
-fn blow_rate(onset_frames: &[u64], fps: f64) -> (Option<f64>, Option<f64>) {
-    let rates: Vec<f64> = onset_frames
+/// Blow rate and its spread, blows per minute, from onset times in seconds (the trace's
+/// times: frame index / capture rate, or the frames' timestamps; step 8 of the module doc).
+/// None with fewer than two blows.
+fn blow_rate(onset_times_s: &[f64]) -> (Option<f64>, Option<f64>) {
+    let rates: Vec<f64> = onset_times_s
         .windows(2)
         .filter_map(|w| {
-            let dt_s = w[1].saturating_sub(w[0]) as f64 / fps;
+            let dt_s = w[1] - w[0];
             (dt_s > 0.0).then(|| 60.0 / dt_s)
         })
         .collect();
@@ -769,6 +772,8 @@ pub(crate) mod tests {
             }
             let trace = Trace {
                 time_base: TimeBase::from_fps(1000.0, "test").unwrap(),
+                times_s: Vec::new(),
+                synthetic: Vec::new(),
                 frames: (0..n as u64).collect(),
                 drive_confidence: vec![1.0; n],
                 nut_confidence: vec![1.0; n],
@@ -974,13 +979,16 @@ pub(crate) mod tests {
     fn blow_rate_ignores_a_missing_blow_and_frame_rounding() {
         // 3,300 blows/min at 2,000 fps: 36.36 frames per blow, onsets rounded to frames, and
         // the blow at 109 missing (a 73-frame interval).
-        let onsets = [0u64, 36, 73, 145, 182, 218, 255, 291];
-        let (rate, spread) = blow_rate(&onsets, 2000.0);
+        let onsets: Vec<f64> = [0u64, 36, 73, 145, 182, 218, 255, 291]
+            .iter()
+            .map(|&f| f as f64 / 2000.0)
+            .collect();
+        let (rate, spread) = blow_rate(&onsets);
         let rate = rate.unwrap();
         assert!((rate - 3300.0).abs() < 0.01 * 3300.0, "{rate}");
         assert!(spread.unwrap() > 0.0);
-        assert_eq!(blow_rate(&[5], 2000.0), (None, None));
-        assert_eq!(blow_rate(&[], 2000.0), (None, None));
+        assert_eq!(blow_rate(&[0.0025]), (None, None));
+        assert_eq!(blow_rate(&[]), (None, None));
     }
 
     #[test]
@@ -1045,6 +1053,8 @@ pub(crate) mod tests {
                 let n = v.len();
                 Trace {
                     time_base: TimeBase::from_fps(2000.0, "t").unwrap(),
+                    times_s: Vec::new(),
+                    synthetic: Vec::new(),
                     frames: (5..5 + n as u64).collect(),
                     drive: v.iter().map(|p| p.0.map(Angle::from_deg)).collect(),
                     nut: v.iter().map(|p| p.1.map(Angle::from_deg)).collect(),
@@ -1098,6 +1108,8 @@ pub(crate) mod tests {
                 let n = drive.len();
                 let trace = Trace {
                     time_base: TimeBase::from_fps(1000.0, "t").unwrap(),
+                    times_s: Vec::new(),
+                    synthetic: Vec::new(),
                     frames: (0..n as u64).collect(),
                     nut: drive.clone(),
                     drive,

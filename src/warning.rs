@@ -29,6 +29,15 @@ pub enum Warning {
         /// Last frame of the run (clip frame index, inclusive).
         last_frame: u64,
     },
+    /// The fixed mark's region could not be registered to the first frame in a run of frames
+    /// (obscured, or moved beyond the search), so camera shake is unknown there; every mark's
+    /// angle is null in those frames.
+    ShakeUnregistered {
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+    },
     /// The rig has no bar, so torque fields are null.
     NoBar,
     /// Fewer blows than needed for a blow rate were found.
@@ -65,6 +74,64 @@ pub enum Warning {
         /// The first analysed frame (clip frame index).
         frame: u64,
     },
+    /// The decoder flagged frames as damaged; they are null in the trace, never measured.
+    DamagedFrames {
+        /// How many frames were damaged.
+        count: u64,
+        /// The first damaged frame (clip frame index).
+        first_frame: u64,
+        /// The last damaged frame (clip frame index).
+        last_frame: u64,
+    },
+    /// The frames' timestamps are uneven beyond the tolerance (the clip is timed by them).
+    UnevenTiming {
+        /// Median interval between frames, ms.
+        median_interval_ms: f64,
+        /// The interval that departs most from the median, ms.
+        worst_interval_ms: f64,
+        /// The clip frame that ends that interval.
+        at_frame: u64,
+        /// Departure allowed, as a fraction of the median interval.
+        tolerance: f64,
+    },
+    /// Many frames were repeated or synthesised rather than captured: the real capture rate
+    /// is lower than the file says.
+    SyntheticFrames {
+        /// Frames that repeat the one before.
+        duplicated: usize,
+        /// Frames that blend or interpolate their neighbours.
+        interpolated: usize,
+        /// Analysed frames.
+        frames: usize,
+        /// The rate the file's timing says, Hz.
+        nominal_fps_hz: f64,
+        /// Nominal rate × the captured share, Hz.
+        captured_fps_estimate_hz: f64,
+    },
+    /// A rolling shutter's row skew may exceed the tracking accuracy, and its readout time is
+    /// unknown.
+    RollingShutterUnknown {
+        /// Largest angle change over one frame interval seen in the clip, degrees.
+        max_step_deg: f64,
+        /// Skew that change would give at a readout of a whole frame interval, degrees.
+        skew_bound_deg: f64,
+    },
+    /// A self-check found the marks' angles impossible for the rig in a run of frames; both
+    /// marks are null there, and no torque is computed from them.
+    SelfCheck {
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+        /// What was impossible.
+        check: String,
+    },
+    /// A blow's peak twist fell on or next to frames where a mark was lost, so its peak was
+    /// not measured: its peak twist and torque are null.
+    BlowPeakLost {
+        /// The blow's onset (clip frame index).
+        frame: u64,
+    },
     /// Any other data-quality note with its own explanation.
     Note(String),
 }
@@ -82,6 +149,16 @@ impl fmt::Display for Warning {
                 "stills numbering jumps from {after} to {next}: {} frame(s) missing, so times after \
                  the gap assume no frame was lost",
                 next.saturating_sub(*after).saturating_sub(1)
+            ),
+            Warning::ShakeUnregistered {
+                first_frame,
+                last_frame,
+            } => write!(
+                f,
+                "the fixed mark's region did not match the first frame in frames \
+                 {first_frame}..={last_frame}, so camera shake is unknown there and those \
+                 angles are null (check that nothing covers the fixed mark and that the camera \
+                 is held firmly)"
             ),
             Warning::MarkLost {
                 mark,
@@ -120,6 +197,74 @@ impl fmt::Display for Warning {
                  twist is measured from frame {frame}, which may already hold wind-up (every \
                  torque would then read low); give a still of the unloaded bar with --zero-still \
                  or a frame that shows it with --zero-frame"
+            ),
+            Warning::DamagedFrames {
+                count,
+                first_frame,
+                last_frame,
+            } => {
+                let which = if count == &1 {
+                    format!("frame {first_frame} is")
+                } else {
+                    format!("{count} frames between {first_frame} and {last_frame} are")
+                };
+                write!(
+                    f,
+                    "{which} damaged in the file (flagged by the decoder): they are null in the \
+                     trace and were not measured; re-export the clip from the camera for a \
+                     complete trace"
+                )
+            }
+            Warning::UnevenTiming {
+                median_interval_ms,
+                worst_interval_ms,
+                at_frame,
+                tolerance,
+            } => write!(
+                f,
+                "the frames' timestamps are uneven: the interval ending at frame {at_frame} is \
+                 {worst_interval_ms:.3} ms against a median of {median_interval_ms:.3} ms (more \
+                 than {:.0} % off); every time uses the real timestamps, but a camera that drops \
+                 or repeats frames may have missed part of a blow",
+                tolerance * 100.0
+            ),
+            Warning::SyntheticFrames {
+                duplicated,
+                interpolated,
+                frames,
+                nominal_fps_hz,
+                captured_fps_estimate_hz,
+            } => write!(
+                f,
+                "{duplicated} repeated and {interpolated} synthesised (blended or interpolated) \
+                 frames out of {frames}: the camera really captured about \
+                 {captured_fps_estimate_hz:.0} fps, not the {nominal_fps_hz:.0} fps the file \
+                 says; those frames are left out of peaks, onsets and timing, so peaks are \
+                 sampled at the lower rate"
+            ),
+            Warning::RollingShutterUnknown {
+                max_step_deg,
+                skew_bound_deg,
+            } => write!(
+                f,
+                "a mark turns up to {max_step_deg:.2}° between frames: a rolling shutter could \
+                 skew its angle by up to {skew_bound_deg:.2}° across the stripe; if the camera \
+                 has one (phones do), give its readout time as \"camera\": \
+                 {{\"rolling_shutter_ms\": t}} in the rig"
+            ),
+            Warning::SelfCheck {
+                first_frame,
+                last_frame,
+                check,
+            } => write!(
+                f,
+                "self-check, frames {first_frame}..={last_frame}: {check}; both marks are null \
+                 there (check that each annulus holds its own mark's paint and nothing else)"
+            ),
+            Warning::BlowPeakLost { frame } => write!(
+                f,
+                "the blow at frame {frame} peaks on frames where a mark was lost, so its peak \
+                 twist and torque are null (check the warnings on lost marks)"
             ),
             Warning::Note(s) => f.write_str(s),
         }

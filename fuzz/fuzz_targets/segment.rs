@@ -33,6 +33,8 @@ fuzz_target!(|data: &[u8]| {
     }
     let trace = Trace {
         time_base: TimeBase::from_fps(fps, "fuzz").expect("positive rate"),
+        times_s: Vec::new(),
+        synthetic: Vec::new(),
         frames: (0..n as u64).collect(),
         drive,
         nut,

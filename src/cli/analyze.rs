@@ -49,6 +49,10 @@ pub struct AnalyzeArgs {
     /// keys, with _lbf_ft columns beside them).
     #[arg(long, value_name = "UNIT", default_value = "nm")]
     units: String,
+    /// Which clock times the frames: auto (each frame's timestamp when no capture rate is
+    /// given, as phones record), rate (frame index / capture rate) or timestamps.
+    #[arg(long, value_name = "CLOCK", default_value = "auto")]
+    timing: String,
 }
 
 pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
@@ -66,6 +70,7 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
             .transpose()?,
         zero_still: a.zero_still.clone(),
         zero_frame: a.zero_frame,
+        timing: super::parse_timing(&a.timing)?,
     };
     let report_opts = twistmark::report::ReportOptions {
         units: twistmark::report::TorqueUnit::parse(&a.units).map_err(anyhow::Error::msg)?,

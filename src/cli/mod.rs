@@ -104,6 +104,17 @@ pub(crate) fn print_warnings(warnings: &[twistmark::Warning]) {
     }
 }
 
+/// `--timing`: `auto`, `rate` or `timestamps`.
+pub(crate) fn parse_timing(v: &str) -> anyhow::Result<twistmark::timing::TimingChoice> {
+    use twistmark::timing::TimingChoice;
+    match v {
+        "auto" => Ok(TimingChoice::Auto),
+        "rate" => Ok(TimingChoice::Rate),
+        "timestamps" => Ok(TimingChoice::Timestamps),
+        _ => anyhow::bail!("--timing: give auto, rate or timestamps, got '{v}'"),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

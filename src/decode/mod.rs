@@ -1,8 +1,10 @@
 //! Stage 1, decode: turns a clip (a video file or a folder of numbered stills) into a stream of
 //! luma frames, one at a time, so memory does not grow with clip length.
 //!
-//! Frame indices count from 0 at the clip's first frame. Time is never taken from container
-//! timestamps: it is frame index / capture rate (see [`crate::TimeBase`]).
+//! Frame indices count from 0 at the clip's first frame. A video also reports each frame's
+//! presentation time ([`ClipInfo::frame_times`]); the analysis decides whether time is frame
+//! index / capture rate (see [`crate::TimeBase`]) or those timestamps (docs/conventions.md,
+//! "Time").
 
 use std::path::{Path, PathBuf};
 
@@ -11,6 +13,10 @@ use crate::warning::Warning;
 
 mod stills;
 pub(crate) use stills::read_still;
+#[cfg(feature = "ffmpeg")]
+mod rotate;
+pub mod timing;
+pub use timing::FrameTimes;
 #[cfg(feature = "ffmpeg")]
 mod video;
 
@@ -162,6 +168,10 @@ pub struct Frame {
     /// The colour-difference planes, when the clip has colour and its luma is 8 bit (`None`
     /// for monochrome footage).
     pub chroma: Option<Chroma>,
+    /// True when the decoder flagged this frame as damaged (it concealed errors, or the
+    /// frame's data could not be decoded at all): its samples must not be measured, and the
+    /// tracker records the frame as lost.
+    pub damaged: bool,
 }
 
 impl Frame {
@@ -174,6 +184,7 @@ impl Frame {
             bit_depth: 8,
             luma: Luma::U8(Vec::new()),
             chroma: None,
+            damaged: false,
         }
     }
 
@@ -194,6 +205,7 @@ impl Frame {
             bit_depth: 8,
             luma: Luma::U8(data),
             chroma: None,
+            damaged: false,
         }
     }
 
@@ -209,6 +221,7 @@ impl Frame {
                 Luma::U16(d) => LumaRef::U16(d),
             },
             chroma: self.chroma.as_ref().map(Chroma::view),
+            damaged: self.damaged,
         }
     }
 
@@ -269,6 +282,8 @@ pub struct FrameRef<'a> {
     pub luma: LumaRef<'a>,
     /// The colour-difference planes, when the frame has them.
     pub chroma: Option<ChromaRef<'a>>,
+    /// As [`Frame::damaged`]: flagged by the decoder, never measured.
+    pub damaged: bool,
 }
 
 impl FrameRef<'_> {
@@ -324,6 +339,12 @@ pub struct ClipInfo {
     pub duration_s: Option<f64>,
     /// Problems noticed while opening (gaps in numbering, ...).
     pub warnings: Vec<Warning>,
+    /// Each frame's presentation time from the container (None for stills, frames in memory
+    /// without times, or a stream whose packets carry no timestamps).
+    pub frame_times: Option<FrameTimes>,
+    /// The container's display rotation, degrees clockwise (0, 90, 180 or 270). Frames are
+    /// already turned by it: `width` and `height` are the displayed picture's.
+    pub display_rotation_deg: u32,
 }
 
 /// A stream of frames from one clip.
@@ -412,6 +433,7 @@ pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
     if !path.exists() {
         return Err(Error::input(path, "no such file or folder; check the path"));
     }
+    crate::limits::refuse_pipe(path)?;
     open_video(path)
 }
 
@@ -471,11 +493,32 @@ impl MemorySource {
             codec: "raw".into(),
             duration_s: None,
             warnings: Vec::new(),
+            frame_times: None,
+            display_rotation_deg: 0,
         };
         MemorySource {
             info,
             frames: frames.into_iter(),
         }
+    }
+}
+
+impl MemorySource {
+    /// A source over `frames` whose container times each frame: `times_s[i]` is frame i's
+    /// presentation time, s, on a timestamp tick of `tick_s` (as a phone's file would).
+    ///
+    /// # Panics
+    /// As [`MemorySource::new`], and when the lengths differ.
+    pub fn with_times(
+        frames: Vec<Frame>,
+        container_fps_hz: Option<f64>,
+        times_s: Vec<f64>,
+        tick_s: f64,
+    ) -> Self {
+        assert_eq!(frames.len(), times_s.len(), "one time per frame");
+        let mut s = MemorySource::new(frames, container_fps_hz);
+        s.info.frame_times = Some(FrameTimes { times_s, tick_s });
+        s
     }
 }
 

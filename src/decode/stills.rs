@@ -120,6 +120,7 @@ fn file_name(p: &Path) -> String {
 
 /// Opens a still's decoder, naming the file on failure.
 fn decoder_for(path: &Path) -> Result<impl ImageDecoder> {
+    crate::limits::refuse_pipe(path)?;
     let mut reader = ImageReader::open(path)
         .map_err(|e| Error::io(path, e))?
         .with_guessed_format()
@@ -317,6 +318,8 @@ impl StillsSource {
             codec,
             duration_s: None,
             warnings,
+            frame_times: None,
+            display_rotation_deg: 0,
         };
         Ok(StillsSource {
             info,

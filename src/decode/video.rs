@@ -23,7 +23,6 @@ use ffmpeg_next as ff;
 
 use super::{ClipInfo, ClipKind, Frame, FrameRef, FrameSource, Luma, LumaRef, Slot, ffmpeg_init};
 use crate::error::{Error, Result};
-use crate::warning::Warning;
 
 /// How the luma samples are taken out of a decoded picture.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -96,6 +95,18 @@ pub struct VideoSource {
     next_index: u64,
     eof_sent: bool,
     done: bool,
+    /// The decoder flagged `picture` as damaged (it concealed errors in it).
+    picture_damaged: bool,
+    /// A packet of an intra-only stream could not be decoded: the next frame handed out is a
+    /// placeholder marked damaged (one packet is one frame, so the frame count stays right).
+    lost_frame: bool,
+    /// Frames are independent (every frame a key frame), so one damaged packet costs exactly
+    /// one frame and decoding can go on after it.
+    intra_only: bool,
+    /// The stored (coded) picture size, before the display rotation.
+    coded: (u32, u32),
+    /// Display rotation, degrees clockwise: each frame is turned by it.
+    rotation_cw: u32,
 }
 
 /// FFmpeg's pixel-format converter, the one part of [`VideoSource`] that ffmpeg-next does not
@@ -124,13 +135,15 @@ impl VideoSource {
                 "the file is empty (0 bytes); give a video file or a folder of stills",
             ));
         }
-        let (stream_index, counted, irregular) = scan(path)?;
+        let (stream_index, counted, frame_times) = scan(path)?;
         let mut ictx = open_input(path)?;
         let stream = ictx
             .stream(stream_index)
             .ok_or_else(|| Error::input(path, "the video stream vanished on reopening"))?;
+        let rotation_cw = display_rotation(&stream);
         let params = stream.parameters();
         let codec_name = params.id().name().to_string();
+        let intra_only = intra_only(params.id());
         let container_fps_hz = [stream.avg_frame_rate(), stream.rate()]
             .into_iter()
             .find(|r| r.numerator() > 0 && r.denominator() > 0)
@@ -149,13 +162,16 @@ impl VideoSource {
         }
         // A damaged frame must never be measured. Most decoders flag one (checked in
         // `next_picture`); the MJPEG decoder instead logs and outputs a garbled picture unless
-        // told to stop at the error. Its frames are independent, so stopping costs nothing a
-        // whole frame would give.
+        // told to stop at the error. Its frames are independent, so the damaged packet is
+        // handed out as one frame marked damaged and decoding goes on. One decoding thread
+        // keeps frames in packet order around such a loss (MJPEG decodes one frame per
+        // packet, so no parallelism is lost).
         if codec_name == "mjpeg" {
             // SAFETY: as above.
             unsafe {
                 (*ctx.as_mut_ptr()).err_recognition |=
                     ff::ffi::AV_EF_EXPLODE | ff::ffi::AV_EF_CRCCHECK | ff::ffi::AV_EF_BITSTREAM;
+                (*ctx.as_mut_ptr()).thread_count = 1;
             }
         }
         let decoder = ctx.decoder().video().map_err(|e| {
@@ -177,12 +193,19 @@ impl VideoSource {
         crate::limits::check_frame_size(path, width, height)?;
         let bit_depth = plan_for(decoder.format()).bit_depth();
         let mut warnings = Vec::new();
-        if irregular {
-            warnings.push(Warning::Note(
-                "the container's timestamps are irregular (variable frame rate); twistmark \
-                 ignores them and times every frame as frame index / capture rate"
-                    .into(),
-            ));
+        if let Some(e) = frame_times
+            .as_ref()
+            .and_then(crate::decode::FrameTimes::evenness)
+            .filter(crate::decode::timing::Evenness::uneven)
+        {
+            warnings.push(crate::warning::Warning::Note(format!(
+                "the container's timestamps are uneven (variable frame rate; one interval is \
+                 {:.3} ms against a median of {:.3} ms): with --fps or the rig's capture_fps_hz \
+                 frames are timed as frame index / capture rate, without them by these \
+                 timestamps (summary.timing says which)",
+                e.worst_interval_s * 1e3,
+                e.median_interval_s * 1e3
+            )));
         }
         // Keep the packet reader at the video stream only.
         for (i, mut s) in ictx.streams_mut().enumerate() {
@@ -193,17 +216,24 @@ impl VideoSource {
                 }
             }
         }
+        let (shown_w, shown_h) = if rotation_cw % 180 == 90 {
+            (height, width)
+        } else {
+            (width, height)
+        };
         let info = ClipInfo {
             path: path.to_path_buf(),
             kind: ClipKind::Video,
             frames: counted,
-            width,
-            height,
+            width: shown_w,
+            height: shown_h,
             bit_depth,
             container_fps_hz,
             codec: codec_name,
             duration_s: container_fps_hz.map(|fps| counted as f64 / fps),
             warnings,
+            frame_times,
+            display_rotation_deg: rotation_cw,
         };
         Ok(VideoSource {
             info,
@@ -217,6 +247,11 @@ impl VideoSource {
             next_index: 0,
             eof_sent: false,
             done: false,
+            picture_damaged: false,
+            lost_frame: false,
+            intra_only,
+            coded: (width, height),
+            rotation_cw,
         })
     }
 
@@ -241,8 +276,12 @@ impl VideoSource {
     }
 
     /// Decodes until `self.picture` holds the next frame (`Ok(true)`; `next_index` is its
-    /// index) or the stream ends (`Ok(false)`), feeding packets as the decoder asks.
+    /// index) or the stream ends (`Ok(false)`), feeding packets as the decoder asks. A frame
+    /// the decoder flags as damaged sets `picture_damaged`; a packet of an intra-only stream
+    /// that cannot be decoded at all sets `lost_frame` (its frame is handed out as a
+    /// placeholder). Either way the frame is marked damaged and never measured.
     fn next_picture(&mut self) -> Result<bool> {
+        self.lost_frame = false;
         if self.done {
             return Ok(false);
         }
@@ -254,15 +293,8 @@ impl VideoSource {
                         let p = self.picture.as_ptr();
                         ((*p).decode_error_flags, (*p).flags)
                     };
-                    if errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0 {
-                        self.done = true;
-                        return Err(self.decode_error(
-                            "the frame is damaged (the decoder had to conceal errors); the file \
-                             may be cut short or corrupt: re-export it, or analyse only the frames \
-                             before this one with --end-s"
-                                .into(),
-                        ));
-                    }
+                    self.picture_damaged =
+                        errors != 0 || flags & ff::ffi::AV_FRAME_FLAG_CORRUPT != 0;
                     return Ok(true);
                 }
                 Err(ff::Error::Eof) => {
@@ -290,6 +322,10 @@ impl VideoSource {
                 match self.packet.read(&mut self.ictx) {
                     Ok(()) if self.packet.stream() == self.stream_index => {
                         if let Err(e) = self.decoder.send_packet(&self.packet) {
+                            if self.intra_only && !is_fatal(&e) {
+                                self.lost_frame = true;
+                                return Ok(true);
+                            }
                             self.done = true;
                             return Err(self.decode_error(format!(
                                 "damaged data ({e}); the file may be cut short or corrupt"
@@ -327,10 +363,10 @@ impl VideoSource {
             ));
         }
         let (w, h) = (self.picture.width(), self.picture.height());
-        if w != self.info.width || h != self.info.height {
+        if (w, h) != self.coded {
             return Err(self.decode_error(format!(
                 "the frame size changed from {}x{} to {w}x{h}; twistmark needs one size per clip",
-                self.info.width, self.info.height
+                self.coded.0, self.coded.1
             )));
         }
         let plan = plan_for(self.picture.format());
@@ -348,13 +384,39 @@ impl VideoSource {
     /// sample), so its luma can be read in place; otherwise it must be copied or converted.
     fn packed(&self, plan: LumaPlan) -> bool {
         plan == (LumaPlan::Direct8 { offset: 0, step: 1 })
+            && self.rotation_cw == 0
             && self.picture.stride(0) == self.info.width as usize
+    }
+
+    /// Fills `frame` as the stand-in for a frame whose data could not be decoded: the clip's
+    /// size, black, marked damaged (the tracker never reads a damaged frame's samples).
+    fn placeholder(&self, frame: &mut Frame) {
+        let n = self.info.width as usize * self.info.height as usize;
+        frame.index = self.next_index;
+        frame.width = self.info.width;
+        frame.height = self.info.height;
+        frame.bit_depth = self.info.bit_depth;
+        match &mut frame.luma {
+            Luma::U8(v) if self.info.bit_depth <= 8 => {
+                v.clear();
+                v.resize(n, 0);
+            }
+            Luma::U16(v) if self.info.bit_depth > 8 => {
+                v.clear();
+                v.resize(n, 0);
+            }
+            other if self.info.bit_depth <= 8 => *other = Luma::U8(vec![0; n]),
+            other => *other = Luma::U16(vec![0; n]),
+        }
+        frame.chroma = None;
+        frame.damaged = true;
     }
 
     /// Copies the luma of `self.picture` into `frame` by `plan` (from [`Self::picture_plan`]).
     fn copy_out(&mut self, plan: LumaPlan, frame: &mut Frame) -> Result<()> {
         let (w, h) = (self.picture.width(), self.picture.height());
         frame.index = self.next_index;
+        frame.damaged = self.picture_damaged;
         frame.width = w;
         frame.height = h;
         frame.bit_depth = plan.bit_depth();
@@ -405,6 +467,46 @@ impl VideoSource {
             }
         }
         Ok(())
+    }
+}
+
+/// True when every frame of a stream of codec `id` is a key frame (FFmpeg's codec descriptor
+/// says intra-only), so a packet that cannot be decoded costs that frame alone.
+fn intra_only(id: ff::codec::Id) -> bool {
+    // SAFETY: avcodec_descriptor_get returns a pointer to a static descriptor, or null.
+    let d = unsafe { ff::ffi::avcodec_descriptor_get(id.into()) };
+    // SAFETY: non-null descriptors point to FFmpeg's static, immutable table.
+    !d.is_null() && unsafe { (*d).props } & ff::ffi::AV_CODEC_PROP_INTRA_ONLY != 0
+}
+
+/// True for a decoder error that no later packet can recover from (out of memory, an
+/// unsupported feature, or a broken decoder), as opposed to damaged data in one packet.
+fn is_fatal(e: &ff::Error) -> bool {
+    matches!(
+        e,
+        ff::Error::Other { errno } if *errno == ff::util::error::ENOMEM
+    ) || matches!(
+        e,
+        ff::Error::PatchWelcome | ff::Error::Bug | ff::Error::Bug2
+    )
+}
+
+/// The stream's display rotation, degrees clockwise (0 without a display matrix).
+fn display_rotation(stream: &ff::format::stream::Stream) -> u32 {
+    let mut size: usize = 0;
+    // SAFETY: the stream pointer is valid for the lifetime of `stream`; the side data, when
+    // present, is at least `size` bytes owned by the stream, and a display matrix is nine
+    // 32-bit integers, checked before it is read.
+    unsafe {
+        let p = ff::ffi::av_stream_get_side_data(
+            stream.as_ptr(),
+            ff::ffi::AVPacketSideDataType::AV_PKT_DATA_DISPLAYMATRIX,
+            &mut size,
+        );
+        if p.is_null() || size < 9 * std::mem::size_of::<i32>() {
+            return 0;
+        }
+        super::rotate::clockwise_quarter_turns(ff::ffi::av_display_rotation_get(p as *const i32))
     }
 }
 
@@ -509,8 +611,9 @@ fn open_input(path: &Path) -> Result<ff::format::context::Input> {
 }
 
 /// Opens the file once to pick the video stream and count its frames by demuxing (no
-/// decoding). Returns (stream index, frame count, timestamps irregular).
-fn scan(path: &Path) -> Result<(usize, u64, bool)> {
+/// decoding). Returns (stream index, frame count, each frame's presentation time when every
+/// packet carries a timestamp).
+fn scan(path: &Path) -> Result<(usize, u64, Option<crate::decode::FrameTimes>)> {
     let mut ictx = open_input(path)?;
     let demuxer = ictx.format().name().to_string();
     if demuxer == "tty" {
@@ -543,6 +646,11 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
         };
         return Err(Error::input(path, reason));
     };
+    let tick_s = ictx
+        .stream(index)
+        .map(|s| s.time_base())
+        .filter(|r| r.numerator() > 0 && r.denominator() > 0)
+        .map_or(0.0, f64::from);
     let mut count = 0u64;
     let mut stamps: Vec<i64> = Vec::new();
     let mut packet = ff::Packet::empty();
@@ -565,7 +673,11 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             continue;
         }
         count += 1;
-        if let Some(t) = packet.pts().or(packet.dts()) {
+        // Presentation timestamps only: a decoding timestamp is in decoding order, and a
+        // frame without a pts leaves the whole clip to be timed by its rate.
+        if let Some(t) = packet.pts()
+            && stamps.len() < crate::limits::MAX_FRAMES_TIMED
+        {
             stamps.push(t);
         }
     }
@@ -585,21 +697,12 @@ fn scan(path: &Path) -> Result<(usize, u64, bool)> {
             "has a video stream but no frames in it; the recording may have failed",
         ));
     }
-    Ok((index, count, timestamps_irregular(&mut stamps)))
-}
-
-/// True when frame timestamps (in stream ticks) vary by more than rounding explains: the
-/// spread of successive differences is over 2 ticks and over 10 % of the median interval.
-fn timestamps_irregular(stamps: &mut [i64]) -> bool {
-    if stamps.len() < 3 {
-        return false;
-    }
-    stamps.sort_unstable();
-    let mut diffs: Vec<i64> = stamps.windows(2).map(|p| p[1] - p[0]).collect();
-    diffs.sort_unstable();
-    let median = diffs[diffs.len() / 2];
-    let spread = diffs[diffs.len() - 1] - diffs[0];
-    spread > 2 && spread as f64 > 0.1 * median as f64
+    let times = if stamps.len() as u64 == count {
+        crate::decode::FrameTimes::from_ticks(&mut stamps, tick_s)
+    } else {
+        None
+    };
+    Ok((index, count, times))
 }
 
 fn copy_u8(
@@ -691,10 +794,16 @@ impl FrameSource for VideoSource {
         if !self.next_picture()? {
             return Ok(false);
         }
-        let copied = self
-            .picture_plan()
-            .and_then(|plan| self.copy_out(plan, frame));
-        self.stop_on_error(copied)?;
+        if self.lost_frame {
+            // The placeholder is made at the displayed size already.
+            self.placeholder(frame);
+        } else {
+            let copied = self
+                .picture_plan()
+                .and_then(|plan| self.copy_out(plan, frame));
+            self.stop_on_error(copied)?;
+            super::rotate::rotate_frame(frame, self.rotation_cw);
+        }
         self.next_index += 1;
         Ok(true)
     }
@@ -704,14 +813,21 @@ impl FrameSource for VideoSource {
         if !self.next_picture()? {
             return Ok(false);
         }
+        if self.lost_frame {
+            self.placeholder(&mut slot.frame);
+            self.next_index += 1;
+            return Ok(true);
+        }
         let plan = self.picture_plan();
         let plan = self.stop_on_error(plan)?;
         if self.packed(plan) {
             let at = (self.next_index, self.info.width, self.info.height);
-            slot.picture.hold(&mut self.picture, at);
+            slot.picture
+                .hold(&mut self.picture, at, self.picture_damaged);
         } else {
             let copied = self.copy_out(plan, &mut slot.frame);
             self.stop_on_error(copied)?;
+            super::rotate::rotate_frame(&mut slot.frame, self.rotation_cw);
         }
         self.next_index += 1;
         Ok(true)
@@ -726,6 +842,8 @@ pub(super) struct HeldPicture {
     pic: ff::frame::Video,
     /// Index, width and height of the picture held; None when none is.
     at: Option<(u64, u32, u32)>,
+    /// The decoder flagged the picture held as damaged.
+    damaged: bool,
 }
 
 impl HeldPicture {
@@ -733,17 +851,19 @@ impl HeldPicture {
         HeldPicture {
             pic: ff::frame::Video::empty(),
             at: None,
+            damaged: false,
         }
     }
 
     /// Takes over `from`'s picture (leaving `from` blank for the decoder's next one), whose
     /// 8-bit luma rows must be packed.
-    fn hold(&mut self, from: &mut ff::frame::Video, at: (u64, u32, u32)) {
+    fn hold(&mut self, from: &mut ff::frame::Video, at: (u64, u32, u32), damaged: bool) {
         self.release();
         // SAFETY: both wrap valid AVFrames; `self.pic` holds no reference (released above),
         // as av_frame_move_ref requires, and `from` is left blank.
         unsafe { ff::ffi::av_frame_move_ref(self.pic.as_mut_ptr(), from.as_mut_ptr()) };
         self.at = Some(at);
+        self.damaged = damaged;
     }
 
     /// The picture's luma, when one is held.
@@ -757,6 +877,7 @@ impl HeldPicture {
             bit_depth: 8,
             luma: LumaRef::U8(self.pic.data(0).get(..n)?),
             chroma: chroma_of(&self.pic, width, height),
+            damaged: self.damaged,
         })
     }
 
@@ -820,24 +941,6 @@ mod tests {
         // SAFETY: as above.
         unsafe { (*pic.as_mut_ptr()).linesize[0] *= -1 };
         assert!(!bottom_up(&pic));
-    }
-
-    #[test]
-    fn timestamp_regularity() {
-        // Matroska at 240 fps: 1 ms rounding gives 4 or 5 ms steps; still regular.
-        let mut mkv: Vec<i64> = (0..50)
-            .map(|i| (i as f64 * 1000.0 / 240.0).round() as i64)
-            .collect();
-        assert!(!timestamps_irregular(&mut mkv));
-        // 2000 fps in 1 ms ticks: steps of 0 or 1.
-        let mut fast: Vec<i64> = (0..50).map(|i| i / 2).collect();
-        assert!(!timestamps_irregular(&mut fast));
-        // A 30 fps clip with a dropped stretch.
-        let mut vfr: Vec<i64> = (0..20)
-            .map(|i| i * 33)
-            .chain((20..40).map(|i| i * 33 + 200))
-            .collect();
-        assert!(timestamps_irregular(&mut vfr));
     }
 
     fn pattern(i: u64, w: u32, h: u32) -> Frame {
@@ -989,7 +1092,7 @@ mod tests {
     }
 
     #[test]
-    fn variable_frame_rate_is_noted_and_frames_still_count() {
+    fn variable_frame_rate_keeps_each_frames_time_and_frames_still_count() {
         use crate::encode::{ClipWriter, Codec};
         let dir = tempfile::tempdir().unwrap();
         for ext in ["mkv", "mov"] {
@@ -1004,16 +1107,42 @@ mod tests {
             w.finish().unwrap();
             let (info, frames) = decode_all(&p);
             assert_eq!((info.frames, frames.len()), (20, 20), ".{ext}");
-            assert!(
-                info.warnings
-                    .iter()
-                    .any(|w| matches!(w, Warning::Note(s) if s.contains("variable frame rate"))),
-                ".{ext}: {:?}",
-                info.warnings
-            );
+            // Presentation times carry the hole: frame 10 is at 40 ticks of 1/30 s.
+            let t = info
+                .frame_times
+                .as_ref()
+                .expect("timestamps")
+                .times_s
+                .clone();
+            assert_eq!(t.len(), 20, ".{ext}");
+            assert!((t[9] - 9.0 / 30.0).abs() < 2e-3, ".{ext}: {t:?}");
+            assert!((t[10] - 40.0 / 30.0).abs() < 2e-3, ".{ext}: {t:?}");
+            let e = info.frame_times.as_ref().unwrap().evenness().unwrap();
+            assert!(e.uneven() && e.worst_at == 10, ".{ext}: {e:?}");
             // Indices still count decoded frames, whatever the timestamps say.
             assert_eq!(frames[10].index, 10);
             assert_eq!(frames[10], pattern(10, 16, 16));
+        }
+    }
+
+    #[test]
+    fn a_display_rotation_turns_frames_to_the_displayed_picture() {
+        use crate::encode::{ClipWriter, Codec};
+        let dir = tempfile::tempdir().unwrap();
+        for rot in [90u32, 180, 270] {
+            let p = dir.path().join(format!("turned{rot}.mov"));
+            // Stored 16 × 8, one bright pixel at stored (1, 0).
+            let mut d = vec![0u8; 16 * 8];
+            d[1] = 255;
+            let mut w = ClipWriter::create_rotated(&p, Codec::Ffv1, 16, 8, 30.0, rot).unwrap();
+            w.write(&Frame::from_u8(0, 16, 8, d.clone())).unwrap();
+            w.finish().unwrap();
+            let (info, frames) = decode_all(&p);
+            assert_eq!(info.display_rotation_deg, rot);
+            let want = crate::decode::rotate::rotate_plane(&d, 16, 8, rot);
+            let (ww, wh) = if rot == 180 { (16, 8) } else { (8, 16) };
+            assert_eq!((info.width, info.height), (ww, wh));
+            assert_eq!(frames[0].luma, Luma::U8(want), "{rot}");
         }
     }
 }

@@ -35,7 +35,9 @@
 
 use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
 use crate::mechanics::sense::set_at_rest_warning;
+use crate::mechanics::subframe::{Start, motion_start, value_at};
 use crate::mechanics::uncertainty::stiffness_rel_sigma;
+use crate::mechanics::unwind::{self, BlowUnwind, UnwindBlow, UnwindMeasurement};
 use crate::mechanics::zero::{TwistZero, ZeroSource, quiet_start};
 use crate::mechanics::{BarSpec, StiffnessSource};
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation, degrees, rest_window};
@@ -88,6 +90,23 @@ pub struct BlowMetrics {
     /// Largest fraction by which the sampled peak can read low, 1 − cos(π/(4·rise)), when
     /// the rise spans fewer than [`UNDERSAMPLED_RISE_FRAMES`] frames (else None).
     pub peak_under_read: Option<f64>,
+    /// Spring-back measured from the clip for this blow: the wind-up it struck, the torque
+    /// gain that wind-up caused, the energy it put in and its unwind's decay
+    /// ([`crate::mechanics::unwind`]).
+    pub unwind: BlowUnwind,
+    /// Drive onset within the frame, s: the first two moving samples' line carried back to
+    /// the rest level ([`crate::mechanics::subframe`]).
+    pub onset_subframe_s: Option<f64>,
+    /// Nut onset within the frame, s: its start from rest (parabola) carried back.
+    pub nut_onset_subframe_s: Option<f64>,
+    /// Nut lag from the sub-frame onsets, s.
+    pub nut_lag_subframe_s: Option<f64>,
+    /// Standard uncertainty of that lag from the angle noise, s.
+    pub nut_lag_subframe_sigma_s: Option<f64>,
+    /// Twist at the sub-frame nut onset (interpolated between frames).
+    pub breakaway_subframe_twist: Option<Angle>,
+    /// Stiffness × that twist.
+    pub breakaway_subframe_torque: Option<Torque>,
 }
 
 /// A blow whose twist rises to its peak in fewer frames than this is under-sampled: the top
@@ -145,6 +164,8 @@ pub struct Summary {
     /// The torque the joint holds after the last blow that turned the nut (None without a
     /// bar or a measured slip).
     pub holding: Option<HoldingTorque>,
+    /// Spring-back measured from the clip (decay between blows, torque gain over held blows).
+    pub unwind: UnwindMeasurement,
 }
 
 /// Computes every blow's metrics and the summary, with the twist zero found from the trace
@@ -240,7 +261,15 @@ pub fn blow_metrics_zeroed(
         } else {
             nut_rest(before, prev_onset)
         };
+        // A peak on or next to a lost frame was not measured: null, with a warning.
+        let peak_lost = peak_on_lost(&twist, b.onset, b.end);
+        if peak_lost {
+            warnings.push(Warning::BlowPeakLost {
+                frame: trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64),
+            });
+        }
         let peak_twist = peak_twist_deg(&twist, &twist_smooth, b.onset, b.end, twist_sigma_deg)
+            .filter(|_| !peak_lost)
             .map(Angle::from_deg);
         let nut_onset = b.nut_onset.filter(|&i| i >= b.onset && i < b.end);
         let breakaway_twist = nut_onset.and_then(|i| twist_smooth[i]).map(Angle::from_deg);
@@ -270,19 +299,45 @@ pub fn blow_metrics_zeroed(
             peak_under_read.unwrap_or(0.0),
             stiffness.zip(k_rel_sigma),
         );
+        let drive_start = b
+            .onset
+            .checked_sub(1)
+            .and_then(|i| level(&drive, i))
+            .and_then(|base| {
+                let sd = drive_sigma_deg.max(NOISE_FLOOR_DEG);
+                motion_start(&drive, b.onset, base, sd, Start::Impulsive)
+            });
+        let nut_start = nut_onset.zip(nut_before).and_then(|(i, base)| {
+            let sn = nut_sigma_deg.max(NOISE_FLOOR_DEG);
+            motion_start(&nut, i, base, sn, Start::FromRest)
+        });
+        // Samples are consecutive frames within the analysed window.
+        let at_s = |t: f64| (frame as f64 + (t - b.onset as f64)) / fps;
+        let breakaway_subframe_twist = nut_start
+            .and_then(|(t, _)| value_at(&twist_smooth, t))
+            .map(Angle::from_deg);
         out.push(BlowMetrics {
+            onset_subframe_s: drive_start.map(|(t, _)| at_s(t)),
+            nut_onset_subframe_s: nut_start.map(|(t, _)| at_s(t)),
+            nut_lag_subframe_s: drive_start
+                .zip(nut_start)
+                .map(|((d, _), (n, _))| ((n - d) / fps).max(0.0)),
+            nut_lag_subframe_sigma_s: drive_start
+                .zip(nut_start)
+                .map(|((_, ud), (_, un))| ud.hypot(un) / fps),
+            breakaway_subframe_twist,
+            breakaway_subframe_torque: torque(breakaway_subframe_twist),
             index: k + 1,
             frame,
-            t_s: trace.time_base.seconds(frame as f64),
+            t_s: trace.t_s(b.onset),
             drive_advance: adv(&drive).map(Angle::from_deg),
             nut_advance,
             peak_twist,
             peak_torque: torque(peak_twist),
             residual_twist: level(&twist, last).map(Angle::from_deg),
-            nut_lag_s: nut_onset.and_then(|i| {
-                let f = trace.frames.get(i)?;
-                Some(f.saturating_sub(frame) as f64 / fps)
-            }),
+            nut_lag_s: nut_onset
+                .filter(|&i| i < trace.len())
+                .map(|i| (trace.t_s(i) - trace.t_s(b.onset)).max(0.0)),
             nut_onset_frame: nut_onset.and_then(|i| trace.frames.get(i).copied()),
             breakaway_twist,
             breakaway_torque: torque(breakaway_twist),
@@ -291,6 +346,7 @@ pub fn blow_metrics_zeroed(
             peak_torque_ci95,
             rise_frames,
             peak_under_read,
+            unwind: BlowUnwind::default(),
         });
     }
 
@@ -353,6 +409,29 @@ pub fn blow_metrics_zeroed(
         }
         _ => None,
     };
+    let unwind_blows: Vec<UnwindBlow> = blows
+        .iter()
+        .zip(&out)
+        .map(|(b, m)| UnwindBlow {
+            onset: b.onset,
+            end: b.end,
+            peak_deg: m.peak_twist.map(Angle::deg),
+            pre_strike_deg: b.onset.checked_sub(1).and_then(|i| level(&twist, i)),
+            held: !m.nut_advanced,
+        })
+        .collect();
+    let unwind = unwind::measure(
+        &twist,
+        &nut,
+        fps,
+        &unwind_blows,
+        (twist_sigma_deg, nut_sigma_deg),
+        stiffness,
+        bar.and_then(BarSpec::drive_inertia_kg_m2),
+    );
+    for (m, u) in out.iter_mut().zip(&unwind.blows) {
+        m.unwind = *u;
+    }
     let summary = Summary {
         blow_count: out.len(),
         blow_rate_per_min: seg.rate_per_min,
@@ -385,6 +464,7 @@ pub fn blow_metrics_zeroed(
             .map(Angle::from_deg),
         twist_zero: zero,
         holding,
+        unwind,
     };
     (out, summary, warnings)
 }
@@ -469,6 +549,20 @@ fn sg_at(v: &[Option<f64>], i: usize, c: &[f64]) -> Option<f64> {
 /// parabola); otherwise the top 10 %, then 5 %, is tried, and finally the lightly smoothed
 /// maximum is used, or the raw maximum when that stands more than 2σ above it (a top too
 /// sharp for the smoothing).
+/// True when a lost frame (a null twist) lies between the blow's onset `a` and one frame
+/// past its highest measured twist (within `a..b`): the true peak may sit on that frame, so
+/// the peak read from the others could be low. Also true when no twist in the blow is measured.
+fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
+    let top = (a..b)
+        .filter_map(|i| Some((i, twist[i]?)))
+        .max_by(|x, y| x.1.total_cmp(&y.1))
+        .map(|(i, _)| i);
+    match top {
+        None => true,
+        Some(top) => (a..=(top + 1).min(b - 1)).any(|i| twist[i].is_none()),
+    }
+}
+
 fn peak_twist_deg(
     raw: &[Option<f64>],
     smooth: &[Option<f64>],
@@ -585,6 +679,8 @@ mod tests {
         let n = drive.len();
         Trace {
             time_base: TimeBase::from_fps(1000.0, "t").unwrap(),
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (100..100 + n as u64).collect(),
             drive: drive.iter().map(|&d| Some(Angle::from_deg(d))).collect(),
             nut: nut.iter().map(|&d| Some(Angle::from_deg(d))).collect(),
@@ -773,6 +869,8 @@ mod tests {
                 let n = v.len();
                 let trace = Trace {
                     time_base: TimeBase::from_fps(3000.0, "t").unwrap(),
+                    times_s: Vec::new(),
+                    synthetic: Vec::new(),
                     frames: (0..n as u64).collect(),
                     drive: v.iter().map(|p| p.0.map(Angle::from_deg)).collect(),
                     nut: v.iter().map(|p| p.1.map(Angle::from_deg)).collect(),

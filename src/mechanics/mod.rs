@@ -18,13 +18,17 @@ pub(crate) mod model;
 mod model_predict;
 mod sense;
 mod steel;
+pub mod subframe;
 mod uncertainty;
+pub mod unwind;
 mod zero;
 
+pub use crate::report::bar_json::{BarJson, SectionJson};
 pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
 pub use bar_report::{
-    BarJson, BarReport, InertiaSource, MeasuredRecovery, ModelRecovery, PeakStress, SectionJson,
-    SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
+    BarReport, GAIN_SPRANG_BACK_MAX, GAIN_STILL_WOUND_MIN, InertiaSource, MeasuredRecovery,
+    ModelRecovery, PeakStress, SectionReport, SpringbackVerdict, StiffnessSource, TORQUE_CAUTION,
+    recovery_from_gain,
 };
 pub use blows::{
     BlowMetrics, NUT_STOP_MIN_DEG, Summary, UNDERSAMPLED_RISE_FRAMES, blow_metrics,
@@ -44,4 +48,5 @@ pub use steel::{DEFAULT_SHEAR_MODULUS_GPA, STEELS, Steel, YieldCriterion, steel}
 pub use uncertainty::{
     CALIBRATION_REL_SIGMA_DEFAULT, DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA, stiffness_rel_sigma,
 };
+pub use unwind::{BlowUnwind, DecayFit, DecayMethod, UnwindMeasurement};
 pub use zero::{QUIET_MIN_SAMPLES, TwistZero, ZeroSource};

@@ -55,16 +55,49 @@ pub struct Report {
     /// The analysed frames.
     #[serde(default)]
     pub window: WindowJson,
+    /// Per mark, how much of it was measured: the share of frames lost and a confidence
+    /// (docs/outputs.md, "Mark quality"). Absent in reports written before it existed.
+    #[serde(default)]
+    pub mark_quality: MarkQualityJson,
     /// The blow model fitted to this clip (docs/mechanics.md, "The blow model"), or
     /// `{"error": reason}` when it could not be fitted; absent without a bar.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub model: Option<serde_json::Value>,
 }
 
+/// `report.json`'s `mark_quality`: the drive and nut marks' self-check results.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct MarkQualityJson {
+    /// The drive mark.
+    pub drive: MarkJson,
+    /// The nut mark.
+    pub nut: MarkJson,
+}
+
+/// One mark's quality over the analysed frames.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct MarkJson {
+    /// Share of the analysed frames where the mark is null (lost, faded into the background,
+    /// or refused by a physics self-check), 0..=1.
+    pub lost_fraction: f64,
+    /// The mean of the per-frame confidences, 0 for each lost frame, 0..=1.
+    pub confidence: f64,
+}
+
+impl MarkJson {
+    fn of(angles: &[Option<Angle>], confidence: &[f32]) -> MarkJson {
+        MarkJson {
+            lost_fraction: crate::track::lost_share(angles),
+            confidence: crate::track::clip_confidence(angles, confidence),
+        }
+    }
+}
+
 /// `report.json`'s `trace`: one entry per analysed frame, `null` where a mark was lost.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TraceJson {
-    /// Time, s (clip frame index / capture rate).
+    /// Time, s: clip frame index / capture rate, or the frame's timestamp when
+    /// `summary.timing.source` is `timestamps`.
     pub t_s: Vec<f64>,
     /// Clip frame index.
     pub frame: Vec<u64>,
@@ -78,6 +111,10 @@ pub struct TraceJson {
     pub drive_confidence: Vec<f64>,
     /// Tracker confidence of each nut angle, 0 to 1.
     pub nut_confidence: Vec<f64>,
+    /// True where the frame was repeated or synthesised, not captured: its angles are shown
+    /// but not used for peaks, onsets or timing (empty in reports that predate it).
+    #[serde(default)]
+    pub synthetic: Vec<bool>,
 }
 
 /// One entry of `report.json`'s `blows`.
@@ -87,7 +124,7 @@ pub struct BlowJson {
     pub index: usize,
     /// Clip frame index of the drive end's onset.
     pub frame: u64,
-    /// `frame / fps`, s.
+    /// The onset frame's time, s (`frame / fps`, or its timestamp; see the trace's `t_s`).
     pub t_s: f64,
     /// Drive-end advance from just before this blow to just before the next, degrees.
     pub drive_advance_deg: Option<f64>,
@@ -122,6 +159,49 @@ pub struct BlowJson {
     /// Largest fraction by which the sampled peak can read low (null when the rise is
     /// sampled finely enough).
     pub peak_under_read_ratio: Option<f64>,
+    /// The nut did not advance in this blow (the blows the spring-back gain is measured on).
+    #[serde(default)]
+    pub nut_held: bool,
+    /// Twist just before this blow: the wind-up it struck, degrees.
+    #[serde(default)]
+    pub pre_strike_twist_deg: Option<f64>,
+    /// θp/√(θp² − θr²): how much that wind-up raised this blow's peak (held blows only).
+    #[serde(default)]
+    pub springback_torque_gain_ratio: Option<f64>,
+    /// Energy the blow put into the bar, ½k(θp² − θr²), J (held blows only).
+    #[serde(default)]
+    pub blow_energy_j: Option<f64>,
+    /// Time constant of the unwind after this blow's peak, ms (null when not resolved).
+    #[serde(default)]
+    pub unwind_time_constant_ms: Option<f64>,
+    /// `exponential` or `log_decrement`.
+    #[serde(default)]
+    pub unwind_decay_method: Option<String>,
+    /// Damping ratio of that unwind (log decrement only).
+    #[serde(default)]
+    pub unwind_damping_ratio: Option<f64>,
+    /// Natural frequency of that unwind, Hz (log decrement only).
+    #[serde(default)]
+    pub unwind_natural_frequency_hz: Option<f64>,
+    /// Drive onset interpolated within the frame, s of capture time.
+    #[serde(default)]
+    pub onset_subframe_t_s: Option<f64>,
+    /// Nut onset interpolated within the frame, s.
+    #[serde(default)]
+    pub nut_onset_subframe_t_s: Option<f64>,
+    /// Nut lag from the interpolated onsets, ms.
+    #[serde(default)]
+    pub nut_lag_subframe_ms: Option<f64>,
+    /// ±1.96 standard uncertainties of that lag from the angle noise alone, ms (the form of the
+    /// motion adds more: docs/mechanics.md, "Sub-frame timing").
+    #[serde(default)]
+    pub nut_lag_noise_ci95_ms: Option<f64>,
+    /// Twist at the interpolated nut onset, degrees.
+    #[serde(default)]
+    pub breakaway_subframe_twist_deg: Option<f64>,
+    /// Stiffness × that twist, N·m.
+    #[serde(default)]
+    pub breakaway_subframe_torque_nm: Option<f64>,
 }
 
 /// `report.json`'s `summary`.
@@ -185,6 +265,43 @@ pub struct SummaryJson {
     pub holding_slip_count: usize,
     /// The joint's rate fitted over those slips, N·m per degree of nut turn.
     pub joint_rate_nm_per_deg: Option<f64>,
+    /// The clock that timed the frames, and the frames that were not captured (interface v2,
+    /// "Footage from phones and consumer cameras").
+    #[serde(default)]
+    pub timing: TimingJson,
+}
+
+/// `summary.timing`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TimingJson {
+    /// `capture_rate` (frame index / capture rate) or `timestamps` (each frame's own).
+    pub source: String,
+    /// Frames that repeat the frame before them.
+    pub duplicated_frames: usize,
+    /// Frames that blend or interpolate their neighbours.
+    pub interpolated_frames: usize,
+    /// Median interval between the analysed frames' timestamps, ms (null without them).
+    #[serde(default)]
+    pub median_interval_ms: Option<f64>,
+    /// The timestamp interval furthest from the median, ms.
+    #[serde(default)]
+    pub worst_interval_ms: Option<f64>,
+    /// The rate at which the frames were really captured, when many were not, Hz.
+    #[serde(default)]
+    pub captured_fps_estimate_hz: Option<f64>,
+}
+
+impl Default for TimingJson {
+    fn default() -> Self {
+        TimingJson {
+            source: "capture_rate".into(),
+            duplicated_frames: 0,
+            interpolated_frames: 0,
+            median_interval_ms: None,
+            worst_interval_ms: None,
+            captured_fps_estimate_hz: None,
+        }
+    }
 }
 
 /// `summary.twist_zero`: where the twist zero came from and the twist already in the bar at
@@ -256,6 +373,7 @@ pub fn report(a: &Analysis) -> Report {
         nut_confidence: (0..n)
             .map(|i| confidence(tr.nut_confidence.get(i).copied()))
             .collect(),
+        synthetic: (0..n).map(|i| tr.is_synthetic(i)).collect(),
     };
     let blows = a
         .blows
@@ -286,6 +404,28 @@ pub fn report(a: &Analysis) -> Report {
                 .filter(|v| v.iter().all(|x| x.is_finite())),
             rise_frames: b.rise_frames,
             peak_under_read_ratio: finite(b.peak_under_read),
+            nut_held: b.unwind.held,
+            pre_strike_twist_deg: deg(b.unwind.pre_strike_twist),
+            springback_torque_gain_ratio: finite(b.unwind.torque_gain),
+            blow_energy_j: finite(b.unwind.energy_j),
+            unwind_time_constant_ms: finite(b.unwind.decay.map(|d| 1e3 * d.time_constant_s())),
+            unwind_decay_method: b.unwind.decay.map(|d| {
+                match d.method {
+                    crate::mechanics::DecayMethod::Exponential => "exponential",
+                    crate::mechanics::DecayMethod::LogDecrement => "log_decrement",
+                }
+                .to_string()
+            }),
+            unwind_damping_ratio: finite(b.unwind.decay.and_then(|d| d.damping_ratio)),
+            unwind_natural_frequency_hz: finite(
+                b.unwind.decay.and_then(|d| d.natural_frequency_hz),
+            ),
+            onset_subframe_t_s: finite(b.onset_subframe_s),
+            nut_onset_subframe_t_s: finite(b.nut_onset_subframe_s),
+            nut_lag_subframe_ms: finite(b.nut_lag_subframe_s.map(|s| s * 1e3)),
+            nut_lag_noise_ci95_ms: finite(b.nut_lag_subframe_sigma_s.map(|s| 1.96e3 * s)),
+            breakaway_subframe_twist_deg: deg(b.breakaway_subframe_twist),
+            breakaway_subframe_torque_nm: nm(b.breakaway_subframe_torque),
         })
         .collect();
     let s = &a.summary;
@@ -340,6 +480,14 @@ pub fn report(a: &Analysis) -> Report {
         holding_after_blow: s.holding.map(|h| h.after_blow),
         holding_slip_count: s.holding.map_or(0, |h| h.slips),
         joint_rate_nm_per_deg: finite(s.holding.and_then(|h| h.joint_rate_nm_per_deg)),
+        timing: TimingJson {
+            source: a.timing.source.as_str().into(),
+            duplicated_frames: a.timing.duplicated_frames,
+            interpolated_frames: a.timing.interpolated_frames,
+            median_interval_ms: finite(a.timing.median_interval_s.map(|t| t * 1e3)),
+            worst_interval_ms: finite(a.timing.worst_interval_s.map(|t| t * 1e3)),
+            captured_fps_estimate_hz: finite(a.timing.captured_fps_estimate_hz),
+        },
     };
     Report {
         report_version: REPORT_VERSION,
@@ -370,6 +518,10 @@ pub fn report(a: &Analysis) -> Report {
         created_utc: super::provenance::now_utc(),
         rig: serde_json::to_value(&a.rig).unwrap_or(serde_json::Value::Null),
         window: WindowJson::of(a),
+        mark_quality: MarkQualityJson {
+            drive: MarkJson::of(&a.trace.drive, &a.trace.drive_confidence),
+            nut: MarkJson::of(&a.trace.nut, &a.trace.nut_confidence),
+        },
         model: None,
     }
     .with_model()
@@ -504,10 +656,16 @@ mod tests {
             "peak_torque_to_rating_ratio",
             "drive_confidence",
             "nut_confidence",
+            "duplicated_frames",
+            "interpolated_frames",
+            "lost_fraction",
+            "confidence",
             "fps",
             "bytes",
             "first_frame",
             "last_frame",
+            "held_blows",
+            "decay_fits",
             // The fitted blow model (`model`): an estimate's value and sigma carry the unit of
             // the key above them; ratios, counts and the internal (log-scale) vector.
             "value",
@@ -521,7 +679,8 @@ mod tests {
             "internal",
         ];
         let units = [
-            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad", "_hz",
+            "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad", "_ratio",
+            "_j", "_hz",
         ];
         fn walk(v: &Value, f: &mut dyn FnMut(&str, &Value)) {
             if let Value::Object(m) = v {

@@ -23,6 +23,7 @@ pub use write::{
     check_folder_not_input, check_not_input, lock_output, write_all, write_file, write_new_atomic,
 };
 
+pub(crate) mod bar_json;
 mod csv;
 mod display;
 mod html;
@@ -35,7 +36,9 @@ mod thumbnail;
 pub use display::{ReportOptions, TorqueUnit};
 pub use provenance::{ClipJson, ToolJson, WindowJson};
 
-pub use json::{BlowJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report};
+pub use json::{
+    BlowJson, MarkJson, MarkQualityJson, REPORT_VERSION, Report, SummaryJson, TraceJson, report,
+};
 pub use table::{blow_table, blow_table_with};
 
 /// The caution printed and written wherever a torque is shown.
@@ -196,6 +199,8 @@ pub(crate) mod tests {
         drive[4] = None;
         let trace = Trace {
             time_base: tb,
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (0..n as u64).collect(),
             drive,
             nut: truth
@@ -235,10 +240,20 @@ pub(crate) mod tests {
                 codec: "raw".into(),
                 duration_s: None,
                 warnings: Vec::new(),
+                frame_times: None,
+                display_rotation_deg: 0,
             },
             rig,
             time_base: tb,
             fps_source: FpsSource::Rig,
+            timing: crate::timing::Timing {
+                source: crate::timing::TimingSource::CaptureRate,
+                duplicated_frames: 0,
+                interpolated_frames: 0,
+                median_interval_s: None,
+                worst_interval_s: None,
+                captured_fps_estimate_hz: None,
+            },
             trace,
             segmentation,
             blows,
@@ -280,6 +295,8 @@ pub(crate) mod tests {
         let still = vec![Some(Angle::ZERO); n];
         let trace = Trace {
             time_base: TimeBase::from_fps(1000.0, "test").unwrap(),
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (0..n as u64).collect(),
             drive: still.clone(),
             nut: still,

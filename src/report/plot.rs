@@ -831,6 +831,8 @@ pub(crate) mod tests {
         }
         let trace = Trace {
             time_base: tb,
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
             frames: (0..n as u64).collect(),
             drive,
             nut,
@@ -881,10 +883,20 @@ pub(crate) mod tests {
                 codec: "raw".into(),
                 duration_s: None,
                 warnings: Vec::new(),
+                frame_times: None,
+                display_rotation_deg: 0,
             },
             rig,
             time_base: tb,
             fps_source: FpsSource::Rig,
+            timing: crate::timing::Timing {
+                source: crate::timing::TimingSource::CaptureRate,
+                duplicated_frames: 0,
+                interpolated_frames: 0,
+                median_interval_s: None,
+                worst_interval_s: None,
+                captured_fps_estimate_hz: None,
+            },
             trace,
             segmentation: Segmentation {
                 blows,

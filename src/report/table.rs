@@ -66,7 +66,17 @@ pub fn blow_table_with(a: &Analysis, opts: &ReportOptions) -> String {
             fmt(b.peak_torque.map(|t| both(unit, t).0), 1),
             fmt(b.peak_torque.map(|t| both(unit, t).1), 1),
             deg(b.residual_twist, 2),
-            fmt(b.nut_lag_s.map(|s| s * 1e3), 2),
+            match (b.nut_lag_subframe_s, b.nut_lag_subframe_sigma_s) {
+                // Interpolated within the frame: as many decimals as its 95 % resolution allows.
+                (Some(l), Some(u)) => fmt(
+                    Some(l * 1e3),
+                    lag_decimals((1.96e3 * u).max(250.0 / a.time_base.fps_hz())),
+                ),
+                _ => fmt(
+                    b.nut_lag_s.map(|s| s * 1e3),
+                    lag_decimals(1e3 / a.time_base.fps_hz()),
+                ),
+            },
         );
     }
     if a.blows.is_empty() {
@@ -171,6 +181,17 @@ fn summary_line(a: &Analysis, unit: TorqueUnit) -> String {
     }
     parts.retain(|p| !p.is_empty());
     format!("Summary: {}.", parts.join("; "))
+}
+
+/// Decimals for a time in ms whose 95 % resolution is `res_ms`: the last printed digit is the
+/// first one the resolution leaves uncertain (0.5 ms → 1 decimal, 0.05 ms → 2), at most 3.
+/// The nut lag's resolution is its noise interval but at least a quarter frame, about the
+/// errors measured on the rendered fixtures (docs/mechanics.md, "Sub-frame timing").
+fn lag_decimals(res_ms: f64) -> usize {
+    if !(res_ms.is_finite() && res_ms > 0.0) {
+        return 2;
+    }
+    (-res_ms.log10()).ceil().clamp(0.0, 3.0) as usize
 }
 
 #[cfg(test)]

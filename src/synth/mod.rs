@@ -25,9 +25,11 @@
 pub mod fixtures;
 pub mod layout;
 mod look;
+pub mod phone;
 pub mod random;
 mod scene;
 pub mod side;
+pub mod side_random;
 mod texture;
 mod write;
 
@@ -867,6 +869,7 @@ fn finish_frame(sc: &Scenario, mut img: Vec<f32>, index: u64, stream: u64) -> Fr
             bit_depth: 16,
             luma: Luma::U16(data),
             chroma: None,
+            damaged: false,
         }
     } else {
         let data = img
@@ -907,6 +910,7 @@ fn colour_frame(sc: &Scenario, index: u64, poses: &[Pose]) -> Frame {
             bit_depth: 16,
             luma: Luma::U16(data),
             chroma: None,
+            damaged: false,
         };
     }
     let q = |v: f32| (v.clamp(0.0, 1.0) * 255.0).round() as u8;

@@ -8,9 +8,45 @@
 //! tightening way moves its facing stripe towards +t. Stripe k (of N, equally spaced) sits at
 //! bar angle `θ + 2πk/N`. The surface is shaded by a Lambertian term (a light on the camera
 //! axis: brightness ∝ cos φ; Lambert's cosine law, from memory), paint and steel alike.
+//!
+//! Optionally ([`LampLine`]) a lamp's specular reflection runs along the bar: on a surface of
+//! revolution the mirror point of a far lamp sits at one angle φ_s on screen whatever the bar's
+//! turn, so the line is static while the paint moves (Gaussian across, in φ; its height on
+//! matte paint scaled by the paint's gloss). Optionally ([`SideColour`]) steel and paint have
+//! colours: frames then carry full-size Cb and Cr planes (BT.601-7 weights, as `look.rs`), the
+//! lamp's line is white (it adds to Y′ only). Sensor noise is seeded per frame.
+
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
 
 use crate::decode::Frame;
 use crate::rig::{Mark, ScreenDir, SideMark};
+
+use super::look::{Ycc, rgb_to_ycc};
+
+/// A lamp's specular line along the bar (static on screen while the bar turns).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LampLine {
+    /// Bar angle from facing the camera at which the line sits, rad.
+    pub phi_rad: f64,
+    /// Its Gaussian half-width across (standard deviation in bar angle), rad.
+    pub sigma_rad: f64,
+    /// Its peak added brightness on bare steel, 0..1 (before clipping).
+    pub peak: f32,
+    /// The share of the peak that shows on paint (0 = matte paint, 1 = as glossy as steel).
+    pub paint_gloss: f32,
+}
+
+/// Steel and paint colours (R′G′B′, 0..1 each, as lit facing the camera).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SideColour {
+    /// Bare steel.
+    pub steel_rgb: [f32; 3],
+    /// Paint.
+    pub paint_rgb: [f32; 3],
+    /// Background.
+    pub background_rgb: [f32; 3],
+}
 
 /// A side view of the bar.
 #[derive(Debug, Clone, PartialEq)]
@@ -39,6 +75,14 @@ pub struct SideScene {
     pub tighten: ScreenDir,
     /// Subsamples per pixel side (n × n per pixel).
     pub supersample: u32,
+    /// A static specular line along the bar, if any.
+    pub lamp: Option<LampLine>,
+    /// Colours (colour frames) instead of the luma levels above, if any.
+    pub colour: Option<SideColour>,
+    /// Sensor noise, standard deviation on Y′ (0..1); Cb and Cr get half of it.
+    pub noise_sigma: f32,
+    /// Seed of the noise.
+    pub seed: u64,
 }
 
 impl SideScene {
@@ -58,6 +102,10 @@ impl SideScene {
             stripes: stripes.max(1),
             tighten: ScreenDir::Up,
             supersample: 8,
+            lamp: None,
+            colour: None,
+            noise_sigma: 0.0,
+            seed: 0,
         }
     }
 
@@ -88,14 +136,26 @@ impl SideScene {
         (u, n)
     }
 
-    /// Luma at screen point (x, y) with the bar at angle `theta` (rad, tightening positive).
-    fn eval(&self, u: [f64; 2], n: [f64; 2], theta: f64, x: f64, y: f64) -> f32 {
+    /// Y′CbCr at screen point (x, y) with the bar at angle `theta` (rad, tightening positive).
+    fn eval(&self, u: [f64; 2], n: [f64; 2], theta: f64, x: f64, y: f64) -> Ycc {
         let a = self.axis[0];
         let (dx, dy) = (x - a[0], y - a[1]);
         let t = dx * n[0] + dy * n[1];
         let r = self.radius_px;
+        let (steel, paint, background) = match self.colour {
+            Some(c) => (
+                rgb_to_ycc(c.steel_rgb),
+                rgb_to_ycc(c.paint_rgb),
+                rgb_to_ycc(c.background_rgb),
+            ),
+            None => (
+                [self.steel, 0.0, 0.0],
+                [self.paint, 0.0, 0.0],
+                [self.background, 0.0, 0.0],
+            ),
+        };
         if t.abs() >= r {
-            return self.background;
+            return background;
         }
         let s = (dx * u[0] + dy * u[1]) / (self.axis[1][0] - a[0]).hypot(self.axis[1][1] - a[1]);
         let phi = (t / r).asin();
@@ -110,32 +170,73 @@ impl SideScene {
                     - std::f64::consts::PI;
                 d.abs() < half
             });
-        let base = if painted { self.paint } else { self.steel };
-        base * (0.25 + 0.75 * shade)
+        let base = if painted { paint } else { steel };
+        let lit = 0.25 + 0.75 * shade;
+        let mut out = base.map(|v| v * lit);
+        if let Some(l) = self.lamp {
+            let z = (phi - l.phi_rad) / l.sigma_rad.max(1e-6);
+            let gloss = if painted { l.paint_gloss } else { 1.0 };
+            out[0] += l.peak * gloss * (-0.5 * z * z).exp() as f32;
+        }
+        out
     }
 
     /// Renders one 8-bit frame with the bar at angle `theta_rad` (tightening positive, 0 =
-    /// stripe 0 facing the camera).
+    /// stripe 0 facing the camera); a colour frame (full-size Cb, Cr) when [`SideScene::colour`]
+    /// is set.
     pub fn render(&self, index: u64, theta_rad: f64) -> Frame {
         let (u, n) = self.frame_axes();
         let ss = self.supersample.max(1);
         let (w, h) = (self.width, self.height);
-        let mut data = Vec::with_capacity(w as usize * h as usize);
+        let a = self.axis[0];
+        let mut img: Vec<Ycc> = Vec::with_capacity(w as usize * h as usize);
         for py in 0..h {
             for px in 0..w {
-                let mut acc = 0.0f32;
+                // Far from the bar every subsample is background: one sample is enough.
+                let t = (f64::from(px) - a[0]) * n[0] + (f64::from(py) - a[1]) * n[1];
+                if t.abs() > self.radius_px + 1.5 {
+                    img.push(self.eval(u, n, theta_rad, f64::from(px), f64::from(py)));
+                    continue;
+                }
+                let mut acc = [0.0f32; 3];
                 for j in 0..ss {
                     for i in 0..ss {
                         let x = f64::from(px) - 0.5 + (f64::from(i) + 0.5) / f64::from(ss);
                         let y = f64::from(py) - 0.5 + (f64::from(j) + 0.5) / f64::from(ss);
-                        acc += self.eval(u, n, theta_rad, x, y);
+                        let v = self.eval(u, n, theta_rad, x, y);
+                        for k in 0..3 {
+                            acc[k] += v[k];
+                        }
                     }
                 }
-                let v = acc / (ss * ss) as f32;
-                data.push((v.clamp(0.0, 1.0) * 255.0).round() as u8);
+                img.push(acc.map(|v| v / (ss * ss) as f32));
             }
         }
-        Frame::from_u8(index, w, h, data)
+        if self.noise_sigma > 0.0 {
+            let mut rng = ChaCha8Rng::seed_from_u64(self.seed);
+            rng.set_stream(1_000 + index);
+            let sigma = self.noise_sigma;
+            for v in img.iter_mut() {
+                v[0] += sigma * super::gauss(&mut rng) as f32;
+                if self.colour.is_some() {
+                    v[1] += 0.5 * sigma * super::gauss(&mut rng) as f32;
+                    v[2] += 0.5 * sigma * super::gauss(&mut rng) as f32;
+                }
+            }
+        }
+        let q = |v: f32| (v.clamp(0.0, 1.0) * 255.0).round() as u8;
+        let mut f = Frame::from_u8(index, w, h, img.iter().map(|v| q(v[0])).collect());
+        if self.colour.is_some() {
+            let qc = |v: f32| (128.0 + v * 255.0).round().clamp(0.0, 255.0) as u8;
+            f.chroma = Some(crate::decode::Chroma {
+                width: w,
+                height: h,
+                cb: img.iter().map(|v| qc(v[1])).collect(),
+                cr: img.iter().map(|v| qc(v[2])).collect(),
+                siting: crate::decode::ChromaSiting::Centre,
+            });
+        }
+        f
     }
 }
 

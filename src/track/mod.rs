@@ -8,13 +8,12 @@
 //! How one radial mark is measured is described in `radial.rs`; the sampling grid (and the
 //! mapping of an oblique disc back to a circle) in `polar.rs`; unwrapping in `unwrap.rs`.
 //!
-//! Camera shake: when the rig has a `fixed` mark, each frame's image translation around it is
-//! estimated by Lucas–Kanade registration against the first frame (`shake.rs`), and the drive
-//! and nut marks are sampled on grids moved by that translation. Camera roll is not corrected:
-//! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
-//! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
-//! made. Frames where the fixed mark's patch no longer matches the first frame keep the last
-//! good shift and are reported.
+//! Camera shake: when the rig has a `fixed` mark, each frame's camera translation and roll are
+//! estimated by a robust rigid registration of the fixed mark's region against the first frame
+//! (`shake/`). Each radial mark is sampled on its grid moved to where the camera motion takes
+//! its pivot, and the roll is subtracted from its angle (side-view marks take the translation
+//! only). Without a fixed mark no correction is made. Frames where the fixed region does not
+//! match the first frame have every angle null, with a warning: the shake there is unknown.
 //!
 //! Once the clip is done, each mark's angles are corrected for an offset pivot using the
 //! stripe's own direction, which does not depend on the pivot (`refine.rs`); this removes most
@@ -38,8 +37,10 @@ mod gather;
 mod polar;
 mod radial;
 mod refine;
+mod selfcheck;
 mod shake;
 mod side;
+pub mod synthetic;
 pub(crate) mod unwrap;
 
 /// The sum of eight partial sums kept side by side (vectorised loops), added in one fixed
@@ -49,16 +50,25 @@ fn sum_lanes(acc: [f32; 8]) -> f32 {
     ((acc[0] + acc[4]) + (acc[2] + acc[6])) + ((acc[1] + acc[5]) + (acc[3] + acc[7]))
 }
 
+pub use selfcheck::{check_measured, clip_confidence, lost_share};
+
 use polar::PolarGrid;
 use radial::RadialTracker;
-use shake::ShakeEstimator;
+use shake::{Pose, RigidEstimator};
 use unwrap::wrap_pi;
 
 /// Per-frame angles of the drive and nut ends.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Trace {
-    /// Turns frame indices into seconds.
+    /// Turns frame indices into seconds (when `times_s` is empty) and gives the nominal rate.
     pub time_base: TimeBase,
+    /// Each sample's time, s, when the frames are timed by their presentation timestamps
+    /// (docs/conventions.md, "Time"); empty when time is clip frame index / capture rate.
+    pub times_s: Vec<f64>,
+    /// True for a sample whose frame was not captured but repeated or synthesised by the
+    /// camera or encoder (a blend or an interpolation of its neighbours; `track::synthetic`).
+    /// Its angles are reported but never used for peaks, onsets or timing. Empty: none.
+    pub synthetic: Vec<bool>,
     /// The clip frame index of each sample (consecutive, starting at the first analysed frame).
     pub frames: Vec<u64>,
     /// Drive-end angle, relative to the first analysed frame, tightening positive.
@@ -88,9 +98,17 @@ impl Trace {
     pub fn is_empty(&self) -> bool {
         self.frames.is_empty()
     }
-    /// Time of sample `i` in seconds: clip frame index / capture rate.
+    /// Time of sample `i` in seconds: its timestamp when the trace has them, else clip frame
+    /// index / capture rate.
     pub fn t_s(&self, i: usize) -> f64 {
-        self.time_base.seconds(self.frames[i] as f64)
+        match self.times_s.get(i) {
+            Some(&t) => t,
+            None => self.time_base.seconds(self.frames[i] as f64),
+        }
+    }
+    /// True when sample `i`'s frame was repeated or synthesised rather than captured.
+    pub fn is_synthetic(&self, i: usize) -> bool {
+        self.synthetic.get(i).copied().unwrap_or(false)
     }
     /// Twist at sample `i`: drive − nut, when both are known.
     pub fn twist(&self, i: usize) -> Option<Angle> {
@@ -116,6 +134,21 @@ struct MarkTrack {
     colour: Option<colour::ColourPlane>,
 }
 
+impl MarkTrack {
+    /// Makes the last frame's measurement null (the camera's motion there is unknown).
+    fn void_last(&mut self) {
+        for a in [self.angle.last_mut(), self.dir_offset.last_mut()]
+            .into_iter()
+            .flatten()
+        {
+            *a = None;
+        }
+        if let Some(c) = self.confidence.last_mut() {
+            *c = 0.0;
+        }
+    }
+}
+
 /// Measures the rig's marks frame by frame.
 pub struct Tracker {
     frames: Vec<u64>,
@@ -124,11 +157,15 @@ pub struct Tracker {
     drive: MarkTrack,
     nut: MarkTrack,
     fixed: Option<MarkTrack>,
-    shake: Option<ShakeEstimator>,
-    /// Camera translation (px) of the last frame.
-    shift: [f64; 2],
+    shake: Option<RigidEstimator>,
+    /// Camera pose of the last registered frame.
+    pose: Pose,
+    /// Notes on the shake registration (set up once).
+    shake_notes: Vec<Warning>,
     /// Per frame: `None` where the fixed mark could not be registered.
     shake_lost: Vec<Option<()>>,
+    /// Clip indices of the frames the decoder flagged as damaged (not measured).
+    damaged: Vec<u64>,
 }
 
 impl Tracker {
@@ -180,8 +217,16 @@ impl Tracker {
         let (fixed, shake) = match &rig.marks.fixed {
             Some(m) => {
                 let t = make(Role::Fixed, m)?;
+                // The moving marks' discs are left out of the fixed region.
+                let avoid: Vec<([f64; 2], f64)> = [&rig.marks.drive, &rig.marks.nut]
+                    .into_iter()
+                    .filter_map(|m| match m {
+                        Mark::Radial(r) => Some((r.pivot, r.radius[1] + 3.0)),
+                        Mark::Side(_) => None,
+                    })
+                    .collect();
                 let shake = match m {
-                    Mark::Radial(r) => Some(ShakeEstimator::new(r, width, height)),
+                    Mark::Radial(r) => Some(RigidEstimator::new(r, &avoid, width, height)),
                     Mark::Side(_) => None,
                 };
                 (Some(t), shake)
@@ -196,8 +241,10 @@ impl Tracker {
             nut,
             fixed,
             shake,
-            shift: [0.0, 0.0],
+            pose: Pose::identity(),
+            shake_notes: Vec::new(),
             shake_lost: Vec::new(),
+            damaged: Vec::new(),
         })
     }
 
@@ -225,25 +272,66 @@ impl Tracker {
             });
         }
         let first = self.frames.is_empty();
+        let side_view = self.drive.side.is_some() || self.nut.side.is_some();
+        if side_view && self.frames.len() >= crate::limits::MAX_SIDE_VIEW_FRAMES {
+            return Err(Error::Input {
+                path: "(clip)".into(),
+                reason: format!(
+                    "side-view marks are read over the whole clip, which may hold at most {} \
+                     frames; analyse a shorter window with --start-s and --end-s",
+                    crate::limits::MAX_SIDE_VIEW_FRAMES
+                ),
+            });
+        }
+        if frame.damaged {
+            if first {
+                return Err(Error::Input {
+                    path: "(clip)".into(),
+                    reason: format!(
+                        "frame {} is damaged (flagged by the decoder), and the first analysed \
+                         frame must be whole to learn the marks: start after it with --start-s, \
+                         or re-export the clip",
+                        frame.index
+                    ),
+                });
+            }
+            // Never measured: every mark is lost in this frame, and the camera shift holds.
+            self.frames.push(frame.index);
+            self.damaged.push(frame.index);
+            self.shake_lost.push(Some(()));
+            for t in [&mut self.drive, &mut self.nut] {
+                if t.side.is_none() {
+                    t.angle.push(None);
+                    t.confidence.push(0.0);
+                    t.dir_offset.push(None);
+                }
+            }
+            return Ok(());
+        }
         self.frames.push(frame.index);
 
         if first {
             return self.learn(frame);
         }
-        // Shake: translation at the fixed mark, relative to the first frame; the registration's
-        // own correlation says whether the mark is still seen.
+        // Shake: translation and roll of the fixed region, relative to the first frame; the
+        // registration's own match says whether the region is still seen.
         let mut shake_lost = false;
         if let Some(sh) = self.shake.as_mut() {
             match sh.estimate(frame) {
-                Some(d) => self.shift = d,
+                Some(p) => self.pose = p,
                 None => shake_lost = true,
             }
         }
         self.shake_lost
             .push(if shake_lost { None } else { Some(()) });
-        let shift = self.shift;
-        measure(&mut self.drive, frame, shift, false)?;
-        measure(&mut self.nut, frame, shift, false)?;
+        let pose = self.pose;
+        measure(&mut self.drive, frame, pose, false)?;
+        measure(&mut self.nut, frame, pose, false)?;
+        if shake_lost {
+            // The camera's motion is unknown here: no angle is a measurement.
+            self.drive.void_last();
+            self.nut.void_last();
+        }
         Ok(())
     }
 
@@ -252,7 +340,7 @@ impl Tracker {
     /// is a clip's costliest step (tens of milliseconds at 720p, while the decoder waits), and
     /// the marks are independent, so the drive mark learns on another thread.
     fn learn(&mut self, frame: FrameRef<'_>) -> Result<()> {
-        let shift = self.shift;
+        let pose = self.pose;
         let Tracker {
             drive,
             nut,
@@ -261,15 +349,22 @@ impl Tracker {
             ..
         } = self;
         let (drive_done, (fixed_done, nut_done, shake_ok)) = rayon::join(
-            || measure(drive, frame, shift, true),
+            || measure(drive, frame, pose, true),
             || {
                 let shake_ok = shake.as_mut().is_none_or(|sh| sh.init(frame));
-                let fixed_done = fixed.as_mut().map(|f| measure(f, frame, shift, true));
-                (fixed_done, measure(nut, frame, shift, true), shake_ok)
+                let fixed_done = fixed.as_mut().map(|f| measure(f, frame, pose, true));
+                (fixed_done, measure(nut, frame, pose, true), shake_ok)
             },
         );
         if !shake_ok {
             self.shake = None;
+            self.shake_notes.push(Warning::Note(
+                "the fixed mark's region has too little texture to register, so camera shake is not corrected".into(),
+            ));
+        } else if self.shake.as_ref().is_some_and(|sh| !sh.roll_measured()) {
+            self.shake_notes.push(Warning::Note(
+                "the fixed mark's region does not constrain rotation (it is too plain or too round), so camera roll is not corrected; only its translation is".into(),
+            ));
         }
         self.shake_lost.push(Some(()));
         // Errors in the order the marks are listed in the rig's checks: fixed, drive, nut.
@@ -280,13 +375,28 @@ impl Tracker {
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
-    pub fn finish(self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
-        let mut warnings = Vec::new();
-        let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
+    pub fn finish(mut self, time_base: TimeBase) -> (Trace, Vec<Warning>) {
+        let mut warnings = side::settle(&mut self.drive);
+        warnings.extend(side::settle(&mut self.nut));
+        // A side mark's clip reading covers the frames it kept; damaged frames are null.
+        for t in [&mut self.drive, &mut self.nut] {
+            if t.side.is_some() && !self.damaged.is_empty() {
+                reinsert_damaged(t, &self.frames, &self.damaged);
+            }
+        }
+        let rel = |t: &MarkTrack,
+                   notes: &mut Vec<Warning>|
+         -> (Vec<Option<Angle>>, Option<Angle>) {
             if t.side.is_some() {
                 return side::relative(t);
             }
-            let refined = refine::refine(&t.angle, &t.dir_offset);
+            let (refined, outcome) = refine::refine(&t.angle, &t.dir_offset);
+            if outcome == refine::Outcome::NotSignificant {
+                notes.push(Warning::Note(format!(
+                    "the {} mark's pivot could not be refined from its stripe (the stripe's direction is too scattered over this clip to tell a pivot error from noise, recesses, glints or rims); the rig's pivot is kept, so check it is exact",
+                    t.role.name()
+                )));
+            }
             let zero = refined.first().copied().flatten();
             let v = refined
                 .iter()
@@ -318,21 +428,46 @@ impl Tracker {
                 });
             }
         }
-        for (a, b) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
-            warnings.push(Warning::Note(format!(
-                "fixed mark not matched in frames {a}..={b} (obscured or moved); camera shake correction held its last value there"
-            )));
+        if let (Some(&first_frame), Some(&last_frame)) = (self.damaged.first(), self.damaged.last())
+        {
+            warnings.push(Warning::DamagedFrames {
+                count: self.damaged.len() as u64,
+                first_frame,
+                last_frame,
+            });
         }
-        let (drive, drive_zero_screen) = rel(&self.drive);
-        let (nut, nut_zero_screen) = rel(&self.nut);
+        warnings.append(&mut self.shake_notes);
+        for (first_frame, last_frame) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
+            warnings.push(Warning::ShakeUnregistered {
+                first_frame,
+                last_frame,
+            });
+        }
+        let (mut drive, drive_zero_screen) = rel(&self.drive, &mut warnings);
+        let (mut nut, nut_zero_screen) = rel(&self.nut, &mut warnings);
+        // Self-checks: frames whose angles break the rig's physics are null (`selfcheck.rs`).
+        warnings.extend(selfcheck::physics(&mut drive, &mut nut, &self.frames));
+        let (mut drive_confidence, mut nut_confidence) =
+            (self.drive.confidence, self.nut.confidence);
+        for (a, c) in drive
+            .iter()
+            .zip(drive_confidence.iter_mut())
+            .chain(nut.iter().zip(nut_confidence.iter_mut()))
+        {
+            if a.is_none() {
+                *c = 0.0;
+            }
+        }
         (
             Trace {
                 time_base,
+                times_s: Vec::new(),
+                synthetic: Vec::new(),
                 frames: self.frames,
                 drive,
                 nut,
-                drive_confidence: self.drive.confidence,
-                nut_confidence: self.nut.confidence,
+                drive_confidence,
+                nut_confidence,
                 drive_zero_screen,
                 nut_zero_screen,
             },
@@ -382,13 +517,32 @@ pub fn rest_offset(
     }
 }
 
-/// Measures one mark in one frame, appending to its series; returns the raw angle.
-fn measure(
-    t: &mut MarkTrack,
-    frame: FrameRef<'_>,
-    shift: [f64; 2],
-    first: bool,
-) -> Result<Option<f64>> {
+/// Spreads a side mark's series, read over the frames it kept, back over the whole clip with
+/// a null (confidence 0) at every damaged frame.
+fn reinsert_damaged(t: &mut MarkTrack, frames: &[u64], damaged: &[u64]) {
+    let (mut angle, mut confidence) = (t.angle.drain(..), t.confidence.drain(..));
+    let mut a = Vec::with_capacity(frames.len());
+    let mut c = Vec::with_capacity(frames.len());
+    for f in frames {
+        if damaged.binary_search(f).is_ok() {
+            a.push(None);
+            c.push(0.0);
+        } else {
+            a.push(angle.next().flatten());
+            c.push(confidence.next().unwrap_or(0.0));
+        }
+    }
+    drop((angle, confidence));
+    t.angle = a;
+    t.confidence = c;
+    t.dir_offset = vec![None; frames.len()];
+}
+
+/// Measures one mark in one frame, appending to its series; returns the raw angle. The mark's
+/// grid is moved to where the camera `pose` takes its pivot, and a radial mark's angle has the
+/// camera's roll taken off.
+fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> Result<Option<f64>> {
+    let shift = pose.shift_at(t.radial.grid().geometry().0);
     if t.side.is_some() {
         return side::measure(t, frame, shift, first);
     }
@@ -424,7 +578,7 @@ fn measure(
             None => radial.measure(frame, shift),
         }
     };
-    t.angle.push(m.map(|m| m.angle));
+    t.angle.push(m.map(|m| m.angle - pose.roll));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
     t.dir_offset.push(m.and_then(|m| {
         refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)
@@ -468,6 +622,42 @@ mod tests {
         // Without refinement this costs 0.28° RMS on the drive end (measured while developing).
         let (d, n) = rms_with_pivot_error(1.0);
         assert!(d < 0.08 && n < 0.08, "drive {d:.3}°, nut {n:.3}°");
+    }
+
+    #[test]
+    fn a_damaged_frame_is_null_for_every_mark_and_named_in_a_warning() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let rig = sc.rig();
+        let mut t = Tracker::new(&rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        for i in 0..30 {
+            let mut f = render_frame(&sc, &truth, i);
+            f.damaged = i == 12;
+            t.push(&f).unwrap();
+        }
+        let (tr, w) = t.finish(TimeBase::from_fps(1000.0, "t").unwrap());
+        assert!(tr.drive[12].is_none() && tr.nut[12].is_none());
+        assert!(tr.drive[11].is_some() && tr.nut[13].is_some());
+        assert!(w.contains(&Warning::DamagedFrames {
+            count: 1,
+            first_frame: 12,
+            last_frame: 12
+        }));
+    }
+
+    #[test]
+    fn a_damaged_first_frame_refuses_the_clip_saying_to_start_after_it() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let mut t =
+            Tracker::new(&sc.rig(), Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+        let mut f = render_frame(&sc, &truth, 0);
+        f.damaged = true;
+        let e = t.push(&f).unwrap_err().to_string();
+        assert!(
+            e.contains("frame 0 is damaged") && e.contains("--start-s"),
+            "{e}"
+        );
     }
 
     #[test]

@@ -127,6 +127,13 @@ fn check(fixture: &str, clip: &str, tol: Tol) {
     let report = read_json(&out.path().join("report.json"));
     let what = format!("{fixture}/{clip}");
     check_trace_hash(&what, &report);
+    // Every fixture frame was captured: none is flagged as repeated or synthesised.
+    let timing = &report["summary"]["timing"];
+    assert_eq!(
+        (&timing["duplicated_frames"], &timing["interpolated_frames"]),
+        (&Value::from(0), &Value::from(0)),
+        "{what}: frames flagged as not captured: {timing}"
+    );
 
     // Every frame analysed, none lost.
     assert_eq!(report["frames"], truth["frames"], "{what}: frame count");

@@ -10,7 +10,7 @@
 //! | video: wrong extension | `bad_input_decode.rs::png_named_mp4_is_refused_as_a_single_image`, `…::text_file_is_named`, `…::video_named_txt_is_read_by_content` |
 //! | video: container with no video stream | [`container_without_a_video_stream`] |
 //! | video: audio-only file | `bad_input_decode.rs::audio_only_files_are_named` |
-//! | video: variable frame rate | [`variable_frame_rate_is_a_warning_and_frames_still_count`] (and `src/decode/video.rs::variable_frame_rate_is_noted_and_frames_still_count`) |
+//! | video: variable frame rate | [`variable_frame_rate_is_a_warning_and_frames_still_count`] (and `src/decode/video.rs::variable_frame_rate_keeps_each_frames_time_and_frames_still_count`) |
 //! | stills: 16-bit TIFF (must work) | [`sixteen_bit_tiff_stills_are_analysed`] |
 //! | stills: a frame of a different size | `bad_input_decode.rs::folder_with_mixed_frame_sizes_names_the_odd_file` |
 //! | stills: a frame of another format mixed in | [`a_frame_of_another_format_is_a_warning`] |

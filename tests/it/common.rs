@@ -60,3 +60,28 @@ pub fn fixture(name: &str) -> PathBuf {
         .join("fixtures")
         .join(name)
 }
+
+/// A fixture clip analysed by the real binary (`twistmark analyze fixtures/<name>/<clip>
+/// --rig fixtures/<name>/rig.json`): the fixture's folder, the run, and the output folder
+/// (kept while the returned guard lives). Fails the test unless the run exits 0.
+#[cfg(feature = "ffmpeg")]
+pub fn analyze_fixture(name: &str, clip: &str) -> (PathBuf, Out, tempfile::TempDir) {
+    let dir = fixture(name);
+    let out = tempfile::tempdir().unwrap();
+    let r = run([
+        "analyze".as_ref(),
+        dir.join(clip).as_os_str(),
+        "--rig".as_ref(),
+        dir.join("rig.json").as_os_str(),
+        "--out".as_ref(),
+        out.path().as_os_str(),
+    ]);
+    assert_eq!(r.code, 0, "{name}/{clip}: {}{}", r.stdout, r.stderr);
+    (dir, r, out)
+}
+
+/// A JSON file, parsed.
+#[cfg(feature = "ffmpeg")]
+pub fn read_json(path: &Path) -> serde_json::Value {
+    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
+}

@@ -44,6 +44,7 @@ fn frame_deep(i: u64, depth: u8) -> Frame {
         bit_depth: depth,
         luma: Luma::U16(data),
         chroma: None,
+        damaged: false,
     }
 }
 

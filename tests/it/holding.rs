@@ -5,34 +5,16 @@
 //! not of the world.
 #![cfg(feature = "ffmpeg")]
 
-use std::path::PathBuf;
-
-use assert_cmd::Command;
 use serde_json::Value;
 
+use super::common::{analyze_fixture, read_json};
+
 fn run(fixture: &str, clip: &str) -> (Value, Value, String) {
-    let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-        .join("fixtures")
-        .join(fixture);
-    let out = tempfile::tempdir().unwrap();
-    let assert = Command::cargo_bin("twistmark")
-        .unwrap()
-        .arg("analyze")
-        .arg(dir.join(clip))
-        .arg("--rig")
-        .arg(dir.join("rig.json"))
-        .arg("--out")
-        .arg(out.path())
-        .assert()
-        .success();
-    let stdout = String::from_utf8_lossy(&assert.get_output().stdout).to_string();
-    let read = |p: PathBuf| -> Value {
-        serde_json::from_str(&std::fs::read_to_string(p).unwrap()).unwrap()
-    };
+    let (dir, r, out) = analyze_fixture(fixture, clip);
     (
-        read(out.path().join("report.json")),
-        read(dir.join("truth.json")),
-        stdout,
+        read_json(&out.path().join("report.json")),
+        read_json(&dir.join("truth.json")),
+        r.stdout,
     )
 }
 

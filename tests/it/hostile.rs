@@ -15,8 +15,9 @@
 //! | 8. strict parsing | [`rule8_strict_parsing`] |
 //! | 9. one-line reasons | [`rule9_one_line_reasons`] |
 //!
-//! Rule 5 is met by refusing the clip at the damaged frame (a one-line reason naming it), not
-//! yet by a null in the trace.
+//! Rule 5: a frame the decoder flags as damaged (or cannot decode at all, in a stream of
+//! independent frames) is null in the trace with a warning naming it; a damaged first frame
+//! refuses the clip with a reason saying to start after it.
 
 use std::ffi::OsString;
 use std::path::{Path, PathBuf};
@@ -456,18 +457,44 @@ fn rule5_damaged_frames_are_never_measured() {
     }
     let clip = dir.path().join("take.mjpeg");
     std::fs::write(&clip, stream).unwrap();
-    let out = dir.path().join("o");
-    let r = run(args(&[&"analyze", &clip, &"--rig", &rig(), &"--out", &out]));
-    // Refused with a reason naming the frame, never a report with the frame measured.
-    assert_eq!(r.code, 1, "{}{}", r.stdout, r.stderr);
-    let last = r.stderr.lines().last().unwrap_or("");
+    let whole = dir.path().join("whole.mjpeg");
+    std::fs::write(
+        &whole,
+        frames.iter().flat_map(|f| jpeg_of(f)).collect::<Vec<u8>>(),
+    )
+    .unwrap();
+    let analyse = |clip: &Path, out: &Path| {
+        let r = run(args(&[&"analyze", &clip, &"--rig", &rig(), &"--out", &out]));
+        assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+        let report: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap())
+                .unwrap();
+        let trace = std::fs::read_to_string(out.join("trace.csv")).unwrap();
+        (report, trace)
+    };
+    let (report, trace) = analyse(&clip, &dir.path().join("o"));
+    let (whole_report, whole_trace) = analyse(&whole, &dir.path().join("w"));
+    // The damaged frame is null in the trace, its neighbours are measured as in the whole clip.
+    let row = |t: &str, i: usize| -> Vec<String> {
+        let line = t.lines().nth(i + 1).unwrap();
+        line.split(',').map(str::to_string).collect()
+    };
+    let r20 = row(&trace, 20);
+    assert_eq!(r20[1], "20");
     assert!(
-        last.contains("take.mjpeg") && last.contains("frame 20"),
-        "{}",
-        r.stderr
+        r20[2].is_empty() && r20[3].is_empty(),
+        "frame 20 measured: {r20:?}"
     );
-    assert!(!last.contains("single still image"), "{}", r.stderr);
-    assert!(!out.join("report.json").exists());
+    for i in [19, 21] {
+        assert_eq!(row(&trace, i), row(&whole_trace, i), "frame {i}");
+    }
+    // Named in a warning, and no blow invented.
+    let warnings = report["warnings"].to_string();
+    assert!(warnings.contains("frame 20 is damaged"), "{warnings}");
+    assert_eq!(
+        report["blows"].as_array().unwrap().len(),
+        whole_report["blows"].as_array().unwrap().len()
+    );
 }
 
 /// A CRC-32 (IEEE) for patching PNG chunks.
@@ -538,6 +565,41 @@ fn rule7_bounded_resources() {
     );
     #[cfg(target_os = "linux")]
     one_line_error(&run(["bar", "--rig", "/dev/zero"]), &["/dev/zero", "MiB"]);
+    // A named pipe with no writer is refused at once instead of waiting for ever: as the rig,
+    // as a zero still, as the clip.
+    #[cfg(unix)]
+    {
+        let fifo = dir.path().join("pipe.json");
+        let made = std::process::Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap();
+        assert!(made.success());
+        let out = dir.path().join("p");
+        let good = dir.path().join("good");
+        copy_frames("fast-tool", &good, 20);
+        one_line_error(
+            &run(args(&[&"bar", &"--rig", &fifo])),
+            &["pipe.json", "pipe"],
+        );
+        one_line_error(
+            &run(args(&[
+                &"analyze",
+                &good,
+                &"--rig",
+                &rig(),
+                &"--zero-still",
+                &fifo,
+                &"--out",
+                &out,
+            ])),
+            &["pipe.json", "pipe"],
+        );
+        one_line_error(
+            &run(args(&[&"analyze", &fifo, &"--rig", &rig(), &"--out", &out])),
+            &["pipe.json", "pipe"],
+        );
+    }
     // A loop count from the rig (side-mark stripes searched every frame) is bounded.
     let side = dir.path().join("side.json");
     std::fs::write(

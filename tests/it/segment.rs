@@ -48,6 +48,8 @@ fn trace_from(truth: &Truth, noise_deg: f64, gaps: usize, seed: u64) -> Trace {
     }
     Trace {
         time_base: TimeBase::from_fps(truth.fps, "truth").unwrap(),
+        times_s: Vec::new(),
+        synthetic: Vec::new(),
         frames: (0..n as u64).collect(),
         drive,
         nut,

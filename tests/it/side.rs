@@ -9,6 +9,7 @@ use std::path::Path;
 use twistmark::Warning;
 use twistmark::rig::Rig;
 use twistmark::synth::side::SideScene;
+use twistmark::synth::side_random::{SideClip, held_out_side_seeds, random_side_clip};
 use twistmark::track::Tracker;
 use twistmark::units::TimeBase;
 
@@ -193,4 +194,214 @@ fn analyze_accepts_a_side_view_rig_end_to_end() {
     let rms = (s2 / truth.len() as f64).sqrt();
     println!("side, analyze binary, 3 stripes: RMS {rms:.3}°");
     assert!(rms <= 0.5, "RMS {rms:.3}°");
+}
+
+// --- Side views under a lamp's line (randomised scenes, exact truth) ---------------------
+//
+// `twistmark::synth::side_random` draws side views with a static specular line along the bar,
+// paint of any colour, one to three stripes, colour or monochrome cameras, and motions that
+// carry the paint across the line or round the back of the bar. Rendered clips with known
+// truth are the checks. Targets: angle RMS ≤ 0.5° over the measured frames, and at least 95 %
+// of the frames in which every stripe is round the back read null.
+
+/// Frames per randomised side clip.
+const SIDE_FRAMES: usize = 120;
+
+/// One clip's figures.
+struct SideScore {
+    rms_deg: f64,
+    worst_deg: f64,
+    measured: usize,
+    out_of_view: usize,
+    out_of_view_null: usize,
+}
+
+fn run_side_clip(clip: &SideClip) -> SideScore {
+    let sc = &clip.scene;
+    let mark = serde_json::to_value(sc.mark()).unwrap();
+    let json = serde_json::json!({"rig_version": 1, "marks": {"drive": mark, "nut": mark}});
+    let rig = Rig::from_json_str(&json.to_string(), Path::new("side.json")).unwrap();
+    let mut t = Tracker::new(&rig, Path::new("side.json"), sc.width, sc.height).unwrap();
+    for i in 0..clip.truth_rad.len() {
+        if let Err(e) = t.push(&clip.frame(i)) {
+            println!("  refused: {e}");
+            return SideScore {
+                rms_deg: f64::NAN,
+                worst_deg: f64::NAN,
+                measured: 0,
+                out_of_view: 0,
+                out_of_view_null: 0,
+            };
+        }
+    }
+    let (tr, warnings) = t.finish(TimeBase::from_fps(1000.0, "test").unwrap());
+    let truth: Vec<f64> = clip.truth_rad.iter().map(|a| a.to_degrees()).collect();
+    if std::env::var_os("TWISTMARK_SIDE_DEBUG").is_some() {
+        println!("{:?}\n{warnings:?}", clip.scene.lamp);
+        for (i, g) in tr.drive.iter().enumerate() {
+            println!(
+                "  frame {i:3}: truth {:8.3}° read {:?}",
+                truth[i] - truth[0],
+                g.map(|g| (g.deg() * 1000.0).round() / 1000.0)
+            );
+        }
+    }
+    let (mut s2, mut measured, mut worst) = (0.0, 0usize, 0.0f64);
+    let (mut out, mut out_null) = (0usize, 0usize);
+    for (i, g) in tr.drive.iter().enumerate() {
+        if clip.out_of_view(i) {
+            out += 1;
+            out_null += usize::from(g.is_none());
+        }
+        if let Some(g) = g {
+            let e = g.deg() - (truth[i] - truth[0]);
+            s2 += e * e;
+            measured += 1;
+            worst = worst.max(e.abs());
+        }
+    }
+    SideScore {
+        rms_deg: (s2 / measured.max(1) as f64).sqrt(),
+        worst_deg: worst,
+        measured,
+        out_of_view: out,
+        out_of_view_null: out_null,
+    }
+}
+
+/// Runs the seeds, prints one line each and the median and worst, and returns the clips
+/// that miss a target.
+fn side_seeds(seeds: &[u64], frames: usize) -> Vec<String> {
+    let mut misses = Vec::new();
+    let mut rms = Vec::new();
+    for &seed in seeds {
+        let clip = random_side_clip(seed, frames);
+        let s = run_side_clip(&clip);
+        let null_share = if s.out_of_view > 0 {
+            s.out_of_view_null as f64 / s.out_of_view as f64
+        } else {
+            1.0
+        };
+        println!(
+            "seed {seed:>10}: {:?}, {} stripe(s), {} paint, {} camera: RMS {:.3}°, worst {:.3}°, measured {}/{}, out of view {} (null {:.0} %)",
+            clip.motion,
+            clip.scene.stripes,
+            clip.paint,
+            if clip.colour_camera { "colour" } else { "mono" },
+            s.rms_deg,
+            s.worst_deg,
+            s.measured,
+            frames,
+            s.out_of_view,
+            100.0 * null_share
+        );
+        rms.push(s.rms_deg);
+        if s.rms_deg.is_nan() || s.rms_deg > 0.5 || s.measured == 0 || null_share < 0.95 {
+            misses.push(format!(
+                "seed {seed}: RMS {:.3}°, measured {}, null {:.0} % of {} out of view",
+                s.rms_deg,
+                s.measured,
+                100.0 * null_share,
+                s.out_of_view
+            ));
+        }
+    }
+    rms.sort_by(f64::total_cmp);
+    println!(
+        "side views, {} seeds: median RMS {:.3}°, worst {:.3}°; {} miss a target",
+        rms.len(),
+        rms[rms.len() / 2],
+        rms[rms.len() - 1],
+        misses.len()
+    );
+    misses
+}
+
+fn held_out_side() -> Vec<u64> {
+    held_out_side_seeds(include_str!("../held_out_side_seeds.txt"))
+}
+
+/// Tuning seeds (1 to 24; none is held out): figures only, for tuning.
+#[test]
+#[ignore = "tuning figures, not a check: run with --ignored --nocapture"]
+fn side_views_under_a_lamp_tuning_seeds() {
+    let seeds: Vec<u64> = match std::env::var("TWISTMARK_SIDE_SEEDS") {
+        Ok(s) => s.split(',').filter_map(|v| v.trim().parse().ok()).collect(),
+        Err(_) => (1..=24).collect(),
+    };
+    let held = held_out_side();
+    assert!(seeds.iter().all(|s| !held.contains(s)), "a held-out seed");
+    let misses = side_seeds(&seeds, SIDE_FRAMES);
+    println!("{misses:#?}");
+}
+
+/// Every held-out side view (release build recommended).
+#[test]
+#[ignore = "not met yet: 16 held-out seeds (2026-12-04) read 6 within 0.5 deg RMS (0.007-0.241), 9 all null (paint not found), 1 at 4.708 deg RMS; out-of-view frames 100 % null"]
+fn side_views_under_a_lamp_meet_the_targets_on_held_out_seeds() {
+    let misses = side_seeds(&held_out_side(), SIDE_FRAMES);
+    assert!(misses.is_empty(), "{misses:#?}");
+}
+
+#[test]
+fn a_static_line_is_not_taken_for_white_paint() {
+    // White paint on a bar under a lamp whose line is brighter than the paint, 30° from facing:
+    // the paint swings across the line; the stripe is read, not the line.
+    let mut sc = SideScene::bench(1);
+    sc.supersample = 3;
+    sc.paint = 0.85;
+    sc.noise_sigma = 0.006;
+    sc.seed = 5;
+    sc.lamp = Some(twistmark::synth::side::LampLine {
+        phi_rad: 30f64.to_radians(),
+        sigma_rad: 2.5f64.to_radians(),
+        peak: 0.45,
+        paint_gloss: 0.0,
+    });
+    let truth: Vec<f64> = (0..80)
+        .map(|i| -10.0 + 55.0 * (i as f64 / 80.0 * std::f64::consts::TAU).sin())
+        .collect();
+    let (got, warnings) = run(&sc, &truth);
+    let (rms, lost, worst) = score(&got, &truth);
+    println!(
+        "side, white paint under a lamp's line: RMS {rms:.3}°, worst {worst:.3}°, lost {lost}"
+    );
+    assert!(rms <= 0.5, "RMS {rms:.3}°");
+    assert!(lost < 30, "lost {lost} of 80");
+    assert!(
+        warnings
+            .iter()
+            .any(|w| matches!(w, Warning::Note(n) if n.contains("static line"))),
+        "{warnings:?}"
+    );
+}
+
+#[test]
+fn a_stripe_round_the_back_reads_null_not_the_lamps_line() {
+    // One stripe turned round the back after ten frames and held there: the lamp's line is
+    // still in view, and must not be read as the paint.
+    let mut sc = SideScene::bench(1);
+    sc.supersample = 3;
+    sc.lamp = Some(twistmark::synth::side::LampLine {
+        phi_rad: (-20f64).to_radians(),
+        sigma_rad: 2.0f64.to_radians(),
+        peak: 0.4,
+        paint_gloss: 0.3,
+    });
+    let truth: Vec<f64> = (0..90)
+        .map(|i| match i {
+            0..10 => 5.0,
+            10..20 => 5.0 + 17.5 * (i - 9) as f64,
+            _ => 180.0 + 0.2 * i as f64,
+        })
+        .collect();
+    let (got, _) = run(&sc, &truth);
+    let behind = got.iter().zip(&truth).filter(|(_, w)| **w > 120.0);
+    let (n, null) = behind.fold((0, 0), |(n, z), (g, _)| {
+        (n + 1, z + usize::from(g.is_none()))
+    });
+    println!("side, stripe round the back: {null} of {n} frames null");
+    assert!(null as f64 >= 0.95 * n as f64, "{null} of {n} null");
+    let (rms, _, _) = score(&got, &truth);
+    assert!(rms <= 0.5, "RMS {rms:.3}° over the frames read");
 }

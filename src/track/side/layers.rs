@@ -1,0 +1,335 @@
+//! Telling paint from a static line along the bar, by motion, once the whole clip's profiles
+//! are in (`mod.rs` keeps one profile P_t(φ) per frame).
+//!
+//! A lamp's reflection along a round bar sits at one angle on screen whatever the bar's turn
+//! (the bar is a surface of revolution), while paint turns with the bar. So:
+//!
+//! 1. Every narrow ridge of either polarity in the first frame's profile is a candidate.
+//! 2. Each candidate's motion: the share of frames in which its neighbourhood of the profile
+//!    changed shape (least-squares gain removed, so lighting flicker is not motion). Paint is the
+//!    candidate that moves most (ties: the stronger); a static line barely changes, only while
+//!    paint passes over it.
+//! 3. Static lines are ridges present in the profile's 10 % and 90 % quantiles over time alike
+//!    (a feature in nine frames out of ten; a gap between two places the paint visited shows in
+//!    one quantile only), away from the paint's first-frame place. Each line's bump over the
+//!    chord under it, from the median over time, is subtracted from every frame, and its core
+//!    (the bump above a quarter of its height) is where a stripe is not measured at all: paint
+//!    over the line cannot be told from the line.
+//! 4. The paint is followed (`follow.rs`) on the corrected profiles from its first-frame place;
+//!    where it has gone round the back, nothing is left in range to follow, so the frame is null.
+
+use super::follow::Follower;
+use super::{MAX_FACING_DEG, STEP_DEG};
+
+/// Least ridge contrast of a candidate or static line (profile units).
+const MIN_RIDGE: f32 = 0.03;
+/// Share of a candidate's contrast its neighbourhood must change by to count as moved.
+const MOVED: f32 = 0.15;
+/// Frames used for the quantiles over time at most (evenly spaced).
+const QUANTILE_FRAMES: usize = 2048;
+
+/// The follower's output for the whole clip.
+#[derive(Debug, Clone, Default)]
+pub(super) struct Solved {
+    /// Continuous bar angle per frame, rad.
+    pub angle: Vec<Option<f64>>,
+    /// Confidence per frame, 0..1.
+    pub confidence: Vec<f32>,
+    /// Static lines found, bar angles from facing the camera, degrees.
+    pub static_lines_deg: Vec<f64>,
+    /// True when nothing along the bar moved in the whole clip (then paint cannot be told
+    /// from a reflection by motion).
+    pub still: bool,
+    /// True when every stripe in the first frame was a static line although something moved:
+    /// the paint was not told from the lines, and every frame is null.
+    pub unresolved: bool,
+    /// True when the first frame shows any narrow ridge at all.
+    pub any_ridge: bool,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Ridge {
+    bin: usize,
+    polarity: f32,
+    contrast: f32,
+}
+
+/// Bins either side used for a ridge's flanks (8°).
+fn flank() -> usize {
+    (8.0 / STEP_DEG) as usize
+}
+
+/// Local ridges of `polarity` in `prof` within the measurable range, strongest first, at least
+/// 8° apart.
+fn ridges(prof: &[f32], phi: &[f64], polarity: f32, min: f32) -> Vec<Ridge> {
+    let d = flank();
+    let lim = MAX_FACING_DEG.to_radians();
+    let r = |k: usize| {
+        let c = polarity * prof[k];
+        (c - polarity * prof[k - d]).min(c - polarity * prof[k + d])
+    };
+    let mut out: Vec<Ridge> = Vec::new();
+    #[allow(clippy::needless_range_loop)] // k indexes the profile and its flanks alike
+    for k in d + 1..prof.len().saturating_sub(d + 1) {
+        if phi[k].abs() > lim {
+            continue;
+        }
+        let v = r(k);
+        if v >= min && v >= r(k - 1) && v > r(k + 1) {
+            out.push(Ridge {
+                bin: k,
+                polarity,
+                contrast: v,
+            });
+        }
+    }
+    out.sort_by(|a, b| b.contrast.total_cmp(&a.contrast));
+    let mut kept: Vec<Ridge> = Vec::new();
+    for c in out {
+        if kept.iter().all(|k| k.bin.abs_diff(c.bin) >= d) {
+            kept.push(c);
+        }
+    }
+    kept
+}
+
+/// Half-width (rad) of a ridge: the bins above half its contrast.
+fn half_width(prof: &[f32], r: Ridge) -> f64 {
+    let d = flank();
+    let p = |k: usize| r.polarity * prof[k];
+    let floor = p(r.bin.saturating_sub(d)).max(p((r.bin + d).min(prof.len() - 1)));
+    let halfv = floor + 0.5 * (p(r.bin) - floor);
+    let (mut lo, mut hi) = (r.bin, r.bin);
+    while lo > 0 && p(lo - 1) > halfv && r.bin - lo < d {
+        lo -= 1;
+    }
+    while hi + 1 < prof.len() && p(hi + 1) > halfv && hi - r.bin < d {
+        hi += 1;
+    }
+    (0.5 * (hi - lo + 1) as f64 * STEP_DEG)
+        .to_radians()
+        .max(1f64.to_radians())
+}
+
+/// A static line: its bump over the chord (per bin from `lo`), and its core, rad.
+#[derive(Debug, Clone)]
+struct Line {
+    lo: usize,
+    bump: Vec<f32>,
+    core: (f64, f64),
+    centre: f64,
+    polarity: f32,
+}
+
+/// The `q` quantiles (0..1) of every bin over the frames `frames`.
+fn quantiles(frames: &[Vec<f32>], qs: &[f64]) -> Vec<Vec<f32>> {
+    let nb = frames.first().map_or(0, Vec::len);
+    let mut out = vec![vec![0.0f32; nb]; qs.len()];
+    let mut col = vec![0.0f32; frames.len()];
+    for k in 0..nb {
+        for (c, f) in col.iter_mut().zip(frames) {
+            *c = f[k];
+        }
+        col.sort_by(f32::total_cmp);
+        for (o, q) in out.iter_mut().zip(qs) {
+            let i = ((col.len() - 1) as f64 * q).round() as usize;
+            o[k] = col[i];
+        }
+    }
+    out
+}
+
+/// The bump of a ridge at `k` of `polarity` in `env` over the chord between its flanks.
+fn bump_at(env: &[f32], k: usize, polarity: f32) -> f32 {
+    let d = flank();
+    polarity * (env[k] - 0.5 * (env[k - d] + env[k + d]))
+}
+
+/// Static lines in the quantile envelopes (`lo`, `mid`, `hi`: the 10 %, 50 % and 90 %
+/// quantiles over time).
+fn static_lines(lo: &[f32], mid: &[f32], hi: &[f32], phi: &[f64]) -> Vec<Line> {
+    let d = flank();
+    let mut lines = Vec::new();
+    for pol in [1.0f32, -1.0] {
+        // Present in nine frames out of ten: a ridge of this polarity in the quantile that
+        // would lose it first (the low one for bright lines, the high one for dark).
+        let (first, other) = if pol > 0.0 { (lo, hi) } else { (hi, lo) };
+        for r in ridges(first, phi, pol, MIN_RIDGE) {
+            let k = r.bin;
+            let b_first = bump_at(first, k, pol);
+            let b_other = bump_at(other, k, pol);
+            if b_other < 0.5 * b_first {
+                continue;
+            }
+            // The bump over the chord, from the median over time.
+            let (a, b) = (k - d, k + d);
+            let (va, vb) = (mid[a], mid[b]);
+            let bump: Vec<f32> = (a..=b)
+                .map(|j| {
+                    let f = (j - a) as f32 / (b - a) as f32;
+                    mid[j] - (va + (vb - va) * f)
+                })
+                .collect();
+            let peak = pol * bump[k - a];
+            if peak < MIN_RIDGE {
+                continue;
+            }
+            let mut c0 = k;
+            while c0 > a && pol * bump[c0 - 1 - a] >= 0.25 * peak {
+                c0 -= 1;
+            }
+            let mut c1 = k;
+            while c1 < b && pol * bump[c1 + 1 - a] >= 0.25 * peak {
+                c1 += 1;
+            }
+            // Only the line's own bump is removed: beyond where it falls under a twentieth of
+            // its height, the profile is left as it is.
+            let mut e0 = c0;
+            while e0 > a && pol * bump[e0 - 1 - a] >= 0.05 * peak {
+                e0 -= 1;
+            }
+            let mut e1 = c1;
+            while e1 < b && pol * bump[e1 + 1 - a] >= 0.05 * peak {
+                e1 += 1;
+            }
+            lines.push(Line {
+                lo: e0,
+                bump: bump[e0 - a..=e1 - a].to_vec(),
+                core: (phi[c0], phi[c1]),
+                centre: phi[k],
+                polarity: pol,
+            });
+        }
+    }
+    lines
+}
+
+/// Subtracts the static lines' bumps from a profile.
+fn correct(prof: &mut [f32], lines: &[Line]) {
+    for l in lines {
+        for (j, b) in l.bump.iter().enumerate() {
+            prof[l.lo + j] -= b;
+        }
+    }
+}
+
+/// Follows the side mark through `frames` (one decoded profile per frame, bins at `phi`).
+pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
+    let n = frames.len();
+    let mut out = Solved {
+        angle: vec![None; n],
+        confidence: vec![0.0; n],
+        static_lines_deg: Vec::new(),
+        still: false,
+        unresolved: false,
+        any_ridge: false,
+    };
+    let Some(p0) = frames.first() else {
+        return out;
+    };
+    let d = flank();
+    // Static lines: ridges present in nine frames out of ten.
+    let mut lines = if n >= 8 {
+        let every = n.div_ceil(QUANTILE_FRAMES);
+        let sample: Vec<Vec<f32>> = frames.iter().step_by(every).cloned().collect();
+        let q = quantiles(&sample, &[0.1, 0.5, 0.9]);
+        static_lines(&q[0], &q[1], &q[2], phi)
+    } else {
+        Vec::new()
+    };
+    // 1. Candidates.
+    let mut cands: Vec<Ridge> = ridges(p0, phi, 1.0, MIN_RIDGE);
+    cands.extend(ridges(p0, phi, -1.0, MIN_RIDGE));
+    cands.sort_by(|a, b| b.contrast.total_cmp(&a.contrast));
+    cands.truncate(8);
+    if cands.is_empty() {
+        return out;
+    }
+    out.any_ridge = true;
+    // 2. Motion of each candidate's neighbourhood.
+    let moved: Vec<f64> = cands
+        .iter()
+        .map(|c| {
+            let hb = (half_width(p0, *c).to_degrees() / STEP_DEG) as usize;
+            let a = c.bin.saturating_sub(hb + d / 2);
+            let b = (c.bin + hb + d / 2).min(p0.len() - 1);
+            let ref0 = &p0[a..=b];
+            let e0: f32 = ref0.iter().map(|v| v * v).sum();
+            let count = frames[1..]
+                .iter()
+                .filter(|f| {
+                    let cur = &f[a..=b];
+                    let g = cur.iter().zip(ref0).map(|(x, y)| x * y).sum::<f32>() / e0.max(1e-12);
+                    let res = (cur
+                        .iter()
+                        .zip(ref0)
+                        .map(|(x, y)| (x - g * y).powi(2))
+                        .sum::<f32>()
+                        / cur.len() as f32)
+                        .sqrt();
+                    res > MOVED * c.contrast
+                })
+                .count();
+            count as f64 / (n - 1).max(1) as f64
+        })
+        .collect();
+    let most = moved.iter().copied().fold(0.0, f64::max);
+    out.still = n >= 8 && most < 0.02;
+    // A candidate on a static line of its polarity is that line (its neighbourhood changes only
+    // as paint passes), unless nothing moved at all: then it may be paint at rest.
+    let on_line = |c: &Ridge| {
+        let tol = half_width(p0, *c).max(1.5f64.to_radians());
+        lines
+            .iter()
+            .any(|l| l.polarity == c.polarity && (l.centre - phi[c.bin]).abs() <= tol)
+    };
+    let paint = (0..cands.len())
+        .filter(|&i| out.still || !on_line(&cands[i]))
+        .filter(|&i| moved[i] >= 0.8 * most)
+        .max_by(|&a, &b| cands[a].contrast.total_cmp(&cands[b].contrast));
+    let Some(paint) = paint else {
+        // Every stripe seen in the first frame is a static line, yet something moved.
+        out.unresolved = true;
+        out.static_lines_deg = lines.iter().map(|l| l.centre.to_degrees()).collect();
+        return out;
+    };
+    let pr = cands[paint];
+    let half = half_width(p0, pr);
+    if out.still {
+        lines.retain(|l| {
+            !(l.polarity == pr.polarity && (l.centre - phi[pr.bin]).abs() <= 1.5f64.to_radians())
+        });
+    }
+    out.static_lines_deg = lines.iter().map(|l| l.centre.to_degrees()).collect();
+    let cores: Vec<(f64, f64)> = lines.iter().map(|l| l.core).collect();
+    // 4. Follow the paint on the corrected profiles.
+    let mut f = Follower {
+        phi,
+        stripes: stripes.max(1),
+        polarity: pr.polarity,
+        half,
+        min_contrast: (0.25 * pr.contrast).max(0.02),
+        cores: &cores,
+        last: None,
+        vel: 0.0,
+        lost: false,
+    };
+    let mut buf = p0.clone();
+    correct(&mut buf, &lines);
+    let Some((c, pc)) = f.centroid(&buf, phi[pr.bin], half + 1f64.to_radians()) else {
+        return out;
+    };
+    f.last = Some(c);
+    out.angle[0] = Some(c);
+    out.confidence[0] = (pc / 0.2).clamp(0.0, 1.0);
+    for (i, p) in frames.iter().enumerate().skip(1) {
+        buf.clear();
+        buf.extend_from_slice(p);
+        correct(&mut buf, &lines);
+        if let Some((th, pc)) = f.step(&buf) {
+            out.angle[i] = Some(th);
+            out.confidence[i] = (pc / 0.2).clamp(0.0, 1.0);
+        }
+    }
+    out
+}
