@@ -212,3 +212,88 @@ fn predictions_within_five_percent() {
         }
     }
 }
+
+/// The check set, fixed before any tuning of the fit (2026-12-04): another tool, joint, seed
+/// and set of pairs than [`pairs`] (which the fit was tuned on). Seed 21 is a tuning-side seed
+/// (not in tests/held_out_seeds.txt); the renderer's physics gives the truth.
+pub(crate) fn check_scene() -> Scenario {
+    let mut a = Scenario::preset("slow-tool").unwrap();
+    a.seed = 21;
+    a.tool.jitter = 0.02;
+    a.tool.drive_inertia_kgm2 = 1.6e-3;
+    a.tool.blow_momentum_nms = 0.22;
+    a.tool.back_damping_nms_per_rad = 18.0;
+    a.joint.snug_torque_nm = 30.0;
+    a.joint.rate_nm_per_deg = 2.5;
+    a.joint.breakaway_ratio = 1.2;
+    a
+}
+
+/// The check set's pairs: a softer bar, a stiffer bar and a slower blow rate.
+fn check_pairs() -> Vec<(&'static str, Scenario)> {
+    let a = check_scene();
+    vec![
+        ("check softer", with_round(a.clone(), 11.0)),
+        ("check stiffer", with_round(a.clone(), 15.0)),
+        ("check rate", {
+            let mut s = a.clone();
+            s.tool.blow_rate_per_min = 1000.0;
+            s
+        }),
+    ]
+}
+
+/// Relative errors of one set of predictions: (name, holding, per-blow peaks, every 95 %
+/// interval holds its truth).
+fn errors(
+    a: &Scenario,
+    noise_seed: u64,
+    pairs: Vec<(&'static str, Scenario)>,
+) -> Vec<(&'static str, f64, Vec<f64>, bool)> {
+    let f = fit(&obs_of(&simulate(a), noise_seed)).unwrap();
+    pairs
+        .into_iter()
+        .map(|(name, sc)| {
+            let truth = simulate(&sc);
+            let input = PredictInput {
+                stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
+                stiffness_rel_sigma: 0.0,
+                rating_nm: sc.bar.rating_nm,
+                blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
+                blows: Some(truth.blows.len()),
+            };
+            let p = predict(&f, &input).unwrap();
+            let want = truth.model.joint_torque_end_nm;
+            let [lo, hi] = p.holding_torque_ci95_nm;
+            let mut covered = lo <= want && want <= hi;
+            let peaks = p
+                .blows
+                .iter()
+                .zip(&truth.blows)
+                .map(|(b, t)| {
+                    let [lo, hi] = b.peak_torque_ci95_nm;
+                    let w = t.model_peak_torque_nm;
+                    covered &= lo <= w && w <= hi;
+                    rel(b.peak_torque_nm, w)
+                })
+                .collect();
+            (name, rel(p.holding_torque_nm, want), peaks, covered)
+        })
+        .collect()
+}
+
+/// Prints the tuning pairs' and the check pairs' errors (a measurement, not a check).
+#[test]
+#[ignore = "prints figures; run with --ignored --nocapture"]
+fn print_prediction_errors() {
+    let tuning = errors(&Scenario::preset("slow-tool").unwrap(), 7, pairs());
+    let check = errors(&check_scene(), 23, check_pairs());
+    for (name, h, peaks, covered) in tuning.into_iter().chain(check) {
+        let p: Vec<String> = peaks.iter().map(|e| format!("{:+.1}", 100.0 * e)).collect();
+        eprintln!(
+            "{name}: holding {:+.1} %, peaks [{}] %, intervals hold: {covered}",
+            100.0 * h,
+            p.join(", ")
+        );
+    }
+}
