@@ -7,6 +7,7 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 
 use super::*;
+use crate::mechanics::subframe::{Start, motion_start};
 use crate::mechanics::{PredictInput, SectionSpec, predict};
 use crate::synth::{Scenario, Truth, simulate};
 
@@ -23,13 +24,27 @@ pub(crate) fn obs_of(truth: &Truth, seed: u64) -> ClipObs {
         v + NOISE_DEG * (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
     };
     let tr = &truth.trace;
+    let drive_deg: Vec<Option<f64>> = tr.drive_deg.iter().map(|&v| Some(noisy(v))).collect();
+    // The drive end's sub-frame start, as analyze measures it (blows.rs): the line through
+    // the first two moving samples carried back to the level of the sample before.
+    let impact_t_s = truth
+        .blows
+        .iter()
+        .map(|b| {
+            let i = b.frame as usize;
+            let base = drive_deg[i.checked_sub(1)?]?;
+            let sd = NOISE_DEG;
+            motion_start(&drive_deg, i, base, sd, Start::Impulsive).map(|(t, _)| t / truth.fps)
+        })
+        .collect();
     ClipObs {
         fps: truth.fps,
         t_s: tr.t_s.clone(),
-        drive_deg: tr.drive_deg.iter().map(|&v| Some(noisy(v))).collect(),
+        drive_deg,
         nut_deg: tr.nut_deg.iter().map(|&v| Some(noisy(v))).collect(),
         twist_offset_deg: truth.twist_offset_deg(),
         blow_t_s: truth.blows.iter().map(|b| b.t_s).collect(),
+        impact_t_s,
         stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
         noise_deg: NOISE_DEG * 2f64.sqrt(),
     }
@@ -113,19 +128,28 @@ fn recovery() -> Vec<(&'static str, f64, f64, f64)> {
             p.breakaway_ratio.sigma,
             j.breakaway_ratio,
         ),
+        (
+            "nut/drive inertia",
+            p.nut_to_drive_inertia_ratio.value,
+            p.nut_to_drive_inertia_ratio.sigma,
+            j.nut_inertia_kgm2 / t.drive_inertia_kgm2,
+        ),
     ]
 }
 
 /// Target: each fitted constant within 10 % of the renderer's. Not met: the fit settles in a
-/// neighbouring optimum where inertia, momentum and the joint trade off against each other.
+/// neighbouring optimum where inertia, momentum and the fixed bar damping trade off.
 #[test]
-#[ignore = "not met yet: slow-tool seed 1 gives drive inertia +40 %, blow momentum +13 %, back damping -5 %, joint start -19 %, joint rate +15 %, breakaway -11 %"]
+#[ignore = "not met yet: slow-tool seed 1 gives drive inertia -17 %, blow momentum -14 %, back damping +3 %, joint start -5 %, joint rate -0.2 %, breakaway 0 %, nut/drive inertia -6 %"]
 fn fit_recovers_the_renderers_constants() {
-    for (name, got, sigma, want) in recovery() {
+    let got = recovery();
+    for (name, got, sigma, want) in &got {
         eprintln!(
             "{name}: {got:.5} ± {sigma:.5} vs {want:.5} ({:+.1} %)",
-            100.0 * rel(got, want)
+            100.0 * rel(*got, *want)
         );
+    }
+    for (name, got, _, want) in got {
         assert!(rel(got, want).abs() <= 0.10, "{name}");
     }
 }
@@ -193,23 +217,43 @@ fn prediction_intervals_hold_the_truth() {
     }
 }
 
-/// Target: holding torque and every peak within 5 % of the truth.
-#[test]
-#[ignore = "not met yet: holding +8.7 % (softer), +2.6 % (stiffer), +3.8 % (rate); first-blow peaks -12 %, -8 %, -7 %"]
-fn predictions_within_five_percent() {
-    for (name, p, truth) in predictions() {
-        let want = truth.model.joint_torque_end_nm;
-        assert!(
-            rel(p.holding_torque_nm, want).abs() <= 0.05,
-            "{name}: holding"
-        );
-        for (b, t) in p.blows.iter().zip(&truth.blows) {
+/// Asserts the target on one set of errors: holding torque and every peak within 5 % of the
+/// truth, and every 95 % interval holding its truth.
+fn assert_within_five_percent(set: Vec<(&'static str, f64, Vec<f64>, bool)>) {
+    for (name, h, peaks, covered) in set {
+        assert!(covered, "{name}: an interval misses its truth");
+        assert!(h.abs() <= 0.05, "{name}: holding {:+.1} %", 100.0 * h);
+        for (b, e) in peaks.iter().enumerate() {
             assert!(
-                rel(b.peak_torque_nm, t.model_peak_torque_nm).abs() <= 0.05,
-                "{name}: {}",
-                b.index
+                e.abs() <= 0.05,
+                "{name}: blow {} {:+.1} %",
+                b + 1,
+                100.0 * e
             );
         }
+    }
+}
+
+/// Target on the pairs the fit was tuned on (slow-tool, seed 1, noise seed 7): holding torque
+/// and every peak within 5 % of the renderer's truth. Measured: holding −1.5 % (softer),
+/// −1.8 % (stiffer), −1.4 % (1500 blows/min); peaks −1.5 to −5.0 % (the first blow lowest).
+#[test]
+fn predictions_within_five_percent() {
+    assert_within_five_percent(errors(&Scenario::preset("slow-tool").unwrap(), 7, pairs()));
+}
+
+/// The same target on the check set, fixed before tuning ([`check_scene`]).
+#[test]
+#[ignore = "not met yet: check softer bar holding -9.2 % (stiffer -2.9 %, rate -2.0 %; peaks -1.7 to -4.4 %, all inside their intervals)"]
+fn check_predictions_within_five_percent() {
+    assert_within_five_percent(errors(&check_scene(), 23, check_pairs()));
+}
+
+/// On the check set, every 95 % interval holds the truth (holding torque and each blow's peak).
+#[test]
+fn check_prediction_intervals_hold_the_truth() {
+    for (name, _, _, covered) in errors(&check_scene(), 23, check_pairs()) {
+        assert!(covered, "{name}");
     }
 }
 
@@ -295,5 +339,42 @@ fn print_prediction_errors() {
             100.0 * h,
             p.join(", ")
         );
+    }
+}
+
+/// Prints the fit's cost at its optimum and at the renderer's own constants (with the fixed
+/// assumptions in place of the renderer's values), tuning and check clip: a diagnostic.
+#[test]
+#[ignore = "prints figures; run with --ignored --nocapture"]
+fn print_cost_at_truth() {
+    for (sc, seed) in [
+        (Scenario::preset("slow-tool").unwrap(), 7),
+        (check_scene(), 23),
+    ] {
+        let obs = obs_of(&simulate(&sc), seed);
+        let prep = Prepared::new(&obs).unwrap();
+        let f = fit(&obs).unwrap();
+        let (t, j) = (&sc.tool, &sc.joint);
+        let mut q = vec![
+            t.drive_inertia_kgm2.ln(),
+            t.blow_momentum_nms.ln(),
+            t.forward_damping_nms_per_rad.ln(),
+            t.back_damping_nms_per_rad.ln(),
+            j.snug_torque_nm.ln(),
+            j.rate_nm_per_deg.to_degrees().ln(),
+            (j.breakaway_ratio - 1.0).ln(),
+            -30.0,
+            (sc.joint.nut_inertia_kgm2 / t.drive_inertia_kgm2).ln(),
+        ];
+        let c = |q: &[f64]| prep.residuals(q).iter().map(|r| r * r).sum::<f64>();
+        eprintln!(
+            "cost at truth {:.1}, at fit {:.1}, n {}",
+            c(&q),
+            c(&f.internal),
+            prep.residuals(&q).len()
+        );
+        eprintln!("fit q {:?}", physical(&f.internal));
+        q[7] = f.internal[7];
+        eprintln!("cost at truth with fitted lead {:.1}", c(&q));
     }
 }

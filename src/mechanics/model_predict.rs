@@ -96,8 +96,8 @@ struct Run {
     holding_nm: f64,
 }
 
-fn run(q: &[f64], fps: f64, k: f64, rate: f64, n: usize) -> Run {
-    let p = physical(q, fps);
+fn run(q: &[f64], k: f64, rate: f64, n: usize) -> Run {
+    let p = physical(q);
     let interval = 60.0 / rate;
     let first = 0.001;
     let impacts: Vec<f64> = (0..n).map(|b| first + b as f64 * interval).collect();
@@ -186,9 +186,8 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
     {
         return Err(bad_fit());
     }
-    let fps = fit.clip.capture_fps_hz;
     let q = &fit.internal;
-    let centre = run(q, fps, k, rate, n);
+    let centre = run(q, k, rate, n);
 
     // Monte Carlo over the fit's covariance (fixed seed: the same report gives the same
     // interval every time).
@@ -237,7 +236,7 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
             })
             .collect();
         let kd = k * (1.0 + input.stiffness_rel_sigma * gauss(&mut rng)).max(0.1);
-        let r = run(&qd, fps, kd, rate, n);
+        let r = run(&qd, kd, rate, n);
         if !r.holding_nm.is_finite() || r.blows.iter().any(|b| !b.0.is_finite()) {
             continue;
         }
