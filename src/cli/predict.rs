@@ -1,5 +1,5 @@
 //! `twistmark predict --report R --rig OTHER [--blow-rate BPM] [--blows N] [--json]`: runs the
-//! blow model fitted to one clip (the report's `model`, or fitted now from its trace) with
+//! blow model fitted to one clip (the report's `model`, written by analyze) with
 //! another bar, blow rate or number of blows, and prints what the model predicts.
 
 use std::path::PathBuf;
@@ -7,7 +7,7 @@ use std::process::ExitCode;
 
 use anyhow::Result;
 use clap::Args;
-use twistmark::mechanics::{ClipObs, ModelFit, PredictInput, fit, predict, stiffness_rel_sigma};
+use twistmark::mechanics::{ModelFit, PredictInput, predict, stiffness_rel_sigma};
 use twistmark::report::Report;
 
 /// Arguments of `predict`.
@@ -30,7 +30,7 @@ pub struct PredictArgs {
     json: bool,
 }
 
-/// The report's fitted model, or a fit made now from its trace.
+/// The report's fitted model (analyze writes it; predict never refits).
 fn load_fit(path: &std::path::Path) -> Result<(ModelFit, Report)> {
     let text = twistmark::limits::read_text(path, "report")?;
     let report: Report = serde_json::from_str(&text).map_err(|e| {
@@ -39,16 +39,30 @@ fn load_fit(path: &std::path::Path) -> Result<(ModelFit, Report)> {
             path.display()
         )
     })?;
-    if let Some(m) = &report.model {
-        if let Some(err) = m.get("error").and_then(|v| v.as_str()) {
-            anyhow::bail!("{}: model: {err}", path.display());
+    let rerun = "run twistmark analyze on the clip again (with a rig that has a \"bar\") to \
+                 write the fitted model";
+    let Some(m) = &report.model else {
+        if report.summary.bar_stiffness_nm_per_rad.is_none() {
+            anyhow::bail!(
+                "{}: the report was made without a bar, so it has no fitted blow model; {rerun}",
+                path.display()
+            );
         }
-        if let Ok(f) = serde_json::from_value::<ModelFit>(m.clone()) {
-            return Ok((f, report));
-        }
+        anyhow::bail!(
+            "{}: the report has no fitted blow model (`model`; written by an older analyze); \
+             {rerun}",
+            path.display()
+        );
+    };
+    if let Some(err) = m.get("error").and_then(|v| v.as_str()) {
+        anyhow::bail!("{}: model: {}", path.display(), strip_path(err));
     }
-    let f = fit(&ClipObs::from_report(&report))
-        .map_err(|e| anyhow::anyhow!("{}: {}", path.display(), strip_path(&e.to_string())))?;
+    let f = serde_json::from_value::<ModelFit>(m.clone()).map_err(|e| {
+        anyhow::anyhow!(
+            "{}: the report's `model` is not one this version reads ({e}); {rerun}",
+            path.display()
+        )
+    })?;
     Ok((f, report))
 }
 

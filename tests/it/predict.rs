@@ -128,10 +128,24 @@ fn refuses_bad_inputs_with_one_line() {
     std::fs::write(&p, no_bar.to_string()).unwrap();
     one_line_error(&run(args(&p, &bar, &[])), &["no-bar.json", "without a bar"]);
 
-    // Too few blows to fit.
+    // A report without the fitted model (an older analyze): predict does not refit, it says
+    // to analyze again; a model of another version likewise.
+    let mut old = doc.clone();
+    old.as_object_mut().unwrap().remove("model");
+    let p = tmp.path().join("old.json");
+    std::fs::write(&p, old.to_string()).unwrap();
+    one_line_error(&run(args(&p, &bar, &[])), &["old.json", "analyze", "again"]);
+    old["model"] = serde_json::json!({ "internal": [0.0, 1.0] });
+    std::fs::write(&p, old.to_string()).unwrap();
+    one_line_error(&run(args(&p, &bar, &[])), &["old.json", "analyze", "again"]);
+
+    // The fit's refusal as analyze stores it (too few blows) is passed on.
     let mut few = doc.clone();
-    few.as_object_mut().unwrap().remove("model");
-    few["blows"].as_array_mut().unwrap().truncate(2);
+    let mut obs =
+        twistmark::mechanics::ClipObs::from_report(&serde_json::from_value(doc.clone()).unwrap());
+    obs.blow_t_s.truncate(2);
+    let reason = twistmark::mechanics::fit(&obs).unwrap_err().to_string();
+    few["model"] = serde_json::json!({ "error": reason });
     let p = tmp.path().join("few.json");
     std::fs::write(&p, few.to_string()).unwrap();
     one_line_error(&run(args(&p, &bar, &[])), &["few.json", "at least 3"]);
