@@ -6,14 +6,14 @@
 //! Method: weighted nonlinear least squares on every frame's twist and nut angle, minimised
 //! with the Levenberg–Marquardt method (K. Levenberg, "A method for the solution of certain
 //! non-linear problems in least squares", Q. Appl. Math. 2, 1944; D. W. Marquardt, "An
-//! algorithm for least-squares estimation of nonlinear parameters", J. SIAM 11, 1963), through
-//! the `levenberg-marquardt` crate. Each parameter's standard uncertainty is the square root
-//! of the diagonal of s²·(JᵀJ)⁻¹, with J the Jacobian of the weighted residuals at the optimum
+//! algorithm for least-squares estimation of nonlinear parameters", J. SIAM 11, 1963), a short
+//! loop on `nalgebra` (the `levenberg-marquardt` crate needs another nalgebra version than the
+//! one imageproc builds). Each parameter's standard uncertainty is the square root of the
+//! diagonal of s²·(JᵀJ)⁻¹, with J the Jacobian of the weighted residuals at the optimum
 //! and s² the residual variance per degree of freedom (the usual linearised covariance of a
 //! least-squares estimate; e.g. Press et al., *Numerical Recipes*, 3rd ed., §15.5).
 
-use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
-use nalgebra::{DMatrix, DVector, Dyn, Owned};
+use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};
 
 use super::model::{Joint, Model};
@@ -466,16 +466,18 @@ pub(crate) const BREAKAWAY_INDEX: usize = BREAKAWAY;
 /// The breakaway ratios profiled, static over kinetic friction torque.
 const BREAKAWAY_GRID: [f64; 7] = [1.02, 1.06, 1.1, 1.15, 1.2, 1.3, 1.45];
 
-/// The least-squares problem handed to the minimiser: every parameter but the breakaway
-/// ratio, which is held, with a forward-difference Jacobian.
+/// The least-squares problem of one minimiser run: every parameter but the breakaway ratio,
+/// which is held, with a forward-difference Jacobian.
 struct Problem<'a> {
     prep: &'a Prepared,
-    q: DVector<f64>,
     breakaway_q: f64,
 }
 
 /// Forward-difference step of each internal parameter.
 const DIFF_STEP: f64 = 1e-2;
+
+/// Most Jacobian evaluations (outer iterations) of one minimiser run.
+const LM_MAX_ITERATIONS: usize = 30;
 
 impl Problem<'_> {
     fn full(&self, free: &[f64]) -> Vec<f64> {
@@ -484,13 +486,17 @@ impl Problem<'_> {
         q
     }
 
+    fn residuals(&self, free: &[f64]) -> Vec<f64> {
+        self.prep.residuals(&self.full(free))
+    }
+
     fn jacobian_at(&self, free: &[f64]) -> DMatrix<f64> {
-        let r0 = self.prep.residuals(&self.full(free));
+        let r0 = self.residuals(free);
         let mut jac = DMatrix::zeros(r0.len(), free.len());
         for c in 0..free.len() {
             let mut qc = free.to_vec();
             qc[c] += DIFF_STEP;
-            let rc = self.prep.residuals(&self.full(&qc));
+            let rc = self.residuals(&qc);
             for (row, (a, b)) in rc.iter().zip(&r0).enumerate() {
                 jac[(row, c)] = (a - b) / DIFF_STEP;
             }
@@ -499,52 +505,73 @@ impl Problem<'_> {
     }
 }
 
-impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
-    type ResidualStorage = Owned<f64, Dyn>;
-    type JacobianStorage = Owned<f64, Dyn, Dyn>;
-    type ParameterStorage = Owned<f64, Dyn>;
-
-    fn set_params(&mut self, x: &DVector<f64>) {
-        self.q.copy_from(x);
-    }
-
-    fn params(&self) -> DVector<f64> {
-        self.q.clone()
-    }
-
-    fn residuals(&self) -> Option<DVector<f64>> {
-        let r = self.prep.residuals(&self.full(self.q.as_slice()));
-        r.iter()
-            .all(|v| v.is_finite())
-            .then(|| DVector::from_vec(r))
-    }
-
-    fn jacobian(&self) -> Option<DMatrix<f64>> {
-        let j = self.jacobian_at(self.q.as_slice());
-        j.iter().all(|v| v.is_finite()).then_some(j)
-    }
+fn sum_sq(r: &[f64]) -> f64 {
+    r.iter().map(|x| x * x).sum()
 }
 
-/// Minimises over every parameter but the breakaway ratio, from `start` (a full vector).
-/// Returns (cost, full optimum, evaluations, termination).
+/// Minimises over every parameter but the breakaway ratio, from `start` (a full vector), with
+/// the Levenberg–Marquardt method: each step solves (JᵀJ + λ·diag(JᵀJ))·δ = −Jᵀr (Marquardt's
+/// scaling, J. SIAM 11, 1963), λ shrinking after a step that lowers the cost and growing until
+/// one does. At most [`LM_MAX_ITERATIONS`] Jacobians.
+/// Returns (cost Σr², full optimum, evaluations, termination).
 fn minimise(prep: &Prepared, start: &[f64], breakaway_q: f64) -> (f64, Vec<f64>, usize, String) {
-    let mut free = start.to_vec();
-    free.remove(BREAKAWAY);
-    let problem = Problem {
-        prep,
-        q: DVector::from_vec(free),
-        breakaway_q,
-    };
-    let (done, report) = LevenbergMarquardt::new()
-        .with_patience(30)
-        .minimize(problem);
-    let q = done.full(done.q.as_slice());
-    (
-        report.objective_function,
-        q,
-        report.number_of_evaluations,
-        format!("{:?}", report.termination),
-    )
+    let problem = Problem { prep, breakaway_q };
+    let mut x = start.to_vec();
+    x.remove(BREAKAWAY);
+    let n = x.len();
+    let mut cost = sum_sq(&problem.residuals(&x));
+    let mut evaluations = 1;
+    if !cost.is_finite() {
+        return (
+            f64::INFINITY,
+            problem.full(&x),
+            evaluations,
+            "not finite at the start".into(),
+        );
+    }
+    let mut lambda = 1e-3;
+    let mut termination = "iteration limit";
+    'outer: for _ in 0..LM_MAX_ITERATIONS {
+        let r = DVector::from_vec(problem.residuals(&x));
+        let jac = problem.jacobian_at(&x);
+        evaluations += n + 2;
+        let jtj = jac.transpose() * &jac;
+        let g = jac.transpose() * r;
+        loop {
+            let mut a = jtj.clone();
+            for i in 0..n {
+                a[(i, i)] += lambda * jtj[(i, i)].max(1e-12);
+            }
+            let Some(step) = a.cholesky().map(|c| c.solve(&-&g)) else {
+                lambda *= 4.0;
+                if lambda > 1e10 {
+                    termination = "no descent";
+                    break 'outer;
+                }
+                continue;
+            };
+            let xn: Vec<f64> = x.iter().zip(step.iter()).map(|(a, b)| a + b).collect();
+            let cn = sum_sq(&problem.residuals(&xn));
+            evaluations += 1;
+            if cn.is_finite() && cn < cost {
+                let small = (cost - cn) <= 1e-9 * cost || step.norm() <= 1e-8;
+                x = xn;
+                cost = cn;
+                lambda = (lambda / 3.0).max(1e-9);
+                if small {
+                    termination = "converged";
+                    break 'outer;
+                }
+                break;
+            }
+            lambda *= 4.0;
+            if lambda > 1e10 {
+                termination = "converged (no smaller step lowers the cost)";
+                break 'outer;
+            }
+        }
+    }
+    (cost, problem.full(&x), evaluations, termination.into())
 }
 
 /// Frame-sampled per-blow peak twist and nut advance (degrees) of a trace, blow by blow,
@@ -662,7 +689,6 @@ pub fn fit(obs: &ClipObs) -> Result<ModelFit> {
     let (_, q, _, termination) = best;
     let problem = Problem {
         prep: &prep,
-        q: DVector::zeros(N_PARAMS - 1),
         breakaway_q: q[BREAKAWAY],
     };
     let mut free = q.clone();
