@@ -29,6 +29,14 @@ pub const MAX_FRAMES_TIMED: usize = 1 << 24;
 /// Most worker threads per core a batch may start (`--jobs` above this is clamped).
 pub const MAX_JOBS_PER_CORE: usize = 4;
 
+/// Most blows `predict --blows` simulates (each draw of its interval runs them all).
+pub const MAX_PREDICT_BLOWS: usize = 200;
+
+/// Blow rates `predict --blow-rate` accepts, blows per minute: from a slow hand-held tool to
+/// well past the fastest impact tools (*common practice* range), so that the simulated time
+/// (blows / rate) stays at most two minutes.
+pub const PREDICT_BLOW_RATE_PER_MIN: (f64, f64) = (100.0, 10_000.0);
+
 /// Frames of one analysis that side-view marks may hold: a side mark keeps one profile across
 /// the bar per frame (about 2.9 kB) until the clip ends, so this bounds that store at about
 /// 290 MB a mark (over 80 s at 1,000 fps). Radial marks keep a few numbers a frame and have

@@ -12,6 +12,7 @@ mod batch;
 mod calibrate;
 mod find_marks;
 mod info;
+mod predict;
 mod progress;
 
 /// Measures impact blows on a torsion extension bar from high-speed video: per-frame angles
@@ -37,6 +38,8 @@ enum Command {
     FindMarks(find_marks::FindMarksArgs),
     /// Fit the bar's stiffness from torque-wrench checks and write it into a rig.
     Calibrate(calibrate::CalibrateArgs),
+    /// Fit the blow model to a report and predict another bar, blow rate or blow count.
+    Predict(predict::PredictArgs),
 }
 
 /// Parses the command line and runs the chosen command.
@@ -49,6 +52,7 @@ pub fn run() -> Result<ExitCode> {
         Command::Bar(a) => bar::run(a),
         Command::FindMarks(a) => find_marks::run(a),
         Command::Calibrate(a) => calibrate::run(a),
+        Command::Predict(a) => predict::run(a),
     }
 }
 

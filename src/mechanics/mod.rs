@@ -10,7 +10,12 @@ mod bar_report;
 mod blows;
 mod calibration;
 pub(crate) use calibration::{csv_with_headers, parse_decimal};
+pub mod fit;
 mod holding;
+/// The lumped torsional model of a blow (drive inertia, bar, nut, joint): the shipped tool's
+/// `predict` fits and runs it, and src/synth renders test clips with the same code.
+pub(crate) mod model;
+mod model_predict;
 mod sense;
 mod steel;
 pub mod subframe;
@@ -32,7 +37,9 @@ pub use blows::{
 pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
 };
+pub use fit::{ClipObs, Estimate, FitQuality, ModelFit, fit};
 pub use holding::{HoldingTorque, MAX_SLIPS};
+pub use model_predict::{PREDICTION_CAUTION, PredictInput, PredictedBlow, Prediction, predict};
 pub use sense::{
     BAR_LENGTH_MM, SECTION_ACROSS_MM, SECTION_LENGTH_MM, SET_MIN_DEG, STIFFNESS_NM_PER_DEG,
     bar_sense_warnings,

@@ -59,6 +59,10 @@ pub struct Report {
     /// (docs/outputs.md, "Mark quality"). Absent in reports written before it existed.
     #[serde(default)]
     pub mark_quality: MarkQualityJson,
+    /// The blow model fitted to this clip (docs/mechanics.md, "The blow model"), or
+    /// `{"error": reason}` when it could not be fitted; absent without a bar.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub model: Option<serde_json::Value>,
 }
 
 /// `report.json`'s `mark_quality`: the drive and nut marks' self-check results.
@@ -518,6 +522,30 @@ pub fn report(a: &Analysis) -> Report {
             drive: MarkJson::of(&a.trace.drive, &a.trace.drive_confidence),
             nut: MarkJson::of(&a.trace.nut, &a.trace.nut_confidence),
         },
+        model: None,
+    }
+    .with_model()
+}
+
+impl Report {
+    /// Adds the fitted blow model under `model` when the report has a bar and a measured
+    /// torque. A clip whose torque was withheld (marks lost, the same mark twice, peaks on
+    /// lost frames) gets a model entry that says why none was fitted: a model fitted to
+    /// angles the self-checks did not trust would predict from numbers nobody measured.
+    fn with_model(mut self) -> Report {
+        if self.summary.bar_stiffness_nm_per_rad.is_some() && self.summary.peak_torque_nm.is_none()
+        {
+            self.model = Some(serde_json::json!({
+                "error": "no peak torque was measured on this clip (see the warnings), so no blow model was fitted"
+            }));
+        } else if self.summary.bar_stiffness_nm_per_rad.is_some() {
+            let obs = crate::mechanics::ClipObs::from_report(&self);
+            self.model = Some(match crate::mechanics::fit(&obs) {
+                Ok(f) => serde_json::to_value(f).unwrap_or(serde_json::Value::Null),
+                Err(e) => serde_json::json!({ "error": e.to_string() }),
+            });
+        }
+        self
     }
 }
 
@@ -646,6 +674,17 @@ mod tests {
             "last_frame",
             "held_blows",
             "decay_fits",
+            // The fitted blow model (`model`): an estimate's value and sigma carry the unit of
+            // the key above them; ratios, counts and the internal (log-scale) vector.
+            "value",
+            "sigma",
+            "nut_to_drive_inertia_ratio",
+            "bar_damping_ratio",
+            "pulse_to_half_period_ratio",
+            "max_peak_twist_rel_error",
+            "frames_used",
+            "evaluations",
+            "internal",
         ];
         let units = [
             "_s", "_ms", "_deg", "_nm", "_lbf_ft", "_per_min", "_per_deg", "_per_rad", "_ratio",

@@ -25,7 +25,6 @@
 pub mod fixtures;
 pub mod layout;
 mod look;
-mod model;
 pub mod phone;
 pub mod random;
 mod scene;
@@ -49,7 +48,7 @@ pub use texture::BrushedSteel;
 pub use write::write_video;
 pub use write::{StillFormat, write_rest_still, write_sidecars, write_stills};
 
-use model::{Joint, Model};
+use crate::mechanics::model::{self, Joint, Model};
 use scene::{Pose, Prepared};
 
 /// Version of the truth.json layout written by this build.

@@ -356,6 +356,8 @@ fn rule6_physics_sanity() {
     assert!(r.stderr.contains("same mark"), "{}", r.stderr);
     let v = json(&dir.path().join("same/report.json"));
     assert!(v["summary"]["peak_torque_nm"].is_null(), "{}", v["summary"]);
+    // No blow model is fitted to angles whose torque was withheld.
+    assert!(v["model"]["error"].is_string(), "{}", v["model"]);
     for b in v["blows"].as_array().unwrap() {
         assert!(b["peak_torque_nm"].is_null(), "{b}");
     }

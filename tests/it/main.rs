@@ -24,6 +24,7 @@ mod hostile;
 mod html_report;
 mod messages;
 mod phone;
+mod predict;
 mod segment;
 mod side;
 mod springback;

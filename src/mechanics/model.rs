@@ -1,10 +1,12 @@
-//! The invented test bench's torsional model: a drive-end inertia struck by hammer blows, a
-//! torsion bar, and a nut-end inertia held by a joint whose torque rises with nut angle.
+//! The lumped torsional model of a blow: a drive-end inertia struck by hammer blows, a
+//! torsion bar, and a nut-end inertia held by a joint whose torque rises with nut angle. The
+//! renderer (src/synth) simulates test clips with it and `predict` fits and runs it
+//! (src/mechanics/fit.rs; docs/mechanics.md, section 14).
 //! Integrated with a fixed small step (semi-implicit Euler) and sampled at any sorted list of
 //! times. Everything is SI inside (rad, rad/s, N·m, N·m/rad, kg·m², s); angles are positive in
 //! the tightening direction and zero at the start of the simulation.
 //!
-//! Equations (see docs/scenes.md for the derivation and every knob):
+//! Equations (see docs/scenes.md and docs/mechanics.md for the derivation and every knob):
 //!
 //! ```text
 //! I_d·θ̈_d = P(t) − T_bar − T_tool(θ̇_d)

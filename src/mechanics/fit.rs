@@ -1,0 +1,828 @@
+//! Fits the lumped blow model ([`super::model`]) to one clip's trace: the drive-side inertia
+//! struck by the tool's blows, the bar as a spring in series with the nut, the nut held by
+//! static and kinetic (Coulomb) friction against a joint whose torque rises linearly with
+//! angle, and the tool's back-drive. See docs/mechanics.md ("The blow model").
+//!
+//! Method: weighted nonlinear least squares on every frame's twist and nut angle, minimised
+//! with the Levenberg–Marquardt method (K. Levenberg, "A method for the solution of certain
+//! non-linear problems in least squares", Q. Appl. Math. 2, 1944; D. W. Marquardt, "An
+//! algorithm for least-squares estimation of nonlinear parameters", J. SIAM 11, 1963), a short
+//! loop on `nalgebra` (the `levenberg-marquardt` crate needs another nalgebra version than the
+//! one imageproc builds). Each parameter's standard uncertainty is the square root of the
+//! diagonal of s²·(JᵀJ)⁻¹, with J the Jacobian of the weighted residuals at the optimum
+//! and s² the residual variance per degree of freedom (the usual linearised covariance of a
+//! least-squares estimate; e.g. Press et al., *Numerical Recipes*, 3rd ed., §15.5).
+
+use nalgebra::{DMatrix, DVector};
+use serde::{Deserialize, Serialize};
+
+use super::model::{Joint, Model};
+use crate::error::{Error, Result};
+
+/// Fewest blows a fit needs: one to see the spring-back, more to see the joint's line.
+pub const FIT_MIN_BLOWS: usize = 3;
+
+/// Longest stretch of clip the fit simulates, s (a longer clip is fitted on its start): it
+/// bounds the fit's time, which `analyze` spends on every clip with a bar (tens of blows of
+/// any tool fit in it).
+pub const FIT_MAX_CLIP_S: f64 = 2.0;
+
+/// Nut-end (socket and nut) over drive-end inertia the scan starts from. It is fitted: the
+/// nut end's own vibration is faster than the frames, but how far the nut turns once it breaks
+/// away (its overshoot against the joint) depends on it, and measured on rendered clips the
+/// fit's cost rises eightfold for a 25 % error in it.
+const NUT_INERTIA_RATIO_GRID: [f64; 4] = [0.06, 0.1, 0.16, 0.25];
+
+/// The bar's own damping ratio against the reduced inertia: fixed and small (a steel bar's
+/// internal damping is a few per cent of critical, *common practice*).
+pub const BAR_DAMPING_RATIO: f64 = 0.02;
+
+/// Blow pulse length over the drive end's half period against a held nut: fixed, short (a
+/// blow much shorter than the bar's period acts as an impulse, so the value hardly matters).
+pub const PULSE_TO_HALF_PERIOD: f64 = 0.05;
+
+/// Largest twist at the first frame for which the clip counts as starting at rest, degrees.
+pub const FIT_MAX_START_TWIST_DEG: f64 = 0.5;
+
+/// Noise floor of a trace angle in the fit's weights, degrees.
+const NOISE_FLOOR_DEG: f64 = 0.05;
+
+/// Range of the time from a blow's impact to the onset frame a report names, frames: the
+/// impact is at most two frames before the first frame that shows motion.
+const LEAD_FROM_ONSET_FRAMES: (f64, f64) = (0.0, 2.0);
+
+/// Range of the time from a blow's impact to its measured sub-frame start
+/// ([`crate::mechanics::subframe`]), frames: half a frame either way covers the straight
+/// line's bias on the sine's curvature over the first two samples.
+const LEAD_FROM_SUBFRAME_FRAMES: (f64, f64) = (-0.5, 0.5);
+
+/// Number of fitted parameters.
+pub const N_PARAMS: usize = 9;
+
+/// What the fit reads from a clip: the trace, the blows' onsets and the bar's stiffness.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ClipObs {
+    /// Capture rate, frames per second.
+    pub fps: f64,
+    /// Frame times, s.
+    pub t_s: Vec<f64>,
+    /// Drive-end angle, degrees, 0 at the first frame (None where lost).
+    pub drive_deg: Vec<Option<f64>>,
+    /// Nut-end angle, degrees, 0 at the first frame (None where lost).
+    pub nut_deg: Vec<Option<f64>>,
+    /// Twist already in the bar at the first frame, degrees.
+    pub twist_offset_deg: f64,
+    /// Blow onsets (the first frame of the drive end's advance), s.
+    pub blow_t_s: Vec<f64>,
+    /// Per blow (as `blow_t_s`), the drive end's measured sub-frame start of motion, s (None
+    /// where it was not measured).
+    pub impact_t_s: Vec<Option<f64>>,
+    /// The filmed bar's stiffness, N·m/rad.
+    pub stiffness_nm_per_rad: f64,
+    /// One-frame angle noise (σ), degrees.
+    pub noise_deg: f64,
+}
+
+/// A fitted value and its standard uncertainty (1σ), in the unit its key names.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Estimate {
+    /// The fitted value.
+    pub value: f64,
+    /// Standard uncertainty (1σ), same unit.
+    pub sigma: f64,
+}
+
+/// The fitted parameters, each with its uncertainty.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FittedParameters {
+    /// Drive-side (anvil, drive end) inertia, kg·m².
+    pub drive_inertia_kg_m2: Estimate,
+    /// Angular momentum each blow hands the drive end, N·m·s.
+    pub blow_momentum_nms: Estimate,
+    /// The tool's damping while turning forward, N·m·s/rad.
+    pub forward_damping_nms_per_rad: Estimate,
+    /// The tool's resistance to back-drive (damping while the drive end turns back),
+    /// N·m·s/rad.
+    pub back_damping_nms_per_rad: Estimate,
+    /// Kinetic joint torque at the clip's first nut angle, N·m.
+    pub joint_start_torque_nm: Estimate,
+    /// Joint rate: torque per radian of nut turn, N·m/rad.
+    pub joint_rate_nm_per_rad: Estimate,
+    /// Static over kinetic friction torque at the nut (breakaway ratio), ≥ 1.
+    pub breakaway_ratio: Estimate,
+    /// Time from the blow's impact to the time the fit starts from (the measured sub-frame
+    /// start of motion when every blow has one, else the onset frame), s.
+    pub onset_lead_s: Estimate,
+    /// Nut-end (socket, nut) inertia over the drive end's.
+    pub nut_to_drive_inertia_ratio: Estimate,
+}
+
+/// How well the fitted model reproduces the clip.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitQuality {
+    /// RMS of model − measured twist over the frames, degrees.
+    pub rms_twist_deg: f64,
+    /// RMS of model − measured nut angle over the frames, degrees.
+    pub rms_nut_deg: f64,
+    /// RMS of model − measured per-blow peak twist (both frame-sampled), degrees.
+    pub rms_peak_twist_deg: f64,
+    /// Largest |model / measured − 1| of a blow's peak twist.
+    pub max_peak_twist_rel_error: f64,
+    /// RMS of model − measured per-blow nut advance, degrees.
+    pub rms_nut_advance_deg: f64,
+    /// Frames used.
+    pub frames_used: usize,
+    /// Residual evaluations the minimiser made.
+    pub evaluations: usize,
+    /// How the minimiser stopped.
+    pub termination: String,
+}
+
+/// The clip's envelope: what the fit saw, so a prediction can say where it goes beyond it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ClipEnvelope {
+    /// The clip's capture rate, frames per second.
+    pub capture_fps_hz: f64,
+    /// Blows fitted.
+    pub blow_count: usize,
+    /// 60 / median onset interval, blows per minute.
+    pub blow_rate_per_min: f64,
+    /// The filmed bar's stiffness, N·m/rad.
+    pub bar_stiffness_nm_per_rad: f64,
+    /// Nut angle at the end of the fitted stretch, degrees.
+    pub nut_total_deg: f64,
+    /// Highest per-blow model peak torque over the fitted blows, N·m.
+    pub peak_torque_max_nm: f64,
+}
+
+/// The blow model fitted to one clip: `report.json`'s `model`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ModelFit {
+    /// The method, with its sources.
+    pub method: String,
+    /// Fitted parameters with their uncertainties.
+    pub parameters: FittedParameters,
+    /// Values held fixed (assumptions), by name.
+    pub fixed: FixedAssumptions,
+    /// How well the model reproduces the clip.
+    pub quality: FitQuality,
+    /// What the clip showed.
+    pub clip: ClipEnvelope,
+    /// The internal parameter vector (log scale for positive values), for `predict`.
+    pub internal: Vec<f64>,
+    /// Covariance of `internal` (s²·(JᵀJ)⁻¹), row by row.
+    pub internal_covariance: Vec<Vec<f64>>,
+}
+
+/// The assumptions the fit holds fixed.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FixedAssumptions {
+    /// Bar damping ratio.
+    pub bar_damping_ratio: f64,
+    /// Blow pulse over the drive end's half period.
+    pub pulse_to_half_period_ratio: f64,
+}
+
+/// The model's physical constants, decoded from the internal vector.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Physical {
+    pub drive_inertia: f64,
+    pub momentum: f64,
+    pub forward_damping: f64,
+    pub back_damping: f64,
+    pub joint_start: f64,
+    pub joint_rate: f64,
+    pub breakaway: f64,
+    pub lead_frac: f64,
+    pub nut_ratio: f64,
+}
+
+/// Decodes the internal vector: logarithms for positive values, 1 + e^q for the breakaway
+/// ratio, logistic(q) for the onset lead's place in its range.
+pub(crate) fn physical(q: &[f64]) -> Physical {
+    Physical {
+        drive_inertia: q[0].exp(),
+        momentum: q[1].exp(),
+        forward_damping: q[2].exp(),
+        back_damping: q[3].exp(),
+        joint_start: q[4].exp(),
+        joint_rate: q[5].exp(),
+        breakaway: 1.0 + q[6].exp(),
+        lead_frac: 1.0 / (1.0 + (-q[7]).exp()),
+        nut_ratio: q[8].exp(),
+    }
+}
+
+impl Physical {
+    /// The simulator for this set of constants on a bar of stiffness `k` (N·m/rad), with
+    /// blows at `blow_times` (impacts, s) and the state at rest at `start`.
+    pub(crate) fn model(&self, k: f64, blow_times: Vec<f64>, start: f64) -> Model {
+        let i_d = self.drive_inertia;
+        let i_n = self.nut_ratio * i_d;
+        let i_red = i_d * i_n / (i_d + i_n);
+        let half = std::f64::consts::PI * (i_d / k).sqrt();
+        let pulse = PULSE_TO_HALF_PERIOD * half;
+        Model {
+            drive_inertia: i_d,
+            nut_inertia: i_n,
+            stiffness: k,
+            bar_damping: 2.0 * BAR_DAMPING_RATIO * (k * i_red).sqrt(),
+            forward_damping: self.forward_damping,
+            back_damping: self.back_damping,
+            joint: Some(Joint {
+                snug_nm: self.joint_start,
+                rate_nm_per_rad: self.joint_rate,
+                breakaway: self.breakaway,
+            }),
+            blow_times,
+            blow_momentum: self.momentum,
+            pulse,
+            // The nut end's vibration, √(k/I_n), sets the step: 1/100 of its period keeps
+            // semi-implicit Euler's phase error far below the frame spacing.
+            step: (half * (self.nut_ratio / (1.0 + self.nut_ratio)).sqrt() / 50.0)
+                .min(pulse / 10.0)
+                .min(1.0e-5),
+            start,
+        }
+    }
+}
+
+/// The clip as prepared for fitting: the frames used and their weights.
+struct Prepared {
+    obs: ClipObs,
+    /// Frames used (index into the trace), ascending, within the fitted stretch.
+    frames: Vec<usize>,
+    /// Blow onsets within the fitted stretch, s.
+    blows: Vec<f64>,
+    /// The times the impacts are placed from (less the fitted lead): the measured sub-frame
+    /// starts when every fitted blow has one, else `blows`, s.
+    base: Vec<f64>,
+    /// The lead's range, s.
+    lead_range: (f64, f64),
+    /// Time the state is at rest, s.
+    start: f64,
+    sigma_deg: f64,
+}
+
+/// One evaluation of the model on the clip's frames.
+struct Sim {
+    /// Model twist at each used frame, degrees.
+    twist_deg: Vec<f64>,
+    /// Model nut angle at each used frame, degrees.
+    nut_deg: Vec<f64>,
+    /// Continuous peak spring torque per blow, N·m.
+    peak_nm: Vec<f64>,
+}
+
+impl Prepared {
+    fn new(obs: &ClipObs) -> Result<Prepared> {
+        let bad = |reason: String| Error::Input {
+            path: "report.json".into(),
+            reason,
+        };
+        let k = obs.stiffness_nm_per_rad;
+        if !(k.is_finite() && k > 0.0) {
+            return Err(bad(
+                "the report was made without a bar (no stiffness), so there is no torque to \
+                 fit; analyze the clip again with a rig that has a \"bar\""
+                    .into(),
+            ));
+        }
+        if obs.twist_offset_deg.abs() > FIT_MAX_START_TWIST_DEG {
+            return Err(bad(format!(
+                "the clip starts with {:.2} deg of twist already in the bar; the blow model \
+                 is fitted from rest, so film from before the first blow",
+                obs.twist_offset_deg
+            )));
+        }
+        let t0 = obs.t_s.first().copied().unwrap_or(0.0);
+        let t_end = obs
+            .t_s
+            .last()
+            .copied()
+            .unwrap_or(t0)
+            .min(t0 + FIT_MAX_CLIP_S);
+        let kept: Vec<usize> = (0..obs.blow_t_s.len())
+            .filter(|&b| obs.blow_t_s[b] > t0 && obs.blow_t_s[b] <= t_end)
+            .collect();
+        let blows: Vec<f64> = kept.iter().map(|&b| obs.blow_t_s[b]).collect();
+        let sub: Option<Vec<f64>> = kept
+            .iter()
+            .map(|&b| obs.impact_t_s.get(b).copied().flatten())
+            .map(|t| t.filter(|t| t.is_finite() && *t > t0 - 2.0 / obs.fps))
+            .collect();
+        let (base, range) = match sub {
+            Some(s) => (s, LEAD_FROM_SUBFRAME_FRAMES),
+            None => (blows.clone(), LEAD_FROM_ONSET_FRAMES),
+        };
+        let lead_range = (range.0 / obs.fps, range.1 / obs.fps);
+        if blows.len() < FIT_MIN_BLOWS {
+            return Err(bad(format!(
+                "{} blow(s) in the clip; fitting the blow model needs at least {FIT_MIN_BLOWS} \
+                 (film more blows)",
+                blows.len()
+            )));
+        }
+        let frames: Vec<usize> = (0..obs.t_s.len())
+            .filter(|&i| {
+                obs.t_s[i] <= t_end && obs.drive_deg[i].is_some() && obs.nut_deg[i].is_some()
+            })
+            .collect();
+        if frames.len() < 4 * N_PARAMS {
+            return Err(bad(format!(
+                "only {} frames with both marks; the fit needs at least {}",
+                frames.len(),
+                4 * N_PARAMS
+            )));
+        }
+        let nut_moved = frames
+            .iter()
+            .filter_map(|&i| obs.nut_deg[i])
+            .fold(0.0_f64, f64::max);
+        if nut_moved < 0.5 {
+            return Err(bad(
+                "the nut never turned in the clip, so the joint cannot be fitted; film a run \
+                 in which the nut still turns"
+                    .into(),
+            ));
+        }
+        Ok(Prepared {
+            obs: obs.clone(),
+            frames,
+            blows,
+            base,
+            lead_range,
+            start: t0 - 1.0 / obs.fps,
+            sigma_deg: obs.noise_deg.max(NOISE_FLOOR_DEG),
+        })
+    }
+
+    /// The lead, s.
+    fn lead(&self, p: &Physical) -> f64 {
+        self.lead_range.0 + (self.lead_range.1 - self.lead_range.0) * p.lead_frac
+    }
+
+    fn measured_twist(&self, i: usize) -> f64 {
+        self.obs.drive_deg[i].unwrap_or(0.0) - self.obs.nut_deg[i].unwrap_or(0.0)
+            + self.obs.twist_offset_deg
+    }
+
+    fn simulate(&self, q: &[f64]) -> Sim {
+        let p = physical(q);
+        let lead = self.lead(&p);
+        let impacts: Vec<f64> = self.base.iter().map(|t| t - lead).collect();
+        let start = self.start.min(impacts[0] - 1e-6);
+        let m = p.model(self.obs.stiffness_nm_per_rad, impacts, start);
+        let times: Vec<f64> = self.frames.iter().map(|&i| self.obs.t_s[i]).collect();
+        let (states, ev) = m.run(&times);
+        Sim {
+            twist_deg: states
+                .iter()
+                .map(|s| (s.theta_d - s.theta_n).to_degrees())
+                .collect(),
+            nut_deg: states.iter().map(|s| s.theta_n.to_degrees()).collect(),
+            peak_nm: ev.peak_spring_torque,
+        }
+    }
+
+    fn residuals(&self, q: &[f64]) -> Vec<f64> {
+        let sim = self.simulate(q);
+        let mut r = Vec::with_capacity(2 * self.frames.len());
+        for (j, &i) in self.frames.iter().enumerate() {
+            r.push((sim.twist_deg[j] - self.measured_twist(i)) / self.sigma_deg);
+            r.push((sim.nut_deg[j] - self.obs.nut_deg[i].unwrap_or(0.0)) / self.sigma_deg);
+        }
+        r
+    }
+
+    /// A first guess from the first blow's rise and spring-back and the nut's total turn.
+    fn guess(&self) -> Vec<f64> {
+        let k = self.obs.stiffness_nm_per_rad;
+        let span = |a: f64, b: f64| {
+            self.frames
+                .iter()
+                .copied()
+                .filter(move |&i| self.obs.t_s[i] >= a && self.obs.t_s[i] < b)
+        };
+        let (b0, b1) = (self.blows[0], self.blows[1]);
+        let (mut peak, mut t_peak) = (0.0_f64, b0);
+        for i in span(b0, b1) {
+            let w = self.measured_twist(i);
+            if w > peak {
+                peak = w;
+                t_peak = self.obs.t_s[i];
+            }
+        }
+        let peak_rad = peak.to_radians().max(1e-3);
+        // Quarter period of a disc on a shaft (free torsional vibration): t = (π/2)·√(I/k).
+        let rise = (t_peak - b0 + 0.5 / self.obs.fps).max(0.5 / self.obs.fps);
+        let i_d = k * (2.0 * rise / std::f64::consts::PI).powi(2);
+        let h = peak_rad * (k * i_d).sqrt();
+        // Overdamped return at the slow rate k/c: residual = peak · e^(−k·Δt/c).
+        let residual = span(b1 - 1.5 / self.obs.fps, b1)
+            .map(|i| self.measured_twist(i))
+            .next_back()
+            .unwrap_or(0.0)
+            .to_radians();
+        let dt = (b1 - t_peak).max(1.0 / self.obs.fps);
+        let ratio = (peak_rad / residual.max(peak_rad * 0.02)).max(1.05);
+        let c_back = (k * dt / ratio.ln()).max((k * i_d).sqrt());
+        let last = *self.frames.last().unwrap_or(&0);
+        let nut_total = self.obs.nut_deg[last].unwrap_or(0.0).to_radians().max(1e-3);
+        let snug = 0.5 * k * peak_rad;
+        let rate = ((0.8 * k * peak_rad - snug) / nut_total).max(0.05 * k);
+        vec![
+            i_d.ln(),
+            h.ln(),
+            (0.05 * (k * i_d).sqrt()).ln(),
+            c_back.ln(),
+            snug.ln(),
+            rate.ln(),
+            (0.1_f64).ln(),
+            // Halfway through the lead's range.
+            0.0,
+            NUT_INERTIA_RATIO_GRID[1].ln(),
+        ]
+    }
+}
+
+/// Index of the breakaway ratio in the internal vector: it acts through a threshold (the
+/// nut sticks or slips), so the residuals are not smooth in it and it is profiled on a grid
+/// instead of being differentiated.
+const BREAKAWAY: usize = 6;
+
+/// Index of the nut-to-drive inertia ratio in the internal vector.
+const NUT_RATIO: usize = 8;
+
+/// Starts of the minimiser: the best points of the scan. Measured on the tuning clip
+/// (slow-tool, seed 1), two starts left the fit in a neighbouring optimum with 7× the cost of
+/// the renderer's own constants; the minimiser needs more of the scan's points to find the
+/// basin around them.
+const LM_STARTS: usize = 8;
+
+/// [`BREAKAWAY`] for the prediction's draws.
+pub(crate) const BREAKAWAY_INDEX: usize = BREAKAWAY;
+
+/// The breakaway ratios profiled, static over kinetic friction torque.
+const BREAKAWAY_GRID: [f64; 7] = [1.02, 1.06, 1.1, 1.15, 1.2, 1.3, 1.45];
+
+/// The least-squares problem of one minimiser run: every parameter but the breakaway ratio,
+/// which is held, with a forward-difference Jacobian.
+struct Problem<'a> {
+    prep: &'a Prepared,
+    breakaway_q: f64,
+}
+
+/// Forward-difference step of each internal parameter.
+const DIFF_STEP: f64 = 1e-2;
+
+/// Most Jacobian evaluations (outer iterations) of one minimiser run.
+const LM_MAX_ITERATIONS: usize = 30;
+
+impl Problem<'_> {
+    fn full(&self, free: &[f64]) -> Vec<f64> {
+        let mut q = free.to_vec();
+        q.insert(BREAKAWAY, self.breakaway_q);
+        q
+    }
+
+    fn residuals(&self, free: &[f64]) -> Vec<f64> {
+        self.prep.residuals(&self.full(free))
+    }
+
+    fn jacobian_at(&self, free: &[f64]) -> DMatrix<f64> {
+        let r0 = self.residuals(free);
+        let mut jac = DMatrix::zeros(r0.len(), free.len());
+        for c in 0..free.len() {
+            let mut qc = free.to_vec();
+            qc[c] += DIFF_STEP;
+            let rc = self.residuals(&qc);
+            for (row, (a, b)) in rc.iter().zip(&r0).enumerate() {
+                jac[(row, c)] = (a - b) / DIFF_STEP;
+            }
+        }
+        jac
+    }
+}
+
+fn sum_sq(r: &[f64]) -> f64 {
+    r.iter().map(|x| x * x).sum()
+}
+
+/// Minimises over every parameter but the breakaway ratio, from `start` (a full vector), with
+/// the Levenberg–Marquardt method: each step solves (JᵀJ + λ·diag(JᵀJ))·δ = −Jᵀr (Marquardt's
+/// scaling, J. SIAM 11, 1963), λ shrinking after a step that lowers the cost and growing until
+/// one does. At most [`LM_MAX_ITERATIONS`] Jacobians.
+/// Returns (cost Σr², full optimum, evaluations, termination).
+fn minimise(prep: &Prepared, start: &[f64], breakaway_q: f64) -> (f64, Vec<f64>, usize, String) {
+    let problem = Problem { prep, breakaway_q };
+    let mut x = start.to_vec();
+    x.remove(BREAKAWAY);
+    let n = x.len();
+    let mut cost = sum_sq(&problem.residuals(&x));
+    let mut evaluations = 1;
+    if !cost.is_finite() {
+        return (
+            f64::INFINITY,
+            problem.full(&x),
+            evaluations,
+            "not finite at the start".into(),
+        );
+    }
+    let mut lambda = 1e-3;
+    let mut termination = "iteration limit";
+    'outer: for _ in 0..LM_MAX_ITERATIONS {
+        let r = DVector::from_vec(problem.residuals(&x));
+        let jac = problem.jacobian_at(&x);
+        evaluations += n + 2;
+        let jtj = jac.transpose() * &jac;
+        let g = jac.transpose() * r;
+        loop {
+            let mut a = jtj.clone();
+            for i in 0..n {
+                a[(i, i)] += lambda * jtj[(i, i)].max(1e-12);
+            }
+            let Some(step) = a.cholesky().map(|c| c.solve(&-&g)) else {
+                lambda *= 4.0;
+                if lambda > 1e10 {
+                    termination = "no descent";
+                    break 'outer;
+                }
+                continue;
+            };
+            let xn: Vec<f64> = x.iter().zip(step.iter()).map(|(a, b)| a + b).collect();
+            let cn = sum_sq(&problem.residuals(&xn));
+            evaluations += 1;
+            if cn.is_finite() && cn < cost {
+                let small = (cost - cn) <= 1e-9 * cost || step.norm() <= 1e-8;
+                x = xn;
+                cost = cn;
+                lambda = (lambda / 3.0).max(1e-9);
+                if small {
+                    termination = "converged";
+                    break 'outer;
+                }
+                break;
+            }
+            lambda *= 4.0;
+            if lambda > 1e10 {
+                termination = "converged (no smaller step lowers the cost)";
+                break 'outer;
+            }
+        }
+    }
+    (cost, problem.full(&x), evaluations, termination.into())
+}
+
+/// Frame-sampled per-blow peak twist and nut advance (degrees) of a trace, blow by blow,
+/// where `at(i)` gives (twist, nut) at used frame `i`.
+fn per_blow(prep: &Prepared, at: impl Fn(usize) -> (f64, f64)) -> Vec<(f64, f64)> {
+    let fr = &prep.frames;
+    let t = |j: usize| prep.obs.t_s[fr[j]];
+    let mut out = Vec::new();
+    for (b, &tb) in prep.blows.iter().enumerate() {
+        let next = prep.blows.get(b + 1).copied().unwrap_or(f64::INFINITY);
+        let inside: Vec<usize> = (0..fr.len())
+            .filter(|&j| t(j) >= tb && t(j) < next)
+            .collect();
+        let before = (0..fr.len()).rev().find(|&j| t(j) < tb);
+        let (Some(&last), Some(before)) = (inside.last(), before) else {
+            continue;
+        };
+        let peak = inside.iter().map(|&j| at(j).0).fold(f64::MIN, f64::max);
+        out.push((peak, at(last).1 - at(before).1));
+    }
+    out
+}
+
+/// The breakaway ratio's standard uncertainty from the profiled costs on [`BREAKAWAY_GRID`]:
+/// the curvature of a parabola through the lowest point and its neighbours, or half the grid
+/// spacing when the lowest point is at an end of the grid (then the profile is one-sided).
+fn breakaway_sigma(profile: &[f64], b_hat: f64, s2: f64) -> f64 {
+    let g = &BREAKAWAY_GRID;
+    let i = (0..g.len())
+        .min_by(|&a, &b| profile[a].total_cmp(&profile[b]))
+        .unwrap_or(0);
+    let spread = g[g.len() - 1] - g[0];
+    if i == 0 || i + 1 == g.len() {
+        return (b_hat - 1.0).max(spread / 2.0);
+    }
+    let (x0, x1, x2) = (g[i - 1], g[i], g[i + 1]);
+    let (y0, y1, y2) = (profile[i - 1], profile[i], profile[i + 1]);
+    // Second divided difference = the parabola's leading coefficient a.
+    let a = ((y2 - y1) / (x2 - x1) - (y1 - y0) / (x1 - x0)) / (x2 - x0);
+    if a > 0.0 && a.is_finite() {
+        (s2 / a).sqrt().min(spread)
+    } else {
+        spread / 2.0
+    }
+}
+
+fn rms(v: impl Iterator<Item = f64>) -> f64 {
+    let (s, n) = v.fold((0.0, 0usize), |(s, n), x| (s + x * x, n + 1));
+    if n == 0 { 0.0 } else { (s / n as f64).sqrt() }
+}
+
+/// Fits the blow model to a clip.
+///
+/// # Errors
+/// [`Error::Input`] when the clip has no bar stiffness, too few blows or frames, starts wound
+/// up, shows a nut that never turned, or when the fit does not converge to finite values.
+pub fn fit(obs: &ClipObs) -> Result<ModelFit> {
+    let prep = Prepared::new(obs)?;
+    // The drive inertia sets the period and is the least well guessed value: scan it on a
+    // geometric grid (keeping the first peak, H/√(k·I), where the guess put it), then start
+    // the minimiser from the two best points of the scan and keep the better optimum.
+    let base = prep.guess();
+    let cost = |q: &[f64]| prep.residuals(q).iter().map(|r| r * r).sum::<f64>();
+    // The breakaway ratio acts through a threshold, so the scan covers it too.
+    // So does the nut's inertia, which decides how far the nut overshoots once it slips.
+    let mut starts: Vec<(f64, Vec<f64>)> = BREAKAWAY_GRID
+        .iter()
+        .flat_map(|&ratio| NUT_INERTIA_RATIO_GRID.iter().map(move |&nr| (ratio, nr)))
+        .flat_map(|(ratio, nr)| {
+            (0..13).map(move |i| {
+                let ln_s = (f64::from(i) - 6.0) / 6.0 * 4.0_f64.ln();
+                (ratio, nr, ln_s)
+            })
+        })
+        .map(|(ratio, nr, ln_s)| {
+            let mut q0 = base.clone();
+            q0[0] += ln_s;
+            q0[1] += 0.5 * ln_s;
+            q0[BREAKAWAY] = (ratio - 1.0).ln();
+            q0[NUT_RATIO] = nr.ln();
+            (cost(&q0), q0)
+        })
+        .filter(|(c, _)| c.is_finite())
+        .collect();
+    starts.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut best: Option<(f64, Vec<f64>, usize, String)> = None;
+    let mut evaluations = 0;
+    for (_, q0) in starts.into_iter().take(LM_STARTS) {
+        let got = minimise(&prep, &q0, q0[BREAKAWAY]);
+        evaluations += got.2;
+        if got.0.is_finite() && best.as_ref().is_none_or(|b| got.0 < b.0) {
+            best = Some(got);
+        }
+    }
+    let Some(mut best) = best else {
+        return Err(Error::Input {
+            path: "report.json".into(),
+            reason: "the blow model's fit found no finite optimum for this clip; the trace \
+                     may not show a tool hammering a nut"
+                .into(),
+        });
+    };
+    // Profile the breakaway ratio: minimise the rest at each grid value, each started from
+    // the optimum so far, and keep the best.
+    let mut profile = Vec::with_capacity(BREAKAWAY_GRID.len());
+    let from = best.1.clone();
+    for &ratio in &BREAKAWAY_GRID {
+        let got = minimise(&prep, &from, (ratio - 1.0).ln());
+        evaluations += got.2;
+        profile.push(got.0);
+        if got.0.is_finite() && got.0 < best.0 {
+            best = got;
+        }
+    }
+    let (_, q, _, termination) = best;
+    let problem = Problem {
+        prep: &prep,
+        breakaway_q: q[BREAKAWAY],
+    };
+    let mut free = q.clone();
+    free.remove(BREAKAWAY);
+    let jac = problem.jacobian_at(&free);
+    let r = prep.residuals(&q);
+    let dof = (r.len().saturating_sub(N_PARAMS)).max(1) as f64;
+    let s2 = r.iter().map(|x| x * x).sum::<f64>() / dof;
+    let jtj = jac.transpose() * &jac;
+    let cov_free = jtj
+        .clone()
+        .try_inverse()
+        .or_else(|| jtj.pseudo_inverse(1e-12).ok())
+        .map(|c| c * s2)
+        .filter(|c| c.iter().all(|v| v.is_finite()))
+        .ok_or_else(|| Error::Input {
+            path: "report.json".into(),
+            reason: "the blow model's parameters are not determined by this clip (singular \
+                     fit); film more blows, with the nut still turning"
+                .into(),
+        })?;
+    // The breakaway ratio's uncertainty from the profile's curvature: a parabola through the
+    // best grid point and its neighbours, cost(b) ≈ c₀ + a·(b − b₀)², gives σ_b² = s²/a
+    // (a change of one in χ²; the profile-likelihood interval, e.g. Press et al., §15.6).
+    let b_hat = 1.0 + q[BREAKAWAY].exp();
+    let sigma_b = breakaway_sigma(&profile, b_hat, s2);
+    let mut cov = DMatrix::zeros(N_PARAMS, N_PARAMS);
+    let idx = |c: usize| if c < BREAKAWAY { c } else { c + 1 };
+    for r in 0..N_PARAMS - 1 {
+        for c in 0..N_PARAMS - 1 {
+            cov[(idx(r), idx(c))] = cov_free[(r, c)];
+        }
+    }
+    cov[(BREAKAWAY, BREAKAWAY)] = (sigma_b / (b_hat - 1.0)).powi(2);
+    let p = physical(&q);
+    let sd = |c: usize| cov[(c, c)].max(0.0).sqrt();
+    let logv = |v: f64, c: usize| Estimate {
+        value: v,
+        sigma: v * sd(c),
+    };
+    let lead_span = prep.lead_range.1 - prep.lead_range.0;
+    let parameters = FittedParameters {
+        drive_inertia_kg_m2: logv(p.drive_inertia, 0),
+        blow_momentum_nms: logv(p.momentum, 1),
+        forward_damping_nms_per_rad: logv(p.forward_damping, 2),
+        back_damping_nms_per_rad: logv(p.back_damping, 3),
+        joint_start_torque_nm: logv(p.joint_start, 4),
+        joint_rate_nm_per_rad: logv(p.joint_rate, 5),
+        breakaway_ratio: Estimate {
+            value: p.breakaway,
+            sigma: sigma_b,
+        },
+        onset_lead_s: Estimate {
+            value: prep.lead(&p),
+            sigma: lead_span * p.lead_frac * (1.0 - p.lead_frac) * sd(7),
+        },
+        nut_to_drive_inertia_ratio: logv(p.nut_ratio, NUT_RATIO),
+    };
+    let sim = prep.simulate(&q);
+    let fr = &prep.frames;
+    let model_blows = per_blow(&prep, |j| (sim.twist_deg[j], sim.nut_deg[j]));
+    let meas_blows = per_blow(&prep, |j| {
+        (
+            prep.measured_twist(fr[j]),
+            obs.nut_deg[fr[j]].unwrap_or(0.0),
+        )
+    });
+    let pairs = || model_blows.iter().zip(&meas_blows);
+    let quality = FitQuality {
+        rms_twist_deg: rms((0..fr.len()).map(|j| sim.twist_deg[j] - prep.measured_twist(fr[j]))),
+        rms_nut_deg: rms((0..fr.len()).map(|j| sim.nut_deg[j] - obs.nut_deg[fr[j]].unwrap_or(0.0))),
+        rms_peak_twist_deg: rms(pairs().map(|(m, o)| m.0 - o.0)),
+        max_peak_twist_rel_error: pairs()
+            .filter(|(_, o)| o.0 > 0.0)
+            .map(|(m, o)| (m.0 / o.0 - 1.0).abs())
+            .fold(0.0, f64::max),
+        rms_nut_advance_deg: rms(pairs().map(|(m, o)| m.1 - o.1)),
+        frames_used: fr.len(),
+        evaluations,
+        termination,
+    };
+    let mut intervals: Vec<f64> = prep.blows.windows(2).map(|w| w[1] - w[0]).collect();
+    intervals.sort_by(f64::total_cmp);
+    let clip = ClipEnvelope {
+        capture_fps_hz: obs.fps,
+        blow_count: prep.blows.len(),
+        blow_rate_per_min: 60.0 / intervals[intervals.len() / 2],
+        bar_stiffness_nm_per_rad: obs.stiffness_nm_per_rad,
+        nut_total_deg: sim.nut_deg.last().copied().unwrap_or(0.0),
+        peak_torque_max_nm: sim.peak_nm.iter().copied().fold(0.0, f64::max),
+    };
+    Ok(ModelFit {
+        method: "weighted least squares on every frame's twist and nut angle, minimised with \
+                 the Levenberg-Marquardt method (Levenberg 1944; Marquardt 1963); uncertainties \
+                 from the Jacobian at the optimum, s2*(JtJ)^-1"
+            .into(),
+        parameters,
+        fixed: FixedAssumptions {
+            bar_damping_ratio: BAR_DAMPING_RATIO,
+            pulse_to_half_period_ratio: PULSE_TO_HALF_PERIOD,
+        },
+        quality,
+        clip,
+        internal: q,
+        internal_covariance: (0..N_PARAMS)
+            .map(|r| (0..N_PARAMS).map(|c| cov[(r, c)]).collect())
+            .collect(),
+    })
+}
+
+impl ClipObs {
+    /// What the fit needs from a `report.json`.
+    pub fn from_report(r: &crate::report::Report) -> ClipObs {
+        let s = &r.summary;
+        ClipObs {
+            fps: r.fps,
+            t_s: r.trace.t_s.clone(),
+            drive_deg: r.trace.drive_deg.clone(),
+            nut_deg: r.trace.nut_deg.clone(),
+            twist_offset_deg: s.twist_zero.offset_deg,
+            blow_t_s: r.blows.iter().map(|b| b.t_s).collect(),
+            impact_t_s: r.blows.iter().map(|b| b.onset_subframe_t_s).collect(),
+            stiffness_nm_per_rad: s
+                .bar_stiffness_nm_per_rad
+                .or(s.bar_stiffness_nm_per_deg.map(f64::to_degrees))
+                .unwrap_or(f64::NAN),
+            noise_deg: s
+                .drive_noise_deg
+                .unwrap_or(0.0)
+                .hypot(s.nut_noise_deg.unwrap_or(0.0)),
+        }
+    }
+}
+
+#[cfg(test)]
+#[path = "fit_tests.rs"]
+mod tests;
