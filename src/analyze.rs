@@ -168,6 +168,7 @@ pub fn analyze_source(
         progress,
     )?;
 
+    let readout_rows = tracker.readout_rows();
     let (mut trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
     // A mark lost in most frames cannot be measured: refuse, and write no torque.
@@ -177,6 +178,17 @@ pub fn analyze_source(
     let flags = detector.finish();
     if flags.synthetic.len() == trace.len() {
         trace.synthetic = flags.synthetic;
+    }
+    // A rolling shutter's readout: every angle moved to its frame's mid-readout time, once
+    // the frames' times and the made frames are known (`track::rolling`).
+    match rig.rolling_shutter_s() {
+        Some(readout_s) => crate::track::rolling::correct(&mut trace, &readout_rows, readout_s),
+        None => warnings.extend(crate::track::rolling::unknown_readout_warning(
+            &trace,
+            rig,
+            clip.height,
+            fps_source == FpsSource::Container,
+        )),
     }
     let (timing, synthetic_warning) = crate::timing::summary(
         timing_source,

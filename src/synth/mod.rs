@@ -28,6 +28,7 @@ mod look;
 mod model;
 pub mod phone;
 pub mod random;
+pub mod rolling;
 mod scene;
 pub mod side;
 pub mod side_random;
@@ -341,6 +342,7 @@ impl Scenario {
                 drive_back_damping_nms_per_rad: Some(self.tool.back_damping_nms_per_rad),
                 ..self.bar.clone()
             }),
+            camera: None,
         }
     }
 

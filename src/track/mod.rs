@@ -37,6 +37,7 @@ mod gather;
 mod polar;
 mod radial;
 mod refine;
+pub mod rolling;
 mod selfcheck;
 mod shake;
 mod side;
@@ -127,6 +128,9 @@ struct MarkTrack {
     confidence: Vec<f32>,
     /// Per frame: the stripe line's direction less the frame's angle, rad (`refine.rs`).
     dir_offset: Vec<Option<f64>>,
+    /// Per frame: where the measured stripe was read in the frame's readout, as a fraction of
+    /// a rolling shutter's readout time from the middle row (`rolling.rs`); None where lost.
+    row: Vec<Option<f64>>,
     /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
     side: Option<side::SideTracker>,
     /// The colour projection this mark is tracked on, when colour separates its paint from
@@ -137,9 +141,13 @@ struct MarkTrack {
 impl MarkTrack {
     /// Makes the last frame's measurement null (the camera's motion there is unknown).
     fn void_last(&mut self) {
-        for a in [self.angle.last_mut(), self.dir_offset.last_mut()]
-            .into_iter()
-            .flatten()
+        for a in [
+            self.angle.last_mut(),
+            self.dir_offset.last_mut(),
+            self.row.last_mut(),
+        ]
+        .into_iter()
+        .flatten()
         {
             *a = None;
         }
@@ -192,6 +200,7 @@ impl Tracker {
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
+                    row: Vec::new(),
                     side: None,
                     colour: None,
                 }),
@@ -202,6 +211,7 @@ impl Tracker {
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
+                    row: Vec::new(),
                     side: Some(side::SideTracker::new(m, width, height).map_err(|reason| {
                         Error::Mark {
                             mark: role.name().into(),
@@ -304,6 +314,7 @@ impl Tracker {
                     t.angle.push(None);
                     t.confidence.push(0.0);
                     t.dir_offset.push(None);
+                    t.row.push(None);
                 }
             }
             return Ok(());
@@ -372,6 +383,22 @@ impl Tracker {
         drive_done?;
         nut_done?;
         Ok(())
+    }
+
+    /// Where each frame's drive and nut stripes were read in a rolling shutter's readout
+    /// (for [`rolling::correct`], once the frames' times are known).
+    pub fn readout_rows(&self) -> rolling::ReadoutRows {
+        let rows = |t: &MarkTrack| {
+            if t.side.is_some() {
+                vec![None; self.frames.len()]
+            } else {
+                t.row.clone()
+            }
+        };
+        rolling::ReadoutRows {
+            drive: rows(&self.drive),
+            nut: rows(&self.nut),
+        }
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
@@ -582,6 +609,15 @@ fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> R
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
     t.dir_offset.push(m.and_then(|m| {
         refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)
+    }));
+    t.row.push(m.and_then(|m| {
+        rolling::readout_row(
+            t.radial.grid(),
+            m.angle,
+            t.radial.rings(),
+            shift,
+            frame.height,
+        )
     }));
     Ok(m.map(|m| m.angle))
 }
