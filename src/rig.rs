@@ -543,6 +543,24 @@ mod tests {
     }
 
     #[test]
+    fn the_cameras_readout_time_is_read_and_checked() {
+        let with = |camera: &str| GOOD.replace("\"capture_fps_hz\": 2000,", camera);
+        let rig = parse(&with(r#""camera": {"rolling_shutter_ms": 10},"#)).unwrap();
+        assert_eq!(rig.rolling_shutter_s(), Some(0.010));
+        assert_eq!(parse(&rig.to_json_pretty()).unwrap(), rig);
+        let global = parse(&with(r#""camera": {"rolling_shutter_ms": 0},"#)).unwrap();
+        assert_eq!(global.rolling_shutter_s(), None);
+        for bad in ["-1", "5000"] {
+            let m = msg(&with(&format!(
+                r#""camera": {{"rolling_shutter_ms": {bad}}},"#
+            )));
+            assert!(m.contains("camera.rolling_shutter_ms"), "{m}");
+        }
+        let m = msg(&with(r#""camera": {"readout_ms": 10},"#));
+        assert!(m.contains("readout_ms"), "{m}");
+    }
+
+    #[test]
     fn unknown_field_is_named() {
         let m = msg(&GOOD.replace(
             "\"tighten\": \"cw\"},\n        \"nut\"",

@@ -128,9 +128,11 @@ struct MarkTrack {
     confidence: Vec<f32>,
     /// Per frame: the stripe line's direction less the frame's angle, rad (`refine.rs`).
     dir_offset: Vec<Option<f64>>,
-    /// Per frame: where the measured stripe was read in the frame's readout, as a fraction of
-    /// a rolling shutter's readout time from the middle row (`rolling.rs`); None where lost.
-    row: Vec<Option<f64>>,
+    /// Per frame: where the measured stripe was read in a rolling shutter's readout, and its
+    /// shear across the rings (`rolling.rs`); None where lost.
+    row: Vec<Option<rolling::Readout>>,
+    /// Per ring: its angle relative to the measurement in the first frame (NaN where unused).
+    ring_ref: Vec<f64>,
     /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
     side: Option<side::SideTracker>,
     /// The colour projection this mark is tracked on, when colour separates its paint from
@@ -141,13 +143,12 @@ struct MarkTrack {
 impl MarkTrack {
     /// Makes the last frame's measurement null (the camera's motion there is unknown).
     fn void_last(&mut self) {
-        for a in [
-            self.angle.last_mut(),
-            self.dir_offset.last_mut(),
-            self.row.last_mut(),
-        ]
-        .into_iter()
-        .flatten()
+        if let Some(r) = self.row.last_mut() {
+            *r = None;
+        }
+        for a in [self.angle.last_mut(), self.dir_offset.last_mut()]
+            .into_iter()
+            .flatten()
         {
             *a = None;
         }
@@ -201,6 +202,7 @@ impl Tracker {
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
                     row: Vec::new(),
+                    ring_ref: Vec::new(),
                     side: None,
                     colour: None,
                 }),
@@ -212,6 +214,7 @@ impl Tracker {
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
                     row: Vec::new(),
+                    ring_ref: Vec::new(),
                     side: Some(side::SideTracker::new(m, width, height).map_err(|reason| {
                         Error::Mark {
                             mark: role.name().into(),
@@ -392,7 +395,8 @@ impl Tracker {
             if t.side.is_some() {
                 vec![None; self.frames.len()]
             } else {
-                t.row.clone()
+                // In the trace's sense: tightening positive.
+                t.row.iter().map(|r| r.map(|r| r.signed(t.sign))).collect()
             }
         };
         rolling::ReadoutRows {
@@ -610,11 +614,21 @@ fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> R
     t.dir_offset.push(m.and_then(|m| {
         refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)
     }));
+    if first {
+        // Each ring's reading at rest in the first frame: later shears are measured from it.
+        t.ring_ref = t
+            .radial
+            .rings()
+            .iter()
+            .map(|&(rel, w)| if w > 0.0 { f64::from(rel) } else { f64::NAN })
+            .collect();
+    }
     t.row.push(m.and_then(|m| {
         rolling::readout_row(
             t.radial.grid(),
             m.angle,
             t.radial.rings(),
+            &t.ring_ref,
             shift,
             frame.height,
         )

@@ -3,28 +3,26 @@
 //! A rolling-shutter sensor reads row y of a frame at `t_frame + ρ(y)·T`, with
 //! `ρ(y) = (y + 0.5)/height − 0.5` (−½ at the picture's top edge, +½ at its bottom edge; pixel
 //! centres at integer y, docs/conventions.md) and T the readout time (rig
-//! `camera.rolling_shutter_ms`). A turning stripe is therefore seen where it was at the time
-//! its rows were read, not at `t_frame`. Method:
+//! `camera.rolling_shutter_ms`). A stripe turning at ω is seen on each ring where it was when
+//! that ring's crossing row was read: ring k reads `θ_mid + ω·T·ρ_k`, so the stripe shears.
+//! Method, per frame:
 //!
-//! 1. Per frame, the tracker's ring centres are combined with the weights it gave them; the
-//!    stripe's readout offset `ρ` is the weighted mean of the rows where the rings saw it
-//!    ([`readout_row`]). The robust fit's angle is the stripe's angle at that instant: the
-//!    rings' angles change linearly with their rows' times (the stripe shears), and a weighted
-//!    mean of them is the angle at the weighted mean time.
-//! 2. Each measured frame is then a sample of the mark's angle θ(t) at its own instant
-//!    `τ_i = t_i + ρ_i·T`. Those samples (captured frames only, in time order) are joined by
-//!    the shape-preserving piecewise cubic Hermite interpolant of Fritsch & Carlson
-//!    ("Monotone piecewise cubic interpolation", SIAM J. Numer. Anal. 17(2), 238–246, 1980),
-//!    with the derivatives of Fritsch & Butland ("A method for constructing local monotone
-//!    piecewise cubic interpolants", SIAM J. Sci. Stat. Comput. 5(2), 300–304, 1984): it
-//!    neither overshoots a blow's sudden rise nor rings on the rest before it.
-//! 3. Each frame's angle becomes its measurement moved by the interpolant's change from `τ_i`
-//!    to `t_i`: `θ_i − (P(τ_i) − P(t_i))`, which is `P(t_i)` for a captured frame. Angles stay
-//!    relative to the first analysed frame.
+//! 1. From the tracker's rings (each ring's angle less its own angle in the first frame, at
+//!    rest, with the weights the robust fit gave it) and the row where each ring saw the
+//!    stripe: the weighted mean readout offset ρ̄ (the robust fit's angle is the stripe's
+//!    angle at ρ̄), and the weighted least-squares slope `b_s` of ring angle on ρ, which
+//!    measures ω·T inside the frame, with its variance from the fit's residuals
+//!    ([`readout_row`]). A stripe lying along the rows gives no lever, and a large variance.
+//! 2. From the neighbouring frames, ω·T again: `b_n`, the mean of the backward and forward
+//!    differences of the measured angles over their read instants, with a variance of the two
+//!    differences' disagreement (which is large at a blow's sudden rise, small in smooth
+//!    motion) plus the angles' own noise.
+//! 3. The two are combined with inverse-variance weights (the minimum-variance unbiased
+//!    combination of two independent estimates), and the frame's angle at mid-readout is
+//!    `θ(ρ̄) − b·ρ̄`. Angles stay relative to the first analysed frame.
 //!
-//! What limits it: between captured frames the interpolant can only guess; a blow that rises
-//! within one frame interval is sampled at the rows' instants, not in between, so the
-//! correction there is as good as the capture rate allows (docs/accuracy.md gives figures).
+//! Frames flagged synthetic are corrected by their own shear but never serve as neighbours.
+//! Side-view marks are not corrected. Accuracy on rendered clips: docs/accuracy.md.
 
 use crate::rig::{Mark, Rig};
 use crate::track::polar::PolarGrid;
@@ -32,29 +30,60 @@ use crate::track::{Trace, unwrap::wrap_pi};
 use crate::units::Angle;
 use crate::warning::Warning;
 
-/// Per frame, each mark's readout offset ρ (a fraction of the readout time from the frame's
-/// middle row; None where the mark was lost or is a side-view mark).
+/// A frame's angle noise assumed for the neighbours' estimate, rad (the tracker's per-frame
+/// accuracy target on compressed clips, 0.2°, docs/accuracy.md).
+const ANGLE_NOISE_RAD: f64 = 0.2 * std::f64::consts::PI / 180.0;
+
+/// Factor on the variance of the rings' shear slope for the rings' errors being correlated
+/// (neighbouring rings are 1 px apart; a bilinear tap spans 2 px, and the centroid windows of
+/// neighbouring rings overlap on the same pixels).
+const RING_CORRELATION: f64 = 4.0;
+
+/// Where one measurement was read in a rolling shutter's readout.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Readout {
+    /// Weighted mean readout offset ρ̄ of the rows where the rings saw the stripe.
+    pub rho: f64,
+    /// The slope of the rings' angles on ρ, rad per unit of ρ (ω·T), and its variance; None
+    /// when the rings give no lever.
+    pub shear: Option<(f64, f64)>,
+}
+
+impl Readout {
+    /// The same in the trace's sense (angles × `sign`).
+    pub(crate) fn signed(self, sign: f64) -> Readout {
+        Readout {
+            rho: self.rho,
+            shear: self.shear.map(|(b, v)| (sign * b, v)),
+        }
+    }
+}
+
+/// Per frame, each mark's [`Readout`] (None where the mark was lost or is a side-view mark),
+/// with shears in the trace's sense (tightening positive).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReadoutRows {
     /// The drive mark's.
-    pub drive: Vec<Option<f64>>,
+    pub drive: Vec<Option<Readout>>,
     /// The nut mark's.
-    pub nut: Vec<Option<f64>>,
+    pub nut: Vec<Option<Readout>>,
 }
 
-/// Where the stripe measured at grid angle `angle` (rad) was read: the weighted mean, over the
-/// rings the measurement used (`rings`: each ring's angle relative to `angle` and its weight),
-/// of the readout offset ρ of the row where that ring saw the stripe, the grid moved by
-/// `shift` in a frame `height` rows high. None when no ring has weight.
+/// Where the stripe measured at grid angle `angle` (rad) was read (the module's step 1): from
+/// the rings the measurement used (`rings`: each ring's angle relative to `angle` and its
+/// weight; `reference`: the same angles in the first frame, at rest, NaN for a ring unused
+/// there), the grid moved by `shift`
+/// in a frame `height` rows high. None when no ring has weight.
 pub(crate) fn readout_row(
     grid: &PolarGrid,
     angle: f64,
     rings: &[(f32, f32)],
+    reference: &[f64],
     shift: [f64; 2],
     height: u32,
-) -> Option<f64> {
+) -> Option<Readout> {
     let (pivot, map, _) = grid.geometry();
-    let (mut sw, mut swy) = (0.0, 0.0);
+    let mut pts: Vec<(f64, f64, f64)> = Vec::with_capacity(rings.len());
     for (k, &(rel, w)) in rings.iter().enumerate() {
         if w <= 0.0 {
             continue;
@@ -63,15 +92,46 @@ pub(crate) fn readout_row(
         let r = grid.radius[k];
         let (u, v) = (r * a.cos(), r * a.sin());
         let y = pivot[1] + shift[1] + map[1][0] * u + map[1][1] * v;
-        sw += f64::from(w);
-        swy += f64::from(w) * y;
+        let rho = (y + 0.5) / f64::from(height) - 0.5;
+        // Each ring's own departure from its reading at rest: the ring's offset, and what
+        // the stripe's edges and the pixel grid do to that ring, cancel.
+        let e = f64::from(rel) - reference.get(k).copied().unwrap_or(f64::NAN);
+        if !e.is_finite() {
+            continue;
+        }
+        pts.push((rho, e, f64::from(w)));
     }
-    (sw > 0.0).then(|| (swy / sw + 0.5) / f64::from(height) - 0.5)
+    let sw: f64 = pts.iter().map(|p| p.2).sum();
+    if sw <= 0.0 {
+        return None;
+    }
+    let rho = pts.iter().map(|p| p.2 * p.0).sum::<f64>() / sw;
+    let e_bar = pts.iter().map(|p| p.2 * p.1).sum::<f64>() / sw;
+    let s_rr: f64 = pts.iter().map(|p| p.2 * (p.0 - rho).powi(2)).sum();
+    let s_re: f64 = pts.iter().map(|p| p.2 * (p.0 - rho) * (p.1 - e_bar)).sum();
+    let n = pts.len();
+    let shear = (n >= 4 && s_rr > 1e-12 * sw)
+        .then(|| {
+            let b = s_re / s_rr;
+            // Weights as inverse variances up to one scale, estimated from the residuals.
+            let scale = pts
+                .iter()
+                .map(|p| p.2 * (p.1 - e_bar - b * (p.0 - rho)).powi(2))
+                .sum::<f64>()
+                / (n - 2) as f64;
+            // Neighbouring rings are 1 px apart and share pixels through the bilinear taps and
+            // the centroid windows, so their errors are not independent: the variance is
+            // inflated by RING_CORRELATION. A slope not significant at 3 standard deviations
+            // is no measurement of the shear (a stripe lying along the rows has no lever).
+            let v = RING_CORRELATION * scale / s_rr;
+            (b, v)
+        })
+        .filter(|&(b, v)| b * b > 9.0 * v);
+    Some(Readout { rho, shear })
 }
 
 /// Moves every radial mark's angle to its frame's mid-readout time (the module's method),
-/// for a readout of `readout_s` seconds. Frames flagged synthetic are moved too but never
-/// serve as samples. Does nothing with a zero readout.
+/// for a readout of `readout_s` seconds. Does nothing with a zero readout.
 pub fn correct(trace: &mut Trace, rows: &ReadoutRows, readout_s: f64) {
     if readout_s <= 0.0 || !readout_s.is_finite() {
         return;
@@ -88,124 +148,72 @@ pub fn correct(trace: &mut Trace, rows: &ReadoutRows, readout_s: f64) {
 
 fn correct_series(
     series: &mut [Option<Angle>],
-    row: &[Option<f64>],
+    row: &[Option<Readout>],
     times: &[f64],
     synthetic: &[bool],
     readout_s: f64,
 ) {
-    let mut knots: Vec<(f64, f64)> = series
-        .iter()
-        .zip(row)
-        .zip(times)
-        .zip(synthetic)
-        .filter_map(|(((a, r), &t), &s)| match (a, r) {
-            (Some(a), Some(r)) if !s => Some((t + r * readout_s, a.rad())),
-            _ => None,
-        })
+    // Each captured, measured frame: its read instant and angle.
+    let knots: Vec<(usize, f64, f64)> = (0..series.len())
+        .filter(|&i| !synthetic[i])
+        .filter_map(|i| Some((i, times[i] + row[i]?.rho * readout_s, series[i]?.rad())))
         .collect();
-    knots.sort_by(|a, b| a.0.total_cmp(&b.0));
-    // Two samples read at the same instant (to a nanosecond) become their mean.
-    let mut merged: Vec<(f64, f64, u32)> = Vec::with_capacity(knots.len());
-    for (t, a) in knots {
-        match merged.last_mut() {
-            Some(m) if t - m.0 < 1e-9 => {
-                m.1 += a;
-                m.2 += 1;
+    let noise = 2.0 * ANGLE_NOISE_RAD * ANGLE_NOISE_RAD;
+    let mut out: Vec<Option<Angle>> = series.to_vec();
+    for (i, slot) in out.iter_mut().enumerate() {
+        let (Some(a), Some(r)) = (series[i], row[i]) else {
+            continue;
+        };
+        let tau = times[i] + r.rho * readout_s;
+        // The neighbours' ω·T: captured frames either side (the frame itself when captured).
+        let at = knots.partition_point(|k| k.0 < i);
+        let here = knots.get(at).filter(|k| k.0 == i).copied();
+        let prev = at.checked_sub(1).and_then(|j| knots.get(j)).copied();
+        let next = knots.get(at + usize::from(here.is_some())).copied();
+        let me = here.unwrap_or((i, tau, a.rad()));
+        let slope = |p: (usize, f64, f64), q: (usize, f64, f64)| {
+            let dt = q.1 - p.1;
+            (dt > 0.0).then(|| {
+                (
+                    (q.2 - p.2) / dt * readout_s,
+                    readout_s * readout_s / (dt * dt),
+                )
+            })
+        };
+        let back = prev.and_then(|p| slope(p, me));
+        let fwd = next.and_then(|q| slope(me, q));
+        let neighbours = match (back, fwd) {
+            (Some((b1, s1)), Some((b2, s2))) => Some((
+                0.5 * (b1 + b2),
+                0.25 * (b1 - b2).powi(2) + noise * 0.5 * (s1 + s2),
+            )),
+            (Some((b, s)), None) | (None, Some((b, s))) => Some((b, b * b + noise * s)),
+            (None, None) => None,
+        };
+        let b = match (r.shear, neighbours) {
+            (Some((bs, vs)), Some((bn, vn))) => {
+                if vs <= 0.0 {
+                    bs
+                } else if vn <= 0.0 {
+                    bn
+                } else {
+                    (bs / vs + bn / vn) / (1.0 / vs + 1.0 / vn)
+                }
             }
-            _ => merged.push((t, a, 1)),
-        }
-    }
-    let (xs, ys): (Vec<f64>, Vec<f64>) = merged
-        .iter()
-        .map(|&(t, a, n)| (t, a / f64::from(n)))
-        .unzip();
-    let Some(p) = Pchip::new(xs, ys) else {
-        return;
-    };
-    for ((a, r), &t) in series.iter_mut().zip(row).zip(times) {
-        if let (Some(v), Some(r)) = (a.as_mut(), r) {
-            let tau = t + r * readout_s;
-            *v = Angle::from_rad(v.rad() - (p.eval(tau) - p.eval(t)));
-        }
+            (Some((bs, _)), None) => bs,
+            (None, Some((bn, _))) => bn,
+            (None, None) => 0.0,
+        };
+        *slot = Some(Angle::from_rad(a.rad() - b * r.rho));
     }
     // Still relative to the first analysed frame.
-    if let Some(Some(z)) = series.first().copied() {
+    if let Some(Some(z)) = out.first().copied() {
         let z = z.rad();
-        for v in series.iter_mut().flatten() {
+        for v in out.iter_mut().flatten() {
             *v = Angle::from_rad(v.rad() - z);
         }
     }
-}
-
-/// The shape-preserving piecewise cubic Hermite interpolant (the module's step 2), extended
-/// beyond its ends along its end tangents.
-struct Pchip {
-    x: Vec<f64>,
-    y: Vec<f64>,
-    d: Vec<f64>,
-}
-
-impl Pchip {
-    /// None with fewer than two points; `x` strictly increasing.
-    fn new(x: Vec<f64>, y: Vec<f64>) -> Option<Pchip> {
-        let n = x.len();
-        if n < 2 {
-            return None;
-        }
-        let h: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).collect();
-        let del: Vec<f64> = (0..n - 1).map(|k| (y[k + 1] - y[k]) / h[k]).collect();
-        let mut d = vec![0.0; n];
-        if n == 2 {
-            d.fill(del[0]);
-            return Some(Pchip { x, y, d });
-        }
-        for k in 1..n - 1 {
-            let (a, b) = (del[k - 1], del[k]);
-            if a * b > 0.0 {
-                // Weighted harmonic mean (Fritsch & Butland 1984).
-                let w1 = 2.0 * h[k] + h[k - 1];
-                let w2 = h[k] + 2.0 * h[k - 1];
-                d[k] = (w1 + w2) / (w1 / a + w2 / b);
-            }
-        }
-        d[0] = end_slope(h[0], h[1], del[0], del[1]);
-        d[n - 1] = end_slope(h[n - 2], h[n - 3], del[n - 2], del[n - 3]);
-        Some(Pchip { x, y, d })
-    }
-
-    fn eval(&self, t: f64) -> f64 {
-        let n = self.x.len();
-        if t <= self.x[0] {
-            return self.y[0] + self.d[0] * (t - self.x[0]);
-        }
-        if t >= self.x[n - 1] {
-            return self.y[n - 1] + self.d[n - 1] * (t - self.x[n - 1]);
-        }
-        let k = self.x.partition_point(|&v| v <= t) - 1;
-        let h = self.x[k + 1] - self.x[k];
-        let s = (t - self.x[k]) / h;
-        // Cubic Hermite basis.
-        let (s2, s3) = (s * s, s * s * s);
-        let h00 = 2.0 * s3 - 3.0 * s2 + 1.0;
-        let h10 = s3 - 2.0 * s2 + s;
-        let h01 = -2.0 * s3 + 3.0 * s2;
-        let h11 = s3 - s2;
-        h00 * self.y[k] + h10 * h * self.d[k] + h01 * self.y[k + 1] + h11 * h * self.d[k + 1]
-    }
-}
-
-/// The end derivative: the three-point one-sided estimate, kept to the shape of the data
-/// (zero when it turns against the end interval's slope, at most three times that slope when
-/// the data turn there), as in Fritsch & Carlson's end conditions.
-fn end_slope(h0: f64, h1: f64, del0: f64, del1: f64) -> f64 {
-    let d = ((2.0 * h0 + h1) * del0 - h0 * del1) / (h0 + h1);
-    if d * del0 <= 0.0 {
-        0.0
-    } else if del0 * del1 <= 0.0 && d.abs() > (3.0 * del0).abs() {
-        3.0 * del0
-    } else {
-        d
-    }
+    series.copy_from_slice(&out);
 }
 
 /// The skew a rolling shutter may put on an angle before the rig must give its readout time:
@@ -286,40 +294,42 @@ pub fn fastest_rate(trace: &Trace) -> Option<(f64, f64)> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use proptest::prelude::*;
 
+    /// A stripe turning at a steady rate: the neighbours' estimate alone moves each frame's
+    /// angle by ω·T·ρ̄, exactly.
     #[test]
-    fn the_interpolant_passes_its_points_and_is_exact_on_lines() {
-        let x: Vec<f64> = vec![0.0, 0.7, 1.0, 2.5, 3.0];
-        let y: Vec<f64> = x.iter().map(|v| 2.0 * v - 1.0).collect();
-        let p = Pchip::new(x.clone(), y.clone()).unwrap();
-        for (a, b) in x.iter().zip(&y) {
-            assert!((p.eval(*a) - b).abs() < 1e-12);
-        }
-        for t in [-0.5, 0.3, 1.7, 2.9, 3.4] {
-            assert!((p.eval(t) - (2.0 * t - 1.0)).abs() < 1e-12, "{t}");
+    fn steady_turning_is_moved_to_mid_readout() {
+        let (t_r, w, rho) = (0.01, 2.0, 0.3);
+        let times: Vec<f64> = (0..6).map(|i| f64::from(i) * 0.004).collect();
+        // Seen at t + ρ·T.
+        let mut series: Vec<Option<Angle>> = times
+            .iter()
+            .map(|t| Some(Angle::from_rad(w * (t + rho * t_r))))
+            .collect();
+        let row = vec![Some(Readout { rho, shear: None }); 6];
+        correct_series(&mut series, &row, &times, &[false; 6], t_r);
+        for (t, a) in times.iter().zip(&series) {
+            assert!((a.unwrap().rad() - w * t).abs() < 1e-12, "{t}");
         }
     }
 
-    proptest! {
-        /// Monotone data give a monotone interpolant (no overshoot at a step).
-        #[test]
-        fn monotone_data_stay_monotone(steps in prop::collection::vec((0.1f64..2.0, 0.0f64..5.0), 3..12)) {
-            let mut x = vec![0.0];
-            let mut y = vec![0.0];
-            for (dx, dy) in &steps {
-                x.push(x.last().unwrap() + dx);
-                y.push(y.last().unwrap() + dy);
-            }
-            let p = Pchip::new(x.clone(), y.clone()).unwrap();
-            let (lo, hi) = (x[0], *x.last().unwrap());
-            let mut prev = p.eval(lo);
-            for i in 1..=400 {
-                let v = p.eval(lo + (hi - lo) * f64::from(i) / 400.0);
-                prop_assert!(v >= prev - 1e-9, "{} < {}", v, prev);
-                prop_assert!(v <= *y.last().unwrap() + 1e-9);
-                prev = v;
-            }
-        }
+    /// At rest next to a sudden step the neighbours disagree, and the frame's own shear
+    /// (none) decides: the resting frame is not moved.
+    #[test]
+    fn a_resting_frame_beside_a_step_keeps_its_angle() {
+        let times: Vec<f64> = (0..4).map(|i| f64::from(i) * 0.016).collect();
+        let mut series: Vec<Option<Angle>> = [0.0, 0.0, 0.5, 0.5]
+            .iter()
+            .map(|&a| Some(Angle::from_rad(a)))
+            .collect();
+        let row = vec![
+            Some(Readout {
+                rho: -0.3,
+                shear: Some((0.0, 1e-6)),
+            });
+            4
+        ];
+        correct_series(&mut series, &row, &times, &[false; 4], 0.01);
+        assert!(series[1].unwrap().rad().abs() < 1e-3, "{:?}", series[1]);
     }
 }
