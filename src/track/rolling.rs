@@ -22,7 +22,8 @@
 //!    `θ(ρ̄) − b·ρ̄`. Angles stay relative to the first analysed frame.
 //!
 //! Frames flagged synthetic are corrected by their own shear but never serve as neighbours.
-//! Side-view marks are not corrected. Accuracy on rendered clips: docs/accuracy.md.
+//! Side-view marks are not corrected. Accuracy on rendered clips (docs/accuracy.md, "Rolling
+//! shutter"): worse than no correction so far, so `analyze` does not apply it yet.
 
 use crate::rig::{Mark, Rig};
 use crate::track::polar::PolarGrid;
