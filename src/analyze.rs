@@ -137,6 +137,30 @@ pub fn analyze_source(
     opts: &AnalyzeOptions,
     progress: &(dyn Fn(u64, u64) + Sync),
 ) -> Result<Analysis> {
+    analyze_impl(source, rig, rig_path, opts, progress, false)
+}
+
+/// As [`analyze_source`], with the rolling-shutter correction of `track::rolling` applied
+/// when the rig gives a readout time: for measuring it on rendered clips only, since it does
+/// not yet beat no correction (docs/accuracy.md, "Rolling shutter").
+#[cfg(test)]
+pub(crate) fn analyze_source_rolling_corrected(
+    source: Box<dyn FrameSource>,
+    rig: &Rig,
+    rig_path: &Path,
+    opts: &AnalyzeOptions,
+) -> Result<Analysis> {
+    analyze_impl(source, rig, rig_path, opts, &|_, _| {}, true)
+}
+
+fn analyze_impl(
+    source: Box<dyn FrameSource>,
+    rig: &Rig,
+    rig_path: &Path,
+    opts: &AnalyzeOptions,
+    progress: &(dyn Fn(u64, u64) + Sync),
+    correct_rolling: bool,
+) -> Result<Analysis> {
     let clip = source.info().clone();
     let mut warnings = clip.warnings.clone();
     let (time_base, fps_source, fps_warning) = capture_rate(opts, rig, &clip)?;
@@ -168,6 +192,7 @@ pub fn analyze_source(
         progress,
     )?;
 
+    let readout_rows = tracker.readout_rows();
     let (mut trace, track_warnings) = tracker.finish(time_base);
     warnings.extend(track_warnings);
     // A mark lost in most frames cannot be measured: refuse, and write no torque.
@@ -177,6 +202,28 @@ pub fn analyze_source(
     let flags = detector.finish();
     if flags.synthetic.len() == trace.len() {
         trace.synthetic = flags.synthetic;
+    }
+    // A rolling shutter (`track::rolling`): the correction is measured but not applied yet;
+    // without a readout time, a warning when a consumer camera's clip turns fast enough for
+    // the skew to pass the tracking accuracy.
+    match rig.rolling_shutter_s() {
+        Some(readout_s) if correct_rolling => {
+            crate::track::rolling::correct(&mut trace, &readout_rows, readout_s);
+        }
+        Some(_) => warnings.push(Warning::Note(
+            "the rig's camera.rolling_shutter_ms is read, but no rolling-shutter correction is \
+             applied yet: on rendered clips the correction measured worse than none \
+             (docs/accuracy.md, \"Rolling shutter\"); each angle is the stripe's at the rows \
+             where it was read, so keep the marks near the picture's middle rows"
+                .into(),
+        )),
+        None if rig.camera.and_then(|c| c.rolling_shutter_ms).is_some() => {}
+        None => warnings.extend(crate::track::rolling::unknown_readout_warning(
+            &trace,
+            rig,
+            clip.height,
+            fps_source == FpsSource::Container,
+        )),
     }
     let (timing, synthetic_warning) = crate::timing::summary(
         timing_source,

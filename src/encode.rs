@@ -11,6 +11,7 @@
 //! |---|---|---|---|---|
 //! | [`Codec::Ffv1`] | `gray` | `yuv420p10le` | `gray12le` | `gray16le` |
 //! | [`Codec::H264`] | `yuv420p` | `yuv420p10le` | – | – |
+//! | [`Codec::Hevc`] | `yuv420p` | `yuv420p10le` | – | – |
 //! | [`Codec::Mjpeg`] | `yuvj420p` | – | – | – |
 //! | [`Codec::Mpeg4`] | `yuv420p` | – | – | – |
 //!
@@ -41,6 +42,12 @@ pub enum Codec {
         /// Constant rate factor, 0 (lossless for 8 bit) to 51; 18 looks clean, 23 is x264's default.
         crf: u8,
     },
+    /// HEVC (H.265) through libx265 (preset `ultrafast`, one thread); 10-bit input is what
+    /// phones' HDR modes write. Only where the FFmpeg build has libx265.
+    Hevc {
+        /// Constant rate factor, 0 to 51; 28 is x265's default.
+        crf: u8,
+    },
     /// Motion JPEG, every frame a JPEG.
     Mjpeg {
         /// Quantiser scale 1 (best) to 31 (worst); 2 to 5 is visually clean.
@@ -63,6 +70,8 @@ impl Codec {
             (Codec::Ffv1, 16) => Some(Pixel::GRAY16LE),
             (Codec::H264 { .. }, 8) => Some(Pixel::YUV420P),
             (Codec::H264 { .. }, 10) => Some(Pixel::YUV420P10LE),
+            (Codec::Hevc { .. }, 8) => Some(Pixel::YUV420P),
+            (Codec::Hevc { .. }, 10) => Some(Pixel::YUV420P10LE),
             (Codec::Mjpeg { .. }, 8) => Some(Pixel::YUVJ420P),
             (Codec::Mpeg4 { .. }, 8) => Some(Pixel::YUV420P),
             _ => None,
@@ -73,6 +82,7 @@ impl Codec {
         match self {
             Codec::Ffv1 => "FFV1",
             Codec::H264 { .. } => "H.264",
+            Codec::Hevc { .. } => "HEVC",
             Codec::Mjpeg { .. } => "MJPEG",
             Codec::Mpeg4 { .. } => "MPEG-4 Part 2",
         }
@@ -118,6 +128,8 @@ pub struct ClipWriter {
     height: u32,
     bit_depth: u8,
     next_pts: i64,
+    /// Frames written.
+    written: u64,
     /// Colour planes are written from each frame's chroma.
     colour: bool,
 }
@@ -158,6 +170,7 @@ impl ClipWriter {
             bit_depth,
             Layout::Planes,
             0,
+            None,
         )
     }
 
@@ -185,6 +198,7 @@ impl ClipWriter {
             8,
             Layout::Planes,
             rotation_cw_deg,
+            None,
         )
     }
 
@@ -201,14 +215,72 @@ impl ClipWriter {
         height: u32,
         fps_hz: f64,
     ) -> Result<Self> {
-        Self::create_inner(path, codec, width, height, fps_hz, 8, Layout::Colour, 0)
+        Self::create_inner(
+            path,
+            codec,
+            width,
+            height,
+            fps_hz,
+            8,
+            Layout::Colour,
+            0,
+            None,
+        )
+    }
+
+    /// A luma clip whose frames carry the presentation timestamps given to
+    /// [`write_at`](ClipWriter::write_at), in ticks of 1/`tick_hz` s (90,000 in the MPEG-4
+    /// files phones write), with `fps_hz` stated as the container's rate: a variable frame
+    /// rate clip, as phones record.
+    ///
+    /// # Errors
+    /// As [`create`](ClipWriter::create).
+    pub fn create_timed(
+        path: &Path,
+        codec: Codec,
+        width: u32,
+        height: u32,
+        fps_hz: f64,
+        tick_hz: u32,
+    ) -> Result<Self> {
+        Self::create_inner(
+            path,
+            codec,
+            width,
+            height,
+            fps_hz,
+            8,
+            Layout::Planes,
+            0,
+            Some(tick_hz),
+        )
+    }
+
+    /// Encodes one frame with presentation timestamp `pts` (in the clip's ticks; each must
+    /// exceed the last).
+    ///
+    /// # Errors
+    /// As [`write`](ClipWriter::write).
+    pub fn write_at(&mut self, frame: &Frame, pts: i64) -> Result<()> {
+        self.next_pts = pts;
+        self.write(frame)
     }
 
     /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
     /// swscale path for formats without a Y plane.
     #[cfg(test)]
     pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
-        Self::create_inner(path, Codec::Ffv1, width, height, 30.0, 8, Layout::RgbPng, 0)
+        Self::create_inner(
+            path,
+            Codec::Ffv1,
+            width,
+            height,
+            30.0,
+            8,
+            Layout::RgbPng,
+            0,
+            None,
+        )
     }
 
     #[allow(clippy::too_many_arguments)] // one private constructor behind the public ones
@@ -221,6 +293,7 @@ impl ClipWriter {
         bit_depth: u8,
         layout: Layout,
         rotation_cw_deg: u32,
+        tick_hz: Option<u32>,
     ) -> Result<Self> {
         let rgb_png = layout == Layout::RgbPng;
         let colour = layout == Layout::Colour;
@@ -286,7 +359,10 @@ impl ClipWriter {
             )));
         }
         let frame_rate = rate_rational(fps_hz);
-        let encoder_tb = Rational::new(frame_rate.denominator(), frame_rate.numerator());
+        let encoder_tb = match tick_hz {
+            Some(t) => Rational::new(1, t.clamp(1, i32::MAX as u32) as i32),
+            None => Rational::new(frame_rate.denominator(), frame_rate.numerator()),
+        };
 
         let ff_err = |what: &str, e: ff::Error| fail(format!("{what}: {e}"));
         let mut octx =
@@ -305,6 +381,7 @@ impl ClipWriter {
             _ if rgb_png => (codec::Id::PNG, None),
             Codec::Ffv1 => (codec::Id::FFV1, None),
             Codec::H264 { .. } => (codec::Id::H264, Some("libx264")),
+            Codec::Hevc { .. } => (codec::Id::HEVC, Some("libx265")),
             Codec::Mjpeg { .. } => (codec::Id::MJPEG, None),
             Codec::Mpeg4 { .. } => (codec::Id::MPEG4, None),
         };
@@ -353,6 +430,12 @@ impl ClipWriter {
             Codec::H264 { crf } => {
                 opts.set("crf", &crf.min(51).to_string());
                 opts.set("preset", "veryfast");
+            }
+            Codec::Hevc { crf } => {
+                opts.set("crf", &crf.min(51).to_string());
+                opts.set("preset", "ultrafast");
+                // x265 runs its own thread pool and logs to stderr: one thread, errors only.
+                opts.set("x265-params", "log-level=error:pools=none:frame-threads=1");
             }
             Codec::Mjpeg { quality } | Codec::Mpeg4 { quality } => {
                 flags |= codec::Flags::QSCALE;
@@ -423,6 +506,7 @@ impl ClipWriter {
             height,
             bit_depth,
             next_pts: 0,
+            written: 0,
             colour,
         })
     }
@@ -436,7 +520,7 @@ impl ClipWriter {
         if frame.width != self.width || frame.height != self.height {
             return Err(self.fail(format!(
                 "frame {} is {}x{} but the clip is {}x{}",
-                self.next_pts, frame.width, frame.height, self.width, self.height
+                self.written, frame.width, frame.height, self.width, self.height
             )));
         }
         let depth_ok = match &frame.luma {
@@ -446,7 +530,7 @@ impl ClipWriter {
         if !depth_ok {
             return Err(self.fail(format!(
                 "frame {} is {}-bit but the clip was created for {}-bit frames",
-                self.next_pts, frame.bit_depth, self.bit_depth
+                self.written, frame.bit_depth, self.bit_depth
             )));
         }
         // The encoder may still hold a reference to the previous picture's buffer.
@@ -488,9 +572,10 @@ impl ClipWriter {
         }
         self.picture.set_pts(Some(self.next_pts));
         self.next_pts += 1;
+        self.written += 1;
         self.encoder
             .send_frame(&self.picture)
-            .map_err(|e| self.fail(format!("encoder refused frame {}: {e}", self.next_pts - 1)))?;
+            .map_err(|e| self.fail(format!("encoder refused frame {}: {e}", self.written - 1)))?;
         self.drain()
     }
 
@@ -539,7 +624,7 @@ impl ClipWriter {
         self.octx
             .write_trailer()
             .map_err(|e| self.fail(format!("cannot finish the file: {e}")))?;
-        Ok(self.next_pts as u64)
+        Ok(self.written)
     }
 
     /// Moves the next frame's timestamp (in 1/fps units), so tests can make a clip with a

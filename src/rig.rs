@@ -29,7 +29,23 @@ pub struct Rig {
     /// The torsion bar; without it, torque is not computed.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub bar: Option<BarSpec>,
+    /// What the camera does to the picture that the tracker must undo (a rolling shutter).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub camera: Option<CameraSpec>,
 }
+
+/// The rig's `camera`: properties of the camera that filmed the clip.
+#[derive(Debug, Clone, Copy, PartialEq, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CameraSpec {
+    /// Time the sensor takes to read a frame out from its top row to its bottom row, ms
+    /// (a rolling shutter; 0 or absent for a global shutter). See docs/conventions.md, "Time".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rolling_shutter_ms: Option<f64>,
+}
+
+/// Longest readout accepted, ms: a second per frame is no video camera's readout.
+pub const MAX_ROLLING_SHUTTER_MS: f64 = 1000.0;
 
 /// The marks of a rig, by role.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -166,6 +182,14 @@ impl Role {
 }
 
 impl Rig {
+    /// The rolling shutter's readout time, s, when the rig gives one above zero.
+    pub fn rolling_shutter_s(&self) -> Option<f64> {
+        self.camera
+            .and_then(|c| c.rolling_shutter_ms)
+            .filter(|&t| t > 0.0)
+            .map(|t| t * 1e-3)
+    }
+
     /// Reads and validates a rig file.
     ///
     /// # Errors
@@ -267,6 +291,18 @@ impl Rig {
                 path,
                 "capture_fps_hz",
                 format!("must be a positive frame rate in Hz, got {fps}"),
+            ));
+        }
+        if let Some(t) = self.camera.and_then(|c| c.rolling_shutter_ms)
+            && !(t.is_finite() && (0.0..=MAX_ROLLING_SHUTTER_MS).contains(&t))
+        {
+            return Err(rig_err(
+                path,
+                "camera.rolling_shutter_ms",
+                format!(
+                    "must be the sensor's readout time from top row to bottom row in ms, \
+                     0 to {MAX_ROLLING_SHUTTER_MS}, got {t}; phones read out in 5 to 30 ms"
+                ),
             ));
         }
         for (role, mark) in self.marks() {
@@ -504,6 +540,24 @@ mod tests {
         assert!(rig.check_frame(Path::new("r"), 640, 480).is_ok());
         let again = parse(&rig.to_json_pretty()).unwrap();
         assert_eq!(again, rig);
+    }
+
+    #[test]
+    fn the_cameras_readout_time_is_read_and_checked() {
+        let with = |camera: &str| GOOD.replace("\"capture_fps_hz\": 2000,", camera);
+        let rig = parse(&with(r#""camera": {"rolling_shutter_ms": 10},"#)).unwrap();
+        assert_eq!(rig.rolling_shutter_s(), Some(0.010));
+        assert_eq!(parse(&rig.to_json_pretty()).unwrap(), rig);
+        let global = parse(&with(r#""camera": {"rolling_shutter_ms": 0},"#)).unwrap();
+        assert_eq!(global.rolling_shutter_s(), None);
+        for bad in ["-1", "5000"] {
+            let m = msg(&with(&format!(
+                r#""camera": {{"rolling_shutter_ms": {bad}}},"#
+            )));
+            assert!(m.contains("camera.rolling_shutter_ms"), "{m}");
+        }
+        let m = msg(&with(r#""camera": {"readout_ms": 10},"#));
+        assert!(m.contains("readout_ms"), "{m}");
     }
 
     #[test]

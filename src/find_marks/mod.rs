@@ -448,6 +448,7 @@ fn find_stream(
             fixed: fixed.map(|f| Mark::Radial(f.mark)),
         },
         bar: None,
+        camera: None,
     };
     Ok(FoundMarks {
         rig,

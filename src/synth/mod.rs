@@ -27,6 +27,7 @@ pub mod layout;
 mod look;
 pub mod phone;
 pub mod random;
+pub mod rolling;
 mod scene;
 pub mod side;
 pub mod side_random;
@@ -340,6 +341,7 @@ impl Scenario {
                 drive_back_damping_nms_per_rad: Some(self.tool.back_damping_nms_per_rad),
                 ..self.bar.clone()
             }),
+            camera: None,
         }
     }
 

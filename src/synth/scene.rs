@@ -481,6 +481,28 @@ impl<'a> Prepared<'a> {
         out
     }
 
+    /// As [`Self::render`] with one pose per row: row y shows the scene at `row_poses[y]` (a
+    /// rolling shutter reads each row at its own time; no motion blur within a row).
+    ///
+    /// # Panics
+    /// When `row_poses` does not hold one pose per row.
+    pub fn render_rows(&self, row_poses: &[Pose]) -> Vec<f32> {
+        let s = self.scene;
+        assert_eq!(row_poses.len(), s.height as usize, "one pose per row");
+        let n = s.supersample.clamp(1, 16);
+        let w = s.width as usize;
+        let mut out = vec![0.0f32; w * s.height as usize];
+        out.par_chunks_mut(w.max(1))
+            .enumerate()
+            .for_each(|(y, row)| {
+                let geos = [self.geo(&row_poses[y])];
+                for (x, o) in row.iter_mut().enumerate() {
+                    *o = self.pixel(&geos, x as u32, y as u32, n);
+                }
+            });
+        out
+    }
+
     /// Scene colour (before any light gain) at screen point (x, y) of a scene with a [`Look`],
     /// and the lower bound of the distance to the nearest edge, px. The same geometry as
     /// [`Prepared::eval`], with finishes, wear, recess, pits, rim, glints, washer and wheel.

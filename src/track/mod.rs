@@ -38,6 +38,7 @@ mod gather;
 mod polar;
 mod radial;
 mod refine;
+pub mod rolling;
 mod selfcheck;
 mod shake;
 mod side;
@@ -128,6 +129,11 @@ struct MarkTrack {
     confidence: Vec<f32>,
     /// Per frame: the stripe line's direction less the frame's angle, rad (`refine.rs`).
     dir_offset: Vec<Option<f64>>,
+    /// Per frame: where the measured stripe was read in a rolling shutter's readout, and its
+    /// shear across the rings (`rolling.rs`); None where lost.
+    row: Vec<Option<rolling::Readout>>,
+    /// Per ring: its angle relative to the measurement in the first frame (NaN where unused).
+    ring_ref: Vec<f64>,
     /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
     side: Option<side::SideTracker>,
     /// The colour projection this mark is tracked on, when colour separates its paint from
@@ -176,6 +182,8 @@ impl Tracker {
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
+                    row: Vec::new(),
+                    ring_ref: Vec::new(),
                     side: None,
                     colour: None,
                 }),
@@ -186,6 +194,8 @@ impl Tracker {
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
+                    row: Vec::new(),
+                    ring_ref: Vec::new(),
                     side: Some(side::SideTracker::new(m, width, height).map_err(|reason| {
                         Error::Mark {
                             mark: role.name().into(),
@@ -279,6 +289,7 @@ impl Tracker {
                     t.angle.push(None);
                     t.confidence.push(0.0);
                     t.dir_offset.push(None);
+                    t.row.push(None);
                 }
             }
             return Ok(());
@@ -335,6 +346,23 @@ impl Tracker {
         drive_done?;
         nut_done?;
         Ok(())
+    }
+
+    /// Where each frame's drive and nut stripes were read in a rolling shutter's readout
+    /// (for [`rolling::correct`], once the frames' times are known).
+    pub fn readout_rows(&self) -> rolling::ReadoutRows {
+        let rows = |t: &MarkTrack| {
+            if t.side.is_some() {
+                vec![None; self.frames.len()]
+            } else {
+                // In the trace's sense: tightening positive.
+                t.row.iter().map(|r| r.map(|r| r.signed(t.sign))).collect()
+            }
+        };
+        rolling::ReadoutRows {
+            drive: rows(&self.drive),
+            nut: rows(&self.nut),
+        }
     }
 
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
@@ -537,6 +565,25 @@ fn measure(
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
     t.dir_offset.push(m.and_then(|m| {
         refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)
+    }));
+    if first {
+        // Each ring's reading at rest in the first frame: later shears are measured from it.
+        t.ring_ref = t
+            .radial
+            .rings()
+            .iter()
+            .map(|&(rel, w)| if w > 0.0 { f64::from(rel) } else { f64::NAN })
+            .collect();
+    }
+    t.row.push(m.and_then(|m| {
+        rolling::readout_row(
+            t.radial.grid(),
+            m.angle,
+            t.radial.rings(),
+            &t.ring_ref,
+            shift,
+            frame.height,
+        )
     }));
     Ok(m.map(|m| m.angle))
 }

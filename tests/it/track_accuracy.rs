@@ -42,6 +42,7 @@ impl Medium {
             Medium::Video(c) => match c {
                 twistmark::encode::Codec::Ffv1 => "FFV1".into(),
                 twistmark::encode::Codec::H264 { crf } => format!("H.264 crf {crf}"),
+                twistmark::encode::Codec::Hevc { crf } => format!("HEVC crf {crf}"),
                 twistmark::encode::Codec::Mjpeg { quality } => format!("MJPEG q {quality}"),
                 twistmark::encode::Codec::Mpeg4 { quality } => format!("MPEG-4 q {quality}"),
             },

@@ -1,0 +1,222 @@
+//! Rolling-shutter clips with known truth: every row of a frame rendered at the instant the
+//! sensor reads it. Row y (pixel centres at integer y, docs/conventions.md) is read at
+//! `t_frame + ((y + 0.5)/height − 0.5) · readout`, so the frame's middle is read at the
+//! frame's own time and the truth (the scenario's [`Truth`], sampled at the frames' times)
+//! is the scene at mid-readout. The model is run at every row's instant, not interpolated.
+
+use super::scene::{Pose, Prepared};
+use super::{Scenario, Truth, finish_frame};
+use crate::decode::Frame;
+
+/// Offset of row `y`'s readout from the middle of the frame's readout, as a fraction of the
+/// readout time: −0.5 at the top edge of the picture, +0.5 at its bottom edge.
+pub fn row_fraction(y: f64, height: u32) -> f64 {
+    (y + 0.5) / f64::from(height) - 0.5
+}
+
+/// The frames of `sc` (whose truth is `truth`, from [`super::simulate`]) filmed through a
+/// rolling shutter reading a frame out in `readout_s`. Luma scenes without motion blur only;
+/// shake and flicker follow the scenario (shake per frame, flicker per row's instant).
+///
+/// # Panics
+/// When the scene renders in colour, with motion blur, or `readout_s` is negative.
+pub fn rolling_frames(sc: &Scenario, truth: &Truth, readout_s: f64) -> Vec<Frame> {
+    assert!(sc.scene.look.is_none(), "luma scenes only");
+    assert_eq!(sc.blur_samples(), 1, "no motion blur");
+    assert!(readout_s >= 0.0 && readout_s.is_finite());
+    let (model, _) = sc.model();
+    let fps = sc.camera.fps_hz;
+    let t0 = sc.camera.start_s.unwrap_or(0.0);
+    let h = sc.scene.height;
+    let frames = truth.frames as usize;
+    // Every row's instant, in model time (never before the model's start: the bench is at
+    // rest there), run through the model in one ascending pass.
+    let mut times: Vec<(f64, usize)> = Vec::with_capacity(frames * h as usize);
+    for f in 0..frames {
+        for y in 0..h {
+            let t = t0 + f as f64 / fps + row_fraction(f64::from(y), h) * readout_s;
+            times.push((t.max(model.start), f * h as usize + y as usize));
+        }
+    }
+    times.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let (states, _) = model.run(&times.iter().map(|t| t.0).collect::<Vec<_>>());
+    let mut slot = vec![(0.0, 0.0, 0.0); frames * h as usize];
+    for ((t, i), s) in times.iter().zip(states) {
+        slot[*i] = (s.theta_d, s.theta_n, *t - t0);
+    }
+    let gain = |t: f64| -> f32 {
+        match sc.effects.flicker {
+            Some(fl) => {
+                (1.0 + fl.depth
+                    * (2.0 * std::f64::consts::PI * fl.freq_hz * t + fl.phase_deg.to_radians())
+                        .sin()) as f32
+            }
+            None => 1.0,
+        }
+    };
+    let prepared = Prepared::new(&sc.scene);
+    (0..frames)
+        .map(|f| {
+            let shift = truth.shake_px.get(f).copied().unwrap_or([0.0, 0.0]);
+            let roll_rad = truth
+                .shake_roll_deg
+                .get(f)
+                .copied()
+                .unwrap_or(0.0)
+                .to_radians();
+            let rows: Vec<Pose> = slot[f * h as usize..(f + 1) * h as usize]
+                .iter()
+                .map(|&(d, n, t)| Pose {
+                    drive_rad: d,
+                    nut_rad: n,
+                    shift,
+                    gain: gain(t),
+                    roll_rad,
+                })
+                .collect();
+            let img = prepared.render_rows(&rows);
+            finish_frame(sc, img, f as u64, 1_000 + f as u64)
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analyze::AnalyzeOptions;
+    use crate::decode::MemorySource;
+    use crate::rig::CameraSpec;
+    use crate::synth::{render_frame, simulate};
+
+    /// The slow tool filmed through a rolling shutter at `fps` with sensor noise of three
+    /// sample steps (seed 11, a tuning seed).
+    fn rolling_scene(fps: f64) -> Scenario {
+        let mut sc = Scenario::preset("slow-tool").unwrap();
+        sc.camera.fps_hz = fps;
+        sc.effects.noise_sigma = 0.012;
+        sc.seed = 11;
+        sc
+    }
+
+    /// Per-frame RMS error (degrees; drive, nut) of an analysis of `frames` against the truth
+    /// at the frames' mid-readout times, with the rig's `rolling_shutter_ms` set to `rig_ms`.
+    fn rms(sc: &Scenario, truth: &Truth, frames: Vec<Frame>, rig_ms: Option<f64>) -> (f64, f64) {
+        let mut rig = sc.rig();
+        rig.camera = rig_ms.map(|t| CameraSpec {
+            rolling_shutter_ms: Some(t),
+        });
+        let a = crate::analyze::analyze_source_rolling_corrected(
+            Box::new(MemorySource::new(frames, Some(sc.camera.fps_hz))),
+            &rig,
+            std::path::Path::new("rig.json"),
+            &AnalyzeOptions::default(),
+        )
+        .unwrap();
+        let one = |got: &[Option<crate::units::Angle>], want: &[f64]| {
+            let e: Vec<f64> = got
+                .iter()
+                .zip(want)
+                .filter_map(|(g, w)| Some(g.as_ref()?.deg() - w))
+                .collect();
+            let rms = (e.iter().map(|x| x * x).sum::<f64>() / e.len().max(1) as f64).sqrt();
+            // A lost frame counts as no measurement, never as a small error.
+            if e.len() < want.len() {
+                rms + 1000.0 * (want.len() - e.len()) as f64
+            } else {
+                rms
+            }
+        };
+        (
+            one(&a.trace.drive, &truth.trace.drive_deg),
+            one(&a.trace.nut, &truth.trace.nut_deg),
+        )
+    }
+
+    /// The target: with the rig's readout time, per-frame RMS ≤ 0.3° on a 10 ms readout clip
+    /// (rendered clip with known truth: a check against the renderer, not the world).
+    #[test]
+    #[ignore = "not met yet: 100 fps, 10 ms readout reads 0.346/0.253 deg RMS (drive/nut) corrected, 0.123/0.113 uncorrected"]
+    fn ten_ms_readout_with_the_rigs_time_within_a_third_of_a_degree() {
+        let sc = rolling_scene(100.0);
+        let truth = simulate(&sc);
+        let frames = rolling_frames(&sc, &truth, 0.010);
+        let (d, n) = rms(&sc, &truth, frames, Some(10.0));
+        assert!(d <= 0.3 && n <= 0.3, "{d:.3}/{n:.3}");
+    }
+
+    /// The unknown-readout warning: raised for a clip timed by the camera's own clock whose
+    /// fastest step could skew an angle past the accuracy target; not when the capture rate
+    /// is given (a high-speed camera's clip) or the rig states the readout (0: global shutter).
+    #[test]
+    fn an_unknown_readout_is_warned_of_only_for_a_camera_clocked_clip() {
+        let sc = rolling_scene(240.0);
+        let truth = simulate(&sc);
+        let frames = rolling_frames(&sc, &truth, 0.004);
+        let warned = |capture: Option<f64>, ms: Option<f64>| {
+            let mut rig = sc.rig();
+            rig.capture_fps_hz = capture;
+            rig.camera = ms.map(|t| CameraSpec {
+                rolling_shutter_ms: Some(t),
+            });
+            let a = crate::analyze::analyze_source(
+                Box::new(MemorySource::new(frames.clone(), Some(240.0))),
+                &rig,
+                std::path::Path::new("rig.json"),
+                &AnalyzeOptions::default(),
+                &|_, _| {},
+            )
+            .unwrap();
+            a.warnings.iter().find_map(|w| match w {
+                crate::Warning::RollingShutterUnknown { skew_bound_deg, .. } => {
+                    Some(*skew_bound_deg)
+                }
+                _ => None,
+            })
+        };
+        let skew = warned(None, None).expect("warned");
+        assert!(skew > crate::track::rolling::SKEW_WARN_DEG, "{skew}");
+        assert_eq!(warned(Some(240.0), None), None);
+        assert_eq!(warned(None, Some(0.0)), None);
+    }
+
+    /// Figures for docs/accuracy.md: per-frame RMS with and without the rig's readout time.
+    #[test]
+    #[ignore = "prints figures; run with --ignored --nocapture"]
+    fn rolling_shutter_figures() {
+        for fps in [60.0, 100.0, 240.0] {
+            for ms in [5.0, 10.0, 20.0] {
+                if ms * 1e-3 > 1.0 / fps {
+                    // A sensor reads a frame out before it starts the next.
+                    continue;
+                }
+                let sc = rolling_scene(fps);
+                let truth = simulate(&sc);
+                let frames = rolling_frames(&sc, &truth, ms * 1e-3);
+                let with = rms(&sc, &truth, frames.clone(), Some(ms));
+                let without = rms(&sc, &truth, frames, None);
+                println!(
+                    "{fps} fps, readout {ms} ms: with {:.3}/{:.3}, without {:.3}/{:.3} (drive/nut °)",
+                    with.0, with.1, without.0, without.1
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn without_readout_time_the_frames_are_the_global_shutter_ones() {
+        let mut sc = Scenario::preset("slow-tool").unwrap();
+        sc.camera.max_frames = Some(3);
+        let truth = simulate(&sc);
+        let rs = rolling_frames(&sc, &truth, 0.0);
+        for (i, f) in rs.iter().enumerate() {
+            assert_eq!(f, &render_frame(&sc, &truth, i as u64), "frame {i}");
+        }
+    }
+
+    #[test]
+    fn the_middle_row_is_read_at_the_frame_time() {
+        assert!((row_fraction(-0.5, 720) + 0.5).abs() < 1e-12);
+        assert!((row_fraction(719.5, 720) - 0.5).abs() < 1e-12);
+        assert!(row_fraction(359.5, 720).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,336 @@
+//! Rolling shutter: the angle at each frame's mid-readout time, from stripes read row by row.
+//!
+//! A rolling-shutter sensor reads row y of a frame at `t_frame + ρ(y)·T`, with
+//! `ρ(y) = (y + 0.5)/height − 0.5` (−½ at the picture's top edge, +½ at its bottom edge; pixel
+//! centres at integer y, docs/conventions.md) and T the readout time (rig
+//! `camera.rolling_shutter_ms`). A stripe turning at ω is seen on each ring where it was when
+//! that ring's crossing row was read: ring k reads `θ_mid + ω·T·ρ_k`, so the stripe shears.
+//! Method, per frame:
+//!
+//! 1. From the tracker's rings (each ring's angle less its own angle in the first frame, at
+//!    rest, with the weights the robust fit gave it) and the row where each ring saw the
+//!    stripe: the weighted mean readout offset ρ̄ (the robust fit's angle is the stripe's
+//!    angle at ρ̄), and the weighted least-squares slope `b_s` of ring angle on ρ, which
+//!    measures ω·T inside the frame, with its variance from the fit's residuals
+//!    ([`readout_row`]). A stripe lying along the rows gives no lever, and a large variance.
+//! 2. From the neighbouring frames, ω·T again: `b_n`, the mean of the backward and forward
+//!    differences of the measured angles over their read instants, with a variance of the two
+//!    differences' disagreement (which is large at a blow's sudden rise, small in smooth
+//!    motion) plus the angles' own noise.
+//! 3. The two are combined with inverse-variance weights (the minimum-variance unbiased
+//!    combination of two independent estimates), and the frame's angle at mid-readout is
+//!    `θ(ρ̄) − b·ρ̄`. Angles stay relative to the first analysed frame.
+//!
+//! Frames flagged synthetic are corrected by their own shear but never serve as neighbours.
+//! Side-view marks are not corrected. Accuracy on rendered clips (docs/accuracy.md, "Rolling
+//! shutter"): worse than no correction so far, so `analyze` does not apply it yet.
+
+use crate::rig::{Mark, Rig};
+use crate::track::polar::PolarGrid;
+use crate::track::{Trace, unwrap::wrap_pi};
+use crate::units::Angle;
+use crate::warning::Warning;
+
+/// A frame's angle noise assumed for the neighbours' estimate, rad (the tracker's per-frame
+/// accuracy target on compressed clips, 0.2°, docs/accuracy.md).
+const ANGLE_NOISE_RAD: f64 = 0.2 * std::f64::consts::PI / 180.0;
+
+/// Factor on the variance of the rings' shear slope for the rings' errors being correlated
+/// (neighbouring rings are 1 px apart; a bilinear tap spans 2 px, and the centroid windows of
+/// neighbouring rings overlap on the same pixels).
+const RING_CORRELATION: f64 = 4.0;
+
+/// Where one measurement was read in a rolling shutter's readout.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Readout {
+    /// Weighted mean readout offset ρ̄ of the rows where the rings saw the stripe.
+    pub rho: f64,
+    /// The slope of the rings' angles on ρ, rad per unit of ρ (ω·T), and its variance; None
+    /// when the rings give no lever.
+    pub shear: Option<(f64, f64)>,
+}
+
+impl Readout {
+    /// The same in the trace's sense (angles × `sign`).
+    pub(crate) fn signed(self, sign: f64) -> Readout {
+        Readout {
+            rho: self.rho,
+            shear: self.shear.map(|(b, v)| (sign * b, v)),
+        }
+    }
+}
+
+/// Per frame, each mark's [`Readout`] (None where the mark was lost or is a side-view mark),
+/// with shears in the trace's sense (tightening positive).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ReadoutRows {
+    /// The drive mark's.
+    pub drive: Vec<Option<Readout>>,
+    /// The nut mark's.
+    pub nut: Vec<Option<Readout>>,
+}
+
+/// Where the stripe measured at grid angle `angle` (rad) was read (the module's step 1): from
+/// the rings the measurement used (`rings`: each ring's angle relative to `angle` and its
+/// weight; `reference`: the same angles in the first frame, at rest, NaN for a ring unused
+/// there), the grid moved by `shift`
+/// in a frame `height` rows high. None when no ring has weight.
+pub(crate) fn readout_row(
+    grid: &PolarGrid,
+    angle: f64,
+    rings: &[(f32, f32)],
+    reference: &[f64],
+    shift: [f64; 2],
+    height: u32,
+) -> Option<Readout> {
+    let (pivot, map, _) = grid.geometry();
+    let mut pts: Vec<(f64, f64, f64)> = Vec::with_capacity(rings.len());
+    for (k, &(rel, w)) in rings.iter().enumerate() {
+        if w <= 0.0 {
+            continue;
+        }
+        let a = angle + f64::from(rel);
+        let r = grid.radius[k];
+        let (u, v) = (r * a.cos(), r * a.sin());
+        let y = pivot[1] + shift[1] + map[1][0] * u + map[1][1] * v;
+        let rho = (y + 0.5) / f64::from(height) - 0.5;
+        // Each ring's own departure from its reading at rest: the ring's offset, and what
+        // the stripe's edges and the pixel grid do to that ring, cancel.
+        let e = f64::from(rel) - reference.get(k).copied().unwrap_or(f64::NAN);
+        if !e.is_finite() {
+            continue;
+        }
+        pts.push((rho, e, f64::from(w)));
+    }
+    let sw: f64 = pts.iter().map(|p| p.2).sum();
+    if sw <= 0.0 {
+        return None;
+    }
+    let rho = pts.iter().map(|p| p.2 * p.0).sum::<f64>() / sw;
+    let e_bar = pts.iter().map(|p| p.2 * p.1).sum::<f64>() / sw;
+    let s_rr: f64 = pts.iter().map(|p| p.2 * (p.0 - rho).powi(2)).sum();
+    let s_re: f64 = pts.iter().map(|p| p.2 * (p.0 - rho) * (p.1 - e_bar)).sum();
+    let n = pts.len();
+    let shear = (n >= 4 && s_rr > 1e-12 * sw)
+        .then(|| {
+            let b = s_re / s_rr;
+            // Weights as inverse variances up to one scale, estimated from the residuals.
+            let scale = pts
+                .iter()
+                .map(|p| p.2 * (p.1 - e_bar - b * (p.0 - rho)).powi(2))
+                .sum::<f64>()
+                / (n - 2) as f64;
+            // Neighbouring rings are 1 px apart and share pixels through the bilinear taps and
+            // the centroid windows, so their errors are not independent: the variance is
+            // inflated by RING_CORRELATION. A slope not significant at 3 standard deviations
+            // is no measurement of the shear (a stripe lying along the rows has no lever).
+            let v = RING_CORRELATION * scale / s_rr;
+            (b, v)
+        })
+        .filter(|&(b, v)| b * b > 9.0 * v);
+    Some(Readout { rho, shear })
+}
+
+/// Moves every radial mark's angle to its frame's mid-readout time (the module's method),
+/// for a readout of `readout_s` seconds. Does nothing with a zero readout.
+pub fn correct(trace: &mut Trace, rows: &ReadoutRows, readout_s: f64) {
+    if readout_s <= 0.0 || !readout_s.is_finite() {
+        return;
+    }
+    let times: Vec<f64> = (0..trace.len()).map(|i| trace.t_s(i)).collect();
+    let synthetic: Vec<bool> = (0..trace.len()).map(|i| trace.is_synthetic(i)).collect();
+    for (series, row) in [(&mut trace.drive, &rows.drive), (&mut trace.nut, &rows.nut)] {
+        if row.len() != series.len() {
+            continue;
+        }
+        correct_series(series, row, &times, &synthetic, readout_s);
+    }
+}
+
+fn correct_series(
+    series: &mut [Option<Angle>],
+    row: &[Option<Readout>],
+    times: &[f64],
+    synthetic: &[bool],
+    readout_s: f64,
+) {
+    // Each captured, measured frame: its read instant and angle.
+    let knots: Vec<(usize, f64, f64)> = (0..series.len())
+        .filter(|&i| !synthetic[i])
+        .filter_map(|i| Some((i, times[i] + row[i]?.rho * readout_s, series[i]?.rad())))
+        .collect();
+    let noise = 2.0 * ANGLE_NOISE_RAD * ANGLE_NOISE_RAD;
+    let mut out: Vec<Option<Angle>> = series.to_vec();
+    for (i, slot) in out.iter_mut().enumerate() {
+        let (Some(a), Some(r)) = (series[i], row[i]) else {
+            continue;
+        };
+        let tau = times[i] + r.rho * readout_s;
+        // The neighbours' ω·T: captured frames either side (the frame itself when captured).
+        let at = knots.partition_point(|k| k.0 < i);
+        let here = knots.get(at).filter(|k| k.0 == i).copied();
+        let prev = at.checked_sub(1).and_then(|j| knots.get(j)).copied();
+        let next = knots.get(at + usize::from(here.is_some())).copied();
+        let me = here.unwrap_or((i, tau, a.rad()));
+        let slope = |p: (usize, f64, f64), q: (usize, f64, f64)| {
+            let dt = q.1 - p.1;
+            (dt > 0.0).then(|| {
+                (
+                    (q.2 - p.2) / dt * readout_s,
+                    readout_s * readout_s / (dt * dt),
+                )
+            })
+        };
+        let back = prev.and_then(|p| slope(p, me));
+        let fwd = next.and_then(|q| slope(me, q));
+        let neighbours = match (back, fwd) {
+            (Some((b1, s1)), Some((b2, s2))) => Some((
+                0.5 * (b1 + b2),
+                0.25 * (b1 - b2).powi(2) + noise * 0.5 * (s1 + s2),
+            )),
+            (Some((b, s)), None) | (None, Some((b, s))) => Some((b, b * b + noise * s)),
+            (None, None) => None,
+        };
+        let b = match (r.shear, neighbours) {
+            (Some((bs, vs)), Some((bn, vn))) => {
+                if vs <= 0.0 {
+                    bs
+                } else if vn <= 0.0 {
+                    bn
+                } else {
+                    (bs / vs + bn / vn) / (1.0 / vs + 1.0 / vn)
+                }
+            }
+            (Some((bs, _)), None) => bs,
+            (None, Some((bn, _))) => bn,
+            (None, None) => 0.0,
+        };
+        *slot = Some(Angle::from_rad(a.rad() - b * r.rho));
+    }
+    // Still relative to the first analysed frame.
+    if let Some(Some(z)) = out.first().copied() {
+        let z = z.rad();
+        for v in out.iter_mut().flatten() {
+            *v = Angle::from_rad(v.rad() - z);
+        }
+    }
+    series.copy_from_slice(&out);
+}
+
+/// The skew a rolling shutter may put on an angle before the rig must give its readout time:
+/// the project's per-frame accuracy target for compressed clips, degrees (docs/accuracy.md;
+/// every consumer camera compresses).
+pub const SKEW_WARN_DEG: f64 = 0.20;
+
+/// [`Warning::RollingShutterUnknown`] when the rig gives no readout time, the clip was timed
+/// by the camera's own clock (`camera_clock`: no capture rate was given, so the file's rate or
+/// timestamps are the capture's, as consumer cameras write them; high-speed cameras write a
+/// playback rate and are given `--fps` or `capture_fps_hz`), and the fastest turn seen could
+/// skew an angle beyond [`SKEW_WARN_DEG`].
+///
+/// The bound: a sensor finishes reading one frame before it starts the next, so its readout
+/// T is at most the captured frame interval Δ (*common practice*: a rolling shutter's readout
+/// fits in the frame time). A mark turning at ω and read at readout offset ρ is seen ω·T·|ρ|
+/// away from its mid-readout angle, at most (largest step over Δ)·max|ρ|, with ρ taken over
+/// the rows the marks' annuli cover.
+pub fn unknown_readout_warning(
+    trace: &Trace,
+    rig: &Rig,
+    height: u32,
+    camera_clock: bool,
+) -> Option<Warning> {
+    if !camera_clock || rig.camera.and_then(|c| c.rolling_shutter_ms).is_some() {
+        return None;
+    }
+    let (rate, interval) = fastest_rate(trace)?;
+    let rho = [&rig.marks.drive, &rig.marks.nut]
+        .into_iter()
+        .filter_map(|m| match m {
+            Mark::Radial(r) => Some(r),
+            Mark::Side(_) => None,
+        })
+        .flat_map(|r| [r.pivot[1] - r.radius[1], r.pivot[1] + r.radius[1]])
+        .map(|y| ((y + 0.5) / f64::from(height) - 0.5).abs().min(0.5))
+        .fold(0.0f64, f64::max);
+    let step_deg = (rate * interval).to_degrees();
+    let skew_deg = step_deg * rho;
+    (skew_deg > SKEW_WARN_DEG).then_some(Warning::RollingShutterUnknown {
+        max_step_deg: step_deg,
+        skew_bound_deg: skew_deg,
+    })
+}
+
+/// The largest rate of turn of a radial mark between neighbouring captured frames, rad/s,
+/// and the median interval between them, s (None with fewer than two such frames).
+pub fn fastest_rate(trace: &Trace) -> Option<(f64, f64)> {
+    let mut best: Option<f64> = None;
+    let mut gaps: Vec<f64> = Vec::new();
+    for series in [&trace.drive, &trace.nut] {
+        let mut prev: Option<(f64, f64)> = None;
+        for (i, a) in series.iter().enumerate() {
+            if trace.is_synthetic(i) {
+                continue;
+            }
+            let Some(a) = a else {
+                prev = None;
+                continue;
+            };
+            let t = trace.t_s(i);
+            if let Some((tp, ap)) = prev
+                && t > tp
+            {
+                let r = wrap_pi(a.rad() - ap).abs() / (t - tp);
+                best = Some(best.map_or(r, |b: f64| b.max(r)));
+                gaps.push(t - tp);
+            }
+            prev = Some((t, a.rad()));
+        }
+    }
+    let best = best?;
+    let mid = gaps.len() / 2;
+    let interval = *gaps.select_nth_unstable_by(mid, f64::total_cmp).1;
+    Some((best, interval))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A stripe turning at a steady rate: the neighbours' estimate alone moves each frame's
+    /// angle by ω·T·ρ̄, exactly.
+    #[test]
+    fn steady_turning_is_moved_to_mid_readout() {
+        let (t_r, w, rho) = (0.01, 2.0, 0.3);
+        let times: Vec<f64> = (0..6).map(|i| f64::from(i) * 0.004).collect();
+        // Seen at t + ρ·T.
+        let mut series: Vec<Option<Angle>> = times
+            .iter()
+            .map(|t| Some(Angle::from_rad(w * (t + rho * t_r))))
+            .collect();
+        let row = vec![Some(Readout { rho, shear: None }); 6];
+        correct_series(&mut series, &row, &times, &[false; 6], t_r);
+        for (t, a) in times.iter().zip(&series) {
+            assert!((a.unwrap().rad() - w * t).abs() < 1e-12, "{t}");
+        }
+    }
+
+    /// At rest next to a sudden step the neighbours disagree, and the frame's own shear
+    /// (none) decides: the resting frame is not moved.
+    #[test]
+    fn a_resting_frame_beside_a_step_keeps_its_angle() {
+        let times: Vec<f64> = (0..4).map(|i| f64::from(i) * 0.016).collect();
+        let mut series: Vec<Option<Angle>> = [0.0, 0.0, 0.5, 0.5]
+            .iter()
+            .map(|&a| Some(Angle::from_rad(a)))
+            .collect();
+        let row = vec![
+            Some(Readout {
+                rho: -0.3,
+                shear: Some((0.0, 1e-6)),
+            });
+            4
+        ];
+        correct_series(&mut series, &row, &times, &[false; 4], 0.01);
+        assert!(series[1].unwrap().rad().abs() < 1e-3, "{:?}", series[1]);
+    }
+}
