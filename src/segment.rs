@@ -146,7 +146,7 @@ pub const NUT_MIN_MOVE_DEG: f64 = 0.05;
 /// [`Warning::FewBlows`].
 ///
 /// ```
-/// use twistmark::synth::{Scenario, simulate};
+/// use twistmark_scenes::synth::{Scenario, simulate};
 /// use twistmark::{Angle, TimeBase, Trace};
 /// // The project's invented bench: a fast tool filmed at 2,000 fps, with known truth.
 /// let sc = Scenario::preset("fast-tool").unwrap();

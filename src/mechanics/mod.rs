@@ -11,6 +11,10 @@ mod blows;
 mod calibration;
 pub(crate) use calibration::{csv_with_headers, parse_decimal};
 mod holding;
+/// The lumped torsional model of a blow (drive inertia, bar, nut, joint). Public for the
+/// invented test bench (tools/scenes), which renders its clips with this same code.
+#[doc(hidden)]
+pub mod model;
 mod sense;
 mod steel;
 pub mod subframe;

@@ -19,10 +19,10 @@ use std::path::Path;
 use twistmark::decode::Frame;
 use twistmark::find_marks::{FindMarksOptions, find_marks_frames};
 use twistmark::rig::{Mark, Rig};
-use twistmark::synth::layout::{HELDOUT_LAYOUT_SEEDS, layout_scenario};
-use twistmark::synth::{render_clip, simulate};
 use twistmark::track::Tracker;
 use twistmark::units::TimeBase;
+use twistmark_scenes::synth::layout::{HELDOUT_LAYOUT_SEEDS, layout_scenario};
+use twistmark_scenes::synth::{render_clip, simulate};
 
 /// What one layout gave.
 struct Outcome {

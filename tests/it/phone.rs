@@ -6,8 +6,8 @@
 
 use serde_json::Value;
 use twistmark::decode::{Frame, Luma};
-use twistmark::encode::{ClipWriter, Codec};
-use twistmark::synth::{Scenario, render_clip, simulate};
+use twistmark_scenes::encode::{ClipWriter, Codec};
+use twistmark_scenes::synth::{Scenario, render_clip, simulate};
 
 use crate::common::run;
 
@@ -53,7 +53,7 @@ fn analyse(clip: &std::path::Path, rig: &twistmark::Rig, dir: &std::path::Path) 
     serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap()
 }
 
-fn check_blows(report: &Value, truth: &twistmark::synth::Truth, what: &str) {
+fn check_blows(report: &Value, truth: &twistmark_scenes::synth::Truth, what: &str) {
     let blows = report["blows"].as_array().unwrap();
     assert_eq!(
         blows.len(),

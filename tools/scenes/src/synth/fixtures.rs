@@ -17,8 +17,8 @@ use super::{
     Effects, Flicker, Highlight, Paint, Scenario, Steel, StillFormat, Truth, render_frame, simulate,
 };
 use crate::decode::Frame;
-use crate::error::{Error, Result};
 use crate::rig::{Ellipse, Spin};
+use crate::{Error, Result};
 
 /// Per-frame checksums of the rendered frames, written as `checksums.json`.
 #[derive(Debug, Clone, serde::Serialize)]

@@ -8,7 +8,7 @@
 //! the interface, so tests can compare field by field. [`render_frame`] draws any frame.
 //!
 //! ```
-//! use twistmark::synth::{Scenario, render_frame, simulate};
+//! use twistmark_scenes::synth::{Scenario, render_frame, simulate};
 //! let sc = Scenario::preset("fast-tool").unwrap();
 //! let truth = simulate(&sc);
 //! let frame = render_frame(&sc, &truth, 10);
@@ -25,7 +25,6 @@
 pub mod fixtures;
 pub mod layout;
 mod look;
-mod model;
 pub mod phone;
 pub mod random;
 mod scene;
@@ -49,7 +48,7 @@ pub use texture::BrushedSteel;
 pub use write::write_video;
 pub use write::{StillFormat, write_rest_still, write_sidecars, write_stills};
 
-use model::{Joint, Model};
+use crate::mechanics::model::{self, Joint, Model};
 use scene::{Pose, Prepared};
 
 /// Version of the truth.json layout written by this build.

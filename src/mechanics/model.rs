@@ -25,7 +25,7 @@ use std::f64::consts::PI;
 
 /// The nut end's joint: a hard joint that rises linearly in torque with nut angle after snug.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Joint {
+pub struct Joint {
     /// Torque to keep the nut turning at the snug point (θ_n = 0), N·m.
     pub snug_nm: f64,
     /// Joint rate, N·m/rad.
@@ -44,7 +44,7 @@ impl Joint {
 
 /// Every constant of the model, in SI.
 #[derive(Debug, Clone, PartialEq)]
-pub(crate) struct Model {
+pub struct Model {
     /// Drive-end (anvil, flag disc, bar drive end) inertia, kg·m².
     pub drive_inertia: f64,
     /// Nut-end (socket, nut) inertia, kg·m².
@@ -74,7 +74,7 @@ pub(crate) struct Model {
 
 /// The state at one instant.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
-pub(crate) struct State {
+pub struct State {
     /// Drive-end angle, rad.
     pub theta_d: f64,
     /// Drive-end speed, rad/s.
@@ -96,7 +96,7 @@ impl State {
 
 /// Events found while integrating, in continuous time.
 #[derive(Debug, Clone, PartialEq, Default)]
-pub(crate) struct Events {
+pub struct Events {
     /// For each blow, the first time the nut broke away after that blow started (before the
     /// next blow), s.
     pub nut_slip: Vec<Option<f64>>,
