@@ -1,6 +1,6 @@
 //! `find-marks` on random bench layouts it was not tuned on: frame shapes (portrait, 800×600),
 //! the nut on either side, small parts off centre, all on a brushed-steel bench whose streaks
-//! look like short stripes (src/synth/layout.rs). These are rendered scenes of the project's
+//! look like short stripes (tools/scenes/src/synth/layout.rs). These are rendered scenes of the project's
 //! invented bench with exact known truth, not real footage.
 //!
 //! Done means: on every held-out layout the drive and nut pivots are drafted within

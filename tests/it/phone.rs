@@ -1,7 +1,7 @@
 //! Footage from phones, through the real binary: a clip stored turned with a display-rotation
 //! flag analyses with a rig drawn on the displayed picture. A rendered clip with known truth
 //! (a check against the renderer, not the world). The slow-motion clips (made frames,
-//! jittered timestamps) are checked in memory in `src/synth/phone.rs`.
+//! jittered timestamps) are checked in memory in `tools/scenes/src/synth/phone.rs`.
 #![cfg(feature = "ffmpeg")]
 
 use serde_json::Value;
