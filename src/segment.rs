@@ -73,6 +73,9 @@
 //!    blows whose rises are more than [`REVERSED_SPEED`] times faster than the tightening
 //!    ones (or there are none that way), the rig's `tighten` is probably reversed and a
 //!    warning says so: the "blows" found would be the spring-backs.
+//!
+//! Layering: uses only the trace from track and the shared `stats`; it must never import
+//! mechanics, report, `analyze`, `batch` or the CLI.
 
 use crate::stats::{mad, median, quantile, rest_level, weighted_median};
 use crate::track::Trace;

@@ -5,6 +5,9 @@
 //! presentation time ([`ClipInfo::frame_times`]); the analysis decides whether time is frame
 //! index / capture rate (see [`crate::TimeBase`]) or those timestamps (docs/conventions.md,
 //! "Time").
+//!
+//! Layering: the first stage; it must never import a later one (track, segment, mechanics,
+//! report), nor `analyze`, `batch` or the CLI.
 
 use std::path::{Path, PathBuf};
 
