@@ -21,8 +21,8 @@ use std::process::Command;
 use std::time::Instant;
 
 use twistmark::decode::{self, Frame, Slot};
-use twistmark::encode::{ClipWriter, Codec};
-use twistmark::synth::{Scenario, render_frame, simulate};
+use twistmark_scenes::encode::{ClipWriter, Codec};
+use twistmark_scenes::synth::{Scenario, render_frame, simulate};
 
 /// Peak RSS target for a 20,000-frame 720p clip, MB (issue 6).
 const RSS_TARGET_MB: f64 = 150.0;

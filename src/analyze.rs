@@ -4,6 +4,9 @@
 //! lower priority, through a short queue of recycled slots ([`decode::Slot`]); the calling
 //! thread waits for both. A video decoder whose picture rows are packed hands over
 //! references to its own pictures (no copy); every other source reads into the slots' buffers.
+//!
+//! Layering: the one place that chains decode → track → segment → mechanics → report. Only
+//! `batch` and the CLI run it (report reads its `Analysis`), and it must never import the CLI.
 
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;

@@ -73,6 +73,9 @@
 //!    blows whose rises are more than [`REVERSED_SPEED`] times faster than the tightening
 //!    ones (or there are none that way), the rig's `tighten` is probably reversed and a
 //!    warning says so: the "blows" found would be the spring-backs.
+//!
+//! Layering: uses only the trace from track and the shared `stats`; it must never import
+//! mechanics, report, `analyze`, `batch` or the CLI.
 
 use crate::stats::{mad, median, quantile, rest_level, weighted_median};
 use crate::track::Trace;
@@ -146,7 +149,7 @@ pub const NUT_MIN_MOVE_DEG: f64 = 0.05;
 /// [`Warning::FewBlows`].
 ///
 /// ```
-/// use twistmark::synth::{Scenario, simulate};
+/// use twistmark_scenes::synth::{Scenario, simulate};
 /// use twistmark::{Angle, TimeBase, Trace};
 /// // The project's invented bench: a fast tool filmed at 2,000 fps, with known truth.
 /// let sc = Scenario::preset("fast-tool").unwrap();

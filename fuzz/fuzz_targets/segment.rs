@@ -56,7 +56,7 @@ fuzz_target!(|data: &[u8]| {
         }
         last_end = b.end;
     }
-    let bar = twistmark::synth::Scenario::preset("fast-tool").map(|s| s.bar);
+    let bar = twistmark_scenes::synth::Scenario::preset("fast-tool").map(|s| s.bar);
     let (blows, summary, _warnings) = mechanics::blow_metrics(&trace, &seg, bar.as_ref());
     assert_eq!(blows.len(), seg.blows.len());
     assert_eq!(summary.blow_count, blows.len());

@@ -9,6 +9,9 @@
 //!
 //! Results do not depend on the order in which clips finish: rows, plots and files are built
 //! from the outcomes sorted as the folder is (numbers in names compared by value).
+//!
+//! Layering: runs [`crate::analyze()`] and the report writer over a folder; it must never
+//! import the CLI.
 
 use std::cmp::Ordering;
 use std::collections::BTreeMap;

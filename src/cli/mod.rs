@@ -1,5 +1,8 @@
 //! Command-line definition (clap derive) and dispatch. Each subcommand lives in its own file
 //! and turns what the user typed into library calls; nothing here leaks into the library.
+//!
+//! Layering: the binary's half. The library (everything outside `src/cli` and `src/main.rs`)
+//! must never import it, and neither must the test bench (tools/scenes).
 
 use std::process::ExitCode;
 

@@ -5,6 +5,9 @@
 //! presentation time ([`ClipInfo::frame_times`]); the analysis decides whether time is frame
 //! index / capture rate (see [`crate::TimeBase`]) or those timestamps (docs/conventions.md,
 //! "Time").
+//!
+//! Layering: the first stage; it must never import a later one (track, segment, mechanics,
+//! report), nor `analyze`, `batch` or the CLI.
 
 use std::path::{Path, PathBuf};
 
@@ -439,9 +442,11 @@ pub fn open(path: &Path) -> Result<Box<dyn FrameSource>> {
 
 /// Initialises the FFmpeg libraries once per process and silences their logging: even at the
 /// "error" level FFmpeg prints lines such as "moov atom not found" to stderr, and the library
-/// must never print. Every failure still reaches the caller as an [`Error`].
+/// must never print. Every failure still reaches the caller as an [`Error`]. Public for the
+/// clip writer of the invented test bench (tools/scenes), which opens encoders the same way.
 #[cfg(feature = "ffmpeg")]
-pub(crate) fn ffmpeg_init() {
+#[doc(hidden)]
+pub fn ffmpeg_init() {
     static ONCE: std::sync::Once = std::sync::Once::new();
     ONCE.call_once(|| {
         // `init` only registers devices and sets nothing that can fail in a way we could act on;

@@ -1,5 +1,5 @@
 //! Checks of the blow model's fit and prediction against clips simulated by the renderer's
-//! physics (src/synth) with known truth: a check of the method on our invented bench, not of
+//! physics (tools/scenes/src/synth) with known truth: a check of the method on our invented bench, not of
 //! the world. The fit sees only what a report holds (frame-sampled angles with seeded noise,
 //! onset frames, the bar's stiffness); the truth is the renderer's own constants.
 

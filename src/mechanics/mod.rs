@@ -4,6 +4,10 @@
 //! In: a [`crate::Trace`] and the blows found by [`crate::segment`]. Out: per-blow metrics in
 //! SI units. Sections in series share one torque, so 1/k = Σ Lᵢ/(Gᵢ·Jᵢ) (any
 //! mechanics-of-materials text, e.g. Beer & Johnston, *Mechanics of Materials*, ch. 3).
+//!
+//! Layering: uses the trace (track) and the blows (segment); it must never import `analyze`,
+//! `batch` or the CLI. It also must not import report. One exception remains: the bar's
+//! report.json types are re-exported here from `report::bar_json`.
 
 mod bar;
 mod bar_report;
@@ -13,8 +17,10 @@ pub(crate) use calibration::{csv_with_headers, parse_decimal};
 pub mod fit;
 mod holding;
 /// The lumped torsional model of a blow (drive inertia, bar, nut, joint): the shipped tool's
-/// `predict` fits and runs it, and src/synth renders test clips with the same code.
-pub(crate) mod model;
+/// `predict` fits and runs it, and the invented test bench (tools/scenes) renders its clips
+/// with this same code, hence public.
+#[doc(hidden)]
+pub mod model;
 mod model_predict;
 mod sense;
 mod steel;

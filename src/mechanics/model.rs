@@ -1,6 +1,6 @@
 //! The lumped torsional model of a blow: a drive-end inertia struck by hammer blows, a
 //! torsion bar, and a nut-end inertia held by a joint whose torque rises with nut angle. The
-//! renderer (src/synth) simulates test clips with it and `predict` fits and runs it
+//! renderer (tools/scenes/src/synth) simulates test clips with it and `predict` fits and runs it
 //! (src/mechanics/fit.rs; docs/mechanics.md, section 14).
 //! Integrated with a fixed small step (semi-implicit Euler) and sampled at any sorted list of
 //! times. Everything is SI inside (rad, rad/s, N·m, N·m/rad, kg·m², s); angles are positive in
@@ -27,7 +27,7 @@ use std::f64::consts::PI;
 
 /// The nut end's joint: a hard joint that rises linearly in torque with nut angle after snug.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Joint {
+pub struct Joint {
     /// Torque to keep the nut turning at the snug point (θ_n = 0), N·m.
     pub snug_nm: f64,
     /// Joint rate, N·m/rad.
@@ -46,7 +46,7 @@ impl Joint {
 
 /// Every constant of the model, in SI.
 #[derive(Debug, Clone, PartialEq)]
-pub(crate) struct Model {
+pub struct Model {
     /// Drive-end (anvil, flag disc, bar drive end) inertia, kg·m².
     pub drive_inertia: f64,
     /// Nut-end (socket, nut) inertia, kg·m².
@@ -76,7 +76,7 @@ pub(crate) struct Model {
 
 /// The state at one instant.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
-pub(crate) struct State {
+pub struct State {
     /// Drive-end angle, rad.
     pub theta_d: f64,
     /// Drive-end speed, rad/s.
@@ -98,7 +98,7 @@ impl State {
 
 /// Events found while integrating, in continuous time.
 #[derive(Debug, Clone, PartialEq, Default)]
-pub(crate) struct Events {
+pub struct Events {
     /// For each blow, the first time the nut broke away after that blow started (before the
     /// next blow), s.
     pub nut_slip: Vec<Option<f64>>,

@@ -6,6 +6,10 @@
 //! temporary name in the same folder and renamed into place when complete, so an interrupted
 //! run never leaves a half-written file under a final name (a rename within one folder is
 //! atomic on POSIX file systems and replaces the target on Windows).
+//!
+//! Layering: the last stage. It reads every earlier stage's results through
+//! [`crate::Analysis`] and must never import the CLI; `write.rs` reads the list of still
+//! extensions from `batch`.
 
 use std::path::{Path, PathBuf};
 

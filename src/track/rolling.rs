@@ -293,6 +293,10 @@ pub fn fastest_rate(trace: &Trace) -> Option<(f64, f64)> {
 }
 
 #[cfg(test)]
+#[path = "rolling_scene_tests.rs"]
+mod scene_tests;
+
+#[cfg(test)]
 mod tests {
     use super::*;
 

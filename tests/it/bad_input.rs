@@ -232,7 +232,7 @@ mod video {
     #[test]
     fn variable_frame_rate_is_a_warning_and_frames_still_count() {
         use twistmark::decode::Frame;
-        use twistmark::encode::{ClipWriter, Codec};
+        use twistmark_scenes::encode::{ClipWriter, Codec};
         let dir = tempfile::tempdir().unwrap();
         let p = dir.path().join("uneven.mkv");
         let mut w = ClipWriter::create(&p, Codec::Ffv1, 32, 24, 30.0).unwrap();

@@ -162,7 +162,7 @@ fn bad_fps_on_analyze_names_the_flag() {
 mod video {
     use super::*;
     use twistmark::decode::{self, Frame};
-    use twistmark::encode::{ClipWriter, Codec};
+    use twistmark_scenes::encode::{ClipWriter, Codec};
 
     fn make_clip(path: &Path, codec: Codec, frames: u64) {
         let (w, h) = (64, 48);

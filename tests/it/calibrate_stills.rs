@@ -1,5 +1,5 @@
 //! `twistmark calibrate --stills` run as the real binary on synthetic stills of the project's
-//! invented test bench (`twistmark::synth`, exact known truth; no real footage): the bar at
+//! invented test bench (`twistmark_scenes::synth`, exact known truth; no real footage): the bar at
 //! rest and held at known torques, drive disc turned by θ = T/k_true, nut still, with seeded
 //! sensor noise and a small camera shift between photos. The fitted k must recover k_true, the
 //! written rig must then report a calibrated stiffness, and bad input must give one-line errors
@@ -11,7 +11,7 @@ use assert_cmd::Command;
 use image::{ImageBuffer, Luma as PxLuma};
 use serde_json::Value;
 use twistmark::decode::{Frame, Luma};
-use twistmark::synth::{Scenario, Truth, render_frame, simulate};
+use twistmark_scenes::synth::{Scenario, Truth, render_frame, simulate};
 
 /// Applied torques of the synthetic check, N·m (0 is the unloaded reference).
 const TORQUES_NM: [f64; 8] = [0.0, 20.0, 40.0, 60.0, 80.0, 100.0, 120.0, 136.0];

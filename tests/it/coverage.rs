@@ -1,6 +1,6 @@
 //! Interval coverage: do the 95 % intervals on each blow's peak torque contain the truth 95 %
 //! of the time? A Monte Carlo over rendered takes of the invented bench with known truth
-//! (`twistmark::synth`; synthetic clips, a check of the method, not of the world): each take
+//! (`twistmark_scenes::synth`; synthetic clips, a check of the method, not of the world): each take
 //! renders a preset with its own noise seed and blow phase, and the rig handed to the analysis
 //! has its shear modulus and section sizes drawn from the uncertainty the intervals claim
 //! (`SHEAR_MODULUS_REL_SIGMA` as a uniform ±2.5 %, `DIMENSION_SIGMA_MM` as a normal spread;
@@ -26,7 +26,7 @@ use rand_chacha::ChaCha8Rng;
 use twistmark::analyze::{AnalyzeOptions, analyze_source};
 use twistmark::decode::MemorySource;
 use twistmark::mechanics::{DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA, SectionSpec};
-use twistmark::synth::{Scenario, render_clip, simulate};
+use twistmark_scenes::synth::{Scenario, render_clip, simulate};
 
 /// One take's blows: (truth peak torque, interval low, interval high) for every matched blow.
 fn take(preset: &str, seed: u64, blows: u32) -> Vec<(f64, f64, f64)> {

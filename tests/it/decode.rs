@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 
 use assert_cmd::Command;
 use twistmark::decode::{self, Frame, Luma};
-use twistmark::encode::{ClipWriter, Codec};
+use twistmark_scenes::encode::{ClipWriter, Codec};
 
 const W: u32 = 96;
 const H: u32 = 64;

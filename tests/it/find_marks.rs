@@ -20,9 +20,9 @@ use serde_json::Value;
 use twistmark::decode::Frame;
 use twistmark::find_marks::{FindMarksOptions, find_marks_frames};
 use twistmark::rig::{Ellipse, Mark};
-use twistmark::synth::{Scenario, Steel, render_clip, simulate};
 use twistmark::track::Tracker;
 use twistmark::units::TimeBase;
+use twistmark_scenes::synth::{Scenario, Steel, render_clip, simulate};
 
 fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

@@ -1,6 +1,6 @@
 //! `find-marks` on random bench layouts it was not tuned on: frame shapes (portrait, 800×600),
 //! the nut on either side, small parts off centre, all on a brushed-steel bench whose streaks
-//! look like short stripes (src/synth/layout.rs). These are rendered scenes of the project's
+//! look like short stripes (tools/scenes/src/synth/layout.rs). These are rendered scenes of the project's
 //! invented bench with exact known truth, not real footage.
 //!
 //! Done means: on every held-out layout the drive and nut pivots are drafted within
@@ -19,10 +19,10 @@ use std::path::Path;
 use twistmark::decode::Frame;
 use twistmark::find_marks::{FindMarksOptions, find_marks_frames};
 use twistmark::rig::{Mark, Rig};
-use twistmark::synth::layout::{HELDOUT_LAYOUT_SEEDS, layout_scenario};
-use twistmark::synth::{render_clip, simulate};
 use twistmark::track::Tracker;
 use twistmark::units::TimeBase;
+use twistmark_scenes::synth::layout::{HELDOUT_LAYOUT_SEEDS, layout_scenario};
+use twistmark_scenes::synth::{render_clip, simulate};
 
 /// What one layout gave.
 struct Outcome {

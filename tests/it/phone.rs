@@ -2,13 +2,13 @@
 //! flag analyses with a rig drawn on the displayed picture; a slow-motion clip (blended frames,
 //! jittered timestamps written into the file) and phones' codecs analyse with every blow
 //! found. Rendered clips with known truth (a check against the renderer, not the world). More
-//! slow-motion cases are checked in memory in `src/synth/phone.rs`.
+//! slow-motion cases are checked in memory in `tools/scenes/src/synth/phone.rs`.
 #![cfg(feature = "ffmpeg")]
 
 use serde_json::Value;
 use twistmark::decode::{Frame, Luma};
-use twistmark::encode::{ClipWriter, Codec};
-use twistmark::synth::{Scenario, render_clip, simulate};
+use twistmark_scenes::encode::{ClipWriter, Codec};
+use twistmark_scenes::synth::{Scenario, render_clip, simulate};
 
 use crate::common::run;
 
@@ -54,7 +54,7 @@ fn analyse(clip: &std::path::Path, rig: &twistmark::Rig, dir: &std::path::Path) 
     serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap()
 }
 
-fn check_blows(report: &Value, truth: &twistmark::synth::Truth, what: &str) {
+fn check_blows(report: &Value, truth: &twistmark_scenes::synth::Truth, what: &str) {
     let blows = report["blows"].as_array().unwrap();
     assert_eq!(
         blows.len(),
@@ -149,7 +149,7 @@ fn ten_bit_hevc_and_h264_high_phone_clips_analyse() {
 /// the captured frames.
 #[test]
 fn a_slow_motion_clip_with_jittered_timestamps_in_the_file_analyses() {
-    use twistmark::synth::phone::{PhoneSpec, phone_clip};
+    use twistmark_scenes::synth::phone::{PhoneSpec, phone_clip};
     let sc = phone_scene();
     let truth = simulate(&sc);
     let clip = phone_clip(&sc, &truth, &PhoneSpec::default());

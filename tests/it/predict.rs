@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 use twistmark::mechanics::SectionSpec;
-use twistmark::synth::{Scenario, simulate};
+use twistmark_scenes::synth::{Scenario, simulate};
 
 use super::common::{fixture, one_line_error, run};
 

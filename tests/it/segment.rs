@@ -1,5 +1,5 @@
 //! Segmentation and per-blow metrics against the synthetic torsional blow model's truth
-//! (`twistmark::synth`, the project's own invented test bench: a check with known truth).
+//! (`twistmark_scenes::synth`, the project's own invented test bench: a check with known truth).
 //! The truth uses exactly the report interface's definitions, so fields compare one to one.
 //!
 //! The project's accuracy targets: no missed and no extra blows; per-blow nut advance mean absolute
@@ -9,8 +9,8 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use twistmark::mechanics::blow_metrics;
 use twistmark::segment::find_blows;
-use twistmark::synth::{Scenario, Truth, simulate};
 use twistmark::{Angle, TimeBase, Trace};
+use twistmark_scenes::synth::{Scenario, Truth, simulate};
 
 /// The truth's angles as a tracker would hand them over, with seeded Gaussian noise of
 /// `noise_deg` on each end and `gaps` short runs of lost samples.

@@ -8,10 +8,10 @@ use std::path::Path;
 
 use twistmark::Warning;
 use twistmark::rig::Rig;
-use twistmark::synth::side::SideScene;
-use twistmark::synth::side_random::{SideClip, held_out_side_seeds, random_side_clip};
 use twistmark::track::Tracker;
 use twistmark::units::TimeBase;
+use twistmark_scenes::synth::side::SideScene;
+use twistmark_scenes::synth::side_random::{SideClip, held_out_side_seeds, random_side_clip};
 
 /// Measures the bar angle per frame (relative to frame 0, degrees) for the true angles
 /// `truth_deg` (absolute, from facing the camera).
@@ -198,7 +198,7 @@ fn analyze_accepts_a_side_view_rig_end_to_end() {
 
 // --- Side views under a lamp's line (randomised scenes, exact truth) ---------------------
 //
-// `twistmark::synth::side_random` draws side views with a static specular line along the bar,
+// `twistmark_scenes::synth::side_random` draws side views with a static specular line along the bar,
 // paint of any colour, one to three stripes, colour or monochrome cameras, and motions that
 // carry the paint across the line or round the back of the bar. Rendered clips with known
 // truth are the checks. Targets: angle RMS ≤ 0.5° over the measured frames, and at least 95 %
@@ -352,7 +352,7 @@ fn a_static_line_is_not_taken_for_white_paint() {
     sc.paint = 0.85;
     sc.noise_sigma = 0.006;
     sc.seed = 5;
-    sc.lamp = Some(twistmark::synth::side::LampLine {
+    sc.lamp = Some(twistmark_scenes::synth::side::LampLine {
         phi_rad: 30f64.to_radians(),
         sigma_rad: 2.5f64.to_radians(),
         peak: 0.45,
@@ -382,7 +382,7 @@ fn a_stripe_round_the_back_reads_null_not_the_lamps_line() {
     // still in view, and must not be read as the paint.
     let mut sc = SideScene::bench(1);
     sc.supersample = 3;
-    sc.lamp = Some(twistmark::synth::side::LampLine {
+    sc.lamp = Some(twistmark_scenes::synth::side::LampLine {
         phi_rad: (-20f64).to_radians(),
         sigma_rad: 2.0f64.to_radians(),
         peak: 0.4,

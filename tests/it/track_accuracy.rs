@@ -1,7 +1,7 @@
 //! Accuracy of the radial-mark tracker against rendered clips with exact known truth.
 //!
 //! The clips are scenes of the project's own invented test bench, rendered by
-//! `twistmark::synth` (synthetic clips with known truth are the check here; no real footage).
+//! `twistmark_scenes::synth` (synthetic clips with known truth are the check here; no real footage).
 //! Each case renders a scenario, runs the tracker over its frames (in memory for lossless
 //! stills, or through an encoded file and the real decoder for H.264 / MJPEG / FFV1), and
 //! compares every per-frame angle with the truth.
@@ -20,9 +20,9 @@ use std::path::Path;
 use proptest::prelude::*;
 use twistmark::decode::Frame;
 use twistmark::rig::{Ellipse, Spin};
-use twistmark::synth::{Flicker, Highlight, Paint, Scenario, Steel, render_frame, simulate};
 use twistmark::track::Tracker;
 use twistmark::{Error, TimeBase};
+use twistmark_scenes::synth::{Flicker, Highlight, Paint, Scenario, Steel, render_frame, simulate};
 
 /// How a case's frames reach the tracker.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -31,7 +31,7 @@ enum Medium {
     Stills,
     /// Encoded to a file and decoded with the real decoder.
     #[cfg(feature = "ffmpeg")]
-    Video(twistmark::encode::Codec),
+    Video(twistmark_scenes::encode::Codec),
 }
 
 impl Medium {
@@ -40,11 +40,11 @@ impl Medium {
             Medium::Stills => "stills".into(),
             #[cfg(feature = "ffmpeg")]
             Medium::Video(c) => match c {
-                twistmark::encode::Codec::Ffv1 => "FFV1".into(),
-                twistmark::encode::Codec::H264 { crf } => format!("H.264 crf {crf}"),
-                twistmark::encode::Codec::Hevc { crf } => format!("HEVC crf {crf}"),
-                twistmark::encode::Codec::Mjpeg { quality } => format!("MJPEG q {quality}"),
-                twistmark::encode::Codec::Mpeg4 { quality } => format!("MPEG-4 q {quality}"),
+                twistmark_scenes::encode::Codec::Ffv1 => "FFV1".into(),
+                twistmark_scenes::encode::Codec::H264 { crf } => format!("H.264 crf {crf}"),
+                twistmark_scenes::encode::Codec::Hevc { crf } => format!("HEVC crf {crf}"),
+                twistmark_scenes::encode::Codec::Mjpeg { quality } => format!("MJPEG q {quality}"),
+                twistmark_scenes::encode::Codec::Mpeg4 { quality } => format!("MPEG-4 q {quality}"),
             },
         }
     }
@@ -52,7 +52,7 @@ impl Medium {
         match self {
             Medium::Stills => true,
             #[cfg(feature = "ffmpeg")]
-            Medium::Video(c) => c == twistmark::encode::Codec::Ffv1,
+            Medium::Video(c) => c == twistmark_scenes::encode::Codec::Ffv1,
         }
     }
 }
@@ -88,7 +88,7 @@ fn rms(e: &[f64]) -> f64 {
     (e.iter().map(|x| x * x).sum::<f64>() / e.len() as f64).sqrt()
 }
 
-fn frames_of(case: &Case, truth: &twistmark::synth::Truth) -> Vec<Frame> {
+fn frames_of(case: &Case, truth: &twistmark_scenes::synth::Truth) -> Vec<Frame> {
     let n = case.limit.map_or(truth.frames, |l| l.min(truth.frames));
     let rendered: Vec<Frame> = (0..n).map(|i| render_frame(&case.sc, truth, i)).collect();
     match case.medium {
@@ -98,7 +98,7 @@ fn frames_of(case: &Case, truth: &twistmark::synth::Truth) -> Vec<Frame> {
             let dir = tempfile::tempdir().unwrap();
             let path = dir.path().join("clip.mkv");
             let s = &case.sc.scene;
-            let mut w = twistmark::encode::ClipWriter::create(
+            let mut w = twistmark_scenes::encode::ClipWriter::create(
                 &path,
                 codec,
                 s.width,
@@ -350,7 +350,7 @@ fn all_cases() -> Vec<Case> {
     ];
     #[cfg(feature = "ffmpeg")]
     {
-        use twistmark::encode::Codec;
+        use twistmark_scenes::encode::Codec;
         v.extend([
             Case {
                 name: "lossless video",
@@ -510,7 +510,7 @@ fn sixteen_bit_stills_with_noise_within_target() {
 #[cfg(feature = "ffmpeg")]
 #[test]
 fn h264_with_flicker_at_120_hz_within_target() {
-    use twistmark::encode::Codec;
+    use twistmark_scenes::encode::Codec;
     check(Case {
         name: "H.264 + flicker 120 Hz",
         sc: with("fast-tool", |s| flicker(s, 120.0)),
@@ -523,7 +523,7 @@ fn h264_with_flicker_at_120_hz_within_target() {
 #[cfg(feature = "ffmpeg")]
 #[test]
 fn mjpeg_with_noise_flicker_and_highlight_within_target() {
-    use twistmark::encode::Codec;
+    use twistmark_scenes::encode::Codec;
     check(Case {
         name: "MJPEG + noise 1 % + flicker + highlight",
         sc: with("slow-tool", |s| {
@@ -685,7 +685,7 @@ fn h264_with_noise_within_target() {
     check(Case {
         name: "H.264 + noise",
         sc: with("fast-tool", |s| s.effects.noise_sigma = 0.01),
-        medium: Medium::Video(twistmark::encode::Codec::H264 { crf: 18 }),
+        medium: Medium::Video(twistmark_scenes::encode::Codec::H264 { crf: 18 }),
         limit: Some(60),
         pivots_from_first_frame: false,
     });

@@ -703,7 +703,7 @@ mod tests {
 
     #[test]
     fn verdict_matches_the_simulated_slow_and_fast_tools() {
-        // Synthetic check with known physics: the project's simulated bench (src/synth,
+        // Synthetic check with known physics: the project's simulated bench (tools/scenes/src/synth,
         // presets "slow-tool" and "fast-tool", read from branch synth at 37559b5, not
         // merged here). Its bar: 25 mm of 19 mm hex, 220 mm of 12 mm round, 30 mm of 19 mm
         // hex, G 79.3 GPa; drive inertia 2.0e-3 kg·m²; back-drive damping 22 N·m·s/rad.

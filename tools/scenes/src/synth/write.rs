@@ -10,7 +10,7 @@ use image::{ImageBuffer, Luma as PixLuma, Rgb};
 
 use super::{Scenario, Truth, render_clip};
 use crate::decode::{Frame, Luma};
-use crate::error::{Error, Result};
+use crate::{Error, Result};
 
 /// Still image format for [`write_stills`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -8,7 +8,7 @@
 //! the interface, so tests can compare field by field. [`render_frame`] draws any frame.
 //!
 //! ```
-//! use twistmark::synth::{Scenario, render_frame, simulate};
+//! use twistmark_scenes::synth::{Scenario, render_frame, simulate};
 //! let sc = Scenario::preset("fast-tool").unwrap();
 //! let truth = simulate(&sc);
 //! let frame = render_frame(&sc, &truth, 10);

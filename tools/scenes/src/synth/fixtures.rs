@@ -17,8 +17,8 @@ use super::{
     Effects, Flicker, Highlight, Paint, Scenario, Steel, StillFormat, Truth, render_frame, simulate,
 };
 use crate::decode::Frame;
-use crate::error::{Error, Result};
 use crate::rig::{Ellipse, Spin};
+use crate::{Error, Result};
 
 /// Per-frame checksums of the rendered frames, written as `checksums.json`.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -469,10 +469,10 @@ fn similar_size(a: usize, b: usize) -> bool {
 
 fn readme_head() -> String {
     "# Fixtures\n\n\
-Synthetic clips of twistmark's own invented test bench, rendered by `src/synth` with exact known\n\
+Synthetic clips of twistmark's own invented test bench, rendered by `tools/scenes/src/synth` with exact known\n\
 truth. No real footage and no one else's data. Regenerate with `tools/make-fixtures`; check that\n\
 the committed files match this build with `tools/make-fixtures --check` (exit 1 on drift).\n\
-This file is generated; edit `src/synth/fixtures.rs` instead.\n\n\
+This file is generated; edit `tools/scenes/src/synth/fixtures.rs` instead.\n\n\
 Each folder holds `truth.json` (per-frame angles and per-blow values with the report.json\n\
 definitions), `rig.json` (the exact rig), `scenario.json` (every knob), and numbered stills in\n\
 `frames/` and/or video files, and `checksums.json` (the FNV-1a checksum of every rendered frame\n\

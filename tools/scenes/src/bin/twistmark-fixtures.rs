@@ -2,14 +2,14 @@
 //! drift (exit 1): `--check` re-renders every frame in memory and compares the frame
 //! checksums, the JSON sidecars, README.md and the file list (no encoding; CI runs this);
 //! `--check --full` also re-encodes into a temporary folder and compares the media byte for
-//! byte. All the work is in `twistmark::synth::fixtures`; this file only reads the arguments.
+//! byte. All the work is in `twistmark_scenes::synth::fixtures`; this file only reads the arguments.
 //!
 //! Usage: `twistmark-fixtures [--check [--full]] [FIXTURES_DIR]` (default `fixtures`).
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use twistmark::synth::fixtures::{check_fixture_sums, check_fixtures, write_fixtures};
+use twistmark_scenes::synth::fixtures::{check_fixture_sums, check_fixtures, write_fixtures};
 
 fn main() -> ExitCode {
     let mut check = false;

@@ -30,7 +30,7 @@ use ff::{Dictionary, Rational};
 use ffmpeg_next as ff;
 
 use crate::decode::{Frame, Luma, ffmpeg_init};
-use crate::error::{Error, Result};
+use crate::{Error, Result};
 
 /// Which video codec to write, with its one quality setting.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -107,7 +107,7 @@ enum Layout {
 ///
 /// ```no_run
 /// use twistmark::decode::Frame;
-/// use twistmark::encode::{ClipWriter, Codec};
+/// use twistmark_scenes::encode::{ClipWriter, Codec};
 /// let mut w = ClipWriter::create("clip.mkv".as_ref(), Codec::Ffv1, 64, 48, 2000.0)?;
 /// for i in 0..10 {
 ///     w.write(&Frame::from_u8(i, 64, 48, vec![(i * 20) as u8; 64 * 48]))?;
@@ -267,8 +267,10 @@ impl ClipWriter {
     }
 
     /// A clip in PNG-coded packed RGB (R = G = B = luma), so tests can reach the decoder's
-    /// swscale path for formats without a Y plane.
+    /// swscale path for formats without a Y plane. Used by twistmark's decode tests, which
+    /// compile this file as a module of the library (src/lib.rs).
     #[cfg(test)]
+    #[allow(dead_code)]
     pub(crate) fn create_rgb_for_tests(path: &Path, width: u32, height: u32) -> Result<Self> {
         Self::create_inner(
             path,
@@ -628,8 +630,9 @@ impl ClipWriter {
     }
 
     /// Moves the next frame's timestamp (in 1/fps units), so tests can make a clip with a
-    /// variable frame rate.
+    /// variable frame rate. Used by twistmark's decode tests (see above).
     #[cfg(test)]
+    #[allow(dead_code)]
     pub(crate) fn skip_to_pts(&mut self, pts: i64) {
         self.next_pts = pts;
     }
