@@ -12,7 +12,7 @@
 //!    stripe: the weighted mean readout offset ρ̄ (the robust fit's angle is the stripe's
 //!    angle at ρ̄), and the weighted least-squares slope `b_s` of ring angle on ρ, which
 //!    measures ω·T inside the frame, with its variance from the fit's residuals
-//!    ([`readout_row`]). A stripe lying along the rows gives no lever, and a large variance.
+//!    (`readout_row`). A stripe lying along the rows gives no lever, and a large variance.
 //! 2. From the neighbouring frames, ω·T again: `b_n`, the mean of the backward and forward
 //!    differences of the measured angles over their read instants, with a variance of the two
 //!    differences' disagreement (which is large at a blow's sudden rise, small in smooth
