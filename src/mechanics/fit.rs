@@ -27,6 +27,18 @@ pub const FIT_MIN_BLOWS: usize = 3;
 /// any tool fit in it).
 pub const FIT_MAX_CLIP_S: f64 = 2.0;
 
+/// Most integration steps all the fit's simulations together may take: 1.5 billion, about
+/// three and a half minutes on one core of the project's test machine and ten times what a typical clip's fit
+/// takes. When they are spent the minimiser stops where it is and the fit's `termination`
+/// says so (a fit that needs more is one the clip does not constrain).
+pub const FIT_MAX_TOTAL_STEPS: f64 = 1.5e9;
+
+/// Most integration steps one simulation of the fit may take: 4 million, 20 times what the
+/// step of a typical bar needs over [`FIT_MAX_CLIP_S`] (1e-5 s steps). Trial constants that
+/// would need more are rejected as a failed step, which bounds the fit's time whatever the
+/// clip shows.
+pub const FIT_MAX_SIM_STEPS: f64 = 4.0e6;
+
 /// Nut-end (socket and nut) over drive-end inertia the scan starts from. It is fitted: the
 /// nut end's own vibration is faster than the frames, but how far the nut turns once it breaks
 /// away (its overshoot against the joint) depends on it, and measured on rendered clips the
@@ -262,6 +274,9 @@ struct Prepared {
     /// Time the state is at rest, s.
     start: f64,
     sigma_deg: f64,
+    /// Integration steps taken by every simulation so far (bounded by
+    /// [`FIT_MAX_TOTAL_STEPS`]).
+    steps_used: std::cell::Cell<f64>,
 }
 
 /// One evaluation of the model on the clip's frames.
@@ -354,6 +369,7 @@ impl Prepared {
             lead_range,
             start: t0 - 1.0 / obs.fps,
             sigma_deg: obs.noise_deg.max(NOISE_FLOOR_DEG),
+            steps_used: std::cell::Cell::new(0.0),
         })
     }
 
@@ -367,26 +383,47 @@ impl Prepared {
             + self.obs.twist_offset_deg
     }
 
-    fn simulate(&self, q: &[f64]) -> Sim {
+    /// The model's trace at the used frames; None when these constants would need more than
+    /// [`FIT_MAX_SIM_STEPS`] integration steps (a vibration so fast that no clip could show
+    /// it), so that no trial point of the minimiser can make one simulation unbounded.
+    fn simulate(&self, q: &[f64]) -> Option<Sim> {
         let p = physical(q);
         let lead = self.lead(&p);
         let impacts: Vec<f64> = self.base.iter().map(|t| t - lead).collect();
         let start = self.start.min(impacts[0] - 1e-6);
         let m = p.model(self.obs.stiffness_nm_per_rad, impacts, start);
         let times: Vec<f64> = self.frames.iter().map(|&i| self.obs.t_s[i]).collect();
+        let span = times.last().copied().unwrap_or(start) - start;
+        let steps = span / m.step;
+        if !(m.step > 0.0 && steps <= FIT_MAX_SIM_STEPS) {
+            return None;
+        }
+        self.steps_used.set(self.steps_used.get() + steps);
         let (states, ev) = m.run(&times);
-        Sim {
+        Some(Sim {
             twist_deg: states
                 .iter()
                 .map(|s| (s.theta_d - s.theta_n).to_degrees())
                 .collect(),
             nut_deg: states.iter().map(|s| s.theta_n.to_degrees()).collect(),
             peak_nm: ev.peak_spring_torque,
-        }
+        })
+    }
+
+    /// True once the fit's simulations have taken [`FIT_MAX_TOTAL_STEPS`] steps.
+    fn budget_spent(&self) -> bool {
+        self.steps_used.get() >= FIT_MAX_TOTAL_STEPS
     }
 
     fn residuals(&self, q: &[f64]) -> Vec<f64> {
-        let sim = self.simulate(q);
+        let sim = if self.budget_spent() {
+            None
+        } else {
+            self.simulate(q)
+        };
+        let Some(sim) = sim else {
+            return vec![f64::INFINITY; 2 * self.frames.len()];
+        };
         let mut r = Vec::with_capacity(2 * self.frames.len());
         for (j, &i) in self.frames.iter().enumerate() {
             r.push((sim.twist_deg[j] - self.measured_twist(i)) / self.sigma_deg);
@@ -532,6 +569,10 @@ fn minimise(prep: &Prepared, start: &[f64], breakaway_q: f64) -> (f64, Vec<f64>,
     let mut lambda = 1e-3;
     let mut termination = "iteration limit";
     'outer: for _ in 0..LM_MAX_ITERATIONS {
+        if prep.budget_spent() {
+            termination = "step budget spent";
+            break;
+        }
         let r = DVector::from_vec(problem.residuals(&x));
         let jac = problem.jacobian_at(&x);
         evaluations += n + 2;
@@ -747,7 +788,14 @@ pub fn fit(obs: &ClipObs) -> Result<ModelFit> {
         },
         nut_to_drive_inertia_ratio: logv(p.nut_ratio, NUT_RATIO),
     };
-    let sim = prep.simulate(&q);
+    let Some(sim) = prep.simulate(&q) else {
+        return Err(Error::Input {
+            path: "report.json".into(),
+            reason: "the blow model's best fit needs a vibration faster than the fit simulates; \
+                     the trace may not show a tool hammering a nut"
+                .into(),
+        });
+    };
     let fr = &prep.frames;
     let model_blows = per_blow(&prep, |j| (sim.twist_deg[j], sim.nut_deg[j]));
     let meas_blows = per_blow(&prep, |j| {

@@ -378,3 +378,32 @@ fn print_cost_at_truth() {
         eprintln!("cost at truth with fitted lead {:.1}", c(&q));
     }
 }
+
+/// No trial point can make one simulation unbounded: constants whose vibration would need
+/// more than `FIT_MAX_SIM_STEPS` steps (here a drive inertia a million times too small) are
+/// rejected as a failed step (infinite residuals), and the guess itself is simulated.
+#[test]
+fn a_trial_point_needing_too_many_steps_is_rejected() {
+    let sc = Scenario::preset("slow-tool").unwrap();
+    let prep = Prepared::new(&obs_of(&simulate(&sc), 7)).unwrap();
+    let mut q = prep.guess();
+    assert!(prep.simulate(&q).is_some());
+    q[0] -= (1e6_f64).ln();
+    assert!(prep.simulate(&q).is_none());
+    assert!(prep.residuals(&q).iter().all(|r| r.is_infinite()));
+}
+
+/// The fit's total work is bounded: once its simulations have taken `FIT_MAX_TOTAL_STEPS`
+/// steps, no further simulation runs and the minimiser stops, saying why.
+#[test]
+fn the_fit_stops_when_its_step_budget_is_spent() {
+    let sc = Scenario::preset("slow-tool").unwrap();
+    let prep = Prepared::new(&obs_of(&simulate(&sc), 7)).unwrap();
+    let q = prep.guess();
+    assert!(prep.residuals(&q).iter().all(|r| r.is_finite()));
+    prep.steps_used.set(FIT_MAX_TOTAL_STEPS);
+    assert!(prep.residuals(&q).iter().all(|r| r.is_infinite()));
+    let got = minimise(&prep, &q, q[BREAKAWAY]);
+    assert_eq!(got.2, 1, "one evaluation, refused");
+    assert!(!got.0.is_finite());
+}
