@@ -80,6 +80,9 @@ pub struct Analysis {
     /// Whether the bar could spring back between blows: the model against the measured
     /// residual twist (None without a bar or with fewer than two blows).
     pub springback: Option<SpringbackVerdict>,
+    /// The lumped blow model fitted to the clip (`mechanics::fit`): None without a bar,
+    /// `Err(reason)` when it could not be fitted or no peak torque was measured.
+    pub model: Option<std::result::Result<mechanics::ModelFit, String>>,
     /// Every warning from every stage, in pipeline order.
     pub warnings: Vec<Warning>,
 }
@@ -269,6 +272,14 @@ fn analyze_impl(
             warnings.push(w);
         }
     }
+    let obs = mechanics::ClipObs::of(
+        &trace,
+        time_base.fps_hz(),
+        &blows,
+        &summary,
+        [segmentation.drive_noise, segmentation.nut_noise],
+    );
+    let model = mechanics::blow_model(obs, &summary);
     Ok(Analysis {
         clip,
         rig: rig.clone(),
@@ -281,6 +292,7 @@ fn analyze_impl(
         summary,
         bar,
         springback,
+        model,
         warnings,
     })
 }

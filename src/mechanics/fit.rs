@@ -848,27 +848,57 @@ pub fn fit(obs: &ClipObs) -> Result<ModelFit> {
 }
 
 impl ClipObs {
-    /// What the fit needs from a `report.json`.
-    pub fn from_report(r: &crate::report::Report) -> ClipObs {
-        let s = &r.summary;
-        ClipObs {
-            fps: r.fps,
-            t_s: r.trace.t_s.clone(),
-            drive_deg: r.trace.drive_deg.clone(),
-            nut_deg: r.trace.nut_deg.clone(),
-            twist_offset_deg: s.twist_zero.offset_deg,
-            blow_t_s: r.blows.iter().map(|b| b.t_s).collect(),
-            impact_t_s: r.blows.iter().map(|b| b.onset_subframe_t_s).collect(),
-            stiffness_nm_per_rad: s
-                .bar_stiffness_nm_per_rad
-                .or(s.bar_stiffness_nm_per_deg.map(f64::to_degrees))
-                .unwrap_or(f64::NAN),
-            noise_deg: s
-                .drive_noise_deg
+    /// What the fit needs from the earlier stages: the trace (angles at every sample, with
+    /// its times), the blows' onsets and measured sub-frame starts, the bar's stiffness, the
+    /// twist zero and the segmenter's one-frame noise of each end. None without a finite
+    /// stiffness (no bar).
+    pub fn of(
+        trace: &crate::track::Trace,
+        fps_hz: f64,
+        blows: &[super::BlowMetrics],
+        summary: &super::Summary,
+        noise: [Option<crate::units::Angle>; 2],
+    ) -> Option<ClipObs> {
+        let k = summary
+            .stiffness
+            .map(|k| k.nm_per_rad())
+            .filter(|k| k.is_finite())?;
+        let deg = |a: Option<crate::units::Angle>| a.map(|a| a.deg()).filter(|v| v.is_finite());
+        let n = trace.len();
+        Some(ClipObs {
+            fps: fps_hz,
+            t_s: (0..n).map(|i| trace.t_s(i)).collect(),
+            drive_deg: (0..n).map(|i| deg(trace.drive[i])).collect(),
+            nut_deg: (0..n).map(|i| deg(trace.nut[i])).collect(),
+            twist_offset_deg: summary.twist_zero.offset.deg(),
+            blow_t_s: blows.iter().map(|b| b.t_s).collect(),
+            impact_t_s: blows
+                .iter()
+                .map(|b| b.onset_subframe_s.filter(|t| t.is_finite()))
+                .collect(),
+            stiffness_nm_per_rad: k,
+            noise_deg: deg(noise[0])
                 .unwrap_or(0.0)
-                .hypot(s.nut_noise_deg.unwrap_or(0.0)),
-        }
+                .hypot(deg(noise[1]).unwrap_or(0.0)),
+        })
     }
+}
+
+/// The blow model for a clip, as analyze stores it: None without a bar; `Err(reason)` when
+/// it cannot be fitted, or when the clip has no measured peak torque (a model is never fitted
+/// to angles whose torque the self-checks withheld; such a fit could also take minutes).
+pub fn blow_model(
+    obs: Option<ClipObs>,
+    summary: &super::Summary,
+) -> Option<std::result::Result<ModelFit, String>> {
+    let obs = obs?;
+    if summary.peak_torque.is_none_or(|t| !t.nm().is_finite()) {
+        return Some(Err(
+            "no peak torque was measured on this clip (see the warnings), so no blow model was fitted"
+                .into(),
+        ));
+    }
+    Some(fit(&obs).map_err(|e| e.to_string()))
 }
 
 #[cfg(test)]

@@ -43,7 +43,7 @@ pub use blows::{
 pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,
 };
-pub use fit::{ClipObs, Estimate, FitQuality, ModelFit, fit};
+pub use fit::{ClipObs, Estimate, FitQuality, ModelFit, blow_model, fit};
 pub use holding::{HoldingTorque, MAX_SLIPS};
 pub use model_predict::{PREDICTION_CAUTION, PredictInput, PredictedBlow, Prediction, predict};
 pub use sense::{

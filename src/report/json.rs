@@ -522,30 +522,10 @@ pub fn report(a: &Analysis) -> Report {
             drive: MarkJson::of(&a.trace.drive, &a.trace.drive_confidence),
             nut: MarkJson::of(&a.trace.nut, &a.trace.nut_confidence),
         },
-        model: None,
-    }
-    .with_model()
-}
-
-impl Report {
-    /// Adds the fitted blow model under `model` when the report has a bar and a measured
-    /// torque. A clip whose torque was withheld (marks lost, the same mark twice, peaks on
-    /// lost frames) gets a model entry that says why none was fitted: a model fitted to
-    /// angles the self-checks did not trust would predict from numbers nobody measured.
-    fn with_model(mut self) -> Report {
-        if self.summary.bar_stiffness_nm_per_rad.is_some() && self.summary.peak_torque_nm.is_none()
-        {
-            self.model = Some(serde_json::json!({
-                "error": "no peak torque was measured on this clip (see the warnings), so no blow model was fitted"
-            }));
-        } else if self.summary.bar_stiffness_nm_per_rad.is_some() {
-            let obs = crate::mechanics::ClipObs::from_report(&self);
-            self.model = Some(match crate::mechanics::fit(&obs) {
-                Ok(f) => serde_json::to_value(f).unwrap_or(serde_json::Value::Null),
-                Err(e) => serde_json::json!({ "error": e.to_string() }),
-            });
-        }
-        self
+        model: a.model.as_ref().map(|m| match m {
+            Ok(f) => serde_json::to_value(f).unwrap_or(serde_json::Value::Null),
+            Err(e) => serde_json::json!({ "error": e }),
+        }),
     }
 }
 

@@ -225,6 +225,36 @@ pub(crate) mod tests {
         analysis_of(trace, rig)
     }
 
+    /// A clip held in memory: `n` frames of `width`×`height`, 8-bit, no container.
+    pub(crate) fn memory_clip(path: PathBuf, n: usize, width: u32, height: u32) -> ClipInfo {
+        ClipInfo {
+            path,
+            kind: ClipKind::Memory,
+            frames: n as u64,
+            width,
+            height,
+            bit_depth: 8,
+            container_fps_hz: None,
+            codec: "raw".into(),
+            duration_s: None,
+            warnings: Vec::new(),
+            frame_times: None,
+            display_rotation_deg: 0,
+        }
+    }
+
+    /// Timing by the capture rate alone (no timestamps, nothing repeated or made).
+    pub(crate) fn capture_rate_timing() -> crate::timing::Timing {
+        crate::timing::Timing {
+            source: crate::timing::TimingSource::CaptureRate,
+            duplicated_frames: 0,
+            interpolated_frames: 0,
+            median_interval_s: None,
+            worst_interval_s: None,
+            captured_fps_estimate_hz: None,
+        }
+    }
+
     /// The analysis stages after tracking, on any trace.
     pub(crate) fn analysis_of(trace: Trace, rig: crate::rig::Rig) -> Analysis {
         let n = trace.len();
@@ -233,31 +263,11 @@ pub(crate) mod tests {
         let (blows, summary, mut warnings) = blow_metrics(&trace, &segmentation, rig.bar.as_ref());
         warnings.extend(segmentation.warnings.iter().cloned());
         Analysis {
-            clip: ClipInfo {
-                path: PathBuf::from("bench/fast-tool"),
-                kind: ClipKind::Memory,
-                frames: n as u64,
-                width: 320,
-                height: 240,
-                bit_depth: 8,
-                container_fps_hz: None,
-                codec: "raw".into(),
-                duration_s: None,
-                warnings: Vec::new(),
-                frame_times: None,
-                display_rotation_deg: 0,
-            },
+            clip: memory_clip(PathBuf::from("bench/fast-tool"), n, 320, 240),
             rig,
             time_base: tb,
             fps_source: FpsSource::Rig,
-            timing: crate::timing::Timing {
-                source: crate::timing::TimingSource::CaptureRate,
-                duplicated_frames: 0,
-                interpolated_frames: 0,
-                median_interval_s: None,
-                worst_interval_s: None,
-                captured_fps_estimate_hz: None,
-            },
+            timing: capture_rate_timing(),
             trace,
             segmentation,
             blows,
@@ -265,6 +275,7 @@ pub(crate) mod tests {
             warnings,
             bar: None,
             springback: None,
+            model: None,
         }
     }
 

@@ -2,7 +2,6 @@
 
 use super::*;
 use crate::analyze::FpsSource;
-use crate::decode::{ClipInfo, ClipKind};
 use crate::mechanics::{BlowMetrics, Summary};
 use crate::segment::{Blow, Segmentation};
 use crate::track::Trace;
@@ -86,31 +85,11 @@ pub(crate) fn sample_analysis(path: &Path) -> Analysis {
         })
         .collect();
     Analysis {
-        clip: ClipInfo {
-            path: path.to_path_buf(),
-            kind: ClipKind::Memory,
-            frames: n as u64,
-            width: 240,
-            height: 120,
-            bit_depth: 8,
-            container_fps_hz: None,
-            codec: "raw".into(),
-            duration_s: None,
-            warnings: Vec::new(),
-            frame_times: None,
-            display_rotation_deg: 0,
-        },
+        clip: crate::report::tests::memory_clip(path.to_path_buf(), n, 240, 120),
         rig,
         time_base: tb,
         fps_source: FpsSource::Rig,
-        timing: crate::timing::Timing {
-            source: crate::timing::TimingSource::CaptureRate,
-            duplicated_frames: 0,
-            interpolated_frames: 0,
-            median_interval_s: None,
-            worst_interval_s: None,
-            captured_fps_estimate_hz: None,
-        },
+        timing: crate::report::tests::capture_rate_timing(),
         trace,
         segmentation: Segmentation {
             blows,
@@ -132,6 +111,7 @@ pub(crate) fn sample_analysis(path: &Path) -> Analysis {
         warnings: Vec::new(),
         bar: None,
         springback: None,
+        model: None,
     }
 }
 
