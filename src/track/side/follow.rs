@@ -60,7 +60,23 @@ impl Follower<'_> {
                 best = (k, v);
             }
         }
-        let pk = self.phi[best.0 as usize];
+        // The ridge's middle at half its height over the lowest nearby value, not its
+        // highest bin: on a flat-topped stripe (wide paint, or a colour projection that
+        // saturates) the highest bin may sit at an edge.
+        let reach = Self::bin(self.half + 8f64.to_radians()) - Self::bin(0.0);
+        let (fa, fb) = ((best.0 - reach).max(0), (best.0 + reach).min(nb - 1));
+        let floor = (fa..=fb)
+            .map(|k| self.polarity * prof[k as usize])
+            .fold(f32::INFINITY, f32::min);
+        let mid = 0.5 * (best.1 + floor);
+        let (mut l, mut r) = (best.0, best.0);
+        while l > fa && self.polarity * prof[(l - 1) as usize] > mid {
+            l -= 1;
+        }
+        while r < fb && self.polarity * prof[(r + 1) as usize] > mid {
+            r += 1;
+        }
+        let pk = self.phi[((l + r) / 2) as usize];
         if pk.abs() > lim {
             return None;
         }
