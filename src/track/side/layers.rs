@@ -317,13 +317,15 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
         last: None,
         vel: 0.0,
         lost: false,
+        width: None,
     };
     let mut buf = p0.clone();
     correct(&mut buf, &lines);
     // The first frame's reading, or, where the paint sits on or beside a line there, the
     // paint's first-frame place as the guess the follower reacquires from.
     match f.centroid(&buf, phi[pr.bin], half + 1f64.to_radians()) {
-        Some((c, pc)) => {
+        Some((c, pc, w)) => {
+            f.width = Some(w);
             f.last = Some(c);
             out.angle[0] = Some(c);
             out.confidence[0] = (pc / 0.2).clamp(0.0, 1.0);
