@@ -5,13 +5,22 @@
 //! stripe is not measured: the frame is a loss (None), never a guess. With N stripes equally
 //! spaced, each visible one gives θ = φₖ − 2πk/N, averaged with weight cos φₖ. A stripe that
 //! touches the core of a static line along the bar (a lamp's reflection, `layers.rs`) is not
-//! measured either: there the two cannot be told apart. After a loss, every stripe seen in
+//! measured either: there the two cannot be told apart. Self-check: the paint's width in bar
+//! angle does not change as the bar turns (the profile is in bar angle), so a ridge whose width
+//! at half height is not within a factor [`WIDTH_RATIO`] of the stripe's width where it was
+//! first measured is not this stripe alone (paint merged with a line's remains, or only part
+//! of it seen): that frame is a loss, not a reading. After a loss, every stripe seen in
 //! range is a candidate, and the bar angle nearest the last measured one is taken: right
 //! whenever the bar turned less than half the stripe spacing while no stripe was measurable.
 
 use std::f64::consts::{PI, TAU};
 
 use super::{MAX_FACING_DEG, RANGE_DEG, STEP_DEG};
+
+/// Largest factor by which a stripe's width at half height may differ from its width where it
+/// was first measured: the true width is fixed; blur of a pixel, which spans more bar angle
+/// towards the silhouette, and the half-height crossings' noise widen or narrow it a little.
+const WIDTH_RATIO: f64 = 1.5;
 
 /// Follows one stripe pattern (polarity, width, count) through profiles.
 #[derive(Debug, Clone)]
@@ -33,6 +42,8 @@ pub(super) struct Follower<'a> {
     pub vel: f64,
     /// True while no stripe is measured.
     pub lost: bool,
+    /// The stripe's width at half height (rad) where it was first measured, once it was.
+    pub width: Option<f64>,
 }
 
 impl Follower<'_> {
@@ -41,9 +52,9 @@ impl Follower<'_> {
     }
 
     /// Stripe centroid near `guess` (rad) in the profile, within `window` (rad), with its peak
-    /// contrast; None when no stripe is there, it is beyond the measurable range, or it touches
-    /// a static line's core.
-    pub fn centroid(&self, prof: &[f32], guess: f64, window: f64) -> Option<(f64, f32)> {
+    /// contrast and its width at half height (rad); None when no stripe is there, it is beyond
+    /// the measurable range, it touches a static line's core, or its width is not the stripe's.
+    pub fn centroid(&self, prof: &[f32], guess: f64, window: f64) -> Option<(f64, f32, f64)> {
         let lim = MAX_FACING_DEG.to_radians();
         let nb = prof.len() as isize;
         let (lo, hi) = (
@@ -60,8 +71,30 @@ impl Follower<'_> {
                 best = (k, v);
             }
         }
-        let pk = self.phi[best.0 as usize];
+        // The ridge's middle at half its height over the lowest nearby value, not its
+        // highest bin: on a flat-topped stripe (wide paint, or a colour projection that
+        // saturates) the highest bin may sit at an edge.
+        let reach = Self::bin(self.half + 8f64.to_radians()) - Self::bin(0.0);
+        let (fa, fb) = ((best.0 - reach).max(0), (best.0 + reach).min(nb - 1));
+        let floor = (fa..=fb)
+            .map(|k| self.polarity * prof[k as usize])
+            .fold(f32::INFINITY, f32::min);
+        let mid = 0.5 * (best.1 + floor);
+        let (mut l, mut r) = (best.0, best.0);
+        while l > fa && self.polarity * prof[(l - 1) as usize] > mid {
+            l -= 1;
+        }
+        while r < fb && self.polarity * prof[(r + 1) as usize] > mid {
+            r += 1;
+        }
+        let pk = self.phi[((l + r) / 2) as usize];
         if pk.abs() > lim {
+            return None;
+        }
+        let width = (r - l + 1) as f64 * STEP_DEG.to_radians();
+        if let Some(w0) = self.width
+            && !(w0 / WIDTH_RATIO..=w0 * WIDTH_RATIO).contains(&width)
+        {
             return None;
         }
         // Baseline between the profile at pk ± (half + margin).
@@ -98,7 +131,7 @@ impl Follower<'_> {
         {
             return None;
         }
-        (c.abs() <= lim).then_some((c, peak_c))
+        (c.abs() <= lim).then_some((c, peak_c, width))
     }
 
     /// The bar angle (continuous, rad) in the next frame's profile, with its contrast, or None.
@@ -116,7 +149,8 @@ impl Follower<'_> {
             if front.abs() > MAX_FACING_DEG.to_radians() + window {
                 continue;
             }
-            if let Some((c, pc)) = self.centroid(prof, front, window) {
+            if let Some((c, pc, wd)) = self.centroid(prof, front, window) {
+                self.width.get_or_insert(wd);
                 let w = c.cos();
                 let th = last + (c - front);
                 sw += w;
@@ -141,28 +175,29 @@ impl Follower<'_> {
         let last = self.last?;
         let lim = MAX_FACING_DEG.to_radians();
         let step = TAU / f64::from(self.stripes);
-        let mut seen: Vec<(f64, f32)> = Vec::new();
+        let mut seen: Vec<(f64, f32, f64)> = Vec::new();
         let mut g = -lim;
         while g <= lim {
-            if let Some((c, pc)) = self.centroid(prof, g, 6f64.to_radians())
+            if let Some((c, pc, wd)) = self.centroid(prof, g, 6f64.to_radians())
                 && !seen.iter().any(|s| (s.0 - c).abs() < 2f64.to_radians())
             {
-                seen.push((c, pc));
+                seen.push((c, pc, wd));
             }
             g += 8f64.to_radians();
         }
-        let mut best: Option<(f64, f64, f32)> = None;
-        for (c, pc) in seen {
+        let mut best: Option<(f64, f64, f32, f64)> = None;
+        for (c, pc, wd) in seen {
             for k in 0..self.stripes {
                 let th = c - step * f64::from(k);
                 let th = th + TAU * ((last - th) / TAU).round();
                 let d = (th - last).abs();
                 if best.is_none_or(|b| d < b.0) {
-                    best = Some((d, th, pc));
+                    best = Some((d, th, pc, wd));
                 }
             }
         }
-        let (_, th, pc) = best?;
+        let (_, th, pc, wd) = best?;
+        self.width.get_or_insert(wd);
         self.lost = false;
         self.vel = 0.0;
         self.last = Some(th);

@@ -43,6 +43,9 @@ pub(super) struct Solved {
     /// True when every stripe in the first frame was a static line although something moved:
     /// the paint was not told from the lines, and every frame is null.
     pub unresolved: bool,
+    /// The frame in which the paint was first measured, when it could not be followed back to
+    /// the first frame (the zero): then every frame is null.
+    pub first_measured: Option<usize>,
     /// True when the first frame shows any narrow ridge at all.
     pub any_ridge: bool,
 }
@@ -222,6 +225,7 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
         static_lines_deg: Vec::new(),
         still: false,
         unresolved: false,
+        first_measured: None,
         any_ridge: false,
     };
     let Some(p0) = frames.first() else {
@@ -313,15 +317,24 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
         last: None,
         vel: 0.0,
         lost: false,
+        width: None,
     };
     let mut buf = p0.clone();
     correct(&mut buf, &lines);
-    let Some((c, pc)) = f.centroid(&buf, phi[pr.bin], half + 1f64.to_radians()) else {
-        return out;
-    };
-    f.last = Some(c);
-    out.angle[0] = Some(c);
-    out.confidence[0] = (pc / 0.2).clamp(0.0, 1.0);
+    // The first frame's reading, or, where the paint sits on or beside a line there, the
+    // paint's first-frame place as the guess the follower reacquires from.
+    match f.centroid(&buf, phi[pr.bin], half + 1f64.to_radians()) {
+        Some((c, pc, w)) => {
+            f.width = Some(w);
+            f.last = Some(c);
+            out.angle[0] = Some(c);
+            out.confidence[0] = (pc / 0.2).clamp(0.0, 1.0);
+        }
+        None => {
+            f.last = Some(phi[pr.bin]);
+            f.lost = true;
+        }
+    }
     for (i, p) in frames.iter().enumerate().skip(1) {
         buf.clear();
         buf.extend_from_slice(p);
@@ -331,5 +344,40 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
             out.confidence[i] = (pc / 0.2).clamp(0.0, 1.0);
         }
     }
+    if out.angle[0].is_none() {
+        carry_back(frames, &lines, &f, &mut out);
+    }
     out
+}
+
+/// Carries the reading back from the first measured frame to the first frame, following the
+/// paint backwards frame by frame. Angles are relative to the first frame, so when the paint
+/// cannot be followed all the way back (it sits on or beside a static line there), no frame
+/// is read at all and `first_measured` names the frame where the stripe was first measured.
+fn carry_back(frames: &[Vec<f32>], lines: &[Line], f: &Follower<'_>, out: &mut Solved) {
+    let Some(i0) = out.angle.iter().position(Option::is_some) else {
+        return;
+    };
+    let mut b = f.clone();
+    b.last = out.angle[i0];
+    b.vel = 0.0;
+    b.lost = false;
+    let mut buf = Vec::new();
+    for i in (0..i0).rev() {
+        buf.clear();
+        buf.extend_from_slice(&frames[i]);
+        correct(&mut buf, lines);
+        match b.step(&buf) {
+            Some((th, pc)) => {
+                out.angle[i] = Some(th);
+                out.confidence[i] = (pc / 0.2).clamp(0.0, 1.0);
+            }
+            None => break,
+        }
+    }
+    if out.angle[0].is_none() {
+        out.first_measured = Some(i0);
+        out.angle.iter_mut().for_each(|a| *a = None);
+        out.confidence.iter_mut().for_each(|c| *c = 0.0);
+    }
 }

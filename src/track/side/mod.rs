@@ -290,6 +290,12 @@ pub(super) fn settle(t: &mut super::MarkTrack) -> Vec<crate::Warning> {
             t.role.name()
         )));
     }
+    if let Some(i0) = got.first_measured {
+        notes.push(crate::Warning::Note(format!(
+            "{} side mark: its paint sits on or beside a static line along the bar (a reflection) in the first frame and was first measured in frame {i0}, but could not be followed back to the first frame, which is the angles' zero; so no frame is read (no guess). Start the clip where the paint faces the camera away from the bright line (--start-s), or turn the bar so it does",
+            t.role.name()
+        )));
+    }
     if got.still {
         notes.push(crate::Warning::Note(format!(
             "{} side mark: nothing along the bar moved in the whole clip, so its stripe could not be told from a reflection by motion; if the bar turned, its stripe was not seen (check the paint shows in the first frame)",
