@@ -123,6 +123,15 @@ pub enum Warning {
         /// The blow's onset (clip frame index).
         frame: u64,
     },
+    /// The rig's fixed (reference) mark could not be read in the first frame, so the clip was
+    /// measured without it: no camera-shake correction was made.
+    FixedMarkUnread {
+        /// Why the fixed mark's stripe could not be read.
+        reason: String,
+        /// True when the drive and nut marks tighten the same way on screen, so that the turn
+        /// of a camera roll enters both angles alike and cancels in the twist (drive − nut).
+        roll_cancels: bool,
+    },
     /// Any other data-quality note with its own explanation.
     Note(String),
 }
@@ -247,6 +256,36 @@ impl fmt::Display for Warning {
                 "the blow at frame {frame} peaks on frames where a mark was lost, so its peak \
                  twist and torque are null (check the warnings on lost marks)"
             ),
+            Warning::FixedMarkUnread {
+                reason,
+                roll_cancels,
+            } => {
+                write!(
+                    f,
+                    "the fixed (reference) mark could not be read in the first frame ({reason}), \
+                     so camera shake is not removed: the drive and nut are measured about their \
+                     pivots as if the camera stood still. "
+                )?;
+                if *roll_cancels {
+                    write!(
+                        f,
+                        "The turn of a camera roll is the same at both ends and cancels in the \
+                         twist (drive − nut), but the shift that shake or a roll gives each mark \
+                         moves it off its pivot, and that error stays in the twist; "
+                    )?;
+                } else {
+                    write!(
+                        f,
+                        "A camera roll does not enter the drive and nut angles alike here (they \
+                         tighten opposite ways on screen, or one is a side view), so it adds to \
+                         the twist, and so does the shift that shake gives each mark; "
+                    )?;
+                }
+                write!(
+                    f,
+                    "mount the camera firmly, or make the fixed mark stand out from its metal"
+                )
+            }
             Warning::Note(s) => f.write_str(s),
         }
     }

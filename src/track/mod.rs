@@ -14,7 +14,9 @@
 //! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
 //! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
 //! made. Frames where the fixed mark's patch no longer matches the first frame keep the last
-//! good shift and are reported.
+//! good shift and are reported. A fixed mark whose stripe cannot be read in the first frame
+//! is set aside: the clip is measured as if the rig had none, with a warning
+//! ([`Warning::FixedMarkUnread`]).
 //!
 //! Once the clip is done, each mark's angles are corrected for an offset pivot using the
 //! stripe's own direction, which does not depend on the pivot (`refine.rs`); this removes most
@@ -156,6 +158,9 @@ pub struct Tracker {
     shake_lost: Vec<Option<()>>,
     /// Clip indices of the frames the decoder flagged as damaged (not measured).
     damaged: Vec<u64>,
+    /// Why the rig's fixed mark could not be read in the first frame, when it could not: the
+    /// clip is then measured without shake correction, with a warning.
+    fixed_unread: Option<String>,
 }
 
 impl Tracker {
@@ -230,6 +235,7 @@ impl Tracker {
             shift: [0.0, 0.0],
             shake_lost: Vec::new(),
             damaged: Vec::new(),
+            fixed_unread: None,
         })
     }
 
@@ -317,7 +323,10 @@ impl Tracker {
     }
 
     /// The first frame: every mark learns its stripe and the shake estimator its template. The
-    /// fixed mark's stripe is measured here only (a fixed mark without paint is an error). This
+    /// fixed mark's stripe is measured here only. The fixed mark is optional: when its stripe
+    /// cannot be read, the clip is measured without it (no shake correction, and a warning
+    /// from [`Tracker::finish`]) rather than refused, since the drive and nut marks alone give
+    /// the twist; a drive or nut mark without paint is still an error. This
     /// is a clip's costliest step (tens of milliseconds at 720p, while the decoder waits), and
     /// the marks are independent, so the drive mark learns on another thread.
     fn learn(&mut self, frame: FrameRef<'_>) -> Result<()> {
@@ -341,8 +350,17 @@ impl Tracker {
             self.shake = None;
         }
         self.shake_lost.push(Some(()));
-        // Errors in the order the marks are listed in the rig's checks: fixed, drive, nut.
-        fixed_done.transpose()?;
+        // A fixed mark that cannot be read is set aside with its shake correction; an error of
+        // another kind (not a mark's) still stops the clip.
+        match fixed_done.transpose() {
+            Ok(_) => {}
+            Err(Error::Mark { reason, .. }) => {
+                self.fixed = None;
+                self.shake = None;
+                self.fixed_unread = Some(reason);
+            }
+            Err(e) => return Err(e),
+        }
         drive_done?;
         nut_done?;
         Ok(())
@@ -423,6 +441,15 @@ impl Tracker {
             warnings.push(Warning::Note(format!(
                 "fixed mark not matched in frames {a}..={b} (obscured or moved); camera shake correction held its last value there"
             )));
+        }
+        if let Some(reason) = self.fixed_unread.take() {
+            let roll_cancels = self.drive.side.is_none()
+                && self.nut.side.is_none()
+                && self.drive.sign == self.nut.sign;
+            warnings.push(Warning::FixedMarkUnread {
+                reason,
+                roll_cancels,
+            });
         }
         let (mut drive, drive_zero_screen) = rel(&self.drive);
         let (mut nut, nut_zero_screen) = rel(&self.nut);
@@ -624,6 +651,80 @@ mod tests {
         // Without refinement this costs 0.28° RMS on the drive end (measured while developing).
         let (d, n) = rms_with_pivot_error(1.0);
         assert!(d < 0.08 && n < 0.08, "drive {d:.3}°, nut {n:.3}°");
+    }
+
+    /// A rig whose fixed mark points at bare background (no stripe there to read): the clip is
+    /// measured as without a fixed mark, angle for angle, and a typed warning says that shake
+    /// is not removed (synthetic slow-tool clip with known truth). Before, the clip was refused.
+    #[test]
+    fn an_unreadable_fixed_mark_is_set_aside_with_a_warning() {
+        let sc = Scenario::preset("slow-tool").unwrap();
+        let truth = simulate(&sc);
+        let rig = sc.rig();
+        let Some(Mark::Radial(fixed)) = rig.marks.fixed.clone() else {
+            panic!("the slow-tool rig has a radial fixed mark");
+        };
+        let mut plain = rig.clone();
+        plain.marks.fixed = None;
+        // The fixed mark's annulus is painted over with flat grey in every frame.
+        let (w, h) = (sc.scene.width as usize, sc.scene.height as usize);
+        let blank = |f: &mut Frame| {
+            let crate::decode::Luma::U8(d) = &mut f.luma else {
+                panic!("8-bit render");
+            };
+            let [cx, cy] = fixed.pivot;
+            let r = fixed.radius[1] + 2.0;
+            for y in 0..h {
+                for x in 0..w {
+                    if (x as f64 - cx).hypot(y as f64 - cy) <= r {
+                        d[y * w + x] = 90;
+                    }
+                }
+            }
+            f.chroma = None;
+        };
+        let run = |rig: &Rig| {
+            let mut t = Tracker::new(rig, Path::new("r"), sc.scene.width, sc.scene.height).unwrap();
+            for i in 0..40 {
+                let mut f = render_frame(&sc, &truth, i);
+                blank(&mut f);
+                t.push(&f).unwrap();
+            }
+            t.finish(TimeBase::from_fps(1000.0, "t").unwrap())
+        };
+        let (with, w_with) = run(&rig);
+        let (without, w_without) = run(&plain);
+        // Alike to rounding (the marks learn on parallel threads either way).
+        for (a, b) in with
+            .drive
+            .iter()
+            .zip(&without.drive)
+            .chain(with.nut.iter().zip(&without.nut))
+        {
+            let (a, b) = (a.unwrap().deg(), b.unwrap().deg());
+            assert!((a - b).abs() < 1e-5, "{a} vs {b}");
+        }
+        assert_eq!(with.drive.len(), 40);
+        let unread: Vec<&Warning> = w_with
+            .iter()
+            .filter(|w| matches!(w, Warning::FixedMarkUnread { .. }))
+            .collect();
+        assert_eq!(unread.len(), 1, "{w_with:?}");
+        assert!(matches!(
+            unread[0],
+            Warning::FixedMarkUnread {
+                roll_cancels: true,
+                ..
+            }
+        ));
+        let text = unread[0].to_string();
+        assert!(text.contains("shake is not removed"), "{text}");
+        assert!(text.contains("stripe"), "the reason is kept: {text}");
+        assert!(
+            !w_without
+                .iter()
+                .any(|w| matches!(w, Warning::FixedMarkUnread { .. }))
+        );
     }
 
     #[test]
