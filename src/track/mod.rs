@@ -54,7 +54,7 @@ pub use selfcheck::{check_measured, clip_confidence, lost_share};
 
 use polar::PolarGrid;
 use radial::RadialTracker;
-use shake::{Pose, RigidEstimator};
+use shake::{Pose, ShakeEstimator};
 use unwrap::wrap_pi;
 
 /// Per-frame angles of the drive and nut ends.
@@ -157,7 +157,7 @@ pub struct Tracker {
     drive: MarkTrack,
     nut: MarkTrack,
     fixed: Option<MarkTrack>,
-    shake: Option<RigidEstimator>,
+    shake: Option<ShakeEstimator>,
     /// Camera pose of the last registered frame.
     pose: Pose,
     /// Notes on the shake registration (set up once).
@@ -226,7 +226,7 @@ impl Tracker {
                     })
                     .collect();
                 let shake = match m {
-                    Mark::Radial(r) => Some(RigidEstimator::new(r, &avoid, width, height)),
+                    Mark::Radial(r) => Some(ShakeEstimator::new(r, &avoid, width, height)),
                     Mark::Side(_) => None,
                 };
                 (Some(t), shake)

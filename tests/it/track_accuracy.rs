@@ -952,7 +952,10 @@ fn a_covered_fixed_mark_makes_those_frames_null_and_says_so() {
     // The camera's motion is unknown while the fixed mark is covered, so no angle there is a
     // measurement: both ends are null, and measured again once the mark is seen.
     for i in 10..14 {
-        assert!(trace.drive[i].is_none() && trace.nut[i].is_none(), "frame {i}");
+        assert!(
+            trace.drive[i].is_none() && trace.nut[i].is_none(),
+            "frame {i}"
+        );
     }
     assert!(trace.drive[9].is_some() && trace.nut[9].is_some());
     assert!(trace.drive[15].is_some() && trace.nut[15].is_some());

@@ -61,6 +61,11 @@ const MIN_CORRELATION: f64 = 0.75;
 const MIN_INLIERS: f64 = 0.5;
 /// Roll is estimated only when the region's information about it is worth this lever arm, px.
 const MIN_ROLL_LEVER_PX: f64 = 4.0;
+/// Registered frames needed before any roll is applied (see `shrink_roll`).
+const MIN_ROLL_FRAMES: f64 = 20.0;
+/// The rolls' spread over the noise's variance needed before any roll is applied: 2 means a
+/// roll variance at least equal to the noise's (see `shrink_roll`).
+const ROLL_SNR: f64 = 2.0;
 /// The coarse search covers whole-pixel shifts up to this far, px.
 const SEARCH_PX: i64 = 6;
 /// Points used by the coarse search.
@@ -313,21 +318,35 @@ impl RigidEstimator {
     /// The camera's pose in this frame relative to the first, or None when the region does not
     /// match the first frame's (obscured, gone, or moved beyond the search).
     pub fn estimate(&mut self, frame: FrameRef<'_>) -> Option<Pose> {
-        let mut found = self.solve(frame, self.state);
+        let free = self.roll_ok;
+        let mut found = self.solve(frame, self.state, free);
         if found.is_none() && self.state != [0.0; 3] {
-            found = self.solve(frame, [0.0; 3]);
+            found = self.solve(frame, [0.0; 3], free);
         }
         if found.is_none()
             && let Some(start) = self.search(frame)
         {
-            found = self.solve(frame, start);
+            found = self.solve(frame, start, free);
         }
         let (p, var) = found?;
         self.state = p;
+        let roll = self.shrink_roll(p[2], var);
+        // The shift that goes with the roll applied: with the roll held there, the translation
+        // alone is fitted again. When no roll is applied this is the translation-only estimate,
+        // so a clip without roll is corrected exactly as by translation alone; the roll's own
+        // noise (and the constant offset the first frame's template gives it) does not leak
+        // into the shift.
+        let mut shift = [p[0], p[1]];
+        if self.roll_ok
+            && roll != p[2]
+            && let Some((q, _)) = self.solve(frame, [p[0], p[1], roll], false)
+        {
+            shift = [q[0], q[1]];
+        }
         Some(Pose {
             centre: self.centre,
-            shift: [p[0], p[1]],
-            roll: self.shrink_roll(p[2], var),
+            shift,
+            roll,
         })
     }
 
@@ -372,11 +391,19 @@ impl RigidEstimator {
         // turned. The roll is applied only once that spread rejects "noise alone" at three
         // standard deviations (under it, spread/noise has mean about 1 and standard deviation
         // √(2/n), the χ²ₙ₋₁/(n−1) law); below that the positive-part estimate would still
-        // apply noise.
+        // apply noise. The test is repeated on every frame as the sums grow, so a run of
+        // frames would pass it by chance now and then on a clip with no roll at all, and then
+        // the constant template offset would be applied whole (it is in θ, and frame 0, the
+        // angles' zero, does not have it). So the test also waits for `MIN_ROLL_FRAMES` frames
+        // and asks for a roll variance at least as large as the noise's (`ROLL_SNR`): below
+        // that the shrinkage would remove less than half the roll anyway, and a clip without
+        // roll is left as the translation-only estimate leaves it.
         self.roll_sum += theta;
         let mean = self.roll_sum / n;
         let spread = (self.roll_sums[1] / n - mean * mean).max(0.0);
-        let signal = if n >= 2.0 && spread > noise * (1.0 + 3.0 * (2.0 / n).sqrt()) {
+        let signal = if n >= MIN_ROLL_FRAMES
+            && spread > noise * ROLL_SNR.max(1.0 + 3.0 * (2.0 / n).sqrt())
+        {
             spread - noise
         } else {
             0.0
@@ -403,7 +430,13 @@ impl RigidEstimator {
     /// matches the template well enough.
     /// Also returns the variance of the roll, rad² (from the weighted residuals and the
     /// normal matrix).
-    fn solve(&mut self, frame: FrameRef<'_>, start: [f64; 3]) -> Option<([f64; 3], f64)> {
+    /// With `free_roll` false the roll stays at `start`'s and only the translation is fitted.
+    fn solve(
+        &mut self,
+        frame: FrameRef<'_>,
+        start: [f64; 3],
+        free_roll: bool,
+    ) -> Option<([f64; 3], f64)> {
         let n = self.pts.len();
         let mut st = start;
         self.w.iter_mut().for_each(|w| *w = 1.0);
@@ -492,7 +525,7 @@ impl RigidEstimator {
                     *gk += self.sd[i][k] * wr;
                 }
             }
-            if self.roll_ok {
+            if free_roll {
                 let (mut swr, mut sw) = (0.0, 0.0);
                 for i in 0..n {
                     swr += self.w[i] * self.r[i] * self.r[i];
@@ -505,7 +538,7 @@ impl RigidEstimator {
                 let cof = h[0][0] * h[1][1] - h[0][1] * h[1][0];
                 var_roll = s2 * cof / det / (self.lever * self.lever);
             }
-            let delta = if self.roll_ok {
+            let delta = if free_roll {
                 solve3(h, g)?
             } else {
                 let det = h[0][0] * h[1][1] - h[0][1] * h[0][1];
@@ -818,9 +851,16 @@ mod tests {
             let got = est
                 .estimate(render(&tex, w, h, truth, gain, (0.0, 0.0)).view())
                 .expect("registered");
-            let e = (got.shift[0] - shift[0]).hypot(got.shift[1] - shift[1]);
-            let er = (got.roll - truth.roll).to_degrees().abs();
-            assert!(e < 0.02 && er < 0.01, "{shift:?} {roll_deg}°: {got:?}");
+            // The measured pose (the applied roll waits for `MIN_ROLL_FRAMES` frames, and the
+            // applied shift goes with the applied roll).
+            let _ = got;
+            let e = (est.state[0] - shift[0]).hypot(est.state[1] - shift[1]);
+            let er = (est.state[2] - truth.roll).to_degrees().abs();
+            assert!(
+                e < 0.02 && er < 0.01,
+                "{shift:?} {roll_deg}°: {:?}",
+                est.state
+            );
         }
     }
 
@@ -847,9 +887,12 @@ mod tests {
             let got = est
                 .estimate(render(&tex, w, h, truth, 1.0, spin).view())
                 .expect("registered");
-            let e = (got.shift[0] - truth.shift[0]).hypot(got.shift[1] - truth.shift[1]);
-            let er = (got.roll - truth.roll).to_degrees().abs();
-            assert!(e < 0.03 && er < 0.02, "step {k}: {got:?}");
+            // The measured pose (the applied roll waits for `MIN_ROLL_FRAMES` frames, and the
+            // applied shift goes with the applied roll).
+            let _ = got;
+            let e = (est.state[0] - truth.shift[0]).hypot(est.state[1] - truth.shift[1]);
+            let er = (est.state[2] - truth.roll).to_degrees().abs();
+            assert!(e < 0.03 && er < 0.02, "step {k}: {:?}", est.state);
         }
     }
 
