@@ -29,6 +29,15 @@ pub enum Warning {
         /// Last frame of the run (clip frame index, inclusive).
         last_frame: u64,
     },
+    /// The fixed mark's region could not be registered to the first frame in a run of frames
+    /// (obscured, or moved beyond the search), so camera shake is unknown there; every mark's
+    /// angle is null in those frames.
+    ShakeUnregistered {
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+    },
     /// The rig has no bar, so torque fields are null.
     NoBar,
     /// Fewer blows than needed for a blow rate were found.
@@ -149,6 +158,16 @@ impl fmt::Display for Warning {
                 "stills numbering jumps from {after} to {next}: {} frame(s) missing, so times after \
                  the gap assume no frame was lost",
                 next.saturating_sub(*after).saturating_sub(1)
+            ),
+            Warning::ShakeUnregistered {
+                first_frame,
+                last_frame,
+            } => write!(
+                f,
+                "the fixed mark's region did not match the first frame in frames \
+                 {first_frame}..={last_frame}, so camera shake is unknown there and those \
+                 angles are null (check that nothing covers the fixed mark and that the camera \
+                 is held firmly)"
             ),
             Warning::MarkLost {
                 mark,

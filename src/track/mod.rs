@@ -8,15 +8,14 @@
 //! How one radial mark is measured is described in `radial.rs`; the sampling grid (and the
 //! mapping of an oblique disc back to a circle) in `polar.rs`; unwrapping in `unwrap.rs`.
 //!
-//! Camera shake: when the rig has a `fixed` mark, each frame's image translation around it is
-//! estimated by Lucas–Kanade registration against the first frame (`shake.rs`), and the drive
-//! and nut marks are sampled on grids moved by that translation. Camera roll is not corrected:
-//! a tripod camera's shake is translation, and the fixed stripe is usually too short for its
-//! angle to measure roll more finely than it adds noise. Without a fixed mark no correction is
-//! made. Frames where the fixed mark's patch no longer matches the first frame keep the last
-//! good shift and are reported. A fixed mark whose stripe cannot be read in the first frame
-//! is set aside: the clip is measured as if the rig had none, with a warning
-//! ([`Warning::FixedMarkUnread`]).
+//! Camera shake: when the rig has a `fixed` mark, each frame's camera translation and roll are
+//! estimated by a robust rigid registration of the fixed mark's region against the first frame
+//! (`shake/`). Each radial mark is sampled on its grid moved to where the camera motion takes
+//! its pivot, and the roll is subtracted from its angle (side-view marks take the translation
+//! only). Without a fixed mark no correction is made. Frames where the fixed region does not
+//! match the first frame have every angle null, with a warning: the shake there is unknown.
+//! A fixed mark whose stripe cannot be read in the first frame is set aside: the clip is
+//! measured as if the rig had none, with a warning ([`Warning::FixedMarkUnread`]).
 //!
 //! Once the clip is done, each mark's angles are corrected for an offset pivot using the
 //! stripe's own direction, which does not depend on the pivot (`refine.rs`); this removes most
@@ -58,7 +57,7 @@ pub use selfcheck::{check_measured, clip_confidence, lost_share};
 
 use polar::PolarGrid;
 use radial::RadialTracker;
-use shake::ShakeEstimator;
+use shake::{Pose, ShakeEstimator};
 use unwrap::wrap_pi;
 
 /// Per-frame angles of the drive and nut ends.
@@ -143,6 +142,24 @@ struct MarkTrack {
     colour: Option<colour::ColourPlane>,
 }
 
+impl MarkTrack {
+    /// Makes the last frame's measurement null (the camera's motion there is unknown).
+    fn void_last(&mut self) {
+        for a in [self.angle.last_mut(), self.dir_offset.last_mut()]
+            .into_iter()
+            .flatten()
+        {
+            *a = None;
+        }
+        if let Some(c) = self.confidence.last_mut() {
+            *c = 0.0;
+        }
+        if let Some(r) = self.row.last_mut() {
+            *r = None;
+        }
+    }
+}
+
 /// Measures the rig's marks frame by frame.
 pub struct Tracker {
     frames: Vec<u64>,
@@ -152,8 +169,10 @@ pub struct Tracker {
     nut: MarkTrack,
     fixed: Option<MarkTrack>,
     shake: Option<ShakeEstimator>,
-    /// Camera translation (px) of the last frame.
-    shift: [f64; 2],
+    /// Camera pose of the last registered frame.
+    pose: Pose,
+    /// Notes on the shake registration (set up once).
+    shake_notes: Vec<Warning>,
     /// Per frame: `None` where the fixed mark could not be registered.
     shake_lost: Vec<Option<()>>,
     /// Clip indices of the frames the decoder flagged as damaged (not measured).
@@ -216,8 +235,16 @@ impl Tracker {
         let (fixed, shake) = match &rig.marks.fixed {
             Some(m) => {
                 let t = make(Role::Fixed, m)?;
+                // The moving marks' discs are left out of the fixed region.
+                let avoid: Vec<([f64; 2], f64)> = [&rig.marks.drive, &rig.marks.nut]
+                    .into_iter()
+                    .filter_map(|m| match m {
+                        Mark::Radial(r) => Some((r.pivot, r.radius[1] + 3.0)),
+                        Mark::Side(_) => None,
+                    })
+                    .collect();
                 let shake = match m {
-                    Mark::Radial(r) => Some(ShakeEstimator::new(r, width, height)),
+                    Mark::Radial(r) => Some(ShakeEstimator::new(r, &avoid, width, height)),
                     Mark::Side(_) => None,
                 };
                 (Some(t), shake)
@@ -232,7 +259,8 @@ impl Tracker {
             nut,
             fixed,
             shake,
-            shift: [0.0, 0.0],
+            pose: Pose::identity(),
+            shake_notes: Vec::new(),
             shake_lost: Vec::new(),
             damaged: Vec::new(),
             fixed_unread: None,
@@ -305,20 +333,25 @@ impl Tracker {
         if first {
             return self.learn(frame);
         }
-        // Shake: translation at the fixed mark, relative to the first frame; the registration's
-        // own correlation says whether the mark is still seen.
+        // Shake: translation and roll of the fixed region, relative to the first frame; the
+        // registration's own match says whether the region is still seen.
         let mut shake_lost = false;
         if let Some(sh) = self.shake.as_mut() {
             match sh.estimate(frame) {
-                Some(d) => self.shift = d,
+                Some(p) => self.pose = p,
                 None => shake_lost = true,
             }
         }
         self.shake_lost
             .push(if shake_lost { None } else { Some(()) });
-        let shift = self.shift;
-        measure(&mut self.drive, frame, shift, false)?;
-        measure(&mut self.nut, frame, shift, false)?;
+        let pose = self.pose;
+        measure(&mut self.drive, frame, pose, false)?;
+        measure(&mut self.nut, frame, pose, false)?;
+        if shake_lost {
+            // The camera's motion is unknown here: no angle is a measurement.
+            self.drive.void_last();
+            self.nut.void_last();
+        }
         Ok(())
     }
 
@@ -330,7 +363,7 @@ impl Tracker {
     /// is a clip's costliest step (tens of milliseconds at 720p, while the decoder waits), and
     /// the marks are independent, so the drive mark learns on another thread.
     fn learn(&mut self, frame: FrameRef<'_>) -> Result<()> {
-        let shift = self.shift;
+        let pose = self.pose;
         let Tracker {
             drive,
             nut,
@@ -339,15 +372,22 @@ impl Tracker {
             ..
         } = self;
         let (drive_done, (fixed_done, nut_done, shake_ok)) = rayon::join(
-            || measure(drive, frame, shift, true),
+            || measure(drive, frame, pose, true),
             || {
                 let shake_ok = shake.as_mut().is_none_or(|sh| sh.init(frame));
-                let fixed_done = fixed.as_mut().map(|f| measure(f, frame, shift, true));
-                (fixed_done, measure(nut, frame, shift, true), shake_ok)
+                let fixed_done = fixed.as_mut().map(|f| measure(f, frame, pose, true));
+                (fixed_done, measure(nut, frame, pose, true), shake_ok)
             },
         );
         if !shake_ok {
             self.shake = None;
+            self.shake_notes.push(Warning::Note(
+                "the fixed mark's region has too little texture to register, so camera shake is not corrected".into(),
+            ));
+        } else if self.shake.as_ref().is_some_and(|sh| !sh.roll_measured()) {
+            self.shake_notes.push(Warning::Note(
+                "the fixed mark's region does not constrain rotation (it is too plain or too round), so camera roll is not corrected; only its translation is".into(),
+            ));
         }
         self.shake_lost.push(Some(()));
         // A fixed mark that cannot be read is set aside with its shake correction; an error of
@@ -393,11 +433,19 @@ impl Tracker {
                 reinsert_damaged(t, &self.frames, &self.damaged);
             }
         }
-        let rel = |t: &MarkTrack| -> (Vec<Option<Angle>>, Option<Angle>) {
+        let rel = |t: &MarkTrack,
+                   notes: &mut Vec<Warning>|
+         -> (Vec<Option<Angle>>, Option<Angle>) {
             if t.side.is_some() {
                 return side::relative(t);
             }
-            let refined = refine::refine(&t.angle, &t.dir_offset);
+            let (refined, outcome) = refine::refine(&t.angle, &t.dir_offset);
+            if outcome == refine::Outcome::NotSignificant {
+                notes.push(Warning::Note(format!(
+                    "the {} mark's pivot could not be refined from its stripe (the stripe's direction is too scattered over this clip to tell a pivot error from noise, recesses, glints or rims); the rig's pivot is kept, so check it is exact",
+                    t.role.name()
+                )));
+            }
             let zero = refined.first().copied().flatten();
             let v = refined
                 .iter()
@@ -437,10 +485,12 @@ impl Tracker {
                 last_frame,
             });
         }
-        for (a, b) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
-            warnings.push(Warning::Note(format!(
-                "fixed mark not matched in frames {a}..={b} (obscured or moved); camera shake correction held its last value there"
-            )));
+        warnings.append(&mut self.shake_notes);
+        for (first_frame, last_frame) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
+            warnings.push(Warning::ShakeUnregistered {
+                first_frame,
+                last_frame,
+            });
         }
         if let Some(reason) = self.fixed_unread.take() {
             let roll_cancels = self.drive.side.is_none()
@@ -451,8 +501,8 @@ impl Tracker {
                 roll_cancels,
             });
         }
-        let (mut drive, drive_zero_screen) = rel(&self.drive);
-        let (mut nut, nut_zero_screen) = rel(&self.nut);
+        let (mut drive, drive_zero_screen) = rel(&self.drive, &mut warnings);
+        let (mut nut, nut_zero_screen) = rel(&self.nut, &mut warnings);
         // Self-checks: frames whose angles break the rig's physics are null (`selfcheck.rs`).
         warnings.extend(selfcheck::physics(&mut drive, &mut nut, &self.frames));
         let (mut drive_confidence, mut nut_confidence) =
@@ -546,13 +596,11 @@ fn reinsert_damaged(t: &mut MarkTrack, frames: &[u64], damaged: &[u64]) {
     t.dir_offset = vec![None; frames.len()];
 }
 
-/// Measures one mark in one frame, appending to its series; returns the raw angle.
-fn measure(
-    t: &mut MarkTrack,
-    frame: FrameRef<'_>,
-    shift: [f64; 2],
-    first: bool,
-) -> Result<Option<f64>> {
+/// Measures one mark in one frame, appending to its series; returns the raw angle. The mark's
+/// grid is moved to where the camera `pose` takes its pivot, and a radial mark's angle has the
+/// camera's roll taken off.
+fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> Result<Option<f64>> {
+    let shift = pose.shift_at(t.radial.grid().geometry().0);
     if t.side.is_some() {
         return side::measure(t, frame, shift, first);
     }
@@ -588,7 +636,7 @@ fn measure(
             None => radial.measure(frame, shift),
         }
     };
-    t.angle.push(m.map(|m| m.angle));
+    t.angle.push(m.map(|m| m.angle - pose.roll));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
     t.dir_offset.push(m.and_then(|m| {
         refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)

@@ -16,6 +16,12 @@
 //! frame's angle. When the part turns little, the three terms are nearly collinear, but the
 //! fitted curve is still well determined inside the range of angles actually seen, which is
 //! the only place it is used; the constant `a` cancels in relative angles.
+//!
+//! Honesty: frames whose direction is far from the first fit (a glint or a recess crossing
+//! the rings) are left out of the final fit, and the correction is applied only when its change
+//! over the angles seen is at least `MIN_SIGNIFICANCE` standard errors (least-squares
+//! covariance of the kept frames). Otherwise the rig's pivot is kept and the tracker says so.
+//! The fit needs one angle and one direction offset per frame (16 bytes each), no per-ring data.
 
 use super::unwrap::wrap_pi;
 
@@ -41,8 +47,29 @@ const MIN_FRAMES: usize = 8;
 /// standard deviations are left out of the final fit.
 const OUTLIER_SIGMAS: f64 = 4.0;
 
-/// Refined angles, same length as `angles`; `offsets[i]` is frame i's [`direction_offset`].
-pub(crate) fn refine(angles: &[Option<f64>], offsets: &[Option<f64>]) -> Vec<Option<f64>> {
+/// The fitted correction's change over the angles seen must exceed this many of its own
+/// standard errors to be applied (a significance test on the one quantity that is used).
+const MIN_SIGNIFICANCE: f64 = 4.0;
+
+/// What the refinement did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Outcome {
+    /// The correction was applied.
+    Applied,
+    /// Nothing to refine: too few frames, too few angles, or a correction too small to matter.
+    Unneeded,
+    /// A correction large enough to matter was fitted, but it is not distinguishable from the
+    /// stripe direction's own noise (or from features that are not paint pulling it): the rig's
+    /// pivot is kept.
+    NotSignificant,
+}
+
+/// Refined angles, same length as `angles`, and what was done; `offsets[i]` is frame i's
+/// [`direction_offset`].
+pub(crate) fn refine(
+    angles: &[Option<f64>],
+    offsets: &[Option<f64>],
+) -> (Vec<Option<f64>>, Outcome) {
     // (θ_i, direction − θ_i) for every frame with a usable line fit.
     let pts: Vec<(f64, f64)> = angles
         .iter()
@@ -50,7 +77,7 @@ pub(crate) fn refine(angles: &[Option<f64>], offsets: &[Option<f64>]) -> Vec<Opt
         .filter_map(|(th, y)| Some(((*th)?, (*y)?)))
         .collect();
     let Some(mut coef) = fit_curve(&pts, None) else {
-        return angles.to_vec();
+        return (angles.to_vec(), Outcome::Unneeded);
     };
     // One robust pass: drop frames far from the first fit, refit.
     let resid: Vec<f64> = pts
@@ -60,8 +87,9 @@ pub(crate) fn refine(angles: &[Option<f64>], offsets: &[Option<f64>]) -> Vec<Opt
     let mut sorted = resid.clone();
     sorted.sort_by(f64::total_cmp);
     let scale = 1.4826 * sorted[sorted.len() / 2];
-    if scale > 0.0
-        && let Some(c) = fit_curve(&pts, Some((&resid, OUTLIER_SIGMAS * scale)))
+    let keep = (scale > 0.0).then_some((resid.as_slice(), OUTLIER_SIGMAS * scale));
+    if let Some(k) = keep
+        && let Some(c) = fit_curve(&pts, Some(k))
     {
         coef = c;
     }
@@ -80,9 +108,64 @@ pub(crate) fn refine(angles: &[Option<f64>], offsets: &[Option<f64>]) -> Vec<Opt
     degs.sort_unstable();
     degs.dedup();
     if hi - lo < MIN_CORRECTION_RAD || degs.len() < MIN_DISTINCT_DEG {
-        return angles.to_vec();
+        return (angles.to_vec(), Outcome::Unneeded);
     }
-    angles.iter().map(|a| a.map(|t| t + corr(t))).collect()
+    // Significance: the correction's change between the extreme angles seen, against its
+    // standard error from the residuals of the kept frames (least-squares covariance
+    // σ²·(AᵀA)⁻¹). A stripe whose direction is pulled by a recess, a glint or a rim gives a
+    // scattered, poorly determined curve, and then the rig's pivot is kept.
+    let (tmin, tmax) = angles
+        .iter()
+        .flatten()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| {
+            (lo.min(t), hi.max(t))
+        });
+    let g = [0.0, tmax.sin() - tmin.sin(), tmax.cos() - tmin.cos()];
+    let change = g[1] * coef[1] + g[2] * coef[2];
+    match change_std_error(&pts, keep, coef, g) {
+        Some(se) if change.abs() >= MIN_SIGNIFICANCE * se => (
+            angles.iter().map(|a| a.map(|t| t + corr(t))).collect(),
+            Outcome::Applied,
+        ),
+        _ => (angles.to_vec(), Outcome::NotSignificant),
+    }
+}
+
+/// Standard error of gᵀ·coef for the least-squares fit of `fit_curve` over the kept points.
+fn change_std_error(
+    pts: &[(f64, f64)],
+    keep: Option<(&[f64], f64)>,
+    coef: [f64; 3],
+    g: [f64; 3],
+) -> Option<f64> {
+    let mut a = [[0.0f64; 3]; 3];
+    let (mut ss, mut used) = (0.0, 0usize);
+    for (i, &(t, y)) in pts.iter().enumerate() {
+        if let Some((r, lim)) = keep
+            && r[i] > lim
+        {
+            continue;
+        }
+        let row = [1.0, t.sin(), t.cos()];
+        for r in 0..3 {
+            for c in 0..3 {
+                a[r][c] += row[r] * row[c];
+            }
+        }
+        ss += (y - eval(coef, t)).powi(2);
+        used += 1;
+    }
+    if used <= 3 {
+        return None;
+    }
+    let ridge = 1e-9 * used as f64;
+    a[1][1] += ridge;
+    a[2][2] += ridge;
+    let sigma2 = ss / (used - 3) as f64;
+    // gᵀ(AᵀA)⁻¹g = gᵀx with (AᵀA)x = g.
+    let x = solve3(a, g)?;
+    let q = g[0] * x[0] + g[1] * x[1] + g[2] * x[2];
+    (q >= 0.0).then(|| (sigma2 * q).sqrt())
 }
 
 fn eval(c: [f64; 3], t: f64) -> f64 {
@@ -221,7 +304,8 @@ mod tests {
             .map(|i| (-72.0 + 1.0 * i as f64).to_radians())
             .collect();
         let (meas, offsets) = rings_for([0.8, -0.6], 0.0, &angles, &radius);
-        let out = refine(&meas, &offsets);
+        let (out, outcome) = refine(&meas, &offsets);
+        assert_eq!(outcome, Outcome::Applied);
         let raw_err = (meas[49].unwrap() - meas[0].unwrap()) - (angles[49] - angles[0]);
         assert!(raw_err.abs().to_degrees() > 0.3, "{}", raw_err.to_degrees());
         for (i, a) in angles.iter().enumerate() {
@@ -241,11 +325,27 @@ mod tests {
             .map(|i| (10.0 + 1.5 * i as f64).to_radians())
             .collect();
         let (meas, offsets) = rings_for([0.0, 0.0], 2.5, &angles, &radius);
-        let out = refine(&meas, &offsets);
+        let out = refine(&meas, &offsets).0;
         for (i, a) in angles.iter().enumerate() {
             let err = (out[i].unwrap() - out[0].unwrap()) - (a - angles[0]);
             assert!(err.abs().to_degrees() < 0.01);
         }
+    }
+
+    #[test]
+    fn a_direction_pulled_by_scatter_keeps_the_rig_pivot() {
+        // The direction offsets replaced by seeded scatter far larger than any pivot error's
+        // signature (as a glint or a recess crossing the rings would give): not applied.
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let angles: Vec<Option<f64>> = (0..60)
+            .map(|i| Some((-20.0 + 0.8 * i as f64).to_radians()))
+            .collect();
+        let offsets: Vec<Option<f64>> =
+            (0..60).map(|_| Some(rng.random_range(-0.2..0.2))).collect();
+        let (out, outcome) = refine(&angles, &offsets);
+        assert_ne!(outcome, Outcome::Applied);
+        assert_eq!(out, angles);
     }
 
     #[test]

@@ -6,7 +6,7 @@
 //! mark's band), in 8-bit sample units, from three frames in a row, s₋, s, s₊:
 //!
 //! Before either test, a change of the whole picture's brightness between the frames compared
-//! (lamp flicker) is taken out by a gain and offset fitted over the region ([`affine_match`]):
+//! (lamp flicker) is taken out by a gain and offset fitted over the region (`affine_match`):
 //! the tests read noise, and a lamp's smooth swing is not noise. Without this, a noise-free
 //! clip under a flickering lamp had most of its frames flagged as blends (they lie on the line
 //! between their neighbours) and its peaks read from the few left.

@@ -1,5 +1,5 @@
-//! Camera shake from the rig's `fixed` mark: the translation of the image around that mark in
-//! each frame, relative to the first frame.
+//! Camera translation from a square patch around the rig's `fixed` mark, relative to the first
+//! frame: the estimate used whenever no moving mark lies in that patch (see `mod.rs`).
 //!
 //! Method: Lucas–Kanade image registration in its inverse-compositional form (Baker & Matthews,
 //! "Lucas-Kanade 20 Years On: A Unifying Framework", IJCV 56 (2004) 221–255), for a pure
@@ -25,6 +25,8 @@
 use crate::decode::{FrameRef, LumaRef};
 use crate::rig::RadialMark;
 
+use super::kernel::folded_kernel;
+
 /// Largest number of template pixels used.
 const MAX_POINTS: usize = 256;
 /// Edge-direction classes the template pixels are spread over (over 180°).
@@ -37,7 +39,7 @@ const MIN_CORRELATION: f64 = 0.8;
 const CONVERGED_PX: f64 = 2e-3;
 
 /// Estimates the image translation around the fixed mark.
-pub(crate) struct ShakeEstimator {
+pub(crate) struct PatchEstimator {
     pts: Vec<[f64; 2]>,
     tmpl: Vec<f32>,
     gx: Vec<f32>,
@@ -66,9 +68,9 @@ pub(crate) struct ShakeEstimator {
     corners: [i64; 4],
 }
 
-impl ShakeEstimator {
+impl PatchEstimator {
     /// Plans the patch around `mark` in frames of `width × height`.
-    pub fn new(mark: &RadialMark, width: u32, height: u32) -> ShakeEstimator {
+    pub fn new(mark: &RadialMark, width: u32, height: u32) -> PatchEstimator {
         let (w, h) = (width as usize, height as usize);
         let half = mark.radius[1] + 4.0;
         let x0 = ((mark.pivot[0] - half).floor() as i64).max(1) as usize;
@@ -93,7 +95,7 @@ impl ShakeEstimator {
         let ey = (y1 + REGION_MARGIN_PX).min(h - 1);
         let size = [ex - ox + 1, ey - oy + 1];
         let cells = size[0] * size[1];
-        ShakeEstimator {
+        PatchEstimator {
             pts,
             tmpl: vec![0.0; n],
             gx: vec![0.0; n],
@@ -344,7 +346,7 @@ impl ShakeEstimator {
                 // The six rows a later point's block reads.
                 let ([x, y], _) = self.cell(p, d);
                 let first = (oy + y.saturating_sub(2)) * fw + ox + x.saturating_sub(2);
-                super::gather::prefetch_rows(v, first, fw, 6);
+                super::super::gather::prefetch_rows(v, first, fw, 6);
             }
             let ([x0, y0], _) = self.cell(self.pts[i], d);
             if x0 >= 2 && x0 + 3 < sw && y0 >= 2 && y0 + 3 < sh {
@@ -438,7 +440,7 @@ impl ShakeEstimator {
             if let Some(&later) = self.corner_at.get(i + PREFETCH_AHEAD) {
                 // The six rows a later point reads: the frame was just decoded, likely on the
                 // other core, so each row is a cache miss that is better started early.
-                super::gather::prefetch_rows(v, start(later), fw, 6);
+                super::super::gather::prefetch_rows(v, start(later), fw, 6);
             }
             let at = start(corner);
             let mut acc = [0.0f32; 8];
@@ -448,7 +450,7 @@ impl ShakeEstimator {
                     acc[u] += row[u].into() * kr[u];
                 }
             }
-            super::sum_lanes(acc)
+            super::super::sum_lanes(acc)
         }))
     }
 
@@ -477,26 +479,6 @@ impl ShakeEstimator {
         }
         [ss, sst, sgx, sgy, sss].map(f64::from)
     }
-}
-
-/// The 6×6 weights (rows top to bottom, 8 columns of which the last two are 0) that give a
-/// point's bilinear sample, at fractions `fx`, `fy` within its pixel, of the frame smoothed
-/// by the binomial kernel, from the raw samples around it (times `scale`). Both passes are
-/// linear, so they fold into one: along x, the bilinear weights (1 − fx, fx) on the smoothed
-/// samples at x0 and x0 + 1 put `(1 − fx)·K[u] + fx·K[u − 1]` on raw column x0 − 2 + u
-/// (K taken as 0 outside its five taps); along y likewise.
-fn folded_kernel(fx: f32, fy: f32, scale: f32) -> [[f32; 8]; 6] {
-    let taps = |f: f32| -> [f32; 6] {
-        std::array::from_fn(|u| {
-            let here = if u < 5 { K[u] } else { 0.0 };
-            let left = if u >= 1 { K[u - 1] } else { 0.0 };
-            (1.0 - f) * here + f * left
-        })
-    };
-    let (kx, ky) = (taps(fx), taps(fy));
-    std::array::from_fn(|r| {
-        std::array::from_fn(|u| if u < 6 { ky[r] * kx[u] * scale } else { 0.0 })
-    })
 }
 
 /// Binomial smoothing kernel [1 4 6 4 1]/16 (σ = 1 px).
@@ -567,7 +549,7 @@ mod tests {
             tighten: None,
             ellipse: None,
         };
-        let mut est = ShakeEstimator::new(&mark, w, h);
+        let mut est = PatchEstimator::new(&mark, w, h);
         est.load(frame.view());
         let sw = est.size[0];
         for whole in [[0i64, 0], [3, -2], [-9, 7], [-30, 30], [12, -14]] {
@@ -596,7 +578,7 @@ mod tests {
         let Some(Mark::Radial(m)) = &rig.marks.fixed else {
             panic!("preset has a fixed mark")
         };
-        let mut est = ShakeEstimator::new(m, sc.scene.width, sc.scene.height);
+        let mut est = PatchEstimator::new(m, sc.scene.width, sc.scene.height);
         assert!(est.init(render_frame(&sc, &truth, 0).view()));
         let frame = render_frame(&sc, &truth, 5);
         for d in [
@@ -636,7 +618,7 @@ mod tests {
         let Some(Mark::Radial(m)) = &rig.marks.fixed else {
             panic!("preset has a fixed mark")
         };
-        let mut est = ShakeEstimator::new(m, sc.scene.width, sc.scene.height);
+        let mut est = PatchEstimator::new(m, sc.scene.width, sc.scene.height);
         let f0 = render_frame(&sc, &truth, 0);
         assert!(est.init(f0.view()));
         let (mut worst, mut sq) = (0.0f64, 0.0f64);
