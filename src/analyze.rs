@@ -41,6 +41,10 @@ pub struct AnalyzeOptions {
     pub zero_frame: Option<u64>,
     /// Which clock times the frames (`--timing`).
     pub timing: crate::timing::TimingChoice,
+    /// Also fit the blow model to the clip (`--fit-model`; docs/mechanics.md, "The blow
+    /// model"). Off by default: the fit takes seconds, several times the time of decoding
+    /// and tracking a typical clip, and `predict` fits it from the report when it is absent.
+    pub fit_model: bool,
 }
 
 /// Where the capture rate came from.
@@ -272,14 +276,18 @@ fn analyze_impl(
             warnings.push(w);
         }
     }
-    let obs = mechanics::ClipObs::of(
-        &trace,
-        time_base.fps_hz(),
-        &blows,
-        &summary,
-        [segmentation.drive_noise, segmentation.nut_noise],
-    );
-    let model = mechanics::blow_model(obs, &summary);
+    let model = opts.fit_model.then(|| {
+        let obs = mechanics::ClipObs::of(
+            &trace,
+            time_base.fps_hz(),
+            &blows,
+            &summary,
+            [segmentation.drive_noise, segmentation.nut_noise],
+        );
+        let peak_measured = summary.peak_torque.is_some_and(|t| t.nm().is_finite());
+        mechanics::blow_model(obs, peak_measured)
+    });
+    let model = model.flatten();
     Ok(Analysis {
         clip,
         rig: rig.clone(),

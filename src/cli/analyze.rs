@@ -53,6 +53,10 @@ pub struct AnalyzeArgs {
     /// given, as phones record), rate (frame index / capture rate) or timestamps.
     #[arg(long, value_name = "CLOCK", default_value = "auto")]
     timing: String,
+    /// Also fit the blow model (for `predict`) and store it in report.json under `model`.
+    /// Takes seconds; without it, `predict` fits the model from the report when asked.
+    #[arg(long)]
+    fit_model: bool,
 }
 
 pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
@@ -71,6 +75,7 @@ pub fn run(a: AnalyzeArgs) -> Result<ExitCode> {
         zero_still: a.zero_still.clone(),
         zero_frame: a.zero_frame,
         timing: super::parse_timing(&a.timing)?,
+        fit_model: a.fit_model,
     };
     let report_opts = twistmark::report::ReportOptions {
         units: twistmark::report::TorqueUnit::parse(&a.units).map_err(anyhow::Error::msg)?,

@@ -40,12 +40,16 @@ pub struct BatchArgs {
     /// with _lbf_ft columns beside them).
     #[arg(long, value_name = "UNIT", default_value = "nm")]
     units: String,
+    /// Also fit each clip's blow model (for `predict`) into its report.json (seconds a clip).
+    #[arg(long)]
+    fit_model: bool,
 }
 
 pub fn run(a: BatchArgs) -> Result<ExitCode> {
     let opts = BatchOptions {
         analyze: twistmark::AnalyzeOptions {
             fps_hz: super::parse_fps(a.fps.as_deref())?,
+            fit_model: a.fit_model,
             ..Default::default()
         },
         jobs: a.jobs.as_deref().map(parse_jobs).transpose()?,

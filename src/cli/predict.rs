@@ -1,13 +1,14 @@
 //! `twistmark predict --report R --rig OTHER [--blow-rate BPM] [--blows N] [--json]`: runs the
-//! blow model fitted to one clip (the report's `model`, written by analyze) with
-//! another bar, blow rate or number of blows, and prints what the model predicts.
+//! blow model fitted to one clip (the report's `model` when `analyze --fit-model` stored it,
+//! else fitted here from the report's trace) with another bar, blow rate or number of blows,
+//! and prints what the model predicts.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 use anyhow::Result;
 use clap::Args;
-use twistmark::mechanics::{ModelFit, PredictInput, predict, stiffness_rel_sigma};
+use twistmark::mechanics::{ModelFit, PredictInput, blow_model, predict, stiffness_rel_sigma};
 use twistmark::report::Report;
 
 /// Arguments of `predict`.
@@ -30,7 +31,8 @@ pub struct PredictArgs {
     json: bool,
 }
 
-/// The report's fitted model (analyze writes it; predict never refits).
+/// The report's blow model: the one `analyze --fit-model` stored, else fitted here from the
+/// report's trace, blows, twist zero and bar (the same fit; it takes seconds).
 fn load_fit(path: &std::path::Path) -> Result<(ModelFit, Report)> {
     let text = twistmark::limits::read_text(path, "report")?;
     let report: Report = serde_json::from_str(&text).map_err(|e| {
@@ -39,20 +41,31 @@ fn load_fit(path: &std::path::Path) -> Result<(ModelFit, Report)> {
             path.display()
         )
     })?;
-    let rerun = "run twistmark analyze on the clip again (with a rig that has a \"bar\") to \
-                 write the fitted model";
+    let rerun = "run twistmark analyze on the clip again (with a rig that has a \"bar\"; \
+                 --fit-model stores the model)";
     let Some(m) = &report.model else {
         if report.summary.bar_stiffness_nm_per_rad.is_none() {
             anyhow::bail!(
-                "{}: the report was made without a bar, so it has no fitted blow model; {rerun}",
+                "{}: the report was made without a bar, so no blow model can be fitted; {rerun}",
                 path.display()
             );
         }
-        anyhow::bail!(
-            "{}: the report has no fitted blow model (`model`; written by an older analyze); \
-             {rerun}",
-            path.display()
-        );
+        if report.peak_torque_measured() {
+            eprintln!(
+                "predict: {} holds no fitted blow model; fitting it to the report's trace \
+                 now (analyze --fit-model stores it)",
+                path.display()
+            );
+        }
+        return match blow_model(report.clip_obs(), report.peak_torque_measured()) {
+            Some(Ok(f)) => Ok((f, report)),
+            Some(Err(e)) => anyhow::bail!("{}: model: {}", path.display(), strip_path(&e)),
+            None => anyhow::bail!(
+                "{}: the report's bar stiffness is not a finite positive number, so no blow \
+                 model can be fitted; {rerun}",
+                path.display()
+            ),
+        };
     };
     if let Some(err) = m.get("error").and_then(|v| v.as_str()) {
         anyhow::bail!("{}: model: {}", path.display(), strip_path(err));

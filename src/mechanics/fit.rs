@@ -23,8 +23,7 @@ use crate::error::{Error, Result};
 pub const FIT_MIN_BLOWS: usize = 3;
 
 /// Longest stretch of clip the fit simulates, s (a longer clip is fitted on its start): it
-/// bounds the fit's time, which `analyze` spends on every clip with a bar (tens of blows of
-/// any tool fit in it).
+/// bounds the fit's time (tens of blows of any tool fit in it).
 pub const FIT_MAX_CLIP_S: f64 = 2.0;
 
 /// Most integration steps all the fit's simulations together may take: 1.5 billion, about
@@ -884,15 +883,16 @@ impl ClipObs {
     }
 }
 
-/// The blow model for a clip, as analyze stores it: None without a bar; `Err(reason)` when
-/// it cannot be fitted, or when the clip has no measured peak torque (a model is never fitted
-/// to angles whose torque the self-checks withheld; such a fit could also take minutes).
+/// The blow model for a clip, as analyze stores it and predict fits it: None without a bar
+/// (`obs` None); `Err(reason)` when it cannot be fitted, or when the clip has no measured
+/// peak torque (`peak_measured` false: a model is never fitted to angles whose torque the
+/// self-checks withheld; such a fit could also take minutes).
 pub fn blow_model(
     obs: Option<ClipObs>,
-    summary: &super::Summary,
+    peak_measured: bool,
 ) -> Option<std::result::Result<ModelFit, String>> {
     let obs = obs?;
-    if summary.peak_torque.is_none_or(|t| !t.nm().is_finite()) {
+    if !peak_measured {
         return Some(Err(
             "no peak torque was measured on this clip (see the warnings), so no blow model was fitted"
                 .into(),

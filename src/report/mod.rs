@@ -33,6 +33,7 @@ mod display;
 mod html;
 mod html_summary;
 mod json;
+mod obs;
 mod provenance;
 mod table;
 mod thumbnail;

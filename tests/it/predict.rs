@@ -21,6 +21,7 @@ fn analysed(dir: &Path) -> PathBuf {
         fx.join("rig.json").as_os_str(),
         "--out".as_ref(),
         dir.join("out").as_os_str(),
+        "--fit-model".as_ref(),
     ]);
     assert_eq!(out.code, 0, "{}", out.stderr);
     dir.join("out").join("report.json")
@@ -87,6 +88,22 @@ fn predicts_a_stiffer_bar_from_an_analysed_clip() {
         assert!(lo <= w && w <= hi, "blow {}", t.index);
     }
     assert_eq!(p["limits"].as_bool(), Some(got <= 136.0));
+
+    // A report written without --fit-model: predict fits the same model from the report's
+    // trace (to its rounding) and says that it does.
+    let mut doc = r.clone();
+    doc.as_object_mut().unwrap().remove("model");
+    let bare = tmp.path().join("no-model.json");
+    std::fs::write(&bare, doc.to_string()).unwrap();
+    let refit = run(args(&bare, &bar, &["--json"]));
+    assert_eq!(refit.code, 0, "{}", refit.stderr);
+    assert!(refit.stderr.contains("fitting"), "{}", refit.stderr);
+    let q: Value = serde_json::from_str(&refit.stdout).unwrap();
+    let again = q["holding_torque_nm"].as_f64().unwrap();
+    assert!(
+        (again - got).abs() <= 0.01 * got,
+        "refitted holding {again:.2} vs stored {got:.2} N·m"
+    );
     let ex = p["extrapolation"].as_array().unwrap();
     assert!(
         ex.iter()
@@ -128,20 +145,28 @@ fn refuses_bad_inputs_with_one_line() {
     std::fs::write(&p, no_bar.to_string()).unwrap();
     one_line_error(&run(args(&p, &bar, &[])), &["no-bar.json", "without a bar"]);
 
-    // A report without the fitted model (an older analyze): predict does not refit, it says
-    // to analyze again; a model of another version likewise.
+    // A report without a stored model whose peak torque was withheld: nothing is fitted.
+    let mut withheld = doc.clone();
+    withheld.as_object_mut().unwrap().remove("model");
+    withheld["summary"]["peak_torque_nm"] = Value::Null;
+    let p = tmp.path().join("withheld.json");
+    std::fs::write(&p, withheld.to_string()).unwrap();
+    one_line_error(
+        &run(args(&p, &bar, &[])),
+        &["withheld.json", "no peak torque"],
+    );
+
+    // A model of another version: predict says to analyze again.
     let mut old = doc.clone();
-    old.as_object_mut().unwrap().remove("model");
-    let p = tmp.path().join("old.json");
-    std::fs::write(&p, old.to_string()).unwrap();
-    one_line_error(&run(args(&p, &bar, &[])), &["old.json", "analyze", "again"]);
     old["model"] = serde_json::json!({ "internal": [0.0, 1.0] });
+    let p = tmp.path().join("old.json");
     std::fs::write(&p, old.to_string()).unwrap();
     one_line_error(&run(args(&p, &bar, &[])), &["old.json", "analyze", "again"]);
 
     // The fit's refusal as analyze stores it (too few blows) is passed on.
     let mut few = doc.clone();
-    let mut obs = obs_of_report(&doc);
+    let parsed: twistmark::report::Report = serde_json::from_value(doc.clone()).unwrap();
+    let mut obs = parsed.clip_obs().expect("the report has a bar");
     obs.blow_t_s.truncate(2);
     let reason = twistmark::mechanics::fit(&obs).unwrap_err().to_string();
     few["model"] = serde_json::json!({ "error": reason });
@@ -177,31 +202,4 @@ fn refuses_bad_inputs_with_one_line() {
         &run(args(&report, &bar, &["--blow-rate", "NaN"])),
         &["--blow-rate"],
     );
-}
-
-/// What the fit reads, taken back out of a written report.json (its trace, blows, twist zero,
-/// stiffness and noise), to ask the library's fit for its refusal on a changed clip.
-fn obs_of_report(doc: &serde_json::Value) -> twistmark::mechanics::ClipObs {
-    let f = |v: &serde_json::Value| v.as_f64();
-    let list = |v: &serde_json::Value| -> Vec<Option<f64>> {
-        v.as_array().unwrap().iter().map(f).collect()
-    };
-    let s = &doc["summary"];
-    let blows = doc["blows"].as_array().unwrap();
-    twistmark::mechanics::ClipObs {
-        fps: f(&doc["fps"]).unwrap(),
-        t_s: list(&doc["trace"]["t_s"])
-            .into_iter()
-            .map(Option::unwrap)
-            .collect(),
-        drive_deg: list(&doc["trace"]["drive_deg"]),
-        nut_deg: list(&doc["trace"]["nut_deg"]),
-        twist_offset_deg: f(&s["twist_zero"]["offset_deg"]).unwrap(),
-        blow_t_s: blows.iter().map(|b| f(&b["t_s"]).unwrap()).collect(),
-        impact_t_s: blows.iter().map(|b| f(&b["onset_subframe_t_s"])).collect(),
-        stiffness_nm_per_rad: f(&s["bar_stiffness_nm_per_rad"]).unwrap(),
-        noise_deg: f(&s["drive_noise_deg"])
-            .unwrap_or(0.0)
-            .hypot(f(&s["nut_noise_deg"]).unwrap_or(0.0)),
-    }
 }
