@@ -132,6 +132,14 @@ pub enum Warning {
         /// The blow's onset (clip frame index).
         frame: u64,
     },
+    /// The clip's peak torque is the highest of only some blows' peaks: the others' peaks were
+    /// not measured (lost marks), and any of them may have been higher.
+    PeakTorqueFromSomeBlows {
+        /// Blows whose peak torque was measured.
+        measured: usize,
+        /// Blows in the clip.
+        blows: usize,
+    },
     /// The rig's fixed (reference) mark could not be read in the first frame, so the clip was
     /// measured without it: no camera-shake correction was made.
     FixedMarkUnread {
@@ -269,6 +277,12 @@ impl fmt::Display for Warning {
                 f,
                 "self-check, frames {first_frame}..={last_frame}: {check}; both marks are null \
                  there (check that each annulus holds its own mark's paint and nothing else)"
+            ),
+            Warning::PeakTorqueFromSomeBlows { measured, blows } => write!(
+                f,
+                "the peak torque is the highest of the {measured} of {blows} blows whose peak was \
+                 measured; the other blows' peaks were lost, and any of them may have been \
+                 higher, so the clip's true peak torque may be higher than printed"
             ),
             Warning::BlowPeakLost { frame } => write!(
                 f,

@@ -364,6 +364,14 @@ pub fn blow_metrics_zeroed(
             .max_by(|a, b| a.nm().total_cmp(&b.nm()))
     };
     let peak_torque = max_torque(&mut out.iter());
+    // The highest of some blows' peaks is only a lower bound on the clip's: say so.
+    let measured = out.iter().filter(|b| b.peak_torque.is_some()).count();
+    if peak_torque.is_some() && measured < out.len() {
+        warnings.push(Warning::PeakTorqueFromSomeBlows {
+            measured,
+            blows: out.len(),
+        });
+    }
     let rating = bar.and_then(|b| b.rating_nm).map(Torque::from_nm);
     let worst_rise = out.iter().filter_map(|b| b.rise_frames).min();
     if let Some(r) = worst_rise.filter(|&r| r < UNDERSAMPLED_RISE_FRAMES) {
@@ -774,6 +782,51 @@ mod tests {
             s.peak_torque_nut_advancing.unwrap().nm(),
             225.0,
             epsilon = 1e-9
+        );
+    }
+
+    /// A blow whose peak falls on a lost frame gets no torque, and the clip's peak torque,
+    /// the highest of the others, carries a warning that it may be low (hand-made trace).
+    #[test]
+    fn a_lost_peak_makes_the_clip_peak_a_lower_bound() {
+        //            0    1    2    3    4    5    6    7    8    9   10
+        let drive = [0.0, 3.0, 4.0, 3.5, 3.0, 3.0, 6.0, 6.5, 5.5, 5.2, 5.2];
+        let nut = [0.0, 0.0, 1.0, 1.5, 1.5, 1.5, 1.5, 2.0, 2.0, 2.0, 2.0];
+        let mut trace = trace_of(&drive, &nut);
+        // The second blow's highest twist (samples 6 and 7) is lost.
+        trace.drive[7] = None;
+        let seg = Segmentation {
+            blows: vec![
+                Blow {
+                    onset: 1,
+                    end: 6,
+                    nut_onset: Some(2),
+                },
+                Blow {
+                    onset: 6,
+                    end: 11,
+                    nut_onset: Some(7),
+                },
+            ],
+            rate_per_min: Some(12_000.0),
+            ..Segmentation::default()
+        };
+        let (b, s, w) = blow_metrics(&trace, &seg, Some(&bar()));
+        assert!(b[1].peak_torque.is_none());
+        assert_relative_eq!(s.peak_torque.unwrap().nm(), 150.0, epsilon = 1e-9);
+        assert!(
+            w.contains(&Warning::PeakTorqueFromSomeBlows {
+                measured: 1,
+                blows: 2
+            }),
+            "{w:?}"
+        );
+        // With every peak measured there is no such warning.
+        let (_, _, w) = blow_metrics(&trace_of(&drive, &nut), &seg, Some(&bar()));
+        assert!(
+            !w.iter()
+                .any(|w| matches!(w, Warning::PeakTorqueFromSomeBlows { .. })),
+            "{w:?}"
         );
     }
 
