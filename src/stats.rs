@@ -1,8 +1,31 @@
-//! Small robust statistics shared by the stages after tracking: medians and quantiles of
-//! finite values, a self-weighted median, the median absolute deviation, and the level of a
-//! trace at a sample (a least-squares line, or the mean of a quiet run). Plain functions of
-//! slices; this module imports nothing from the pipeline (no decode, track, segment,
-//! mechanics or report), so every stage may use it.
+//! Small robust statistics shared by the stages: medians and quantiles of finite values, a
+//! self-weighted median, the median absolute deviation, the level of a trace at a sample (a
+//! least-squares line, or the mean of a quiet run), and the 3×3 linear solve of the small
+//! least-squares fits. Plain functions of slices; this module imports nothing from the
+//! pipeline (no decode, track, segment, mechanics or report), so every stage may use it.
+
+/// Solves the 3×3 system `a·x = b` by Cramer's rule; None when the determinant is not finite
+/// or its magnitude is below `min_det` (singular for the caller's scale).
+pub(crate) fn solve3(a: [[f64; 3]; 3], b: [f64; 3], min_det: f64) -> Option<[f64; 3]> {
+    let det = |m: &[[f64; 3]; 3]| {
+        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+    };
+    let d = det(&a);
+    if !d.is_finite() || d.abs() < min_det {
+        return None;
+    }
+    let mut x = [0.0; 3];
+    for (c, xc) in x.iter_mut().enumerate() {
+        let mut m = a;
+        for r in 0..3 {
+            m[r][c] = b[r];
+        }
+        *xc = det(&m) / d;
+    }
+    Some(x)
+}
 
 /// Median of finite values (None when empty).
 pub(crate) fn median(v: &[f64]) -> Option<f64> {

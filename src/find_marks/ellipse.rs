@@ -195,26 +195,9 @@ pub(super) fn outline_ellipse(img: &Img, pivot: [f64; 2], s: &Seg) -> Option<Ell
     })
 }
 
-/// Solves a 3×3 linear system by Cramer's rule; None when singular.
+/// Solves a 3×3 linear system; None when singular ([`crate::stats::solve3`]).
 pub(super) fn solve3(m: [[f64; 3]; 3], v: [f64; 3]) -> Option<[f64; 3]> {
-    let det = |m: &[[f64; 3]; 3]| {
-        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
-            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
-            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
-    };
-    let d = det(&m);
-    if d.abs() < 1e-300 || !d.is_finite() {
-        return None;
-    }
-    let mut out = [0.0; 3];
-    for (k, o) in out.iter_mut().enumerate() {
-        let mut mk = m;
-        for i in 0..3 {
-            mk[i][k] = v[i];
-        }
-        *o = det(&mk) / d;
-    }
-    Some(out)
+    crate::stats::solve3(m, v, 1e-300)
 }
 
 #[cfg(test)]

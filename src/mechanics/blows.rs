@@ -650,24 +650,7 @@ fn parabola_top(v: &[Option<f64>], l: usize, r: usize) -> Option<(f64, f64)> {
         }
     }
     let m = [[s[0], s[1], s[2]], [s[1], s[2], s[3]], [s[2], s[3], s[4]]];
-    let det = |m: &[[f64; 3]; 3]| {
-        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
-            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
-            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
-    };
-    let d = det(&m);
-    if d.abs() < 1e-12 {
-        return None;
-    }
-    // Cramer's rule.
-    let mut c = [0.0f64; 3];
-    for (k, ck) in c.iter_mut().enumerate() {
-        let mut mk = m;
-        for row in 0..3 {
-            mk[row][k] = t[row];
-        }
-        *ck = det(&mk) / d;
-    }
+    let c = crate::stats::solve3(m, t, 1e-12)?;
     let f = |x: f64| c[0] + c[1] * x + c[2] * x * x;
     let (xl, xr) = (l as f64 - mid, r as f64 - mid);
     let mut best = f(xl).max(f(xr));
@@ -714,15 +697,9 @@ mod tests {
         .unwrap()
     }
 
-    #[test]
-    fn hand_computed_two_blow_trace() {
-        // Two blows of 5 samples at 1000 fps, onsets at samples 1 and 6, nut onsets at 2 and 7.
-        //            0    1    2    3    4    5    6    7    8    9   10
-        let drive = [0.0, 3.0, 4.0, 3.5, 3.0, 3.0, 6.0, 6.5, 5.5, 5.2, 5.2];
-        let nut = [0.0, 0.0, 1.0, 1.5, 1.5, 1.5, 1.5, 2.0, 2.0, 2.0, 2.0];
-        // twist:   0    3    3    2    1.5  1.5  4.5  4.5  3.5  3.2  3.2
-        let trace = trace_of(&drive, &nut);
-        let seg = Segmentation {
+    /// Two blows of 5 samples at 1000 fps, onsets at samples 1 and 6, nut onsets at 2 and 7.
+    fn two_blows() -> Segmentation {
+        Segmentation {
             blows: vec![
                 Blow {
                     onset: 1,
@@ -737,7 +714,18 @@ mod tests {
             ],
             rate_per_min: Some(12_000.0),
             ..Segmentation::default()
-        };
+        }
+    }
+
+    #[test]
+    fn hand_computed_two_blow_trace() {
+        // Two blows of 5 samples at 1000 fps, onsets at samples 1 and 6, nut onsets at 2 and 7.
+        //            0    1    2    3    4    5    6    7    8    9   10
+        let drive = [0.0, 3.0, 4.0, 3.5, 3.0, 3.0, 6.0, 6.5, 5.5, 5.2, 5.2];
+        let nut = [0.0, 0.0, 1.0, 1.5, 1.5, 1.5, 1.5, 2.0, 2.0, 2.0, 2.0];
+        // twist:   0    3    3    2    1.5  1.5  4.5  4.5  3.5  3.2  3.2
+        let trace = trace_of(&drive, &nut);
+        let seg = two_blows();
         let (b, s, w) = blow_metrics(&trace, &seg, Some(&bar()));
         // One sample before the first blow cannot show the bar at rest: the zero is the
         // first frame, unverified, and a warning says so.
@@ -795,22 +783,7 @@ mod tests {
         let mut trace = trace_of(&drive, &nut);
         // The second blow's highest twist (samples 6 and 7) is lost.
         trace.drive[7] = None;
-        let seg = Segmentation {
-            blows: vec![
-                Blow {
-                    onset: 1,
-                    end: 6,
-                    nut_onset: Some(2),
-                },
-                Blow {
-                    onset: 6,
-                    end: 11,
-                    nut_onset: Some(7),
-                },
-            ],
-            rate_per_min: Some(12_000.0),
-            ..Segmentation::default()
-        };
+        let seg = two_blows();
         let (b, s, w) = blow_metrics(&trace, &seg, Some(&bar()));
         assert!(b[1].peak_torque.is_none());
         assert_relative_eq!(s.peak_torque.unwrap().nm(), 150.0, epsilon = 1e-9);

@@ -238,26 +238,9 @@ fn line_direction(th: f64, rings: &[(f32, f32)], radius: &[f64]) -> Option<f64> 
     Some(th + slope.atan())
 }
 
-/// Solves a 3×3 linear system by Cramer's rule; None when it is singular.
+/// Solves a 3×3 linear system; None when it is singular ([`crate::stats::solve3`]).
 fn solve3(a: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
-    let det = |m: &[[f64; 3]; 3]| {
-        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
-            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
-            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
-    };
-    let d = det(&a);
-    if d.abs() < 1e-12 {
-        return None;
-    }
-    let mut x = [0.0; 3];
-    for (c, xc) in x.iter_mut().enumerate() {
-        let mut m = a;
-        for r in 0..3 {
-            m[r][c] = b[r];
-        }
-        *xc = det(&m) / d;
-    }
-    Some(x)
+    crate::stats::solve3(a, b, 1e-12)
 }
 
 #[cfg(test)]

@@ -670,27 +670,11 @@ fn normal_matrix(sd: &[[f64; 3]], w: &[f64]) -> [[f64; 3]; 3] {
     h
 }
 
-/// Solves a symmetric 3×3 system by Cramer's rule; None when it is singular.
+/// Solves a symmetric 3×3 system; None when it is singular for its scale (the product of
+/// its diagonal's magnitudes; [`crate::stats::solve3`]).
 fn solve3(a: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
-    let det = |m: &[[f64; 3]; 3]| {
-        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
-            - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
-            + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
-    };
-    let d = det(&a);
     let scale = a[0][0].abs() * a[1][1].abs() * a[2][2].abs();
-    if d.is_nan() || d.abs() <= 1e-12 * scale {
-        return None;
-    }
-    let mut x = [0.0; 3];
-    for (c, xc) in x.iter_mut().enumerate() {
-        let mut m = a;
-        for r in 0..3 {
-            m[r][c] = b[r];
-        }
-        *xc = det(&m) / d;
-    }
-    Some(x)
+    crate::stats::solve3(a, b, 1e-12 * scale)
 }
 
 /// The frame smoothed by the binomial kernel and read bilinearly at `q` (luma scaled to 0..1),

@@ -30,26 +30,9 @@ pub(super) struct Projection {
     pub separation: (f64, f64),
 }
 
-/// Solves the symmetric 3×3 system `m x = b` (Cramer's rule); None when singular.
+/// Solves the symmetric 3×3 system `m x = b`; None when singular ([`crate::stats::solve3`]).
 fn solve3(m: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
-    let det3 = |a: [[f64; 3]; 3]| {
-        a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
-            - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
-            + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0])
-    };
-    let d = det3(m);
-    if d.abs() < 1e-300 || !d.is_finite() {
-        return None;
-    }
-    let mut x = [0.0; 3];
-    for (c, xc) in x.iter_mut().enumerate() {
-        let mut a = m;
-        for r in 0..3 {
-            a[r][c] = b[r];
-        }
-        *xc = det3(a) / d;
-    }
-    Some(x)
+    crate::stats::solve3(m, b, 1e-300)
 }
 
 /// (Y′, Cb, Cr) at pixel (x, y) of a colour frame with 8-bit luma.
