@@ -1,7 +1,7 @@
 //! The lumped torsional model of a blow: a drive-end inertia struck by hammer blows, a
 //! torsion bar, and a nut-end inertia held by a joint whose torque rises with nut angle. The
 //! renderer (tools/scenes/src/synth) simulates test clips with it and `predict` fits and runs it
-//! (src/mechanics/fit.rs; docs/mechanics.md, section 14).
+//! (src/mechanics/fit/; docs/mechanics.md, section 14).
 //! Integrated with a fixed small step (semi-implicit Euler) and sampled at any sorted list of
 //! times. Everything is SI inside (rad, rad/s, N·m, N·m/rad, kg·m², s); angles are positive in
 //! the tightening direction and zero at the start of the simulation.
