@@ -119,10 +119,20 @@ impl Trace {
     }
 }
 
+/// How a mark is read: about its pivot (a disc or nut face seen end-on, `radial/`), or along
+/// its bar (a side view, `side/`).
+// A clip has at most three marks, so the radial variant's size costs nothing worth boxing it
+// for (which would put an indirection on the per-frame path).
+#[allow(clippy::large_enum_variant)]
+enum Reader {
+    Radial(RadialTracker),
+    Side(side::SideTracker),
+}
+
 /// One mark being tracked.
 struct MarkTrack {
     role: Role,
-    radial: RadialTracker,
+    reader: Reader,
     /// +1 when tightening is clockwise on screen.
     sign: f64,
     /// Continuous disc-plane angle per frame (roll removed), rad.
@@ -135,14 +145,17 @@ struct MarkTrack {
     row: Vec<Option<rolling::Readout>>,
     /// Per ring: its angle relative to the measurement in the first frame (NaN where unused).
     ring_ref: Vec<f64>,
-    /// A side-view mark's tracker (`side.rs`); its `radial` is then an unused stand-in.
-    side: Option<side::SideTracker>,
     /// The colour projection this mark is tracked on, when colour separates its paint from
     /// its metal better than luma (`colour.rs`); None keeps the luma path.
     colour: Option<colour::ColourPlane>,
 }
 
 impl MarkTrack {
+    /// True for a side-view mark.
+    fn is_side(&self) -> bool {
+        matches!(self.reader, Reader::Side(_))
+    }
+
     /// Makes the last frame's measurement null (the camera's motion there is unknown).
     fn void_last(&mut self) {
         for a in [self.angle.last_mut(), self.dir_offset.last_mut()]
@@ -201,31 +214,29 @@ impl Tracker {
             match mark {
                 Mark::Radial(m) => Ok(MarkTrack {
                     role,
-                    radial: RadialTracker::new(PolarGrid::new(m, width, height)),
+                    reader: Reader::Radial(RadialTracker::new(PolarGrid::new(m, width, height))),
                     sign: m.tighten.map_or(1.0, |t| t.sign()),
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
                     row: Vec::new(),
                     ring_ref: Vec::new(),
-                    side: None,
                     colour: None,
                 }),
                 Mark::Side(m) => Ok(MarkTrack {
                     role,
-                    radial: RadialTracker::new(PolarGrid::new(&side::stand_in(m), width, height)),
                     sign: 1.0,
                     angle: Vec::new(),
                     confidence: Vec::new(),
                     dir_offset: Vec::new(),
                     row: Vec::new(),
                     ring_ref: Vec::new(),
-                    side: Some(side::SideTracker::new(m, width, height).map_err(|reason| {
-                        Error::Mark {
+                    reader: Reader::Side(side::SideTracker::new(m, width, height).map_err(
+                        |reason| Error::Mark {
                             mark: role.name().into(),
                             reason,
-                        }
-                    })?),
+                        },
+                    )?),
                     colour: None,
                 }),
             }
@@ -291,7 +302,7 @@ impl Tracker {
             });
         }
         let first = self.frames.is_empty();
-        let side_view = self.drive.side.is_some() || self.nut.side.is_some();
+        let side_view = self.drive.is_side() || self.nut.is_side();
         if side_view && self.frames.len() >= crate::limits::MAX_SIDE_VIEW_FRAMES {
             return Err(Error::Input {
                 path: "(clip)".into(),
@@ -319,7 +330,7 @@ impl Tracker {
             self.damaged.push(frame.index);
             self.shake_lost.push(Some(()));
             for t in [&mut self.drive, &mut self.nut] {
-                if t.side.is_none() {
+                if !t.is_side() {
                     t.angle.push(None);
                     t.confidence.push(0.0);
                     t.dir_offset.push(None);
@@ -410,7 +421,7 @@ impl Tracker {
     /// (for [`rolling::correct`], once the frames' times are known).
     pub fn readout_rows(&self) -> rolling::ReadoutRows {
         let rows = |t: &MarkTrack| {
-            if t.side.is_some() {
+            if t.is_side() {
                 vec![None; self.frames.len()]
             } else {
                 // In the trace's sense: tightening positive.
@@ -429,16 +440,16 @@ impl Tracker {
         warnings.extend(side::settle(&mut self.nut));
         // A side mark's clip reading covers the frames it kept; damaged frames are null.
         for t in [&mut self.drive, &mut self.nut] {
-            if t.side.is_some() && !self.damaged.is_empty() {
+            if t.is_side() && !self.damaged.is_empty() {
                 reinsert_damaged(t, &self.frames, &self.damaged);
             }
         }
         let rel = |t: &MarkTrack,
                    notes: &mut Vec<Warning>|
          -> (Vec<Option<Angle>>, Option<Angle>) {
-            if t.side.is_some() {
+            let Reader::Radial(radial) = &t.reader else {
                 return side::relative(t);
-            }
+            };
             let (refined, outcome) = refine::refine(&t.angle, &t.dir_offset);
             if outcome == refine::Outcome::NotSignificant {
                 notes.push(Warning::Note(format!(
@@ -457,7 +468,7 @@ impl Tracker {
                 .first()
                 .copied()
                 .flatten()
-                .map(|z| Angle::from_rad(wrap_pi(t.radial.grid().screen_angle(z))));
+                .map(|z| Angle::from_rad(wrap_pi(radial.grid().screen_angle(z))));
             (v, screen)
         };
         for t in [&self.drive, &self.nut] {
@@ -493,9 +504,8 @@ impl Tracker {
             });
         }
         if let Some(reason) = self.fixed_unread.take() {
-            let roll_cancels = self.drive.side.is_none()
-                && self.nut.side.is_none()
-                && self.drive.sign == self.nut.sign;
+            let roll_cancels =
+                !self.drive.is_side() && !self.nut.is_side() && self.drive.sign == self.nut.sign;
             warnings.push(Warning::FixedMarkUnread {
                 reason,
                 roll_cancels,
@@ -600,14 +610,18 @@ fn reinsert_damaged(t: &mut MarkTrack, frames: &[u64], damaged: &[u64]) {
 /// grid is moved to where the camera `pose` takes its pivot, and a radial mark's angle has the
 /// camera's roll taken off.
 fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> Result<Option<f64>> {
-    let shift = pose.shift_at(t.radial.grid().geometry().0);
-    if t.side.is_some() {
-        return side::measure(t, frame, shift, first);
-    }
+    let radial = match &mut t.reader {
+        Reader::Radial(r) => r,
+        Reader::Side(s) => {
+            let shift = pose.shift_at(s.centre());
+            return side::measure(t, frame, shift, first);
+        }
+    };
+    let shift = pose.shift_at(radial.grid().geometry().0);
     if first && frame.chroma.is_some() {
-        t.colour = colour::ColourPlane::learn(frame, t.radial.grid(), shift);
+        t.colour = colour::ColourPlane::learn(frame, radial.grid(), shift);
     }
-    let MarkTrack { radial, colour, .. } = t;
+    let colour = &mut t.colour;
     let m = if first {
         let on_colour = match colour.as_mut() {
             Some(c) => {
@@ -638,13 +652,12 @@ fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> R
     };
     t.angle.push(m.map(|m| m.angle - pose.roll));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
-    t.dir_offset.push(m.and_then(|m| {
-        refine::direction_offset(m.angle, t.radial.rings(), &t.radial.grid().radius)
-    }));
+    t.dir_offset.push(
+        m.and_then(|m| refine::direction_offset(m.angle, radial.rings(), &radial.grid().radius)),
+    );
     if first {
         // Each ring's reading at rest in the first frame: later shears are measured from it.
-        t.ring_ref = t
-            .radial
+        t.ring_ref = radial
             .rings()
             .iter()
             .map(|&(rel, w)| if w > 0.0 { f64::from(rel) } else { f64::NAN })
@@ -652,9 +665,9 @@ fn measure(t: &mut MarkTrack, frame: FrameRef<'_>, pose: Pose, first: bool) -> R
     }
     t.row.push(m.and_then(|m| {
         rolling::readout_row(
-            t.radial.grid(),
+            radial.grid(),
             m.angle,
-            t.radial.rings(),
+            radial.rings(),
             &t.ring_ref,
             shift,
             frame.height,

@@ -308,11 +308,13 @@ mod tests {
                     sc.scene.height,
                 )
                 .unwrap();
-                for m in [&mut t.drive, &mut t.nut] {
-                    m.radial.set_init_min_sig(0.0);
-                }
-                if let Some(f) = t.fixed.as_mut() {
-                    f.radial.set_init_min_sig(0.0);
+                for m in [Some(&mut t.drive), Some(&mut t.nut), t.fixed.as_mut()]
+                    .into_iter()
+                    .flatten()
+                {
+                    if let crate::track::Reader::Radial(r) = &mut m.reader {
+                        r.set_init_min_sig(0.0);
+                    }
                 }
                 let mut sig = [(f64::INFINITY, 0.0f64); 2];
                 let mut err = None;
@@ -326,7 +328,10 @@ mod tests {
                         break;
                     }
                     for (k, m) in [&t.drive, &t.nut].into_iter().enumerate() {
-                        let (last, rf) = m.radial.significance();
+                        let crate::track::Reader::Radial(r) = &m.reader else {
+                            continue;
+                        };
+                        let (last, rf) = r.significance();
                         sig[k].1 = rf;
                         if i > 0 && m.angle.last().copied().flatten().is_some() {
                             sig[k].0 = sig[k].0.min(last / rf);

@@ -46,9 +46,16 @@ pub(crate) struct SideTracker {
     plane: Vec<f32>,
     /// Every frame's profile, in order.
     profiles: Vec<Vec<f32>>,
+    /// The axis's midpoint, px: where the camera's shift is taken for this mark.
+    centre: [f64; 2],
 }
 
 impl SideTracker {
+    /// The axis's midpoint, px: where the camera's shift is taken for this mark.
+    pub(crate) fn centre(&self) -> [f64; 2] {
+        self.centre
+    }
+
     /// Prepares the sampling grid. The axis points must lie inside the frame (the rig check).
     pub(crate) fn new(m: &SideMark, width: u32, height: u32) -> Result<SideTracker, String> {
         let [a, b] = m.axis;
@@ -117,6 +124,7 @@ impl SideTracker {
             ],
             plane: Vec::new(),
             profiles: Vec::new(),
+            centre: [0.5 * (a[0] + b[0]), 0.5 * (a[1] + b[1])],
         })
     }
 
@@ -217,18 +225,6 @@ impl SideTracker {
     }
 }
 
-/// The radial stand-in a side mark's `MarkTrack` carries (never sampled): a tiny annulus at
-/// the axis midpoint, so that the radial fields stay valid without changing their type.
-pub(super) fn stand_in(m: &SideMark) -> crate::rig::RadialMark {
-    let [a, b] = m.axis;
-    crate::rig::RadialMark {
-        pivot: [0.5 * (a[0] + b[0]), 0.5 * (a[1] + b[1])],
-        radius: [0.0, 1.0],
-        tighten: None,
-        ellipse: None,
-    }
-}
-
 /// Measures a side mark in one frame into its track (the side branch of `measure`). Later
 /// frames are read with the whole clip ([`settle`]); until then they hold None.
 pub(super) fn measure(
@@ -237,7 +233,7 @@ pub(super) fn measure(
     shift: [f64; 2],
     first: bool,
 ) -> crate::error::Result<Option<f64>> {
-    let Some(s) = t.side.as_mut() else {
+    let super::Reader::Side(s) = &mut t.reader else {
         return Ok(None);
     };
     let m = if first {
@@ -261,7 +257,7 @@ pub(super) fn measure(
 /// Reads a side mark's whole clip into its track (angles and confidences), with notes on
 /// static lines taken out and colour used; nothing for other marks.
 pub(super) fn settle(t: &mut super::MarkTrack) -> Vec<crate::Warning> {
-    let Some(s) = t.side.as_ref() else {
+    let super::Reader::Side(s) = &t.reader else {
         return Vec::new();
     };
     let got = s.solve();
