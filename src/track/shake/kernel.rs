@@ -4,6 +4,8 @@
 //! estimate locks to preferred sub-pixel phases ("peak locking": Nobach & Honkanen, Exp. Fluids
 //! 38 (2005) 511–515).
 
+use crate::decode::{FrameRef, LumaRef};
+
 /// The 6×6 weights (rows top to bottom, 8 columns of which the last two are 0) that give a
 /// point's bilinear sample, at fractions `fx`, `fy` within its pixel, of the frame smoothed
 /// by the binomial kernel, from the raw samples around it (times `scale`). Both passes are
@@ -26,3 +28,37 @@ pub(super) fn folded_kernel(fx: f32, fy: f32, scale: f32) -> [[f32; 8]; 6] {
 
 /// Binomial smoothing kernel [1 4 6 4 1]/16 (σ = 1 px).
 const K: [f32; 5] = [1.0 / 16.0, 4.0 / 16.0, 6.0 / 16.0, 4.0 / 16.0, 1.0 / 16.0];
+
+/// The frame smoothed by the binomial kernel and read bilinearly at `q` (luma scaled to 0..1),
+/// or None when the 6×6 neighbourhood it reads leaves the frame.
+pub(super) fn sample(frame: FrameRef<'_>, q: [f64; 2]) -> Option<f32> {
+    let (fw, fh) = (frame.width as i64, frame.height as i64);
+    let (xf, yf) = (q[0].floor(), q[1].floor());
+    let (x0, y0) = (xf as i64 - 2, yf as i64 - 2);
+    if !(x0 >= 0 && y0 >= 0 && x0 + 6 <= fw && y0 + 6 <= fh) {
+        return None;
+    }
+    let k = folded_kernel(
+        (q[0] - xf) as f32,
+        (q[1] - yf) as f32,
+        1.0 / frame.max_value(),
+    );
+    let at = (y0 * fw + x0) as usize;
+    let fw = fw as usize;
+    Some(match frame.luma {
+        LumaRef::U8(v) => dot6(v, at, fw, &k),
+        LumaRef::U16(v) => dot6(v, at, fw, &k),
+    })
+}
+
+#[inline(always)]
+fn dot6<T: Copy + Into<f32>>(v: &[T], at: usize, fw: usize, k: &[[f32; 8]; 6]) -> f32 {
+    let mut acc = 0.0f32;
+    for (r, kr) in k.iter().enumerate() {
+        let row = &v[at + r * fw..at + r * fw + 6];
+        for u in 0..6 {
+            acc += row[u].into() * kr[u];
+        }
+    }
+    acc
+}

@@ -36,10 +36,12 @@
 //! The frame is read through the binomial kernel (σ = 1 px) folded with bilinear interpolation
 //! ([`super::kernel::folded_kernel`]), per point, so no region of the frame is copied.
 
-use crate::decode::{FrameRef, LumaRef};
+use crate::decode::FrameRef;
 use crate::rig::RadialMark;
 
-use super::kernel::folded_kernel;
+use super::kernel::sample;
+use super::pose::Pose;
+use super::roll::RollShrink;
 
 /// Largest number of template points.
 const MAX_POINTS: usize = 384;
@@ -61,57 +63,12 @@ const MIN_CORRELATION: f64 = 0.75;
 const MIN_INLIERS: f64 = 0.5;
 /// Roll is estimated only when the region's information about it is worth this lever arm, px.
 const MIN_ROLL_LEVER_PX: f64 = 4.0;
-/// Registered frames needed before any roll is applied (see `shrink_roll`).
-const MIN_ROLL_FRAMES: f64 = 20.0;
-/// The rolls' spread over the noise's variance needed before any roll is applied: 2 means a
-/// roll variance at least equal to the noise's (see `shrink_roll`).
-const ROLL_SNR: f64 = 2.0;
 /// The coarse search covers whole-pixel shifts up to this far, px.
 const SEARCH_PX: i64 = 6;
 /// Points used by the coarse search.
 const SEARCH_POINTS: usize = 96;
 /// Room around the region for the shift, px (points nearer the frame's edge are not used).
 const EDGE_PX: f64 = SEARCH_PX as f64 + 6.0;
-
-/// The camera's motion in one frame relative to the first: a point at `p` in the first frame
-/// appears at `centre + shift + R(roll)·(p − centre)` (screen coordinates, x right, y down;
-/// a positive roll turns the picture clockwise on screen, adding to every screen angle).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Pose {
-    /// The fixed region's centre in the first frame, px.
-    pub centre: [f64; 2],
-    /// The centre's displacement, px.
-    pub shift: [f64; 2],
-    /// The rotation, rad.
-    pub roll: f64,
-}
-
-impl Pose {
-    /// No motion.
-    pub fn identity() -> Pose {
-        Pose {
-            centre: [0.0, 0.0],
-            shift: [0.0, 0.0],
-            roll: 0.0,
-        }
-    }
-
-    /// Where the first frame's point `p` is in this frame.
-    pub fn apply(&self, p: [f64; 2]) -> [f64; 2] {
-        let (s, c) = self.roll.sin_cos();
-        let (dx, dy) = (p[0] - self.centre[0], p[1] - self.centre[1]);
-        [
-            self.centre[0] + self.shift[0] + c * dx - s * dy,
-            self.centre[1] + self.shift[1] + s * dx + c * dy,
-        ]
-    }
-
-    /// How far the first frame's point `p` has moved, px.
-    pub fn shift_at(&self, p: [f64; 2]) -> [f64; 2] {
-        let q = self.apply(p);
-        [q[0] - p[0], q[1] - p[1]]
-    }
-}
 
 /// Estimates the camera's translation and roll from the fixed region.
 pub(crate) struct RigidEstimator {
@@ -126,14 +83,8 @@ pub(crate) struct RigidEstimator {
     roll_ok: bool,
     /// The last good estimate: shift x, shift y, roll (rad).
     state: [f64; 3],
-    /// Running sums over the registered frames: count, Σθ², Σ var(θ) (for the roll's shrinkage).
-    roll_sums: [f64; 3],
-    /// The last frame's measured roll and the running sums of successive differences: count,
-    /// Σ(Δθ)² (the roll noise as the data show it, for the shrinkage).
-    roll_prev: Option<f64>,
-    /// Σθ over the registered frames (the rolls' mean, for their spread about it).
-    roll_sum: f64,
-    roll_diff_sums: [f64; 2],
+    /// The registered frames' rolls, for the decision to apply roll and its shrinkage.
+    shrink: RollShrink,
     /// Scratch: samples, residuals, weights.
     s: Vec<f64>,
     r: Vec<f64>,
@@ -202,10 +153,7 @@ impl RigidEstimator {
             lever: 1.0,
             roll_ok: false,
             state: [0.0; 3],
-            roll_sums: [0.0; 3],
-            roll_prev: None,
-            roll_sum: 0.0,
-            roll_diff_sums: [0.0; 2],
+            shrink: RollShrink::default(),
             s: Vec::new(),
             r: Vec::new(),
             w: Vec::new(),
@@ -330,7 +278,11 @@ impl RigidEstimator {
         }
         let (p, var) = found?;
         self.state = p;
-        let roll = self.shrink_roll(p[2], var);
+        let roll = if self.roll_ok {
+            self.shrink.shrink(p[2], var)
+        } else {
+            0.0
+        };
         // The shift that goes with the roll applied: with the roll held there, the translation
         // alone is fitted again. When no roll is applied this is the translation-only estimate,
         // so a clip without roll is corrected exactly as by translation alone; the roll's own
@@ -348,71 +300,6 @@ impl RigidEstimator {
             shift,
             roll,
         })
-    }
-
-    /// The roll to apply: the measured one shrunk towards zero by its noise. A small region
-    /// measures roll only to a few tenths of a degree per frame, and each mark's pivot is moved
-    /// by the roll times its distance from the fixed region, so an unshrunk noisy roll would add
-    /// more error than it removes. The clip's roll variance s² is estimated from running sums
-    /// (measured variance less the mean variance of the estimates), and each frame's roll θ
-    /// with variance v is applied as θ·s²/(s² + v): the empirical-Bayes (Wiener) shrinkage of
-    /// Efron & Morris, "Stein's estimation rule and its competitors — an empirical Bayes
-    /// approach", JASA 68 (1973) 117–130. A roll that rises well above its noise is kept
-    /// nearly whole; a roll lost in its noise is not applied.
-    fn shrink_roll(&mut self, theta: f64, var: f64) -> f64 {
-        if !self.roll_ok || !var.is_finite() {
-            return 0.0;
-        }
-        self.roll_sums[0] += 1.0;
-        self.roll_sums[1] += theta * theta;
-        self.roll_sums[2] += var;
-        if let Some(prev) = self.roll_prev {
-            self.roll_diff_sums[0] += 1.0;
-            self.roll_diff_sums[1] += (theta - prev).powi(2);
-        }
-        self.roll_prev = Some(theta);
-        let n = self.roll_sums[0];
-        // The noise is the larger of the fit's own variance and half the mean squared successive
-        // difference (von Neumann, "Distribution of the ratio of the mean square successive
-        // difference to the variance", Ann. Math. Statist. 12, 1941): a camera's roll changes
-        // little between frames, so successive differences measure the noise even where the
-        // fit's covariance understates it (pixel noise correlated by resampling, texture that
-        // is not paint).
-        let diff_var = if self.roll_diff_sums[0] > 0.0 {
-            0.5 * self.roll_diff_sums[1] / self.roll_diff_sums[0]
-        } else {
-            f64::INFINITY
-        };
-        let noise = (self.roll_sums[2] / n).max(diff_var);
-        let v = var.max(diff_var);
-        // Shake is motion: the signal is the rolls' spread about their mean, not about zero. A
-        // constant offset is what registering noisy frames to one noisy template gives (the
-        // template's own noise tilts it a little, the same for every frame), not a camera that
-        // turned. The roll is applied only once that spread rejects "noise alone" at three
-        // standard deviations (under it, spread/noise has mean about 1 and standard deviation
-        // √(2/n), the χ²ₙ₋₁/(n−1) law); below that the positive-part estimate would still
-        // apply noise. The test is repeated on every frame as the sums grow, so a run of
-        // frames would pass it by chance now and then on a clip with no roll at all, and then
-        // the constant template offset would be applied whole (it is in θ, and frame 0, the
-        // angles' zero, does not have it). So the test also waits for `MIN_ROLL_FRAMES` frames
-        // and asks for a roll variance at least as large as the noise's (`ROLL_SNR`): below
-        // that the shrinkage would remove less than half the roll anyway, and a clip without
-        // roll is left as the translation-only estimate leaves it.
-        self.roll_sum += theta;
-        let mean = self.roll_sum / n;
-        let spread = (self.roll_sums[1] / n - mean * mean).max(0.0);
-        let signal = if n >= MIN_ROLL_FRAMES
-            && spread > noise * ROLL_SNR.max(1.0 + 3.0 * (2.0 / n).sqrt())
-        {
-            spread - noise
-        } else {
-            0.0
-        };
-        if signal + v > 0.0 && v.is_finite() {
-            theta * signal / (signal + v)
-        } else {
-            0.0
-        }
     }
 
     /// Where template point `i` lands under the state `st`.
@@ -675,40 +562,6 @@ fn normal_matrix(sd: &[[f64; 3]], w: &[f64]) -> [[f64; 3]; 3] {
 fn solve3(a: [[f64; 3]; 3], b: [f64; 3]) -> Option<[f64; 3]> {
     let scale = a[0][0].abs() * a[1][1].abs() * a[2][2].abs();
     crate::stats::solve3(a, b, 1e-12 * scale)
-}
-
-/// The frame smoothed by the binomial kernel and read bilinearly at `q` (luma scaled to 0..1),
-/// or None when the 6×6 neighbourhood it reads leaves the frame.
-fn sample(frame: FrameRef<'_>, q: [f64; 2]) -> Option<f32> {
-    let (fw, fh) = (frame.width as i64, frame.height as i64);
-    let (xf, yf) = (q[0].floor(), q[1].floor());
-    let (x0, y0) = (xf as i64 - 2, yf as i64 - 2);
-    if !(x0 >= 0 && y0 >= 0 && x0 + 6 <= fw && y0 + 6 <= fh) {
-        return None;
-    }
-    let k = folded_kernel(
-        (q[0] - xf) as f32,
-        (q[1] - yf) as f32,
-        1.0 / frame.max_value(),
-    );
-    let at = (y0 * fw + x0) as usize;
-    let fw = fw as usize;
-    Some(match frame.luma {
-        LumaRef::U8(v) => dot6(v, at, fw, &k),
-        LumaRef::U16(v) => dot6(v, at, fw, &k),
-    })
-}
-
-#[inline(always)]
-fn dot6<T: Copy + Into<f32>>(v: &[T], at: usize, fw: usize, k: &[[f32; 8]; 6]) -> f32 {
-    let mut acc = 0.0f32;
-    for (r, kr) in k.iter().enumerate() {
-        let row = &v[at + r * fw..at + r * fw + 6];
-        for u in 0..6 {
-            acc += row[u].into() * kr[u];
-        }
-    }
-    acc
 }
 
 #[cfg(test)]
