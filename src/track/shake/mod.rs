@@ -10,9 +10,10 @@
 //! until then the pose is the patch's translation alone, exactly as without the rigid step,
 //! because the rigid fit of a noisy frame to the noisy first frame has a constant offset in
 //! roll and shift (the first frame's own noise), which frame 0, the angles' zero, does not
-//! have. That test is not yet proof against a clip without roll: on the speed benchmark's
-//! H.264 clip and in `recovers_the_rendered_shake` (rendered shake, no roll) it passes, and a
-//! shrunk roll of about 0.02° RMS is applied (docs/performance.md, "Where it stands"). The
+//! have. That test is not yet proof against a clip without roll: in `recovers_the_rendered_shake`
+//! (rendered shake, no roll) it passes and a shrunk roll of about 0.02° RMS is applied, and on
+//! the speed benchmark's H.264 clip (no roll) it passes too (docs/performance.md, "Where it
+//! stands"). The
 //! pose's convention is in `pose.rs`; the frame is read through `kernel.rs`.
 
 mod kernel;
