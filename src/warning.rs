@@ -132,6 +132,13 @@ pub enum Warning {
         /// The blow's onset (clip frame index).
         frame: u64,
     },
+    /// A blow's highest twist sits next to a frame missing from the trace (set aside as a
+    /// repeated or interpolated frame, or a gap in the camera's timestamps): its peak may lie
+    /// in that frame, so the blow's peak twist and torque are null.
+    BlowPeakBesideGap {
+        /// The blow's onset (clip frame index).
+        frame: u64,
+    },
     /// The clip's peak torque is the highest of only some blows' peaks: the others' peaks were
     /// not measured (lost marks), and any of them may have been higher.
     PeakTorqueFromSomeBlows {
@@ -288,6 +295,12 @@ impl fmt::Display for Warning {
                 f,
                 "the blow at frame {frame} peaks on frames where a mark was lost, so its peak \
                  twist and torque are null (check the warnings on lost marks)"
+            ),
+            Warning::BlowPeakBesideGap { frame } => write!(
+                f,
+                "the blow at frame {frame} peaks next to a frame missing from the trace (set \
+                 aside as repeated or interpolated, or a gap in the timestamps), so its peak \
+                 twist and torque are null: the true peak may lie in that frame"
             ),
             Warning::FixedMarkUnread {
                 reason,

@@ -263,11 +263,15 @@ pub fn blow_metrics_zeroed(
         };
         // A peak on or next to a lost frame was not measured: null, with a warning.
         let peak_lost = peak_on_lost(&twist, b.onset, b.end);
+        let onset_frame = trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64);
         if peak_lost {
-            warnings.push(Warning::BlowPeakLost {
-                frame: trace.frames.get(b.onset).copied().unwrap_or(b.onset as u64),
-            });
+            warnings.push(Warning::BlowPeakLost { frame: onset_frame });
         }
+        let peak_gap = !peak_lost && peak_beside_gap(trace, &twist, b.onset, b.end);
+        if peak_gap {
+            warnings.push(Warning::BlowPeakBesideGap { frame: onset_frame });
+        }
+        let peak_lost = peak_lost || peak_gap;
         let peak_twist = peak_twist_deg(&twist, &twist_smooth, b.onset, b.end, twist_sigma_deg)
             .filter(|_| !peak_lost)
             .map(Angle::from_deg);
@@ -568,6 +572,30 @@ fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
     }
 }
 
+/// True when the blow's highest measured twist (within `a..b`) has a neighbouring sample
+/// more than [`GAP_FRAMES`] frame intervals away in time: a frame between them is missing
+/// from the trace (set aside as repeated or interpolated, or never delivered by the camera),
+/// and the true peak may lie in it, as it may on a lost frame ([`peak_on_lost`]). On a trace
+/// thinned evenly to its captured rate the interval is the captured one, so only an uneven
+/// gap counts.
+fn peak_beside_gap(trace: &Trace, twist: &[Option<f64>], a: usize, b: usize) -> bool {
+    let fps = trace.time_base.fps_hz();
+    let Some(top) = (a..b)
+        .filter_map(|i| Some((i, twist[i]?)))
+        .max_by(|x, y| x.1.total_cmp(&y.1))
+        .map(|(i, _)| i)
+    else {
+        return false;
+    };
+    let limit = GAP_FRAMES / fps;
+    let gap = |i: usize, j: usize| trace.t_s(j) - trace.t_s(i) > limit;
+    (top > 0 && gap(top - 1, top)) || (top + 1 < trace.len() && gap(top, top + 1))
+}
+
+/// Time between neighbouring samples, in frame intervals, above which a frame is taken to be
+/// missing between them (one missing frame makes two intervals).
+const GAP_FRAMES: f64 = 1.5;
+
 /// The peak twist of one blow `[a, b)`, degrees. The top of the twist peak (the samples,
 /// around the highest lightly smoothed one, within 20 % of the blow's twist range below
 /// it) is fitted by a least-squares parabola and its highest value taken, so that every
@@ -715,6 +743,42 @@ mod tests {
             rate_per_min: Some(12_000.0),
             ..Segmentation::default()
         }
+    }
+
+    /// A frame set aside beside a blow's highest twist (a two-interval gap in the times, as
+    /// the captured-only trace has after a repeat or blend is dropped) leaves that blow's peak
+    /// null with a warning; the same trace thinned evenly (every sample one interval apart)
+    /// keeps it, and a gap away from the top does not matter.
+    #[test]
+    fn a_peak_beside_a_dropped_frame_is_not_measured() {
+        let drive = [0.0, 3.0, 4.0, 3.5, 3.0, 3.0, 6.0, 6.5, 5.5, 5.2, 5.2];
+        let nut = [0.0, 0.0, 1.0, 1.5, 1.5, 1.5, 1.5, 2.0, 2.0, 2.0, 2.0];
+        let seg = two_blows();
+        // Blow 2's highest twist is at sample 6 (4.5°, tied with 7); a frame was dropped
+        // between samples 5 and 6.
+        let mut gap = trace_of(&drive, &nut);
+        gap.times_s = (0..drive.len())
+            .map(|i| (i + usize::from(i >= 6)) as f64 / 1000.0)
+            .collect();
+        let (b, s, w) = blow_metrics(&gap, &seg, Some(&bar()));
+        assert!(b[1].peak_torque.is_none() && b[1].peak_twist.is_none());
+        assert!(
+            w.contains(&Warning::BlowPeakBesideGap { frame: 106 }),
+            "{w:?}"
+        );
+        assert!(
+            b[0].peak_torque.is_some(),
+            "blow 1's top is far from the gap"
+        );
+        assert_relative_eq!(s.peak_torque.unwrap().nm(), 150.0, epsilon = 1e-9);
+        // Evenly spaced samples (a trace at its captured rate) have no gap.
+        let even = trace_of(&drive, &nut);
+        let (b, _, w) = blow_metrics(&even, &seg, Some(&bar()));
+        assert!(b.iter().all(|b| b.peak_torque.is_some()));
+        assert!(
+            !w.iter()
+                .any(|w| matches!(w, Warning::BlowPeakBesideGap { .. }))
+        );
     }
 
     #[test]

@@ -46,6 +46,9 @@ struct Score {
     recall: f64,
     /// (measured − true) / true peak torque, % (None: no torque printed).
     torque_err_pct: Option<f64>,
+    /// Whether the printed peak torque's 95 % interval (that of the blow whose peak it is)
+    /// holds the true peak torque (None: no torque or no interval printed).
+    torque_ci_holds: Option<bool>,
     /// The refusal's reason, if the clip was refused.
     refused: Option<String>,
 }
@@ -150,6 +153,7 @@ fn score_scene(seed: u64, r: RandomScene) -> Score {
         precision: 0.0,
         recall: 0.0,
         torque_err_pct: None,
+        torque_ci_holds: None,
         refused: None,
     };
     let a = match analyze(
@@ -196,6 +200,12 @@ fn score_scene(seed: u64, r: RandomScene) -> Score {
     s.recall = matched as f64 / truth.blows.len().max(1) as f64;
     if let (Some(m), Some(t)) = (a.summary.peak_torque, truth.summary.peak_torque_nm) {
         s.torque_err_pct = Some(100.0 * (m.nm() - t) / t);
+        s.torque_ci_holds = a
+            .blows
+            .iter()
+            .filter(|b| b.peak_torque == Some(m))
+            .find_map(|b| b.peak_torque_ci95)
+            .map(|(lo, hi)| lo.nm() <= t && t <= hi.nm());
     }
     s
 }
@@ -225,7 +235,7 @@ fn fmt_opt(v: Option<f64>, digits: usize) -> String {
 /// The markdown table of per-scene scores and the summary rows.
 fn table(scores: &[Score]) -> String {
     let mut out = String::from(
-        "| seed | recording | frames | RMS ° (target) | lost | blow P / R | peak torque error | pass | drawn |\n|---|---|---|---|---|---|---|---|---|\n",
+        "| seed | recording | frames | RMS ° (target) | lost | blow P / R | peak torque error | 95 % interval holds it | pass | drawn |\n|---|---|---|---|---|---|---|---|---|---|\n",
     );
     for s in scores {
         let rms = match &s.refused {
@@ -233,7 +243,7 @@ fn table(scores: &[Score]) -> String {
             None => format!("{} (≤ {:.2})", fmt_opt(s.rms_deg, 3), s.rms_target()),
         };
         out.push_str(&format!(
-            "| {} | {} | {} | {} | {:.0} % | {:.2} / {:.2} | {} | {} | {} |\n",
+            "| {} | {} | {} | {} | {:.0} % | {:.2} / {:.2} | {} | {} | {} | {} |\n",
             s.seed,
             s.recording,
             s.frames,
@@ -243,6 +253,11 @@ fn table(scores: &[Score]) -> String {
             s.recall,
             s.torque_err_pct
                 .map_or("–".into(), |e| format!("{e:+.1} %")),
+            match s.torque_ci_holds {
+                Some(true) => "yes",
+                Some(false) => "**no**",
+                None => "–",
+            },
             if s.pass() { "yes" } else { "**no**" },
             s.tags,
         ));
@@ -256,7 +271,8 @@ fn table(scores: &[Score]) -> String {
         "\n{} scenes; {} pass every target; {} refused.\n\
          Per-frame RMS over measured frames: median {:.3}°, worst {:.3}°.\n\
          Blow precision: median {:.2}, worst {:.2}; recall: median {:.2}, worst {:.2}.\n\
-         |peak torque error|: median {:.1} %, worst {:.1} % ({} scenes printed a torque).\n",
+         |peak torque error|: median {:.1} %, worst {:.1} % ({} scenes printed a torque; \
+         its 95 % interval missed the truth in {}).\n",
         scores.len(),
         scores.iter().filter(|s| s.pass()).count(),
         scores.iter().filter(|s| s.refused.is_some()).count(),
@@ -269,6 +285,10 @@ fn table(scores: &[Score]) -> String {
         median(torque.clone()),
         torque.iter().copied().fold(0.0, f64::max),
         torque.len(),
+        scores
+            .iter()
+            .filter(|s| s.torque_ci_holds == Some(false))
+            .count(),
     ));
     for s in scores.iter().filter(|s| s.refused.is_some()) {
         out.push_str(&format!(
