@@ -209,7 +209,16 @@ fn analyze_impl(
     crate::track::check_measured(&trace)?;
     let (evenness, timing_warning) = crate::timing::apply(timing_source, &clip, &mut trace);
     warnings.extend(timing_warning);
-    let flags = detector.finish();
+    let mut flags = detector.finish();
+    let kept_blends = flags.keep_sporadic_blends(crate::timing::SYNTHETIC_SHARE_WARN);
+    if kept_blends > 0 {
+        warnings.push(Warning::Note(format!(
+            "{kept_blends} frame(s) looked like blends of their neighbours, too few (at most \
+             {:.0} % of the clip) for a slow-motion mode's up-conversion; they are kept as \
+             captured frames",
+            100.0 * crate::timing::SYNTHETIC_SHARE_WARN
+        )));
+    }
     if flags.synthetic.len() == trace.len() {
         trace.synthetic = flags.synthetic;
     }

@@ -64,6 +64,36 @@ pub struct SyntheticFlags {
     pub duplicated: usize,
     /// Frames flagged as blends or interpolations.
     pub interpolated: usize,
+    /// One per frame: true for a frame flagged as a blend (a subset of `synthetic`).
+    pub blend: Vec<bool>,
+}
+
+impl SyntheticFlags {
+    /// Keeps blend-flagged frames as captured when they are at most `max_share` of the clip,
+    /// and returns how many were kept (0 when the blends were set aside or there were none).
+    ///
+    /// A slow-motion mode synthesises a fixed share of its frames, half or more for the usual
+    /// 2× to 8× up-conversion, all through the stretch it covers. A few blend-like frames
+    /// scattered over a clip are not that: the blend test's premise (a captured frame carries
+    /// noise of its own, independent of its neighbours') fails where the picture holds little
+    /// noise and changes linearly in time, as on a part turning steadily, or where an encoder
+    /// predicts a frame from both neighbours, and such frames are captured ones. Setting them
+    /// aside would leave gaps beside the very peaks a blow is measured by. Repeats (a frame
+    /// equal to the one before) stay flagged however few: an encoder that repeats a dropped
+    /// frame does so now and then.
+    pub fn keep_sporadic_blends(&mut self, max_share: f64) -> usize {
+        let n = self.synthetic.len();
+        if n == 0 || self.interpolated == 0 || self.interpolated as f64 > max_share * n as f64 {
+            return 0;
+        }
+        for (s, b) in self.synthetic.iter_mut().zip(&mut self.blend) {
+            if *b {
+                *s = false;
+                *b = false;
+            }
+        }
+        std::mem::take(&mut self.interpolated)
+    }
 }
 
 /// Reads the mark regions of each frame and flags the frames that were not captured.
@@ -182,6 +212,7 @@ fn classify(step: &[f32], resid: &[f32], span: &[f32]) -> SyntheticFlags {
     let n = step.len();
     let mut out = SyntheticFlags {
         synthetic: vec![false; n],
+        blend: vec![false; n],
         ..SyntheticFlags::default()
     };
     let mut win: Vec<f32> = Vec::with_capacity(2 * LOCAL_HALF + 1);
@@ -202,6 +233,7 @@ fn classify(step: &[f32], resid: &[f32], span: &[f32]) -> SyntheticFlags {
         let (r, d) = (resid[k], span[k]);
         if r.is_finite() && d.is_finite() && d >= MIN_TELL_LSB && r < BLEND_RATIO * d {
             out.synthetic[k] = true;
+            out.blend[k] = true;
             out.interpolated += 1;
         }
     }
@@ -445,6 +477,39 @@ mod tests {
         let truth: Vec<bool> = seq.iter().map(|s| s.1).collect();
         assert_eq!(flags.synthetic, truth);
         assert_eq!((flags.duplicated, flags.interpolated), (1, 3));
+    }
+
+    /// Blend flags on at most the given share of the frames are kept as captured (and the
+    /// count returned); a larger share, as a slow-motion mode makes, stays set aside; repeats
+    /// stay flagged either way.
+    #[test]
+    fn sporadic_blends_are_kept_and_an_up_converted_share_is_not() {
+        let flags = |blends: &[usize], repeat: usize, n: usize| {
+            let mut f = SyntheticFlags {
+                synthetic: vec![false; n],
+                blend: vec![false; n],
+                duplicated: 1,
+                interpolated: blends.len(),
+            };
+            for &b in blends {
+                f.synthetic[b] = true;
+                f.blend[b] = true;
+            }
+            f.synthetic[repeat] = true;
+            f
+        };
+        // 3 blends in 100 frames: kept.
+        let mut few = flags(&[10, 44, 45], 70, 100);
+        assert_eq!(few.keep_sporadic_blends(0.10), 3);
+        assert_eq!(few.interpolated, 0);
+        assert_eq!(few.synthetic.iter().filter(|&&s| s).count(), 1);
+        assert!(few.synthetic[70], "the repeat stays flagged");
+        // Every other frame a blend (2× up-conversion): set aside.
+        let half: Vec<usize> = (1..100).step_by(2).collect();
+        let mut many = flags(&half, 70, 100);
+        assert_eq!(many.keep_sporadic_blends(0.10), 0);
+        assert_eq!(many.interpolated, 50);
+        assert!(half.iter().all(|&b| many.synthetic[b]));
     }
 
     #[test]
