@@ -156,6 +156,9 @@ pub fn run(a: PredictArgs) -> Result<ExitCode> {
     for e in &p.extrapolation {
         println!("extrapolates: {e}");
     }
+    for u in &p.undecided {
+        println!("undecided: {u}");
+    }
     println!("{}", p.caution);
     Ok(ExitCode::SUCCESS)
 }

@@ -56,6 +56,15 @@ pub struct PredictedBlow {
     pub nut_advance_deg: f64,
     /// Twist left just before the next blow, degrees.
     pub residual_twist_deg: f64,
+    /// The blow's peak torque over the static torque that breaks the nut loose from where the
+    /// blow finds it, less 1 (positive: the blow can turn the nut). Within the model's own
+    /// error of 0 (1.96 × the fit's largest relative peak misfit), whether the nut turns is
+    /// not decided, and [`Prediction::undecided`] says so.
+    pub nut_breakaway_margin_ratio: f64,
+    /// Share of the parameter draws (the Monte Carlo behind the intervals) in which the nut
+    /// turned on this blow, 0..1. Between [`UNDECIDED_SHARE`] and 1 − it, the clip does not
+    /// decide whether the nut breaks loose on this blow, and [`Prediction::undecided`] says so.
+    pub nut_turns_in_draws_ratio: f64,
 }
 
 /// A prediction (`twistmark predict --json`).
@@ -80,6 +89,10 @@ pub struct Prediction {
     pub blows: Vec<PredictedBlow>,
     /// Where the prediction goes beyond what the clip showed, one sentence each.
     pub extrapolation: Vec<String>,
+    /// Blows on which the fit's uncertainty leaves it open whether the nut turns, one
+    /// sentence each (the holding torque then steps by that blow's advance).
+    #[serde(default)]
+    pub undecided: Vec<String>,
     /// That this is a model, not a measurement.
     pub caution: String,
 }
@@ -90,9 +103,19 @@ measurement: it assumes a lumped linear bar, a rigid socket and Coulomb friction
 Follow the maker's specification for the joint and finish and check with a calibrated torque \
 wrench.";
 
-/// One run: per-blow (peak N·m, nut advance deg, residual twist deg) and the holding torque.
+/// Nut advance over which a predicted blow counts as turning the nut, degrees (a small
+/// fraction of any blow's advance on a turning nut; *common practice*: below a tenth of a
+/// degree the nut is held).
+const NUT_TURNS_DEG: f64 = 0.1;
+
+/// A blow is undecided when the nut turns on it in more than this share of the parameter
+/// draws and fails to in more than this share too (a two-sided 10 % level).
+pub const UNDECIDED_SHARE: f64 = 0.1;
+
+/// One run: per-blow (peak N·m, nut advance deg, residual twist deg, breakaway margin) and
+/// the holding torque.
 struct Run {
-    blows: Vec<(f64, f64, f64)>,
+    blows: Vec<(f64, f64, f64, f64)>,
     holding_nm: f64,
 }
 
@@ -110,10 +133,14 @@ fn run(q: &[f64], k: f64, rate: f64, n: usize) -> Run {
     let blows = (0..n)
         .map(|b| {
             let (s0, s1) = (states[b], states[b + 1]);
+            // The static torque that breaks the nut loose from where this blow finds it.
+            let hold = p.breakaway * (p.joint_start + p.joint_rate * s0.theta_n);
+            let peak = ev.peak_spring_torque[b];
             (
-                ev.peak_spring_torque[b],
+                peak,
                 (s1.theta_n - s0.theta_n).to_degrees(),
                 (s1.theta_d - s1.theta_n).to_degrees(),
+                peak / hold - 1.0,
             )
         })
         .collect();
@@ -221,6 +248,7 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
     let mut rng = ChaCha8Rng::seed_from_u64(22);
     let mut holding = Vec::with_capacity(PREDICT_DRAWS);
     let mut peaks = vec![Vec::with_capacity(PREDICT_DRAWS); n];
+    let mut turns = vec![0usize; n];
     for _ in 0..PREDICT_DRAWS {
         let z = DVector::from_fn(N_PARAMS, |_, _| gauss(&mut rng).clamp(-3.0, 3.0));
         let dq = &l * &z;
@@ -243,6 +271,7 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
         holding.push(r.holding_nm);
         for (b, v) in r.blows.iter().enumerate() {
             peaks[b].push(v.0);
+            turns[b] += usize::from(v.1 > NUT_TURNS_DEG);
         }
     }
     // The model's own misfit on the clip, as a relative 1σ.
@@ -251,12 +280,14 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
         .blows
         .iter()
         .enumerate()
-        .map(|(b, &(pk, adv, res))| PredictedBlow {
+        .map(|(b, &(pk, adv, res, margin))| PredictedBlow {
             index: b + 1,
             peak_torque_nm: pk,
             peak_torque_ci95_nm: interval(&mut peaks[b], pk, misfit),
             nut_advance_deg: adv,
             residual_twist_deg: res,
+            nut_breakaway_margin_ratio: margin,
+            nut_turns_in_draws_ratio: turns[b] as f64 / holding.len().max(1) as f64,
         })
         .collect();
     let peak = blows.iter().map(|b| b.peak_torque_nm).fold(0.0, f64::max);
@@ -282,9 +313,42 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
         bar_stiffness_nm_per_rad: k,
         blow_rate_per_min: rate,
         extrapolation: extrapolation(fit, k, rate, n, nut_total, peak),
+        undecided: undecided(&blows, misfit),
         blows,
         caution: PREDICTION_CAUTION.into(),
     })
+}
+
+/// Sentences naming the blows on which it is open whether the nut turns: the parameter draws
+/// disagree, or the blow's peak lies within the model's own error (`misfit`, relative, 1σ)
+/// of the torque that breaks the nut loose.
+fn undecided(blows: &[PredictedBlow], misfit: f64) -> Vec<String> {
+    blows
+        .iter()
+        .filter(|b| {
+            let s = b.nut_turns_in_draws_ratio;
+            (s > UNDECIDED_SHARE && s < 1.0 - UNDECIDED_SHARE)
+                || b.nut_breakaway_margin_ratio.abs() < 1.96 * misfit
+        })
+        .map(|b| {
+            let pct = 100.0 * b.nut_turns_in_draws_ratio;
+            let margin = 100.0 * b.nut_breakaway_margin_ratio;
+            let band = 100.0 * 1.96 * misfit;
+            let said = if b.nut_advance_deg > NUT_TURNS_DEG {
+                "turns"
+            } else {
+                "holds"
+            };
+            format!(
+                "blow {}: its peak is {margin:+.1} % from the torque that breaks the nut loose, \
+                 within the model's own error (±{band:.1} %), so whether the nut turns on this \
+                 blow is not decided by the clip (central prediction: it {said}; it turns in \
+                 {pct:.0} % of the fit's parameter draws); the holding torque may step by that \
+                 blow's advance",
+                b.index
+            )
+        })
+        .collect()
 }
 
 /// Sentences saying where a prediction goes beyond what the clip showed.

@@ -407,3 +407,46 @@ fn the_fit_stops_when_its_step_budget_is_spent() {
     assert_eq!(got.2, 1, "one evaluation, refused");
     assert!(!got.0.is_finite());
 }
+
+/// A prediction never states confidently whether the nut turns on a blow and gets it wrong:
+/// wherever the central prediction and the renderer's truth disagree on whether the nut
+/// turned (more than 0.1°), the blow is listed as undecided. Every pair, tuning and check.
+#[test]
+fn a_blow_whose_nut_turn_is_mispredicted_is_called_undecided() {
+    let sets = [
+        (Scenario::preset("slow-tool").unwrap(), 7, pairs()),
+        (check_scene(), 23, check_pairs()),
+    ];
+    let mut disagreements = 0;
+    for (a, seed, pairs) in sets {
+        let f = fit(&obs_of(&simulate(&a), seed)).unwrap();
+        for (name, sc) in pairs {
+            let truth = simulate(&sc);
+            let input = PredictInput {
+                stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
+                stiffness_rel_sigma: 0.0,
+                rating_nm: sc.bar.rating_nm,
+                blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
+                blows: Some(truth.blows.len()),
+            };
+            let p = predict(&f, &input).unwrap();
+            for (b, t) in p.blows.iter().zip(&truth.blows) {
+                let (got, want) = (b.nut_advance_deg > 0.1, t.nut_advance_deg > 0.1);
+                if got != want {
+                    disagreements += 1;
+                    let said = format!("blow {}:", b.index);
+                    assert!(
+                        p.undecided.iter().any(|u| u.starts_with(&said)),
+                        "{name}: blow {} predicted turning {got}, truth {want}, share {:.2}; undecided {:?}",
+                        b.index,
+                        b.nut_turns_in_draws_ratio,
+                        p.undecided
+                    );
+                }
+            }
+        }
+    }
+    // The check softer bar's blow 5 is such a blow (truth 116.38 N·m breaks the nut loose,
+    // the prediction's 116.61 N·m does not; measured 4 December 2026).
+    assert!(disagreements >= 1, "the check set holds a knife-edge blow");
+}
