@@ -62,7 +62,7 @@ pub struct PredictedBlow {
     /// not decided, and [`Prediction::undecided`] says so.
     pub nut_breakaway_margin_ratio: f64,
     /// Share of the parameter draws (the Monte Carlo behind the intervals) in which the nut
-    /// turned on this blow, 0..1. Between [`UNDECIDED_SHARE`] and 1 − it, the clip does not
+    /// turned on this blow, 0..1. Between 0.1 and 0.9 (`UNDECIDED_SHARE`), the clip does not
     /// decide whether the nut breaks loose on this blow, and [`Prediction::undecided`] says so.
     pub nut_turns_in_draws_ratio: f64,
 }
