@@ -85,6 +85,11 @@ pub(crate) struct RigidEstimator {
     state: [f64; 3],
     /// The registered frames' rolls, for the decision to apply roll and its shrinkage.
     shrink: RollShrink,
+    /// Whether this registration's translation is used when no roll is applied (false when
+    /// the square patch gives the translation then: the re-fit is skipped).
+    shift_needed: bool,
+    /// Whether the last registered frame had a roll applied.
+    roll_applied: bool,
     /// Scratch: samples, residuals, weights.
     s: Vec<f64>,
     r: Vec<f64>,
@@ -154,6 +159,8 @@ impl RigidEstimator {
             roll_ok: false,
             state: [0.0; 3],
             shrink: RollShrink::default(),
+            shift_needed: true,
+            roll_applied: false,
             s: Vec::new(),
             r: Vec::new(),
             w: Vec::new(),
@@ -263,6 +270,19 @@ impl RigidEstimator {
         true
     }
 
+    /// Says whether the translation is used when no roll is applied; when it is not (the
+    /// square patch gives it), the translation-only re-fit of such frames is skipped and the
+    /// pose's shift is the free fit's.
+    pub fn set_shift_needed(&mut self, needed: bool) {
+        self.shift_needed = needed;
+    }
+
+    /// Whether the last registered frame had a roll applied (the clip's rolls stand above
+    /// their noise and matter; `roll.rs`).
+    pub fn roll_applied(&self) -> bool {
+        self.roll_applied
+    }
+
     /// The camera's pose in this frame relative to the first, or None when the region does not
     /// match the first frame's (obscured, gone, or moved beyond the search).
     pub fn estimate(&mut self, frame: FrameRef<'_>) -> Option<Pose> {
@@ -288,9 +308,11 @@ impl RigidEstimator {
         // so a clip without roll is corrected exactly as by translation alone; the roll's own
         // noise (and the constant offset the first frame's template gives it) does not leak
         // into the shift.
+        self.roll_applied = roll != 0.0;
         let mut shift = [p[0], p[1]];
         if self.roll_ok
             && roll != p[2]
+            && (roll != 0.0 || self.shift_needed)
             && let Some((q, _)) = self.solve(frame, [p[0], p[1], roll], false)
         {
             shift = [q[0], q[1]];

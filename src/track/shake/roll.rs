@@ -9,6 +9,14 @@ pub(super) const MIN_ROLL_FRAMES: f64 = 20.0;
 /// roll variance at least equal to the noise's (see [`RollShrink::shrink`]).
 pub(super) const ROLL_SNR: f64 = 2.0;
 
+/// Smallest roll worth applying: the rolls' spread above their noise must reach this
+/// standard deviation, degrees. A camera roll turns every mark's angle alike, so it leaves the
+/// twist (and every torque) untouched and moves each end's angle by itself; the tightest angle
+/// target is 0.10° RMS (lossless clips, docs/accuracy.md), and a roll under a third of it adds
+/// under a ninth of that target's variance. Below it the roll is not applied, which also spares
+/// the rigid step's second fit on every frame.
+pub(super) const ROLL_MATERIAL_DEG: f64 = 0.03;
+
 /// Running sums over the registered frames' rolls.
 #[derive(Debug, Clone, Default)]
 pub(super) struct RollShrink {
@@ -76,6 +84,7 @@ impl RollShrink {
         let spread = (self.sums[1] / n - mean * mean).max(0.0);
         let signal = if n >= MIN_ROLL_FRAMES
             && spread > noise * ROLL_SNR.max(1.0 + 3.0 * (2.0 / n).sqrt())
+            && spread - noise > ROLL_MATERIAL_DEG.to_radians().powi(2)
         {
             spread - noise
         } else {
