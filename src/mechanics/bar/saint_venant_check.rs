@@ -1,6 +1,7 @@
-//! Outside check of the square and hexagon section constants in `mechanics/bar.rs`: a small
-//! finite-difference solve of Saint-Venant torsion with Prandtl's stress function, written
-//! here independently of the code under test (tests only; imports nothing from the pipeline).
+//! Outside check of the square and hexagon section constants in `mechanics/bar/sections.rs`:
+//! a small finite-difference solve of Saint-Venant torsion with Prandtl's stress function,
+//! written here independently of the code under test (tests only; imports nothing from the
+//! pipeline).
 //!
 //! Prandtl's formulation (Timoshenko & Goodier, *Theory of Elasticity*, 3rd ed., ch. 10):
 //! ∇²φ = −2Gθ inside the section, φ = 0 on its boundary; the torque is T = 2∫φ dA, so the
@@ -18,7 +19,8 @@
 //! (J = k₁·s⁴, τ_max = T/(k₂·s³); table values from memory). For the hexagon, the handbook
 //! value ≈ 0.115·s⁴ across flats is from memory; the solve here is the check.
 
-use super::{HEX_J_COEFF, HEX_TAU_COEFF, SQUARE_J_COEFF, SQUARE_TAU_COEFF, SectionSpec};
+use super::SectionSpec;
+use super::sections::{HEX_J_COEFF, HEX_TAU_COEFF, SQUARE_J_COEFF, SQUARE_TAU_COEFF};
 
 /// Successive over-relaxation on `n` unknowns with neighbour lists, for the discrete Poisson
 /// problem  Σ_j w·(φ_j − φ_i) = −2  at every interior node i (boundary neighbours are 0 and

@@ -5,36 +5,21 @@
 //! Formulas (torsion constant and maximum shear stress per shape) cite their source where
 //! they are defined, in [`SectionSpec`]'s methods.
 
-use std::f64::consts::PI;
+mod sections;
+mod validate;
 
 use serde::{Deserialize, Serialize};
 
-use crate::error::{Error, Result};
-use crate::mechanics::steel::{self, SHEAR_MODULUS_RANGE_GPA, Steel, YieldCriterion};
+use crate::mechanics::steel::{self, Steel, YieldCriterion};
 use crate::units::Stiffness;
 
 pub use crate::mechanics::steel::DEFAULT_SHEAR_MODULUS_GPA;
+pub use sections::SectionSpec;
+pub(crate) use sections::segment_compliance;
 
 /// Default fraction of shear yield at which a stress warning is raised. Common practice:
 /// 60–80 % is reasonable (engineering judgement) when the grade is uncertain.
 pub const DEFAULT_STRESS_WARN_FRACTION: f64 = 0.7;
-
-/// Torsion constant of a square, K = β·s⁴ with β = 0.140577: Saint-Venant's series for a
-/// rectangular bar at a side ratio of 1 (Timoshenko & Goodier, *Theory of Elasticity*, 3rd ed.,
-/// ch. 10; their table gives k₁ = 0.1406). Checked against that series and a finite-difference
-/// Prandtl solve in `bar/saint_venant_check.rs`.
-const SQUARE_J_COEFF: f64 = 0.140_577;
-/// Maximum shear stress of a square, τ = 4.808·T/s³ = T/(0.208·s³), at mid-side (Timoshenko &
-/// Goodier, ch. 10, table for rectangular bars: k₂ = 0.208, from memory). Checked against a
-/// finite-difference Prandtl solve in `bar/saint_venant_check.rs`.
-const SQUARE_TAU_COEFF: f64 = 4.808;
-/// Torsion constant of a regular hexagon, J = 0.11505·s⁴, s across flats: a finite-difference
-/// Saint-Venant (Prandtl stress function) solution, checked by the solve in
-/// `bar/saint_venant_check.rs`; the handbook value ≈ 0.115·s⁴ is from memory.
-const HEX_J_COEFF: f64 = 0.115_05;
-/// Maximum shear stress of a regular hexagon, τ = 5.328·T/s³ = T/(0.1877·s³), at the middle
-/// of each flat (the same finite-difference solution, checked in `bar/saint_venant_check.rs`).
-const HEX_TAU_COEFF: f64 = 5.328;
 
 /// The `"bar"` object of a rig file.
 ///
@@ -81,66 +66,6 @@ pub struct BarSpec {
     /// estimate the drive-end inertia when `drive_inertia_kg_m2` is not given.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub drive_parts: Option<Vec<InertiaPart>>,
-}
-
-/// One section of the bar, by shape. `steel` and `shear_modulus_gpa` override the bar's.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(tag = "shape", rename_all = "lowercase", deny_unknown_fields)]
-pub enum SectionSpec {
-    /// Solid round.
-    Round {
-        /// Length, mm.
-        length_mm: f64,
-        /// Diameter, mm.
-        d_mm: f64,
-        /// This section's steel, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        steel: Option<String>,
-        /// This section's shear modulus, GPa, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        shear_modulus_gpa: Option<f64>,
-    },
-    /// Round tube.
-    Tube {
-        /// Length, mm.
-        length_mm: f64,
-        /// Outside diameter, mm.
-        d_mm: f64,
-        /// Bore (inside diameter), mm.
-        bore_mm: f64,
-        /// This section's steel, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        steel: Option<String>,
-        /// This section's shear modulus, GPa, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        shear_modulus_gpa: Option<f64>,
-    },
-    /// Regular hexagon.
-    Hex {
-        /// Length, mm.
-        length_mm: f64,
-        /// Across flats, mm.
-        across_flats_mm: f64,
-        /// This section's steel, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        steel: Option<String>,
-        /// This section's shear modulus, GPa, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        shear_modulus_gpa: Option<f64>,
-    },
-    /// Square.
-    Square {
-        /// Length, mm.
-        length_mm: f64,
-        /// Side, mm.
-        side_mm: f64,
-        /// This section's steel, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        steel: Option<String>,
-        /// This section's shear modulus, GPa, if not the bar's.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        shear_modulus_gpa: Option<f64>,
-    },
 }
 
 /// A part turning with the drive end, modelled as a hollow cylinder about its own axis:
@@ -218,209 +143,6 @@ pub struct Material {
     pub yield_from: Option<String>,
 }
 
-impl SectionSpec {
-    /// A solid round section of length `length_mm` and diameter `d_mm`.
-    pub fn round(length_mm: f64, d_mm: f64) -> Self {
-        SectionSpec::Round {
-            length_mm,
-            d_mm,
-            steel: None,
-            shear_modulus_gpa: None,
-        }
-    }
-    /// A tube of outside diameter `d_mm` and bore `bore_mm`.
-    pub fn tube(length_mm: f64, d_mm: f64, bore_mm: f64) -> Self {
-        SectionSpec::Tube {
-            length_mm,
-            d_mm,
-            bore_mm,
-            steel: None,
-            shear_modulus_gpa: None,
-        }
-    }
-    /// A regular hexagon, `across_flats_mm` across flats.
-    pub fn hex(length_mm: f64, across_flats_mm: f64) -> Self {
-        SectionSpec::Hex {
-            length_mm,
-            across_flats_mm,
-            steel: None,
-            shear_modulus_gpa: None,
-        }
-    }
-    /// A square of side `side_mm`.
-    pub fn square(length_mm: f64, side_mm: f64) -> Self {
-        SectionSpec::Square {
-            length_mm,
-            side_mm,
-            steel: None,
-            shear_modulus_gpa: None,
-        }
-    }
-
-    /// The shape's name as written in the rig.
-    pub fn shape_name(&self) -> &'static str {
-        match self {
-            SectionSpec::Round { .. } => "round",
-            SectionSpec::Tube { .. } => "tube",
-            SectionSpec::Hex { .. } => "hex",
-            SectionSpec::Square { .. } => "square",
-        }
-    }
-
-    /// Length in metres.
-    pub fn length_m(&self) -> f64 {
-        match *self {
-            SectionSpec::Round { length_mm, .. }
-            | SectionSpec::Tube { length_mm, .. }
-            | SectionSpec::Hex { length_mm, .. }
-            | SectionSpec::Square { length_mm, .. } => length_mm * 1e-3,
-        }
-    }
-
-    fn overrides(&self) -> (Option<&str>, Option<f64>) {
-        match self {
-            SectionSpec::Round {
-                steel,
-                shear_modulus_gpa,
-                ..
-            }
-            | SectionSpec::Tube {
-                steel,
-                shear_modulus_gpa,
-                ..
-            }
-            | SectionSpec::Hex {
-                steel,
-                shear_modulus_gpa,
-                ..
-            }
-            | SectionSpec::Square {
-                steel,
-                shear_modulus_gpa,
-                ..
-            } => (steel.as_deref(), *shear_modulus_gpa),
-        }
-    }
-
-    /// Saint-Venant torsion constant J in m⁴ (the polar moment only for round sections).
-    ///
-    /// Round πd⁴/32 and tube π(D⁴−d⁴)/32 (Beer & Johnston, *Mechanics of Materials*, ch. 3).
-    /// Square 0.140577·s⁴ (Saint-Venant series; amesweb, as 2.25·a⁴ with a = s/2). Hexagon
-    /// 0.11505·s⁴ across flats (finite-difference Saint-Venant solution computed for this project). For
-    /// the non-round shapes J is below the polar moment because the section warps
-    /// (Wikipedia "Torsion constant").
-    pub fn torsion_constant_m4(&self) -> f64 {
-        match *self {
-            SectionSpec::Round { d_mm, .. } => PI * (d_mm * 1e-3).powi(4) / 32.0,
-            SectionSpec::Tube { d_mm, bore_mm, .. } => {
-                PI * ((d_mm * 1e-3).powi(4) - (bore_mm * 1e-3).powi(4)) / 32.0
-            }
-            SectionSpec::Hex {
-                across_flats_mm, ..
-            } => HEX_J_COEFF * (across_flats_mm * 1e-3).powi(4),
-            SectionSpec::Square { side_mm, .. } => SQUARE_J_COEFF * (side_mm * 1e-3).powi(4),
-        }
-    }
-
-    /// Maximum shear stress per unit torque, Pa per N·m: τ_max = this × T.
-    ///
-    /// Round 16/(πd³) and tube 16·D/(π(D⁴−d⁴)) (Beer & Johnston ch. 3, τ = T·r/J at the
-    /// outer radius). Square 4.808/s³ at mid-side (amesweb, piping-designer). Hexagon
-    /// 5.328/s³ at mid-flat (finite-difference solution computed for this project).
-    pub fn shear_stress_per_nm(&self) -> f64 {
-        match *self {
-            SectionSpec::Round { d_mm, .. } => 16.0 / (PI * (d_mm * 1e-3).powi(3)),
-            SectionSpec::Tube { d_mm, bore_mm, .. } => {
-                let (d_o, d_i) = (d_mm * 1e-3, bore_mm * 1e-3);
-                16.0 * d_o / (PI * (d_o.powi(4) - d_i.powi(4)))
-            }
-            SectionSpec::Hex {
-                across_flats_mm, ..
-            } => HEX_TAU_COEFF / (across_flats_mm * 1e-3).powi(3),
-            SectionSpec::Square { side_mm, .. } => SQUARE_TAU_COEFF / (side_mm * 1e-3).powi(3),
-        }
-    }
-
-    /// Where the maximum shear stress sits on this shape, in words.
-    pub fn stress_location(&self) -> &'static str {
-        match self {
-            SectionSpec::Round { .. } | SectionSpec::Tube { .. } => "outer surface",
-            SectionSpec::Hex { .. } | SectionSpec::Square { .. } => "middle of the flats",
-        }
-    }
-
-    pub(crate) fn dimensions(&self) -> Vec<(&'static str, f64)> {
-        match *self {
-            SectionSpec::Round {
-                length_mm, d_mm, ..
-            } => vec![("length_mm", length_mm), ("d_mm", d_mm)],
-            SectionSpec::Tube {
-                length_mm,
-                d_mm,
-                bore_mm,
-                ..
-            } => vec![
-                ("length_mm", length_mm),
-                ("d_mm", d_mm),
-                ("bore_mm", bore_mm),
-            ],
-            SectionSpec::Hex {
-                length_mm,
-                across_flats_mm,
-                ..
-            } => vec![
-                ("length_mm", length_mm),
-                ("across_flats_mm", across_flats_mm),
-            ],
-            SectionSpec::Square {
-                length_mm, side_mm, ..
-            } => vec![("length_mm", length_mm), ("side_mm", side_mm)],
-        }
-    }
-}
-
-/// Compliance of one prismatic segment, rad per N·m: L/(G·J), from θ = T·L/(G·J)
-/// (Beer & Johnston, *Mechanics of Materials*, ch. 3).
-pub(crate) fn segment_compliance(length_m: f64, shear_modulus_pa: f64, j_m4: f64) -> f64 {
-    length_m / (shear_modulus_pa * j_m4)
-}
-
-fn bad(field: String, reason: String) -> Error {
-    Error::Bar { field, reason }
-}
-
-fn check_g(field: String, g: f64) -> Result<()> {
-    let (lo, hi) = SHEAR_MODULUS_RANGE_GPA;
-    if g.is_finite() && (lo..=hi).contains(&g) {
-        Ok(())
-    } else {
-        Err(bad(
-            field,
-            format!("{g} GPa is outside {lo}-{hi} GPa; give G in GPa (steel is about 79.3)"),
-        ))
-    }
-}
-
-fn check_steel(field: String, name: &str) -> Result<&'static Steel> {
-    steel::steel(name).ok_or_else(|| {
-        bad(
-            field,
-            format!(
-                "unknown steel '{name}'; use one of {}",
-                steel::steel_names()
-            ),
-        )
-    })
-}
-
-fn check_positive(field: String, v: f64, what: &str) -> Result<()> {
-    if v.is_finite() && v > 0.0 {
-        Ok(())
-    } else {
-        Err(bad(field, format!("must be a positive {what}, got {v}")))
-    }
-}
-
 impl BarSpec {
     /// A bar of these sections with every other field left at its default.
     pub fn new(sections: Vec<SectionSpec>) -> Self {
@@ -428,145 +150,6 @@ impl BarSpec {
             sections,
             ..BarSpec::default()
         }
-    }
-
-    /// Checks every dimension, modulus, steel name, inertia and calibration field.
-    ///
-    /// # Errors
-    /// [`Error::Bar`] naming the field (`bar.sections[1].bore_mm`) and what to change.
-    pub fn validate(&self) -> Result<()> {
-        if self.sections.is_empty() {
-            return Err(bad(
-                "bar.sections".into(),
-                "give at least one section".into(),
-            ));
-        }
-        if let Some(g) = self.shear_modulus_gpa {
-            check_g("bar.shear_modulus_gpa".into(), g)?;
-        }
-        if let Some(name) = &self.steel {
-            check_steel("bar.steel".into(), name)?;
-        }
-        for (i, s) in self.sections.iter().enumerate() {
-            let f = |name: &str| format!("bar.sections[{i}].{name}");
-            for (name, v) in s.dimensions() {
-                check_positive(f(name), v, "length in mm")?;
-            }
-            if let SectionSpec::Tube { d_mm, bore_mm, .. } = *s
-                && bore_mm >= d_mm
-            {
-                return Err(bad(
-                    f("bore_mm"),
-                    format!(
-                        "bore {bore_mm} mm must be smaller than the outside diameter {d_mm} mm"
-                    ),
-                ));
-            }
-            let (steel_name, g) = s.overrides();
-            if let Some(name) = steel_name {
-                check_steel(f("steel"), name)?;
-            }
-            if let Some(g) = g {
-                check_g(f("shear_modulus_gpa"), g)?;
-            }
-        }
-        if let Some(sy) = self.yield_strength_mpa {
-            check_positive(
-                "bar.yield_strength_mpa".into(),
-                sy,
-                "tensile yield strength in MPa",
-            )?;
-        }
-        if let Some(fr) = self.stress_warn_fraction
-            && !(fr.is_finite() && fr > 0.0 && fr <= 1.0)
-        {
-            return Err(bad(
-                "bar.stress_warn_fraction".into(),
-                format!("must be a fraction of shear yield in (0, 1], e.g. 0.7; got {fr}"),
-            ));
-        }
-        if let Some(r) = self.rating_nm {
-            check_positive("bar.rating_nm".into(), r, "torque in N·m")?;
-        }
-        if let Some(k) = self.calibrated_stiffness_nm_per_deg {
-            check_positive(
-                "bar.calibrated_stiffness_nm_per_deg".into(),
-                k,
-                "stiffness in N·m/deg",
-            )?;
-        }
-        if let Some(c) = &self.calibration {
-            if self.calibrated_stiffness_nm_per_deg.is_none() {
-                return Err(bad(
-                    "bar.calibration".into(),
-                    "is present without bar.calibrated_stiffness_nm_per_deg; rerun twistmark calibrate or remove it".into(),
-                ));
-            }
-            if c.torque_nm.len() != c.twist_deg.len() {
-                return Err(bad(
-                    "bar.calibration.twist_deg".into(),
-                    format!(
-                        "has {} values but torque_nm has {}; give one twist per torque",
-                        c.twist_deg.len(),
-                        c.torque_nm.len()
-                    ),
-                ));
-            }
-            if let Some(s) = c.stderr_nm_per_deg
-                && !(s.is_finite() && s >= 0.0)
-            {
-                return Err(bad(
-                    "bar.calibration.stderr_nm_per_deg".into(),
-                    format!("must be a non-negative stiffness in N·m/deg, got {s}"),
-                ));
-            }
-        }
-        if let Some(i) = self.drive_inertia_kg_m2 {
-            check_positive(
-                "bar.drive_inertia_kg_m2".into(),
-                i,
-                "moment of inertia in kg·m²",
-            )?;
-            if self.drive_parts.is_some() {
-                return Err(bad(
-                    "bar.drive_parts".into(),
-                    "give either drive_inertia_kg_m2 or drive_parts, not both".into(),
-                ));
-            }
-        }
-        if let Some(c) = self.drive_back_damping_nms_per_rad
-            && !(c.is_finite() && c >= 0.0)
-        {
-            return Err(bad(
-                "bar.drive_back_damping_nms_per_rad".into(),
-                format!("must be a damping of 0 or more in N·m·s/rad, got {c}"),
-            ));
-        }
-        if let Some(parts) = &self.drive_parts {
-            if parts.is_empty() {
-                return Err(bad(
-                    "bar.drive_parts".into(),
-                    "is empty; list the anvil and drive socket, or remove it".into(),
-                ));
-            }
-            for (i, p) in parts.iter().enumerate() {
-                let f = |name: &str| format!("bar.drive_parts[{i}].{name}");
-                check_positive(f("mass_kg"), p.mass_kg, "mass in kg")?;
-                check_positive(f("outer_d_mm"), p.outer_d_mm, "diameter in mm")?;
-                if let Some(b) = p.bore_mm
-                    && !(b.is_finite() && b >= 0.0 && b < p.outer_d_mm)
-                {
-                    return Err(bad(
-                        f("bore_mm"),
-                        format!(
-                            "bore {b} mm must be at least 0 and smaller than outer_d_mm {} mm",
-                            p.outer_d_mm
-                        ),
-                    ));
-                }
-            }
-        }
-        Ok(())
     }
 
     /// The material of section `index`: G from the section's own `shear_modulus_gpa`, else
@@ -680,6 +263,7 @@ mod saint_venant_check;
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::error::Error;
     use crate::units::{Angle, Torque};
     use approx::assert_relative_eq;
     use proptest::prelude::*;

@@ -1,206 +1,10 @@
-//! The invented test bench as seen by the camera: a flag disc with a painted stripe at the
-//! drive end, a nut face (hexagon) with its stripe at the nut end, an optional fixed stripe on
-//! a stationary bracket, and a background. Renders one luma frame from the two end angles.
-//!
-//! Anti-aliasing: every pixel is the mean of the scene over its 1×1 px square. Pixels whose
-//! centre is farther than 0.75 px from every edge (more than half the pixel diagonal) are
-//! uniform and take one sample; the others take n×n jittered (stratified) samples.
-//! The distance tests are lower bounds of the true distance, so no edge pixel is missed.
-//! Pixel convention: x right, y down, origin at the centre of the top-left pixel; screen angles
-//! run from +x towards +y (clockwise on screen).
+//! The prepared scene and its luma renderer: per-instant geometry, the scene's value at a
+//! point with a lower bound of the distance to the nearest edge, and the anti-aliased pixel
+//! mean (one sample away from edges, n×n stratified jittered samples near them).
 
 use rayon::prelude::*;
-use serde::{Deserialize, Serialize};
 
-use crate::rig::Ellipse;
-
-use super::look::{Look, Ycc, mix, rgb_to_ycc, scale};
-
-/// Paint colours and their luma (ITU-R BT.601 weights 0.299 R + 0.587 G + 0.114 B applied to
-/// nominal paint colours; the colours themselves are common practice for marking paint).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
-#[serde(rename_all = "lowercase")]
-pub enum Paint {
-    /// Yellow, RGB ≈ (1.0, 0.9, 0.05): luma 0.83.
-    #[default]
-    Yellow,
-    /// White, RGB ≈ (0.93, 0.93, 0.93): luma 0.93.
-    White,
-    /// Orange, RGB ≈ (1.0, 0.5, 0.0): luma 0.59.
-    Orange,
-    /// Red, RGB ≈ (0.85, 0.1, 0.1): luma 0.32 (darker than bare steel).
-    Red,
-    /// Green, RGB ≈ (0.15, 0.65, 0.25): luma 0.46.
-    Green,
-    /// Blue, RGB ≈ (0.12, 0.30, 0.85): luma 0.31.
-    Blue,
-    /// Fluorescent pink, RGB ≈ (1.0, 0.25, 0.65): luma 0.52.
-    Pink,
-}
-
-impl Paint {
-    /// Every paint, in a fixed order.
-    pub const ALL: [Paint; 7] = [
-        Paint::White,
-        Paint::Yellow,
-        Paint::Orange,
-        Paint::Red,
-        Paint::Green,
-        Paint::Blue,
-        Paint::Pink,
-    ];
-
-    /// Nominal R′G′B′ colour, 0..1.
-    pub fn rgb(self) -> [f32; 3] {
-        match self {
-            Paint::Yellow => [1.0, 0.9, 0.05],
-            Paint::White => [0.93, 0.93, 0.93],
-            Paint::Orange => [1.0, 0.5, 0.0],
-            Paint::Red => [0.85, 0.1, 0.1],
-            Paint::Green => [0.15, 0.65, 0.25],
-            Paint::Blue => [0.12, 0.30, 0.85],
-            Paint::Pink => [1.0, 0.25, 0.65],
-        }
-    }
-
-    /// Linear luma of the paint, 0..1.
-    pub fn luma(self) -> f32 {
-        let [r, g, b] = self.rgb();
-        0.299 * r + 0.587 * g + 0.114 * b
-    }
-}
-
-/// Finish of the steel parts.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
-#[serde(rename_all = "lowercase")]
-pub enum Steel {
-    /// Black oxide or phosphate finish: luma 0.16.
-    #[default]
-    Dark,
-    /// Bare machined steel: luma 0.50.
-    Bare,
-}
-
-impl Steel {
-    /// Linear luma of the surface, 0..1 (common practice values for a lit bench).
-    pub fn luma(self) -> f32 {
-        match self {
-            Steel::Dark => 0.16,
-            Steel::Bare => 0.50,
-        }
-    }
-}
-
-/// A painted stripe along a radius of a turning part.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct Stripe {
-    /// Inner end's distance from the pivot, px (in the disc plane for an oblique disc).
-    pub r_inner_px: f64,
-    /// Outer end's distance from the pivot, px.
-    pub r_outer_px: f64,
-    /// Full width across the stripe, px.
-    pub width_px: f64,
-    /// Screen angle of the stripe at the start of the simulation (before any rotation),
-    /// degrees from +x towards +y.
-    pub start_deg: f64,
-}
-
-/// The drive end's flag disc.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct DriveDisc {
-    /// Centre of rotation on screen, px.
-    pub pivot: [f64; 2],
-    /// Disc radius, px (along the major axis when oblique).
-    pub radius_px: f64,
-    /// The disc's finish.
-    pub steel: Steel,
-    /// The painted stripe.
-    pub stripe: Stripe,
-    /// A disc seen obliquely appears as this ellipse (None: seen square on).
-    #[serde(default)]
-    pub ellipse: Option<Ellipse>,
-    /// A static specular highlight on the disc (a light's reflection), if any.
-    #[serde(default)]
-    pub highlight: Option<Highlight>,
-}
-
-/// A bright spot that stays put on screen while the disc turns under it.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct Highlight {
-    /// Centre relative to the disc's pivot on screen, px.
-    pub offset_px: [f64; 2],
-    /// Gaussian radius (standard deviation), px.
-    pub sigma_px: f64,
-    /// Added luma at the centre, 0..1.
-    pub peak: f32,
-}
-
-/// The nut end: a hexagonal nut (or socket) face with a stud end in the middle.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct NutFace {
-    /// Centre of rotation on screen, px.
-    pub pivot: [f64; 2],
-    /// Across flats, px.
-    pub across_flats_px: f64,
-    /// The face's finish.
-    pub steel: Steel,
-    /// Stud end radius, px (drawn darker than the face).
-    pub stud_radius_px: f64,
-    /// Screen angle of one corner at the start, degrees.
-    pub corner_start_deg: f64,
-    /// The painted stripe.
-    pub stripe: Stripe,
-}
-
-/// A painted stripe on a stationary bracket, for cancelling camera shake.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct FixedMark {
-    /// Inner end of the stripe (the mark's pivot), px.
-    pub pivot: [f64; 2],
-    /// The stripe (its `start_deg` is its fixed angle).
-    pub stripe: Stripe,
-    /// Half size of the bracket plate around the stripe, px.
-    pub plate_half_px: [f64; 2],
-}
-
-/// Everything the camera sees, except what moves (given per frame as angles).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct Scene {
-    /// Frame width, px.
-    pub width: u32,
-    /// Frame height, px.
-    pub height: u32,
-    /// Background luma at the top of the frame, 0..1.
-    pub background_top: f32,
-    /// Background luma at the bottom of the frame, 0..1.
-    pub background_bottom: f32,
-    /// Paint used for every stripe.
-    pub paint: Paint,
-    /// Tightening direction as seen on screen (both ends are seen from the same side).
-    pub tighten: crate::rig::Spin,
-    /// The drive end.
-    pub drive: DriveDisc,
-    /// The nut end.
-    pub nut: NutFace,
-    /// The optional fixed mark.
-    #[serde(default)]
-    pub fixed: Option<FixedMark>,
-    /// Supersampling per axis at edge pixels (n×n jittered samples), 1..=16.
-    pub supersample: u32,
-    /// A textured bench behind the parts (None: the plain gradient alone).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub background_texture: Option<super::texture::BrushedSteel>,
-    /// Colour and surface detail (randomised scenes); `None` renders the plain luma scene of
-    /// the named presets, unchanged.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub look: Option<Look>,
-}
+use super::{Scene, Stripe};
 
 /// The moving state of one instant, as the renderer needs it.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -219,27 +23,27 @@ pub(crate) struct Pose {
 }
 
 /// Per-instant geometry, precomputed once per sub-frame.
-struct Geo {
+pub(super) struct Geo {
     shift: [f64; 2],
     /// cos and sin of the camera roll; None when there is none.
     roll: Option<(f64, f64)>,
-    gain: f32,
-    drive_dir: [f64; 2],
-    nut_dir: [f64; 2],
-    hex_dir: [f64; 2],
+    pub(super) gain: f32,
+    pub(super) drive_dir: [f64; 2],
+    pub(super) nut_dir: [f64; 2],
+    pub(super) hex_dir: [f64; 2],
 }
 
 /// A scene prepared for fast rendering.
 pub(crate) struct Prepared<'a> {
-    scene: &'a Scene,
+    pub(super) scene: &'a Scene,
     paint: f32,
     /// Disc-plane mapping for an oblique disc: unit major axis and minor/major ratio.
-    ellipse: Option<([f64; 2], f64)>,
-    fixed_dir: [f64; 2],
+    pub(super) ellipse: Option<([f64; 2], f64)>,
+    pub(super) fixed_dir: [f64; 2],
     fixed_luma: f32,
 }
 
-const EDGE_MARGIN_PX: f64 = 0.75;
+pub(super) const EDGE_MARGIN_PX: f64 = 0.75;
 
 /// SplitMix64 finaliser (Steele, Lea & Flood 2014): a fixed, well-mixed hash for sample
 /// placement, so renders are deterministic and independent of the thread count.
@@ -252,7 +56,7 @@ pub(crate) fn splitmix64(mut z: u64) -> u64 {
 
 /// Signed-distance lower bound to a stripe rectangle in its own frame: along `u` from r0 to
 /// r1, across `v` within ±w/2. Negative inside.
-fn rect_sd(u: f64, v: f64, s: &Stripe) -> f64 {
+pub(super) fn rect_sd(u: f64, v: f64, s: &Stripe) -> f64 {
     let c = 0.5 * (s.r_inner_px + s.r_outer_px);
     let hl = 0.5 * (s.r_outer_px - s.r_inner_px);
     ((u - c).abs() - hl).max(v.abs() - 0.5 * s.width_px)
@@ -282,7 +86,7 @@ impl<'a> Prepared<'a> {
         }
     }
 
-    fn geo(&self, pose: &Pose) -> Geo {
+    pub(super) fn geo(&self, pose: &Pose) -> Geo {
         let sign = self.scene.tighten.sign();
         let d = self.scene.drive.stripe.start_deg.to_radians() + sign * pose.drive_rad;
         let n = self.scene.nut.stripe.start_deg.to_radians() + sign * pose.nut_rad;
@@ -298,7 +102,7 @@ impl<'a> Prepared<'a> {
     }
 
     /// Maps a screen offset from the drive pivot into the disc plane.
-    fn to_disc(&self, dx: f64, dy: f64) -> [f64; 2] {
+    pub(super) fn to_disc(&self, dx: f64, dy: f64) -> [f64; 2] {
         match self.ellipse {
             None => [dx, dy],
             Some((m, ratio)) => {
@@ -312,7 +116,7 @@ impl<'a> Prepared<'a> {
     /// Screen point (x, y) to the scene point seen there: undo the camera's translation, then
     /// its roll about the frame centre.
     #[inline]
-    fn to_scene(&self, g: &Geo, x: f64, y: f64) -> (f64, f64) {
+    pub(super) fn to_scene(&self, g: &Geo, x: f64, y: f64) -> (f64, f64) {
         let x = x - g.shift[0];
         let y = y - g.shift[1];
         match g.roll {
@@ -502,245 +306,11 @@ impl<'a> Prepared<'a> {
             });
         out
     }
-
-    /// Scene colour (before any light gain) at screen point (x, y) of a scene with a [`Look`],
-    /// and the lower bound of the distance to the nearest edge, px. The same geometry as
-    /// [`Prepared::eval`], with finishes, wear, recess, pits, rim, glints, washer and wheel.
-    fn eval_look(&self, lk: &Look, g: &Geo, x: f64, y: f64) -> (Ycc, f64) {
-        let s = self.scene;
-        let seed = lk.texture_seed;
-        let (x, y) = self.to_scene(g, x, y);
-        let mut margin = f64::INFINITY;
-        let fy = (y / f64::from(s.height.max(1))).clamp(0.0, 1.0) as f32;
-        let mut c: Ycc = [
-            s.background_top + (s.background_bottom - s.background_top) * fy,
-            0.0,
-            0.0,
-        ];
-        let paint = rgb_to_ycc(lk.paint_rgb);
-
-        // Wheel face behind the nut.
-        let mut on_wheel = false;
-        if let Some(wh) = &lk.wheel {
-            let (dx, dy) = (x - wh.centre[0], y - wh.centre[1]);
-            let sd = (dx * dx + dy * dy).sqrt() - wh.radius_px;
-            margin = margin.min(sd.abs());
-            if sd < 0.0 {
-                on_wheel = true;
-                c = wh.finish.at(seed ^ 0x3, dx, dy);
-            }
-        }
-        // Fixed mark: on the wheel, or on a bracket plate.
-        if let Some(f) = &s.fixed {
-            let dx = x - f.pivot[0];
-            let dy = y - f.pivot[1];
-            if lk.wheel.is_none() {
-                let cm = 0.5 * (f.stripe.r_inner_px + f.stripe.r_outer_px);
-                let (cx, cy) = (cm * self.fixed_dir[0], cm * self.fixed_dir[1]);
-                let pd = ((dx - cx).abs() - f.plate_half_px[0])
-                    .max((dy - cy).abs() - f.plate_half_px[1]);
-                margin = margin.min(pd.abs());
-                if pd < 0.0 {
-                    c = lk.bracket_finish.at(seed ^ 0x4, dx, dy);
-                }
-            }
-            let u = dx * self.fixed_dir[0] + dy * self.fixed_dir[1];
-            let w = -dx * self.fixed_dir[1] + dy * self.fixed_dir[0];
-            let sd = rect_sd(u, w, &f.stripe);
-            margin = margin.min(sd.abs());
-            if sd < 0.0 {
-                c = mix(c, paint, lk.coverage(0xF1, u, w));
-            }
-        }
-        // Bolt holes go through whatever is painted on the wheel.
-        if let (Some(wh), true) = (&lk.wheel, on_wheel) {
-            for k in 0..wh.holes {
-                let a = (wh.hole_phase_deg + 360.0 * f64::from(k) / f64::from(wh.holes.max(1)))
-                    .to_radians();
-                let hx = wh.centre[0] + wh.hole_circle_px * a.cos();
-                let hy = wh.centre[1] + wh.hole_circle_px * a.sin();
-                let d = ((x - hx).powi(2) + (y - hy).powi(2)).sqrt() - wh.hole_radius_px;
-                margin = margin.min(d.abs());
-                if d < 0.0 {
-                    c = [0.03, 0.0, 0.0];
-                }
-            }
-        }
-
-        // Drive flag disc.
-        let d = &s.drive;
-        let dx = x - d.pivot[0];
-        let dy = y - d.pivot[1];
-        let p = self.to_disc(dx, dy);
-        let sc = self.ellipse.map_or(1.0, |e| e.1);
-        let rr = (p[0] * p[0] + p[1] * p[1]).sqrt();
-        let disc_sd = rr - d.radius_px;
-        margin = margin.min(disc_sd.abs() * sc);
-        if disc_sd < 0.0 {
-            let u = p[0] * g.drive_dir[0] + p[1] * g.drive_dir[1];
-            let w = -p[0] * g.drive_dir[1] + p[1] * g.drive_dir[0];
-            let mut base = lk.drive_finish.at(seed ^ 0x1, u, w);
-            if lk.rim_px > 0.0 {
-                let rim_sd = rr - (d.radius_px - lk.rim_px);
-                margin = margin.min(rim_sd.abs() * sc);
-                if rim_sd > 0.0 {
-                    // A bevel facing outwards: lit where it faces the lamp, static on screen.
-                    let phi = dy.atan2(dx) - lk.light_deg.to_radians();
-                    base = scale(base, (0.5 + 0.9 * phi.cos().max(0.0)) as f32);
-                }
-            }
-            if lk.recess_half_px > 0.0 {
-                let sd = u.abs().max(w.abs()) - lk.recess_half_px;
-                margin = margin.min(sd.abs() * sc);
-                if sd < 0.0 {
-                    base = [0.035, 0.0, 0.0];
-                }
-            }
-            for pit in &lk.pits {
-                let sd = ((u - pit[0]).powi(2) + (w - pit[1]).powi(2)).sqrt() - pit[2];
-                margin = margin.min(sd.abs() * sc);
-                if sd < 0.0 {
-                    base = scale(base, 0.4);
-                }
-            }
-            let sd = rect_sd(u, w, &d.stripe);
-            margin = margin.min(sd.abs() * sc);
-            if sd < 0.0 {
-                base = mix(base, paint, lk.coverage(0xD1, u, w));
-            }
-            if let Some(h) = &d.highlight {
-                let hx = dx - h.offset_px[0];
-                let hy = dy - h.offset_px[1];
-                base[0] +=
-                    h.peak * (-(hx * hx + hy * hy) / (2.0 * h.sigma_px * h.sigma_px)).exp() as f32;
-            }
-            c = base;
-        }
-
-        // Washer (static) and nut face.
-        let n = &s.nut;
-        let dx = x - n.pivot[0];
-        let dy = y - n.pivot[1];
-        let rn = (dx * dx + dy * dy).sqrt();
-        if let Some(wa) = &lk.washer {
-            let sd = rn - wa.r_outer_px;
-            margin = margin.min(sd.abs());
-            if sd < 0.0 {
-                c = scale(
-                    rgb_to_ycc(wa.rgb),
-                    1.0 + 0.06 * super::look::value_noise(seed ^ 0x5, dx / 3.0, dy / 3.0),
-                );
-            }
-        }
-        let apothem = 0.5 * n.across_flats_px;
-        let mut hex_sd = f64::NEG_INFINITY;
-        let c30 = 3f64.sqrt() / 2.0;
-        let base = [
-            g.hex_dir[0] * c30 - g.hex_dir[1] * 0.5,
-            g.hex_dir[1] * c30 + g.hex_dir[0] * 0.5,
-        ];
-        let normals = [
-            base,
-            [base[0] * 0.5 - base[1] * c30, base[1] * 0.5 + base[0] * c30],
-            [
-                -base[0] * 0.5 - base[1] * c30,
-                -base[1] * 0.5 + base[0] * c30,
-            ],
-        ];
-        for nn in normals {
-            hex_sd = hex_sd.max((dx * nn[0] + dy * nn[1]).abs() - apothem);
-        }
-        margin = margin.min(hex_sd.abs());
-        if hex_sd < 0.0 {
-            let u = dx * g.nut_dir[0] + dy * g.nut_dir[1];
-            let w = -dx * g.nut_dir[1] + dy * g.nut_dir[0];
-            let mut face = lk.nut_finish.at(seed ^ 0x2, u, w);
-            let stud_sd = rn - n.stud_radius_px;
-            margin = margin.min(stud_sd.abs());
-            if stud_sd < 0.0 {
-                face = [0.06, 0.0, 0.0];
-            }
-            let sd = rect_sd(u, w, &n.stripe);
-            margin = margin.min(sd.abs());
-            if sd < 0.0 {
-                face = mix(face, paint, lk.coverage(0xE1, u, w));
-            }
-            if let Some(h) = &lk.nut_glint {
-                let hx = dx - h.offset_px[0];
-                let hy = dy - h.offset_px[1];
-                face[0] +=
-                    h.peak * (-(hx * hx + hy * hy) / (2.0 * h.sigma_px * h.sigma_px)).exp() as f32;
-            }
-            c = face;
-        }
-        (c, margin)
-    }
-
-    /// Mean colour over the pixel square at (x, y), averaged over the poses, with the static
-    /// lighting of the look: as [`Prepared::pixel`] for a scene with a [`Look`].
-    fn pixel_look(&self, lk: &Look, geos: &[Geo], x: u32, y: u32, n: u32) -> Ycc {
-        let (px, py) = (f64::from(x), f64::from(y));
-        let mut acc = [0.0f32; 3];
-        for (gi, g) in geos.iter().enumerate() {
-            let (v, margin) = self.eval_look(lk, g, px, py);
-            let mean = if margin > EDGE_MARGIN_PX {
-                v
-            } else {
-                let base = (u64::from(x) << 32) ^ u64::from(y) ^ ((gi as u64) << 56);
-                let inv = 1.0 / f64::from(n);
-                let mut s = [0.0f32; 3];
-                for j in 0..n {
-                    for i in 0..n {
-                        let h = splitmix64(base ^ (u64::from(j * n + i) << 40));
-                        let u = (h >> 11) as f64 * (1.0 / (1u64 << 53) as f64);
-                        let w = (splitmix64(h) >> 11) as f64 * (1.0 / (1u64 << 53) as f64);
-                        let ox = (f64::from(i) + u) * inv - 0.5;
-                        let oy = (f64::from(j) + w) * inv - 0.5;
-                        let e = self.eval_look(lk, g, px + ox, py + oy).0;
-                        for k in 0..3 {
-                            s[k] += e[k];
-                        }
-                    }
-                }
-                scale(s, 1.0 / (n * n) as f32)
-            };
-            for k in 0..3 {
-                acc[k] += mean[k] * g.gain;
-            }
-        }
-        let light = lk.light(
-            px,
-            py,
-            f64::from(self.scene.width),
-            f64::from(self.scene.height),
-        );
-        scale(acc, light / geos.len() as f32)
-    }
-
-    /// Renders a scene with a [`Look`] averaged over `poses` into Y′CbCr, row-major.
-    ///
-    /// # Panics
-    /// When the scene has no look.
-    pub fn render_colour(&self, poses: &[Pose]) -> Vec<Ycc> {
-        let s = self.scene;
-        let lk = s.look.as_ref().expect("a scene with a look");
-        let n = s.supersample.clamp(1, 16);
-        let geos: Vec<Geo> = poses.iter().map(|p| self.geo(p)).collect();
-        let w = s.width as usize;
-        let mut out = vec![[0.0f32; 3]; w * s.height as usize];
-        out.par_chunks_mut(w.max(1))
-            .enumerate()
-            .for_each(|(y, row)| {
-                for (x, o) in row.iter_mut().enumerate() {
-                    *o = self.pixel_look(lk, &geos, x as u32, y as u32, n);
-                }
-            });
-        out
-    }
 }
 
 #[cfg(test)]
 mod tests {
+    use super::super::{DriveDisc, NutFace, Paint, Steel};
     use super::*;
     use crate::rig::Spin;
 
