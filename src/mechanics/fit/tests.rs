@@ -168,6 +168,20 @@ fn pairs() -> Vec<(&'static str, Scenario)> {
     ]
 }
 
+/// The prediction of fit `f` for scenario `sc` (its bar's stiffness, blow rate and blow
+/// count), with the renderer's truth for that scenario.
+fn predict_scenario(f: &ModelFit, sc: &Scenario) -> (crate::mechanics::Prediction, Truth) {
+    let truth = simulate(sc);
+    let input = PredictInput {
+        stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
+        stiffness_rel_sigma: 0.0,
+        rating_nm: sc.bar.rating_nm,
+        blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
+        blows: Some(truth.blows.len()),
+    };
+    (predict(f, &input).unwrap(), truth)
+}
+
 /// Fits bar A's clip and predicts each pair; returns (name, prediction, B's truth).
 fn predictions() -> Vec<(&'static str, crate::mechanics::Prediction, Truth)> {
     let a = Scenario::preset("slow-tool").unwrap();
@@ -175,15 +189,8 @@ fn predictions() -> Vec<(&'static str, crate::mechanics::Prediction, Truth)> {
     pairs()
         .into_iter()
         .map(|(name, sc)| {
-            let truth = simulate(&sc);
-            let input = PredictInput {
-                stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
-                stiffness_rel_sigma: 0.0,
-                rating_nm: sc.bar.rating_nm,
-                blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
-                blows: Some(truth.blows.len()),
-            };
-            (name, predict(&f, &input).unwrap(), truth)
+            let (p, truth) = predict_scenario(&f, &sc);
+            (name, p, truth)
         })
         .collect()
 }
@@ -298,15 +305,7 @@ fn errors(
     pairs
         .into_iter()
         .map(|(name, sc)| {
-            let truth = simulate(&sc);
-            let input = PredictInput {
-                stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
-                stiffness_rel_sigma: 0.0,
-                rating_nm: sc.bar.rating_nm,
-                blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
-                blows: Some(truth.blows.len()),
-            };
-            let p = predict(&f, &input).unwrap();
+            let (p, truth) = predict_scenario(&f, &sc);
             let want = truth.model.joint_torque_end_nm;
             let [lo, hi] = p.holding_torque_ci95_nm;
             let mut covered = lo <= want && want <= hi;
@@ -421,15 +420,7 @@ fn a_blow_whose_nut_turn_is_mispredicted_is_called_undecided() {
     for (a, seed, pairs) in sets {
         let f = fit(&obs_of(&simulate(&a), seed)).unwrap();
         for (name, sc) in pairs {
-            let truth = simulate(&sc);
-            let input = PredictInput {
-                stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
-                stiffness_rel_sigma: 0.0,
-                rating_nm: sc.bar.rating_nm,
-                blow_rate_per_min: Some(sc.tool.blow_rate_per_min),
-                blows: Some(truth.blows.len()),
-            };
-            let p = predict(&f, &input).unwrap();
+            let (p, truth) = predict_scenario(&f, &sc);
             for (b, t) in p.blows.iter().zip(&truth.blows) {
                 let (got, want) = (b.nut_advance_deg > 0.1, t.nut_advance_deg > 0.1);
                 if got != want {
