@@ -535,8 +535,8 @@ mod tests {
     use super::super::write_outputs;
     use serde_json::Value;
 
-    /// Every key the interface lists for report.json (`/work/shared/interface.md`, section
-    /// "report.json", version 1), by object.
+    /// Every key the project's interface specification (version 1 and on) lists for
+    /// report.json, section "report.json" (documented for users in docs/outputs.md), by object.
     const TOP: [&str; 6] = ["fps", "frames", "warnings", "trace", "blows", "summary"];
     const TRACE: [&str; 4] = ["t_s", "drive_deg", "nut_deg", "twist_deg"];
     const BLOW: [&str; 9] = [

@@ -29,7 +29,8 @@ const C5_RIG: &str = r#"{
   }
 }"#;
 
-/// The rig example of /work/shared/interface.md, verbatim in its bar.
+/// The rig example of the project's interface specification (its "Rig file" section),
+/// verbatim in its bar.
 const INTERFACE_RIG: &str = r#"{
   "rig_version": 1,
   "capture_fps_hz": 2000,

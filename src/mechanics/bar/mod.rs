@@ -221,7 +221,8 @@ impl BarSpec {
     }
 
     /// Stiffness computed from the sections in series: 1/k = Σ Lᵢ/(Gᵢ·Jᵢ) (same torque
-    /// through each; MecMovies M6.6 two-segment shaft, and any mechanics-of-materials text).
+    /// through each; Philpot, *Mechanics of Materials*, ch. 6, compound shafts, and any
+    /// mechanics-of-materials text).
     pub fn computed_stiffness(&self) -> Stiffness {
         let compliance: f64 = self.section_compliances().iter().sum();
         Stiffness::from_nm_per_rad(1.0 / compliance)
@@ -280,8 +281,9 @@ mod tests {
     }
 
     #[test]
-    fn mecmovies_m6_19_segment_twist() {
-        // MecMovies M6.19 (Philpot, Mechanics of Materials), segment 1: T = 675.7 N·m,
+    fn compound_shaft_worked_example_segment_twist_g26() {
+        // A compound-shaft worked example of Philpot, *Mechanics of Materials*, ch. 6 (its
+        // numbering from memory), segment 1: T = 675.7 N·m,
         // L = 1000 mm, J = 308 102 mm⁴, G = 26 000 MPa → θ = 0.08435 rad = 4.83°.
         let theta = 675.7 * segment_compliance(1.0, 26_000e6, 308_102e-12);
         assert_relative_eq!(theta, 0.08435, max_relative = TOL);
@@ -289,8 +291,9 @@ mod tests {
     }
 
     #[test]
-    fn mecmovies_m6_21_segment_twist() {
-        // MecMovies M6.21 (Philpot), segment 1: T = 4253.921 N·m, L = 4000 mm,
+    fn compound_shaft_worked_example_segment_twist_g76() {
+        // Another compound-shaft worked example of Philpot, ch. 6 (numbering from memory),
+        // segment 1: T = 4253.921 N·m, L = 4000 mm,
         // J = 2 268 758 mm⁴, G = 76 000 MPa → θ = 0.09868 rad = 5.65°.
         let theta = 4253.921 * segment_compliance(4.0, 76_000e6, 2_268_758e-12);
         assert_relative_eq!(theta, 0.09868, max_relative = TOL);

@@ -171,10 +171,12 @@ impl SectionSpec {
     /// Saint-Venant torsion constant J in m⁴ (the polar moment only for round sections).
     ///
     /// Round πd⁴/32 and tube π(D⁴−d⁴)/32 (Beer & Johnston, *Mechanics of Materials*, ch. 3).
-    /// Square 0.140577·s⁴ (Saint-Venant series; amesweb, as 2.25·a⁴ with a = s/2). Hexagon
+    /// Square 0.140577·s⁴ (Saint-Venant series; Young & Budynas, *Roark's Formulas for Stress
+    /// and Strain*, 7th ed., Table 10.1, square: K = 2.25·a⁴ with a = s/2, *from memory*). Hexagon
     /// 0.11505·s⁴ across flats (finite-difference Saint-Venant solution computed for this project). For
     /// the non-round shapes J is below the polar moment because the section warps
-    /// (Wikipedia "Torsion constant").
+    /// (Timoshenko & Goodier, *Theory of Elasticity*, ch. 10, *from memory*; for the hexagon
+    /// the polar moment 5√3/72·s⁴ = 0.1203·s⁴ is 4.6 % above the J here).
     pub fn torsion_constant_m4(&self) -> f64 {
         match *self {
             SectionSpec::Round { d_mm, .. } => PI * (d_mm * 1e-3).powi(4) / 32.0,
@@ -191,7 +193,8 @@ impl SectionSpec {
     /// Maximum shear stress per unit torque, Pa per N·m: τ_max = this × T.
     ///
     /// Round 16/(πd³) and tube 16·D/(π(D⁴−d⁴)) (Beer & Johnston ch. 3, τ = T·r/J at the
-    /// outer radius). Square 4.808/s³ at mid-side (amesweb, piping-designer). Hexagon
+    /// outer radius). Square 4.808/s³ at mid-side (Roark's Table 10.1, square:
+    /// τ = 0.601·T/a³ with a = s/2, *from memory*). Hexagon
     /// 5.328/s³ at mid-flat (finite-difference solution computed for this project).
     pub fn shear_stress_per_nm(&self) -> f64 {
         match *self {

@@ -1,7 +1,8 @@
 //! Per-blow quantities from a trace and its blows: how far each end advanced, the peak and
 //! residual twist, the torque they mean, and the clip summary.
 //!
-//! Definitions follow the report interface (`/work/shared/interface.md`, report.json):
+//! Definitions follow the project's interface specification for report.json (documented in
+//! docs/outputs.md):
 //!
 //! - "Just before a blow" is the sample before its onset; "just before the next blow" is the
 //!   sample before the next onset, or the last sample of the clip for the last blow. Each
