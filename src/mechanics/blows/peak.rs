@@ -85,11 +85,7 @@ fn sg_at(v: &[Option<f64>], i: usize, c: &[f64]) -> Option<f64> {
 /// hold a higher value, and then the peak read from the others could be low. A lost frame
 /// further down the rise or the fall cannot.
 pub(super) fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
-    let top = (a..b)
-        .filter_map(|i| Some((i, twist[i]?)))
-        .max_by(|x, y| x.1.total_cmp(&y.1))
-        .map(|(i, _)| i);
-    match top {
+    match highest_sample(twist, a, b) {
         None => true,
         Some(top) => {
             (top.saturating_sub(1).max(a)..=(top + 1).min(b - 1)).any(|i| twist[i].is_none())
@@ -105,16 +101,20 @@ pub(super) fn peak_on_lost(twist: &[Option<f64>], a: usize, b: usize) -> bool {
 /// gap counts.
 pub(super) fn peak_beside_gap(trace: &Trace, twist: &[Option<f64>], a: usize, b: usize) -> bool {
     let fps = trace.time_base.fps_hz();
-    let Some(top) = (a..b)
-        .filter_map(|i| Some((i, twist[i]?)))
-        .max_by(|x, y| x.1.total_cmp(&y.1))
-        .map(|(i, _)| i)
-    else {
+    let Some(top) = highest_sample(twist, a, b) else {
         return false;
     };
     let limit = GAP_FRAMES / fps;
     let gap = |i: usize, j: usize| trace.t_s(j) - trace.t_s(i) > limit;
     (top > 0 && gap(top - 1, top)) || (top + 1 < trace.len() && gap(top, top + 1))
+}
+
+/// Index of the highest measured twist within `a..b` (None when none is measured).
+fn highest_sample(twist: &[Option<f64>], a: usize, b: usize) -> Option<usize> {
+    (a..b)
+        .filter_map(|i| Some((i, twist[i]?)))
+        .max_by(|x, y| x.1.total_cmp(&y.1))
+        .map(|(i, _)| i)
 }
 
 /// Time between neighbouring samples, in frame intervals, above which a frame is taken to be

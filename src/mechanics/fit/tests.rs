@@ -25,7 +25,7 @@ pub(crate) fn obs_of(truth: &Truth, seed: u64) -> ClipObs {
     };
     let tr = &truth.trace;
     let drive_deg: Vec<Option<f64>> = tr.drive_deg.iter().map(|&v| Some(noisy(v))).collect();
-    // The drive end's sub-frame start, as analyze measures it (blows.rs): the line through
+    // The drive end's sub-frame start, as analyze measures it (blows/mod.rs): the line through
     // the first two moving samples carried back to the level of the sample before.
     let impact_t_s = truth
         .blows
