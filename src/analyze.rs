@@ -204,9 +204,9 @@ fn analyze_impl(
 
     let readout_rows = tracker.readout_rows();
     let (mut trace, track_warnings) = tracker.finish(time_base);
-    warnings.extend(track_warnings);
     // A mark lost in most frames cannot be measured: refuse, and write no torque.
-    crate::track::check_measured(&trace)?;
+    crate::track::check_measured(&trace, &track_warnings)?;
+    warnings.extend(track_warnings);
     let (evenness, timing_warning) = crate::timing::apply(timing_source, &clip, &mut trace);
     warnings.extend(timing_warning);
     let mut flags = detector.finish();

@@ -20,6 +20,19 @@ pub enum Warning {
         /// The first number after the gap.
         next: u64,
     },
+    /// A mark tracked on colour turned less than its own part's brightness texture while at
+    /// rest (most often lossy video coding the paint's colour behind the part), so its angles
+    /// in that run are null (`track::texture`).
+    ColourLagsTexture {
+        /// The mark's role.
+        mark: String,
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+        /// The largest lag seen in the run, degrees.
+        lag_deg: f64,
+    },
     /// A mark could not be found in a run of frames; those frames are null in the trace.
     MarkLost {
         /// The mark's role.
@@ -183,6 +196,21 @@ impl fmt::Display for Warning {
                  {first_frame}..={last_frame}, so camera shake is unknown there and those \
                  angles are null (check that nothing covers the fixed mark and that the camera \
                  is held firmly)"
+            ),
+            Warning::ColourLagsTexture {
+                mark,
+                first_frame,
+                last_frame,
+                lag_deg,
+            } => write!(
+                f,
+                "mark '{mark}' is tracked on its paint's colour, and in frames \
+                 {first_frame}..={last_frame} that colour turned up to {lag_deg:.2}° less than \
+                 the part's own surface texture did at rest, so the colour track is behind the \
+                 part there and those angles are null (compressed video often codes colour \
+                 behind brightness: record with less compression or a lossless codec; else \
+                 check that the paint stays inside the annulus, or use a paint that differs \
+                 from the metal in brightness)"
             ),
             Warning::MarkLost {
                 mark,

@@ -8,7 +8,7 @@ use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
 
 use super::unwrap::wrap_pi;
-use super::{MarkTrack, Reader, Trace, Tracker, refine, selfcheck, side, unwrap};
+use super::{MarkTrack, Reader, Trace, Tracker, refine, selfcheck, side, texture, unwrap};
 
 impl Tracker {
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
@@ -48,6 +48,28 @@ impl Tracker {
                 .map(|z| Angle::from_rad(wrap_pi(radial.grid().screen_angle(z))));
             (v, screen)
         };
+        // A colour track behind its own part's texture at rest is not a measurement there
+        // (`texture.rs`): those frames are null, with the reason (not as lost marks).
+        let mut lagged: Vec<Warning> = Vec::new();
+        for t in [&mut self.drive, &mut self.nut] {
+            let Some(tex) = t.texture.take() else {
+                continue;
+            };
+            for (from, to, lag_deg) in texture::lagging_runs(&tex.checks, &t.angle) {
+                for i in from..=to.min(t.angle.len().saturating_sub(1)) {
+                    t.angle[i] = None;
+                    t.dir_offset[i] = None;
+                    t.confidence[i] = 0.0;
+                    t.row[i] = None;
+                }
+                lagged.push(Warning::ColourLagsTexture {
+                    mark: t.role.name().into(),
+                    first_frame: self.frames.get(from).copied().unwrap_or(from as u64),
+                    last_frame: self.frames.get(to).copied().unwrap_or(to as u64),
+                    lag_deg,
+                });
+            }
+        }
         for t in [&self.drive, &self.nut] {
             if let Some(c) = &t.colour {
                 warnings.push(Warning::Note(format!(
@@ -73,6 +95,7 @@ impl Tracker {
                 last_frame,
             });
         }
+        warnings.append(&mut lagged);
         warnings.append(&mut self.shake_notes);
         for (first_frame, last_frame) in unwrap::lost_runs(&self.shake_lost, &self.frames) {
             warnings.push(Warning::ShakeUnregistered {

@@ -8,7 +8,7 @@ use crate::decode::FrameRef;
 use crate::error::{Error, Result};
 
 use super::shake::Pose;
-use super::{MarkTrack, Reader, colour, refine, rolling, side};
+use super::{MarkTrack, Reader, colour, refine, rolling, side, texture};
 
 /// Measures one mark in one frame, appending to its series; returns the raw angle. The mark's
 /// grid is moved to where the camera `pose` takes its pivot, and a radial mark's angle has the
@@ -59,6 +59,16 @@ pub(super) fn measure(
             None => radial.measure(frame, shift),
         }
     };
+    // A colour track is checked against its part's luma texture (`texture.rs`).
+    if t.colour.is_some()
+        && let Some(m) = m
+    {
+        if first {
+            t.texture = texture::TextureCheck::learn(frame, radial.grid(), shift, m.angle);
+        } else if let Some(tex) = t.texture.as_mut() {
+            tex.check(t.angle.len(), frame, radial.grid(), shift, m.angle);
+        }
+    }
     t.angle.push(m.map(|m| m.angle - pose.roll));
     t.confidence.push(m.map_or(0.0, |m| m.confidence));
     t.dir_offset.push(

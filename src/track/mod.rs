@@ -46,6 +46,7 @@ mod selfcheck;
 mod shake;
 mod side;
 pub mod synthetic;
+mod texture;
 pub(crate) mod unwrap;
 
 /// The sum of eight partial sums kept side by side (vectorised loops), added in one fixed
@@ -151,6 +152,9 @@ struct MarkTrack {
     /// The colour projection this mark is tracked on, when colour separates its paint from
     /// its metal better than luma (`colour.rs`); None keeps the luma path.
     colour: Option<colour::ColourPlane>,
+    /// For a mark tracked on colour: its part's luma texture, the check on the colour track
+    /// (`texture.rs`).
+    texture: Option<texture::TextureCheck>,
 }
 
 impl MarkTrack {
@@ -225,6 +229,7 @@ impl Tracker {
                     row: Vec::new(),
                     ring_ref: Vec::new(),
                     colour: None,
+                    texture: None,
                 }),
                 Mark::Side(m) => Ok(MarkTrack {
                     role,
@@ -241,6 +246,7 @@ impl Tracker {
                         },
                     )?),
                     colour: None,
+                    texture: None,
                 }),
             }
         };

@@ -150,18 +150,31 @@ fn tightening_run(v: &[Option<Angle>]) -> bool {
 /// Refuses a clip whose drive or nut mark was lost in more than half (`MAX_LOST_SHARE`) of its
 /// frames: what is left is too little to be trusted, so no torque is written.
 ///
+/// `warnings` are the track stage's: a mark whose colour was found behind its own part's
+/// texture (`Warning::ColourLagsTexture`) is refused with that reason.
+///
 /// # Errors
 /// [`Error::Mark`] naming the mark and the share lost.
-pub fn check_measured(trace: &Trace) -> Result<()> {
+pub fn check_measured(trace: &Trace, warnings: &[Warning]) -> Result<()> {
     for (mark, v) in [("drive", &trace.drive), ("nut", &trace.nut)] {
         let share = lost_share(v);
         if share > MAX_LOST_SHARE {
-            return Err(Error::Mark {
-                mark: mark.into(),
-                reason: format!(
+            let lag = warnings
+                .iter()
+                .find(|w| matches!(w, Warning::ColourLagsTexture { mark: m, .. } if m == mark));
+            let reason = match lag {
+                Some(w) => format!(
+                    "not measured in {:.0} % of the frames, so no torque is written: {w}",
+                    100.0 * share
+                ),
+                None => format!(
                     "lost in {:.0} % of the frames (the stripe faded into the metal, or its angles broke the rig's physics), so its angles and any torque from them cannot be trusted and none is written; check the lighting, focus and the paint's contrast against the metal",
                     100.0 * share
                 ),
+            };
+            return Err(Error::Mark {
+                mark: mark.into(),
+                reason,
             });
         }
     }
@@ -272,7 +285,7 @@ mod tests {
             drive_zero_screen: None,
             nut_zero_screen: None,
         };
-        match check_measured(&tr) {
+        match check_measured(&tr, &[]) {
             Err(Error::Mark { mark, reason }) => {
                 assert_eq!(mark, "nut");
                 assert!(reason.contains("75 %"), "{reason}");
