@@ -1,4 +1,4 @@
-//! Runs a fitted blow model ([`super::fit`]) with another bar, blow rate or number of blows:
+//! Runs a fitted blow model ([`mod@super::fit`]) with another bar, blow rate or number of blows:
 //! per-blow peak torque, nut advance and residual wind-up, the torque the joint holds with a
 //! 95 % interval, and whether the bar keeps the joint at or below its rating. Every result is
 //! a model's prediction, not a measurement; where it goes beyond what the clip showed it says

@@ -20,7 +20,9 @@
 //! Honesty: frames whose direction is far from the first fit (a glint or a recess crossing
 //! the rings) are left out of the final fit, and the correction is applied only when its change
 //! over the angles seen is at least `MIN_SIGNIFICANCE` standard errors (least-squares
-//! covariance of the kept frames). Otherwise the rig's pivot is kept and the tracker says so.
+//! covariance over whole-degree means of the kept frames: frames at one angle share the
+//! direction's bias there, so they count once). Otherwise the rig's pivot is kept and the
+//! tracker says so.
 //! The fit needs one angle and one direction offset per frame (16 bytes each), no per-ring data.
 
 use super::unwrap::wrap_pi;
@@ -122,13 +124,39 @@ pub(crate) fn refine(
         });
     let g = [0.0, tmax.sin() - tmin.sin(), tmax.cos() - tmin.cos()];
     let change = g[1] * coef[1] + g[2] * coef[2];
-    match change_std_error(&pts, keep, coef, g) {
+    // The direction's bias depends on the angle (pixelation, compression, texture under the
+    // stripe), so frames at one angle share their error: a part at rest for a hundred frames
+    // gives one independent reading, not a hundred. The standard error is therefore taken
+    // over whole-degree means of the kept frames (the units that are independent; cluster
+    // means, as for any correlated sample: Cochran, *Sampling Techniques*, 3rd ed., §9.2),
+    // which a pivot error's smooth curve survives and an angle-by-angle bias does not.
+    let means = degree_means(&pts, keep);
+    match change_std_error(&means, None, coef, g) {
         Some(se) if change.abs() >= MIN_SIGNIFICANCE * se => (
             angles.iter().map(|a| a.map(|t| t + corr(t))).collect(),
             Outcome::Applied,
         ),
         _ => (angles.to_vec(), Outcome::NotSignificant),
     }
+}
+
+/// The mean angle and mean direction offset of the kept points in each whole degree of angle.
+fn degree_means(pts: &[(f64, f64)], keep: Option<(&[f64], f64)>) -> Vec<(f64, f64)> {
+    let mut bins: std::collections::BTreeMap<i64, (f64, f64, usize)> = Default::default();
+    for (i, &(t, y)) in pts.iter().enumerate() {
+        if let Some((r, lim)) = keep
+            && r[i] > lim
+        {
+            continue;
+        }
+        let e = bins.entry(t.to_degrees().floor() as i64).or_default();
+        e.0 += t;
+        e.1 += y;
+        e.2 += 1;
+    }
+    bins.into_values()
+        .map(|(st, sy, n)| (st / n as f64, sy / n as f64))
+        .collect()
 }
 
 /// Standard error of gᵀ·coef for the least-squares fit of `fit_curve` over the kept points.

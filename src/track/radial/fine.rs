@@ -158,7 +158,7 @@ impl RadialTracker {
     /// Samples ring `k`'s lattice bins `from..=to` (unwrapped; multiples of its stride) from
     /// `frame`: into the lattice's consecutive places when `compact` (the bins must then lie
     /// within 0..n), else into their places on the ring. Returns the span sampled, as
-    /// [`PolarGrid::sample_span`] does.
+    /// [`crate::track::polar::PolarGrid::sample_span`] does.
     pub(super) fn sample_bins(
         &mut self,
         k: usize,
