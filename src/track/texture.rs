@@ -237,7 +237,7 @@ pub(crate) fn lagging_runs(
                 None => (from, 1, lag),
             });
         } else {
-            close(open.take(), i - 1, &mut runs);
+            close(open.take(), i.saturating_sub(1), &mut runs);
             last_agree = Some(i);
         }
     }
