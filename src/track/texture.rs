@@ -59,8 +59,11 @@ pub(crate) struct TextureCheck {
     reference: Vec<f32>,
     /// Rings that carry texture in the first frame.
     textured: Vec<bool>,
-    /// Scratch: the current frame's samples.
+    /// Scratch: the current frame's samples, its textured rings and the search's scores (kept
+    /// so that a check allocates nothing).
     buf: Vec<f32>,
+    textured_now: Vec<bool>,
+    scores: Vec<f64>,
     /// The colour track's raw angle in the first frame, rad.
     raw0: f64,
     /// Per checked frame: sample index, the colour track's turn and the texture's, rad.
@@ -99,6 +102,8 @@ impl TextureCheck {
         normalise(&mut reference, grid.bins, &mut textured);
         textured.iter().any(|&t| t).then(|| TextureCheck {
             buf: vec![0.0; reference.len()],
+            textured_now: textured.clone(),
+            scores: Vec::new(),
             reference,
             textured,
             raw0,
@@ -120,8 +125,9 @@ impl TextureCheck {
             return;
         }
         grid.sample(&grid.prepare(frame, shift), &mut self.buf);
-        let mut textured = self.textured.clone();
-        normalise(&mut self.buf, grid.bins, &mut textured);
+        self.textured_now.clone_from(&self.textured);
+        normalise(&mut self.buf, grid.bins, &mut self.textured_now);
+        let textured = &self.textured_now;
         let n = grid.bins as i64;
         let step = grid.step();
         let turn = raw - self.raw0;
@@ -156,17 +162,20 @@ impl TextureCheck {
             }
             sum / norm
         };
-        let scores: Vec<f64> = (s0 - w - 1..=s0 + w + 1).map(corr).collect();
-        let (best, &peak) = scores[1..scores.len() - 1]
+        let mut scores = std::mem::take(&mut self.scores);
+        scores.clear();
+        scores.extend((s0 - w - 1..=s0 + w + 1).map(corr));
+        let (best, peak) = scores[1..scores.len() - 1]
             .iter()
             .enumerate()
             .max_by(|a, b| a.1.total_cmp(b.1))
-            .map(|(j, v)| (j + 1, v))
+            .map(|(j, &v)| (j + 1, v))
             .expect("the search window is not empty");
+        let (l, r) = (scores[best - 1], scores[best + 1]);
+        self.scores = scores;
         if peak < MIN_CORRELATION {
             return;
         }
-        let (l, r) = (scores[best - 1], scores[best + 1]);
         let den = l - 2.0 * peak + r;
         let frac = if den < 0.0 {
             (0.5 * (l - r) / den).clamp(-0.5, 0.5)
