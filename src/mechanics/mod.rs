@@ -10,6 +10,8 @@
 //! report.json types are re-exported here from `report::bar_json`.
 
 mod bar;
+#[cfg(test)]
+pub(crate) use bar::c5;
 mod bar_report;
 mod blows;
 mod calibration;

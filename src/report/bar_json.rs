@@ -160,17 +160,11 @@ pub struct SectionJson {
 
 #[cfg(test)]
 mod tests {
-    use crate::mechanics::{BarReport, BarSpec, SectionSpec};
+    use crate::mechanics::{BarReport, BarSpec};
     use crate::units::Torque;
     use approx::assert_relative_eq;
 
-    fn c5() -> BarSpec {
-        BarSpec::new(vec![
-            SectionSpec::square(25.0, 12.7),
-            SectionSpec::round(150.0, 16.0),
-            SectionSpec::hex(30.0, 19.0),
-        ])
-    }
+    use crate::mechanics::c5;
 
     #[test]
     fn ratings_in_lbf_ft_match_nist_check_values() {

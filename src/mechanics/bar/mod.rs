@@ -261,6 +261,18 @@ impl BarSpec {
 #[cfg(test)]
 mod saint_venant_check;
 
+/// Case C5 of the tests: a square drive end, a round shank and a hex nut end (25 mm of
+/// 12.7 mm square, 150 mm of 16 mm round, 30 mm of 19 mm hex), the bar the stiffness, stress
+/// and report tests share.
+#[cfg(test)]
+pub(crate) fn c5() -> BarSpec {
+    BarSpec::new(vec![
+        SectionSpec::square(25.0, 12.7),
+        SectionSpec::round(150.0, 16.0),
+        SectionSpec::hex(30.0, 19.0),
+    ])
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -271,14 +283,6 @@ mod tests {
 
     /// 0.1 %: the tolerance the reference checks ask for.
     const TOL: f64 = 1e-3;
-
-    fn c5() -> BarSpec {
-        BarSpec::new(vec![
-            SectionSpec::square(25.0, 12.7),
-            SectionSpec::round(150.0, 16.0),
-            SectionSpec::hex(30.0, 19.0),
-        ])
-    }
 
     #[test]
     fn compound_shaft_worked_example_segment_twist_g26() {

@@ -539,13 +539,7 @@ mod tests {
     use crate::mechanics::{BarSpec, SectionSpec};
     use approx::assert_relative_eq;
 
-    fn c5() -> BarSpec {
-        BarSpec::new(vec![
-            SectionSpec::square(25.0, 12.7),
-            SectionSpec::round(150.0, 16.0),
-            SectionSpec::hex(30.0, 19.0),
-        ])
-    }
+    use crate::mechanics::c5;
 
     #[test]
     fn natural_frequency_matches_reference() {
