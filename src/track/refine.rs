@@ -128,7 +128,7 @@ pub(crate) fn refine(
     // stripe), so frames at one angle share their error: a part at rest for a hundred frames
     // gives one independent reading, not a hundred. The standard error is therefore taken
     // over whole-degree means of the kept frames (the units that are independent; cluster
-    // means, as for any correlated sample: Cochran, *Sampling Techniques*, 3rd ed., §9.2),
+    // means, as for any correlated sample: Cochran, *Sampling Techniques*, 3rd ed., ch. 9, *from memory*),
     // which a pivot error's smooth curve survives and an angle-by-angle bias does not.
     let means = degree_means(&pts, keep);
     match change_std_error(&means, None, coef, g) {

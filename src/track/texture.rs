@@ -7,7 +7,7 @@
 //! Why it happens: an inter-coded frame (H.264, HEVC) is predicted from earlier ones by
 //! motion vectors that encoders choose on luma, and chroma's residual is quantised more
 //! coarsely (it carries a quarter of the samples at 4:2:0 and a larger quantiser step; ITU-T
-//! H.264, §8.5.8, chroma QP mapping). A stripe whose contrast is only in colour, on a part
+//! H.264, §8.5.8, chroma QP derivation; the clause number *from memory*). A stripe whose contrast is only in colour, on a part
 //! whose brightness texture moves it, can be left where it was (*common practice*: "colour
 //! smear" on low-bit-rate video).
 //!
@@ -18,7 +18,8 @@
 //! correlated with the first frame's over angular shifts within [`SEARCH_DEG`] of the colour
 //! track's reading; the best shift, refined by a parabola through its neighbours, is the
 //! texture's rotation (cross-correlation registration; Zitová & Flusser, "Image registration
-//! methods: a survey", Image and Vision Computing 21 (2003) 977–1000, §4.1). A correlation
+//! methods: a survey", Image and Vision Computing 21 (2003) 977–1000, §4.1 on correlation methods; section
+//! *from memory*). A correlation
 //! peak below [`MIN_CORRELATION`] means the part is too plain (or too changed) to be a check,
 //! and that frame is not judged.
 //!
@@ -31,6 +32,11 @@
 
 use super::polar::PolarGrid;
 use crate::decode::FrameRef;
+
+// The stride, search span and correlation floor below are design choices set before any
+// scene was run (a lag persists over many frames, so a quarter of them suffice; ±4° is five
+// times the largest raw lag at rest later seen on the tuning seeds, 0.73°); only `LAG_SIGMAS` and
+// `LAG_RUN_CHECKS` came from a tuning seed's false alarm (seed 144; docs/accuracy.md).
 
 /// One frame in this many is checked.
 pub(crate) const CHECK_STRIDE: usize = 4;
