@@ -1,4 +1,5 @@
-//! Small robust statistics shared by the stages: medians and quantiles of finite values, a
+//! Small robust statistics shared by the stages: medians (of a slice, in place, of three) and
+//! quantiles of finite values, a
 //! self-weighted median, the median absolute deviation, the level of a trace at a sample (a
 //! least-squares line, or the mean of a quiet run), and the 3×3 linear solve of the small
 //! least-squares fits. Plain functions of slices; this module imports nothing from the
@@ -27,9 +28,39 @@ pub(crate) fn solve3(a: [[f64; 3]; 3], b: [f64; 3], min_det: f64) -> Option<[f64
     Some(x)
 }
 
-/// Median of finite values (None when empty).
+/// Median of the finite values (None when there are none): the middle value, or the mean of
+/// the two middle ones.
 pub(crate) fn median(v: &[f64]) -> Option<f64> {
-    quantile(v, 0.5)
+    let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    median_in_place(&mut s)
+}
+
+/// Median of `v`, sorting it in place (no allocation, for per-frame work): the middle value,
+/// or the mean of the two middle ones; None when empty. The caller passes finite values.
+pub(crate) fn median_in_place(v: &mut [f64]) -> Option<f64> {
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    match n {
+        0 => None,
+        _ if n % 2 == 1 => Some(v[n / 2]),
+        _ => Some(0.5 * (v[n / 2 - 1] + v[n / 2])),
+    }
+}
+
+/// The upper median of `v` (the value at index len/2 once ordered; reorders `v`, no
+/// allocation, linear time); None when empty.
+pub(crate) fn upper_median_f32(v: &mut [f32]) -> Option<f32> {
+    if v.is_empty() {
+        return None;
+    }
+    let m = v.len() / 2;
+    let (_, x, _) = v.select_nth_unstable_by(m, f32::total_cmp);
+    Some(*x)
+}
+
+/// The middle one of three values.
+pub(crate) fn median3([a, b, c]: [f64; 3]) -> f64 {
+    a.max(b).min(a.min(b).max(c))
 }
 
 /// Linear-interpolated quantile q ∈ [0, 1] of the finite values (None when there are none).

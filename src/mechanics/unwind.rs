@@ -25,6 +25,7 @@
 //!   θp/√(θp² − θr²) and the energy E = ½k(θp² − θr²). Only blows where the nut was held
 //!   qualify: a slipping nut takes part of the energy into the joint.
 
+use crate::stats::median;
 use crate::units::{Angle, Stiffness};
 
 /// Fewest samples in an unwind for a decay fit.
@@ -238,21 +239,6 @@ fn swings_back(y: &[f64], tol: f64) -> bool {
     })
 }
 
-/// The median of finite values.
-fn median(mut v: Vec<f64>) -> Option<f64> {
-    v.retain(|x| x.is_finite());
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let n = v.len();
-    Some(if n % 2 == 1 {
-        v[n / 2]
-    } else {
-        0.5 * (v[n / 2 - 1] + v[n / 2])
-    })
-}
-
 /// The unwind after one blow's peak: the samples from just after the peak (and after the
 /// nut came to rest) to just before `b.end`, and its fit.
 fn fit_unwind(
@@ -277,7 +263,7 @@ fn fit_unwind(
         .flatten()
         .copied()
         .collect();
-    let rest = median(tail)?;
+    let rest = median(&tail)?;
     let moved = (peak..end)
         .rev()
         .find(|&i| nut[i].is_some_and(|v| (v - rest).abs() > nut_tol));
@@ -358,16 +344,21 @@ pub fn measure(
         }
     });
     let chosen: Vec<&DecayFit> = fits.iter().filter(|f| Some(f.method) == method).collect();
-    let rate = median(chosen.iter().map(|f| f.rate_per_s).collect());
+    let rate = median(&chosen.iter().map(|f| f.rate_per_s).collect::<Vec<_>>());
     let k = stiffness.map(Stiffness::nm_per_rad);
     let (c, zeta, fnat) = match method {
         Some(DecayMethod::LogDecrement) => {
-            let z = median(chosen.iter().filter_map(|f| f.damping_ratio).collect());
+            let z = median(
+                &chosen
+                    .iter()
+                    .filter_map(|f| f.damping_ratio)
+                    .collect::<Vec<_>>(),
+            );
             let f = median(
-                chosen
+                &chosen
                     .iter()
                     .filter_map(|f| f.natural_frequency_hz)
-                    .collect(),
+                    .collect::<Vec<_>>(),
             );
             let c = match (k, z, f) {
                 (Some(k), Some(z), Some(f)) => {
@@ -412,13 +403,18 @@ pub fn measure(
         damping_ratio: zeta,
         natural_frequency_hz: fnat,
         held_blows: held.len(),
-        torque_gain_median: median(gains.clone()),
+        torque_gain_median: median(&gains),
         torque_gain_max: gains
             .iter()
             .copied()
             .fold(None, |m: Option<f64>, g| Some(m.map_or(g, |m| m.max(g)))),
-        energy_median_j: median(held.iter().filter_map(|(_, b)| b.energy_j).collect()),
-        residual_fraction_held: median(fractions),
+        energy_median_j: median(
+            &held
+                .iter()
+                .filter_map(|(_, b)| b.energy_j)
+                .collect::<Vec<_>>(),
+        ),
+        residual_fraction_held: median(&fractions),
         blows: per,
     }
 }

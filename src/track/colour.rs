@@ -26,6 +26,7 @@
 #![allow(clippy::needless_range_loop)]
 
 use crate::decode::{FrameRef, LumaRef};
+use crate::stats::median_in_place;
 
 use super::polar::PolarGrid;
 
@@ -152,20 +153,6 @@ fn robust_moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
     (mk, sk.map(|r| r.map(|v| v * REWEIGHT_CONSISTENCY)))
 }
 
-/// The median of `v` (sorted in place); 0 when empty.
-pub(super) fn median(v: &mut [f64]) -> f64 {
-    v.sort_by(f64::total_cmp);
-    let n = v.len();
-    if n == 0 {
-        return 0.0;
-    }
-    if n % 2 == 1 {
-        v[n / 2]
-    } else {
-        0.5 * (v[n / 2 - 1] + v[n / 2])
-    }
-}
-
 impl ColourPlane {
     /// Learns the projection for the mark sampled by `grid` from the first frame (moved by
     /// `shift`). None when the frame has no colour, its luma is deeper than 8 bit, no stripe
@@ -238,9 +225,9 @@ impl ColourPlane {
         let mut spread = [0.0; 3];
         for k in 0..3 {
             let mut v: Vec<f64> = filled.iter().map(|m| m[k]).collect();
-            centre[k] = median(&mut v);
+            centre[k] = median_in_place(&mut v).unwrap_or(0.0);
             let mut dev: Vec<f64> = filled.iter().map(|m| (m[k] - centre[k]).abs()).collect();
-            spread[k] = (1.4826 * median(&mut dev)).max(1.0 / 255.0);
+            spread[k] = (1.4826 * median_in_place(&mut dev).unwrap_or(0.0)).max(1.0 / 255.0);
         }
         let score: Vec<f64> = means
             .iter()

@@ -73,7 +73,7 @@ pub(crate) fn physics(
             recent.remove(0);
         }
         if recent.len() == 3 {
-            nut_top = nut_top.max(median3([recent[0], recent[1], recent[2]]));
+            nut_top = nut_top.max(crate::stats::median3([recent[0], recent[1], recent[2]]));
         }
     }
     let mut twist_top = 0.0f64;
@@ -201,10 +201,6 @@ pub fn clip_confidence(angles: &[Option<Angle>], confidence: &[f32]) -> f64 {
         .map(|(a, &c)| if a.is_some() { f64::from(c) } else { 0.0 })
         .sum::<f64>()
         / angles.len() as f64
-}
-
-fn median3([a, b, c]: [f64; 3]) -> f64 {
-    a.max(b).min(a.min(b).max(c))
 }
 
 #[cfg(test)]

@@ -222,7 +222,7 @@ fn classify(step: &[f32], resid: &[f32], span: &[f32]) -> SyntheticFlags {
         let hi = (k + LOCAL_HALF + 1).min(n);
         win.clear();
         win.extend(step[lo..hi].iter().copied().filter(|v| v.is_finite()));
-        let local = median_f32(&mut win);
+        let local = crate::stats::upper_median_f32(&mut win);
         let repeat =
             e.is_finite() && local.is_some_and(|m| m >= MIN_TELL_LSB && e < REPEAT_FRACTION * m);
         if repeat {
@@ -238,15 +238,6 @@ fn classify(step: &[f32], resid: &[f32], span: &[f32]) -> SyntheticFlags {
         }
     }
     out
-}
-
-fn median_f32(v: &mut [f32]) -> Option<f32> {
-    if v.is_empty() {
-        return None;
-    }
-    let m = v.len() / 2;
-    let (_, x, _) = v.select_nth_unstable_by(m, f32::total_cmp);
-    Some(*x)
 }
 
 /// The gain and offset `(g, o)` that map `x` onto `y` (y ≈ g·x + o): a change of the whole

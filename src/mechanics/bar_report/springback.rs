@@ -8,6 +8,7 @@ use serde::Serialize;
 
 use super::BarReport;
 use crate::mechanics::unwind::{DecayMethod, UnwindMeasurement};
+use crate::stats::median;
 use crate::units::Angle;
 
 /// How much of the peak twist is still there when the next blow lands, as measured.
@@ -255,7 +256,7 @@ impl BarReport {
                 (p.rad().abs() > 0.0 && r.rad().is_finite()).then(|| (r.rad() / p.rad()).max(0.0))
             })
             .collect();
-        Some(self.verdict_from_fraction(median(intervals)?, median(fractions)))
+        Some(self.verdict_from_fraction(median(&intervals)?, median(&fractions)))
     }
 
     fn verdict_from_fraction(
@@ -337,7 +338,7 @@ impl BarReport {
         if intervals.iter().any(|d| !(d.is_finite() && *d > 0.0)) {
             return None;
         }
-        let mut v = self.verdict_from_fraction(median(intervals)?, m.residual_fraction_held);
+        let mut v = self.verdict_from_fraction(median(&intervals)?, m.residual_fraction_held);
         if let Some(g) = m.torque_gain_median {
             v.measured = Some(recovery_from_gain(g));
             v.measured_from = Some("torque_gain");
@@ -434,21 +435,6 @@ fn measured_sentence(v: &SpringbackVerdict, with_inertia: bool) -> String {
         _ => {}
     }
     out
-}
-
-/// Median of finite values; `None` when empty.
-fn median(mut v: Vec<f64>) -> Option<f64> {
-    v.retain(|x| x.is_finite());
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let n = v.len();
-    Some(if n % 2 == 1 {
-        v[n / 2]
-    } else {
-        0.5 * (v[n / 2 - 1] + v[n / 2])
-    })
 }
 
 fn ms(s: f64) -> String {

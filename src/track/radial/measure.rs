@@ -4,11 +4,12 @@
 use std::f64::consts::PI;
 
 use super::coarse::{Coarse, adjusted};
-use super::robust::{median_of, median3, weighted_median};
+use super::robust::{median_of, weighted_median};
 use super::{
     LOST_MIN_SIG, LOST_SIG_CAP, LOST_SIG_FRACTION, LOST_Z_FRACTION, MIN_INLIER_FRACTION,
     Measurement, RING_MIN_Z, RadialTracker, StripeModel, TUKEY_C,
 };
+use crate::stats::median3;
 use crate::track::polar::Prepared;
 use crate::track::unwrap::{unwrap_near, wrap_pi};
 

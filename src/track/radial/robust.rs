@@ -1,10 +1,5 @@
 //! Medians used by the combination of rings.
 
-/// The middle one of three values.
-pub(super) fn median3([a, b, c]: [f64; 3]) -> f64 {
-    a.max(b).min(a.min(b).max(c))
-}
-
 /// Median of `v` (using `buf` as scratch, no allocation once `buf` has capacity).
 pub(super) fn median_of(v: &[f64], buf: &mut Vec<(f64, f64)>) -> f64 {
     buf.clear();

@@ -13,7 +13,8 @@
 //! steel class with the shading, and its scatter gives brightness little weight.
 
 use crate::decode::{FrameRef, LumaRef};
-use crate::track::colour::{median, moments};
+use crate::stats::median_in_place;
+use crate::track::colour::moments;
 
 /// Colour must multiply the luma-only separation by this much to be used.
 const MIN_GAIN_OVER_LUMA: f64 = 2.0;
@@ -90,9 +91,9 @@ impl Projection {
         let mut spread = [0.0; 3];
         for k in 1..3 {
             let mut v: Vec<f64> = filled.iter().map(|m| m[k]).collect();
-            centre[k] = median(&mut v);
+            centre[k] = median_in_place(&mut v).unwrap_or(0.0);
             let mut dev: Vec<f64> = filled.iter().map(|m| (m[k] - centre[k]).abs()).collect();
-            spread[k] = (1.4826 * median(&mut dev)).max(1.0 / 255.0);
+            spread[k] = (1.4826 * median_in_place(&mut dev).unwrap_or(0.0)).max(1.0 / 255.0);
         }
         let score: Vec<f64> = means
             .iter()
