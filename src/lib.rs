@@ -46,7 +46,7 @@ mod stats;
 // unit tests run here, once (the scenes crate builds no test target of its own).
 #[cfg(all(test, feature = "ffmpeg"))]
 #[allow(dead_code, unused_imports)]
-#[path = "../tools/scenes/src/encode.rs"]
+#[path = "../tools/scenes/src/encode/mod.rs"]
 mod encode;
 #[cfg(test)]
 #[allow(dead_code, unused_imports)]

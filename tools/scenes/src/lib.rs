@@ -7,7 +7,7 @@
 //! Must never be imported by twistmark's library or binary (only by its tests, benches and
 //! tools): the shipped tool carries no renderer and no random generator of its own.
 //!
-//! The files under `synth/` and `encode.rs` name the library's items by `crate::` paths
+//! The files under `synth/` and `encode/` name the library's items by `crate::` paths
 //! (`crate::decode::Frame`, `crate::mechanics::model`, `crate::Error`): twistmark's own unit
 //! tests compile these same files as a test-only module of the library (src/lib.rs), where
 //! those paths are the library's modules, so they test private code against the renderer
