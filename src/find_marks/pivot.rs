@@ -11,8 +11,8 @@
 //! inliers' median absolute distance (a trimmed least squares). The pairs are drawn from a
 //! fixed seed, so a clip always gives the same pivot.
 
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 
 /// A line on screen: `n·p = d` with `n` a unit normal.
 #[derive(Debug, Clone, Copy, PartialEq)]

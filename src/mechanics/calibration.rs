@@ -359,8 +359,8 @@ pub(crate) fn csv_with_headers(
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
-    use rand::{Rng, SeedableRng};
-    use rand_chacha::ChaCha8Rng;
+    use rand::rngs::ChaCha8Rng;
+    use rand::{RngExt, SeedableRng};
 
     /// Standard normal by Box–Muller.
     fn gauss(rng: &mut ChaCha8Rng) -> f64 {

@@ -13,8 +13,8 @@
 //! method*).
 
 use nalgebra::{DMatrix, DVector};
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 use serde::{Deserialize, Serialize};
 
 use super::fit::{BREAKAWAY_INDEX, ModelFit, N_PARAMS, physical};

@@ -345,8 +345,8 @@ pub(crate) fn rest_window(onsets: &[usize], n: usize) -> usize {
 pub(crate) mod tests {
     use super::*;
     use crate::units::TimeBase;
-    use rand::{Rng, SeedableRng};
-    use rand_chacha::ChaCha8Rng;
+    use rand::rngs::ChaCha8Rng;
+    use rand::{RngExt, SeedableRng};
 
     /// A synthetic drive/nut trace: each blow rises over `rise` samples (half-sine velocity),
     /// springs back by `back_deg` over a third of the interval, with the nut advancing

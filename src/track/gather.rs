@@ -269,8 +269,8 @@ mod avx2 {
 mod tests {
     use super::*;
     use proptest::prelude::*;
-    use rand::{Rng, SeedableRng};
-    use rand_chacha::ChaCha8Rng;
+    use rand::rngs::ChaCha8Rng;
+    use rand::{RngExt, SeedableRng};
 
     proptest! {
         /// The vector path (where the processor has it) and the plain loop give bit-identical

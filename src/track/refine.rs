@@ -347,8 +347,8 @@ mod tests {
     fn a_direction_pulled_by_scatter_keeps_the_rig_pivot() {
         // The direction offsets replaced by seeded scatter far larger than any pivot error's
         // signature (as a glint or a recess crossing the rings would give): not applied.
-        use rand::{Rng, SeedableRng};
-        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand::rngs::ChaCha8Rng::seed_from_u64(3);
         let angles: Vec<Option<f64>> = (0..60)
             .map(|i| Some((-20.0 + 0.8 * i as f64).to_radians()))
             .collect();

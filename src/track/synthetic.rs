@@ -400,8 +400,8 @@ pub fn reindex_blows(blows: &mut [crate::segment::Blow], kept: &[usize], n: usiz
 mod tests {
     use super::*;
     use crate::decode::Frame;
-    use rand::{Rng, SeedableRng};
-    use rand_chacha::ChaCha8Rng;
+    use rand::rngs::ChaCha8Rng;
+    use rand::{RngExt, SeedableRng};
 
     fn noisy(seed: u64, n: usize, base: f32, sigma: f32) -> Vec<f32> {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);

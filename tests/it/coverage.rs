@@ -21,8 +21,8 @@
 
 use std::path::Path;
 
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 use twistmark::analyze::{AnalyzeOptions, analyze_source};
 use twistmark::decode::MemorySource;
 use twistmark::mechanics::{DIMENSION_SIGMA_MM, SHEAR_MODULUS_REL_SIGMA, SectionSpec};

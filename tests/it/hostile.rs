@@ -447,11 +447,11 @@ fn jpeg_of(png: &Path) -> Vec<u8> {
 #[cfg(feature = "ffmpeg")]
 #[test]
 fn rule5_damaged_frames_are_never_measured() {
-    use rand::{Rng, SeedableRng};
+    use rand::{RngExt, SeedableRng};
     let dir = tempfile::tempdir().unwrap();
     let frames = copy_frames("fast-tool", &dir.path().join("png"), 40);
     let mut stream = Vec::new();
-    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(18);
+    let mut rng = rand::rngs::ChaCha8Rng::seed_from_u64(18);
     for (i, f) in frames.iter().enumerate() {
         let mut jpg = jpeg_of(f);
         if i == 20 {

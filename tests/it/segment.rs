@@ -5,8 +5,8 @@
 //! The project's accuracy targets: no missed and no extra blows; per-blow nut advance mean absolute
 //! error ≤ 0.10°; peak torque within 3 % of the truth for the rig's stiffness.
 
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 use twistmark::mechanics::blow_metrics;
 use twistmark::segment::find_blows;
 use twistmark::{Angle, TimeBase, Trace};

@@ -4,7 +4,7 @@
 //! onset frames, the bar's stiffness); the truth is the renderer's own constants.
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
 
 use super::*;
 use crate::mechanics::subframe::{Start, motion_start};
@@ -18,7 +18,7 @@ const NOISE_DEG: f64 = 0.05;
 pub(crate) fn obs_of(truth: &Truth, seed: u64) -> ClipObs {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let mut noisy = |v: f64| {
-        use rand::Rng;
+        use rand::RngExt;
         let u1: f64 = 1.0 - rng.random::<f64>();
         let u2: f64 = rng.random::<f64>();
         v + NOISE_DEG * (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()

@@ -591,14 +591,14 @@ mod tests {
     use super::*;
     use crate::decode::Frame;
     use proptest::prelude::*;
-    use rand::{Rng, SeedableRng};
+    use rand::{RngExt, SeedableRng};
 
     /// A smooth random texture (seeded sum of Gaussian blobs), 0..1, defined everywhere.
     struct Texture(Vec<([f64; 2], f64, f64)>);
 
     impl Texture {
         fn new(seed: u64, centre: [f64; 2], spread: f64) -> Texture {
-            let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+            let mut rng = rand::rngs::ChaCha8Rng::seed_from_u64(seed);
             Texture(
                 (0..160)
                     .map(|_| {

@@ -538,9 +538,9 @@ mod tests {
     fn smoothed_blocks_equal_the_smoothed_region() {
         // Seeded noise frame; the patch sits near the frame's corner so that the region's
         // edges (where the smoothing repeats the edge sample) are exercised too.
-        use rand::{Rng, SeedableRng};
+        use rand::{RngExt, SeedableRng};
         let (w, h) = (96u32, 80u32);
-        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let mut rng = rand::rngs::ChaCha8Rng::seed_from_u64(7);
         let data: Vec<u8> = (0..w * h).map(|_| rng.random()).collect();
         let frame = Frame::from_u8(0, w, h, data);
         let mark = RadialMark {

@@ -12,8 +12,8 @@ pub const HELDOUT_LAYOUT_SEEDS: [u64; 16] = [
     2754332359, 3875020168, 2929450450, 1921786228, 1021562915, 1003453448, 475466200, 976364522,
 ];
 
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 
 use super::scene::{DriveDisc, FixedMark, NutFace, Paint, Steel, Stripe};
 use super::texture::BrushedSteel;

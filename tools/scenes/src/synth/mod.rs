@@ -37,8 +37,8 @@ mod texture;
 mod truth;
 mod write;
 
-use rand::Rng;
-use rand_chacha::ChaCha8Rng;
+use rand::RngExt;
+use rand::rngs::ChaCha8Rng;
 
 pub use look::{Finish, Look, Washer, Wheel};
 pub use render::{render_clip, render_frame, render_rest_frame};

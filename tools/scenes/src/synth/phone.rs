@@ -6,7 +6,7 @@
 //! over captured frames).
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
 
 use super::scene::{Pose, Prepared};
 use super::{Scenario, Truth, gauss, render_frame};

@@ -8,8 +8,8 @@
 //! this file's distributions changes what a seed means: add new draws at the end of
 //! [`random_scene`], never in the middle, and say so in docs/accuracy.md.
 
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 use serde::{Deserialize, Serialize};
 
 use super::look::{Finish, Look, Washer, Wheel};

@@ -3,7 +3,7 @@
 //! with a colour look), and the bench at rest for the zero still.
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
 
 use super::scene::{Pose, Prepared};
 use super::{Scenario, Truth, gauss};

@@ -3,7 +3,7 @@
 //! model's constants and seeded blow times.
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
 use super::{DriveDisc, FixedMark, NutFace, Paint, Scene, Steel, Stripe, gauss, is_zero};

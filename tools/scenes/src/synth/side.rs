@@ -17,7 +17,7 @@
 //! lamp's line is white (it adds to Y′ only). Sensor noise is seeded per frame.
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
 
 use crate::decode::Frame;
 use crate::rig::{Mark, ScreenDir, SideMark};

@@ -11,8 +11,8 @@
 
 use std::f64::consts::PI;
 
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
+use rand::{RngExt, SeedableRng};
 
 use super::side::{LampLine, SideColour, SideScene};
 use crate::decode::Frame;

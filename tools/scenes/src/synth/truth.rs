@@ -3,7 +3,7 @@
 //! the `report.json` section of the interface.
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use rand::rngs::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
 use super::scene::Pose;
