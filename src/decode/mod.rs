@@ -120,38 +120,63 @@ impl ChromaRef<'_> {
     /// four nearest samples (by their siting) for a subsampled one.
     #[inline]
     pub fn at(&self, x: u32, y: u32, luma_w: u32, luma_h: u32) -> (f32, f32) {
-        let pos = |v: u32, full: bool, centre: bool| -> (usize, usize, f32) {
-            if full {
-                return (v as usize, v as usize, 0.0);
-            }
-            // Chroma sample i sits at luma coordinate 2i + 0.5 (centred) or 2i (left).
-            let off = if centre { 0.5 } else { 0.0 };
-            let t = ((v as f32 - off) * 0.5).max(0.0);
-            let i = t.floor();
-            (i as usize, i as usize + 1, t - i)
-        };
-        let centred = self.siting == ChromaSiting::Centre;
-        let (x0, x1, fx) = pos(x, self.width == luma_w, centred);
-        // Vertically, both sitings put 4:2:0 chroma between the two rows it covers.
-        let (y0, y1, fy) = pos(y, self.height == luma_h, true);
-        let (mx, my) = (
-            self.width.saturating_sub(1) as usize,
-            self.height.saturating_sub(1) as usize,
-        );
-        let (x0, x1, y0, y1) = (x0.min(mx), x1.min(mx), y0.min(my), y1.min(my));
+        let (x0, x1, fx) = self.column_taps(x, luma_w);
+        let (y0, y1, fy) = self.row_taps(y, luma_h);
         let bil = |p: &[u8], s: usize| -> f32 {
-            let a = f32::from(p[y0 * s + x0]);
-            let b = f32::from(p[y0 * s + x1]);
-            let c = f32::from(p[y1 * s + x0]);
-            let d = f32::from(p[y1 * s + x1]);
-            let top = a + fx * (b - a);
-            let bot = c + fx * (d - c);
+            let top = Self::lerp_row(p, y0 * s, x0, x1, fx);
+            let bot = Self::lerp_row(p, y1 * s, x0, x1, fx);
             top + fy * (bot - top)
         };
         (
-            (bil(self.cb, self.cb_stride) - 128.0) / 255.0,
-            (bil(self.cr, self.cr_stride) - 128.0) / 255.0,
+            Self::centred(bil(self.cb, self.cb_stride)),
+            Self::centred(bil(self.cr, self.cr_stride)),
         )
+    }
+
+    /// The two chroma columns around luma column `x` of a frame `luma_w` wide and the
+    /// fraction towards the second: `(x, x, 0)` for a full-width plane; for a subsampled one,
+    /// sample i sits at luma coordinate 2i + 0.5 (centred siting) or 2i (left siting).
+    /// Clamped to the plane.
+    #[inline]
+    pub fn column_taps(&self, x: u32, luma_w: u32) -> (usize, usize, f32) {
+        let centred = self.siting == ChromaSiting::Centre;
+        Self::taps(x, self.width == luma_w, centred, self.width)
+    }
+
+    /// The two chroma rows around luma row `y` and the fraction towards the second, as
+    /// [`Self::column_taps`]; vertically, both sitings put 4:2:0 chroma between the two rows
+    /// it covers.
+    #[inline]
+    pub fn row_taps(&self, y: u32, luma_h: u32) -> (usize, usize, f32) {
+        Self::taps(y, self.height == luma_h, true, self.height)
+    }
+
+    #[inline]
+    fn taps(v: u32, full: bool, centre: bool, n: u32) -> (usize, usize, f32) {
+        let m = n.saturating_sub(1) as usize;
+        if full {
+            let v = (v as usize).min(m);
+            return (v, v, 0.0);
+        }
+        let off = if centre { 0.5 } else { 0.0 };
+        let t = ((v as f32 - off) * 0.5).max(0.0);
+        let i = t.floor();
+        ((i as usize).min(m), (i as usize + 1).min(m), t - i)
+    }
+
+    /// The horizontal step of the bilinear interpolation: samples `x0` and `x1` of the row
+    /// starting at `row` in plane `p`, mixed by `fx`.
+    #[inline]
+    pub fn lerp_row(p: &[u8], row: usize, x0: usize, x1: usize, fx: f32) -> f32 {
+        let a = f32::from(p[row + x0]);
+        let b = f32::from(p[row + x1]);
+        a + fx * (b - a)
+    }
+
+    /// An interpolated 8-bit sample centred on 0 and scaled to −0.5..0.5.
+    #[inline]
+    pub fn centred(v: f32) -> f32 {
+        (v - 128.0) / 255.0
     }
 }
 
