@@ -16,7 +16,7 @@
 //! 1280×720 frame, with light seeded sensor noise. `h264` and `ffv1` are monochrome (luma
 //! only, as most high-speed cameras record); `h264c` is the same take in colour (orange paint
 //! on zinc-plated faces, 4:2:0 chroma; its luma about 0.9 of the metal's), which the tracker reads through its colour projection
-//! (issue 15: analyze ≤ 1.15 × decode on colour footage too). Clips are cached under
+//! (the speed target holds on colour footage too). Clips are cached under
 //! `target/bench-clips/` so a second run skips rendering and encoding.
 
 use std::path::{Path, PathBuf};

@@ -117,11 +117,34 @@ impl ChromaRef<'_> {
 
     /// (Cb, Cr) at the centre of luma pixel (x, y) of a `luma_w × luma_h` frame, centred on 0
     /// and scaled to −0.5..0.5: the sample itself for a full-size plane, bilinear between the
-    /// four nearest samples (by their siting) for a subsampled one.
+    /// four nearest samples (by their siting) for a subsampled one ([`Self::at_point`]).
     #[inline]
     pub fn at(&self, x: u32, y: u32, luma_w: u32, luma_h: u32) -> (f32, f32) {
-        let (x0, x1, fx) = self.column_taps(x, luma_w);
-        let (y0, y1, fy) = self.row_taps(y, luma_h);
+        self.at_point(x as f32, y as f32, luma_w, luma_h)
+    }
+
+    /// (Cb, Cr) at the point (x, y) of a `luma_w × luma_h` frame, in luma pixel coordinates
+    /// (luma sample (i, j) sits at (i, j)), centred on 0 and scaled to −0.5..0.5: bilinear
+    /// between the four chroma samples around the point, each placed by its siting (a 4:2:0
+    /// sample i sits at luma x = 2i + 0.5 with centred siting, 2i with left siting, and at
+    /// luma y = 2j + 0.5); a full-size plane's sample (i, j) sits at (i, j). Clamped to the
+    /// plane.
+    #[inline]
+    pub fn at_point(&self, x: f32, y: f32, luma_w: u32, luma_h: u32) -> (f32, f32) {
+        let taps = |v: f32, full: bool, centre: bool, n: u32| -> (usize, usize, f32) {
+            let m = n.saturating_sub(1) as usize;
+            let t = if full {
+                v.max(0.0)
+            } else {
+                ((v - if centre { 0.5 } else { 0.0 }) * 0.5).max(0.0)
+            };
+            // t ≥ 0, so truncation is the floor (and needs no call to the C library).
+            let i = t as usize;
+            (i.min(m), (i + 1).min(m), t - i as f32)
+        };
+        let centred = self.siting == ChromaSiting::Centre;
+        let (x0, x1, fx) = taps(x, self.width == luma_w, centred, self.width);
+        let (y0, y1, fy) = taps(y, self.height == luma_h, true, self.height);
         let bil = |p: &[u8], s: usize| -> f32 {
             let top = Self::lerp_row(p, y0 * s, x0, x1, fx);
             let bot = Self::lerp_row(p, y1 * s, x0, x1, fx);
@@ -133,41 +156,10 @@ impl ChromaRef<'_> {
         )
     }
 
-    /// The two chroma columns around luma column `x` of a frame `luma_w` wide and the
-    /// fraction towards the second: `(x, x, 0)` for a full-width plane; for a subsampled one,
-    /// sample i sits at luma coordinate 2i + 0.5 (centred siting) or 2i (left siting).
-    /// Clamped to the plane.
-    #[inline]
-    pub fn column_taps(&self, x: u32, luma_w: u32) -> (usize, usize, f32) {
-        let centred = self.siting == ChromaSiting::Centre;
-        Self::taps(x, self.width == luma_w, centred, self.width)
-    }
-
-    /// The two chroma rows around luma row `y` and the fraction towards the second, as
-    /// [`Self::column_taps`]; vertically, both sitings put 4:2:0 chroma between the two rows
-    /// it covers.
-    #[inline]
-    pub fn row_taps(&self, y: u32, luma_h: u32) -> (usize, usize, f32) {
-        Self::taps(y, self.height == luma_h, true, self.height)
-    }
-
-    #[inline]
-    fn taps(v: u32, full: bool, centre: bool, n: u32) -> (usize, usize, f32) {
-        let m = n.saturating_sub(1) as usize;
-        if full {
-            let v = (v as usize).min(m);
-            return (v, v, 0.0);
-        }
-        let off = if centre { 0.5 } else { 0.0 };
-        let t = ((v as f32 - off) * 0.5).max(0.0);
-        let i = t.floor();
-        ((i as usize).min(m), (i as usize + 1).min(m), t - i)
-    }
-
     /// The horizontal step of the bilinear interpolation: samples `x0` and `x1` of the row
     /// starting at `row` in plane `p`, mixed by `fx`.
     #[inline]
-    pub fn lerp_row(p: &[u8], row: usize, x0: usize, x1: usize, fx: f32) -> f32 {
+    fn lerp_row(p: &[u8], row: usize, x0: usize, x1: usize, fx: f32) -> f32 {
         let a = f32::from(p[row + x0]);
         let b = f32::from(p[row + x1]);
         a + fx * (b - a)
@@ -175,7 +167,7 @@ impl ChromaRef<'_> {
 
     /// An interpolated 8-bit sample centred on 0 and scaled to −0.5..0.5.
     #[inline]
-    pub fn centred(v: f32) -> f32 {
+    fn centred(v: f32) -> f32 {
         (v - 128.0) / 255.0
     }
 }

@@ -5,12 +5,14 @@
 //! measurements in taxonomic problems", Annals of Eugenics 7 (1936) 179–188; Duda, Hart &
 //! Stork, Pattern Classification, 2nd ed., §3.8.2).
 //!
-//! The radial tracker is left as it is: per frame, the projection is written into a plane of
-//! the frame's size, but only over the pixels the mark's grid can read (its sample box, grown
-//! by the camera shift), and the tracker reads that plane as if it were luma. Chroma is read
-//! only inside those boxes. Paint is mapped to 0.75 and metal to 0.25 of full scale; the
-//! tracker normalises each ring by its own mean and noise, so lighting flicker (a common gain
-//! on Y′, Cb and Cr, which scales the projection) does not matter.
+//! The radial tracker samples the projection instead of luma (`PolarGrid::prepare_with`): at
+//! each grid point it reads luma as always, reads chroma at the same point from its own
+//! samples (bilinear, by their siting), and projects the two. Only the points a frame's search
+//! reads are projected, a few thousand, so colour costs about what luma does; projecting a
+//! plane over each mark's whole box cost 10 ms a frame at 720p (docs/performance.md). Paint
+//! is mapped to 0.75 and metal to 0.25; the tracker normalises each ring by its own mean and
+//! noise, so lighting flicker (a common gain on Y′, Cb and Cr, which scales the projection)
+//! does not matter.
 //!
 //! Labels come from the first frame without knowing the paint's colour: the annulus is cut
 //! into angular sectors; the metal is the sectors' median colour, and the stripe is the run of
@@ -25,10 +27,10 @@
 // 3×3 matrix algebra on (Y′, Cb, Cr) reads most plainly with indices.
 #![allow(clippy::needless_range_loop)]
 
-use crate::decode::{ChromaRef, FrameRef, LumaRef};
+use crate::decode::{FrameRef, LumaRef};
 use crate::stats::median_in_place;
 
-use super::polar::PolarGrid;
+use super::polar::{ColourWeights, PolarGrid};
 
 /// Chroma must multiply the luma-only separation by this much to be used.
 const MIN_GAIN_OVER_LUMA: f64 = 2.0;
@@ -38,26 +40,14 @@ const RIDGE: f64 = 4.0 * (1.0 / 255.0) * (1.0 / 255.0) / 12.0;
 /// Pixels kept around the grid's box beyond the camera shift, px.
 const BOX_MARGIN_PX: usize = 2;
 
-/// A mark's learnt projection and the plane it is written into.
+/// A mark's learnt projection.
 #[derive(Debug, Clone)]
 pub(crate) struct ColourPlane {
-    /// Weights on (Y′, Cb, Cr), scaled so that metal maps to 0.25 and paint to 0.75.
-    w: [f32; 3],
-    /// Offset of the mapping.
-    offset: f32,
-    /// The plane, frame-sized; only the box of the last frame holds current values.
-    buf: Vec<u16>,
-    width: u32,
-    height: u32,
-    /// The grid's pixel box, inclusive: x_lo, x_hi, y_lo, y_hi.
-    grid_box: [usize; 4],
+    /// Weights on (Y′, Cb, Cr) and offset, scaled so that metal maps to 0.25 and paint to
+    /// 0.75.
+    pub weights: ColourWeights,
     /// Fisher's separation with colour and with luma alone (for tests and notes).
     pub separation: (f64, f64),
-    /// Scratch for [`Self::fill`], kept between frames: each box column's chroma taps, and
-    /// the chroma rows' horizontal interpolations at each box column (Cb, Cr).
-    cols: Vec<(usize, usize, f32)>,
-    h_cb: Vec<f32>,
-    h_cr: Vec<f32>,
 }
 
 /// Y′ (0..1) of 8-bit luma.
@@ -294,106 +284,10 @@ impl ColourPlane {
         let wf = wv.map(|v| (v * g) as f32);
         let offset = (0.25 - pm * g) as f32;
         Some(ColourPlane {
-            w: wf,
-            offset,
-            buf: vec![0; w as usize * h as usize],
-            width: w,
-            height: h,
-            grid_box,
+            weights: ColourWeights { w: wf, offset },
             separation: (j_colour, j_luma),
-            cols: Vec::new(),
-            h_cb: Vec::new(),
-            h_cr: Vec::new(),
         })
     }
-
-    /// Writes the projection of `frame` over the grid's box moved by `shift`.
-    pub fn fill(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
-        let (Some(chroma), LumaRef::U8(luma)) = (frame.chroma, frame.luma) else {
-            // A frame without colour in a colour clip: project its luma alone.
-            self.fill_luma_only(frame, shift);
-            return;
-        };
-        let (w, h) = (self.width, self.height);
-        let [x0, x1, y0, y1] = shifted_box(self.grid_box, shift, w, h);
-        // The bilinear chroma of `ChromaRef::at`, in the same order of operations (so the
-        // same values to the bit): the horizontal step depends on the column and the chroma
-        // row only, so it is done once per chroma row and box column instead of once per
-        // pixel (at 4:2:0 each chroma row serves up to four luma rows); the vertical step and
-        // the projection then run along contiguous rows.
-        let nx = x1 - x0 + 1;
-        self.cols.clear();
-        self.cols
-            .extend((x0..=x1).map(|x| chroma.column_taps(x as u32, w)));
-        let r_lo = chroma.row_taps(y0 as u32, h).0;
-        let r_hi = chroma.row_taps(y1 as u32, h).1;
-        let rows = r_hi - r_lo + 1;
-        self.h_cb.resize(rows * nx, 0.0);
-        self.h_cr.resize(rows * nx, 0.0);
-        for r in 0..rows {
-            let (ob, or) = ((r_lo + r) * chroma.cb_stride, (r_lo + r) * chroma.cr_stride);
-            let hb = &mut self.h_cb[r * nx..(r + 1) * nx];
-            let hr = &mut self.h_cr[r * nx..(r + 1) * nx];
-            for ((b, c), &(c0, c1, fx)) in hb.iter_mut().zip(hr.iter_mut()).zip(&self.cols) {
-                *b = ChromaRef::lerp_row(chroma.cb, ob, c0, c1, fx);
-                *c = ChromaRef::lerp_row(chroma.cr, or, c0, c1, fx);
-            }
-        }
-        let (wt, offset) = (self.w, self.offset);
-        for y in y0..=y1 {
-            let (r0, r1, fy) = chroma.row_taps(y as u32, h);
-            let (r0, r1) = ((r0 - r_lo) * nx, (r1 - r_lo) * nx);
-            let start = y * w as usize + x0;
-            let lum = &luma[start..start + nx];
-            let out = &mut self.buf[start..start + nx];
-            let (tb, bb) = (&self.h_cb[r0..r0 + nx], &self.h_cb[r1..r1 + nx]);
-            let (tr, br) = (&self.h_cr[r0..r0 + nx], &self.h_cr[r1..r1 + nx]);
-            for i in 0..nx {
-                let cb = ChromaRef::centred(tb[i] + fy * (bb[i] - tb[i]));
-                let cr = ChromaRef::centred(tr[i] + fy * (br[i] - tr[i]));
-                out[i] = project(wt, offset, f32::from(lum[i]) / 255.0, cb, cr);
-            }
-        }
-    }
-
-    fn fill_luma_only(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
-        let (w, h) = (self.width, self.height);
-        let [x0, x1, y0, y1] = shifted_box(self.grid_box, shift, w, h);
-        for y in y0..=y1 {
-            for x in x0..=x1 {
-                let v = frame.value(x as u32, y as u32);
-                self.buf[y * w as usize + x] = self.project(v, 0.0, 0.0);
-            }
-        }
-    }
-
-    #[inline]
-    fn project(&self, y: f32, cb: f32, cr: f32) -> u16 {
-        project(self.w, self.offset, y, cb, cr)
-    }
-
-    /// The plane as a 16-bit frame for the radial tracker.
-    pub fn view(&self, index: u64) -> FrameRef<'_> {
-        FrameRef {
-            index,
-            width: self.width,
-            height: self.height,
-            bit_depth: 16,
-            luma: LumaRef::U16(&self.buf),
-            chroma: None,
-            damaged: false,
-        }
-    }
-}
-
-/// The learnt projection of one pixel's (Y′, Cb, Cr), as a 16-bit sample.
-#[inline]
-fn project(w: [f32; 3], offset: f32, y: f32, cb: f32, cr: f32) -> u16 {
-    let v = offset + w[0] * y + w[1] * cb + w[2] * cr;
-    // Through i32: the same value as a direct `as u16` for every input (the clamped value
-    // lies in 0..=65535, and NaN becomes 0 either way), but a conversion the compiler can
-    // do four or eight lanes at a time.
-    (v.clamp(0.0, 1.0) * 65535.0) as i32 as u16
 }
 
 /// The grid's box moved by `shift` and grown by the shift's size and a margin, inside a
@@ -499,66 +393,25 @@ mod tests {
     fn a_stripe_seen_only_in_colour_is_projected_bright_on_dull_metal() {
         let f = frame(30.0, true);
         let g = grid();
-        let mut p = ColourPlane::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
+        let p = ColourPlane::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
         assert!(p.separation.0 > 2.0 * p.separation.1, "{:?}", p.separation);
-        p.fill(f.view(), [0.0, 0.0]);
-        let v = p.view(0);
-        // On the stripe (20 px out at 30°) and on metal (20 px out at 120°).
-        let at = |deg: f64| {
-            let (s, c) = deg.to_radians().sin_cos();
-            v.value(
-                (48.0 + 20.0 * c).round() as u32,
-                (48.0 + 20.0 * s).round() as u32,
-            )
-        };
+        // The grid's samples on the projection: on the stripe (the ring nearest 20 px out, at
+        // 30°) and on metal (same ring, at 120°).
+        let mut out = vec![0.0; g.rings * g.bins];
+        g.sample(
+            &g.prepare_with(f.view(), [0.0, 0.0], Some(p.weights)),
+            &mut out,
+        );
+        let k = (0..g.rings)
+            .min_by(|&a, &b| {
+                (g.radius[a] - 20.0)
+                    .abs()
+                    .total_cmp(&(g.radius[b] - 20.0).abs())
+            })
+            .unwrap();
+        let at = |deg: f64| out[k * g.bins + (deg / 360.0 * g.bins as f64).round() as usize];
         assert!((at(30.0) - 0.75).abs() < 0.1, "{}", at(30.0));
         assert!((at(120.0) - 0.25).abs() < 0.1, "{}", at(120.0));
-    }
-
-    /// The row-wise fill must give what the per-pixel bilinear chroma (`ChromaRef::at`) gives,
-    /// to the bit, at 4:2:0 with either siting and at full size, for boxes moved by a shift
-    /// and cut by the frame's edges (a regression check of the speed-up against the plain
-    /// formula it replaces).
-    #[test]
-    fn the_row_wise_fill_gives_the_per_pixel_values_to_the_bit() {
-        use rand::{RngExt, SeedableRng};
-        let g = grid();
-        let mut f = frame(30.0, true);
-        let mut p = ColourPlane::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
-        let mut rng = rand::rngs::ChaCha8Rng::seed_from_u64(420);
-        for (cw, siting) in [
-            (48u32, ChromaSiting::Centre),
-            (48, ChromaSiting::Left),
-            (96, ChromaSiting::Centre),
-        ] {
-            let n = (cw * cw) as usize;
-            f.chroma = Some(Chroma {
-                width: cw,
-                height: cw,
-                cb: (0..n).map(|_| rng.random()).collect(),
-                cr: (0..n).map(|_| rng.random()).collect(),
-                siting,
-            });
-            for shift in [[0.0, 0.0], [3.4, -2.2], [-60.0, 0.0], [0.0, 61.5]] {
-                let view = f.view();
-                p.fill(view, shift);
-                let (c, LumaRef::U8(luma)) = (view.chroma.unwrap(), view.luma) else {
-                    unreachable!()
-                };
-                let [x0, x1, y0, y1] = shifted_box(p.grid_box, shift, 96, 96);
-                for y in y0..=y1 {
-                    for x in x0..=x1 {
-                        let (cb, cr) = c.at(x as u32, y as u32, 96, 96);
-                        let want = p.project(luma_at(luma, 96, x, y), cb, cr);
-                        assert_eq!(
-                            p.buf[y * 96 + x],
-                            want,
-                            "({x}, {y}) {cw} {siting:?} {shift:?}"
-                        );
-                    }
-                }
-            }
-        }
     }
 
     #[test]

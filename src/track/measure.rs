@@ -34,8 +34,8 @@ pub(super) fn measure(
     let m = if first {
         let on_colour = match colour.as_mut() {
             Some(c) => {
-                c.fill(frame, shift);
-                radial.init(c.view(frame.index), shift).ok()
+                radial.set_colour(Some(c.weights));
+                radial.init(frame, shift).ok()
             }
             None => None,
         };
@@ -44,6 +44,7 @@ pub(super) fn measure(
             None => {
                 // No colour, or the projection did not show a stripe: the luma path.
                 *colour = None;
+                radial.set_colour(None);
                 Some(radial.init(frame, shift).map_err(|reason| Error::Mark {
                     mark: t.role.name().into(),
                     reason: format!("frame {}: {reason}", frame.index),
@@ -51,13 +52,7 @@ pub(super) fn measure(
             }
         }
     } else {
-        match colour.as_mut() {
-            Some(c) => {
-                c.fill(frame, shift);
-                radial.measure(c.view(frame.index), shift)
-            }
-            None => radial.measure(frame, shift),
-        }
+        radial.measure(frame, shift)
     };
     // A colour track is checked against its part's luma texture (`texture.rs`).
     if t.colour.is_some()

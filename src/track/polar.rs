@@ -13,8 +13,8 @@
 
 use std::f64::consts::PI;
 
-use super::gather::{self, Sample, Shift};
-use crate::decode::{FrameRef, LumaRef};
+use super::gather::{self, Image, Sample, Shift};
+use crate::decode::{ChromaRef, FrameRef, LumaRef};
 use crate::rig::RadialMark;
 
 /// Target spacing of angular samples along the mid-radius circle, px.
@@ -189,6 +189,20 @@ impl PolarGrid {
     /// # Panics
     /// When the frame size differs from the grid's.
     pub fn prepare<'a>(&self, frame: FrameRef<'a>, shift: [f64; 2]) -> Prepared<'a> {
+        self.prepare_with(frame, shift, None)
+    }
+
+    /// As [`Self::prepare`], but every sample is the colour projection `weights` of the
+    /// frame at the sample's point, when given (track/colour.rs): luma interpolated as
+    /// always, chroma interpolated at the same point from its own samples
+    /// ([`ChromaRef::at_point`]; taken as neutral in a frame without colour), projected and
+    /// clamped to 0..=1. Only the points the tracker reads are projected.
+    pub fn prepare_with<'a>(
+        &self,
+        frame: FrameRef<'a>,
+        shift: [f64; 2],
+        weights: Option<ColourWeights>,
+    ) -> Prepared<'a> {
         assert_eq!(
             (frame.width as usize, frame.height as usize),
             (self.width, self.height)
@@ -197,6 +211,11 @@ impl PolarGrid {
             luma: frame.luma,
             scale: 1.0 / frame.max_value(),
             shift: self.shift_parts(shift),
+            colour: weights.map(|weights| ColourTaps {
+                chroma: frame.chroma,
+                weights,
+                height: frame.height,
+            }),
         }
     }
 
@@ -308,6 +327,13 @@ impl PolarGrid {
         out: &mut [f32],
     ) {
         let (w, scale, sh) = (self.width, frame.scale, frame.shift);
+        if let Some(c) = frame.colour {
+            match frame.luma {
+                LumaRef::U8(d) => colour_gather(Image { d, w, scale }, pts, sh, c, out),
+                LumaRef::U16(d) => colour_gather(Image { d, w, scale }, pts, sh, c, out),
+            }
+            return;
+        }
         match frame.luma {
             // SAFETY: `idx_range` is the smallest and largest index of the taps `pts` was cut
             // from (see above), so it bounds every index of `pts`.
@@ -337,7 +363,11 @@ impl PolarGrid {
         let mut j = from;
         while j <= to {
             let i = flat(j);
-            out[i] = gather::one(d, w, self.idx[i], self.fx[i], self.fy[i], sh) * scale;
+            let (idx, fx, fy) = (self.idx[i], self.fx[i], self.fy[i]);
+            out[i] = match frame.colour {
+                Some(c) => colour_one(Image { d, w, scale }, idx, fx, fy, sh, c),
+                None => gather::one(d, w, idx, fx, fy, sh) * scale,
+            };
             j += stride as i64;
         }
     }
@@ -372,6 +402,65 @@ pub(crate) struct Prepared<'a> {
     scale: f32,
     /// The grid's shift, split into whole pixels and fractions.
     shift: Shift,
+    /// The colour projection sampled instead of luma, if any.
+    colour: Option<ColourTaps<'a>>,
+}
+
+/// A learnt projection of (Y′, Cb, Cr) that a mark is tracked on instead of luma
+/// (track/colour.rs): `offset + w · (Y′ 0..1, Cb, Cr −0.5..0.5)`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct ColourWeights {
+    pub w: [f32; 3],
+    pub offset: f32,
+}
+
+/// What a colour sample needs besides the luma.
+#[derive(Debug, Clone, Copy)]
+struct ColourTaps<'a> {
+    chroma: Option<ChromaRef<'a>>,
+    weights: ColourWeights,
+    /// The frame's height (the width is the grid's).
+    height: u32,
+}
+
+/// [`colour_one`] at every point of `pts` into `out` (same length). A plain loop: three
+/// interpolations a point, on the few thousand points a frame's search reads.
+fn colour_gather<T: Sample>(
+    img: Image<'_, T>,
+    pts: gather::Points<'_>,
+    shift: Shift,
+    c: ColourTaps<'_>,
+    out: &mut [f32],
+) {
+    assert!(pts.idx.len() == out.len() && pts.fx.len() == out.len() && pts.fy.len() == out.len());
+    for (k, o) in out.iter_mut().enumerate() {
+        *o = colour_one(img, pts.idx[k], pts.fx[k], pts.fy[k], shift, c);
+    }
+}
+
+/// The colour projection at one grid point moved by `shift`: luma as [`gather::one`] reads
+/// it, chroma at the same point ([`ChromaRef::at_point`]), projected and clamped to 0..=1.
+#[inline]
+fn colour_one<T: Sample>(
+    img: Image<'_, T>,
+    i: u32,
+    fx: f32,
+    fy: f32,
+    shift: Shift,
+    c: ColourTaps<'_>,
+) -> f32 {
+    let y_luma = gather::one(img.d, img.w, i, fx, fy, shift) * img.scale;
+    let (cb, cr) = match c.chroma {
+        Some(ch) => {
+            let p = (i as isize + shift.base) as usize;
+            let x = (p % img.w) as f32 + fx + shift.fx;
+            let y = (p / img.w) as f32 + fy + shift.fy;
+            ch.at_point(x, y, img.w as u32, c.height)
+        }
+        None => (0.0, 0.0),
+    };
+    let ColourWeights { w, offset } = c.weights;
+    (offset + w[0] * y_luma + w[1] * cb + w[2] * cr).clamp(0.0, 1.0)
 }
 
 /// The taps of every m-th bin of one ring ([`PolarGrid::lattice`]).
@@ -420,6 +509,88 @@ mod tests {
     use super::*;
     use crate::decode::Frame;
     use crate::rig::{Ellipse, Spin};
+
+    /// A 48×48 frame whose Y′, Cb and Cr are affine in position (4:2:0, centred siting:
+    /// chroma sample (i, j) at luma (2i + 0.5, 2j + 0.5)), with integer values at every
+    /// sample, so that bilinear interpolation reproduces the affine functions exactly
+    /// inside the chroma samples' span.
+    fn affine_colour_frame(siting: crate::decode::ChromaSiting) -> Frame {
+        let x_of = |i: u32| {
+            if siting == crate::decode::ChromaSiting::Centre {
+                2.0 * f64::from(i) + 0.5
+            } else {
+                2.0 * f64::from(i)
+            }
+        };
+        let y_of = |j: u32| 2.0 * f64::from(j) + 0.5;
+        let luma = (0..48u32)
+            .flat_map(|y| (0..48u32).map(move |x| (40 + 2 * x + y) as u8))
+            .collect();
+        let mut f = Frame::from_u8(0, 48, 48, luma);
+        let plane = |g: &dyn Fn(f64, f64) -> f64| -> Vec<u8> {
+            (0..24u32)
+                .flat_map(|j| (0..24u32).map(move |i| (i, j)))
+                .map(|(i, j)| {
+                    let v = g(x_of(i), y_of(j));
+                    assert!(v.fract() == 0.0 && (0.0..=255.0).contains(&v), "{v}");
+                    v as u8
+                })
+                .collect()
+        };
+        f.chroma = Some(crate::decode::Chroma {
+            width: 24,
+            height: 24,
+            cb: plane(&|x, y| 30.0 + 2.0 * x + 2.0 * (y - 0.5)),
+            cr: plane(&|x, y| 220.0 - 2.0 * x - 2.0 * (y - 0.5)),
+            siting,
+        });
+        f
+    }
+
+    /// A colour sample is the projection of Y′, Cb and Cr at the sample's own point: on a
+    /// frame where all three are affine in position (so exact bilinear values are known in
+    /// closed form), every sample of a grid moved by a fractional shift equals
+    /// `offset + w · (Y′, Cb, Cr)` evaluated there, for both 4:2:0 sitings. A check against
+    /// the closed form, not against the code's own arithmetic.
+    #[test]
+    fn a_colour_sample_projects_luma_and_chroma_at_the_same_point() {
+        use crate::decode::ChromaSiting;
+        let m = RadialMark {
+            pivot: [24.0, 24.0],
+            radius: [4.0, 18.0],
+            tighten: Some(Spin::Cw),
+            ellipse: None,
+        };
+        let g = PolarGrid::new(&m, 48, 48);
+        let weights = ColourWeights {
+            w: [0.5, 1.0, -0.7],
+            offset: 0.3,
+        };
+        let shift = [0.3, -0.6];
+        for (siting, x_off) in [(ChromaSiting::Centre, 0.5), (ChromaSiting::Left, 0.0)] {
+            let f = affine_colour_frame(siting);
+            let mut out = vec![0.0; g.offset.len()];
+            g.sample(&g.prepare_with(f.view(), shift, Some(weights)), &mut out);
+            for (k, o) in g.offset.iter().enumerate() {
+                let x = 24.0 + f64::from(o[0]) + shift[0];
+                let y = 24.0 + f64::from(o[1]) + shift[1];
+                // Inside the span of chroma sample positions, where nothing is clamped.
+                if !(x_off..=46.0 + x_off).contains(&x) || !(0.5..=46.5).contains(&y) {
+                    continue;
+                }
+                let luma = (40.0 + 2.0 * x + y) / 255.0;
+                let cb = (30.0 + 2.0 * x + 2.0 * (y - 0.5) - 128.0) / 255.0;
+                let cr = (220.0 - 2.0 * x - 2.0 * (y - 0.5) - 128.0) / 255.0;
+                let want = 0.3 + 0.5 * luma + cb - 0.7 * cr;
+                assert!((0.0..=1.0).contains(&want));
+                assert!(
+                    (f64::from(out[k]) - want).abs() < 2e-5,
+                    "{siting:?} ({x:.3}, {y:.3}): {} vs {want}",
+                    out[k]
+                );
+            }
+        }
+    }
 
     fn mark(ellipse: Option<Ellipse>) -> RadialMark {
         RadialMark {

@@ -8,7 +8,7 @@ const MIN_BACKGROUND_BINS: usize = 16;
 
 use super::{PRIOR_SPAN_RAD, PRIOR_WEIGHT, StripeModel};
 use crate::decode::FrameRef;
-use crate::track::polar::PolarGrid;
+use crate::track::polar::{ColourWeights, PolarGrid};
 use crate::track::unwrap::wrap_pi;
 
 /// The coarse search's grid and buffers (see the module's step 1).
@@ -26,9 +26,14 @@ pub(super) struct Coarse {
 
 impl Coarse {
     /// Samples the coarse rings whole and measures each one's mean and noise.
-    pub(super) fn load(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) {
-        self.grid
-            .sample(&self.grid.prepare(frame, shift), &mut self.polar);
+    pub(super) fn load(
+        &mut self,
+        frame: FrameRef<'_>,
+        shift: [f64; 2],
+        weights: Option<ColourWeights>,
+    ) {
+        let src = self.grid.prepare_with(frame, shift, weights);
+        self.grid.sample(&src, &mut self.polar);
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
             let (m, s) = ring_stats(

@@ -20,8 +20,8 @@ impl RadialTracker {
     /// # Errors
     /// A one-line reason when the annulus shows no stripe.
     pub fn init(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Result<Measurement, String> {
-        self.grid
-            .sample(&self.grid.prepare(frame, shift), &mut self.polar);
+        let src = self.grid.prepare_with(frame, shift, self.colour);
+        self.grid.sample(&src, &mut self.polar);
         let n = self.grid.bins;
         for k in 0..self.grid.rings {
             (self.mean[k], self.sigma[k]) = ring_stats(
@@ -145,7 +145,7 @@ impl RadialTracker {
             score: vec![0.0; n_c],
             grid,
         };
-        coarse.load(frame, shift);
+        coarse.load(frame, shift, self.colour);
         for k in 0..k_n {
             self.sigma_ratio[k] = self.sigma[k] / coarse.sigma[self.near[k]];
         }

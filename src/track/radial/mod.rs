@@ -42,7 +42,7 @@
 
 use std::f64::consts::PI;
 
-use super::polar::{LatticeTaps, PolarGrid, Prepared};
+use super::polar::{ColourWeights, LatticeTaps, PolarGrid, Prepared};
 use crate::decode::FrameRef;
 
 mod coarse;
@@ -135,6 +135,8 @@ struct StripeModel {
 /// Tracks one radial mark through a clip.
 pub(crate) struct RadialTracker {
     grid: PolarGrid,
+    /// The colour projection sampled instead of luma, when the mark is tracked on colour.
+    colour: Option<ColourWeights>,
     polar: Vec<f32>,
     mean: Vec<f32>,
     sigma: Vec<f32>,
@@ -205,6 +207,7 @@ impl RadialTracker {
             .map(|t| vec![0.0; t.as_ref().map_or(0, LatticeTaps::len)])
             .collect();
         RadialTracker {
+            colour: None,
             stride,
             lat_taps,
             lat_vals,
@@ -240,6 +243,11 @@ impl RadialTracker {
         &self.grid
     }
 
+    /// Tracks on the colour projection `weights` from now on (None: on luma).
+    pub fn set_colour(&mut self, weights: Option<ColourWeights>) {
+        self.colour = weights;
+    }
+
     /// Lowers (or raises) the first frame's significance bar, for tuning aids.
     #[cfg(test)]
     pub fn set_init_min_sig(&mut self, v: f64) {
@@ -267,11 +275,11 @@ impl RadialTracker {
     /// first frame.
     pub fn measure(&mut self, frame: FrameRef<'_>, shift: [f64; 2]) -> Option<Measurement> {
         let coarse = self.coarse.as_mut()?;
-        coarse.load(frame, shift);
+        coarse.load(frame, shift, self.colour);
         for k in 0..self.grid.rings {
             self.sigma[k] = coarse.sigma[self.near[k]] * self.sigma_ratio[k];
         }
-        let frame = self.grid.prepare(frame, shift);
+        let frame = self.grid.prepare_with(frame, shift, self.colour);
         self.measure_at(Some(frame))
     }
 
