@@ -1,4 +1,4 @@
-//! End-to-end speed and memory benchmark (issue 6): on the same rendered 1280×720 clip, in one
+//! End-to-end speed and memory benchmark (targets: docs/performance.md): on the same rendered 1280×720 clip, in one
 //! run, it measures decoding alone through twistmark's own reader, with no copy of the
 //! pictures (and `ffmpeg -f null` as an outside reference when the ffmpeg command is
 //! installed), the full `twistmark analyze` (release binary), and the peak RSS of `analyze` on a short clip and one ten times longer.
@@ -27,11 +27,11 @@ use twistmark::decode::{self, Frame, Slot};
 use twistmark_scenes::encode::{ClipWriter, Codec};
 use twistmark_scenes::synth::{Finish, Look, Scenario, render_frame, simulate};
 
-/// Peak RSS target for a 20,000-frame 720p clip, MB (issue 6).
+/// Peak RSS target for a 20,000-frame 720p clip, MB (docs/performance.md).
 const RSS_TARGET_MB: f64 = 150.0;
-/// analyze / decode wall-time target (issue 6).
+/// analyze / decode wall-time target (docs/performance.md).
 const TIME_TARGET: f64 = 1.15;
-/// Long / short peak RSS target (issue 6): within 10 %.
+/// Long / short peak RSS target (docs/performance.md): within 10 %.
 const RSS_GROWTH_TARGET: f64 = 1.10;
 
 fn main() {

@@ -4,7 +4,7 @@
 # line. Run from anywhere: CI runs it before building anything.
 set -euo pipefail
 cd "$(dirname "$0")/.."
-if hits=$(grep -rnE 'facts\.md|[Ii]ssues?[ -]#?[0-9]' docs src tests README.md DEVELOPERS.md fuzz/README.md); then
+if hits=$(grep -rnE 'facts\.md|[Ii]ssues?[ -]#?[0-9]' docs src tests benches tools README.md DEVELOPERS.md fuzz/README.md); then
     echo "$hits" >&2
     echo "check-citations: cite the publication (author, title, table or equation) or the repository's own docs instead of the lines above." >&2
     exit 1
