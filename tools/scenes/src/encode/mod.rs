@@ -91,6 +91,29 @@ impl Codec {
     }
 }
 
+/// How a clip is written, beyond its codec, size and rate.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+struct Options {
+    /// Bits per sample: 8, 10, 12 or 16.
+    bit_depth: u8,
+    layout: Layout,
+    /// Display rotation stored in the container, degrees clockwise (0 = none).
+    rotation_cw_deg: u32,
+    /// Explicit presentation timestamps in ticks of 1/`tick_hz` s, or None for index / rate.
+    tick_hz: Option<u32>,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options {
+            bit_depth: 8,
+            layout: Layout::Planes,
+            rotation_cw_deg: 0,
+            tick_hz: None,
+        }
+    }
+}
+
 /// What a clip's pictures hold.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Layout {
@@ -166,13 +189,12 @@ impl ClipWriter {
         Self::create_inner(
             path,
             codec,
-            width,
-            height,
+            [width, height],
             fps_hz,
-            bit_depth,
-            Layout::Planes,
-            0,
-            None,
+            Options {
+                bit_depth,
+                ..Options::default()
+            },
         )
     }
 
@@ -194,13 +216,12 @@ impl ClipWriter {
         Self::create_inner(
             path,
             codec,
-            width,
-            height,
+            [width, height],
             fps_hz,
-            8,
-            Layout::Planes,
-            rotation_cw_deg,
-            None,
+            Options {
+                rotation_cw_deg,
+                ..Options::default()
+            },
         )
     }
 
@@ -220,13 +241,12 @@ impl ClipWriter {
         Self::create_inner(
             path,
             codec,
-            width,
-            height,
+            [width, height],
             fps_hz,
-            8,
-            Layout::Colour,
-            0,
-            None,
+            Options {
+                layout: Layout::Colour,
+                ..Options::default()
+            },
         )
     }
 
@@ -248,13 +268,12 @@ impl ClipWriter {
         Self::create_inner(
             path,
             codec,
-            width,
-            height,
+            [width, height],
             fps_hz,
-            8,
-            Layout::Planes,
-            0,
-            Some(tick_hz),
+            Options {
+                tick_hz: Some(tick_hz),
+                ..Options::default()
+            },
         )
     }
 
@@ -277,13 +296,12 @@ impl ClipWriter {
         Self::create_inner(
             path,
             Codec::Ffv1,
-            width,
-            height,
+            [width, height],
             30.0,
-            8,
-            Layout::RgbPng,
-            0,
-            None,
+            Options {
+                layout: Layout::RgbPng,
+                ..Options::default()
+            },
         )
     }
 

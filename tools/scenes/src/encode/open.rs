@@ -9,23 +9,25 @@ use ff::format::Pixel;
 use ff::{Dictionary, Rational};
 use ffmpeg_next as ff;
 
-use super::{ClipWriter, Codec, Layout};
+use super::{ClipWriter, Codec, Layout, Options};
 use crate::decode::ffmpeg_init;
 use crate::{Error, Result};
 
 impl ClipWriter {
-    #[allow(clippy::too_many_arguments)] // one private constructor behind the public ones
+    /// The one constructor behind the public ones.
     pub(super) fn create_inner(
         path: &Path,
         codec: Codec,
-        width: u32,
-        height: u32,
+        [width, height]: [u32; 2],
         fps_hz: f64,
-        bit_depth: u8,
-        layout: Layout,
-        rotation_cw_deg: u32,
-        tick_hz: Option<u32>,
+        opts: Options,
     ) -> Result<Self> {
+        let Options {
+            bit_depth,
+            layout,
+            rotation_cw_deg,
+            tick_hz,
+        } = opts;
         let rgb_png = layout == Layout::RgbPng;
         let colour = layout == Layout::Colour;
         ffmpeg_init();
