@@ -260,7 +260,7 @@ fn analyze_impl(
     let zero = measured_zero(rig, rig_path, opts, &clip, rest_still, kept, &segmentation)?;
     let (mut blows, mut summary, mech_warnings) =
         mechanics::blow_metrics_zeroed(&captured, &segmentation, rig.bar.as_ref(), zero);
-    synthetic::reindex_blows(&mut segmentation.blows, &kept_samples, trace.len());
+    crate::segment::reindex_blows(&mut segmentation.blows, &kept_samples, trace.len());
     warnings.extend(mech_warnings);
     warnings.extend(crate::sanity::check_results(
         rig,

@@ -36,8 +36,9 @@ pub const VIDEO_EXTENSIONS: &[&str] = &[
     "flv", "3gp", "ogv", "nut", "y4m",
 ];
 
-/// Extensions (lower case) of still images that make a subfolder a stills clip.
-pub const STILL_EXTENSIONS: &[&str] = &["png", "tif", "tiff", "jpg", "jpeg", "bmp"];
+/// Extensions (lower case) of still images that make a subfolder a stills clip: those the
+/// stills decoder reads.
+pub use crate::decode::STILL_EXTENSIONS;
 
 /// The suffix of a per-clip rig file: `<clip>.rig.json` beside the clip.
 pub const SIDECAR_SUFFIX: &str = ".rig.json";

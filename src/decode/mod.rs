@@ -7,7 +7,7 @@
 //! "Time").
 //!
 //! Layering: the first stage; it must never import a later one (track, segment, mechanics,
-//! report), nor `analyze`, `batch` or the CLI.
+//! report), nor `analyze`, `batch` or the CLI (`tests/it/layering.rs` checks).
 
 use std::path::{Path, PathBuf};
 
@@ -15,6 +15,7 @@ use crate::error::{Error, Result};
 use crate::warning::Warning;
 
 mod stills;
+pub use stills::STILL_EXTENSIONS;
 pub(crate) use stills::read_still;
 #[cfg(feature = "ffmpeg")]
 mod rotate;

@@ -29,8 +29,10 @@ use super::{ClipInfo, ClipKind, Frame, FrameSource, Luma};
 use crate::error::{Error, Result};
 use crate::warning::Warning;
 
-/// Extensions read as stills (compared in lower case).
-const EXTENSIONS: [&str; 6] = ["png", "tif", "tiff", "jpg", "jpeg", "bmp"];
+/// Extensions (lower case) of the still images read as a clip's frames; everything that
+/// looks for stills (batch's discovery, the report's clip hash, the output guard) uses this
+/// list.
+pub const STILL_EXTENSIONS: &[&str] = &["png", "tif", "tiff", "jpg", "jpeg", "bmp"];
 /// Largest decoded still accepted, bytes (1 GiB: an 8k × 8k 16-bit RGBA frame is 512 MiB).
 const MAX_FRAME_BYTES: usize = 1 << 30;
 /// At most this many gap warnings; the rest are summed up in one note.
@@ -98,7 +100,7 @@ fn still_extension(path: &Path) -> Option<String> {
         .extension()
         .and_then(OsStr::to_str)?
         .to_ascii_lowercase();
-    EXTENSIONS.contains(&ext.as_str()).then_some(ext)
+    STILL_EXTENSIONS.contains(&ext.as_str()).then_some(ext)
 }
 
 /// Canonical format name for an extension (`tif` → `tiff`, `jpg` → `jpeg`).

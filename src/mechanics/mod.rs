@@ -5,9 +5,9 @@
 //! SI units. Sections in series share one torque, so 1/k = Σ Lᵢ/(Gᵢ·Jᵢ) (any
 //! mechanics-of-materials text, e.g. Beer & Johnston, *Mechanics of Materials*, ch. 3).
 //!
-//! Layering: uses the trace (track) and the blows (segment); it must never import `analyze`,
-//! `batch` or the CLI. It also must not import report. One exception remains: the bar's
-//! report.json types are re-exported here from `report::bar_json`.
+//! Layering: uses the trace (track) and the blows (segment); it must never import report,
+//! `analyze`, `batch` or the CLI (`tests/it/layering.rs` checks). The bar's report.json types
+//! are `report::BarJson` and `report::SectionJson`.
 
 mod bar;
 #[cfg(test)]
@@ -31,7 +31,6 @@ mod uncertainty;
 pub mod unwind;
 mod zero;
 
-pub use crate::report::bar_json::{BarJson, SectionJson};
 pub use bar::{BarSpec, CalibrationSpec, InertiaPart, Material, SectionSpec};
 pub use bar_report::{
     BarReport, GAIN_SPRANG_BACK_MAX, GAIN_STILL_WOUND_MIN, InertiaSource, MeasuredRecovery,

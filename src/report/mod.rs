@@ -8,8 +8,8 @@
 //! atomic on POSIX file systems and replaces the target on Windows).
 //!
 //! Layering: the last stage. It reads every earlier stage's results through
-//! [`crate::Analysis`] and must never import the CLI; `write.rs` reads the list of still
-//! extensions from `batch`.
+//! [`crate::Analysis`] and must never import `batch` or the CLI (`tests/it/layering.rs`
+//! checks).
 
 use std::path::{Path, PathBuf};
 
@@ -28,6 +28,7 @@ pub use write::{
 };
 
 pub(crate) mod bar_json;
+pub use bar_json::{BarJson, SectionJson};
 mod csv;
 mod display;
 mod html;

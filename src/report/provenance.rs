@@ -17,6 +17,7 @@ use serde::{Deserialize, Deserializer, Serialize};
 use sha2::{Digest, Sha256};
 
 use crate::analyze::Analysis;
+use crate::decode::STILL_EXTENSIONS;
 
 /// `report.json`'s `tool`: the program and version that wrote it.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -120,9 +121,6 @@ impl WindowJson {
 pub fn now_utc() -> String {
     humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string()
 }
-
-/// Still extensions hashed in a stills folder (those the stills decoder reads).
-const STILL_EXTENSIONS: [&str; 6] = ["png", "tif", "tiff", "jpg", "jpeg", "bmp"];
 
 fn hash_clip(path: &Path) -> Option<(u64, String)> {
     let meta = std::fs::metadata(path).ok()?;

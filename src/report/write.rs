@@ -104,7 +104,7 @@ pub fn check_not_input(out: &Path, flag: &str, inputs: &[&Path]) -> Result<()> {
         }
         // Inside a stills folder, an image would be read as one of the clip's frames.
         let image = o.extension().and_then(|e| e.to_str()).is_some_and(|e| {
-            crate::batch::STILL_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str())
+            crate::decode::STILL_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str())
         });
         if o.starts_with(&i) && image {
             return Err(refusal(

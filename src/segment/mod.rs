@@ -75,7 +75,7 @@
 //!    warning says so: the "blows" found would be the spring-backs.
 //!
 //! Layering: uses only the trace from track and the shared `stats`; it must never import
-//! mechanics, report, `analyze`, `batch` or the CLI.
+//! mechanics, report, `analyze`, `batch` or the CLI (`tests/it/layering.rs` checks).
 
 mod drive;
 mod nut;
@@ -117,6 +117,18 @@ pub struct Segmentation {
     pub scale_samples: usize,
     /// Data-quality notes.
     pub warnings: Vec<Warning>,
+}
+
+/// Re-indexes blows found on a trace cut to its captured frames
+/// ([`crate::track::synthetic::captured_only`]) into the whole trace: `kept[i]` is the
+/// whole-trace index of captured sample i, and `n` the whole trace's length.
+pub fn reindex_blows(blows: &mut [Blow], kept: &[usize], n: usize) {
+    let at = |i: usize| kept.get(i).copied().unwrap_or(n);
+    for b in blows {
+        b.onset = at(b.onset);
+        b.end = at(b.end);
+        b.nut_onset = b.nut_onset.map(at);
+    }
 }
 
 /// Lowest angle noise assumed, degrees: below what any tracker resolves from video.

@@ -21,6 +21,10 @@
 //! stripe's own direction, which does not depend on the pivot (`refine.rs`); this removes most
 //! of the error a pivot that is off by a pixel (or shake in the first frame) would leave.
 //!
+//! Layering: the second stage; it uses decode's frames and must never import a later stage
+//! (segment, mechanics, report), `analyze`, `batch` or the CLI (`tests/it/layering.rs`
+//! checks).
+//!
 //! Unwrapping: each frame's angle is taken as the turn nearest the prediction from recent
 //! velocity, so the true turn between two measured frames must stay under 180° (as in
 //! numpy.unwrap). After a run of lost frames the prediction extrapolates the last velocity; if the

@@ -385,17 +385,6 @@ pub fn captured_only(trace: &Trace) -> (Trace, Vec<usize>) {
     (out, keep)
 }
 
-/// Re-indexes blows found on [`captured_only`]'s trace into the whole trace (`kept[i]` is
-/// the whole-trace index of captured sample i; `n` the whole trace's length).
-pub fn reindex_blows(blows: &mut [crate::segment::Blow], kept: &[usize], n: usize) {
-    let at = |i: usize| kept.get(i).copied().unwrap_or(n);
-    for b in blows {
-        b.onset = at(b.onset);
-        b.end = at(b.end);
-        b.nut_onset = b.nut_onset.map(at);
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;

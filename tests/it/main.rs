@@ -22,6 +22,7 @@ mod held_out;
 mod holding;
 mod hostile;
 mod html_report;
+mod layering;
 mod messages;
 mod phone;
 mod predict;

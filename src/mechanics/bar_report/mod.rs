@@ -4,7 +4,7 @@
 //! verdict against a measured blow interval and residual twist.
 //!
 //! In: a validated [`BarSpec`]. Out: [`BarReport`] (SI inside) and its serialisable form
-//! [`BarJson`](crate::mechanics::BarJson) (unit-suffixed keys), used by `twistmark bar` and available to the analysis
+//! [`BarJson`](crate::report::BarJson) (unit-suffixed keys), used by `twistmark bar` and available to the analysis
 //! report.
 //!
 //! Spring-back model (free torsional vibration of a disc on a massless shaft, any
