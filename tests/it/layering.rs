@@ -10,53 +10,23 @@
 
 use std::path::{Path, PathBuf};
 
-/// (folder under src/, the crate paths it must never use).
-const RULES: &[(&str, &[&str])] = &[
-    (
-        "decode",
-        &[
-            "track",
-            "segment",
-            "mechanics",
-            "report",
-            "analyze",
-            "batch",
-            "cli",
-            "find_marks",
-            "calibrate",
-        ],
-    ),
-    (
-        "track",
-        &[
-            "segment",
-            "mechanics",
-            "report",
-            "analyze",
-            "batch",
-            "cli",
-            "find_marks",
-            "calibrate",
-        ],
-    ),
-    (
-        "segment",
-        &[
-            "mechanics",
-            "report",
-            "analyze",
-            "batch",
-            "cli",
-            "find_marks",
-            "calibrate",
-        ],
-    ),
-    (
-        "mechanics",
-        &["report", "analyze", "batch", "cli", "find_marks"],
-    ),
-    ("report", &["batch", "cli"]),
-];
+/// The pipeline's stages, in order (folders under src/).
+const STAGES: [&str; 5] = ["decode", "track", "segment", "mechanics", "report"];
+
+/// The crate paths a stage must never use: every later stage, the orchestration (`analyze`,
+/// which report alone reads results through, and `batch`), the commands built on the
+/// pipeline (`find_marks`, `calibrate`) and the command line.
+fn forbidden_for(stage: &str) -> Vec<&'static str> {
+    let Some(i) = STAGES.iter().position(|s| *s == stage) else {
+        return Vec::new();
+    };
+    let mut f = STAGES[i + 1..].to_vec();
+    f.extend(["batch", "cli", "find_marks", "calibrate"]);
+    if stage != "report" {
+        f.push("analyze");
+    }
+    f
+}
 
 fn rust_files(dir: &Path, out: &mut Vec<PathBuf>) {
     for e in std::fs::read_dir(dir).expect("read src folder") {
@@ -110,11 +80,7 @@ fn violations(src: &Path) -> Vec<String> {
             .as_os_str()
             .to_string_lossy();
         let stage = top.trim_end_matches(".rs");
-        let mut forbidden: Vec<&str> = RULES
-            .iter()
-            .find(|(s, _)| *s == stage)
-            .map(|(_, f)| f.to_vec())
-            .unwrap_or_default();
+        let mut forbidden = forbidden_for(stage);
         // The library never uses the command line (src/cli and the binary's main.rs are it).
         if stage != "cli" && stage != "main" {
             forbidden.push("cli");
