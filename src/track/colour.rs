@@ -42,7 +42,7 @@ const BOX_MARGIN_PX: usize = 2;
 
 /// A mark's learnt projection.
 #[derive(Debug, Clone)]
-pub(crate) struct ColourPlane {
+pub(crate) struct ColourProjection {
     /// Weights on (Y′, Cb, Cr) and offset, scaled so that metal maps to 0.25 and paint to
     /// 0.75.
     pub weights: ColourWeights,
@@ -148,11 +148,15 @@ fn robust_moments(px: &[[f32; 3]]) -> ([f64; 3], [[f64; 3]; 3]) {
     (mk, sk.map(|r| r.map(|v| v * REWEIGHT_CONSISTENCY)))
 }
 
-impl ColourPlane {
+impl ColourProjection {
     /// Learns the projection for the mark sampled by `grid` from the first frame (moved by
     /// `shift`). None when the frame has no colour, its luma is deeper than 8 bit, no stripe
     /// stands out, or colour adds too little over luma.
-    pub fn learn(frame: FrameRef<'_>, grid: &PolarGrid, shift: [f64; 2]) -> Option<ColourPlane> {
+    pub fn learn(
+        frame: FrameRef<'_>,
+        grid: &PolarGrid,
+        shift: [f64; 2],
+    ) -> Option<ColourProjection> {
         let chroma = frame.chroma?;
         let LumaRef::U8(luma) = frame.luma else {
             return None;
@@ -283,7 +287,7 @@ impl ColourPlane {
         let g = 0.5 / j_colour;
         let wf = wv.map(|v| (v * g) as f32);
         let offset = (0.25 - pm * g) as f32;
-        Some(ColourPlane {
+        Some(ColourProjection {
             weights: ColourWeights { w: wf, offset },
             separation: (j_colour, j_luma),
         })
@@ -393,7 +397,7 @@ mod tests {
     fn a_stripe_seen_only_in_colour_is_projected_bright_on_dull_metal() {
         let f = frame(30.0, true);
         let g = grid();
-        let p = ColourPlane::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
+        let p = ColourProjection::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
         assert!(p.separation.0 > 2.0 * p.separation.1, "{:?}", p.separation);
         // The grid's samples on the projection: on the stripe (the ring nearest 20 px out, at
         // 30°) and on metal (same ring, at 120°).
@@ -417,14 +421,14 @@ mod tests {
     #[test]
     fn monochrome_frames_keep_the_luma_path() {
         let g = grid();
-        assert!(ColourPlane::learn(frame(30.0, false).view(), &g, [0.0, 0.0]).is_none());
+        assert!(ColourProjection::learn(frame(30.0, false).view(), &g, [0.0, 0.0]).is_none());
         // Neutral chroma (a monochrome camera in a colour container) adds nothing either.
         let mut f = frame(30.0, true);
         if let Some(c) = f.chroma.as_mut() {
             c.cb.fill(128);
             c.cr.fill(128);
         }
-        assert!(ColourPlane::learn(f.view(), &g, [0.0, 0.0]).is_none());
+        assert!(ColourProjection::learn(f.view(), &g, [0.0, 0.0]).is_none());
     }
 
     #[test]

@@ -28,7 +28,7 @@ pub(super) fn measure(
     };
     let shift = pose.shift_at(radial.grid().geometry().0);
     if first && frame.chroma.is_some() {
-        t.colour = colour::ColourPlane::learn(frame, radial.grid(), shift);
+        t.colour = colour::ColourProjection::learn(frame, radial.grid(), shift);
     }
     let colour = &mut t.colour;
     let m = if first {

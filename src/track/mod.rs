@@ -155,7 +155,7 @@ struct MarkTrack {
     ring_ref: Vec<f64>,
     /// The colour projection this mark is tracked on, when colour separates its paint from
     /// its metal better than luma (`colour.rs`); None keeps the luma path.
-    colour: Option<colour::ColourPlane>,
+    colour: Option<colour::ColourProjection>,
     /// For a mark tracked on colour: its part's luma texture, the check on the colour track
     /// (`texture.rs`).
     texture: Option<texture::TextureCheck>,
