@@ -490,3 +490,5 @@ pub fn blow_model(
 
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod held_out;

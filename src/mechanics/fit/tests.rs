@@ -296,7 +296,7 @@ fn check_pairs() -> Vec<(&'static str, Scenario)> {
 
 /// Relative errors of one set of predictions: (name, holding, per-blow peaks, every 95 %
 /// interval holds its truth).
-fn errors(
+pub(crate) fn errors(
     a: &Scenario,
     noise_seed: u64,
     pairs: Vec<(&'static str, Scenario)>,
