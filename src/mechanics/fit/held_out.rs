@@ -119,3 +119,30 @@ fn print_held_out_prediction_errors() {
         100.0 * pw
     );
 }
+
+/// A ratchet on the held-out set's first [`CI_SEEDS`] scenes, which CI runs: the worst
+/// holding-torque and per-blow peak errors may not grow past what was measured on
+/// 5 December 2026 (half a point of margin for rounding), nor may fewer intervals hold.
+/// These are regression values, not targets (the 5 % target is not met on held-out scenes:
+/// docs/mechanics.md, "Predictions on held-out scenes"); after an improvement, lower them to
+/// the figures printed by
+/// `cargo test --lib print_held_out_prediction_errors -- --ignored --nocapture`.
+#[test]
+fn held_out_prediction_errors_do_not_grow() {
+    let (h, p, n, c) = measure(&seeds()[..CI_SEEDS]);
+    let ((_, hw), (_, pw)) = (median_worst(&h), median_worst(&p));
+    assert_eq!(n, 3 * CI_SEEDS);
+    // Measured: worst holding 2.1 %, worst peak 19.8 % (the first blow of a softer bar),
+    // intervals hold on 8 of 9 pairs.
+    assert!(
+        hw <= 0.026,
+        "worst holding error {:.1} % (was 2.1 %)",
+        100.0 * hw
+    );
+    assert!(
+        pw <= 0.203,
+        "worst peak error {:.1} % (was 19.8 %)",
+        100.0 * pw
+    );
+    assert!(c >= 8, "intervals hold on {c} of {n} pairs (was 8)");
+}

@@ -489,6 +489,6 @@ pub fn blow_model(
 }
 
 #[cfg(test)]
-mod tests;
-#[cfg(test)]
 mod held_out;
+#[cfg(test)]
+mod tests;
