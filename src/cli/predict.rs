@@ -159,6 +159,9 @@ pub fn run(a: PredictArgs) -> Result<ExitCode> {
     for u in &p.undecided {
         println!("undecided: {u}");
     }
+    for m in &p.misfit {
+        println!("misfit: {m}");
+    }
     println!("{}", p.caution);
     Ok(ExitCode::SUCCESS)
 }

@@ -146,3 +146,35 @@ fn held_out_prediction_errors_do_not_grow() {
     );
     assert!(c >= 8, "intervals hold on {c} of {n} pairs (was 8)");
 }
+
+/// A prediction whose per-blow peaks are more than 10 % off says so: on the first
+/// [`CI_SEEDS`] held-out scenes, every pair with a peak error above 10 % carries a `misfit`
+/// sentence (its fit misses the filmed clip's own peaks), and at least one such pair exists.
+#[test]
+fn a_prediction_far_off_on_its_peaks_carries_a_misfit_sentence() {
+    use super::tests::{obs_of, predict_scenario};
+    let mut far = 0;
+    for &seed in &seeds()[..CI_SEEDS] {
+        let (a, pairs) = draw(seed);
+        let f = super::fit(&obs_of(&crate::synth::simulate(&a), seed ^ 0x5eed)).unwrap();
+        for (name, sc) in pairs {
+            let (p, truth) = predict_scenario(&f, &sc);
+            let worst = p
+                .blows
+                .iter()
+                .zip(&truth.blows)
+                .map(|(b, t)| (b.peak_torque_nm / t.model_peak_torque_nm - 1.0).abs())
+                .fold(0.0, f64::max);
+            if worst > 0.10 {
+                far += 1;
+                assert!(
+                    !p.misfit.is_empty(),
+                    "{seed} {name}: peaks {:.0} % off without a misfit sentence (fit misfit {:.3})",
+                    100.0 * worst,
+                    f.quality.max_peak_twist_rel_error
+                );
+            }
+        }
+    }
+    assert!(far >= 1, "the CI scenes hold a pair more than 10 % off");
+}

@@ -170,7 +170,10 @@ fn pairs() -> Vec<(&'static str, Scenario)> {
 
 /// The prediction of fit `f` for scenario `sc` (its bar's stiffness, blow rate and blow
 /// count), with the renderer's truth for that scenario.
-fn predict_scenario(f: &ModelFit, sc: &Scenario) -> (crate::mechanics::Prediction, Truth) {
+pub(crate) fn predict_scenario(
+    f: &ModelFit,
+    sc: &Scenario,
+) -> (crate::mechanics::Prediction, Truth) {
     let truth = simulate(sc);
     let input = PredictInput {
         stiffness_nm_per_rad: truth.model.stiffness_nm_per_rad,
