@@ -17,8 +17,10 @@
 //! Labels come from the first frame without knowing the paint's colour: the annulus is cut
 //! into angular sectors; the metal is the sectors' median colour, and the stripe is the run of
 //! sectors around the one farthest from it (per-channel robust z, MAD scale). Everything else
-//! in the annulus (recesses, pits, glints, holes) lands in the metal class, so its scatter
-//! makes the discriminant give those directions of colour little weight.
+//! in the annulus (recesses, pits, glints, holes) lands in the metal class. The metal's mean is
+//! robust, so they do not move it, but its scatter is the plain one, so they spread the class
+//! along their own directions of colour and the discriminant gives those directions little
+//! weight: a white glint beside a red stripe does not read as paint.
 //!
 //! When the projection does not at least double Fisher's separation J = Δᵀ S_w⁻¹ Δ over luma
 //! alone (a monochrome camera, neutral chroma, or paint that already stands out in brightness),
@@ -267,7 +269,13 @@ impl ColourProjection {
             return None;
         }
         let (mp, sp) = robust_moments(&paint);
-        let (mm, sm) = robust_moments(&metal);
+        // The metal's mean is robust (a glint must not move it), but its scatter is the plain
+        // one: everything the annulus shows that is not paint (glints, recesses, pits, holes,
+        // a washer's edge) spreads the metal class along its own direction of colour, and the
+        // discriminant then gives that direction little weight, so none of it can look like
+        // paint. The robust scatter dropped exactly those points.
+        let (mm, _) = robust_moments(&metal);
+        let sm = moments(&metal).1;
         let mut sw = [[0.0; 3]; 3];
         for a in 0..3 {
             for b in 0..3 {
@@ -416,6 +424,71 @@ mod tests {
         let at = |deg: f64| out[k * g.bins + (deg / 360.0 * g.bins as f64).round() as usize];
         assert!((at(30.0) - 0.75).abs() < 0.1, "{}", at(30.0));
         assert!((at(120.0) - 0.25).abs() < 0.1, "{}", at(120.0));
+    }
+
+    /// A dark metal face with a red stripe that is also brighter than the metal, and a white
+    /// glint (a lamp's reflection) elsewhere on the annulus: the glint lands in the metal class,
+    /// and the projection must keep it near metal. Learnt from robust scatter, which drops the
+    /// glint's pixels, the discriminant leaned on brightness and projected the glint as
+    /// brighter than paint.
+    #[test]
+    fn a_glint_in_the_annulus_does_not_project_like_paint() {
+        let (w, h) = (96u32, 96u32);
+        let (s, c) = 30f64.to_radians().sin_cos();
+        let glint = [
+            48.0 + 22.0 * 120f64.to_radians().cos(),
+            48.0 + 22.0 * 120f64.to_radians().sin(),
+        ];
+        let (mut y, mut cb, mut cr) = (Vec::new(), Vec::new(), Vec::new());
+        for j in 0..h {
+            for i in 0..w {
+                let (dx, dy) = (f64::from(i) - 48.0, f64::from(j) - 48.0);
+                let paint = dx * c + dy * s > 0.0 && (-dx * s + dy * c).abs() < 3.0;
+                let lit = (f64::from(i) - glint[0]).hypot(f64::from(j) - glint[1]) < 5.0;
+                // Metal with a mottle in brightness and in colour (±0.02 in Y′, ±3 levels in
+                // Cb and Cr); paint that differs from it in both.
+                let tex = ((i * 7 + j * 13) % 5) as f64 * 0.01;
+                let ct = ((i * 11 + j * 5) % 7) as u8;
+                let (yy, b, r) = if paint {
+                    (0.45, 118, 150)
+                } else if lit {
+                    (0.95, 128, 128)
+                } else {
+                    (0.2 + tex, 125 + ct, 131 - ct)
+                };
+                y.push((yy * 255.0_f64).round() as u8);
+                cb.push(b);
+                cr.push(r);
+            }
+        }
+        let mut f = Frame::from_u8(0, w, h, y);
+        f.chroma = Some(Chroma {
+            width: w,
+            height: h,
+            cb,
+            cr,
+            siting: ChromaSiting::Centre,
+        });
+        let g = grid();
+        let p = ColourProjection::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
+        let mut out = vec![0.0; g.rings * g.bins];
+        g.sample(
+            &g.prepare_with(f.view(), [0.0, 0.0], Some(p.weights)),
+            &mut out,
+        );
+        let k = (0..g.rings)
+            .min_by(|&a, &b| {
+                (g.radius[a] - 22.0)
+                    .abs()
+                    .total_cmp(&(g.radius[b] - 22.0).abs())
+            })
+            .unwrap();
+        let at = |deg: f64| out[k * g.bins + (deg / 360.0 * g.bins as f64).round() as usize];
+        let (paint, metal, lit) = (at(30.0), at(200.0), at(120.0));
+        assert!((paint - 0.75).abs() < 0.1, "paint {paint}");
+        assert!((metal - 0.25).abs() < 0.1, "metal {metal}");
+        // Nearer metal than paint: below the midpoint.
+        assert!(lit < 0.5, "glint {lit} (paint {paint}, metal {metal})");
     }
 
     #[test]
