@@ -359,32 +359,41 @@ mod tests {
     /// A 96×96 colour frame: metal (Y 0.6, neutral), an orange-ish stripe at `deg` with the
     /// same luma, on a ring around (48, 48).
     fn frame(deg: f64, chroma: bool) -> Frame {
+        let mut f = painted(deg, |i, j, paint| {
+            let tex = ((i * 7 + j * 13) % 5) as f64 * 0.01;
+            let (b, r) = if paint { (90, 175) } else { (128, 128) };
+            (0.6 + tex, b, r)
+        });
+        if !chroma {
+            f.chroma = None;
+        }
+        f
+    }
+
+    /// A 96×96 colour frame with a stripe from (48, 48) at `deg`: `look(i, j, paint)` gives
+    /// pixel (i, j)'s Y′ (0..1), Cb and Cr (8-bit).
+    fn painted(deg: f64, look: impl Fn(u32, u32, bool) -> (f64, u8, u8)) -> Frame {
         let (w, h) = (96u32, 96u32);
         let (s, c) = deg.to_radians().sin_cos();
-        let mut y = Vec::new();
-        let (mut cb, mut cr) = (Vec::new(), Vec::new());
+        let (mut y, mut cb, mut cr) = (Vec::new(), Vec::new(), Vec::new());
         for j in 0..h {
             for i in 0..w {
                 let (dx, dy) = (f64::from(i) - 48.0, f64::from(j) - 48.0);
-                let along = dx * c + dy * s;
-                let across = -dx * s + dy * c;
-                let paint = along > 0.0 && across.abs() < 3.0;
-                let tex = ((i * 7 + j * 13) % 5) as f64 * 0.01;
-                y.push(((0.6 + tex) * 255.0).round() as u8);
-                cb.push(if paint { 90 } else { 128 });
-                cr.push(if paint { 175 } else { 128 });
+                let paint = dx * c + dy * s > 0.0 && (-dx * s + dy * c).abs() < 3.0;
+                let (yy, b, r) = look(i, j, paint);
+                y.push((yy * 255.0).round() as u8);
+                cb.push(b);
+                cr.push(r);
             }
         }
         let mut f = Frame::from_u8(0, w, h, y);
-        if chroma {
-            f.chroma = Some(Chroma {
-                width: w,
-                height: h,
-                cb,
-                cr,
-                siting: ChromaSiting::Centre,
-            });
-        }
+        f.chroma = Some(Chroma {
+            width: w,
+            height: h,
+            cb,
+            cr,
+            siting: ChromaSiting::Centre,
+        });
         f
     }
 
@@ -401,14 +410,11 @@ mod tests {
         )
     }
 
-    #[test]
-    fn a_stripe_seen_only_in_colour_is_projected_bright_on_dull_metal() {
-        let f = frame(30.0, true);
+    /// Learns `f`'s projection on [`grid`] and returns it with the projected value at a screen
+    /// angle (degrees) on the ring nearest `radius` px from the pivot.
+    fn projected_ring(f: &Frame, radius: f64) -> (ColourProjection, impl Fn(f64) -> f32) {
         let g = grid();
         let p = ColourProjection::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
-        assert!(p.separation.0 > 2.0 * p.separation.1, "{:?}", p.separation);
-        // The grid's samples on the projection: on the stripe (the ring nearest 20 px out, at
-        // 30°) and on metal (same ring, at 120°).
         let mut out = vec![0.0; g.rings * g.bins];
         g.sample(
             &g.prepare_with(f.view(), [0.0, 0.0], Some(p.weights)),
@@ -416,12 +422,23 @@ mod tests {
         );
         let k = (0..g.rings)
             .min_by(|&a, &b| {
-                (g.radius[a] - 20.0)
+                (g.radius[a] - radius)
                     .abs()
-                    .total_cmp(&(g.radius[b] - 20.0).abs())
+                    .total_cmp(&(g.radius[b] - radius).abs())
             })
             .unwrap();
-        let at = |deg: f64| out[k * g.bins + (deg / 360.0 * g.bins as f64).round() as usize];
+        let bins = g.bins;
+        let at = move |deg: f64| out[k * bins + (deg / 360.0 * bins as f64).round() as usize];
+        (p, at)
+    }
+
+    #[test]
+    fn a_stripe_seen_only_in_colour_is_projected_bright_on_dull_metal() {
+        let f = frame(30.0, true);
+        let (p, at) = projected_ring(&f, 20.0);
+        assert!(p.separation.0 > 2.0 * p.separation.1, "{:?}", p.separation);
+        // The grid's samples on the projection: on the stripe (the ring nearest 20 px out, at
+        // 30°) and on metal (same ring, at 120°).
         assert!((at(30.0) - 0.75).abs() < 0.1, "{}", at(30.0));
         assert!((at(120.0) - 0.25).abs() < 0.1, "{}", at(120.0));
     }
@@ -433,57 +450,25 @@ mod tests {
     /// brighter than paint.
     #[test]
     fn a_glint_in_the_annulus_does_not_project_like_paint() {
-        let (w, h) = (96u32, 96u32);
-        let (s, c) = 30f64.to_radians().sin_cos();
         let glint = [
             48.0 + 22.0 * 120f64.to_radians().cos(),
             48.0 + 22.0 * 120f64.to_radians().sin(),
         ];
-        let (mut y, mut cb, mut cr) = (Vec::new(), Vec::new(), Vec::new());
-        for j in 0..h {
-            for i in 0..w {
-                let (dx, dy) = (f64::from(i) - 48.0, f64::from(j) - 48.0);
-                let paint = dx * c + dy * s > 0.0 && (-dx * s + dy * c).abs() < 3.0;
-                let lit = (f64::from(i) - glint[0]).hypot(f64::from(j) - glint[1]) < 5.0;
-                // Metal with a mottle in brightness and in colour (±0.02 in Y′, ±3 levels in
-                // Cb and Cr); paint that differs from it in both.
-                let tex = ((i * 7 + j * 13) % 5) as f64 * 0.01;
-                let ct = ((i * 11 + j * 5) % 7) as u8;
-                let (yy, b, r) = if paint {
-                    (0.45, 118, 150)
-                } else if lit {
-                    (0.95, 128, 128)
-                } else {
-                    (0.2 + tex, 125 + ct, 131 - ct)
-                };
-                y.push((yy * 255.0_f64).round() as u8);
-                cb.push(b);
-                cr.push(r);
+        let f = painted(30.0, |i, j, paint| {
+            let lit = (f64::from(i) - glint[0]).hypot(f64::from(j) - glint[1]) < 5.0;
+            // Metal with a mottle in brightness and in colour (±0.02 in Y′, ±3 levels in Cb
+            // and Cr); paint that differs from it in both.
+            let tex = ((i * 7 + j * 13) % 5) as f64 * 0.01;
+            let ct = ((i * 11 + j * 5) % 7) as u8;
+            if paint {
+                (0.45, 118, 150)
+            } else if lit {
+                (0.95, 128, 128)
+            } else {
+                (0.2 + tex, 125 + ct, 131 - ct)
             }
-        }
-        let mut f = Frame::from_u8(0, w, h, y);
-        f.chroma = Some(Chroma {
-            width: w,
-            height: h,
-            cb,
-            cr,
-            siting: ChromaSiting::Centre,
         });
-        let g = grid();
-        let p = ColourProjection::learn(f.view(), &g, [0.0, 0.0]).expect("colour helps");
-        let mut out = vec![0.0; g.rings * g.bins];
-        g.sample(
-            &g.prepare_with(f.view(), [0.0, 0.0], Some(p.weights)),
-            &mut out,
-        );
-        let k = (0..g.rings)
-            .min_by(|&a, &b| {
-                (g.radius[a] - 22.0)
-                    .abs()
-                    .total_cmp(&(g.radius[b] - 22.0).abs())
-            })
-            .unwrap();
-        let at = |deg: f64| out[k * g.bins + (deg / 360.0 * g.bins as f64).round() as usize];
+        let (_, at) = projected_ring(&f, 22.0);
         let (paint, metal, lit) = (at(30.0), at(200.0), at(120.0));
         assert!((paint - 0.75).abs() < 0.1, "paint {paint}");
         assert!((metal - 0.25).abs() < 0.1, "metal {metal}");
