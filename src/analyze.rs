@@ -147,20 +147,7 @@ pub fn analyze_source(
     opts: &AnalyzeOptions,
     progress: &(dyn Fn(u64, u64) + Sync),
 ) -> Result<Analysis> {
-    analyze_impl(source, rig, rig_path, opts, progress, false)
-}
-
-/// As [`analyze_source`], with the rolling-shutter correction of `track::rolling` applied
-/// when the rig gives a readout time: for measuring it on rendered clips only, since it does
-/// not yet beat no correction (docs/accuracy.md, "Rolling shutter").
-#[cfg(test)]
-pub(crate) fn analyze_source_rolling_corrected(
-    source: Box<dyn FrameSource>,
-    rig: &Rig,
-    rig_path: &Path,
-    opts: &AnalyzeOptions,
-) -> Result<Analysis> {
-    analyze_impl(source, rig, rig_path, opts, &|_, _| {}, true)
+    analyze_impl(source, rig, rig_path, opts, progress)
 }
 
 fn analyze_impl(
@@ -169,7 +156,6 @@ fn analyze_impl(
     rig_path: &Path,
     opts: &AnalyzeOptions,
     progress: &(dyn Fn(u64, u64) + Sync),
-    correct_rolling: bool,
 ) -> Result<Analysis> {
     let clip = source.info().clone();
     let mut warnings = clip.warnings.clone();
@@ -222,26 +208,18 @@ fn analyze_impl(
     if flags.synthetic.len() == trace.len() {
         trace.synthetic = flags.synthetic;
     }
-    // A rolling shutter (`track::rolling`): the correction is measured but not applied yet;
-    // without a readout time, a warning when a consumer camera's clip turns fast enough for
-    // the skew to pass the tracking accuracy.
+    // A rolling shutter (`track::rolling`): with the rig's readout time each angle is moved
+    // to its frame's mid-readout instant; without it, a warning when a consumer camera's clip
+    // turns fast enough for the skew to pass the tracking accuracy.
+    let camera_clock = fps_source == FpsSource::Container;
     match rig.rolling_shutter_s() {
-        Some(readout_s) if correct_rolling => {
-            crate::track::rolling::correct(&mut trace, &readout_rows, readout_s);
-        }
-        Some(_) => warnings.push(Warning::Note(
-            "the rig's camera.rolling_shutter_ms is read, but no rolling-shutter correction is \
-             applied yet: on rendered clips the correction measured worse than none \
-             (docs/accuracy.md, \"Rolling shutter\"); each angle is the stripe's at the rows \
-             where it was read, so keep the marks near the picture's middle rows"
-                .into(),
-        )),
+        Some(readout_s) => crate::track::rolling::correct(&mut trace, &readout_rows, readout_s),
         None if rig.camera.and_then(|c| c.rolling_shutter_ms).is_some() => {}
         None => warnings.extend(crate::track::rolling::unknown_readout_warning(
             &trace,
             rig,
             clip.height,
-            fps_source == FpsSource::Container,
+            camera_clock,
         )),
     }
     let (timing, synthetic_warning) = crate::timing::summary(
@@ -258,8 +236,9 @@ fn analyze_impl(
     let mut segmentation = segment::find_blows(&captured);
     warnings.extend(segmentation.warnings.iter().cloned());
     let zero = measured_zero(rig, rig_path, opts, &clip, rest_still, kept, &segmentation)?;
+    let skew = readout_skew(rig, clip.height, camera_clock, captured.time_base.fps_hz());
     let (mut blows, mut summary, mech_warnings) =
-        mechanics::blow_metrics_zeroed(&captured, &segmentation, rig.bar.as_ref(), zero);
+        mechanics::blow_metrics_read(&captured, &segmentation, rig.bar.as_ref(), zero, skew);
     crate::segment::reindex_blows(&mut segmentation.blows, &kept_samples, trace.len());
     warnings.extend(mech_warnings);
     warnings.extend(crate::sanity::check_results(
@@ -312,6 +291,36 @@ fn analyze_impl(
         model,
         warnings,
     })
+}
+
+/// How the clip's rows were read, for the bound on a rolling shutter's skew at each blow's
+/// peak: the rig's readout time over the captured frame interval; with none given, a clip
+/// timed by the camera's own clock (a consumer camera's, which reads its rows in turn) is
+/// bounded by a readout of the whole interval; a readout of 0 (global shutter) or a clip
+/// given its capture rate (a high-speed camera's) has none.
+fn readout_skew(
+    rig: &Rig,
+    height: u32,
+    camera_clock: bool,
+    captured_fps_hz: f64,
+) -> Option<mechanics::ReadoutSkew> {
+    let rho_max = crate::track::rolling::rho_max(rig, height);
+    match (
+        rig.rolling_shutter_s(),
+        rig.camera.and_then(|c| c.rolling_shutter_ms),
+    ) {
+        (Some(t), _) => Some(mechanics::ReadoutSkew {
+            readout_per_interval: (t * captured_fps_hz).min(1.0),
+            rho_max,
+            stated: true,
+        }),
+        (None, None) if camera_clock => Some(mechanics::ReadoutSkew {
+            readout_per_interval: 1.0,
+            rho_max,
+            stated: false,
+        }),
+        _ => None,
+    }
 }
 
 /// The rest still named by `--zero-still`, read before any frame is tracked so that a bad

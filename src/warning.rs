@@ -152,6 +152,21 @@ pub enum Warning {
         /// The blow's onset (clip frame index).
         frame: u64,
     },
+    /// Blows whose peak was read in a frame where the marks turned fast enough for a rolling
+    /// shutter to skew the twist by more than 5 % of the peak; the peaks' intervals include
+    /// the bound (mechanics::blows::skew).
+    PeakReadoutSkew {
+        /// How many blows.
+        blows: usize,
+        /// The worst one's onset (clip frame index).
+        frame: u64,
+        /// Bound on the skew of the twist in its peak's frame, degrees.
+        bound_deg: f64,
+        /// Its peak twist, degrees.
+        peak_deg: f64,
+        /// Whether the readout time was stated in the rig (else bounded by the frame interval).
+        stated: bool,
+    },
     /// The clip's peak torque is the highest of only some blows' peaks: the others' peaks were
     /// not measured (lost marks), and any of them may have been higher.
     PeakTorqueFromSomeBlows {
@@ -323,6 +338,26 @@ impl fmt::Display for Warning {
                 f,
                 "the blow at frame {frame} peaks on frames where a mark was lost, so its peak \
                  twist and torque are null (check the warnings on lost marks)"
+            ),
+            Warning::PeakReadoutSkew {
+                blows,
+                frame,
+                bound_deg,
+                peak_deg,
+                stated,
+            } => write!(
+                f,
+                "{blows} blow(s) peak in a frame read while the marks turned fast: a rolling \
+                 shutter {} could skew the twist there by up to {bound_deg:.2}° (the blow at \
+                 frame {frame}: {:.0} % of its {peak_deg:.2}° peak); the peaks' 95 % intervals \
+                 include that; film at a higher frame rate, keep the marks near the picture's \
+                 middle rows, or use a global-shutter camera",
+                if *stated {
+                    "of the rig's readout time"
+                } else {
+                    "(readout not given, so bounded by the frame interval)"
+                },
+                100.0 * bound_deg / peak_deg.abs().max(f64::MIN_POSITIVE)
             ),
             Warning::BlowPeakBesideGap { frame } => write!(
                 f,

@@ -7,33 +7,31 @@
 //! that ring's crossing row was read: ring k reads `θ_mid + ω·T·ρ_k`, so the stripe shears.
 //! Method, per frame:
 //!
-//! 1. From the tracker's rings (each ring's angle less its own angle in the first frame, at
-//!    rest, with the weights the robust fit gave it) and the row where each ring saw the
-//!    stripe: the weighted mean readout offset ρ̄ (the robust fit's angle is the stripe's
-//!    angle at ρ̄), and the weighted least-squares slope `b_s` of ring angle on ρ, which
-//!    measures ω·T inside the frame, with its variance from the fit's residuals
-//!    (`readout_row`). A stripe lying along the rows gives no lever, and a large variance.
-//! 2. From the neighbouring frames, ω·T again: `b_n`, the mean of the backward and forward
-//!    differences of the measured angles over their read instants, with a variance of the two
-//!    differences' disagreement (which is large at a blow's sudden rise, small in smooth
-//!    motion) plus the angles' own noise.
-//! 3. The two are combined with inverse-variance weights (the minimum-variance unbiased
-//!    combination of two independent estimates), and the frame's angle at mid-readout is
-//!    `θ(ρ̄) − b·ρ̄`. Angles stay relative to the first analysed frame.
+//! 1. From the tracker's rings and the row where each ring saw the stripe, the weighted mean
+//!    readout offset ρ̄ (`readout_row`): the robust fit's angle is the stripe's angle at the
+//!    instant `t + ρ̄·T`. (The slope of the rings' angles on ρ, ω·T seen inside the frame, is
+//!    also measured, but it carries a bias of a few tenths of a degree that does not depend
+//!    on the readout, so the correction does not use it.)
+//! 2. The rate of turn at that instant from the captured neighbours, limited: the backward
+//!    and forward differences of the angles over their read instants, combined by the minmod
+//!    limiter (the smaller of two of one sign, else zero). In smooth motion the two agree
+//!    and this is the rate; beside a step that fell between two frames, at a reversal and at
+//!    the clip's ends it is zero, and the frame keeps its angle, since no frame shows on which
+//!    side of the mid-readout instant such a step fell.
+//! 3. The frame's angle at mid-readout is `θ(ρ̄) − rate·ρ̄·T`. Angles stay relative to the
+//!    first analysed frame.
 //!
-//! Frames flagged synthetic are corrected by their own shear but never serve as neighbours.
-//! Side-view marks are not corrected. Accuracy on rendered clips (docs/accuracy.md, "Rolling
-//! shutter"): worse than no correction so far, so `analyze` does not apply it yet.
+//! Frames flagged synthetic are corrected but never serve as neighbours. Side-view marks are
+//! not corrected. What no correction can mend, a blow's rise shorter than a frame interval
+//! read by a slow readout, is bounded where a blow's peak is read
+//! (`mechanics::blows::skew`). Accuracy on rendered clips: docs/accuracy.md, "Rolling
+//! shutter".
 
 use crate::rig::{Mark, Rig};
 use crate::track::polar::PolarGrid;
 use crate::track::{Trace, unwrap::wrap_pi};
 use crate::units::Angle;
 use crate::warning::Warning;
-
-/// A frame's angle noise assumed for the neighbours' estimate, rad (the tracker's per-frame
-/// accuracy target on compressed clips, 0.2°, docs/accuracy.md).
-const ANGLE_NOISE_RAD: f64 = 0.2 * std::f64::consts::PI / 180.0;
 
 /// Factor on the variance of the rings' shear slope for the rings' errors being correlated
 /// (neighbouring rings are 1 px apart; a bilinear tap spans 2 px, and the centroid windows of
@@ -159,14 +157,13 @@ fn correct_series(
         .filter(|&i| !synthetic[i])
         .filter_map(|i| Some((i, times[i] + row[i]?.rho * readout_s, series[i]?.rad())))
         .collect();
-    let noise = 2.0 * ANGLE_NOISE_RAD * ANGLE_NOISE_RAD;
     let mut out: Vec<Option<Angle>> = series.to_vec();
     for (i, slot) in out.iter_mut().enumerate() {
         let (Some(a), Some(r)) = (series[i], row[i]) else {
             continue;
         };
         let tau = times[i] + r.rho * readout_s;
-        // The neighbours' ω·T: captured frames either side (the frame itself when captured).
+        // The captured frames either side (the frame itself when captured).
         let at = knots.partition_point(|k| k.0 < i);
         let here = knots.get(at).filter(|k| k.0 == i).copied();
         let prev = at.checked_sub(1).and_then(|j| knots.get(j)).copied();
@@ -174,38 +171,21 @@ fn correct_series(
         let me = here.unwrap_or((i, tau, a.rad()));
         let slope = |p: (usize, f64, f64), q: (usize, f64, f64)| {
             let dt = q.1 - p.1;
-            (dt > 0.0).then(|| {
-                (
-                    (q.2 - p.2) / dt * readout_s,
-                    readout_s * readout_s / (dt * dt),
-                )
-            })
+            (dt > 0.0).then(|| wrap_pi(q.2 - p.2) / dt)
         };
-        let back = prev.and_then(|p| slope(p, me));
-        let fwd = next.and_then(|q| slope(me, q));
-        let neighbours = match (back, fwd) {
-            (Some((b1, s1)), Some((b2, s2))) => Some((
-                0.5 * (b1 + b2),
-                0.25 * (b1 - b2).powi(2) + noise * 0.5 * (s1 + s2),
-            )),
-            (Some((b, s)), None) | (None, Some((b, s))) => Some((b, b * b + noise * s)),
-            (None, None) => None,
+        // The rate of turn at the read instant: the limited slope of the two sides. Where
+        // the mark turns smoothly both sides agree and this is the rate; beside a sudden
+        // step, at a reversal or at the clip's ends it is zero, and the frame keeps its
+        // angle (when a step fell between two frames, no frame shows on which side of the
+        // mid-readout instant it fell).
+        let rate = match (
+            prev.and_then(|p| slope(p, me)),
+            next.and_then(|q| slope(me, q)),
+        ) {
+            (Some(b), Some(f)) => minmod(b, f),
+            _ => 0.0,
         };
-        let b = match (r.shear, neighbours) {
-            (Some((bs, vs)), Some((bn, vn))) => {
-                if vs <= 0.0 {
-                    bs
-                } else if vn <= 0.0 {
-                    bn
-                } else {
-                    (bs / vs + bn / vn) / (1.0 / vs + 1.0 / vn)
-                }
-            }
-            (Some((bs, _)), None) => bs,
-            (None, Some((bn, _))) => bn,
-            (None, None) => 0.0,
-        };
-        *slot = Some(Angle::from_rad(a.rad() - b * r.rho));
+        *slot = Some(Angle::from_rad(a.rad() - rate * r.rho * readout_s));
     }
     // Still relative to the first analysed frame.
     if let Some(Some(z)) = out.first().copied() {
@@ -215,6 +195,20 @@ fn correct_series(
         }
     }
     series.copy_from_slice(&out);
+}
+
+/// The minmod slope limiter: of two slopes of one sign, the smaller in magnitude; zero when
+/// their signs differ (Roe, P. L., "Characteristic-based schemes for the Euler equations",
+/// Annual Review of Fluid Mechanics 18, 1986, pp. 337-365; *from memory*). It never makes a
+/// frame overshoot either neighbour.
+fn minmod(a: f64, b: f64) -> f64 {
+    if a * b <= 0.0 {
+        0.0
+    } else if a.abs() < b.abs() {
+        a
+    } else {
+        b
+    }
 }
 
 /// The skew a rolling shutter may put on an angle before the rig must give its readout time:
@@ -243,21 +237,32 @@ pub fn unknown_readout_warning(
         return None;
     }
     let (rate, interval) = fastest_rate(trace)?;
-    let rho = [&rig.marks.drive, &rig.marks.nut]
-        .into_iter()
-        .filter_map(|m| match m {
-            Mark::Radial(r) => Some(r),
-            Mark::Side(_) => None,
-        })
-        .flat_map(|r| [r.pivot[1] - r.radius[1], r.pivot[1] + r.radius[1]])
-        .map(|y| ((y + 0.5) / f64::from(height) - 0.5).abs().min(0.5))
-        .fold(0.0f64, f64::max);
+    let rho = rho_max(rig, height).into_iter().fold(0.0f64, f64::max);
     let step_deg = (rate * interval).to_degrees();
     let skew_deg = step_deg * rho;
     (skew_deg > SKEW_WARN_DEG).then_some(Warning::RollingShutterUnknown {
         max_step_deg: step_deg,
         skew_bound_deg: skew_deg,
     })
+}
+
+/// The largest readout offset |ρ| over the rows each mark is read on (drive, nut) in a frame
+/// `height` rows high: a radial mark's annulus (pivot ± outer radius), a side mark's stretch
+/// of bar (its axis points ± the bar's radius).
+pub fn rho_max(rig: &Rig, height: u32) -> [f64; 2] {
+    let rho = |y: f64| ((y + 0.5) / f64::from(height) - 0.5).abs().min(0.5);
+    let of = |m: &Mark| -> f64 {
+        let rows: Vec<f64> = match m {
+            Mark::Radial(r) => vec![r.pivot[1] - r.radius[1], r.pivot[1] + r.radius[1]],
+            Mark::Side(s) => s
+                .axis
+                .iter()
+                .flat_map(|p| [p[1] - s.radius_px, p[1] + s.radius_px])
+                .collect(),
+        };
+        rows.into_iter().map(rho).fold(0.0, f64::max)
+    };
+    [of(&rig.marks.drive), of(&rig.marks.nut)]
 }
 
 /// The largest rate of turn of a radial mark between neighbouring captured frames, rad/s,
@@ -300,8 +305,9 @@ mod scene_tests;
 mod tests {
     use super::*;
 
-    /// A stripe turning at a steady rate: the neighbours' estimate alone moves each frame's
-    /// angle by ω·T·ρ̄, exactly.
+    /// A stripe turning at a steady rate: the neighbours' rate moves each frame with a
+    /// neighbour on both sides by ω·T·ρ̄, exactly (the ends, with one neighbour, keep their
+    /// angles; angles are relative to the first frame, so interior differences are checked).
     #[test]
     fn steady_turning_is_moved_to_mid_readout() {
         let (t_r, w, rho) = (0.01, 2.0, 0.3);
@@ -313,13 +319,27 @@ mod tests {
             .collect();
         let row = vec![Some(Readout { rho, shear: None }); 6];
         correct_series(&mut series, &row, &times, &[false; 6], t_r);
-        for (t, a) in times.iter().zip(&series) {
-            assert!((a.unwrap().rad() - w * t).abs() < 1e-12, "{t}");
+        let at = |i: usize| series[i].unwrap().rad();
+        for i in 2..5 {
+            let want = w * (times[i] - times[1]);
+            assert!((at(i) - at(1) - want).abs() < 1e-12, "{i}");
         }
+        // The first frame is not moved, so the interior sits ω·T·ρ̄ below its uncorrected
+        // reading relative to it.
+        assert!((at(1) - (w * times[1] - w * rho * t_r)).abs() < 1e-12);
     }
 
-    /// At rest next to a sudden step the neighbours disagree, and the frame's own shear
-    /// (none) decides: the resting frame is not moved.
+    /// minmod: the smaller of two slopes of one sign, zero across a reversal.
+    #[test]
+    fn minmod_limits_and_stops_at_reversals() {
+        assert_eq!(minmod(2.0, 3.0), 2.0);
+        assert_eq!(minmod(-3.0, -2.0), -2.0);
+        assert_eq!(minmod(2.0, -1.0), 0.0);
+        assert_eq!(minmod(0.0, 5.0), 0.0);
+    }
+
+    /// At rest next to a sudden step the neighbours disagree (one slope is zero), and the
+    /// resting frames are not moved.
     #[test]
     fn a_resting_frame_beside_a_step_keeps_its_angle() {
         let times: Vec<f64> = (0..4).map(|i| f64::from(i) * 0.016).collect();
@@ -330,11 +350,16 @@ mod tests {
         let row = vec![
             Some(Readout {
                 rho: -0.3,
-                shear: Some((0.0, 1e-6)),
+                shear: None,
             });
             4
         ];
         correct_series(&mut series, &row, &times, &[false; 4], 0.01);
-        assert!(series[1].unwrap().rad().abs() < 1e-3, "{:?}", series[1]);
+        assert!(series[1].unwrap().rad().abs() < 1e-12, "{:?}", series[1]);
+        assert!(
+            (series[2].unwrap().rad() - 0.5).abs() < 1e-12,
+            "{:?}",
+            series[2]
+        );
     }
 }

@@ -35,6 +35,7 @@
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
 
 mod peak;
+mod skew;
 
 use crate::mechanics::holding::{HoldingInputs, HoldingTorque, Slip, find_slip, holding_torque};
 use crate::mechanics::sense::set_at_rest_warning;
@@ -49,7 +50,11 @@ use crate::track::Trace;
 use crate::units::{Angle, Stiffness, Torque};
 use crate::warning::Warning;
 
-use peak::{peak_beside_gap, peak_intervals, peak_on_lost, peak_twist_deg, savitzky_golay};
+use peak::{
+    highest_sample, peak_beside_gap, peak_intervals, peak_on_lost, peak_twist_deg, savitzky_golay,
+};
+pub use skew::ReadoutSkew;
+use skew::SKEW_WARN_FRACTION;
 
 /// Smallest per-blow nut advance that counts as the nut still turning, degrees: the
 /// project's accuracy target for a per-blow nut advance, so anything smaller
@@ -194,6 +199,20 @@ pub fn blow_metrics_zeroed(
     bar: Option<&BarSpec>,
     zero: Option<TwistZero>,
 ) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
+    blow_metrics_read(trace, seg, bar, zero, None)
+}
+
+/// As [`blow_metrics_zeroed`], for a clip whose rows were read by a rolling shutter
+/// (`skew`): each blow's peak intervals are widened by the bound on the skew of the frame
+/// its peak was read in, with a warning where that bound passes 5 % of the peak
+/// (mechanics::blows::skew).
+pub fn blow_metrics_read(
+    trace: &Trace,
+    seg: &Segmentation,
+    bar: Option<&BarSpec>,
+    zero: Option<TwistZero>,
+    skew: Option<ReadoutSkew>,
+) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
     let mut warnings = Vec::new();
     if bar.is_none() {
         warnings.push(Warning::NoBar);
@@ -256,6 +275,9 @@ pub fn blow_metrics_zeroed(
     let mut out = Vec::with_capacity(blows.len());
     let mut slips: Vec<(usize, Slip)> = Vec::new();
     let slip_tol_deg = (3.0 * nut_sigma_deg).max(NUT_STOP_MIN_DEG / 4.0);
+    // Blows whose peak a rolling shutter could skew past SKEW_WARN_FRACTION: (onset frame,
+    // bound, peak), degrees.
+    let mut skewed: Vec<(u64, f64, f64)> = Vec::new();
     for (k, b) in blows.iter().enumerate() {
         let before = b.onset.saturating_sub(1);
         let last = b.end - 1;
@@ -301,11 +323,22 @@ pub fn blow_metrics_zeroed(
         let peak_under_read = rise_frames
             .filter(|&r| r < UNDERSAMPLED_RISE_FRAMES)
             .map(under_read_bound);
+        // A rolling shutter's skew on the frame the peak was read in: a bound, added to
+        // the interval's ends.
+        let skew_deg = skew
+            .zip(peak_twist)
+            .and_then(|(s, _)| s.bound_deg(&drive, &nut, highest_sample(&twist, b.onset, b.end)?))
+            .unwrap_or(0.0);
+        if let Some(p) = peak_twist
+            && skew_deg > SKEW_WARN_FRACTION * p.deg().abs()
+        {
+            skewed.push((onset_frame, skew_deg, p.deg()));
+        }
         let (peak_twist_ci95, peak_torque_ci95) = peak_intervals(
             peak_twist,
             twist_sigma_deg,
             zero.offset_sigma.deg(),
-            peak_under_read.unwrap_or(0.0),
+            (peak_under_read.unwrap_or(0.0), skew_deg),
             stiffness.zip(k_rel_sigma),
         );
         let drive_start = b
@@ -356,6 +389,21 @@ pub fn blow_metrics_zeroed(
             rise_frames,
             peak_under_read,
             unwind: BlowUnwind::default(),
+        });
+    }
+    // One warning for every blow whose peak a rolling shutter could skew, naming the worst
+    // (the largest bound against its peak).
+    if let Some(s) = skew
+        && let Some(&(frame, bound_deg, peak_deg)) = skewed
+            .iter()
+            .max_by(|a, b| (a.1 / a.2.abs()).total_cmp(&(b.1 / b.2.abs())))
+    {
+        warnings.push(Warning::PeakReadoutSkew {
+            blows: skewed.len(),
+            frame,
+            bound_deg,
+            peak_deg,
+            stated: s.stated,
         });
     }
 

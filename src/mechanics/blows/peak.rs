@@ -12,30 +12,33 @@ pub(super) type PeakIntervals = (Option<(Angle, Angle)>, Option<(Torque, Torque)
 /// 95 % intervals of a peak twist and its torque: ±1.96σ from one sample's twist noise and
 /// the zero's uncertainty (and, for the torque, the stiffness's relative uncertainty), with
 /// the upper end raised by the under-read fraction of the peak (a sampled peak can only read
-/// low). Independent terms add in quadrature (JCGM 100:2008, §5.1.2).
+/// low) and both ends moved out by a rolling shutter's skew bound in degrees (a bound, not a
+/// standard deviation, so added in full: `bounds` = (under-read fraction, skew degrees)).
+/// Independent standard uncertainties add in quadrature (JCGM 100:2008, §5.1.2).
 pub(super) fn peak_intervals(
     peak: Option<Angle>,
     twist_sigma_deg: f64,
     zero_sigma_deg: f64,
-    under_read: f64,
+    bounds: (f64, f64),
     stiffness: Option<(Stiffness, f64)>,
 ) -> PeakIntervals {
+    let (under_read, skew_deg) = (bounds.0, bounds.1.max(0.0));
     let Some(p) = peak.map(Angle::deg).filter(|p| p.is_finite()) else {
         return (None, None);
     };
     let s_tw = twist_sigma_deg.hypot(zero_sigma_deg);
     let up = under_read.max(0.0) * p.abs();
     let tw = (
-        Angle::from_deg(p - 1.96 * s_tw),
-        Angle::from_deg(p + 1.96 * s_tw + up),
+        Angle::from_deg(p - 1.96 * s_tw - skew_deg),
+        Angle::from_deg(p + 1.96 * s_tw + up + skew_deg),
     );
     let tq = stiffness.map(|(k, rel)| {
         let kd = k.nm_per_deg();
         let t = kd * p;
         let s = (kd * s_tw).hypot(t.abs() * rel);
         (
-            Torque::from_nm(t - 1.96 * s),
-            Torque::from_nm(t + 1.96 * s + kd * up),
+            Torque::from_nm(t - 1.96 * s - kd * skew_deg),
+            Torque::from_nm(t + 1.96 * s + kd * (up + skew_deg)),
         )
     });
     (Some(tw), tq)
@@ -110,7 +113,7 @@ pub(super) fn peak_beside_gap(trace: &Trace, twist: &[Option<f64>], a: usize, b:
 }
 
 /// Index of the highest measured twist within `a..b` (None when none is measured).
-fn highest_sample(twist: &[Option<f64>], a: usize, b: usize) -> Option<usize> {
+pub(super) fn highest_sample(twist: &[Option<f64>], a: usize, b: usize) -> Option<usize> {
     (a..b)
         .filter_map(|i| Some((i, twist[i]?)))
         .max_by(|x, y| x.1.total_cmp(&y.1))
