@@ -212,6 +212,7 @@ fn analyze_impl(
     // to its frame's mid-readout instant; without it, a warning when a consumer camera's clip
     // turns fast enough for the skew to pass the tracking accuracy.
     let camera_clock = fps_source == FpsSource::Container;
+    let readout_estimate = crate::track::rolling::estimate_readout(&trace, &readout_rows);
     match rig.rolling_shutter_s() {
         Some(readout_s) => crate::track::rolling::correct(&mut trace, &readout_rows, readout_s),
         None if rig.camera.and_then(|c| c.rolling_shutter_ms).is_some() => {}
@@ -222,13 +223,26 @@ fn analyze_impl(
             camera_clock,
         )),
     }
-    let (timing, synthetic_warning) = crate::timing::summary(
+    let (mut timing, synthetic_warning) = crate::timing::summary(
         timing_source,
         evenness,
         &trace,
         flags.duplicated,
         flags.interpolated,
     );
+    timing.rolling_shutter_estimate_s = readout_estimate;
+    if let Some((t, (lo, hi))) = readout_estimate.filter(|_| camera_clock && rig.camera.is_none()) {
+        warnings.push(Warning::Note(format!(
+            "the stripes shear as a rolling shutter reading its rows over about {:.1} ms would \
+             make them (95 %: {:.1} to {:.1} ms); if the camera has one (phones do), give it as \
+             \"camera\": {{\"rolling_shutter_ms\": {:.1}}} in the rig (or the camera maker's \
+             figure) so that the angles are read at each frame's mid-readout time",
+            1e3 * t,
+            1e3 * lo,
+            1e3 * hi,
+            1e3 * t
+        )));
+    }
     warnings.extend(synthetic_warning);
     // Onsets, peaks and every time come from the captured frames only; the blows found on
     // them are then indexed into the whole trace for the report.

@@ -63,6 +63,9 @@ pub struct Timing {
     /// The rate at which frames were really captured, when repeated or synthesised frames
     /// pass [`SYNTHETIC_SHARE_WARN`] of the clip: the nominal rate × the captured share, Hz.
     pub captured_fps_estimate_hz: Option<f64>,
+    /// A rolling shutter's readout time estimated from the clip and its 95 % interval, s
+    /// (`track::rolling::estimate_readout`; None when the clip does not show it).
+    pub rolling_shutter_estimate_s: Option<(f64, (f64, f64))>,
 }
 
 /// Chooses the clock ([`TimingChoice`]).
@@ -181,6 +184,7 @@ pub fn summary(
             median_interval_s: even.map(|e| e.median_interval_s),
             worst_interval_s: even.map(|e| e.worst_interval_s),
             captured_fps_estimate_hz: estimate,
+            rolling_shutter_estimate_s: None,
         },
         warning,
     )

@@ -83,6 +83,15 @@ pub fn run(a: FindMarksArgs) -> Result<ExitCode> {
             p.display()
         );
     }
+    if let Some((t, (lo, hi))) = found.readout_estimate_s {
+        println!(
+            "suggestion: the stripes shear as a rolling shutter reading its rows over about {:.1} ms would make them (95 %: {:.1} to {:.1} ms); if the camera has one (phones do), add \"camera\": {{\"rolling_shutter_ms\": {:.1}}} to the rig, or the camera maker's figure where known",
+            1e3 * t,
+            1e3 * lo,
+            1e3 * hi,
+            1e3 * t
+        );
+    }
     if found.rig.capture_fps_hz.is_none() {
         println!(
             "to do: the capture rate is not in the rig; pass --fps HZ to analyze or add \"capture_fps_hz\""

@@ -53,6 +53,7 @@ mod luma;
 mod outputs;
 mod pivot;
 mod preview;
+mod readout;
 mod ridge;
 mod roles;
 mod stripes;
@@ -143,6 +144,10 @@ pub struct FoundMarks {
     pub first: Frame,
     /// Frames read.
     pub frames_read: u64,
+    /// A rolling shutter's readout time suggested by the stripes' shear and its 95 %
+    /// interval, s (`readout.rs`): for a clip timed by the camera's own clock (no capture rate
+    /// given) that shows one; None otherwise.
+    pub readout_estimate_s: Option<(f64, (f64, f64))>,
 }
 
 /// Finds the marks in the clip at `clip` and drafts a rig.
@@ -152,6 +157,7 @@ pub struct FoundMarks {
 /// role when fewer than two turning stripes are found (the drive and nut ends cannot be drafted).
 pub fn find_marks(clip: &Path, opts: &FindMarksOptions) -> Result<FoundMarks> {
     let mut source = decode::open(clip)?;
+    let camera_fps = source.info().container_fps_hz.filter(|_| opts.fps_hz.is_none());
     let mut frame = Frame::empty();
     if !source.read_into(&mut frame)? {
         return Err(Error::input(clip, "the clip has no frames"));
@@ -165,7 +171,24 @@ pub fn find_marks(clip: &Path, opts: &FindMarksOptions) -> Result<FoundMarks> {
         count += 1;
         Ok(Some(frame.clone()))
     };
-    find_stream(clip, first, next, opts)
+    let mut found = find_stream(clip, first, next, opts)?;
+    // A clip timed by the camera's clock (a phone's): the same frames again, tracked with the
+    // draft, for the readout its stripes' shear shows.
+    if let Some(fps) = camera_fps {
+        let mut source = decode::open(clip)?;
+        let size = (found.first.width, found.first.height);
+        let frames = std::iter::from_fn(move || {
+            let mut f = Frame::empty();
+            match source.read_into(&mut f) {
+                Ok(true) => Some(Ok(f)),
+                Ok(false) => None,
+                Err(e) => Some(Err(e)),
+            }
+        })
+        .take(found.frames_read as usize);
+        found.readout_estimate_s = readout::suggest(&found.rig, frames, fps, size)?;
+    }
+    Ok(found)
 }
 
 /// As [`find_marks`], on frames already in memory (first frame first).
@@ -456,5 +479,6 @@ fn find_stream(
         warnings,
         first: first.clone(),
         frames_read: n as u64,
+        readout_estimate_s: None,
     })
 }

@@ -289,6 +289,13 @@ pub struct TimingJson {
     /// The rate at which the frames were really captured, when many were not, Hz.
     #[serde(default)]
     pub captured_fps_estimate_hz: Option<f64>,
+    /// A rolling shutter's readout time the stripes' shear shows, ms (null when the clip does
+    /// not show one).
+    #[serde(default)]
+    pub rolling_shutter_estimate_ms: Option<f64>,
+    /// Its 95 % interval, ms.
+    #[serde(default)]
+    pub rolling_shutter_estimate_ci95_ms: Option<[f64; 2]>,
 }
 
 impl Default for TimingJson {
@@ -300,6 +307,8 @@ impl Default for TimingJson {
             median_interval_ms: None,
             worst_interval_ms: None,
             captured_fps_estimate_hz: None,
+            rolling_shutter_estimate_ms: None,
+            rolling_shutter_estimate_ci95_ms: None,
         }
     }
 }
@@ -487,6 +496,14 @@ pub fn report(a: &Analysis) -> Report {
             median_interval_ms: finite(a.timing.median_interval_s.map(|t| t * 1e3)),
             worst_interval_ms: finite(a.timing.worst_interval_s.map(|t| t * 1e3)),
             captured_fps_estimate_hz: finite(a.timing.captured_fps_estimate_hz),
+            rolling_shutter_estimate_ms: finite(
+                a.timing.rolling_shutter_estimate_s.map(|(t, _)| t * 1e3),
+            ),
+            rolling_shutter_estimate_ci95_ms: a
+                .timing
+                .rolling_shutter_estimate_s
+                .map(|(_, (lo, hi))| [lo * 1e3, hi * 1e3])
+                .filter(|v| v.iter().all(|x| x.is_finite())),
         },
     };
     Report {

@@ -254,6 +254,7 @@ pub(crate) mod tests {
             median_interval_s: None,
             worst_interval_s: None,
             captured_fps_estimate_hz: None,
+            rolling_shutter_estimate_s: None,
         }
     }
 

@@ -43,8 +43,8 @@ const RING_CORRELATION: f64 = 4.0;
 pub struct Readout {
     /// Weighted mean readout offset ρ̄ of the rows where the rings saw the stripe.
     pub rho: f64,
-    /// The slope of the rings' angles on ρ, rad per unit of ρ (ω·T), and its variance; None
-    /// when the rings give no lever.
+    /// The slope of the rings' angles on ρ, rad per unit of ρ (ω·T plus a bias of its own),
+    /// and its variance; None when the rings give no lever.
     pub shear: Option<(f64, f64)>,
 }
 
@@ -125,7 +125,7 @@ pub(crate) fn readout_row(
             let v = RING_CORRELATION * scale / s_rr;
             (b, v)
         })
-        .filter(|&(b, v)| b * b > 9.0 * v);
+        .filter(|&(b, v)| b.is_finite() && v.is_finite() && v > 0.0);
     Some(Readout { rho, shear })
 }
 
@@ -209,6 +209,91 @@ fn minmod(a: f64, b: f64) -> f64 {
     } else {
         b
     }
+}
+
+/// Frames whose two neighbouring rates differ by more than this share of the larger are not
+/// steady enough to measure the readout on (a blow's rise, a reversal).
+const STEADY_SHARE: f64 = 0.3;
+
+/// Most frames the readout estimate uses (evenly thinned beyond), which bounds its pairwise
+/// slopes to about 80,000.
+const ESTIMATE_MAX_FRAMES: usize = 400;
+
+/// An estimate of the readout time T from the clip itself, s, with its 95 % interval: in
+/// every captured frame where a radial mark turns steadily (its backward and forward rates
+/// agree within [`STEADY_SHARE`]), the stripe's shear across the rings is `ω·T + c`, where
+/// c is the shear's own bias (the stripe's edges and the pixel grid, which do not depend on
+/// the readout). T is the Theil–Sen slope of shear on rate over those frames (the median of
+/// the slopes between every pair), with the distribution-free 95 % interval of Sen (P. K. Sen,
+/// "Estimates of the regression coefficient based on Kendall's tau", Journal of the American
+/// Statistical Association 63, 1968, pp. 1379-1389, §3: the slopes ranked
+/// (N ∓ C)/2, C = 1.96·√(n(n−1)(2n+5)/18), N pairs). A median of slopes is used because
+/// frames read in a fast turn shear more than ω·T (the stripe bends), and a least-squares
+/// line follows the few such frames. Capped at the captured frame interval. None with fewer
+/// than eight such frames, or when the interval reaches zero (the clip does not show the
+/// readout) or lies wholly beyond a frame interval.
+pub fn estimate_readout(trace: &Trace, rows: &ReadoutRows) -> Option<(f64, (f64, f64))> {
+    let mut pts: Vec<(f64, f64)> = Vec::new();
+    for (series, row) in [(&trace.drive, &rows.drive), (&trace.nut, &rows.nut)] {
+        if row.len() != series.len() {
+            continue;
+        }
+        let knots: Vec<(usize, f64, f64)> = (0..series.len())
+            .filter(|&i| !trace.is_synthetic(i))
+            .filter_map(|i| Some((i, trace.t_s(i), series[i]?.rad())))
+            .collect();
+        for w in knots.windows(3) {
+            let (p, me, q) = (w[0], w[1], w[2]);
+            let (Some(r), true) = (row[me.0], me.0 == p.0 + 1 && q.0 == me.0 + 1) else {
+                continue;
+            };
+            let Some((b, _)) = r.shear else { continue };
+            let (dt0, dt1) = (me.1 - p.1, q.1 - me.1);
+            if dt0 <= 0.0 || dt1 <= 0.0 {
+                continue;
+            }
+            let (r0, r1) = (wrap_pi(me.2 - p.2) / dt0, wrap_pi(q.2 - me.2) / dt1);
+            if (r0 - r1).abs() > STEADY_SHARE * r0.abs().max(r1.abs()) {
+                continue;
+            }
+            pts.push((0.5 * (r0 + r1), b));
+        }
+    }
+    if pts.len() < 8 {
+        return None;
+    }
+    let stride = pts.len().div_ceil(ESTIMATE_MAX_FRAMES);
+    let pts: Vec<(f64, f64)> = pts.into_iter().step_by(stride).collect();
+    let mut slopes: Vec<f64> = Vec::with_capacity(pts.len() * (pts.len() - 1) / 2);
+    for (k, p) in pts.iter().enumerate() {
+        for q in &pts[k + 1..] {
+            let dx = q.0 - p.0;
+            if dx != 0.0 {
+                slopes.push((q.1 - p.1) / dx);
+            }
+        }
+    }
+    let n_pairs = slopes.len();
+    if n_pairs < 8 {
+        return None;
+    }
+    slopes.sort_by(f64::total_cmp);
+    let t = crate::stats::median(&slopes)?;
+    let n = pts.len() as f64;
+    let c = 1.96 * (n * (n - 1.0) * (2.0 * n + 5.0) / 18.0).sqrt();
+    let rank = |x: f64| (x.round().max(1.0) as usize).min(n_pairs) - 1;
+    let lo = slopes[rank((n_pairs as f64 - c) / 2.0)];
+    let hi = slopes[rank((n_pairs as f64 + c) / 2.0 + 1.0)];
+    // A sensor reads one frame out before it starts the next (*common practice*): T is at
+    // most the captured frame interval, so the estimate and its interval are capped there,
+    // and an interval wholly beyond it is no estimate.
+    let gaps: Vec<f64> = (1..trace.len())
+        .filter(|&i| !trace.is_synthetic(i) && !trace.is_synthetic(i - 1))
+        .map(|i| trace.t_s(i) - trace.t_s(i - 1))
+        .collect();
+    let frame_s = crate::stats::median(&gaps).unwrap_or(f64::INFINITY);
+    (lo > 0.0 && lo <= frame_s && t.is_finite())
+        .then_some((t.min(frame_s), (lo, hi.min(frame_s))))
 }
 
 /// The skew a rolling shutter may put on an angle before the rig must give its readout time:

@@ -48,6 +48,8 @@ struct Errors {
     peak: Option<f64>,
     /// Blows whose peak-torque interval holds the truth, of the blows.
     held: (usize, usize),
+    /// The readout estimated from the clip and its 95 % interval, s.
+    estimate: Option<(f64, (f64, f64))>,
 }
 
 fn errors(sc: &Scenario, truth: &Truth, frames: Vec<Frame>, rig_ms: Option<f64>) -> Errors {
@@ -89,6 +91,7 @@ fn errors(sc: &Scenario, truth: &Truth, frames: Vec<Frame>, rig_ms: Option<f64>)
         nut: one(&a.trace.nut, &truth.trace.nut_deg),
         peak,
         held: (held, truth.blows.len()),
+        estimate: a.timing.rolling_shutter_estimate_s,
     }
 }
 
@@ -238,5 +241,95 @@ fn rolling_shutter_figures() {
                 );
             }
         }
+    }
+}
+
+/// Figures: the readout estimated from the clip (`estimate_readout`) against the readout the
+/// clip was rendered with.
+#[test]
+#[ignore = "prints figures; run with --ignored --nocapture"]
+fn readout_estimate_figures() {
+    for (layout, place) in [
+        ("middle", (|sc| sc) as fn(Scenario) -> Scenario),
+        ("off-centre", off_centre),
+    ] {
+        for fps in [60.0, 100.0, 240.0, 480.0] {
+            for ms in [0.0, 2.0, 4.0, 10.0, 16.0] {
+                if ms * 1e-3 > 1.0 / fps {
+                    continue;
+                }
+                let sc = place(rolling_scene(fps));
+                let truth = simulate(&sc);
+                let frames = rolling_frames(&sc, &truth, ms * 1e-3);
+                let rig = sc.rig();
+                let a = crate::analyze::analyze_source(
+                    Box::new(MemorySource::new(frames, Some(fps))),
+                    &rig,
+                    std::path::Path::new("rig.json"),
+                    &AnalyzeOptions::default(),
+                    &|_, _| {},
+                )
+                .unwrap();
+                println!("| {layout} | {fps} | {ms} | {:?} |", a.timing.rolling_shutter_estimate_s.map(|(t, (lo, hi))| (1e3 * t, 1e3 * lo, 1e3 * hi)));
+            }
+        }
+    }
+}
+
+/// The held-out rolling-shutter scenes (`tests/held_out_rolling_seeds.txt`, drawn by
+/// `random_rolling_scene`): per scene, per-frame RMS without and with the rig's readout,
+/// peak-torque intervals that hold the truth, and the readout estimated from the clip
+/// (rendered clips with known truth: checks against the renderer, not the world).
+#[test]
+#[ignore = "renders 12 held-out scenes; run in release with --ignored --nocapture (docs/accuracy.md)"]
+fn held_out_rolling_table() {
+    use crate::synth::rolling::random_rolling_scene;
+    let list = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/held_out_rolling_seeds.txt"
+    ))
+    .unwrap();
+    let seeds: Vec<u64> = list
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.trim().is_empty())
+        .map(|l| l.trim().parse().unwrap())
+        .collect();
+    println!(
+        "| seed | fps | readout ms | rows | drive / nut ρ | RMS without, ° | RMS with, ° | worst peak error with | intervals hold with | readout estimate, ms (95 %) |"
+    );
+    println!("|---|---|---|---|---|---|---|---|---|---|");
+    for seed in seeds {
+        let r = random_rolling_scene(seed);
+        let sc = &r.scenario;
+        let truth = simulate(sc);
+        let frames = rolling_frames(sc, &truth, r.readout_s);
+        let ms = 1e3 * r.readout_s;
+        let with = errors(sc, &truth, frames.clone(), Some(ms));
+        let without = errors(sc, &truth, frames, None);
+        let rho = |y: f64| (y + 0.5) / f64::from(sc.scene.height) - 0.5;
+        let lost = |(r, l): (f64, usize)| {
+            if l > 0 {
+                format!("{r:.3} ({l} lost)")
+            } else {
+                format!("{r:.3}")
+            }
+        };
+        let est = with.estimate.map_or("none".to_string(), |(t, (lo, hi))| {
+            format!("{:.2} ({:.2}–{:.2})", 1e3 * t, 1e3 * lo, 1e3 * hi)
+        });
+        println!(
+            "| {seed} | {} | {ms:.2} | {} | {:+.2} / {:+.2} | {} / {} | {} / {} | {} | {} of {} | {est} |",
+            sc.camera.fps_hz,
+            sc.scene.height,
+            rho(sc.scene.drive.pivot[1]),
+            rho(sc.scene.nut.pivot[1]),
+            lost(without.drive),
+            lost(without.nut),
+            lost(with.drive),
+            lost(with.nut),
+            with.peak.map_or("–".to_string(), |p| format!("{:.1} %", 100.0 * p)),
+            with.held.0,
+            with.held.1,
+        );
     }
 }

@@ -179,3 +179,50 @@ fn a_slow_motion_clip_with_jittered_timestamps_in_the_file_analyses() {
     }
     check_blows(&report, &truth, "slow motion");
 }
+
+/// The number after `key` in `text` (up to the next space), parsed.
+fn number_after(text: &str, key: &str) -> f64 {
+    let at = text.find(key).unwrap_or_else(|| panic!("no {key:?} in {text}")) + key.len();
+    let tail = &text[at..];
+    let end = tail.find(' ').unwrap_or(tail.len());
+    tail[..end].parse().unwrap_or_else(|e| panic!("{key:?}: {e} in {text}"))
+}
+
+/// A 240 fps clip read by a 4 ms rolling shutter and timed by the camera's clock (no capture
+/// rate given), through the binary: `find-marks` suggests a readout whose 95 % interval holds
+/// the 4 ms the clip was rendered with, and `analyze` with the drafted rig reports an
+/// estimate in `summary.timing` whose interval holds it too (rendered clip with known truth:
+/// a check against the renderer, not the world).
+#[test]
+fn find_marks_suggests_the_readout_a_rolling_shutter_clip_shows() {
+    use twistmark_scenes::synth::rolling::rolling_frames;
+    let sc = phone_scene();
+    let truth = simulate(&sc);
+    let frames = rolling_frames(&sc, &truth, 0.004);
+    let dir = tempfile::tempdir().unwrap();
+    let clip = dir.path().join("rolling.mkv");
+    let (w, h) = (sc.scene.width, sc.scene.height);
+    let mut wr = ClipWriter::create(&clip, Codec::Ffv1, w, h, 240.0).unwrap();
+    for f in &frames {
+        wr.write(f).unwrap();
+    }
+    wr.finish().unwrap();
+    let rig = dir.path().join("draft.json");
+    let o = run([
+        "find-marks".as_ref(),
+        clip.as_os_str(),
+        "--out".as_ref(),
+        rig.as_os_str(),
+    ]);
+    assert_eq!(o.code, 0, "{}{}", o.stdout, o.stderr);
+    let lo = number_after(&o.stdout, "(95 %: ");
+    let hi = number_after(&o.stdout, &format!("(95 %: {lo:.1} to "));
+    assert!(lo <= 4.0 && 4.0 <= hi, "{}", o.stdout);
+    let mut drafted: twistmark::Rig =
+        serde_json::from_str(&std::fs::read_to_string(&rig).unwrap()).unwrap();
+    drafted.bar = sc.rig().bar;
+    let report = analyse(&clip, &drafted, dir.path());
+    let ci = &report["summary"]["timing"]["rolling_shutter_estimate_ci95_ms"];
+    let (lo, hi) = (ci[0].as_f64().unwrap(), ci[1].as_f64().unwrap());
+    assert!(lo <= 4.0 && 4.0 <= hi, "{ci}");
+}
