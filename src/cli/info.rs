@@ -1,4 +1,5 @@
-//! `twistmark info CLIP [--json]`: frame count, size, container rate, codec and duration.
+//! `twistmark info CLIP [--json]`: frame count, size, container rate, codec, duration and the
+//! display rotation.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -28,6 +29,7 @@ pub fn run(a: InfoArgs) -> Result<ExitCode> {
             "codec": info.codec,
             "bit_depth": info.bit_depth,
             "duration_s": info.duration_s,
+            "display_rotation_deg": info.display_rotation_deg,
             "kind": format!("{:?}", info.kind).to_lowercase(),
             "warnings": info.warnings.iter().map(|w| w.to_string()).collect::<Vec<_>>(),
         });
@@ -50,6 +52,16 @@ pub fn run(a: InfoArgs) -> Result<ExitCode> {
         println!("codec:          {}", info.codec);
         if let Some(d) = info.duration_s {
             println!("duration:       {d:.3} s at the container rate");
+        }
+        if info.display_rotation_deg != 0 {
+            println!(
+                "rotation:       {}° clockwise on display (stored turned, as phones store portrait \
+                 video); frames are read as a player shows them, so the size above and every \
+                 rig coordinate are the displayed picture's",
+                info.display_rotation_deg
+            );
+        } else {
+            println!("rotation:       none");
         }
         super::print_warnings(&info.warnings);
     }

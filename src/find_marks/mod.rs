@@ -157,7 +157,10 @@ pub struct FoundMarks {
 /// role when fewer than two turning stripes are found (the drive and nut ends cannot be drafted).
 pub fn find_marks(clip: &Path, opts: &FindMarksOptions) -> Result<FoundMarks> {
     let mut source = decode::open(clip)?;
-    let camera_fps = source.info().container_fps_hz.filter(|_| opts.fps_hz.is_none());
+    let camera_fps = source
+        .info()
+        .container_fps_hz
+        .filter(|_| opts.fps_hz.is_none());
     let mut frame = Frame::empty();
     if !source.read_into(&mut frame)? {
         return Err(Error::input(clip, "the clip has no frames"));

@@ -292,8 +292,7 @@ pub fn estimate_readout(trace: &Trace, rows: &ReadoutRows) -> Option<(f64, (f64,
         .map(|i| trace.t_s(i) - trace.t_s(i - 1))
         .collect();
     let frame_s = crate::stats::median(&gaps).unwrap_or(f64::INFINITY);
-    (lo > 0.0 && lo <= frame_s && t.is_finite())
-        .then_some((t.min(frame_s), (lo, hi.min(frame_s))))
+    (lo > 0.0 && lo <= frame_s && t.is_finite()).then_some((t.min(frame_s), (lo, hi.min(frame_s))))
 }
 
 /// The skew a rolling shutter may put on an angle before the rig must give its readout time:

@@ -270,7 +270,14 @@ fn readout_estimate_figures() {
                     &|_, _| {},
                 )
                 .unwrap();
-                println!("| {layout} | {fps} | {ms} | {:?} |", a.timing.rolling_shutter_estimate_s.map(|(t, (lo, hi))| (1e3 * t, 1e3 * lo, 1e3 * hi)));
+                println!(
+                    "| {layout} | {fps} | {ms} | {:?} |",
+                    a.timing.rolling_shutter_estimate_s.map(|(t, (lo, hi))| (
+                        1e3 * t,
+                        1e3 * lo,
+                        1e3 * hi
+                    ))
+                );
             }
         }
     }
@@ -327,7 +334,8 @@ fn held_out_rolling_table() {
             lost(without.nut),
             lost(with.drive),
             lost(with.nut),
-            with.peak.map_or("–".to_string(), |p| format!("{:.1} %", 100.0 * p)),
+            with.peak
+                .map_or("–".to_string(), |p| format!("{:.1} %", 100.0 * p)),
             with.held.0,
             with.held.1,
         );

@@ -205,3 +205,41 @@ pub struct Scene {
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub look: Option<Look>,
 }
+
+impl Scene {
+    /// The same scene `f` times larger: the frame, every position and every size (a phone's
+    /// 1080p picture of the bench, for instance); angles, finishes and paint unchanged. The
+    /// frame's size is rounded to whole pixels. Textured benches and looks keep their own
+    /// scale.
+    pub fn scaled(&self, f: f64) -> Scene {
+        assert!(f.is_finite() && f > 0.0, "scale {f}");
+        let p = |q: [f64; 2]| [q[0] * f, q[1] * f];
+        let stripe = |s: &Stripe| Stripe {
+            r_inner_px: s.r_inner_px * f,
+            r_outer_px: s.r_outer_px * f,
+            width_px: s.width_px * f,
+            start_deg: s.start_deg,
+        };
+        let mut out = self.clone();
+        out.width = (f64::from(self.width) * f).round() as u32;
+        out.height = (f64::from(self.height) * f).round() as u32;
+        out.drive.pivot = p(self.drive.pivot);
+        out.drive.radius_px *= f;
+        out.drive.stripe = stripe(&self.drive.stripe);
+        out.drive.highlight = self.drive.highlight.map(|h| Highlight {
+            offset_px: p(h.offset_px),
+            sigma_px: h.sigma_px * f,
+            peak: h.peak,
+        });
+        out.nut.pivot = p(self.nut.pivot);
+        out.nut.across_flats_px *= f;
+        out.nut.stud_radius_px *= f;
+        out.nut.stripe = stripe(&self.nut.stripe);
+        out.fixed = self.fixed.map(|m| FixedMark {
+            pivot: p(m.pivot),
+            stripe: stripe(&m.stripe),
+            plate_half_px: p(m.plate_half_px),
+        });
+        out
+    }
+}
