@@ -9,16 +9,18 @@
 //!
 //! 1. From the tracker's rings and the row where each ring saw the stripe, the weighted mean
 //!    readout offset ρ̄ (`readout_row`): the robust fit's angle is the stripe's angle at the
-//!    instant `t + ρ̄·T`. (The slope of the rings' angles on ρ, ω·T seen inside the frame, is
-//!    also measured, but it carries a bias of a few tenths of a degree that does not depend
-//!    on the readout, so the correction does not use it.)
-//! 2. The rate of turn at that instant from the captured neighbours, limited: the backward
-//!    and forward differences of the angles over their read instants, combined by the minmod
-//!    limiter (the smaller of two of one sign, else zero). In smooth motion the two agree
-//!    and this is the rate; beside a step that fell between two frames, at a reversal and at
-//!    the clip's ends it is zero, and the frame keeps its angle, since no frame shows on which
-//!    side of the mid-readout instant such a step fell.
-//! 3. The frame's angle at mid-readout is `θ(ρ̄) − rate·ρ̄·T`. Angles stay relative to the
+//!    instant `t + ρ̄·T`; and the slope of the rings' angles on ρ, the shear, which is ω·T
+//!    plus a bias of its own of a few tenths of a degree per unit of ρ (the stripe's edges
+//!    and the pixel grid), taken as the shear's median over the frames at rest.
+//! 2. The rate of turn at that instant. Where the mark turns smoothly, from the captured
+//!    neighbours: the backward and forward differences of the angles over their read
+//!    instants, combined by the minmod limiter (the smaller of two of one sign, else zero),
+//!    which leaves a frame beside a step, at a reversal or at the clip's ends as read. Where
+//!    the frame was read in a turn much faster than the slower side shows (the limited rate
+//!    below half the faster side: a blow's rise between frames), the neighbours cannot give
+//!    it, and the frame's own shear less its bias does, when significant at three standard
+//!    deviations; a stripe lying along the rows has no shear to show, and stays as read.
+//! 3. The frame's angle at mid-readout is `θ(ρ̄) − ω·T·ρ̄`. Angles stay relative to the
 //!    first analysed frame.
 //!
 //! Frames flagged synthetic are corrected but never serve as neighbours. Side-view marks are
@@ -157,31 +159,61 @@ fn correct_series(
         .filter(|&i| !synthetic[i])
         .filter_map(|i| Some((i, times[i] + row[i]?.rho * readout_s, series[i]?.rad())))
         .collect();
+    let sides = |i: usize, a: f64, tau: f64| -> (Option<f64>, Option<f64>) {
+        let at = knots.partition_point(|k| k.0 < i);
+        let here = knots.get(at).filter(|k| k.0 == i).copied();
+        let prev = at.checked_sub(1).and_then(|j| knots.get(j)).copied();
+        let next = knots.get(at + usize::from(here.is_some())).copied();
+        let me = here.unwrap_or((i, tau, a));
+        let slope = |p: (usize, f64, f64), q: (usize, f64, f64)| {
+            let dt = q.1 - p.1;
+            (dt > 0.0).then(|| wrap_pi(q.2 - p.2) / dt)
+        };
+        (
+            prev.and_then(|p| slope(p, me)),
+            next.and_then(|q| slope(me, q)),
+        )
+    };
+    // The shear's own bias: its median over the frames at rest (neither neighbour turned
+    // more than REST_PER_READOUT_RAD over a readout).
+    let rest: Vec<f64> = (0..series.len())
+        .filter_map(|i| {
+            let (a, r) = (series[i]?, row[i]?);
+            let (b, f) = sides(i, a.rad(), times[i] + r.rho * readout_s);
+            let still =
+                |x: Option<f64>| x.is_some_and(|x| (x * readout_s).abs() < REST_PER_READOUT_RAD);
+            (still(b) && still(f)).then_some(r.shear?.0)
+        })
+        .collect();
+    let bias = crate::stats::median(&rest);
     let mut out: Vec<Option<Angle>> = series.to_vec();
     for (i, slot) in out.iter_mut().enumerate() {
         let (Some(a), Some(r)) = (series[i], row[i]) else {
             continue;
         };
+        // In a frame read while the mark turned much faster than the slower side shows (a
+        // blow's rise between frames), the neighbours cannot give the rate at the read
+        // instant; the frame's own shear, less its bias at rest, can, where it is
+        // significant at three standard deviations.
+        if let (Some(c), Some((b, v))) = (bias, r.shear) {
+            let (bk, fw) = sides(i, a.rad(), times[i] + r.rho * readout_s);
+            let fast = bk.into_iter().chain(fw).map(f64::abs).fold(0.0, f64::max);
+            let limited = match (bk, fw) {
+                (Some(x), Some(y)) => minmod(x, y).abs(),
+                _ => 0.0,
+            };
+            if limited < OWN_SHEAR_SHARE * fast && (b - c).powi(2) > 9.0 * v {
+                *slot = Some(Angle::from_rad(a.rad() - (b - c) * r.rho));
+                continue;
+            }
+        }
         let tau = times[i] + r.rho * readout_s;
-        // The captured frames either side (the frame itself when captured).
-        let at = knots.partition_point(|k| k.0 < i);
-        let here = knots.get(at).filter(|k| k.0 == i).copied();
-        let prev = at.checked_sub(1).and_then(|j| knots.get(j)).copied();
-        let next = knots.get(at + usize::from(here.is_some())).copied();
-        let me = here.unwrap_or((i, tau, a.rad()));
-        let slope = |p: (usize, f64, f64), q: (usize, f64, f64)| {
-            let dt = q.1 - p.1;
-            (dt > 0.0).then(|| wrap_pi(q.2 - p.2) / dt)
-        };
         // The rate of turn at the read instant: the limited slope of the two sides. Where
         // the mark turns smoothly both sides agree and this is the rate; beside a sudden
         // step, at a reversal or at the clip's ends it is zero, and the frame keeps its
         // angle (when a step fell between two frames, no frame shows on which side of the
         // mid-readout instant it fell).
-        let rate = match (
-            prev.and_then(|p| slope(p, me)),
-            next.and_then(|q| slope(me, q)),
-        ) {
+        let rate = match sides(i, a.rad(), tau) {
             (Some(b), Some(f)) => minmod(b, f),
             _ => 0.0,
         };
@@ -196,6 +228,14 @@ fn correct_series(
     }
     series.copy_from_slice(&out);
 }
+
+/// A frame is read in a fast turn, and its own shear used, when the limited rate of its two
+/// sides is below this share of the faster side.
+const OWN_SHEAR_SHARE: f64 = 0.5;
+
+/// A mark is at rest for the shear's bias when it turns less than this over one readout, rad
+/// (a hundredth of a degree).
+const REST_PER_READOUT_RAD: f64 = 0.01 * std::f64::consts::PI / 180.0;
 
 /// The minmod slope limiter: of two slopes of one sign, the smaller in magnitude; zero when
 /// their signs differ (Roe, P. L., "Characteristic-based schemes for the Euler equations",
