@@ -261,7 +261,7 @@ const ESTIMATE_MAX_FRAMES: usize = 400;
 
 /// An estimate of the readout time T from the clip itself, s, with its 95 % interval: in
 /// every captured frame where a radial mark turns steadily (its backward and forward rates
-/// agree within [`STEADY_SHARE`]), the stripe's shear across the rings is `ω·T + c`, where
+/// agree within 30 %), the stripe's shear across the rings is `ω·T + c`, where
 /// c is the shear's own bias (the stripe's edges and the pixel grid, which do not depend on
 /// the readout). T is the Theil–Sen slope of shear on rate over those frames (the median of
 /// the slopes between every pair), with the distribution-free 95 % interval of Sen (P. K. Sen,
