@@ -13,6 +13,9 @@
 //! - `held_out_layouts_table` (ignored) runs all of them at full size and prints the table in
 //!   docs/accuracy.md:
 //!   `cargo test --release --test it find_marks_layouts:: -- --ignored --nocapture`
+//! - With `TUNE_HYBRID=1`, each layout is also measured with the drafted rig given the true
+//!   pivots and with the true rig given the drafted annuli, which tells a pivot error from an
+//!   annulus difference, and the tracker's own warnings are printed.
 
 use std::path::Path;
 
@@ -68,7 +71,12 @@ fn rms(rig: &Rig, frames: &[Frame], truth: [&[f64]; 2], fps: f64) -> ([f64; 2], 
             return ([f64::INFINITY; 2], frames.len());
         }
     }
-    let (tr, _) = t.finish(TimeBase::from_fps(fps, "test").unwrap());
+    let (tr, tw) = t.finish(TimeBase::from_fps(fps, "test").unwrap());
+    if std::env::var_os("TUNE_HYBRID").is_some() {
+        for w in &tw {
+            println!("    track: {w}");
+        }
+    }
     let mut out = [0.0; 2];
     let mut lost = 0;
     for (k, series) in [&tr.drive, &tr.nut].into_iter().enumerate() {
@@ -124,6 +132,42 @@ fn run(seed: u64, max_side_px: u32) -> Outcome {
     let pivot_err_px = [d(gp[0], tp[0]), d(gp[1], tp[1])];
     let roles_right = d(gp[0], tp[0]) < d(gp[0], tp[1]) && d(gp[1], tp[1]) < d(gp[1], tp[0]);
     let (rms_drafted_deg, lost) = rms(&found.rig, &frames, series, fps);
+    if std::env::var_os("TUNE_HYBRID").is_some() {
+        // Drafted rig with the true pivots; true rig with the drafted annuli.
+        let mut a = found.rig.clone();
+        let mut b = true_rig.clone();
+        for (ma, mt) in [
+            (&mut a.marks.drive, &true_rig.marks.drive),
+            (&mut a.marks.nut, &true_rig.marks.nut),
+        ] {
+            if let (Mark::Radial(x), Mark::Radial(t)) = (ma, mt) {
+                x.pivot = t.pivot;
+            }
+        }
+        for (mb, md) in [
+            (&mut b.marks.drive, &found.rig.marks.drive),
+            (&mut b.marks.nut, &found.rig.marks.nut),
+        ] {
+            if let (Mark::Radial(x), Mark::Radial(d)) = (mb, md) {
+                x.radius = d.radius;
+            }
+        }
+        let (ra, _) = rms(&a, &frames, series, fps);
+        let (rb, _) = rms(&b, &frames, series, fps);
+        let radii = |r: &Rig| match (&r.marks.drive, &r.marks.nut) {
+            (Mark::Radial(d), Mark::Radial(n)) => (d.radius, n.radius, d.tighten, n.tighten),
+            _ => unreachable!(),
+        };
+        println!(
+            "  hybrid {seed}: drafted+true pivots {:.3}/{:.3}; true+drafted annuli {:.3}/{:.3}; radii true {:?} drafted {:?}",
+            ra[0],
+            ra[1],
+            rb[0],
+            rb[1],
+            radii(&true_rig),
+            radii(&found.rig)
+        );
+    }
     Outcome {
         seed,
         shape,
