@@ -52,19 +52,31 @@ struct Errors {
     estimate: Option<(f64, (f64, f64))>,
 }
 
-fn errors(sc: &Scenario, truth: &Truth, frames: Vec<Frame>, rig_ms: Option<f64>) -> Errors {
+/// The analysis of `frames` of `sc` (the container's rate the scene's) with the rig's
+/// capture rate set to `capture` and its `rolling_shutter_ms` to `rig_ms`.
+fn analyse(
+    sc: &Scenario,
+    frames: Vec<Frame>,
+    capture: Option<f64>,
+    rig_ms: Option<f64>,
+) -> crate::Analysis {
     let mut rig = sc.rig();
+    rig.capture_fps_hz = capture;
     rig.camera = rig_ms.map(|t| CameraSpec {
         rolling_shutter_ms: Some(t),
     });
-    let a = crate::analyze::analyze_source(
+    crate::analyze::analyze_source(
         Box::new(MemorySource::new(frames, Some(sc.camera.fps_hz))),
         &rig,
         std::path::Path::new("rig.json"),
         &AnalyzeOptions::default(),
         &|_, _| {},
     )
-    .unwrap();
+    .unwrap()
+}
+
+fn errors(sc: &Scenario, truth: &Truth, frames: Vec<Frame>, rig_ms: Option<f64>) -> Errors {
+    let a = analyse(sc, frames, Some(sc.camera.fps_hz), rig_ms);
     let one = |got: &[Option<crate::units::Angle>], want: &[f64]| {
         let e: Vec<f64> = got
             .iter()
@@ -123,19 +135,7 @@ fn a_peak_read_during_a_fast_turn_has_an_interval_that_holds_the_truth() {
     let truth = simulate(&sc);
     let frames = rolling_frames(&sc, &truth, 0.002);
     for (ms, capture) in [(Some(2.0), Some(240.0)), (None, None)] {
-        let mut rig = sc.rig();
-        rig.capture_fps_hz = capture;
-        rig.camera = ms.map(|t| CameraSpec {
-            rolling_shutter_ms: Some(t),
-        });
-        let a = crate::analyze::analyze_source(
-            Box::new(MemorySource::new(frames.clone(), Some(240.0))),
-            &rig,
-            std::path::Path::new("rig.json"),
-            &AnalyzeOptions::default(),
-            &|_, _| {},
-        )
-        .unwrap();
+        let a = analyse(&sc, frames.clone(), capture, ms);
         assert_eq!(a.blows.len(), truth.blows.len(), "{ms:?}");
         let mut worst: f64 = 0.0;
         for (b, t) in a.blows.iter().zip(&truth.blows) {
@@ -171,19 +171,7 @@ fn an_unknown_readout_is_warned_of_only_for_a_camera_clocked_clip() {
     let truth = simulate(&sc);
     let frames = rolling_frames(&sc, &truth, 0.004);
     let warned = |capture: Option<f64>, ms: Option<f64>| {
-        let mut rig = sc.rig();
-        rig.capture_fps_hz = capture;
-        rig.camera = ms.map(|t| CameraSpec {
-            rolling_shutter_ms: Some(t),
-        });
-        let a = crate::analyze::analyze_source(
-            Box::new(MemorySource::new(frames.clone(), Some(240.0))),
-            &rig,
-            std::path::Path::new("rig.json"),
-            &AnalyzeOptions::default(),
-            &|_, _| {},
-        )
-        .unwrap();
+        let a = analyse(&sc, frames.clone(), capture, ms);
         a.warnings.iter().find_map(|w| match w {
             crate::Warning::RollingShutterUnknown { skew_bound_deg, .. } => Some(*skew_bound_deg),
             _ => None,
