@@ -147,16 +147,6 @@ pub fn analyze_source(
     opts: &AnalyzeOptions,
     progress: &(dyn Fn(u64, u64) + Sync),
 ) -> Result<Analysis> {
-    analyze_impl(source, rig, rig_path, opts, progress)
-}
-
-fn analyze_impl(
-    source: Box<dyn FrameSource>,
-    rig: &Rig,
-    rig_path: &Path,
-    opts: &AnalyzeOptions,
-    progress: &(dyn Fn(u64, u64) + Sync),
-) -> Result<Analysis> {
     let clip = source.info().clone();
     let mut warnings = clip.warnings.clone();
     let (time_base, fps_source, fps_warning) = capture_rate(opts, rig, &clip)?;
