@@ -453,6 +453,59 @@ mod tests {
         assert!((at(1) - (w * times[1] - w * rho * t_r)).abs() < 1e-12);
     }
 
+    /// A trace at 240 fps whose drive turns at a rate that changes smoothly (a sine of
+    /// period 40 frames, up to 600°/s) and whose nut rests, with each frame's drive shear
+    /// `ω·T + c` plus a small deterministic scatter; the nut gives no shear.
+    fn sheared(readout_s: f64, bias: f64) -> (Trace, ReadoutRows) {
+        let n = 200;
+        let fps = 240.0;
+        let w = |i: usize| 600f64.to_radians() * (std::f64::consts::TAU * i as f64 / 40.0).sin();
+        let mut a = 0.0;
+        let mut drive = Vec::with_capacity(n);
+        for i in 0..n {
+            drive.push(Some(Angle::from_rad(a)));
+            a += w(i) / fps;
+        }
+        let rows = ReadoutRows {
+            drive: (0..n)
+                .map(|i| {
+                    let scatter = 0.002 * ((i * 7919) % 13) as f64 / 13.0 - 0.001;
+                    Some(Readout {
+                        rho: 0.1,
+                        shear: Some((w(i) * readout_s + bias + scatter, 1e-6)),
+                    })
+                })
+                .collect(),
+            nut: vec![None; n],
+        };
+        let trace = Trace {
+            time_base: crate::units::TimeBase::from_fps(fps, "t").unwrap(),
+            times_s: Vec::new(),
+            synthetic: Vec::new(),
+            frames: (0..n as u64).collect(),
+            drive,
+            nut: vec![Some(Angle::from_rad(0.0)); n],
+            drive_confidence: vec![1.0; n],
+            nut_confidence: vec![1.0; n],
+            drive_zero_screen: None,
+            nut_zero_screen: None,
+        };
+        (trace, rows)
+    }
+
+    /// The readout comes back from the shear's slope on the rate, its bias aside, with an
+    /// interval that holds it; a shear that does not follow the rate (a global shutter)
+    /// gives no estimate.
+    #[test]
+    fn the_readout_is_the_slope_of_shear_on_rate() {
+        let (trace, rows) = sheared(0.003, 0.004);
+        let (t, (lo, hi)) = estimate_readout(&trace, &rows).expect("an estimate");
+        assert!((t - 0.003).abs() < 2e-4, "{t}");
+        assert!(lo <= 0.003 && 0.003 <= hi, "{lo}..{hi}");
+        let (trace, rows) = sheared(0.0, 0.004);
+        assert_eq!(estimate_readout(&trace, &rows), None);
+    }
+
     /// minmod: the smaller of two slopes of one sign, zero across a reversal.
     #[test]
     fn minmod_limits_and_stops_at_reversals() {
