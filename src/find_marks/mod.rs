@@ -26,7 +26,10 @@
 //!    part only when it turns rigidly about one fixed point: most of its lines meet there,
 //!    the point lies beyond one of its ends, and the stripe keeps its distance from it.
 //!    Anything else that moves (a follower hopping between the streaks of a brushed-steel
-//!    bench) is background. The drive end leads each blow, swings back after it and travels
+//!    bench) is background. Of more than two turning parts, the pair whose blow onsets
+//!    coincide most often is taken (the drive and the nut both move at every blow; a streak
+//!    follower that passed the rigid-turn test does not keep time with them), then the most
+//!    travel. The drive end leads each blow, swings back after it and travels
 //!    more; the nut lags, moves less and stops first: three votes. Stripe length plays no
 //!    part. When the votes disagree, a warning says so and the preview labels both readings.
 //!    A stripe that does not turn is still; the one that stands out most is the fixed mark.
@@ -294,6 +297,31 @@ fn find_stream(
             .travel_deg()
             .total_cmp(&tracks[a.0].travel_deg())
     });
+    // With more than two turning parts, the pair that moves together at the blows: of the
+    // pairs, the one whose onsets coincide most often (both ways), then the most travel.
+    if parts.len() > 2 {
+        let series: Vec<Vec<Option<f64>>> =
+            parts.iter().map(|&(i, _)| tracks[i].series()).collect();
+        let mut best: Option<((usize, usize), (f64, f64))> = None;
+        for a in 0..parts.len() {
+            for b in a + 1..parts.len() {
+                let (sab, na) = roles::shared_onsets(&series[a], &series[b], 6.0);
+                let (sba, nb) = roles::shared_onsets(&series[b], &series[a], 6.0);
+                let together = (sab + sba) as f64 / (na + nb).max(1) as f64;
+                let travel = tracks[parts[a].0].travel_deg() + tracks[parts[b].0].travel_deg();
+                let key = (together, travel);
+                if best.is_none_or(|(_, k)| key > k) {
+                    best = Some(((a, b), key));
+                }
+            }
+        }
+        if let Some(((a, b), _)) = best {
+            let (pa, pb) = (parts[a], parts[b]);
+            parts.retain(|q| q.0 != pa.0 && q.0 != pb.0);
+            parts.insert(0, pb);
+            parts.insert(0, pa);
+        }
+    }
     let mut cands: Vec<(usize, Option<[f64; 2]>)> =
         parts.iter().map(|&(i, p)| (i, Some(p))).collect();
     if cands.len() < 2 {

@@ -5,6 +5,9 @@
 //!   and the stripe keeps its distance from it. A follower that hops between background
 //!   streaks (a brushed-steel bench) fails these tests and is background.
 //! - A stripe that does not turn is still: a candidate for the fixed mark.
+//! - Of more than two turning parts, the drive and the nut are the pair that move together:
+//!   both start at every blow, and a follower of background texture that passes for a
+//!   turning part does not keep time with them (`shared_onsets`).
 //! - Of two turning parts, the drive end **leads** each blow (its onsets come first), swings
 //!   back after each blow, and travels more; the nut **lags**, moves less and stops first.
 //!   Each of the three is a vote; stripe length plays no part. When the votes disagree, the
@@ -162,6 +165,18 @@ pub(super) fn lag_frames(a: &[Option<f64>], b: &[Option<f64>], reach: f64) -> Op
     Some(d[d.len() / 2])
 }
 
+/// How many of `a`'s blow onsets `b` also starts to move at, within ±`reach` frames, and how
+/// many onsets `a` has: the drive and the nut both move at every blow, and a follower of
+/// background texture that passes for a turning part does not keep time with them.
+pub(super) fn shared_onsets(a: &[Option<f64>], b: &[Option<f64>], reach: f64) -> (usize, usize) {
+    let (oa, ob) = (onsets(a), onsets(b));
+    let shared = oa
+        .iter()
+        .filter(|&&ta| ob.iter().any(|&tb| (tb - ta).abs() <= reach))
+        .count();
+    (shared, oa.len())
+}
+
 /// The three votes on which of two turning parts is the drive end.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(super) struct Votes {
@@ -233,6 +248,18 @@ mod tests {
         assert!((l - 2.0).abs() < 0.3, "{l}");
         let back = lag_frames(&nut, &drive, 6.0).unwrap();
         assert!((back + 2.0).abs() < 0.3, "{back}");
+    }
+
+    /// The nut keeps time with the drive; a part that moves at other times does not.
+    #[test]
+    fn parts_that_move_at_the_blows_share_their_onsets() {
+        let drive = train(0, 0.02, 6);
+        let nut = train(2, 0.01, 3);
+        let other = train(20, 0.02, 3);
+        let (shared, of) = shared_onsets(&drive, &nut, 6.0);
+        assert_eq!((shared, of), (3, 3));
+        let (shared, of) = shared_onsets(&drive, &other, 6.0);
+        assert_eq!((shared, of), (0, 3));
     }
 
     #[test]
