@@ -191,32 +191,28 @@ fn correct_series(
         let (Some(a), Some(r)) = (series[i], row[i]) else {
             continue;
         };
-        // In a frame read while the mark turned much faster than the slower side shows (a
-        // blow's rise between frames), the neighbours cannot give the rate at the read
-        // instant; the frame's own shear, less its bias at rest, can, where it is
-        // significant at three standard deviations.
-        if let (Some(c), Some((b, v))) = (bias, r.shear) {
-            let (bk, fw) = sides(i, a.rad(), times[i] + r.rho * readout_s);
-            let fast = bk.into_iter().chain(fw).map(f64::abs).fold(0.0, f64::max);
-            let limited = match (bk, fw) {
-                (Some(x), Some(y)) => minmod(x, y).abs(),
-                _ => 0.0,
-            };
-            if limited < OWN_SHEAR_SHARE * fast && (b - c).powi(2) > 9.0 * v {
-                *slot = Some(Angle::from_rad(a.rad() - (b - c) * r.rho));
-                continue;
-            }
-        }
-        let tau = times[i] + r.rho * readout_s;
         // The rate of turn at the read instant: the limited slope of the two sides. Where
         // the mark turns smoothly both sides agree and this is the rate; beside a sudden
         // step, at a reversal or at the clip's ends it is zero, and the frame keeps its
         // angle (when a step fell between two frames, no frame shows on which side of the
         // mid-readout instant it fell).
-        let rate = match sides(i, a.rad(), tau) {
-            (Some(b), Some(f)) => minmod(b, f),
+        let (bk, fw) = sides(i, a.rad(), times[i] + r.rho * readout_s);
+        let rate = match (bk, fw) {
+            (Some(x), Some(y)) => minmod(x, y),
             _ => 0.0,
         };
+        // In a frame read while the mark turned much faster than the slower side shows (a
+        // blow's rise between frames), the neighbours cannot give the rate at the read
+        // instant; the frame's own shear, less its bias at rest, can, where it is
+        // significant at three standard deviations.
+        let fast = bk.into_iter().chain(fw).map(f64::abs).fold(0.0, f64::max);
+        if let (Some(c), Some((b, v))) = (bias, r.shear)
+            && rate.abs() < OWN_SHEAR_SHARE * fast
+            && (b - c).powi(2) > 9.0 * v
+        {
+            *slot = Some(Angle::from_rad(a.rad() - (b - c) * r.rho));
+            continue;
+        }
         *slot = Some(Angle::from_rad(a.rad() - rate * r.rho * readout_s));
     }
     // Still relative to the first analysed frame.
