@@ -300,13 +300,16 @@ fn find_stream(
     // With more than two turning parts, the pair that moves together at the blows: of the
     // pairs, the one whose onsets coincide most often (both ways), then the most travel.
     if parts.len() > 2 {
-        let series: Vec<Vec<Option<f64>>> =
-            parts.iter().map(|&(i, _)| tracks[i].series()).collect();
+        // Each part's onsets once; then every pair.
+        let starts: Vec<Vec<f64>> = parts
+            .iter()
+            .map(|&(i, _)| roles::onsets(&tracks[i].series()))
+            .collect();
         let mut best: Option<((usize, usize), (f64, f64))> = None;
         for a in 0..parts.len() {
             for b in a + 1..parts.len() {
-                let (sab, na) = roles::shared_onsets(&series[a], &series[b], 6.0);
-                let (sba, nb) = roles::shared_onsets(&series[b], &series[a], 6.0);
+                let (sab, na) = roles::shared_onsets(&starts[a], &starts[b], 6.0);
+                let (sba, nb) = roles::shared_onsets(&starts[b], &starts[a], 6.0);
                 let together = (sab + sba) as f64 / (na + nb).max(1) as f64;
                 let travel = tracks[parts[a].0].travel_deg() + tracks[parts[b].0].travel_deg();
                 let key = (together, travel);

@@ -111,7 +111,7 @@ fn filled(series: &[Option<f64>]) -> Vec<f64> {
 /// Frames where a part starts to move after resting: its speed crosses a quarter of its own
 /// high (95th percentile) speed after at least three frames below it, with the crossing placed
 /// to a fraction of a frame by linear interpolation.
-fn onsets(series: &[Option<f64>]) -> Vec<f64> {
+pub(super) fn onsets(series: &[Option<f64>]) -> Vec<f64> {
     let a = filled(series);
     if a.len() < 8 {
         return Vec::new();
@@ -165,16 +165,16 @@ pub(super) fn lag_frames(a: &[Option<f64>], b: &[Option<f64>], reach: f64) -> Op
     Some(d[d.len() / 2])
 }
 
-/// How many of `a`'s blow onsets `b` also starts to move at, within ±`reach` frames, and how
-/// many onsets `a` has: the drive and the nut both move at every blow, and a follower of
-/// background texture that passes for a turning part does not keep time with them.
-pub(super) fn shared_onsets(a: &[Option<f64>], b: &[Option<f64>], reach: f64) -> (usize, usize) {
-    let (oa, ob) = (onsets(a), onsets(b));
-    let shared = oa
+/// How many of the blow onsets `a` (frames, from [`onsets`]) are matched by an onset in `b`
+/// within ±`reach` frames, and how many `a` has: the drive and the nut both move at every
+/// blow, and a follower of background texture that passes for a turning part does not keep
+/// time with them.
+pub(super) fn shared_onsets(a: &[f64], b: &[f64], reach: f64) -> (usize, usize) {
+    let shared = a
         .iter()
-        .filter(|&&ta| ob.iter().any(|&tb| (tb - ta).abs() <= reach))
+        .filter(|&&ta| b.iter().any(|&tb| (tb - ta).abs() <= reach))
         .count();
-    (shared, oa.len())
+    (shared, a.len())
 }
 
 /// The three votes on which of two turning parts is the drive end.
@@ -256,10 +256,9 @@ mod tests {
         let drive = train(0, 0.02, 6);
         let nut = train(2, 0.01, 3);
         let other = train(20, 0.02, 3);
-        let (shared, of) = shared_onsets(&drive, &nut, 6.0);
-        assert_eq!((shared, of), (3, 3));
-        let (shared, of) = shared_onsets(&drive, &other, 6.0);
-        assert_eq!((shared, of), (0, 3));
+        let [drive, nut, other] = [drive, nut, other].map(|s| onsets(&s));
+        assert_eq!(shared_onsets(&drive, &nut, 6.0), (3, 3));
+        assert_eq!(shared_onsets(&drive, &other, 6.0), (0, 3));
     }
 
     #[test]
