@@ -20,7 +20,7 @@ use crate::rig::Rig;
 use crate::segment::{self, Segmentation};
 use crate::track::synthetic::{self, SyntheticDetector};
 use crate::track::{Trace, Tracker};
-use crate::units::TimeBase;
+use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
 
 /// Frames in flight between the decoder and the tracker.
@@ -73,6 +73,10 @@ pub struct Analysis {
     pub timing: crate::timing::Timing,
     /// Per-frame angles.
     pub trace: Trace,
+    /// What the drive and nut marks were tracked on (luma or their paint's colour).
+    pub signals: [crate::track::Signal; 2],
+    /// How far the camera moved, measured on the fixed mark (None without one).
+    pub camera_motion: Option<crate::track::CameraMotion>,
     /// Blows and blow rate.
     pub segmentation: Segmentation,
     /// Per-blow metrics.
@@ -179,6 +183,8 @@ pub fn analyze_source(
     )?;
 
     let readout_rows = tracker.readout_rows();
+    let signals = tracker.signals();
+    let camera_motion = tracker.camera_motion();
     let (mut trace, track_warnings) = tracker.finish(time_base);
     // A mark lost in most frames cannot be measured: refuse, and write no torque.
     crate::track::check_measured(&trace, &track_warnings)?;
@@ -240,9 +246,15 @@ pub fn analyze_source(
     let mut segmentation = segment::find_blows(&captured);
     warnings.extend(segmentation.warnings.iter().cloned());
     let zero = measured_zero(rig, rig_path, opts, &clip, rest_still, kept, &segmentation)?;
-    let skew = readout_skew(rig, clip.height, camera_clock, captured.time_base.fps_hz());
+    let reading = mechanics::Reading {
+        skew: readout_skew(rig, clip.height, camera_clock, captured.time_base.fps_hz()),
+        tracking_sigma: Angle::from_deg(crate::track::validation::twist_sigma_deg(
+            clip.lossy(),
+            camera_motion.map(|m| m.shift_rms_px),
+        )),
+    };
     let (mut blows, mut summary, mech_warnings) =
-        mechanics::blow_metrics_read(&captured, &segmentation, rig.bar.as_ref(), zero, skew);
+        mechanics::blow_metrics_read(&captured, &segmentation, rig.bar.as_ref(), zero, reading);
     crate::segment::reindex_blows(&mut segmentation.blows, &kept_samples, trace.len());
     warnings.extend(mech_warnings);
     warnings.extend(crate::sanity::check_results(
@@ -287,6 +299,8 @@ pub fn analyze_source(
         fps_source,
         timing,
         trace,
+        signals,
+        camera_motion,
         segmentation,
         blows,
         summary,

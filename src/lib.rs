@@ -60,6 +60,6 @@ mod warning;
 pub use analyze::{Analysis, AnalyzeOptions, analyze};
 pub use error::{Error, Result};
 pub use rig::Rig;
-pub use track::Trace;
+pub use track::{CameraMotion, Signal, Trace};
 pub use units::{Angle, Stiffness, TimeBase, Torque};
 pub use warning::Warning;

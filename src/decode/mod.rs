@@ -368,6 +368,28 @@ pub struct ClipInfo {
     pub display_rotation_deg: u32,
 }
 
+impl ClipInfo {
+    /// True unless every frame is stored exactly: a codec or image format that keeps every
+    /// sample (FFV1, PNG, TIFF, BMP, raw and the lossless intermediate codecs) is lossless;
+    /// anything else, including one not listed here and H.264 (which has a rarely used lossless
+    /// mode), is taken as lossy, the cautious side for the intervals that depend on it
+    /// (`mechanics::uncertainty`). Stills of mixed formats are lossy when any format is.
+    pub fn lossy(&self) -> bool {
+        const LOSSLESS: [&str; 13] = [
+            "ffv1", "png", "apng", "tiff", "bmp", "raw", "rawvideo", "huffyuv", "ffvhuff",
+            "utvideo", "magicyuv", "pgm", "ppm",
+        ];
+        let inner = self
+            .codec
+            .strip_prefix("mixed (")
+            .and_then(|m| m.strip_suffix(')'))
+            .unwrap_or(&self.codec);
+        inner
+            .split(", ")
+            .any(|k| !LOSSLESS.contains(&k.trim().to_ascii_lowercase().as_str()))
+    }
+}
+
 /// A stream of frames from one clip.
 pub trait FrameSource: Send {
     /// Facts about the clip.
@@ -556,6 +578,47 @@ impl FrameSource for MemorySource {
                 Ok(true)
             }
             None => Ok(false),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn clip(codec: &str) -> ClipInfo {
+        ClipInfo {
+            path: PathBuf::from("clip"),
+            kind: ClipKind::Video,
+            frames: 1,
+            width: 8,
+            height: 8,
+            bit_depth: 8,
+            container_fps_hz: None,
+            codec: codec.into(),
+            duration_s: None,
+            warnings: Vec::new(),
+            frame_times: None,
+            display_rotation_deg: 0,
+        }
+    }
+
+    #[test]
+    fn only_codecs_that_keep_every_sample_are_lossless() {
+        for c in ["ffv1", "png", "tiff", "bmp", "raw", "mixed (png, tiff)"] {
+            assert!(!clip(c).lossy(), "{c}");
+        }
+        for c in [
+            "h264",
+            "hevc",
+            "mjpeg",
+            "jpeg",
+            "vp9",
+            "prores",
+            "mixed (jpeg, png)",
+            "",
+        ] {
+            assert!(clip(c).lossy(), "{c}");
         }
     }
 }

@@ -178,8 +178,9 @@ pub(crate) struct HoldingInputs<'a> {
     pub stiffness: Stiffness,
     /// One frame's twist noise (σ), degrees.
     pub twist_sigma_deg: f64,
-    /// Standard uncertainty of the twist zero, degrees.
-    pub zero_sigma_deg: f64,
+    /// Standard uncertainty common to every twist reading, degrees: the twist zero's and the
+    /// tracker's validated term (`track::validation`), which no average over samples shrinks.
+    pub systematic_sigma_deg: f64,
     /// Relative standard uncertainty of the stiffness.
     pub stiffness_rel_sigma: f64,
     /// Peak torques of the blows after the last advancing one that did not move the nut.
@@ -258,8 +259,9 @@ pub(crate) fn holding_torque(
     if !value.is_finite() {
         return None;
     }
-    // The zero's uncertainty moves every point alike; the stiffness scales the result.
-    let zero = k * inp.zero_sigma_deg;
+    // The zero's and the tracking's systematic uncertainty move every point alike; the
+    // stiffness scales the result.
+    let zero = k * inp.systematic_sigma_deg;
     let stiff = value.abs() * inp.stiffness_rel_sigma;
     let half = t95(dof) * se + 1.96 * zero.hypot(stiff);
     let half = if half.is_finite() { half } else { value.abs() };
@@ -315,7 +317,7 @@ mod tests {
             nut_final_deg: 30.0,
             stiffness: k,
             twist_sigma_deg: 0.01,
-            zero_sigma_deg: 0.0,
+            systematic_sigma_deg: 0.0,
             stiffness_rel_sigma: 0.0,
             later_still_peaks: &[Torque::from_nm(150.0)],
             later_breakaway: None,

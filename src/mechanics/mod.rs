@@ -38,8 +38,8 @@ pub use bar_report::{
     recovery_from_gain,
 };
 pub use blows::{
-    BlowMetrics, NUT_STOP_MIN_DEG, ReadoutSkew, Summary, UNDERSAMPLED_RISE_FRAMES, blow_metrics,
-    blow_metrics_read, blow_metrics_zeroed, under_read_bound,
+    BlowMetrics, NUT_STOP_MIN_DEG, Reading, ReadoutSkew, Summary, UNDERSAMPLED_RISE_FRAMES,
+    blow_metrics, blow_metrics_read, blow_metrics_zeroed, under_read_bound,
 };
 pub use calibration::{
     CalibrationFit, CalibrationPair, fit_stiffness, fit_stiffness_line, parse_pair, read_pairs_csv,

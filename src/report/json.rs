@@ -82,13 +82,19 @@ pub struct MarkJson {
     pub lost_fraction: f64,
     /// The mean of the per-frame confidences, 0 for each lost frame, 0..=1.
     pub confidence: f64,
+    /// What the mark was tracked on: `luma` (brightness) or `colour` (the projection of
+    /// luma and chroma that best separates its paint from its metal; `luma` in reports
+    /// written before it was recorded).
+    #[serde(default)]
+    pub signal: crate::track::Signal,
 }
 
 impl MarkJson {
-    fn of(angles: &[Option<Angle>], confidence: &[f32]) -> MarkJson {
+    fn of(angles: &[Option<Angle>], confidence: &[f32], signal: crate::track::Signal) -> MarkJson {
         MarkJson {
             lost_fraction: crate::track::lost_share(angles),
             confidence: crate::track::clip_confidence(angles, confidence),
+            signal,
         }
     }
 }
@@ -251,6 +257,12 @@ pub struct SummaryJson {
     pub nut_noise_deg: Option<f64>,
     /// What every twist is measured from: the bar at rest (interface v2).
     pub twist_zero: TwistZeroJson,
+    /// Standard uncertainty of every twist reading from tracking errors that the noise
+    /// above does not show, degrees: the tracker's validated figure for this kind of
+    /// recording (lossless or lossy), carried by every twist and torque interval (0 in
+    /// reports written before it was).
+    #[serde(default)]
+    pub twist_tracking_sigma_deg: f64,
     /// The torque the joint holds after the last blow that turned the nut, N·m (interface
     /// v2; null without a bar or a measured slip).
     pub holding_torque_nm: Option<f64>,
@@ -477,6 +489,7 @@ pub fn report(a: &Analysis) -> Report {
             offset_deg: zero.offset.deg(),
             offset_sigma_deg: zero.offset_sigma.deg(),
         },
+        twist_tracking_sigma_deg: s.tracking_sigma.deg(),
         holding_torque_nm: nm(s.holding.map(|h| h.torque)),
         holding_torque_ci95_nm: s
             .holding
@@ -536,8 +549,8 @@ pub fn report(a: &Analysis) -> Report {
         rig: serde_json::to_value(&a.rig).unwrap_or(serde_json::Value::Null),
         window: WindowJson::of(a),
         mark_quality: MarkQualityJson {
-            drive: MarkJson::of(&a.trace.drive, &a.trace.drive_confidence),
-            nut: MarkJson::of(&a.trace.nut, &a.trace.nut_confidence),
+            drive: MarkJson::of(&a.trace.drive, &a.trace.drive_confidence, a.signals[0]),
+            nut: MarkJson::of(&a.trace.nut, &a.trace.nut_confidence, a.signals[1]),
         },
         model: a.model.as_ref().map(|m| match m {
             Ok(f) => serde_json::to_value(f).unwrap_or(serde_json::Value::Null),

@@ -272,6 +272,8 @@ pub(crate) mod tests {
             fps_source: FpsSource::Rig,
             timing: capture_rate_timing(),
             trace,
+            signals: Default::default(),
+            camera_motion: None,
             segmentation,
             blows,
             summary,

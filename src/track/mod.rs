@@ -52,6 +52,7 @@ mod side;
 pub mod synthetic;
 mod texture;
 pub(crate) mod unwrap;
+pub mod validation;
 
 /// The sum of eight partial sums kept side by side (vectorised loops), added in one fixed
 /// order so that every caller's result is the same to the bit.
@@ -184,6 +185,26 @@ impl MarkTrack {
     }
 }
 
+/// What a mark is tracked on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Signal {
+    /// Brightness (luma) alone: monochrome footage, or paint that stands out in brightness.
+    #[default]
+    Luma,
+    /// The projection of luma and chroma that best separates the paint from its metal.
+    Colour,
+}
+
+/// How far the camera moved over a clip, measured on the rig's fixed mark.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CameraMotion {
+    /// Root mean square of the fixed region's shift from the first frame, px.
+    pub shift_rms_px: f64,
+    /// Root mean square of its roll from the first frame, degrees.
+    pub roll_rms_deg: f64,
+}
+
 /// Measures the rig's marks frame by frame.
 pub struct Tracker {
     frames: Vec<u64>,
@@ -195,6 +216,9 @@ pub struct Tracker {
     shake: Option<ShakeEstimator>,
     /// Camera pose of the last registered frame.
     pose: Pose,
+    /// Sums over the registered frames of the pose's squared shift (px²) and squared roll
+    /// (rad²), and their count: how far the camera moved ([`Tracker::camera_motion`]).
+    motion: (f64, f64, usize),
     /// Notes on the shake registration (set up once).
     shake_notes: Vec<Warning>,
     /// Per frame: `None` where the fixed mark could not be registered.
@@ -284,6 +308,7 @@ impl Tracker {
             fixed,
             shake,
             pose: Pose::identity(),
+            motion: (0.0, 0.0, 0),
             shake_notes: Vec::new(),
             shake_lost: Vec::new(),
             damaged: Vec::new(),
@@ -362,7 +387,12 @@ impl Tracker {
         let mut shake_lost = false;
         if let Some(sh) = self.shake.as_mut() {
             match sh.estimate(frame) {
-                Some(p) => self.pose = p,
+                Some(p) => {
+                    self.pose = p;
+                    self.motion.0 += p.shift[0].powi(2) + p.shift[1].powi(2);
+                    self.motion.1 += p.roll.powi(2);
+                    self.motion.2 += 1;
+                }
                 None => shake_lost = true,
             }
         }
@@ -428,6 +458,30 @@ impl Tracker {
         drive_done?;
         nut_done?;
         Ok(())
+    }
+
+    /// How far the camera moved, from the fixed mark's registration: the root mean square of
+    /// its shift from the first frame (px) and of its roll (degrees) over the registered
+    /// frames. None when the rig has no fixed mark that registers (the motion is then unknown).
+    pub fn camera_motion(&self) -> Option<CameraMotion> {
+        let (ss, sr, n) = self.motion;
+        (self.shake.is_some() && n > 0).then(|| CameraMotion {
+            shift_rms_px: (ss / n as f64).sqrt(),
+            roll_rms_deg: (sr / n as f64).sqrt().to_degrees(),
+        })
+    }
+
+    /// What each of the drive and nut marks is tracked on: its paint's colour (a Fisher
+    /// projection of luma and chroma, `colour.rs`) or luma alone; settled in the first frame.
+    pub fn signals(&self) -> [Signal; 2] {
+        let of = |t: &MarkTrack| {
+            if t.colour.is_some() {
+                Signal::Colour
+            } else {
+                Signal::Luma
+            }
+        };
+        [of(&self.drive), of(&self.nut)]
     }
 
     /// Where each frame's drive and nut stripes were read in a rolling shutter's readout

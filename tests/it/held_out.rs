@@ -53,6 +53,9 @@ struct Score {
     /// The printed peak torque is a declared lower bound (some blows' peaks were not
     /// measured, and a warning says so); then only the interval's lower end is a claim.
     torque_lower_bound: bool,
+    /// The camera's motion the analysis measured on the fixed mark: RMS shift from the
+    /// first frame, px (None: no fixed mark registered, or refused).
+    camera_shift_rms_px: Option<f64>,
     /// The refusal's reason, if the clip was refused.
     refused: Option<String>,
     /// A colour track was found behind its part's texture (a warning, or the refusal's reason).
@@ -161,6 +164,7 @@ fn score_scene(seed: u64, r: RandomScene) -> Score {
         torque_err_pct: None,
         torque_ci_holds: None,
         torque_lower_bound: false,
+        camera_shift_rms_px: None,
         refused: None,
         colour_lag: false,
     };
@@ -219,6 +223,43 @@ fn score_scene(seed: u64, r: RandomScene) -> Score {
         std::fs::create_dir_all(&d).unwrap();
         std::fs::write(Path::new(&d).join(format!("{seed}.csv")), csv).unwrap();
     }
+    // HELD_OUT_BLOW_CSV=file appends one line per measured blow matched to the truth: its
+    // peak twist and 95 % interval beside the truth's peak, with what the clip was (a
+    // diagnostic for the tracking term of the intervals; tuning seeds only).
+    if let Ok(path) = std::env::var("HELD_OUT_BLOW_CSV") {
+        use std::io::Write as _;
+        let mut out = String::new();
+        for b in &a.blows {
+            let Some(t) = truth.blows.iter().find(|t| t.frame.abs_diff(b.frame) <= 1) else {
+                continue;
+            };
+            let (Some(p), Some((lo, hi))) = (b.peak_twist, b.peak_twist_ci95) else {
+                continue;
+            };
+            out += &format!(
+                "{seed},{},{},{:?},{:?},{},{:.4},{:.4},{:.4},{:.4},{},{:.3},{:.4}\n",
+                r.recording.name(),
+                a.clip.lossy(),
+                a.signals[0],
+                a.signals[1],
+                b.frame,
+                p.deg(),
+                lo.deg(),
+                hi.deg(),
+                t.peak_twist_deg,
+                r.tags.join(" "),
+                a.camera_motion.map_or(-1.0, |m| m.shift_rms_px),
+                a.camera_motion.map_or(-1.0, |m| m.roll_rms_deg),
+            );
+        }
+        let mut f = std::fs::OpenOptions::new()
+            .create(true)
+            .append(true)
+            .open(&path)
+            .unwrap();
+        f.write_all(out.as_bytes()).unwrap();
+    }
+    s.camera_shift_rms_px = a.camera_motion.map(|m| m.shift_rms_px);
     s.lost = lost as f64 / tr.frames.len().max(1) as f64;
     if !ed.is_empty() {
         s.rms_deg = Some(rms(&ed).max(rms(&en)));
@@ -554,6 +595,13 @@ fn fixed_mark_on_a_wheel_concentric_with_the_nut_removes_shake() {
     r.recording = Recording::H264Colour { crf: 18 };
     let s = score_scene(seed, r);
     assert_case("concentric fixed mark", &s, 0.20);
+    // The camera's measured motion: each frame is shifted by an independent draw of σ 0.7 px
+    // per axis, so its shift from the first frame has a root mean square of 2σ = 1.4 px.
+    let shift = s.camera_shift_rms_px.expect("the fixed mark registers");
+    assert!(
+        (1.1..1.7).contains(&shift),
+        "camera shift RMS {shift:.2} px"
+    );
 }
 
 #[cfg(feature = "ffmpeg")]

@@ -171,6 +171,9 @@ pub struct Summary {
     pub residual_twist_end: Option<Angle>,
     /// The twist zero every twist above is measured from.
     pub twist_zero: TwistZero,
+    /// The tracker's validated standard uncertainty carried by every twist interval
+    /// ([`Reading::tracking_sigma`]).
+    pub tracking_sigma: Angle,
     /// The torque the joint holds after the last blow that turned the nut (None without a
     /// bar or a measured slip).
     pub holding: Option<HoldingTorque>,
@@ -199,20 +202,32 @@ pub fn blow_metrics_zeroed(
     bar: Option<&BarSpec>,
     zero: Option<TwistZero>,
 ) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
-    blow_metrics_read(trace, seg, bar, zero, None)
+    blow_metrics_read(trace, seg, bar, zero, Reading::default())
 }
 
-/// As [`blow_metrics_zeroed`], for a clip whose rows were read by a rolling shutter
-/// (`skew`): each blow's peak intervals are widened by the bound on the skew of the frame
-/// its peak was read in, with a warning where that bound passes 5 % of the peak
-/// (mechanics::blows::skew).
+/// How the trace's angles were read, for the intervals on every twist and torque.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Reading {
+    /// The clip's rows were read by a rolling shutter: each blow's peak intervals are widened
+    /// by the bound on the skew of the frame its peak was read in, with a warning where that
+    /// bound passes 5 % of the peak (mechanics::blows::skew).
+    pub skew: Option<ReadoutSkew>,
+    /// Standard uncertainty of every twist reading from tracking errors that the trace's
+    /// frame-to-frame noise does not show (the tracker's validated figure for this kind of
+    /// recording, `track::validation`); zero adds nothing.
+    pub tracking_sigma: Angle,
+}
+
+/// As [`blow_metrics_zeroed`], with what is known of how the angles were read ([`Reading`]).
 pub fn blow_metrics_read(
     trace: &Trace,
     seg: &Segmentation,
     bar: Option<&BarSpec>,
     zero: Option<TwistZero>,
-    skew: Option<ReadoutSkew>,
+    reading: Reading,
 ) -> (Vec<BlowMetrics>, Summary, Vec<Warning>) {
+    let skew = reading.skew;
+    let tracking_sigma_deg = reading.tracking_sigma.deg().max(0.0);
     let mut warnings = Vec::new();
     if bar.is_none() {
         warnings.push(Warning::NoBar);
@@ -272,6 +287,9 @@ pub fn blow_metrics_read(
             .or_else(|| level(&nut, k))
     };
     let k_rel_sigma = bar.map(|b| stiffness_rel_sigma(b).0);
+    // Common to every twist reading, so never averaged down: the zero's uncertainty and the
+    // tracker's validated one.
+    let systematic_sigma_deg = zero.offset_sigma.deg().hypot(tracking_sigma_deg);
     let mut out = Vec::with_capacity(blows.len());
     let mut slips: Vec<(usize, Slip)> = Vec::new();
     let slip_tol_deg = (3.0 * nut_sigma_deg).max(NUT_STOP_MIN_DEG / 4.0);
@@ -337,7 +355,7 @@ pub fn blow_metrics_read(
         let (peak_twist_ci95, peak_torque_ci95) = peak_intervals(
             peak_twist,
             twist_sigma_deg,
-            zero.offset_sigma.deg(),
+            systematic_sigma_deg,
             (peak_under_read.unwrap_or(0.0), skew_deg),
             stiffness.zip(k_rel_sigma),
         );
@@ -461,7 +479,7 @@ pub fn blow_metrics_read(
                         nut_final_deg,
                         stiffness: k,
                         twist_sigma_deg,
-                        zero_sigma_deg: zero.offset_sigma.deg(),
+                        systematic_sigma_deg,
                         stiffness_rel_sigma: stiffness_rel_sigma(bar).0,
                         later_still_peaks: &still,
                         later_breakaway: later
@@ -518,6 +536,7 @@ pub fn blow_metrics_read(
             _ => None,
         },
         nut_stop_threshold: Angle::from_deg(threshold_deg),
+        tracking_sigma: Angle::from_deg(tracking_sigma_deg),
         nut_advancing_blows: out.iter().filter(|b| b.nut_advanced).count(),
         nut_stopped_after_blow: last_advancing
             .filter(|&i| i + 1 < out.len())
@@ -621,6 +640,31 @@ mod tests {
             !w.iter()
                 .any(|w| matches!(w, Warning::BlowPeakBesideGap { .. }))
         );
+    }
+
+    #[test]
+    fn the_tracking_term_widens_every_peak_interval_in_quadrature() {
+        let drive = [0.0, 3.0, 4.0, 3.5, 3.0, 3.0, 6.0, 6.5, 5.5, 5.2, 5.2];
+        let nut = [0.0, 0.0, 1.0, 1.5, 1.5, 1.5, 1.5, 2.0, 2.0, 2.0, 2.0];
+        let (trace, seg) = (trace_of(&drive, &nut), two_blows());
+        let (plain, s0, _) = blow_metrics(&trace, &seg, Some(&bar()));
+        let reading = Reading {
+            skew: None,
+            tracking_sigma: Angle::from_deg(0.36),
+        };
+        let (wide, s1, _) = blow_metrics_read(&trace, &seg, Some(&bar()), None, reading);
+        assert_eq!(s0.tracking_sigma, Angle::ZERO);
+        assert_eq!(s1.tracking_sigma.deg(), 0.36);
+        for (p, w) in plain.iter().zip(&wide) {
+            assert_eq!(p.peak_twist, w.peak_twist, "the value is not moved");
+            let (lo0, _) = p.peak_twist_ci95.unwrap();
+            let (lo1, _) = w.peak_twist_ci95.unwrap();
+            let peak = p.peak_twist.unwrap().deg();
+            // The lower half-width is 1.96·σ with σ² gaining 0.36².
+            let (h0, h1) = (peak - lo0.deg(), peak - lo1.deg());
+            let expect = 1.96 * ((h0 / 1.96).powi(2) + 0.36f64.powi(2)).sqrt();
+            assert!((h1 - expect).abs() < 1e-9, "{h0} {h1} {expect}");
+        }
     }
 
     #[test]

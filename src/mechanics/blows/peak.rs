@@ -10,7 +10,8 @@ use crate::units::{Angle, Stiffness, Torque};
 pub(super) type PeakIntervals = (Option<(Angle, Angle)>, Option<(Torque, Torque)>);
 
 /// 95 % intervals of a peak twist and its torque: ±1.96σ from one sample's twist noise and
-/// the zero's uncertainty (and, for the torque, the stiffness's relative uncertainty), with
+/// the systematic uncertainty common to every reading (the zero's and the tracker's validated
+/// term; and, for the torque, the stiffness's relative uncertainty), with
 /// the upper end raised by the under-read fraction of the peak (a sampled peak can only read
 /// low) and both ends moved out by a rolling shutter's skew bound in degrees (a bound, not a
 /// standard deviation, so added in full: `bounds` = (under-read fraction, skew degrees)).
@@ -18,7 +19,7 @@ pub(super) type PeakIntervals = (Option<(Angle, Angle)>, Option<(Torque, Torque)
 pub(super) fn peak_intervals(
     peak: Option<Angle>,
     twist_sigma_deg: f64,
-    zero_sigma_deg: f64,
+    systematic_sigma_deg: f64,
     bounds: (f64, f64),
     stiffness: Option<(Stiffness, f64)>,
 ) -> PeakIntervals {
@@ -26,7 +27,7 @@ pub(super) fn peak_intervals(
     let Some(p) = peak.map(Angle::deg).filter(|p| p.is_finite()) else {
         return (None, None);
     };
-    let s_tw = twist_sigma_deg.hypot(zero_sigma_deg);
+    let s_tw = twist_sigma_deg.hypot(systematic_sigma_deg);
     let up = under_read.max(0.0) * p.abs();
     let tw = (
         Angle::from_deg(p - 1.96 * s_tw - skew_deg),

@@ -91,6 +91,8 @@ pub(crate) fn sample_analysis(path: &Path) -> Analysis {
         fps_source: FpsSource::Rig,
         timing: crate::report::tests::capture_rate_timing(),
         trace,
+        signals: Default::default(),
+        camera_motion: None,
         segmentation: Segmentation {
             blows,
             rate_per_min: Some(1200.0),
