@@ -376,6 +376,9 @@ fn summary_block(r: &Value, units: TorqueUnit) -> Markup {
                 (Some(d), Some(n)) => Some(format!("drive {}°, nut {}°", fixed(Some(d), 3), fixed(Some(n), 3))),
                 _ => None,
             }))
+            (kv("tracking uncertainty (validated, σ)", s["twist_tracking_sigma_deg"].as_f64().filter(|&u| u > 0.0).map(|u| {
+                format!("{}° on every twist reading, in every interval: the tracker's errors on rendered footage of this kind (lossless or lossy, camera still or moved), which the noise above does not show", fixed(Some(u), 2))
+            })))
         }
     }
 }
