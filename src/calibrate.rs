@@ -19,6 +19,9 @@
 //!
 //! Images are read with the stills decoder's own luma reduction (Rec. 601 weights for
 //! colour, ITU-R BT.601-7 §2.5.1). Every error names the CSV file, its line and the image.
+//!
+//! The `calibrate` command's library half (built on decode, track and mechanics): it must never
+//! import segment, report, `analyze`, `batch`, `find_marks` or the CLI.
 
 use std::path::{Path, PathBuf};
 

@@ -1,5 +1,7 @@
 //! The library's one error type. Every message names the file, flag, field, frame or mark
 //! at fault and says what to change, on one line.
+//!
+//! A shared leaf: it must never import any other module of the crate.
 
 use std::path::PathBuf;
 

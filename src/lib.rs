@@ -20,6 +20,8 @@
 //!   every key (`peak_torque_nm`, `t_s`).
 //!
 //! A torque computed from video is a model (stiffness × twist), not a calibrated measurement.
+//!
+//! The crate root: it declares the modules and must never import the CLI.
 #![deny(missing_docs)]
 
 pub mod analyze;

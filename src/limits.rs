@@ -6,6 +6,9 @@
 //! below what would exhaust a workstation's memory. They are *common practice* sizes, not
 //! measurements: the largest frame a high-speed or phone camera records is about 8.3 Mpx (4K),
 //! and a still camera's about 60 Mpx.
+//!
+//! Shared by every stage: it imports only `error` and must never import a pipeline stage or the
+//! CLI.
 
 use std::io::Read;
 use std::path::Path;

@@ -1,5 +1,7 @@
 //! The `twistmark` binary: parses the command line, runs the library, prints, and maps
 //! errors to exit codes (0 ok, 1 bad input or failed analysis, 2 usage).
+//!
+//! The binary: it may use the whole library; the library must never import it.
 
 mod cli;
 

@@ -8,6 +8,9 @@
 //! decimal comma write them). Out: [`Manifest`], rows in file order.
 //!
 //! Bounded: at most [`MAX_BYTES`] of text, [`MAX_ROWS`] rows and [`MAX_TAGS`] tag columns.
+//!
+//! Read by `batch`: it must never import decode, track, segment, report, `analyze`, `batch`,
+//! `find_marks` or the CLI.
 
 use std::path::{Path, PathBuf};
 

@@ -4,6 +4,9 @@
 //!
 //! Pixel convention (stated once for the whole crate): x to the right, y down, origin at the
 //! centre of the top-left pixel. Screen angles run from +x towards +y, i.e. clockwise on screen.
+//!
+//! Read by every command: it must never import decode, track, segment, report, `analyze`,
+//! `batch`, `find_marks` or the CLI.
 
 use std::path::{Path, PathBuf};
 

@@ -6,6 +6,9 @@
 //! purpose: they catch a unit slip or a typo (a diameter of 1e-300 mm, a stiffness of
 //! 1e308 N·m/deg, a capture rate of 1e-308 Hz), not an unusual bar. They are *common
 //! practice* bounds, not values from a standard.
+//!
+//! Shared by the rig and the analysis: it must never import track, segment, report, `analyze`,
+//! `batch`, `find_marks` or the CLI.
 
 use std::path::Path;
 

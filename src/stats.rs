@@ -4,6 +4,8 @@
 //! least-squares line, or the mean of a quiet run), and the 3×3 linear solve of the small
 //! least-squares fits. Plain functions of slices; this module imports nothing from the
 //! pipeline (no decode, track, segment, mechanics or report), so every stage may use it.
+//!
+//! A shared leaf: it must never import any other module of the crate.
 
 /// Solves the 3×3 system `a·x = b` by Cramer's rule; None when the determinant is not finite
 /// or its magnitude is below `min_det` (singular for the caller's scale).

@@ -2,6 +2,9 @@
 //! timestamp (docs/conventions.md, "Time"), and the clip's timing summary (`summary.timing`):
 //! how even the timestamps are and how many frames were repeated or synthesised rather than
 //! captured.
+//!
+//! Used by `analyze` between track and segment: it must never import segment, mechanics,
+//! report, `batch`, `find_marks` or the CLI.
 
 use crate::analyze::FpsSource;
 use crate::decode::ClipInfo;

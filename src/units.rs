@@ -5,6 +5,8 @@
 //! report writing). The lbf·ft factor is derived from the exact definitions of the foot
 //! (0.3048 m) and the pound-force (0.453 592 37 kg × 9.806 65 m/s²), as NIST SP 811 App. B
 //! states them, rather than a rounded constant.
+//!
+//! A shared leaf: it must never import any other module of the crate.
 
 use std::ops::{Add, Div, Mul, Neg, Sub};
 

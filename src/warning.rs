@@ -1,6 +1,8 @@
 //! Typed warnings: data-quality problems that leave a usable result. They are returned
 //! inside results; the library never prints them. Each `Display` says what happened and
 //! what to do about it.
+//!
+//! A shared leaf: it must never import any other module of the crate.
 
 use std::fmt;
 

@@ -1,6 +1,9 @@
 //! Finding a batch's clips: video files and stills folders in the folder and its
 //! sub-folders (to [`MAX_DEPTH`]), in natural order, each with a unique output name, its
 //! sidecar rigs, the nearest folder rig and the manifest's tags.
+//!
+//! Part of `batch` (runs `analyze` and the report writer per clip): it must never import
+//! `find_marks` or the CLI.
 
 use super::*;
 

@@ -1,5 +1,8 @@
 //! A batch's summary: one row per clip (measured or failed), `summary.csv`, `summary.json`,
 //! the comparison plot's data and the table printed at the end.
+//!
+//! Part of `batch` (runs `analyze` and the report writer per clip): it must never import
+//! `find_marks` or the CLI.
 
 use super::*;
 

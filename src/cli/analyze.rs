@@ -1,4 +1,7 @@
 //! `twistmark analyze CLIP --rig RIG`: measure one clip and write its report.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::PathBuf;
 use std::process::ExitCode;

@@ -1,6 +1,9 @@
 //! `twistmark bar --rig RIG [--json]`: the bar's stiffness (computed or calibrated), each
 //! section's share, twist and shear stress at the rating against shear yield, and the drive
 //! end's natural frequency and spring-back time.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;

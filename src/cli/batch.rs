@@ -1,4 +1,7 @@
 //! `twistmark batch FOLDER --rig RIG --out DIR`: analyse every clip in a folder.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::PathBuf;
 use std::process::ExitCode;

@@ -9,6 +9,9 @@
 //! The two kinds are not mixed in one fit: the fit is unweighted, so it assumes every twist
 //! has the same noise, and the rig's record names one twist source. Clap refuses the mix as a
 //! usage error (exit 2).
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::PathBuf;
 use std::process::ExitCode;

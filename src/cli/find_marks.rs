@@ -1,5 +1,8 @@
 //! `twistmark find-marks CLIP --out RIG.json`: find the marks by their motion and write a
 //! draft rig. Nothing is replaced without `--force`, and the input clip never is.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::PathBuf;
 use std::process::ExitCode;

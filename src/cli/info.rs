@@ -1,5 +1,8 @@
 //! `twistmark info CLIP [--json]`: frame count, size, container rate, codec, duration and the
 //! display rotation.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::PathBuf;
 use std::process::ExitCode;

@@ -2,6 +2,9 @@
 //! blow model fitted to one clip (the report's `model` when `analyze --fit-model` stored it,
 //! else fitted here from the report's trace) with another bar, blow rate or number of blows,
 //! and prints what the model predicts.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::path::PathBuf;
 use std::process::ExitCode;

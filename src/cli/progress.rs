@@ -1,5 +1,8 @@
 //! Progress bars on stderr (indicatif): frames of each clip and clips of a batch. They are
 //! hidden when stderr is not a terminal, so logs and pipes stay clean.
+//!
+//! Part of the binary's command line: it uses the library through its public API only, and the
+//! library must never import it.
 
 use std::collections::HashMap;
 use std::io::IsTerminal;

@@ -2,6 +2,9 @@
 //! video landscape with a display-rotation matrix in the container, and every pixel
 //! coordinate in twistmark (rig, overlays, preview, find-marks) is the displayed picture's
 //! (docs/conventions.md, "Pixel coordinates").
+//!
+//! Part of the decode stage: it must never import track, segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::{Frame, Luma};
 

@@ -19,6 +19,9 @@
 //! - 8-bit images give [`Luma::U8`]; 16-bit images give [`Luma::U16`] with `bit_depth` 16.
 //!   Colour images are reduced to luma with the Rec. 601 weights Y = 0.299 R + 0.587 G +
 //!   0.114 B (ITU-R BT.601-7, §2.5.1), the weights video luma uses; alpha is ignored.
+//!
+//! Part of the decode stage: it must never import track, segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::ffi::OsStr;
 use std::path::{Path, PathBuf};

@@ -3,6 +3,9 @@
 //! Phones store the capture rate in the container but time frames by their presentation
 //! timestamps, which may jitter or skip (variable frame rate). These helpers turn a stream's
 //! timestamps into seconds and measure the worst departure from the nominal interval.
+//!
+//! Part of the decode stage: it must never import track, segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 /// Largest departure of one frame interval from the median interval, as a fraction of the
 /// median, before timing counts as uneven (a warning giving the worst gap). A tenth of a

@@ -1,5 +1,8 @@
 //! Drafting rig marks from followed stripes: the pivot, the annulus, the ellipse and the
 //! tightening direction of each.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use super::ellipse::outline_ellipse;
 use super::luma::Img;

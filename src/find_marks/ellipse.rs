@@ -1,6 +1,9 @@
 //! An oblique disc's ellipse from its outline: rays from the pivot find the disc's edge, a
 //! centred conic `A x² + B xy + C y² = 1` is chosen by consensus and fitted by trimmed least
 //! squares, and its eigen-decomposition gives the axis ratio and the major-axis direction.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use std::f64::consts::PI;
 

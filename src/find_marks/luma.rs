@@ -1,5 +1,8 @@
 //! The luma image the mark finder works on: a frame smoothed by a 3×3 box, with clamped and
 //! bilinear sampling.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use crate::decode::Frame;
 

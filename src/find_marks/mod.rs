@@ -42,6 +42,9 @@
 //!    is tight (RMS ≤ 1.2 % of the major axis); a hexagon does not fit.
 //!
 //! At most the first [`MAX_FRAMES`] frames are read.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use std::path::Path;
 

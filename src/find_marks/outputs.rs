@@ -2,6 +2,9 @@
 //! input clip or a still in it, not even with `force`; never replace any other existing file
 //! without `force`; and are written atomically (a temporary file beside the target, then a
 //! rename), so a reader never sees half a rig.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use std::path::{Path, PathBuf};
 

@@ -10,6 +10,9 @@
 //! squares on the lines that agree with it, twice, with the agreement band set from the
 //! inliers' median absolute distance (a trimmed least squares). The pairs are drawn from a
 //! fixed seed, so a clip always gives the same pivot.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use rand::rngs::ChaCha8Rng;
 use rand::{RngExt, SeedableRng};

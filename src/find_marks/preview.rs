@@ -1,4 +1,7 @@
 //! The preview picture: the first frame with each mark's pivot, annulus and role drawn.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use std::f64::consts::PI;
 use std::path::Path;

@@ -2,6 +2,9 @@
 //! tracked over the frames `find-marks` read, and the readout is estimated from how the
 //! stripes shear across their rings while they turn (`track::rolling::estimate_readout`).
 //! Offered for clips timed by the camera's own clock (no capture rate given), as a phone's are.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use crate::decode::Frame;
 use crate::error::Result;

@@ -2,6 +2,9 @@
 //! both sides. Components of the ridge response are kept when long and thin (weighted second
 //! moments, Hu 1962, "Visual pattern recognition by moment invariants", IRE Trans. Inf.
 //! Theory), and each one's centre line is refined to sub-pixel.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use std::f64::consts::PI;
 

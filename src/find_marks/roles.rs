@@ -12,6 +12,9 @@
 //!   back after each blow, and travels more; the nut **lags**, moves less and stops first.
 //!   Each of the three is a vote; stripe length plays no part. When the votes disagree, the
 //!   choice is reported as unsure and both readings are drawn on the preview.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use super::stripes::Track;
 use super::{MAX_LINE_RMS_PX, MIN_SPAN_DEG, STILL_DEG};

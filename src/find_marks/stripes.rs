@@ -1,5 +1,8 @@
 //! Stripes followed through the clip: each first-frame stripe is looked for in every frame near
 //! where it was last seen, and its orientation is unwrapped modulo π.
+//!
+//! Part of the `find-marks` command (built on decode and track, writing through report): it
+//! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
 use super::ellipse::solve3;
 use super::luma::Img;

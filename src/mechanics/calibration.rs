@@ -21,6 +21,9 @@
 //! θ = a + c·T, is ordinary least squares on the images' own angles, whose errors are
 //! independent: c = Σ(Tᵢ−T̄)(θᵢ−θ̄) / Σ(Tᵢ−T̄)², s² = Σ(θᵢ − a − c·Tᵢ)² / (n − 2),
 //! u(c) = s/√Σ(Tᵢ−T̄)² (the same textbook, cited from memory), and again u(k) = u(c)/c².
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use std::path::Path;
 

@@ -27,6 +27,9 @@
 //! mean over the frames from the last one at rest before the slip to the first one at rest
 //! after it is used, and the frame spacing's share of the error is part of the interval
 //! through the scatter of the points about the line.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use crate::units::{Stiffness, Torque};
 

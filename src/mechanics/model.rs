@@ -22,6 +22,9 @@
 //! then the drive end's undamped response against a held nut is θ(t) = (H/√(k·I_d))·sin(√(k/I_d)·t),
 //! which peaks a quarter period after the blow and is back at zero after half a period,
 //! π·√(I_d/k) (free torsional vibration of a disc on a massless shaft, any theory-of-machines text).
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

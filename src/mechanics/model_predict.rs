@@ -11,6 +11,9 @@
 //! linearised covariance is the usual Monte Carlo propagation of uncertainty (JCGM 101:2008,
 //! *Evaluation of measurement data — Propagation of distributions using a Monte Carlo
 //! method*).
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use nalgebra::{DMatrix, DVector};
 use rand::rngs::ChaCha8Rng;

@@ -12,6 +12,9 @@
 //! - Twist at rest that does not return to zero: when the clip ends still (neither end moving
 //!   beyond its noise over the last quiet samples) and the absolute twist there is more than
 //!   0.5° and 5σ away from zero, the bar either took a permanent set or is still held wound.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use crate::mechanics::{BarSpec, SectionSpec};
 use crate::warning::Warning;

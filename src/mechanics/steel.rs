@@ -2,6 +2,9 @@
 //! criterion that turns tensile yield into shear yield.
 //!
 //! Each value comes from the published datasheet or handbook named beside it.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use serde::{Deserialize, Serialize};
 

@@ -23,6 +23,9 @@
 //! the square root's derivative for the parabola. Curvature of the true motion over the first
 //! two samples is not in this figure; docs/mechanics.md gives the errors measured on rendered
 //! clips.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 /// How an end starts to move.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

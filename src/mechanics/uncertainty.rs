@@ -11,6 +11,9 @@
 //!   bar (fully correlated across sections). J ∝ (dimension)⁴ for a round, hex or square
 //!   section (Roark's *Formulas for Stress and Strain*, Table 10.1), so σ_J/J = 4·σ_d/d; a
 //!   tube's J ∝ d⁴ − b⁴ takes both diameters' shares.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use crate::mechanics::{BarSpec, SectionSpec};
 

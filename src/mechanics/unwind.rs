@@ -24,6 +24,9 @@
 //!   would peak at √(θp² − θr²). The torque gain the residual wind-up causes is therefore
 //!   θp/√(θp² − θr²) and the energy E = ½k(θp² − θr²). Only blows where the nut was held
 //!   qualify: a slipping nut takes part of the energy into the joint.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use crate::stats::median;
 use crate::units::{Angle, Stiffness};

@@ -18,6 +18,9 @@
 //! Engineers*, §11.4), and the twist's scatter about its mean stays within 3σ. A bar still
 //! springing back from an earlier blow moves; a bar held wound up and perfectly still cannot
 //! be told from one at rest, which is why a rest still is preferred.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use crate::segment::{NOISE_FLOOR_DEG, Segmentation};
 use crate::units::Angle;

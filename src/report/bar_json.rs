@@ -1,5 +1,8 @@
 //! The bar block of `twistmark bar --json` and of report.json: [`BarReport`] written with
 //! unit-suffixed keys.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use serde::Serialize;
 

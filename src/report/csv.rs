@@ -1,6 +1,9 @@
 //! `blows.csv` (one row per blow) and `trace.csv` (one row per analysed frame). Headers carry
 //! the unit of every number; an unknown value is an empty cell. Columns are the report.json
 //! fields of the same names.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::fmt::Write;
 

@@ -5,6 +5,9 @@
 //! 1.355 818 N·m (NIST Special Publication 811, *Guide for the Use of the International System
 //! of Units (SI)*, 2008 edition, Appendix B.9; the exact factor is the product of the foot,
 //! 0.3048 m, and the pound-force, 4.448 221 615 260 5 N, see [`crate::units`]).
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::units::Torque;
 

@@ -10,6 +10,9 @@
 //! (`peak_torque_ci95_nm`, `summary.holding_torque_nm`) appears as soon as it exists. Every
 //! number in the blow table carries the value exactly as `report.json` writes it in
 //! `data-value` (with `data-key` and `data-blow`), beside the rounded text a person reads.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use maud::{DOCTYPE, Markup, PreEscaped, html};
 use serde_json::Value;

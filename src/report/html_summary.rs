@@ -7,6 +7,9 @@
 //! SVG, no scripts or fetched fonts) that opens offline and prints on A4. Each analysed clip
 //! links to its own `report.html`. With tags, the clips are also grouped by their tag values,
 //! with each group's median blow rate and peak torque.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use maud::{Markup, PreEscaped, html};
 use serde_json::Value;

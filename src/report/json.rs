@@ -1,6 +1,9 @@
 //! The `report.json` schema (interface v1 plus extensions) as plain serde structs, and its
 //! construction from an [`Analysis`]. Every number carries its unit in its key; an unknown
 //! value is `null`. The v1 keys of the interface are never renamed or removed.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use serde::{Deserialize, Serialize};
 

@@ -1,5 +1,8 @@
 //! A written report read back as the blow model's observations: `predict` fits the model
 //! from a report.json when analyze did not store one (`analyze --fit-model`).
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::json::Report;
 use crate::mechanics::ClipObs;

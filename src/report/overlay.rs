@@ -11,6 +11,9 @@
 //! angles from +x towards +y. On an oblique disc (`ellipse`), ψ is the angle on the disc,
 //! drawn through the ellipse. Side marks: the stripe is drawn parallel to the bar's axis at
 //! offset R·sin(zero_screen + angle) in the rig's tightening direction.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

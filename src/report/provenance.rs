@@ -8,6 +8,9 @@
 //! its file name, a zero byte, its length as 8 little-endian bytes and its bytes; `bytes` is
 //! then the stills' total size. Files are read in 64 KiB blocks, so memory stays bounded
 //! whatever the clip's size.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::fs::File;
 use std::io::Read;

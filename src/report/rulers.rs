@@ -7,6 +7,9 @@
 //! of the top-left pixel (docs/conventions.md). Frame coordinate `x` sits at image column
 //! `x·s + (s − 1)/2` (see [`super::overlay::View`]). The bands are see-through, so the frame
 //! under them still shows.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use ab_glyph::{FontRef, PxScale};
 use image::{Rgb, RgbImage};

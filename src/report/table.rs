@@ -1,5 +1,8 @@
 //! The per-blow table for the terminal: one row per blow with torque in N·m and lbf·ft, one
 //! summary line, and the caution that a torque from video is a model.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::fmt::Write;
 

@@ -2,6 +2,9 @@
 //! (re-read up to the first analysed frame). Out: that frame with every mark's pivot, annulus,
 //! detected stripe and angle drawn (the overlay drawing, [`super::overlay`]), at most
 //! [`MAX_WIDTH_PX`] wide, as a PNG `data:` URI that the page carries inline.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use base64::Engine;
 use image::imageops::FilterType;

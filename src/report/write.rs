@@ -12,6 +12,9 @@
 //!
 //! Every file goes through [`write_file`]'s atomic write: a temporary file created exclusively
 //! (O_EXCL, never through a symbolic link) inside the output folder, then renamed into place.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::fs;
 use std::io::Write;

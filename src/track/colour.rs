@@ -25,6 +25,9 @@
 //! When the projection does not at least double Fisher's separation J = Δᵀ S_w⁻¹ Δ over luma
 //! alone (a monochrome camera, neutral chroma, or paint that already stands out in brightness),
 //! the mark keeps the exact luma path.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 // 3×3 matrix algebra on (Y′, Cb, Cr) reads most plainly with indices.
 #![allow(clippy::needless_range_loop)]

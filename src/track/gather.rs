@@ -9,6 +9,9 @@
 //! On x86-64 processors with AVX2 (checked at run time) 8-bit frames are sampled eight points
 //! at a time with gather loads; the arithmetic is the same operations in the same order, so the
 //! values are bit-identical to the plain loop (a unit test checks this).
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 /// A grid shift split into a whole-pixel index offset and the fractions left over
 /// (each in 0..1), as [`super::polar::PolarGrid`] makes it.

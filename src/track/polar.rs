@@ -10,6 +10,9 @@
 //! `M = R(φ)·diag(1, b/a)·R(−φ)` (orthographic view of a tilted circle: the axis along `φ` keeps
 //! its length and the perpendicular one shrinks by `b/a`). Angles are therefore measured in the
 //! disc's plane; they equal screen angles when there is no ellipse.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

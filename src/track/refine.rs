@@ -24,6 +24,9 @@
 //! direction's bias there, so they count once). Otherwise the rig's pivot is kept and the
 //! tracker says so.
 //! The fit needs one angle and one direction offset per frame (16 bytes each), no per-ring data.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::unwrap::wrap_pi;
 

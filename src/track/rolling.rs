@@ -28,6 +28,9 @@
 //! read by a slow readout, is bounded where a blow's peak is read
 //! (`mechanics::blows::skew`). Accuracy on rendered clips: docs/accuracy.md, "Rolling
 //! shutter".
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::rig::{Mark, Rig};
 use crate::track::polar::PolarGrid;

@@ -2,6 +2,9 @@
 //! clips with known truth (a check against the renderer, not the world): the target with the
 //! rig's readout, the bound's interval holding the truth where the correction cannot, the
 //! unknown-readout warning, and the figures of docs/accuracy.md, "Rolling shutter".
+//!
+//! Tests of part of the track stage: it must never import segment, mechanics, report,
+//! `analyze`, `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::analyze::AnalyzeOptions;
 use crate::decode::{Frame, MemorySource};

@@ -20,6 +20,9 @@
 //! The margins are measurement tolerance (a few times the worst per-frame noise the
 //! accuracy targets allow, 0.2°), not physics; they were set without looking at held-out
 //! scenes.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::Trace;
 use crate::error::{Error, Result};

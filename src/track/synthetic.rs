@@ -35,6 +35,9 @@
 //! Where nothing is noisy enough to tell (a noise-free render, or a phone encoder that has
 //! smoothed the noise away, with differences under a quarter of a sample step) no frame is
 //! flagged: the detector never guesses.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::decode::{FrameRef, LumaRef};
 use crate::rig::{Mark, Rig};

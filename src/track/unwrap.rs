@@ -6,6 +6,9 @@
 //! period, with the period as a parameter). A painted stripe on one side of the
 //! pivot is a directed mark, so the period is 2π and the true turn between two measured frames
 //! must stay under 180°.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

@@ -130,3 +130,139 @@ fn a_stage_reaching_forward_is_reported() {
         ]
     );
 }
+
+/// The library's top-level modules, as `crate::` paths name them.
+const MODULES: [&str; 19] = [
+    "decode",
+    "track",
+    "segment",
+    "mechanics",
+    "report",
+    "analyze",
+    "batch",
+    "cli",
+    "find_marks",
+    "calibrate",
+    "sanity",
+    "rig",
+    "timing",
+    "manifest",
+    "limits",
+    "stats",
+    "units",
+    "error",
+    "warning",
+];
+
+/// What a file's leading `//!` block says it must never import, as module names: the clause
+/// after "must never import" up to the end of its sentence. "the CLI" and "the command line"
+/// are `cli`; "any other module of the crate" is every module but the file's own; "a later
+/// one (…)" lists them in its parentheses. None when the block states no rule.
+fn stated_rule(text: &str, own: &str) -> Option<Vec<&'static str>> {
+    let block: String = text
+        .lines()
+        .take_while(|l| l.starts_with("//!"))
+        .map(|l| l.trim_start_matches("//!").trim())
+        .collect::<Vec<_>>()
+        .join(" ");
+    let at = block.find("must never import")?;
+    let clause = &block[at + "must never import".len()..];
+    let clause = match clause.find(". ") {
+        Some(end) => &clause[..end],
+        None => clause.trim_end_matches('.'),
+    };
+    if clause.contains("any other module of the crate") {
+        return Some(MODULES.iter().copied().filter(|m| *m != own).collect());
+    }
+    let words: Vec<String> = clause
+        .split(|c: char| !(c.is_ascii_alphanumeric() || c == '_'))
+        .map(str::to_lowercase)
+        .collect();
+    let mut out: Vec<&'static str> = MODULES
+        .iter()
+        .copied()
+        .filter(|m| words.iter().any(|w| w == m))
+        .collect();
+    if clause.contains("CLI") || clause.contains("command line") {
+        out.push("cli");
+    }
+    out.sort_unstable();
+    out.dedup();
+    Some(out)
+}
+
+/// Every source file's own stated rule, held against its code: files with no rule, and each
+/// `crate::` path a file's rule forbids.
+fn stated_rule_breaches(src: &Path) -> Vec<String> {
+    let mut files = Vec::new();
+    rust_files(src, &mut files);
+    let mut found = Vec::new();
+    for f in &files {
+        let rel = f.strip_prefix(src).unwrap();
+        let own = rel
+            .components()
+            .next()
+            .unwrap()
+            .as_os_str()
+            .to_string_lossy()
+            .trim_end_matches(".rs")
+            .to_string();
+        let text = std::fs::read_to_string(f).unwrap();
+        let Some(rule) = stated_rule(&text, &own) else {
+            found.push(format!(
+                "src/{}: its //! states no import rule",
+                rel.display()
+            ));
+            continue;
+        };
+        for (n, line) in code_lines(f) {
+            for m in crate_paths(&line) {
+                if m != own && rule.contains(&m) {
+                    found.push(format!(
+                        "src/{}:{n}: uses crate::{m}, which its //! forbids",
+                        rel.display()
+                    ));
+                }
+            }
+        }
+    }
+    found.sort();
+    found
+}
+
+#[test]
+fn every_file_states_what_it_must_never_import_and_keeps_to_it() {
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
+    let v = stated_rule_breaches(&src);
+    assert!(v.is_empty(), "{}", v.join("\n"));
+}
+
+/// The check can fail: a file with no rule, and one that uses what its rule forbids.
+#[test]
+fn a_file_breaking_its_own_rule_is_reported() {
+    let dir = std::env::temp_dir().join(format!("twistmark-rules-{}", std::process::id()));
+    std::fs::create_dir_all(dir.join("track")).unwrap();
+    std::fs::write(
+        dir.join("track/a.rs"),
+        "//! A file. It must never import segment,\n//! `batch` or the CLI.\nuse crate::decode::F;\n\
+         use crate::segment::B;\nuse crate::cli::C;\n",
+    )
+    .unwrap();
+    std::fs::write(dir.join("units.rs"), "//! A leaf.\nuse crate::error::E;\n").unwrap();
+    std::fs::write(
+        dir.join("stats.rs"),
+        "//! A shared leaf: it must never import any other module of the crate.\nuse crate::units::U;\nuse crate::stats::S;\n",
+    )
+    .unwrap();
+    let v = stated_rule_breaches(&dir);
+    std::fs::remove_dir_all(&dir).unwrap();
+    assert_eq!(
+        v,
+        [
+            "src/stats.rs:2: uses crate::units, which its //! forbids",
+            "src/track/a.rs:4: uses crate::segment, which its //! forbids",
+            "src/track/a.rs:5: uses crate::cli, which its //! forbids",
+            "src/units.rs: its //! states no import rule",
+        ]
+    );
+}

@@ -14,6 +14,9 @@
 //!   carry a stale one. Each packet of the supported codecs holds exactly one frame, and B-frame
 //!   reordering changes the order frames leave the decoder, not their number; the tests check
 //!   the count against a full decode for every codec and container.
+//!
+//! Part of the decode stage: it must never import track, segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::path::{Path, PathBuf};
 

@@ -1,6 +1,9 @@
 //! Opening a video file with FFmpeg: the input (paths and descriptors), the frame count by
 //! demuxing alone, the stream's properties (intra-only codec, display rotation) and FFmpeg's
 //! errors as messages.
+//!
+//! Part of the decode stage: it must never import track, segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::path::Path;
 

@@ -1,5 +1,8 @@
 //! Reading luma (and 8-bit chroma) out of FFmpeg's decoded pictures: how each pixel format's
 //! Y plane is read, the row copies, bottom-up pictures, and a picture held in place.
+//!
+//! Part of the decode stage: it must never import track, segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use ff::format::Pixel;
 use ffmpeg_next as ff;

@@ -1,5 +1,8 @@
 //! Tests of the video reader: pixel-format plans, every codec and container against a full
 //! decode, damaged and rotated clips (clips written by the test bench's clip writer).
+//!
+//! Tests of part of the decode stage: it must never import track, segment, mechanics, report,
+//! `analyze`, `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::*;
 use crate::decode::LumaRef;

@@ -4,6 +4,9 @@
 //! In: the rig's `"bar"` object in mm, GPa, MPa, kg. Out: SI quantities (m, Pa, N·m/rad).
 //! Formulas (torsion constant and maximum shear stress per shape) cite their source where
 //! they are defined, in [`SectionSpec`]'s methods.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 mod sections;
 mod validate;

@@ -18,6 +18,9 @@
 //! their table for rectangular bars, k₁ = 0.1406 and k₂ = 0.208 at a side ratio of 1
 //! (J = k₁·s⁴, τ_max = T/(k₂·s³); table values from memory). For the hexagon, the handbook
 //! value ≈ 0.115·s⁴ across flats is from memory; the solve here is the check.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use super::SectionSpec;
 use super::sections::{HEX_J_COEFF, HEX_TAU_COEFF, SQUARE_J_COEFF, SQUARE_TAU_COEFF};

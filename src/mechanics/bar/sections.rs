@@ -2,6 +2,9 @@
 //! constant and maximum shear stress per unit torque, each formula with its source, and the
 //! compliance of one prismatic segment. Part of the mechanics stage: imports nothing from
 //! report, `analyze`, `batch` or the CLI.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

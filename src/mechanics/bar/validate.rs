@@ -1,6 +1,9 @@
 //! Validation of the rig's `"bar"` object: every dimension, modulus, steel name, inertia and
 //! calibration field, each error naming its field and what to change. Part of the mechanics
 //! stage: imports nothing from report, `analyze`, `batch` or the CLI.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use crate::error::{Error, Result};
 use crate::mechanics::steel::{self, SHEAR_MODULUS_RANGE_GPA, Steel};

@@ -30,6 +30,9 @@
 //! - [`BarReport::springback_verdict_for_blows`]`(&onsets_s, &residual_twist, &peak_twist)`
 //!   for the clip's verdict and its one sentence (`verdict.sentence`).
 //! - [`BarReport::to_json`] for a `"bar"` block with unit-suffixed keys.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use serde::Serialize;
 

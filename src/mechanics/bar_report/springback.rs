@@ -1,6 +1,9 @@
 //! Spring-back of the drive end on the bar: the model (free torsional vibration of the
 //! drive-end inertia on the bar, released from rest at the peak twist) and the verdict that
 //! compares it with the measured residual twist. See the parent module's doc for the model.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

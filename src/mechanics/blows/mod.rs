@@ -33,6 +33,9 @@
 //!   nut first moved in that blow.
 //!
 //! A torque computed this way is a model (stiffness × twist), not a calibrated measurement.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 mod peak;
 mod skew;

@@ -5,6 +5,9 @@
 //! world. The draw also varies what the fit holds fixed (the bar's damping, the blow's pulse
 //! length, the tool's forward damping), so the model the fit assumes is never exactly the one
 //! that made the clip.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use rand::rngs::ChaCha8Rng;
 use rand::{RngExt, SeedableRng};

@@ -1,5 +1,8 @@
 //! The minimiser of the blow model's fit: Levenberg–Marquardt on every parameter but the
 //! breakaway ratio, which is profiled on a grid (see the module above for the sources).
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use super::prepare::Prepared;
 use super::*;

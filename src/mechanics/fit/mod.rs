@@ -12,6 +12,9 @@
 //! diagonal of s²·(JᵀJ)⁻¹, with J the Jacobian of the weighted residuals at the optimum
 //! and s² the residual variance per degree of freedom (the usual linearised covariance of a
 //! least-squares estimate; e.g. Press et al., *Numerical Recipes*, 3rd ed., §15.5).
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};

@@ -1,6 +1,9 @@
 //! The clip as the blow model's fit sees it: the model's physical constants decoded from the
 //! fitted vector, the frames used and their weights, the model's runs on them and the
 //! residuals the minimiser reduces.
+//!
+//! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
+//! `calibrate` or the CLI.
 
 use super::*;
 use crate::mechanics::model::{Joint, Model};

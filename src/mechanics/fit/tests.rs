@@ -2,6 +2,9 @@
 //! physics (tools/scenes/src/synth) with known truth: a check of the method on our invented bench, not of
 //! the world. The fit sees only what a report holds (frame-sampled angles with seeded noise,
 //! onset frames, the bar's stiffness); the truth is the renderer's own constants.
+//!
+//! Tests of part of the mechanics stage: it must never import report, `analyze`, `batch`,
+//! `find_marks`, `calibrate` or the CLI.
 
 use rand::SeedableRng;
 use rand::rngs::ChaCha8Rng;

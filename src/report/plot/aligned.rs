@@ -3,6 +3,9 @@
 //! back before the next). Torque = stiffness × twist on the right axis, on the twist axis's
 //! own grid lines. Colours run from light (first blow) to dark (last); blows in which the nut
 //! did not advance are grey and dashed.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use plotters::coord::Shift;
 use plotters::prelude::*;

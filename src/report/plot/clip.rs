@@ -1,6 +1,9 @@
 //! The three per-clip plots: `angles` (drive and nut angle against time, blow onsets
 //! marked), `twist_torque` (twist with torque = stiffness × twist on the right axis and the
 //! rating as a line) and `nut_advance` (nut advance per blow as bars).
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::*;
 

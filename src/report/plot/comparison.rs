@@ -1,6 +1,9 @@
 //! The batch comparison plot: torque per clip against the bar's rating, peak and holding
 //! torque against blow rate (coloured by manifest group), and nut advance per blow across
 //! clips.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::path::{Path, PathBuf};
 

@@ -7,6 +7,9 @@
 //! `comparison` (`plot/comparison.rs`: peak torque and torque on the last advancing blow against the rating, per
 //! clip; nut advance per blow overlaid across clips). PNGs are rendered into an RGB buffer
 //! and saved with `image`, so plotters needs no image encoder of its own.
+//!
+//! Part of the report stage: it reads results through `crate::Analysis` and must never import
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;

@@ -1,4 +1,7 @@
 //! Tests of the plots, and the sample analysis other modules' tests draw from.
+//!
+//! Tests of part of the report stage: it reads results through `crate::Analysis` and must never
+//! import `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::*;
 use crate::analyze::FpsSource;

@@ -1,5 +1,8 @@
 //! The coarse search: box (matched-filter) responses of whole rings, their sum over rings, and
 //! the peak of that score (the module's steps 1–4), with the first frame's matched filter.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

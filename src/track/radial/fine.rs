@@ -1,5 +1,8 @@
 //! The fine centre of the stripe on one ring: a baseline-corrected centroid in a window that
 //! re-centres on its answer (the module's step 5).
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::{FINE_STOP_BINS, RING_MIN_Z, RadialTracker};
 use crate::track::polar::{Prepared, WHOLE_RING};

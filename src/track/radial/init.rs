@@ -1,5 +1,8 @@
 //! The first frame: finds the stripe's polarity, width and per-ring offsets, and builds the
 //! coarse grid that later frames search.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

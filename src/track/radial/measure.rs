@@ -1,5 +1,8 @@
 //! A later frame: the coarse search over the whole circle, the fine centre per ring and the
 //! robust combination of the rings (the module's steps 3–6).
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

@@ -39,6 +39,9 @@
 //!
 //! Cost: a 1280×720 clip's mark of 32 rings × 964 bins is about 31,000 samples whole; per later
 //! frame the coarse grid and the fine windows take a few thousand (docs/performance.md).
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::PI;
 

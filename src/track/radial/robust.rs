@@ -1,4 +1,7 @@
 //! Medians used by the combination of rings.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 /// Median of `v` (using `buf` as scratch, no allocation once `buf` has capacity).
 pub(super) fn median_of(v: &[f64], buf: &mut Vec<(f64, f64)>) -> f64 {

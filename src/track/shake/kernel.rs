@@ -3,6 +3,9 @@
 //! over a pixel, which is what bilinear resampling and the gradient step assume; without it the
 //! estimate locks to preferred sub-pixel phases ("peak locking": Nobach & Honkanen, Exp. Fluids
 //! 38 (2005) 511–515).
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::decode::{FrameRef, LumaRef};
 

@@ -19,6 +19,9 @@
 //! frame in [`ROLL_PROBE_STRIDE`] only, to watch for roll, since its result would be thrown
 //! away (docs/performance.md, "Where it stands"). The
 //! //! pose's convention is in `pose.rs`; the frame is read through `kernel.rs`.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 mod kernel;
 mod pose;

@@ -1,4 +1,7 @@
 //! The camera's pose in one frame relative to the first: a shift and a roll about a centre.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 /// The camera's motion in one frame relative to the first: a point at `p` in the first frame
 /// appears at `centre + shift + R(roll)·(p − centre)` (screen coordinates, x right, y down;

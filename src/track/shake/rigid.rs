@@ -35,6 +35,9 @@
 //!
 //! The frame is read through the binomial kernel (σ = 1 px) folded with bilinear interpolation
 //! ([`super::kernel::folded_kernel`]), per point, so no region of the frame is copied.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::decode::FrameRef;
 use crate::rig::RadialMark;

@@ -2,6 +2,9 @@
 //! clip's rolls stand clearly above their noise, then each frame's roll shrunk by its noise
 //! (the sources are in [`RollShrink::shrink`]). Kept apart from the registration, which only
 //! measures each frame's roll and its variance.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 /// Registered frames needed before any roll is applied (see [`RollShrink::shrink`]).
 pub(super) const MIN_ROLL_FRAMES: f64 = 20.0;

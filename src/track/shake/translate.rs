@@ -21,6 +21,9 @@
 //! d's fraction; [`folded_kernel`]). Points whose neighbourhood would cross the region's edge
 //! (a shake of many pixels) take the per-point path instead: the 2×2 smoothed blocks they land
 //! on, with the region's edge repeated as the first frame's smoothing repeats it.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::decode::{FrameRef, LumaRef};
 use crate::rig::RadialMark;

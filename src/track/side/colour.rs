@@ -11,6 +11,9 @@
 //! scale), and the paint is the run of bins around the one farthest from it in Cb and Cr. A
 //! lamp's reflection along the bar is white (far in Y′, not in chroma), so it lands in the
 //! steel class with the shading, and its scatter gives brightness little weight.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use crate::decode::{FrameRef, LumaRef};
 use crate::stats::median_in_place;

@@ -12,6 +12,9 @@
 //! of it seen): that frame is a loss, not a reading. After a loss, every stripe seen in
 //! range is a candidate, and the bar angle nearest the last measured one is taken: right
 //! whenever the bar turned less than half the stripe spacing while no stripe was measurable.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use std::f64::consts::{PI, TAU};
 

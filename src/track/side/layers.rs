@@ -17,6 +17,9 @@
 //!    over the line cannot be told from the line.
 //! 4. The paint is followed (`follow.rs`) on the corrected profiles from its first-frame place;
 //!    where it has gone round the back, nothing is left in range to follow, so the frame is null.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::follow::Follower;
 use super::{MAX_FACING_DEG, STEP_DEG};

@@ -15,6 +15,9 @@
 //! motion, the lines are taken out, and the paint is followed (`follow.rs`). A stripe beyond
 //! [`MAX_FACING_DEG`] from facing the camera, round the back, or on a static line's core is a
 //! loss (None), never a guess.
+//!
+//! Part of the track stage: it must never import segment, mechanics, report, `analyze`,
+//! `batch`, `find_marks`, `calibrate` or the CLI.
 
 mod colour;
 mod follow;
