@@ -249,8 +249,12 @@ pub fn analyze_source(
     let reading = mechanics::Reading {
         skew: readout_skew(rig, clip.height, camera_clock, captured.time_base.fps_hz()),
         tracking_sigma: Angle::from_deg(crate::track::validation::twist_sigma_deg(
-            clip.lossy(),
-            camera_motion.map(|m| m.shift_rms_px),
+            &crate::track::validation::Footage {
+                lossy: clip.lossy(),
+                camera_shift_rms_px: camera_motion.map(|m| m.shift_rms_px),
+                lost_share: crate::track::lost_share(&trace.drive)
+                    .max(crate::track::lost_share(&trace.nut)),
+            },
         )),
     };
     let (mut blows, mut summary, mech_warnings) =

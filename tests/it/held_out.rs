@@ -19,7 +19,10 @@
 //!
 //! `HELD_OUT_TAG=shake` keeps only the scenes drawn with that tag; `TUNE_SEEDS=a,b,...` runs
 //! tuning seeds instead of the held-out list (it refuses held-out seeds); `HELD_OUT_DUMP=dir`
-//! writes each scene's per-frame angles beside the truth to `dir/<seed>.csv`.
+//! writes each scene's per-frame angles beside the truth to `dir/<seed>.csv`;
+//! `HELD_OUT_LIST=second` runs the second held-out list (`tests/held_out_seeds_second.txt`,
+//! drawn after the first had been folded into the data that set the intervals' tracking term);
+//! `HELD_OUT_BLOW_CSV=file` appends each blow's peak twist, interval and truth.
 
 // Without FFmpeg only the stills cases run; the scoring helpers serve the video ones too.
 #![cfg_attr(not(feature = "ffmpeg"), allow(dead_code))]
