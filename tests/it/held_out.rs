@@ -22,7 +22,9 @@
 //! writes each scene's per-frame angles beside the truth to `dir/<seed>.csv`;
 //! `HELD_OUT_LIST=second` runs the second held-out list (`tests/held_out_seeds_second.txt`,
 //! drawn after the first had been folded into the data that set the intervals' tracking term);
-//! `HELD_OUT_BLOW_CSV=file` appends each blow's peak twist, interval and truth.
+//! `HELD_OUT_LIST=third` runs the third (`tests/held_out_seeds_third.txt`, drawn before the
+//! second list's failures were looked into); `HELD_OUT_BLOW_CSV=file` appends each blow's
+//! peak twist, interval and truth.
 
 // Without FFmpeg only the stills cases run; the scoring helpers serve the video ones too.
 #![cfg_attr(not(feature = "ffmpeg"), allow(dead_code))]
@@ -309,6 +311,13 @@ fn second_seeds() -> Vec<u64> {
     parse_seeds(text).unwrap()
 }
 
+/// The third held-out list (tests/held_out_seeds_third.txt), drawn before the second list's
+/// failures were looked into.
+fn third_seeds() -> Vec<u64> {
+    let text = include_str!("../held_out_seeds_third.txt");
+    parse_seeds(text).unwrap()
+}
+
 fn median(mut v: Vec<f64>) -> f64 {
     v.sort_by(f64::total_cmp);
     let n = v.len();
@@ -422,16 +431,18 @@ fn regenerate_held_out_table() {
     let list = match std::env::var("TUNE_SEEDS") {
         Ok(v) => {
             let tune = parse_seeds(&v.replace(',', "\n")).unwrap();
-            let (held, second) = (seeds(), second_seeds());
+            let (held, second, third) = (seeds(), second_seeds(), third_seeds());
             assert!(
                 tune.iter()
-                    .all(|s| !held.contains(s) && !second.contains(s)),
+                    .all(|s| !held.contains(s) && !second.contains(s) && !third.contains(s)),
                 "TUNE_SEEDS holds a held-out seed"
             );
             tune
         }
         // HELD_OUT_LIST=second runs the second held-out list instead of the first.
         Err(_) if std::env::var("HELD_OUT_LIST").is_ok_and(|v| v == "second") => second_seeds(),
+        // HELD_OUT_LIST=third runs the third.
+        Err(_) if std::env::var("HELD_OUT_LIST").is_ok_and(|v| v == "third") => third_seeds(),
         Err(_) => seeds(),
     };
     let no_shake = std::env::var("HELD_OUT_NO_SHAKE").is_ok_and(|v| v == "1");
