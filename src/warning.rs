@@ -35,6 +35,19 @@ pub enum Warning {
         /// The largest lag seen in the run, degrees.
         lag_deg: f64,
     },
+    /// In a run of frames the line of a mark's tracked stripe lay askew of the stripe seen in
+    /// the first frames, so the tracker was reading another feature; those angles are null
+    /// (`track::stripe_identity`).
+    StripeAskew {
+        /// The mark's role.
+        mark: String,
+        /// First frame of the run (clip frame index).
+        first_frame: u64,
+        /// Last frame of the run (clip frame index, inclusive).
+        last_frame: u64,
+        /// The largest skew seen in the run, degrees.
+        skew_deg: f64,
+    },
     /// A mark could not be found in a run of frames; those frames are null in the trace.
     MarkLost {
         /// The mark's role.
@@ -228,6 +241,19 @@ impl fmt::Display for Warning {
                  behind brightness: record with less compression or a lossless codec; else \
                  check that the paint stays inside the annulus, or use a paint that differs \
                  from the metal in brightness)"
+            ),
+            Warning::StripeAskew {
+                mark,
+                first_frame,
+                last_frame,
+                skew_deg,
+            } => write!(
+                f,
+                "mark '{mark}': in frames {first_frame}..={last_frame} the tracked stripe's line \
+                 lay up to {skew_deg:.0}° askew of the stripe seen in the first frames, so the \
+                 tracker was reading something else there (a scratch, a recess edge, a hole or \
+                 a blur trail) and those angles are null (check that nothing but the paint \
+                 crosses the annulus, and the mark's pivot and radii against the first frame)"
             ),
             Warning::MarkLost {
                 mark,

@@ -8,7 +8,9 @@ use crate::units::{Angle, TimeBase};
 use crate::warning::Warning;
 
 use super::unwrap::wrap_pi;
-use super::{MarkTrack, Reader, Trace, Tracker, refine, selfcheck, side, texture, unwrap};
+use super::{
+    MarkTrack, Reader, Trace, Tracker, refine, selfcheck, side, stripe_identity, texture, unwrap,
+};
 
 impl Tracker {
     /// Unwraps the angles and returns the trace, with warnings for lost marks.
@@ -34,6 +36,12 @@ impl Tracker {
                     t.role.name()
                 )));
             }
+            if outcome == refine::Outcome::Implausible {
+                notes.push(Warning::Note(format!(
+                    "the {} mark's pivot was not refined: its stripe's direction over this clip asks for a pivot correction that would change its angles by more than 10 % of each turn, more than any pivot error makes (the stripe was likely read on another feature in some frames); the rig's pivot is kept, so check it against the first frame",
+                    t.role.name()
+                )));
+            }
             let zero = refined.first().copied().flatten();
             let v = refined
                 .iter()
@@ -48,19 +56,35 @@ impl Tracker {
                 .map(|z| Angle::from_rad(wrap_pi(radial.grid().screen_angle(z))));
             (v, screen)
         };
+        // A radial stripe whose line lies askew of the first frames' is another feature
+        // (`stripe_identity.rs`): those frames are null, with the reason, before the pivot
+        // refinement sees them.
+        let mut lagged: Vec<Warning> = Vec::new();
+        for t in [&mut self.drive, &mut self.nut] {
+            if !matches!(t.reader, Reader::Radial(_)) {
+                continue;
+            }
+            for (from, to, skew_deg) in stripe_identity::askew_runs(&t.dir_offset) {
+                for i in from..=to.min(t.angle.len().saturating_sub(1)) {
+                    t.null_frame(i);
+                }
+                lagged.push(Warning::StripeAskew {
+                    mark: t.role.name().into(),
+                    first_frame: self.frames.get(from).copied().unwrap_or(from as u64),
+                    last_frame: self.frames.get(to).copied().unwrap_or(to as u64),
+                    skew_deg,
+                });
+            }
+        }
         // A colour track behind its own part's texture at rest is not a measurement there
         // (`texture.rs`): those frames are null, with the reason (not as lost marks).
-        let mut lagged: Vec<Warning> = Vec::new();
         for t in [&mut self.drive, &mut self.nut] {
             let Some(tex) = t.texture.take() else {
                 continue;
             };
             for (from, to, lag_deg) in texture::lagging_runs(&tex.checks, &t.angle) {
                 for i in from..=to.min(t.angle.len().saturating_sub(1)) {
-                    t.angle[i] = None;
-                    t.dir_offset[i] = None;
-                    t.confidence[i] = 0.0;
-                    t.row[i] = None;
+                    t.null_frame(i);
                 }
                 lagged.push(Warning::ColourLagsTexture {
                     mark: t.role.name().into(),

@@ -49,6 +49,7 @@ pub mod rolling;
 mod selfcheck;
 mod shake;
 mod side;
+mod stripe_identity;
 pub mod synthetic;
 mod texture;
 pub(crate) mod unwrap;
@@ -166,6 +167,22 @@ impl MarkTrack {
     /// True for a side-view mark.
     fn is_side(&self) -> bool {
         matches!(self.reader, Reader::Side(_))
+    }
+
+    /// Makes frame `i`'s measurement null (a check found it was not of the stripe).
+    fn null_frame(&mut self, i: usize) {
+        if let Some(a) = self.angle.get_mut(i) {
+            *a = None;
+        }
+        if let Some(o) = self.dir_offset.get_mut(i) {
+            *o = None;
+        }
+        if let Some(c) = self.confidence.get_mut(i) {
+            *c = 0.0;
+        }
+        if let Some(r) = self.row.get_mut(i) {
+            *r = None;
+        }
     }
 
     /// Makes the last frame's measurement null (the camera's motion there is unknown).

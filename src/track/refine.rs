@@ -46,6 +46,17 @@ const MIN_CORRECTION_RAD: f64 = 0.1 * std::f64::consts::PI / 180.0;
 /// The measured angles must fall in at least this many distinct whole degrees: a clip that
 /// sits at a handful of angles lets the curve follow the direction's bias at each of them.
 const MIN_DISTINCT_DEG: usize = 12;
+/// The steepest the correction may be over the angles seen, |d(correction)/dθ|: a tenth.
+/// The form `b·sin θ + c·cos θ` is the first-order term of the error an offset pivot makes
+/// (offset d at radius r: amplitude d/r, so a slope of at most d/r), and the second-order
+/// term it leaves out is about (d/r)²/2, 0.29° at d/r = 0.1, beyond the angle targets; a
+/// steeper fitted curve is not a pivot error this step can correct. It is what a stripe
+/// direction pulled by something else gives (a stripe read on another feature for a few
+/// frames fitted a 30° "correction" on tuning seed 202, and the drive then read 3.6° ahead in
+/// its first blow). The slope is what a correction does to a torque (a slope of 0.1 scales
+/// every angle change by 10 %), and it is well determined inside the seen range even when the
+/// part turns too little to separate b and c.
+const MAX_SLOPE: f64 = 0.1;
 /// Frames needed before the correction is fitted.
 const MIN_FRAMES: usize = 8;
 /// Frames whose direction disagrees with the fitted curve by more than this many robust
@@ -67,6 +78,9 @@ pub(crate) enum Outcome {
     /// stripe direction's own noise (or from features that are not paint pulling it): the rig's
     /// pivot is kept.
     NotSignificant,
+    /// The fitted correction is steeper than any pivot error it can model ([`MAX_SLOPE`]):
+    /// the stripe's direction was pulled by something else, and the rig's pivot is kept.
+    Implausible,
 }
 
 /// Refined angles, same length as `angles`, and what was done; `offsets[i]` is frame i's
@@ -125,6 +139,15 @@ pub(crate) fn refine(
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| {
             (lo.min(t), hi.max(t))
         });
+    // The correction's slope over the seen range (a sinusoid: sampled finely enough that its
+    // largest value is missed by at most about a part in a thousand over a range up to a turn).
+    let steepest = (0..=64)
+        .map(|k| tmin + (tmax - tmin) * f64::from(k) / 64.0)
+        .map(|t| (coef[1] * t.cos() - coef[2] * t.sin()).abs())
+        .fold(0.0, f64::max);
+    if steepest > MAX_SLOPE {
+        return (angles.to_vec(), Outcome::Implausible);
+    }
     let g = [0.0, tmax.sin() - tmin.sin(), tmax.cos() - tmin.cos()];
     let change = g[1] * coef[1] + g[2] * coef[2];
     // The direction's bias depends on the angle (pixelation, compression, texture under the
@@ -360,6 +383,28 @@ mod tests {
         let (out, outcome) = refine(&angles, &offsets);
         assert_ne!(outcome, Outcome::Applied);
         assert_eq!(out, angles);
+    }
+
+    #[test]
+    fn a_stripe_read_on_another_feature_for_many_frames_keeps_the_rig_pivot() {
+        // Tuning seed 202's drive, in shape: a stripe tracked about a pivot 1 px off for 140
+        // frames, then read on another feature (11° further on, its "line" 27° askew) in the
+        // remaining 95, more than a robust pass can drop. The fit asks for a correction far
+        // steeper than a pivot error makes; applied, it skewed the first 140 frames by degrees.
+        let radius: Vec<f64> = (0..30).map(|i| 10.0 + 2.0 * i as f64).collect();
+        let angles: Vec<f64> = (0..140)
+            .map(|i| (43.0 + 0.2 * i as f64).to_radians())
+            .collect();
+        let (mut meas, mut offsets) = rings_for([0.6, 0.8], 0.0, &angles, &radius);
+        let good = refine(&meas, &offsets);
+        assert_eq!(good.1, Outcome::Applied, "the clean part alone is refined");
+        for i in 0..95 {
+            meas.push(Some((82.0 + 0.02 * f64::from(i)).to_radians()));
+            offsets.push(Some((-27.0f64).to_radians()));
+        }
+        let (out, outcome) = refine(&meas, &offsets);
+        assert_eq!(outcome, Outcome::Implausible);
+        assert_eq!(out, meas);
     }
 
     #[test]

@@ -24,7 +24,8 @@
 //! drawn after the first had been folded into the data that set the intervals' tracking term);
 //! `HELD_OUT_LIST=third` runs the third (`tests/held_out_seeds_third.txt`, drawn before the
 //! second list's failures were looked into); `HELD_OUT_BLOW_CSV=file` appends each blow's
-//! peak twist, interval and truth.
+//! peak twist, interval and truth; `HELD_OUT_ONLY=seed` runs that one seed of the chosen
+//! list; `HELD_OUT_KEEP=dir` keeps each scene's clip, rig and truth in `dir/<seed>/`.
 
 // Without FFmpeg only the stills cases run; the scoring helpers serve the video ones too.
 #![cfg_attr(not(feature = "ffmpeg"), allow(dead_code))]
@@ -156,6 +157,24 @@ fn score_scene(seed: u64, r: RandomScene) -> Score {
     let dir = tempfile::tempdir().unwrap();
     let clip = write_clip(&r, &truth, dir.path());
     let rig = r.scenario.rig();
+    // HELD_OUT_KEEP=dir keeps each scene's clip, rig and truth in dir/<seed>/ (a diagnostic
+    // for tuning seeds: run the binary on them to see every warning).
+    if let Ok(keep) = std::env::var("HELD_OUT_KEEP") {
+        let to = Path::new(&keep).join(seed.to_string());
+        std::fs::create_dir_all(&to).unwrap();
+        let status = std::process::Command::new("cp")
+            .arg("-r")
+            .arg(format!("{}/.", dir.path().display()))
+            .arg(&to)
+            .status()
+            .unwrap();
+        assert!(status.success());
+        std::fs::write(
+            to.join("rig.json"),
+            serde_json::to_string_pretty(&rig).unwrap(),
+        )
+        .unwrap();
+    }
     let mut s = Score {
         seed,
         recording: r.recording.name(),
@@ -447,11 +466,15 @@ fn regenerate_held_out_table() {
     };
     let no_shake = std::env::var("HELD_OUT_NO_SHAKE").is_ok_and(|v| v == "1");
     let tag = std::env::var("HELD_OUT_TAG").ok();
+    let only: Option<u64> = std::env::var("HELD_OUT_ONLY")
+        .ok()
+        .map(|v| v.parse().unwrap());
     let scores: Vec<Score> = list
         .into_iter()
         .filter(|&seed| {
             let tags = random_scene(seed).tags;
-            (!no_shake || !tags.iter().any(|t| t == "shake" || t == "roll"))
+            only.is_none_or(|o| o == seed)
+                && (!no_shake || !tags.iter().any(|t| t == "shake" || t == "roll"))
                 && tag.as_ref().is_none_or(|t| tags.iter().any(|x| x == t))
         })
         .map(|seed| {
