@@ -60,18 +60,18 @@ impl Tracker {
         // (`stripe_identity.rs`): those frames are null, with the reason, before the pivot
         // refinement sees them.
         let mut lagged: Vec<Warning> = Vec::new();
+        // Clip frame index of a trace index.
+        let frame = |i: usize| self.frames.get(i).copied().unwrap_or(i as u64);
         for t in [&mut self.drive, &mut self.nut] {
             if !matches!(t.reader, Reader::Radial(_)) {
                 continue;
             }
             for (from, to, skew_deg) in stripe_identity::askew_runs(&t.dir_offset) {
-                for i in from..=to.min(t.angle.len().saturating_sub(1)) {
-                    t.null_frame(i);
-                }
+                t.null_frames(from, to);
                 lagged.push(Warning::StripeAskew {
                     mark: t.role.name().into(),
-                    first_frame: self.frames.get(from).copied().unwrap_or(from as u64),
-                    last_frame: self.frames.get(to).copied().unwrap_or(to as u64),
+                    first_frame: frame(from),
+                    last_frame: frame(to),
                     skew_deg,
                 });
             }
@@ -83,13 +83,11 @@ impl Tracker {
                 continue;
             };
             for (from, to, lag_deg) in texture::lagging_runs(&tex.checks, &t.angle) {
-                for i in from..=to.min(t.angle.len().saturating_sub(1)) {
-                    t.null_frame(i);
-                }
+                t.null_frames(from, to);
                 lagged.push(Warning::ColourLagsTexture {
                     mark: t.role.name().into(),
-                    first_frame: self.frames.get(from).copied().unwrap_or(from as u64),
-                    last_frame: self.frames.get(to).copied().unwrap_or(to as u64),
+                    first_frame: frame(from),
+                    last_frame: frame(to),
                     lag_deg,
                 });
             }

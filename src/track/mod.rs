@@ -169,19 +169,22 @@ impl MarkTrack {
         matches!(self.reader, Reader::Side(_))
     }
 
-    /// Makes frame `i`'s measurement null (a check found it was not of the stripe).
-    fn null_frame(&mut self, i: usize) {
-        if let Some(a) = self.angle.get_mut(i) {
-            *a = None;
-        }
-        if let Some(o) = self.dir_offset.get_mut(i) {
-            *o = None;
-        }
-        if let Some(c) = self.confidence.get_mut(i) {
-            *c = 0.0;
-        }
-        if let Some(r) = self.row.get_mut(i) {
-            *r = None;
+    /// Makes the measurements of frames `from..=to` null (a check found they were not of the
+    /// stripe); indices past the end are ignored.
+    fn null_frames(&mut self, from: usize, to: usize) {
+        for i in from..=to {
+            if let Some(a) = self.angle.get_mut(i) {
+                *a = None;
+            }
+            if let Some(o) = self.dir_offset.get_mut(i) {
+                *o = None;
+            }
+            if let Some(c) = self.confidence.get_mut(i) {
+                *c = 0.0;
+            }
+            if let Some(r) = self.row.get_mut(i) {
+                *r = None;
+            }
         }
     }
 
