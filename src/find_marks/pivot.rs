@@ -14,9 +14,6 @@
 //! Part of the `find-marks` command (built on decode and track, writing through report): it
 //! must never import segment, mechanics, `analyze`, `batch` or the CLI.
 
-use rand::rngs::ChaCha8Rng;
-use rand::{RngExt, SeedableRng};
-
 /// A line on screen: `n·p = d` with `n` a unit normal.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(super) struct Line {
@@ -86,11 +83,11 @@ pub(super) fn meet(lines: &[Line]) -> Option<Meeting> {
     if lines.len() < 2 {
         return None;
     }
-    let mut rng = ChaCha8Rng::seed_from_u64(0x0070_6976_6f74);
+    let mut rng = fastrand::Rng::with_seed(0x0070_6976_6f74);
     let mut best: Option<([f64; 2], usize)> = None;
     for _ in 0..PAIRS {
-        let i = rng.random_range(0..lines.len());
-        let j = rng.random_range(0..lines.len());
+        let i = rng.usize(0..lines.len());
+        let j = rng.usize(0..lines.len());
         let (a, b) = (lines[i], lines[j]);
         let det = a.n[0] * b.n[1] - a.n[1] * b.n[0];
         if det.abs() < MIN_SIN {

@@ -16,8 +16,6 @@
 //! `calibrate` or the CLI.
 
 use nalgebra::{DMatrix, DVector};
-use rand::rngs::ChaCha8Rng;
-use rand::{RngExt, SeedableRng};
 use serde::{Deserialize, Serialize};
 
 use super::fit::{BREAKAWAY_INDEX, ModelFit, N_PARAMS, physical};
@@ -259,7 +257,7 @@ pub fn predict(fit: &ModelFit, input: &PredictInput) -> Result<Prediction> {
                 }
             })
         });
-    let mut rng = ChaCha8Rng::seed_from_u64(22);
+    let mut rng = fastrand::Rng::with_seed(22);
     let mut holding = Vec::with_capacity(PREDICT_DRAWS);
     let mut peaks = vec![Vec::with_capacity(PREDICT_DRAWS); n];
     let mut turns = vec![0usize; n];
@@ -429,8 +427,8 @@ fn extrapolation(fit: &ModelFit, k: f64, rate: f64, n: usize, nut: f64, peak: f6
 }
 
 /// One standard normal deviate (Box–Muller).
-fn gauss(rng: &mut ChaCha8Rng) -> f64 {
-    let u1: f64 = 1.0 - rng.random::<f64>();
-    let u2: f64 = rng.random::<f64>();
+fn gauss(rng: &mut fastrand::Rng) -> f64 {
+    let u1 = 1.0 - rng.f64();
+    let u2 = rng.f64();
     (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
 }

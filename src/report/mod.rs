@@ -31,6 +31,7 @@ pub(crate) mod bar_json;
 pub use bar_json::{BarJson, SectionJson};
 mod csv;
 mod display;
+mod draw;
 mod html;
 mod html_summary;
 mod json;

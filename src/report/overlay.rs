@@ -18,11 +18,10 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use ab_glyph::{FontRef, PxScale};
+use ab_glyph::FontRef;
 use image::{Rgb, RgbImage};
-use imageproc::drawing::{draw_filled_rect_mut, draw_line_segment_mut, draw_text_mut, text_size};
-use imageproc::rect::Rect;
 
+use super::draw;
 use crate::analyze::Analysis;
 use crate::decode::{self, Frame, FrameSource};
 use crate::error::{Error, Result};
@@ -234,7 +233,7 @@ pub(crate) fn thick_line(
     let (nx, ny) = (-dy / len, dx / len);
     for k in 0..width {
         let o = k as f32 - (width - 1) as f32 / 2.0;
-        draw_line_segment_mut(
+        draw::line(
             img,
             (a.0 + nx * o, a.1 + ny * o),
             (b.0 + nx * o, b.1 + ny * o),
@@ -264,17 +263,19 @@ pub(crate) fn disc_point(
 }
 
 pub(crate) fn label(img: &mut RgbImage, font: &FontRef<'_>, x: i32, y: i32, size: f32, text: &str) {
-    let scale = PxScale::from(size);
-    let (tw, th) = text_size(scale, font, text);
+    let (tw, th) = draw::text_size(font, size, text);
     let pad = 3;
     let x = x.clamp(0, (img.width() as i32 - tw as i32 - 2 * pad).max(0));
     let y = y.clamp(0, (img.height() as i32 - th as i32 - 2 * pad).max(0));
-    draw_filled_rect_mut(
+    draw::fill_rect(
         img,
-        Rect::at(x, y).of_size(tw + 2 * pad as u32, th + 2 * pad as u32 + 2),
+        x,
+        y,
+        tw + 2 * pad as u32,
+        th + 2 * pad as u32 + 2,
         TEXT_BG,
     );
-    draw_text_mut(img, TEXT, x + pad, y + pad, scale, font, text);
+    draw::text(img, font, size, (x + pad, y + pad), TEXT, text);
 }
 
 pub(crate) fn draw_overlay(

@@ -11,9 +11,10 @@
 //! Part of the report stage: it reads results through `crate::Analysis` and must never import
 //! `batch`, `find_marks`, `calibrate` or the CLI.
 
-use ab_glyph::{FontRef, PxScale};
+use ab_glyph::FontRef;
 use image::{Rgb, RgbImage};
-use imageproc::drawing::{draw_line_segment_mut, draw_text_mut, text_size};
+
+use super::draw;
 
 /// Width of the ruler bands, image pixels.
 const MARGIN_PX: u32 = 26;
@@ -59,19 +60,19 @@ pub(crate) fn draw_pixel_rulers(img: &mut RgbImage, s: u32, font: &FontRef<'_>) 
     }
     let ink = Rgb([30, 30, 30]);
     let step = label_step(s);
-    let scale = PxScale::from(12.0);
+    let size = 12.0;
     let pos = |v: u32| (v * s) as f32 + (s as f32 - 1.0) / 2.0;
     let edge = m as f32 - 1.0;
     // Top ruler: x.
     let mut x = 0;
     while x * s < w {
         let len = tick_len(x, step);
-        draw_line_segment_mut(img, (pos(x), edge - len), (pos(x), edge), ink);
+        draw::line(img, (pos(x), edge - len), (pos(x), edge), ink);
         if x.is_multiple_of(step) && pos(x) as u32 > m {
             let t = x.to_string();
-            let (tw, _) = text_size(scale, font, &t);
+            let (tw, _) = draw::text_size(font, size, &t);
             let tx = (pos(x) as i32 - tw as i32 / 2).min(w as i32 - tw as i32 - 1);
-            draw_text_mut(img, ink, tx, 1, scale, font, &t);
+            draw::text(img, font, size, (tx, 1), ink, &t);
         }
         x += 10;
     }
@@ -79,16 +80,16 @@ pub(crate) fn draw_pixel_rulers(img: &mut RgbImage, s: u32, font: &FontRef<'_>) 
     let mut y = 0;
     while y * s < h {
         let len = tick_len(y, step);
-        draw_line_segment_mut(img, (edge - len, pos(y)), (edge, pos(y)), ink);
+        draw::line(img, (edge - len, pos(y)), (edge, pos(y)), ink);
         if y.is_multiple_of(step) && pos(y) as u32 > m {
             let t = y.to_string();
-            let (_, th) = text_size(scale, font, &t);
+            let (_, th) = draw::text_size(font, size, &t);
             let ty = pos(y) as i32 - th as i32 - 2;
-            draw_text_mut(img, ink, 1, ty.max(0), scale, font, &t);
+            draw::text(img, font, size, (1, ty.max(0)), ink, &t);
         }
         y += 10;
     }
-    draw_text_mut(img, ink, 2, 2, PxScale::from(11.0), font, "px");
+    draw::text(img, font, 11.0, (2, 2), ink, "px");
 }
 
 #[cfg(test)]

@@ -144,7 +144,8 @@ fn held_out_prediction_errors_do_not_grow() {
     let ((_, hw), (_, pw)) = (median_worst(&h), median_worst(&p));
     assert_eq!(n, 3 * CI_SEEDS);
     // Measured: worst holding 2.1 %, worst peak 19.8 % (the first blow of a softer bar),
-    // intervals hold on 8 of 9 pairs.
+    // intervals hold on 9 of 9 pairs (8 of 9 with the Monte Carlo's earlier generator: one
+    // edge within the draws' own scatter of its truth, so the floor stays at 8).
     assert!(
         hw <= 0.026,
         "worst holding error {:.1} % (was 2.1 %)",

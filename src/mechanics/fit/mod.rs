@@ -7,11 +7,11 @@
 //! with the Levenberg–Marquardt method (K. Levenberg, "A method for the solution of certain
 //! non-linear problems in least squares", Q. Appl. Math. 2, 1944; D. W. Marquardt, "An
 //! algorithm for least-squares estimation of nonlinear parameters", J. SIAM 11, 1963), a short
-//! loop on `nalgebra` (the `levenberg-marquardt` crate needs another nalgebra version than the
-//! one imageproc builds). Each parameter's standard uncertainty is the square root of the
-//! diagonal of s²·(JᵀJ)⁻¹, with J the Jacobian of the weighted residuals at the optimum
-//! and s² the residual variance per degree of freedom (the usual linearised covariance of a
-//! least-squares estimate; e.g. Press et al., *Numerical Recipes*, 3rd ed., §15.5).
+//! loop of our own on `nalgebra` (`lm.rs`). Each parameter's standard uncertainty is the
+//! square root of the diagonal of s²·(JᵀJ)⁻¹, with J the Jacobian of the weighted residuals at
+//! the optimum and s² the residual variance per degree of freedom (the usual linearised
+//! covariance of a least-squares estimate; e.g. Press et al., *Numerical Recipes*, 3rd ed.,
+//! §15.5).
 //!
 //! Part of the mechanics stage: it must never import report, `analyze`, `batch`, `find_marks`,
 //! `calibrate` or the CLI.
