@@ -26,6 +26,11 @@ fn put(img: &mut RgbImage, x: i32, y: i32, color: Rgb<u8>) {
 
 /// A one-pixel line from `a` to `b`, image pixel coordinates (see the module doc).
 pub(crate) fn line(img: &mut RgbImage, a: (f32, f32), b: (f32, f32), color: Rgb<u8>) {
+    // Clipped to the image (a pixel of margin) first, so the pixels stepped through are
+    // bounded by the image's size whatever a rig's pivot or radii put at the ends.
+    let Some((a, b)) = clip(a, b, img.width() as f32, img.height() as f32) else {
+        return;
+    };
     let steep = (b.1 - a.1).abs() > (b.0 - a.0).abs();
     // Step along x: swap the axes of a steep line, and draw from left to right.
     let (mut a, mut b) = if steep {
@@ -52,6 +57,45 @@ pub(crate) fn line(img: &mut RgbImage, a: (f32, f32), b: (f32, f32), color: Rgb<
             error += dx;
         }
     }
+}
+
+/// The part of the segment `a`–`b` inside [−1, w] × [−1, h], None when none of it is, or an
+/// end is not finite (Liang & Barsky, "A new concept and method for line clipping", ACM
+/// Transactions on Graphics 3(1), 1984: the segment's parameter range narrowed by each edge).
+fn clip(a: (f32, f32), b: (f32, f32), w: f32, h: f32) -> Option<((f32, f32), (f32, f32))> {
+    // In f64: an end a billion pixels away leaves f32 no precision for the clipped end.
+    let (ax, ay, bx, by) = (
+        f64::from(a.0),
+        f64::from(a.1),
+        f64::from(b.0),
+        f64::from(b.1),
+    );
+    if ![ax, ay, bx, by].iter().all(|v| v.is_finite()) {
+        return None;
+    }
+    let (dx, dy) = (bx - ax, by - ay);
+    let (mut t0, mut t1) = (0.0f64, 1.0f64);
+    for (p, q) in [
+        (-dx, ax + 1.0),
+        (dx, f64::from(w) - ax),
+        (-dy, ay + 1.0),
+        (dy, f64::from(h) - ay),
+    ] {
+        if p == 0.0 {
+            if q < 0.0 {
+                return None;
+            }
+        } else {
+            let t = q / p;
+            if p < 0.0 {
+                t0 = t0.max(t);
+            } else {
+                t1 = t1.min(t);
+            }
+        }
+    }
+    let at = |t: f64| ((ax + t * dx) as f32, (ay + t * dy) as f32);
+    (t0 <= t1).then(|| (at(t0), at(t1)))
 }
 
 /// Fills the `w` × `h` rectangle whose top-left pixel is (`x`, `y`).
@@ -127,6 +171,22 @@ pub(crate) fn text(
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn a_line_far_outside_is_clipped_not_stepped_through() {
+        // Ends a billion pixels away: the same pixels as the segment across the image, and
+        // no billion-step loop (this test would take minutes without the clip).
+        let mut far = super::RgbImage::new(20, 10);
+        let ink = super::Rgb([255, 0, 0]);
+        super::line(&mut far, (-1e9, 5.0), (1e9, 5.0), ink);
+        let mut near = super::RgbImage::new(20, 10);
+        super::line(&mut near, (-1.0, 5.0), (20.0, 5.0), ink);
+        assert_eq!(far, near);
+        let mut none = super::RgbImage::new(20, 10);
+        super::line(&mut none, (-50.0, -50.0), (-40.0, 60.0), ink);
+        super::line(&mut none, (f32::NAN, 1.0), (3.0, 3.0), ink);
+        assert_eq!(none, super::RgbImage::new(20, 10));
+    }
+
     use super::*;
 
     const INK: Rgb<u8> = Rgb([200, 10, 10]);
