@@ -101,6 +101,15 @@ impl Tracker {
                     c.separation.1
                 )));
             }
+            if let Reader::Radial(radial) = &t.reader
+                && let (fixed @ 1.., frames) = radial.static_features()
+            {
+                warnings.push(Warning::Note(format!(
+                    "{} mark: {fixed} feature{} in its annulus did not turn with the part (a lamp's glint, a washer's edge or the background beyond the part); in {frames} frames the rings that cross one were left out of its angle, so those angles rest on fewer rings. Moving the lamp keeps a glint off the stripe's path",
+                    t.role.name(),
+                    if fixed == 1 { "" } else { "s" },
+                )));
+            }
             for (first_frame, last_frame) in unwrap::lost_runs(&t.angle, &self.frames) {
                 warnings.push(Warning::MarkLost {
                     mark: t.role.name().into(),

@@ -855,3 +855,22 @@ fn a_stripe_slipped_onto_another_feature_is_null_not_a_torque() {
     );
     assert_eq!(s.torque_ci_holds, Some(true), "{t}");
 }
+
+/// CI: second-list seed 803007485 (PNG colour stills, a pale stripe on mottled metal and a
+/// static glint of the lamp beside the drive stripe's path; the list was looked into after
+/// its second run, so this is a regression check, not held-out evidence). The glint sits
+/// beside the stripe once the first blow has turned it there, and before features that do
+/// not turn with the part were told apart (docs/accuracy.md, "Features beside the stripe")
+/// the drive read 2–4° ahead of the truth for the rest of the clip: 2.89° RMS, no frame
+/// lost, and a confident torque +46.7 % whose interval missed the truth (checked by turning
+/// the marking off). Now the rings that cross the glint are left out and the drive must be within the
+/// compressed-footage target (0.20° RMS) with its torque's interval holding the truth.
+#[test]
+fn a_static_glint_beside_the_stripes_path_does_not_pull_it() {
+    let s = score(803007485, Some(2));
+    let t = table(std::slice::from_ref(&s));
+    assert!(s.refused.is_none(), "{t}");
+    assert!(s.rms_deg.is_some_and(|r| r < 0.2), "{t}");
+    assert!(s.lost < 0.2, "most frames are measured:\n{t}");
+    assert_eq!(s.torque_ci_holds, Some(true), "{t}");
+}

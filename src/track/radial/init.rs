@@ -9,6 +9,8 @@ use std::f64::consts::PI;
 use super::coarse::{
     Coarse, best_ring_median, box_half_bins, box_pass, circular_window_max, ring_stats,
 };
+use super::distractor::{Distractors, RingFacts};
+use super::fine::fine_extent;
 use super::robust::median_of;
 use super::{
     COARSE_BINS_PER_HALF_WIDTH, HALF_WIDTHS_PX, INIT_MIN_RINGS, INIT_MIN_Z, MIN_COARSE_BINS,
@@ -18,6 +20,29 @@ use crate::decode::FrameRef;
 use crate::track::unwrap::wrap_pi;
 
 impl RadialTracker {
+    /// Marks the first frame's features beside the stripe (`distractor.rs`), from its whole
+    /// rings in `polar` and the fine centres just measured there.
+    fn learn_distractors(&mut self) {
+        let Some(model) = self.model.as_ref() else {
+            return;
+        };
+        let (n, step) = (self.grid.bins, self.grid.step());
+        let facts: Vec<RingFacts> = (0..self.grid.rings)
+            .map(|k| {
+                let hw_b = model.half_width_px / (self.grid.radius[k] * step);
+                let (half, flank) = fine_extent(hw_b, hw_b.max(3.0), n);
+                RingFacts {
+                    centre: self.ring_ok[k].then_some(self.ring_c[k]),
+                    half,
+                    flank: flank as f64,
+                    stride: self.stride[k] as f64,
+                    sigma: self.sigma[k],
+                }
+            })
+            .collect();
+        self.distractors = Distractors::learn(&self.polar, n, &facts, model.polarity);
+    }
+
     /// Learns the stripe from the first frame and measures it there.
     ///
     /// # Errors
@@ -173,6 +198,7 @@ impl RadialTracker {
         self.coarse = Some(coarse);
         let measured = self.measure_at(None);
         self.sig_ref = self.sig_last;
+        self.learn_distractors();
         if self.sig_ref < self.init_min_sig {
             return Err(format!(
                 "the stripe does not stand out from the metal's own texture around the annulus (significance {:.1}, need {}); paint that differs from the metal only in colour cannot be seen in monochrome footage: film in colour, or use a paint much brighter or darker than the metal",

@@ -7,6 +7,7 @@
 use std::f64::consts::PI;
 
 use super::coarse::{Coarse, adjusted};
+use super::fine::{fine_extent, floor_i64};
 use super::robust::{median_of, weighted_median};
 use super::{
     LOST_MIN_SIG, LOST_SIG_CAP, LOST_SIG_FRACTION, LOST_Z_FRACTION, MIN_INLIER_FRACTION,
@@ -90,6 +91,10 @@ impl RadialTracker {
         // only its own noise to converge over.
         let mut moves = [0.0f64; 3];
         let mut good = 0usize;
+        let mut distracted = 0usize;
+        if !first {
+            self.distractors.next_frame();
+        }
         for k in 0..k_n {
             let hw_b = model.half_width_px / (self.grid.radius[k] * step) + extra;
             let c0 = centre + model.offset[k] / step;
@@ -101,10 +106,34 @@ impl RadialTracker {
                 _ => median3(moves),
             };
             self.fine_ring(k, c0, lead, hw_b, flank, model.polarity, src.as_ref());
+            // A ring whose window or flanks would read a feature marked in the first frame
+            // (a glint beside the stripe's path) is left out (`distractor.rs`).
+            if !first && self.ring_ok[k] {
+                let (h, f) = fine_extent(hw_b, flank, self.grid.bins);
+                let reach = h + f as f64 + self.stride[k] as f64;
+                let c = self.ring_c[k];
+                let span = (floor_i64(c - reach), floor_i64(c + reach) + 1);
+                if let Some(frame) = src.as_ref()
+                    && self.distractors.hits(k, span.0, span.1)
+                    && self.static_feature_in(
+                        k,
+                        span,
+                        c,
+                        (model.polarity, model.half_width_px),
+                        frame,
+                    )
+                {
+                    self.ring_ok[k] = false;
+                    distracted += 1;
+                }
+            }
             if self.ring_ok[k] {
                 moves[good % 3] = self.ring_c[k] - c0;
                 good += 1;
             }
+        }
+        if distracted > 0 {
+            self.distracted_frames += 1;
         }
         let z_med = median_of(&self.ring_z, &mut self.sort_buf);
         if z_med < (LOST_Z_FRACTION * model.z_ref).max(RING_MIN_Z) {

@@ -49,12 +49,14 @@ use super::polar::{ColourWeights, LatticeTaps, PolarGrid, Prepared};
 use crate::decode::FrameRef;
 
 mod coarse;
+mod distractor;
 mod fine;
 mod init;
 mod measure;
 mod robust;
 
 use coarse::Coarse;
+use distractor::Distractors;
 
 /// Candidate stripe half-widths tried in the first frame, px of arc.
 const HALF_WIDTHS_PX: [f64; 11] = [1.0, 1.5, 2.0, 3.0, 4.0, 5.5, 7.0, 9.0, 12.0, 16.0, 21.0];
@@ -180,6 +182,10 @@ pub(crate) struct RadialTracker {
     sig_buf: Vec<f32>,
     /// [`INIT_MIN_SIG`], but for tuning aids that need to see what a lower one would track.
     init_min_sig: f64,
+    /// The first frame's features beside the stripe, which no ring's window may read
+    /// (`distractor.rs`); and the later frames in which a ring was left out for one.
+    distractors: Distractors,
+    distracted_frames: u64,
 }
 
 impl RadialTracker {
@@ -237,6 +243,8 @@ impl RadialTracker {
             sig_last: 0.0,
             sig_buf: Vec::with_capacity(n),
             init_min_sig: INIT_MIN_SIG,
+            distractors: Distractors::default(),
+            distracted_frames: 0,
             grid,
         }
     }
@@ -262,6 +270,12 @@ impl RadialTracker {
     #[cfg(test)]
     pub fn significance(&self) -> (f64, f64) {
         (self.sig_last, self.sig_ref)
+    }
+
+    /// Features found in the annulus that do not turn with the part, and the frames in which
+    /// a ring was left out because its window reached a marked feature (`distractor.rs`).
+    pub fn static_features(&self) -> (usize, u64) {
+        (self.distractors.fixed(), self.distracted_frames)
     }
 
     /// Per ring, from the last successful measurement: the ring's stripe angle minus the
