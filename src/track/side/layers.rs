@@ -22,6 +22,7 @@
 //! `batch`, `find_marks`, `calibrate` or the CLI.
 
 use super::follow::Follower;
+use super::see_through::SeeThrough;
 use super::{MAX_FACING_DEG, STEP_DEG};
 
 /// Least ridge contrast of a candidate or static line (profile units).
@@ -40,6 +41,8 @@ pub(super) struct Solved {
     pub confidence: Vec<f32>,
     /// Static lines found, bar angles from facing the camera, degrees.
     pub static_lines_deg: Vec<f64>,
+    /// Those of them the paint, of the other polarity, was read across (`see_through.rs`).
+    pub seen_through_deg: Vec<f64>,
     /// True when nothing along the bar moved in the whole clip (then paint cannot be told
     /// from a reflection by motion).
     pub still: bool,
@@ -226,6 +229,7 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
         angle: vec![None; n],
         confidence: vec![0.0; n],
         static_lines_deg: Vec::new(),
+        seen_through_deg: Vec::new(),
         still: false,
         unresolved: false,
         first_measured: None,
@@ -236,10 +240,18 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
     };
     let d = flank();
     // Static lines: ridges present in nine frames out of ten.
+    let every = n.div_ceil(QUANTILE_FRAMES);
+    let sample: Vec<Vec<f32>> = if n >= 8 {
+        frames.iter().step_by(every).cloned().collect()
+    } else {
+        Vec::new()
+    };
+    let q = if n >= 8 {
+        quantiles(&sample, &[0.1, 0.5, 0.9])
+    } else {
+        Vec::new()
+    };
     let mut lines = if n >= 8 {
-        let every = n.div_ceil(QUANTILE_FRAMES);
-        let sample: Vec<Vec<f32>> = frames.iter().step_by(every).cloned().collect();
-        let q = quantiles(&sample, &[0.1, 0.5, 0.9]);
         static_lines(&q[0], &q[1], &q[2], phi)
     } else {
         Vec::new()
@@ -308,7 +320,38 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
         });
     }
     out.static_lines_deg = lines.iter().map(|l| l.centre.to_degrees()).collect();
+    // Bright lines (a lamp's reflection) with dark paint: the paint is read across them where
+    // the clip determines how deep it shows there (`see_through.rs`); else their cores are
+    // not measured. The model is of a reflection added to what the surface returns, so a dark
+    // static line (a shadow, a groove) is never read across.
+    let across = |l: &Line| l.polarity > 0.0 && pr.polarity < 0.0;
+    let see = if n >= 8 && lines.iter().any(across) {
+        let mut s = vec![0.0f32; p0.len()];
+        for l in lines.iter().filter(|l| across(l)) {
+            for (j, b) in l.bump.iter().enumerate() {
+                s[l.lo + j] += (l.polarity * b).max(0.0);
+            }
+        }
+        // The envelope the dark paint does not reach: the 90 % quantile over time.
+        SeeThrough::fit(&sample, &q[2], s, pr.polarity, phi)
+    } else {
+        None
+    };
+    if see.is_some() {
+        out.seen_through_deg = lines
+            .iter()
+            .filter(|l| across(l))
+            .map(|l| l.centre.to_degrees())
+            .collect();
+        lines.retain(|l| !across(l));
+    }
     let cores: Vec<(f64, f64)> = lines.iter().map(|l| l.core).collect();
+    let correct = |prof: &mut Vec<f32>| {
+        correct(prof, &lines);
+        if let Some(st) = &see {
+            st.apply(prof);
+        }
+    };
     // 4. Follow the paint on the corrected profiles.
     let mut f = Follower {
         phi,
@@ -323,7 +366,7 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
         width: None,
     };
     let mut buf = p0.clone();
-    correct(&mut buf, &lines);
+    correct(&mut buf);
     // The first frame's reading, or, where the paint sits on or beside a line there, the
     // paint's first-frame place as the guess the follower reacquires from.
     match f.centroid(&buf, phi[pr.bin], half + 1f64.to_radians()) {
@@ -341,14 +384,14 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
     for (i, p) in frames.iter().enumerate().skip(1) {
         buf.clear();
         buf.extend_from_slice(p);
-        correct(&mut buf, &lines);
+        correct(&mut buf);
         if let Some((th, pc)) = f.step(&buf) {
             out.angle[i] = Some(th);
             out.confidence[i] = (pc / 0.2).clamp(0.0, 1.0);
         }
     }
     if out.angle[0].is_none() {
-        carry_back(frames, &lines, &f, &mut out);
+        carry_back(frames, &correct, &f, &mut out);
     }
     out
 }
@@ -357,7 +400,12 @@ pub(super) fn solve(frames: &[Vec<f32>], phi: &[f64], stripes: u32) -> Solved {
 /// paint backwards frame by frame. Angles are relative to the first frame, so when the paint
 /// cannot be followed all the way back (it sits on or beside a static line there), no frame
 /// is read at all and `first_measured` names the frame where the stripe was first measured.
-fn carry_back(frames: &[Vec<f32>], lines: &[Line], f: &Follower<'_>, out: &mut Solved) {
+fn carry_back(
+    frames: &[Vec<f32>],
+    correct: &impl Fn(&mut Vec<f32>),
+    f: &Follower<'_>,
+    out: &mut Solved,
+) {
     let Some(i0) = out.angle.iter().position(Option::is_some) else {
         return;
     };
@@ -369,7 +417,7 @@ fn carry_back(frames: &[Vec<f32>], lines: &[Line], f: &Follower<'_>, out: &mut S
     for i in (0..i0).rev() {
         buf.clear();
         buf.extend_from_slice(&frames[i]);
-        correct(&mut buf, lines);
+        correct(&mut buf);
         match b.step(&buf) {
             Some((th, pc)) => {
                 out.angle[i] = Some(th);

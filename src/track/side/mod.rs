@@ -22,6 +22,7 @@
 mod colour;
 mod follow;
 mod layers;
+mod see_through;
 
 use crate::decode::FrameRef;
 use crate::rig::SideMark;
@@ -271,16 +272,25 @@ pub(super) fn settle(t: &mut super::MarkTrack) -> Vec<crate::Warning> {
             t.role.name()
         )));
     }
-    if !got.static_lines_deg.is_empty() {
-        let at: Vec<String> = got
-            .static_lines_deg
-            .iter()
-            .map(|d| format!("{d:.0}°"))
-            .collect();
+    let degrees = |v: &[f64]| v.iter().map(|d| format!("{d:.0}°")).collect::<Vec<_>>();
+    let hidden: Vec<f64> = got
+        .static_lines_deg
+        .iter()
+        .copied()
+        .filter(|d| !got.seen_through_deg.contains(d))
+        .collect();
+    if !hidden.is_empty() {
         notes.push(crate::Warning::Note(format!(
             "{} side mark: a static line along the bar (a reflection that does not turn with it) at {} from facing the camera was taken out; frames with the paint on it are not measured",
             t.role.name(),
-            at.join(", ")
+            degrees(&hidden).join(", ")
+        )));
+    }
+    if !got.seen_through_deg.is_empty() {
+        notes.push(crate::Warning::Note(format!(
+            "{} side mark: a static line along the bar (a reflection that does not turn with it) at {} from facing the camera was taken out; the paint, of the other brightness, is read across it, its depth there evened by a fit of how much of the reflection the paint keeps",
+            t.role.name(),
+            degrees(&got.seen_through_deg).join(", ")
         )));
     }
     if got.unresolved {
