@@ -318,10 +318,13 @@ fn side_seeds(seeds: &[u64], frames: usize) -> Vec<String> {
 }
 
 /// The held-out side views: the first list, or with `TWISTMARK_SIDE_LIST=second` the second
-/// (`tests/held_out_side_seeds_second.txt`, drawn after the first had been run three times).
+/// (`tests/held_out_side_seeds_second.txt`, drawn after the first had been run three times),
+/// or with `TWISTMARK_SIDE_LIST=third` the third (drawn after the second's first run).
 fn held_out_side() -> Vec<u64> {
     if std::env::var("TWISTMARK_SIDE_LIST").is_ok_and(|v| v == "second") {
         held_out_side_seeds(include_str!("../held_out_side_seeds_second.txt"))
+    } else if std::env::var("TWISTMARK_SIDE_LIST").is_ok_and(|v| v == "third") {
+        held_out_side_seeds(include_str!("../held_out_side_seeds_third.txt"))
     } else {
         held_out_side_seeds(include_str!("../held_out_side_seeds.txt"))
     }
@@ -332,6 +335,9 @@ fn all_held_out_side() -> Vec<u64> {
     let mut v = held_out_side_seeds(include_str!("../held_out_side_seeds.txt"));
     v.extend(held_out_side_seeds(include_str!(
         "../held_out_side_seeds_second.txt"
+    )));
+    v.extend(held_out_side_seeds(include_str!(
+        "../held_out_side_seeds_third.txt"
     )));
     v
 }
