@@ -358,7 +358,7 @@ fn side_views_under_a_lamp_tuning_seeds() {
 
 /// Every held-out side view (release build recommended).
 #[test]
-#[ignore = "not met yet: first list (16 seeds, fourth measurement, 2026-12-05, release) 11 within 0.5 deg RMS, 4 all null, 1 at 1.956 deg RMS (white, mono, swing); second list (24 seeds, first run, TWISTMARK_SIDE_LIST=second) 21 within 0.5 deg RMS (worst 0.389), 3 all null (light paint on the lamp's line in the first frame); out-of-view frames 100 % null"]
+#[ignore = "not met yet (2026-12-05, release, docs/accuracy.md): third list (24 seeds, first run, TWISTMARK_SIDE_LIST=third) 19 within 0.5 deg RMS (worst 0.254), 5 all null; no clip of any list over 0.5 deg; out-of-view frames 100 % null"]
 fn side_views_under_a_lamp_meet_the_targets_on_held_out_seeds() {
     let misses = side_seeds(&held_out_side(), SIDE_FRAMES);
     assert!(misses.is_empty(), "{misses:#?}");
@@ -439,6 +439,25 @@ fn dark_paint_on_the_lamps_line_in_the_first_frame_is_read_across_it() {
     let s = run_side_clip(&clip);
     assert!(
         s.measured >= 110 && s.rms_deg < 0.2,
+        "measured {} of {SIDE_FRAMES}, RMS {:.3}°",
+        s.measured,
+        s.rms_deg
+    );
+}
+
+/// CI: tuning side seed 13 (a white stripe swinging beside the lamp's line, colour camera).
+/// The line lay inside the paint's swing, so the quantiles over the whole clip missed it, and
+/// the first frame's reading (the zero) leaned on it: every frame read about 0.83° off, with
+/// nothing said. Lines are now looked for again on the frames where the paint was elsewhere
+/// (`src/track/side/layers.rs`), and a zero that cannot be read clear of a line is no reading:
+/// the clip must be read within 0.3° RMS or not at all. A regression check on a tuning seed
+/// (rendered clip with exact truth), not held-out evidence.
+#[test]
+fn a_line_inside_the_paints_swing_does_not_shift_the_zero() {
+    let clip = random_side_clip(13, SIDE_FRAMES);
+    let s = run_side_clip(&clip);
+    assert!(
+        s.measured == 0 || s.rms_deg < 0.3,
         "measured {} of {SIDE_FRAMES}, RMS {:.3}°",
         s.measured,
         s.rms_deg
