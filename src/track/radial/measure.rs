@@ -108,13 +108,14 @@ impl RadialTracker {
             self.fine_ring(k, c0, lead, hw_b, flank, model.polarity, src.as_ref());
             // A ring whose window or flanks would read a feature marked in the first frame
             // (a glint beside the stripe's path) is left out (`distractor.rs`).
-            if !first && self.ring_ok[k] {
+            if let Some(frame) = src.as_ref()
+                && self.ring_ok[k]
+            {
                 let (h, f) = fine_extent(hw_b, flank, self.grid.bins);
                 let reach = h + f as f64 + self.stride[k] as f64;
                 let c = self.ring_c[k];
                 let span = (floor_i64(c - reach), floor_i64(c + reach) + 1);
-                if let Some(frame) = src.as_ref()
-                    && self.distractors.hits(k, span.0, span.1)
+                if self.distractors.hits(k, span.0, span.1)
                     && self.static_feature_in(
                         k,
                         span,

@@ -29,7 +29,10 @@
 //! 6. The ring centres, less each ring's offset learnt in the first frame, are combined with
 //!    inverse-variance weights (contrast² × radius²) and Tukey's biweight (Tukey's bisquare
 //!    M-estimator, c = 4.685 × scale, scale = 1.4826 × MAD), which drops rings spoilt by a
-//!    highlight, a compression block or the pivot's hub.
+//!    highlight, a compression block or the pivot's hub. A ring whose window or flanks reach a
+//!    feature marked in the first frame that does not turn with the part (a lamp's glint; one
+//!    not judged yet counts too) is left out first (`distractor.rs`): a feature spanning many
+//!    rings pulls them all alike, which the biweight cannot see.
 //!
 //! The first frame is sampled whole on the full grid. It decides the stripe's polarity (bright
 //! or dark paint, found by contrast, so its colour need not be known), its width, each ring's
