@@ -64,4 +64,4 @@ pub use error::{Error, Result};
 pub use rig::Rig;
 pub use track::{CameraMotion, Signal, Trace};
 pub use units::{Angle, Stiffness, TimeBase, Torque};
-pub use warning::Warning;
+pub use warning::{Warning, condensed as condensed_warnings};

@@ -427,3 +427,99 @@ impl fmt::Display for Warning {
         }
     }
 }
+
+/// A mark lost in more runs than this is told in one line, not one line per run.
+pub(crate) const LOST_RUNS_IN_FULL: usize = 3;
+
+/// The warnings as lines for a person to read: each warning's own text, except that a mark
+/// lost in more than [`LOST_RUNS_IN_FULL`] separate runs is told once, where its first run
+/// stood, with the frame count, the run count and the frames they span (every run stays in
+/// the result and in report.json). A clip whose stripe flickers out for single frames would
+/// otherwise print a screen of near-identical lines and hide the other warnings.
+pub fn condensed(warnings: &[Warning]) -> Vec<String> {
+    // Per mark (there are few): its runs, in one pass.
+    let mut by_mark: Vec<(&str, Vec<(u64, u64)>)> = Vec::new();
+    for w in warnings {
+        if let Warning::MarkLost {
+            mark,
+            first_frame,
+            last_frame,
+        } = w
+        {
+            match by_mark.iter_mut().find(|(m, _)| *m == mark.as_str()) {
+                Some((_, runs)) => runs.push((*first_frame, *last_frame)),
+                None => by_mark.push((mark, vec![(*first_frame, *last_frame)])),
+            }
+        }
+    }
+    let runs_of = |m: &str| {
+        by_mark
+            .iter()
+            .find(|(k, _)| *k == m)
+            .map_or(&[][..], |(_, r)| r.as_slice())
+    };
+    let mut told: Vec<&str> = Vec::new();
+    let mut out = Vec::with_capacity(warnings.len());
+    for w in warnings {
+        if let Warning::MarkLost { mark, .. } = w {
+            let runs = runs_of(mark);
+            if runs.len() > LOST_RUNS_IN_FULL {
+                if !told.contains(&mark.as_str()) {
+                    told.push(mark);
+                    let frames: u64 = runs.iter().map(|(a, b)| b.saturating_sub(*a) + 1).sum();
+                    let first = runs.iter().map(|r| r.0).min().unwrap_or(0);
+                    let last = runs.iter().map(|r| r.1).max().unwrap_or(0);
+                    out.push(format!(
+                        "mark '{mark}' lost in {frames} frames over {} separate runs between frames \
+                         {first} and {last} (each run is listed in report.json); those angles are \
+                         null (check lighting, focus and that the paint stays inside the annulus)",
+                        runs.len()
+                    ));
+                }
+                continue;
+            }
+        }
+        out.push(w.to_string());
+    }
+    out
+}
+
+#[cfg(test)]
+mod condensed_tests {
+    use super::*;
+
+    fn lost(mark: &str, a: u64, b: u64) -> Warning {
+        Warning::MarkLost {
+            mark: mark.into(),
+            first_frame: a,
+            last_frame: b,
+        }
+    }
+
+    #[test]
+    fn many_lost_runs_of_one_mark_are_one_line_and_few_stay_as_they_are() {
+        let w = vec![
+            Warning::Note("first".into()),
+            lost("drive", 11, 11),
+            lost("nut", 40, 42),
+            lost("drive", 101, 101),
+            lost("drive", 103, 104),
+            lost("drive", 195, 196),
+            Warning::Note("last".into()),
+        ];
+        let lines = condensed(&w);
+        assert_eq!(lines.len(), 4, "{lines:#?}");
+        assert_eq!(lines[0], "first");
+        assert!(
+            lines[1].starts_with(
+                "mark 'drive' lost in 6 frames over 4 separate runs between frames 11 and 196"
+            ),
+            "{}",
+            lines[1]
+        );
+        assert_eq!(lines[2], lost("nut", 40, 42).to_string());
+        assert_eq!(lines[3], "last");
+        // Three runs are still told one by one.
+        assert_eq!(condensed(&w[1..5]).len(), 4);
+    }
+}

@@ -89,8 +89,8 @@ pub fn run(a: BatchArgs) -> Result<ExitCode> {
     progress.finish();
     let report = result?;
     for o in &report.outcomes {
-        for w in &o.warnings {
-            eprintln!("warning: {}: {w}", o.row.clip);
+        for line in twistmark::condensed_warnings(&o.warnings) {
+            eprintln!("warning: {}: {line}", o.row.clip);
         }
     }
     print!("{}", summary_table(&report));

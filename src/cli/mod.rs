@@ -100,10 +100,11 @@ pub(crate) fn check_parent_folder(flag: &str, path: &std::path::Path) -> Result<
     Ok(())
 }
 
-/// Prints library warnings on stderr, one line each.
+/// Prints library warnings on stderr, one line each (a mark lost in many separate runs in
+/// one line; `twistmark::condensed_warnings`).
 pub(crate) fn print_warnings(warnings: &[twistmark::Warning]) {
-    for w in warnings {
-        eprintln!("warning: {w}");
+    for line in twistmark::condensed_warnings(warnings) {
+        eprintln!("warning: {line}");
     }
 }
 
