@@ -432,7 +432,7 @@ impl fmt::Display for Warning {
 pub(crate) const LOST_RUNS_IN_FULL: usize = 3;
 
 /// The warnings as lines for a person to read: each warning's own text, except that a mark
-/// lost in more than [`LOST_RUNS_IN_FULL`] separate runs is told once, where its first run
+/// lost in more than three (`LOST_RUNS_IN_FULL`) separate runs is told once, where its first run
 /// stood, with the frame count, the run count and the frames they span (every run stays in
 /// the result and in report.json). A clip whose stripe flickers out for single frames would
 /// otherwise print a screen of near-identical lines and hide the other warnings.
