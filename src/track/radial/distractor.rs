@@ -21,7 +21,8 @@
 //! stripe's own excess on that ring (and the filter's noise several times over), outside the
 //! first frame's stripe and its window, are marked (hysteresis: a run is kept from half the
 //! threshold, so a feature's tails go with its core; Canny, "A computational approach to edge
-//! detection", IEEE Trans. PAMI 8 (1986) 679–698, §VI on hysteresis); runs on neighbouring
+//! detection", IEEE Trans. PAMI 8 (1986) 679–698, on thresholding with hysteresis; pages and
+//! section *from memory*); runs on neighbouring
 //! rings that overlap are one feature.
 //!
 //! Only a feature that does not turn with the part can bias a later frame: one that turns

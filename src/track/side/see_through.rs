@@ -9,14 +9,14 @@
 //! is where a clip starts; left out, such a clip had no zero and read nothing at all.
 //!
 //! The model is the dichromatic reflection model (Shafer, "Using color to separate reflection
-//! components", Color Research & Application 10 (1985) 210–218): what a surface returns is its
-//! body (diffuse) reflection plus an interface (specular) reflection, added. On bare steel the
-//! profile is `M(φ) = m(φ) + s(φ)`, with `s` the lamp's line; on paint it is `p(φ) + g·s(φ)`,
-//! with g the paint's share of the steel's gloss (0 matte, 1 as glossy). So where paint covers
-//! a share `c` of bin φ, `P(φ) = M(φ) − c·W(φ)` with the full-cover depth
-//! `W(φ) = (m − p) + (1 − g)·s(φ) = a + b·s(φ)`: deeper on the line than beside it, and a
-//! centroid of the raw dip is pulled towards the line's centre. Dividing the dip by W makes it
-//! the coverage c alone, whose centroid is the stripe's.
+//! components", Color Research & Application 10 (1985) 210–218; pages *from memory*): what a
+//! surface returns is its body (diffuse) reflection plus an interface (specular) reflection,
+//! added. On bare steel the profile is `M(φ) = m(φ) + s(φ)`, with `s` the lamp's line; on
+//! paint it is `p(φ) + g·s(φ)`, with g the paint's share of the steel's gloss (0 matte, 1 as
+//! glossy). So where paint covers a share `c` of bin φ, `P(φ) = M(φ) − c·W(φ)` with the
+//! full-cover depth `W(φ) = (m − p) + (1 − g)·s(φ) = a + b·s(φ)`: deeper on the line than
+//! beside it, and a centroid of the raw dip is pulled towards the line's centre. Dividing the
+//! dip by W makes it the coverage c alone, whose centroid is the stripe's.
 //!
 //! The clip gives every piece: `M` is the envelope the dark paint does not reach (the 90 %
 //! quantile over time), `s` is the line's bump in it, and `a`, `b`
