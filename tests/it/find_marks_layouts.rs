@@ -11,7 +11,7 @@
 //!   scaled to at most 320 px, in CI (held-out layout 179604061 failed it until the drive
 //!   and nut were chosen as the parts that move together at the blows).
 //! - `held_out_layouts_table` (ignored) runs all of them at full size and prints the table in
-//!   docs/accuracy.md:
+//!   docs/accuracy.md (`HELD_OUT_LAYOUTS=second` runs the second list instead):
 //!   `cargo test --release --test it find_marks_layouts:: -- --ignored --nocapture`
 //! - With `TUNE_HYBRID=1`, each layout is also measured with the drafted rig given the true
 //!   pivots and with the true rig given the drafted annuli, which tells a pivot error from an
@@ -24,7 +24,9 @@ use twistmark::find_marks::{FindMarksOptions, find_marks_frames};
 use twistmark::rig::{Mark, Rig};
 use twistmark::track::Tracker;
 use twistmark::units::TimeBase;
-use twistmark_scenes::synth::layout::{HELDOUT_LAYOUT_SEEDS, layout_scenario};
+use twistmark_scenes::synth::layout::{
+    HELDOUT_LAYOUT_SEEDS, HELDOUT_LAYOUT_SEEDS_SECOND, layout_scenario,
+};
 use twistmark_scenes::synth::{render_clip, simulate};
 
 /// What one layout gave.
@@ -230,8 +232,13 @@ fn median(mut v: Vec<f64>) -> f64 {
 #[test]
 #[ignore = "renders 16 layouts at full size; run in release (docs/accuracy.md)"]
 fn held_out_layouts_table() {
+    let list: &[u64] = match std::env::var("HELD_OUT_LAYOUTS").as_deref() {
+        Ok("second") => &HELDOUT_LAYOUT_SEEDS_SECOND,
+        Ok("first") | Err(_) => &HELDOUT_LAYOUT_SEEDS,
+        Ok(other) => panic!("HELD_OUT_LAYOUTS={other}: use first or second"),
+    };
     println!("{HEADER}");
-    let outs: Vec<Outcome> = HELDOUT_LAYOUT_SEEDS
+    let outs: Vec<Outcome> = list
         .iter()
         .map(|&s| {
             let o = run(s, 800);
@@ -276,7 +283,10 @@ fn tuning_layouts_table() {
         .unwrap_or(800);
     println!("{HEADER}");
     for s in seeds {
-        assert!(!HELDOUT_LAYOUT_SEEDS.contains(&s), "seed {s} is held out");
+        assert!(
+            !HELDOUT_LAYOUT_SEEDS.contains(&s) && !HELDOUT_LAYOUT_SEEDS_SECOND.contains(&s),
+            "seed {s} is held out"
+        );
         print(&run(s, max_side));
     }
 }
