@@ -68,6 +68,9 @@ pub fn run(a: FindMarksArgs) -> Result<ExitCode> {
         let pivot = match m.pivot_from {
             PivotFrom::Lines => "from the stripe's lines",
             PivotFrom::StripeEnd => "at the stripe's end (not from motion)",
+            PivotFrom::Registered => {
+                "from the stripe's lines, refined by registering the part between its rests"
+            }
         };
         let ellipse = r.ellipse.map_or(String::new(), |e| {
             format!(

@@ -43,12 +43,15 @@ pub(super) fn fixed_from(t: &Track) -> FoundMark {
     }
 }
 
-/// A turning stripe as a radial mark.
+/// A turning stripe as a radial mark. `registered` is a pivot refined by registering the part
+/// between its rests (`register.rs`): it replaces `pivot`, and the part was shown to turn
+/// rigidly on screen, so it is face-on and no ellipse is looked for.
 pub(super) fn radial_from(
     t: &Track,
     role: Role,
     tighten: Option<Spin>,
     pivot: Option<[f64; 2]>,
+    registered: Option<[f64; 2]>,
     img: &Img,
     warnings: &mut Vec<Warning>,
 ) -> FoundMark {
@@ -70,6 +73,10 @@ pub(super) fn radial_from(
             let db = (b[0] - cx).hypot(b[1] - cy);
             (if da < db { a } else { b }, PivotFrom::StripeEnd)
         }
+    };
+    let (pivot, from) = match registered {
+        Some(r) if from == PivotFrom::Lines => (r, PivotFrom::Registered),
+        _ => (pivot, from),
     };
     let ellipse = if from == PivotFrom::Lines {
         outline_ellipse(img, pivot, &s).filter(|e| t.length_agrees_with(e))

@@ -60,6 +60,7 @@ mod outputs;
 mod pivot;
 mod preview;
 mod readout;
+mod register;
 mod ridge;
 mod roles;
 mod stripes;
@@ -116,6 +117,9 @@ pub enum PivotFrom {
     Lines,
     /// Not decided from motion: placed at the stripe's end (fixed marks, or too little turn).
     StripeEnd,
+    /// The lines' point refined by registering the part's image between the positions it
+    /// rested at (`register.rs`).
+    Registered,
 }
 
 /// One mark found in the clip.
@@ -180,7 +184,17 @@ pub fn find_marks(clip: &Path, opts: &FindMarksOptions) -> Result<FoundMarks> {
         count += 1;
         Ok(Some(frame.clone()))
     };
-    let mut found = find_stream(clip, first, next, opts)?;
+    let replay = |n: usize, visit: &mut dyn FnMut(usize, &Frame)| -> Result<()> {
+        let mut source = decode::open(clip)?;
+        let mut f = Frame::empty();
+        let mut t = 0;
+        while t < n && source.read_into(&mut f)? {
+            visit(t, &f);
+            t += 1;
+        }
+        Ok(())
+    };
+    let mut found = find_stream(clip, first, next, replay, opts)?;
     // A clip timed by the camera's clock (a phone's): the same frames again, tracked with the
     // draft, for the readout its stripes' shear shows.
     if let Some(fps) = camera_fps {
@@ -213,14 +227,30 @@ pub fn find_marks_frames(
         return Err(Error::input(clip, "the clip has no frames"));
     };
     let mut rest = frames[1..].iter().take(MAX_FRAMES as usize - 1);
-    find_stream(clip, first.clone(), || Ok(rest.next().cloned()), opts)
+    let replay = |n: usize, visit: &mut dyn FnMut(usize, &Frame)| -> Result<()> {
+        frames
+            .iter()
+            .take(n)
+            .enumerate()
+            .for_each(|(t, f)| visit(t, f));
+        Ok(())
+    };
+    find_stream(
+        clip,
+        first.clone(),
+        || Ok(rest.next().cloned()),
+        replay,
+        opts,
+    )
 }
 
-/// The work of [`find_marks`]: the first frame, then the others one at a time.
+/// The work of [`find_marks`]: the first frame, then the others one at a time; `replay(n,
+/// visit)` shows the first `n` frames again, in order, for the pivots' refinement.
 fn find_stream(
     clip: &Path,
     first: Frame,
     mut next: impl FnMut() -> Result<Option<Frame>>,
+    replay: impl FnOnce(usize, &mut dyn FnMut(usize, &Frame)) -> Result<()>,
     opts: &FindMarksOptions,
 ) -> Result<FoundMarks> {
     let first = &first;
@@ -410,12 +440,15 @@ fn find_stream(
         ));
     }
 
+    // The drive's and the nut's pivots refined by registering each part between its rests.
+    let refined = refine_pivots([(dt, cands[di].1), (nt, cands[ni].1)], n, (w, h), replay)?;
     let mut marks = Vec::new();
     let mut drive = radial_from(
         dt,
         Role::Drive,
         Some(drive_spin),
         cands[di].1,
+        refined[0],
         &img0,
         &mut warnings,
     );
@@ -424,6 +457,7 @@ fn find_stream(
         Role::Nut,
         Some(nut_spin),
         cands[ni].1,
+        refined[1],
         &img0,
         &mut warnings,
     );
@@ -437,7 +471,7 @@ fn find_stream(
         marks.push(FoundMark {
             role: None,
             alternative: Some("turning, not used".into()),
-            ..radial_from(&tracks[i], Role::Nut, None, p, &img0, &mut Vec::new())
+            ..radial_from(&tracks[i], Role::Nut, None, p, None, &img0, &mut Vec::new())
         });
     }
     // The fixed mark: of the still stripes, the one that stands out most from its surface.
@@ -518,4 +552,53 @@ fn find_stream(
         frames_read: n as u64,
         readout_estimate_s: None,
     })
+}
+
+/// The pivots of `parts` (a track and its lines' pivot) refined by registration
+/// (`register.rs`), from one more pass over the first `n` frames of a `size` clip; None where
+/// a part cannot be refined (too little turn, no rests, an oblique disc, or a registration
+/// that fails its checks).
+fn refine_pivots(
+    parts: [(&Track, Option<[f64; 2]>); 2],
+    n: usize,
+    size: (usize, usize),
+    replay: impl FnOnce(usize, &mut dyn FnMut(usize, &Frame)) -> Result<()>,
+) -> Result<[Option<[f64; 2]>; 2]> {
+    let mut stacks: Vec<Option<(register::Stack, [f64; 2], f64)>> = parts
+        .iter()
+        .map(|&(t, p)| {
+            let p = p?;
+            // An oblique disc does not turn rigidly on screen.
+            if t.span_deg() < MIN_SPAN_DEG || t.length_ratio() > 1.03 {
+                return None;
+            }
+            let [a, b] = t.first.ends();
+            let ra = (a[0] - p[0]).hypot(a[1] - p[1]);
+            let rb = (b[0] - p[0]).hypot(b[1] - p[1]);
+            let reach = ra.max(rb);
+            let rests = register::choose(register::rests(&t.series(), reach));
+            if rests.is_empty() {
+                return None;
+            }
+            let stack =
+                register::Stack::new(rests, p, register::window_half(reach), size.0, size.1);
+            Some((stack, p, reach))
+        })
+        .collect();
+    if stacks.iter().all(Option::is_none) {
+        return Ok([None, None]);
+    }
+    replay(n, &mut |t, f| {
+        for (s, _, _) in stacks.iter_mut().flatten() {
+            s.add(t, f);
+        }
+    })?;
+    let mut out = [None, None];
+    for (o, s) in out.iter_mut().zip(&stacks) {
+        *o = s
+            .as_ref()
+            .and_then(|(s, p, reach)| register::refine(s, *p, *reach))
+            .map(|r| r.pivot);
+    }
+    Ok(out)
 }

@@ -115,7 +115,7 @@ pub fn layout_scenario(seed: u64, max_side_px: u32) -> Scenario {
     } else {
         Spin::Ccw
     };
-    scene.supersample = 4;
+    scene.supersample = 8;
     scene.drive = DriveDisc {
         pivot: round2(drive_p),
         radius_px: drive_r,
