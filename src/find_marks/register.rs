@@ -49,6 +49,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use crate::decode::Frame;
+use crate::stats::median_in_place;
 
 /// A rest is at least this many frames.
 pub(super) const MIN_REST_FRAMES: usize = 8;
@@ -73,15 +74,16 @@ const PER_REST: usize = 5;
 /// end lies about 1.5 px beyond the paint's (the 3×3 smoothing).
 const ON_PART_MARGIN_PX: f64 = 2.0;
 
-/// Half the side of the square a [`Stack`] must hold for a stripe reaching `reach` px from
-/// its pivot: the wider disc, the pivot's largest move and the reads' margin.
-pub(super) fn window_half(reach: f64) -> f64 {
-    reach + MAX_MOVE_PX + 3.0
-}
 /// Neighbouring pixels' residuals are correlated (the renderer's and the codec's blur, the
 /// bilinear reads): the least-squares standard error is multiplied by this, as if one pixel in
 /// a 3 × 3 block were independent.
 const CORRELATION_INFLATION: f64 = 3.0;
+
+/// Half the side of the square a [`Stack`] must hold for a stripe reaching `reach` px from
+/// its pivot: the registered disc, the pivot's largest move and the reads' margin.
+pub(super) fn window_half(reach: f64) -> f64 {
+    reach + MAX_MOVE_PX + 3.0
+}
 
 /// A span of frames in which the part stood still.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -99,11 +101,6 @@ impl Rest {
     }
 }
 
-fn median(v: &mut [f64]) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
-
 /// The rests of a track from its orientation in every frame (None where it was not seen).
 pub(super) fn rests(series: &[Option<f64>], reach: f64) -> Vec<Rest> {
     // The follower's noise from second differences, which a steady creep does not raise
@@ -115,7 +112,7 @@ pub(super) fn rests(series: &[Option<f64>], reach: f64) -> Vec<Rest> {
     if second.len() < 2 * MIN_REST_FRAMES {
         return Vec::new();
     }
-    let noise = 1.4826 * median(&mut second) / 6f64.sqrt();
+    let noise = 1.4826 * median_in_place(&mut second).unwrap_or(0.0) / 6f64.sqrt();
     // A rest's frames are averaged, so the part may turn in one by at most MAX_BLUR_PX at the
     // stripe's outer end; a follower too noisy to show that finds no rest.
     let band = (6.0 * noise)
@@ -142,7 +139,7 @@ pub(super) fn rests(series: &[Option<f64>], reach: f64) -> Vec<Rest> {
             out.push(Rest {
                 first: t,
                 last: end,
-                theta: median(&mut th),
+                theta: median_in_place(&mut th).unwrap_or(th0),
             });
             t = end + 1;
         } else {
