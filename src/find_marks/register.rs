@@ -65,6 +65,8 @@ pub(super) const MIN_TURN_DEG: f64 = 4.0;
 const MAX_MOVE_PX: f64 = 2.0;
 /// The refined pivot's standard error must be below this, px.
 const MAX_SE_PX: f64 = 0.1;
+/// Pixels a fit reads at most per rest (a disc of about 178 px radius in full).
+const MAX_POINTS: usize = 100_000;
 /// Gauss–Newton iterations at most.
 const MAX_ITER: usize = 30;
 /// Parameters per rest other than the template: turn, gain, offset, two shading slopes.
@@ -323,11 +325,15 @@ pub(super) struct Refined {
 /// A template pixel: its position (px) and value.
 type Point = ([f64; 2], f64);
 
-/// The template's pixels between `r_lo` and `r_hi` px of `c`.
+/// The template's pixels between `r_lo` and `r_hi` px of `c`: every pixel, or on a coarser
+/// grid when the disc holds more than [`MAX_POINTS`] (the work of a fit is bounded whatever
+/// the frame size).
 fn points(tpl: &Plane, c: [f64; 2], r_lo: f64, r_hi: f64) -> Vec<Point> {
+    let area = std::f64::consts::PI * r_hi.max(0.0).powi(2);
+    let stride = ((area / MAX_POINTS as f64).sqrt().ceil() as usize).max(1);
     let mut pts = Vec::new();
-    for j in 0..tpl.h {
-        for i in 0..tpl.w {
+    for j in (0..tpl.h).step_by(stride) {
+        for i in (0..tpl.w).step_by(stride) {
             let q = [tpl.x0 + i as f64, tpl.y0 + j as f64];
             let r = (q[0] - c[0]).hypot(q[1] - c[1]);
             if (r_lo..=r_hi).contains(&r) {
@@ -550,6 +556,23 @@ mod tests {
         let got = refine(&st, p0, 26.0).expect("refined");
         let err = (got.pivot[0] - pivot[0]).hypot(got.pivot[1] - pivot[1]);
         assert!(err < 0.05, "pivot {:?} off by {err:.3} px", got.pivot);
+    }
+
+    #[test]
+    fn a_large_disc_is_read_on_a_coarser_grid() {
+        let (w, h) = (1200, 1200);
+        let tpl = Plane {
+            x0: 0.0,
+            y0: 0.0,
+            w,
+            h,
+            v: vec![0.5; w * h],
+        };
+        let n = points(&tpl, [600.0, 600.0], 1.0, 590.0).len();
+        assert!(n <= MAX_POINTS && n > MAX_POINTS / 4, "{n} points");
+        // A small disc keeps every pixel.
+        let small = points(&tpl, [600.0, 600.0], 0.0, 20.0).len();
+        assert!((1200..=1300).contains(&small), "{small} points");
     }
 
     #[test]
