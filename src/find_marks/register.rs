@@ -48,6 +48,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
+use super::luma::Img;
 use crate::decode::Frame;
 use crate::stats::median_in_place;
 
@@ -240,13 +241,15 @@ impl Stack {
                 (n > 0).then(|| Plane {
                     x0: self.x0 as f64,
                     y0: self.y0 as f64,
-                    w: self.w,
-                    h: self.h,
-                    v: binomial(
-                        &s.iter().map(|v| v / n as f32).collect::<Vec<_>>(),
-                        self.w,
-                        self.h,
-                    ),
+                    img: Img {
+                        w: self.w,
+                        h: self.h,
+                        v: binomial(
+                            &s.iter().map(|v| v / n as f32).collect::<Vec<_>>(),
+                            self.w,
+                            self.h,
+                        ),
+                    },
                 })
             })
             .collect()
@@ -284,25 +287,16 @@ fn binomial(v: &[f32], w: usize, h: usize) -> Vec<f32> {
 struct Plane {
     x0: f64,
     y0: f64,
-    w: usize,
-    h: usize,
-    v: Vec<f32>,
+    img: Img,
 }
 
 impl Plane {
     /// Bilinear read at frame position `q`; None outside the window (one pixel of margin).
     fn sample(&self, q: [f64; 2]) -> Option<f64> {
         let (x, y) = (q[0] - self.x0, q[1] - self.y0);
-        if !(0.0..(self.w - 1) as f64).contains(&x) || !(0.0..(self.h - 1) as f64).contains(&y) {
-            return None;
-        }
-        let (xi, yi) = (x.floor() as usize, y.floor() as usize);
-        let (fx, fy) = (x - xi as f64, y - yi as f64);
-        let at = |i: usize, j: usize| f64::from(self.v[j * self.w + i]);
-        Some(
-            (1.0 - fy) * ((1.0 - fx) * at(xi, yi) + fx * at(xi + 1, yi))
-                + fy * ((1.0 - fx) * at(xi, yi + 1) + fx * at(xi + 1, yi + 1)),
-        )
+        let (w, h) = (self.img.w as f64, self.img.h as f64);
+        ((0.0..w - 1.0).contains(&x) && (0.0..h - 1.0).contains(&y))
+            .then(|| f64::from(self.img.sample(x, y)))
     }
     /// Value and gradient at `q` (central differences of bilinear reads half a pixel apart).
     fn sample_grad(&self, q: [f64; 2]) -> Option<(f64, [f64; 2])> {
@@ -332,12 +326,13 @@ fn points(tpl: &Plane, c: [f64; 2], r_lo: f64, r_hi: f64) -> Vec<Point> {
     let area = std::f64::consts::PI * r_hi.max(0.0).powi(2);
     let stride = ((area / MAX_POINTS as f64).sqrt().ceil() as usize).max(1);
     let mut pts = Vec::new();
-    for j in (0..tpl.h).step_by(stride) {
-        for i in (0..tpl.w).step_by(stride) {
+    let img = &tpl.img;
+    for j in (0..img.h).step_by(stride) {
+        for i in (0..img.w).step_by(stride) {
             let q = [tpl.x0 + i as f64, tpl.y0 + j as f64];
             let r = (q[0] - c[0]).hypot(q[1] - c[1]);
             if (r_lo..=r_hi).contains(&r) {
-                pts.push((q, f64::from(tpl.v[j * tpl.w + i])));
+                pts.push((q, f64::from(img.v[j * img.w + i])));
             }
         }
     }
@@ -564,9 +559,11 @@ mod tests {
         let tpl = Plane {
             x0: 0.0,
             y0: 0.0,
-            w,
-            h,
-            v: vec![0.5; w * h],
+            img: Img {
+                w,
+                h,
+                v: vec![0.5; w * h],
+            },
         };
         let n = points(&tpl, [600.0, 600.0], 1.0, 590.0).len();
         assert!(n <= MAX_POINTS && n > MAX_POINTS / 4, "{n} points");
